@@ -1,0 +1,66 @@
+"""metasim: spectral simulation of observer-dependent metamerism.
+
+Public entry points are importable from the top level; each lives in the layer named in
+DEVELOPERS.md and is imported on first use so that ``import metasim`` stays quick.
+"""
+
+from __future__ import annotations
+
+import importlib
+
+from metasim._version import __version__
+from metasim.errors import MetasimError
+
+# public name -> module that defines it (imported lazily on first attribute access)
+_ENTRY_POINTS = {
+    # spectra
+    "wavelength_grid": "metasim.spectra",
+    "default_grid": "metasim.spectra",
+    "resample": "metasim.spectra",
+    "read_spectra_csv": "metasim.spectra",
+    "write_spectra_csv": "metasim.spectra",
+    "make_spectra": "metasim.spectra",
+    # observers
+    "standard_observer": "metasim.observers.standard",
+    "cone_fundamentals": "metasim.observers.standard",
+    "cie2006_observer": "metasim.observers.physiological",
+    "observer_population": "metasim.observers.population",
+    "observer_categories": "metasim.observers.categories",
+    # colorimetry
+    "tristimulus": "metasim.colorimetry",
+    "cone_excitations": "metasim.colorimetry",
+    "xyz_to_xy": "metasim.colorimetry",
+    "xyz_to_uv": "metasim.colorimetry",
+    "xyz_to_lab": "metasim.colorimetry",
+    "delta_e_2000": "metasim.colorimetry",
+    "delta_e_itp": "metasim.colorimetry",
+    # display
+    "Display": "metasim.display",
+    "make_display": "metasim.display",
+    "calibrate_white": "metasim.display",
+    "solve_drive": "metasim.display",
+    # metamerism
+    "mismatch": "metasim.metamerism",
+    # gamut
+    "chromaticity_gamut": "metasim.gamut",
+    "gamut_coverage": "metasim.gamut",
+    "lab_gamut_volume": "metasim.gamut",
+    # files
+    "save_dataset": "metasim.io",
+    "load_dataset": "metasim.io",
+}
+
+__all__ = ["__version__", "MetasimError", *_ENTRY_POINTS]
+
+
+def __getattr__(name: str):
+    module = _ENTRY_POINTS.get(name)
+    if module is None:
+        raise AttributeError(f"module 'metasim' has no attribute {name!r}")
+    value = getattr(importlib.import_module(module), name)
+    globals()[name] = value
+    return value
+
+
+def __dir__():
+    return sorted(__all__)

@@ -1,0 +1,112 @@
+"""Chromaticity coordinates and CIELAB, vectorised over any leading dims by name."""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import MetasimError
+
+LAB = ("L*", "a*", "b*")
+
+# CIE 15:2004 / ISO/CIE 11664-4 exact constants.
+_EPSILON = 216.0 / 24389.0
+_KAPPA = 24389.0 / 27.0
+
+
+def _need(array: xr.DataArray, dim: str, what: str) -> None:
+    if not isinstance(array, xr.DataArray) or dim not in array.dims:
+        got = tuple(array.dims) if isinstance(array, xr.DataArray) else type(array).__name__
+        raise MetasimError(f"{what} must be a DataArray with a '{dim}' dim, got {got}")
+
+
+def _split(array: xr.DataArray, dim: str):
+    labels = list(array.coords[dim].values) if dim in array.coords else None
+    parts = [array.isel({dim: i}, drop=True) for i in range(array.sizes[dim])]
+    return parts, labels
+
+
+def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
+    """CIE 1931 xy chromaticity (dim ``chromaticity`` = x, y) from XYZ (CIE 15:2004 §7.3).
+
+    Black (X + Y + Z = 0) gives NaN.
+    """
+    _need(xyz, "xyz", "xyz")
+    (x, y, z), _ = _split(xyz, "xyz")
+    total = x + y + z
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = xr.concat([x / total, y / total], dim="chromaticity")
+    out = out.assign_coords(chromaticity=["x", "y"]).transpose(*[d for d in xyz.dims if d != "xyz"], "chromaticity")
+    out.attrs = {"units": "1", "long_name": "CIE 1931 xy chromaticity"}
+    return out
+
+
+def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
+    """CIE 1976 u'v' chromaticity (dim ``chromaticity`` = u', v') from XYZ (CIE 15:2004 §8.1)."""
+    _need(xyz, "xyz", "xyz")
+    (x, y, z), _ = _split(xyz, "xyz")
+    denominator = x + 15 * y + 3 * z
+    with np.errstate(invalid="ignore", divide="ignore"):
+        out = xr.concat([4 * x / denominator, 9 * y / denominator], dim="chromaticity")
+    out = out.assign_coords(chromaticity=["u'", "v'"]).transpose(*[d for d in xyz.dims if d != "xyz"], "chromaticity")
+    out.attrs = {"units": "1", "long_name": "CIE 1976 u'v' chromaticity"}
+    return out
+
+
+def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.DataArray:
+    """XYZ with the given Y from xy chromaticity (dim ``chromaticity`` = x, y)."""
+    _need(xy, "chromaticity", "xy")
+    x = xy.sel(chromaticity="x", drop=True)
+    y = xy.sel(chromaticity="y", drop=True)
+    if (np.asarray(y) <= 0).any():
+        raise MetasimError("xy with y <= 0 has no XYZ; chromaticity y must be > 0")
+    big_y = x * 0 + luminance
+    out = xr.concat([x * big_y / y, big_y, (1 - x - y) * big_y / y], dim="xyz").assign_coords(xyz=["X", "Y", "Z"])
+    out = out.transpose(*[d for d in xy.dims if d != "chromaticity"], "xyz")
+    out.attrs = {"units": "1", "long_name": "tristimulus values"}
+    return out
+
+
+def _f(t):
+    return xr.where(t > _EPSILON, np.cbrt(t), (_KAPPA * t + 16.0) / 116.0)
+
+
+def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
+    """CIELAB (dim ``lab`` = L*, a*, b*) of XYZ relative to an explicit white.
+
+    Parameters
+    ----------
+    xyz : DataArray with an ``xyz`` dim.
+    white : DataArray with an ``xyz`` dim, broadcast by dim name (for example one white per
+        ``observer``). Same scale as ``xyz``.
+
+    References
+    ----------
+    CIE 15:2004 §8.2.1; ISO/CIE 11664-4:2019 (exact ε = 216/24389, κ = 24389/27).
+    """
+    _need(xyz, "xyz", "xyz")
+    _need(white, "xyz", "white")
+    if (np.asarray(white) <= 0).any():
+        raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+    ratio = xyz / white
+    fx, fy, fz = (_f(ratio.sel(xyz=c, drop=True)) for c in ("X", "Y", "Z"))
+    lab = xr.concat([116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)], dim="lab")
+    lab = lab.assign_coords(lab=list(LAB))
+    lab = lab.transpose(*[d for d in ratio.dims if d != "xyz"], "lab")
+    lab.attrs = {"units": "1", "long_name": "CIELAB (CIE 1976 L*a*b*)"}
+    return lab
+
+
+def lab_to_lch(lab: xr.DataArray) -> xr.DataArray:
+    """CIE LCh(ab): lightness, chroma C*ab and hue angle h_ab in degrees [0, 360)."""
+    _need(lab, "lab", "lab")
+    L = lab.sel(lab="L*", drop=True)
+    a = lab.sel(lab="a*", drop=True)
+    b = lab.sel(lab="b*", drop=True)
+    out = xr.concat([L, np.hypot(a, b), np.degrees(np.arctan2(b, a)) % 360.0], dim="lch")
+    out = out.assign_coords(lch=["L*", "C*ab", "h_ab"]).transpose(*[d for d in lab.dims if d != "lab"], "lch")
+    out.attrs = {"units": "1 (h_ab in degrees)", "long_name": "CIE LCh(ab)"}
+    return out
+
+
+__all__ = ["LAB", "xyz_to_xy", "xyz_to_uv", "xy_to_xyz", "xyz_to_lab", "lab_to_lch"]

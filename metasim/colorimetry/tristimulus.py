@@ -1,0 +1,145 @@
+"""Tristimulus integration: many spectra × many observers in one contraction over wavelength.
+
+The integral is the rectangle rule on a uniform grid, ``Σ S(λ)·cmf(λ)·Δλ`` — the "Integration"
+method of colour-science's ``sd_to_XYZ`` (ASTM E308 weighting tables are not used).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import MetasimError, SpectrumError
+from metasim.spectra import RADIANCE_UNITS, check_spectra, grid_step, require_same_grid
+
+#: Maximum luminous efficacy for photopic vision, lm/W (CIE 15:2004; 683 lm/W at 555 nm).
+K_M = 683.0
+
+SCALES = ("absolute", "relative", "none")
+
+
+def _responses(observers, quantity: str) -> xr.DataArray:
+    """The observer functions to integrate against (``[observer,] <quantity> × wavelength``)."""
+    if isinstance(observers, xr.Dataset):
+        variable = "cmf" if quantity == "xyz" else "lms"
+        if variable not in observers:
+            raise MetasimError(
+                f"observers carry no '{variable}' variable (have {sorted(observers.data_vars)}); "
+                "cone excitations need an observer defined from cone fundamentals"
+            )
+        observers = observers[variable]
+    if not isinstance(observers, xr.DataArray):
+        raise MetasimError(f"observers must be an xarray Dataset or DataArray, got {type(observers).__name__}")
+    channel = "xyz" if quantity == "xyz" else "cone"
+    if channel not in observers.dims or "wavelength" not in observers.dims:
+        raise MetasimError(
+            f"observer functions need dims '{channel}' and 'wavelength', got {tuple(observers.dims)}"
+        )
+    return observers
+
+
+def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -> xr.DataArray:
+    """Σ_λ spectra · responses · Δλ as one matrix product.
+
+    Output dims: the spectra's non-wavelength dims, then the responses' non-wavelength dims other
+    than ``channel_dim``, then ``channel_dim``. No Python loop over spectra or observers.
+    """
+    require_same_grid(spectra, responses, names=("spectra", "observer functions"))
+    step = grid_step(spectra)
+    s_dims = [d for d in spectra.dims if d != "wavelength"]
+    r_dims = [d for d in responses.dims if d not in ("wavelength", channel_dim)]
+    shared = set(s_dims) & set(r_dims)
+    if shared:
+        raise MetasimError(
+            f"spectra and observer functions share dims {sorted(shared)}; rename one "
+            "(only 'wavelength' may be shared)"
+        )
+    s = spectra.transpose(*s_dims, "wavelength").values
+    r = responses.transpose(*r_dims, channel_dim, "wavelength").values
+    n_w = s.shape[-1]
+    out = (s.reshape(-1, n_w) @ r.reshape(-1, n_w).T) * step
+    shape = s.shape[:-1] + r.shape[:-1]
+    coords = {}
+    for source in (spectra, responses):
+        for name, coord in source.coords.items():
+            if "wavelength" not in coord.dims and name not in coords:
+                coords[name] = coord
+    return xr.DataArray(out.reshape(shape), dims=(*s_dims, *r_dims, channel_dim), coords=coords)
+
+
+def tristimulus(
+    spectra: xr.DataArray,
+    observers,
+    *,
+    scale: str = "absolute",
+    white: xr.DataArray | None = None,
+    quantity: str = "xyz",
+) -> xr.DataArray:
+    """Tristimulus values of many spectra for many observers in one call.
+
+    Parameters
+    ----------
+    spectra : DataArray
+        Any dims plus ``wavelength`` (nm). For ``scale="absolute"`` spectral radiance in
+        W·sr⁻¹·m⁻²·nm⁻¹.
+    observers : Dataset or DataArray
+        An observer Dataset (variable ``cmf``, or ``lms`` for ``quantity="lms"``) or the functions
+        themselves as a DataArray with ``xyz`` (or ``cone``) and ``wavelength`` dims, with or without a leading ``observer`` dim; the same grid as ``spectra``.
+    scale : {"absolute", "relative", "none"}
+        ``absolute``: K_m·Σ S·x̄·Δλ with K_m = 683 lm/W, giving cd/m² for radiance input.
+        ``relative``: scaled per observer so that ``white`` has Y = 100 (for ``quantity="lms"``
+        the white's own channel values are 100).
+        ``none``: the bare integral Σ S·x̄·Δλ.
+    white : DataArray, optional
+        The stated white spectrum (``wavelength`` only) for ``scale="relative"``.
+    quantity : {"xyz", "lms"}
+        Integrate the XYZ functions (default) or the cone fundamentals.
+
+    Returns
+    -------
+    DataArray
+        The spectra's other dims, the observers' ``observer`` dim if any, then ``xyz`` (or ``cone``).
+
+    References
+    ----------
+    CIE 15:2004 Colorimetry, §7 (tristimulus values); colour-science ``sd_to_XYZ`` method "Integration".
+    """
+    if scale not in SCALES:
+        raise MetasimError(f"scale={scale!r} is not known; allowed: {', '.join(SCALES)}")
+    channel = {"xyz": "xyz", "lms": "cone"}.get(quantity)
+    if channel is None:
+        raise MetasimError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
+    check_spectra(spectra, where="spectra", non_negative=False)
+    responses = _responses(observers, quantity)
+    values = contract(spectra, responses, channel)
+    if scale == "absolute":
+        values = values * K_M
+        units = "cd m-2" if spectra.attrs.get("units") == RADIANCE_UNITS else f"683 lm/W x ({spectra.attrs.get('units', '1')}) nm"
+    elif scale == "relative":
+        if white is None:
+            raise MetasimError("scale='relative' needs a stated white spectrum (white=...)")
+        if set(white.dims) != {"wavelength"}:
+            raise SpectrumError(f"white must have only a 'wavelength' dim, got {tuple(white.dims)}")
+        white_values = contract(white, responses, channel)
+        reference = white_values.sel({channel: "Y"}) if channel == "xyz" else white_values
+        if (np.asarray(reference) <= 0).any():
+            raise SpectrumError("the stated white has zero or negative response; it cannot set Y = 100")
+        values = values * (100.0 / reference)
+        units = "1 (white Y = 100)"
+    else:
+        units = f"({spectra.attrs.get('units', '1')}) nm"
+    values.attrs = {
+        "units": units,
+        "long_name": "tristimulus values" if quantity == "xyz" else "cone excitations",
+        "integration": "rectangle rule over the uniform wavelength grid",
+    }
+    values.name = "tristimulus" if quantity == "xyz" else "cone_excitation"
+    return values
+
+
+def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray:
+    """Cone excitations (``cone`` = L, M, S) of spectra; see :func:`tristimulus` for the options."""
+    return tristimulus(spectra, observers, quantity="lms", **kwargs)
+
+
+__all__ = ["K_M", "SCALES", "contract", "tristimulus", "cone_excitations"]

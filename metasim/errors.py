@@ -1,0 +1,57 @@
+"""The metasim exception family.
+
+Every error raised on purpose by metasim derives from :class:`MetasimError`. Messages say what was
+wrong, the offending value and what is allowed, on one line, so the command-line interface can show
+them verbatim without a traceback.
+"""
+
+from __future__ import annotations
+
+
+class MetasimError(Exception):
+    """Base class of every error metasim raises on purpose."""
+
+
+class SpectrumError(MetasimError, ValueError):
+    """A spectrum, a wavelength grid or a spectral file is not usable."""
+
+
+class GridMismatchError(SpectrumError):
+    """Two spectral quantities are sampled on different wavelength grids."""
+
+
+class ObserverError(MetasimError, ValueError):
+    """An observer name, parameter or population setting is outside what the model allows."""
+
+
+class DisplayError(MetasimError, ValueError):
+    """A display design, primary set, transfer function or drive request is not usable."""
+
+
+class GamutError(MetasimError, ValueError):
+    """A gamut cannot be formed from the given primaries (too few, collinear, degenerate)."""
+
+
+class StimulusError(MetasimError, ValueError):
+    """A stimulus set is empty, malformed or cannot be reproduced."""
+
+
+class SweepError(MetasimError, ValueError):
+    """A sweep specification or its output store is not usable."""
+
+
+class FileFormatError(MetasimError, ValueError):
+    """A file cannot be read: missing, empty, or not in the expected layout."""
+
+
+__all__ = [
+    "MetasimError",
+    "SpectrumError",
+    "GridMismatchError",
+    "ObserverError",
+    "DisplayError",
+    "GamutError",
+    "StimulusError",
+    "SweepError",
+    "FileFormatError",
+]

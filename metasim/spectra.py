@@ -1,0 +1,509 @@
+"""Wavelength grids, spectral validation, resampling and CSV exchange of measured spectra.
+
+This is the top layer of metasim: it imports nothing else from the package except the error family.
+
+Conventions
+-----------
+* A spectral quantity is an :class:`xarray.DataArray` with a ``wavelength`` dimension (nm, float64,
+  strictly ascending). Any other dimensions (``channel``, ``primary``, ``stimulus``, ...) may lead.
+* The default grid is 390-830 nm at 1 nm, the range of the CIE 170-1:2006 physiological observer.
+  Use ``wavelength_grid(360, 830)`` for work with the CIE 1931 and 1964 observers only.
+
+Resampling policy (:func:`resample`)
+------------------------------------
+* Inside the measured range: linear interpolation of the spectral density (values per nm).
+* Outside the measured range: zero. A measured spectrum says nothing about wavelengths it was not
+  measured at; zero is the conservative choice for emission and keeps integrals finite.
+* Energy that falls outside the target grid is dropped; if it exceeds 0.1 % of the spectrum's total
+  energy (trapezoidal integral over its own wavelengths) a :class:`SpectralEnergyWarning` names the
+  channel and the share lost.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+import os
+import warnings
+from pathlib import Path
+from typing import Iterable, Sequence
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import FileFormatError, GridMismatchError, SpectrumError
+
+DEFAULT_START_NM = 390.0
+DEFAULT_END_NM = 830.0
+DEFAULT_STEP_NM = 1.0
+#: Share of a spectrum's energy that resampling may drop silently (0.1 %).
+ENERGY_WARNING_SHARE = 1e-3
+
+RADIANCE_UNITS = "W sr-1 m-2 nm-1"
+WAVELENGTH_ATTRS = {"units": "nm", "long_name": "wavelength"}
+
+
+class SpectralEnergyWarning(UserWarning):
+    """Resampling dropped more than the allowed share of a spectrum's energy."""
+
+
+def wavelength_grid(
+    start_nm: float = DEFAULT_START_NM,
+    end_nm: float = DEFAULT_END_NM,
+    step_nm: float = DEFAULT_STEP_NM,
+) -> xr.DataArray:
+    """Return a uniform wavelength grid as a ``wavelength`` coordinate DataArray (nm).
+
+    Parameters
+    ----------
+    start_nm, end_nm : float
+        First and last wavelength in nm, ``0 < start_nm < end_nm``; ``end_nm`` is included when it
+        lies on the grid.
+    step_nm : float
+        Spacing in nm, > 0.
+    """
+    for name, value in (("start_nm", start_nm), ("end_nm", end_nm), ("step_nm", step_nm)):
+        if not isinstance(value, (int, float, np.number)) or not math.isfinite(float(value)):
+            raise SpectrumError(f"{name}={value!r} is not a finite number of nm")
+    if step_nm <= 0:
+        raise SpectrumError(f"step_nm={step_nm} is not allowed: the grid step must be > 0 nm")
+    if not 0 < start_nm < end_nm:
+        raise SpectrumError(
+            f"grid {start_nm}-{end_nm} nm is not allowed: need 0 < start_nm < end_nm"
+        )
+    count = int(math.floor((end_nm - start_nm) / step_nm + 1e-9)) + 1
+    values = start_nm + step_nm * np.arange(count, dtype=float)
+    return xr.DataArray(
+        values, dims=("wavelength",), coords={"wavelength": values}, attrs=dict(WAVELENGTH_ATTRS)
+    ).coords["wavelength"].copy()
+
+
+def default_grid() -> xr.DataArray:
+    """The default grid, 390-830 nm at 1 nm (CIE 170-1:2006 range)."""
+    return wavelength_grid()
+
+
+def as_wavelengths(wavelengths) -> np.ndarray:
+    """Return the wavelengths of a grid, DataArray, Dataset or sequence as a float64 array."""
+    if isinstance(wavelengths, (xr.DataArray, xr.Dataset)) and "wavelength" in wavelengths.coords:
+        return np.asarray(wavelengths.coords["wavelength"].values, dtype=float)
+    return np.asarray(wavelengths, dtype=float)
+
+
+def check_wavelengths(
+    wavelengths, *, where: str = "wavelengths", uniform: bool = False
+) -> np.ndarray:
+    """Validate a wavelength vector and return it as float64.
+
+    Allowed: a one-dimensional, finite, strictly ascending vector of positive values in nm with at
+    least two entries; with ``uniform=True`` also a constant step (relative tolerance 1e-6).
+
+    Raises
+    ------
+    SpectrumError
+        Naming ``where``, the first offending value and what is allowed.
+    """
+    try:
+        values = as_wavelengths(wavelengths)
+    except (TypeError, ValueError) as exc:
+        raise SpectrumError(f"{where}: wavelengths are not numeric ({exc})") from None
+    if values.ndim != 1:
+        raise SpectrumError(f"{where}: wavelengths must be one-dimensional, got shape {values.shape}")
+    if values.size < 2:
+        raise SpectrumError(f"{where}: need at least 2 wavelengths, got {values.size}")
+    bad = ~np.isfinite(values)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise SpectrumError(f"{where}: wavelength #{i} is {values[i]!r}; wavelengths must be finite")
+    if (values <= 0).any():
+        i = int(np.argmax(values <= 0))
+        raise SpectrumError(f"{where}: wavelength {values[i]!r} nm is not allowed; must be > 0 nm")
+    steps = np.diff(values)
+    if (steps == 0).any():
+        i = int(np.argmax(steps == 0))
+        raise SpectrumError(
+            f"{where}: duplicate wavelength {values[i + 1]:g} nm; wavelengths must be unique"
+        )
+    if (steps < 0).any():
+        i = int(np.argmax(steps < 0))
+        raise SpectrumError(
+            f"{where}: wavelength {values[i + 1]:g} nm follows {values[i]:g} nm; "
+            "wavelengths must be strictly ascending"
+        )
+    if uniform and not np.allclose(steps, steps[0], rtol=1e-6, atol=1e-9):
+        i = int(np.argmax(~np.isclose(steps, steps[0], rtol=1e-6, atol=1e-9)))
+        raise SpectrumError(
+            f"{where}: step {steps[i]:g} nm at {values[i]:g} nm differs from {steps[0]:g} nm; "
+            "a grid must be uniform (resample measured data first)"
+        )
+    return values
+
+
+def grid_step(wavelengths) -> float:
+    """Step in nm of a uniform grid (validated)."""
+    values = check_wavelengths(wavelengths, where="grid", uniform=True)
+    return float(values[1] - values[0])
+
+
+def check_spectra(
+    spectra: xr.DataArray, *, where: str = "spectra", non_negative: bool = True
+) -> xr.DataArray:
+    """Validate a spectral DataArray: a ``wavelength`` dim, valid wavelengths, finite values.
+
+    With ``non_negative=True`` (emission, reflectance, transmittance) negative values are refused.
+    Returns the input unchanged.
+    """
+    if not isinstance(spectra, xr.DataArray):
+        raise SpectrumError(
+            f"{where}: expected an xarray.DataArray with a 'wavelength' dim, got {type(spectra).__name__}"
+        )
+    if "wavelength" not in spectra.dims:
+        raise SpectrumError(f"{where}: no 'wavelength' dim among {tuple(spectra.dims)}")
+    if "wavelength" not in spectra.coords:
+        raise SpectrumError(f"{where}: the 'wavelength' dim has no coordinate values (nm)")
+    check_wavelengths(spectra.coords["wavelength"], where=where)
+    values = np.asarray(spectra.values, dtype=float)
+    bad = ~np.isfinite(values)
+    if bad.any():
+        index = np.unravel_index(int(np.argmax(bad)), values.shape)
+        raise SpectrumError(f"{where}: value {values[index]!r} at {_describe(spectra, index)}; values must be finite")
+    if non_negative and (values < 0).any():
+        index = np.unravel_index(int(np.argmin(values)), values.shape)
+        raise SpectrumError(
+            f"{where}: negative value {values[index]:.6g} at {_describe(spectra, index)}; "
+            "emission, reflectance and transmittance must be >= 0"
+        )
+    return spectra
+
+
+def _describe(array: xr.DataArray, index: tuple) -> str:
+    parts = []
+    for dim, i in zip(array.dims, index):
+        if dim in array.coords:
+            value = array.coords[dim].values[i]
+            parts.append(f"{dim}={value:g}" if isinstance(value, (float, np.floating)) else f"{dim}={value}")
+        else:
+            parts.append(f"{dim}#{i}")
+    return ", ".join(parts)
+
+
+def make_spectra(
+    values,
+    wavelengths,
+    *,
+    dim: str = "channel",
+    labels: Sequence | None = None,
+    units: str = RADIANCE_UNITS,
+    long_name: str = "spectral radiance",
+    non_negative: bool = True,
+    **attrs,
+) -> xr.DataArray:
+    """Build a validated spectral DataArray (``dim`` × ``wavelength``, or ``wavelength`` only).
+
+    ``values`` has shape (n_wavelength,) or (n_labels, n_wavelength).
+    """
+    wl = check_wavelengths(wavelengths, where=long_name)
+    data = np.asarray(values, dtype=float)
+    if data.ndim == 1:
+        array = xr.DataArray(data, dims=("wavelength",), coords={"wavelength": wl})
+    elif data.ndim == 2:
+        if labels is None:
+            labels = [f"{dim}{i}" for i in range(data.shape[0])]
+        array = xr.DataArray(
+            data, dims=(dim, "wavelength"), coords={dim: list(labels), "wavelength": wl}
+        )
+    else:
+        raise SpectrumError(f"{long_name}: values must be 1-D or 2-D, got shape {data.shape}")
+    if array.sizes["wavelength"] != wl.size:
+        raise GridMismatchError(f"{long_name}: {data.shape[-1]} values for {wl.size} wavelengths")
+    array.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
+    array.attrs.update({"units": units, "long_name": long_name, **attrs})
+    return check_spectra(array, where=long_name, non_negative=non_negative)
+
+
+def same_grid(a, b) -> bool:
+    """True when two objects carry identical wavelength coordinates."""
+    wa, wb = as_wavelengths(a), as_wavelengths(b)
+    return wa.shape == wb.shape and np.array_equal(wa, wb)
+
+
+def require_same_grid(a, b, *, names: tuple[str, str] = ("first", "second")) -> None:
+    """Raise :class:`GridMismatchError` unless ``a`` and ``b`` share their wavelength grid."""
+    if not same_grid(a, b):
+        wa, wb = as_wavelengths(a), as_wavelengths(b)
+        raise GridMismatchError(
+            f"{names[0]} is sampled at {_grid_text(wa)} but {names[1]} at {_grid_text(wb)}; "
+            "resample one onto the other's grid (metasim.spectra.resample)"
+        )
+
+
+def _grid_text(values: np.ndarray) -> str:
+    if values.size < 2:
+        return f"{values.size} wavelength(s)"
+    step = np.diff(values)
+    step_text = f"{step[0]:g} nm" if np.allclose(step, step[0]) else "non-uniform steps"
+    return f"{values[0]:g}-{values[-1]:g} nm ({values.size} points, {step_text})"
+
+
+def resample(
+    spectra: xr.DataArray,
+    wavelengths=None,
+    *,
+    warn_share: float = ENERGY_WARNING_SHARE,
+) -> xr.DataArray:
+    """Resample spectra onto a wavelength grid following the module's documented policy.
+
+    Linear interpolation inside the measured range, zero outside; a :class:`SpectralEnergyWarning`
+    when more than ``warn_share`` of any channel's energy falls outside the target grid.
+    """
+    check_spectra(spectra, where=spectra.name or "spectra", non_negative=False)
+    target = check_wavelengths(default_grid() if wavelengths is None else wavelengths, where="target grid")
+    source = as_wavelengths(spectra)
+    if same_grid(source, target):
+        return spectra
+    moved = spectra.transpose(..., "wavelength")
+    values = np.asarray(moved.values, dtype=float)
+    flat = values.reshape(-1, source.size)
+
+    total = np.abs(np.trapezoid(flat, source, axis=-1))
+    inside = (source >= target[0]) & (source <= target[-1])
+    kept_src = np.where(inside, flat, 0.0)
+    kept = np.abs(np.trapezoid(kept_src, source, axis=-1))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lost = np.where(total > 0, 1.0 - kept / total, 0.0)
+    if (lost > warn_share).any():
+        worst = int(np.argmax(lost))
+        label = _flat_label(moved, worst)
+        warnings.warn(
+            f"resampling {label} onto {_grid_text(target)} drops {100 * lost[worst]:.2f} % of its "
+            f"energy (measured {source[0]:g}-{source[-1]:g} nm); values outside the measured range are 0",
+            SpectralEnergyWarning,
+            stacklevel=2,
+        )
+    out = np.empty((flat.shape[0], target.size))
+    for row in range(flat.shape[0]):  # rows are channels of one measured file: few, not a hot path
+        out[row] = np.interp(target, source, flat[row], left=0.0, right=0.0)
+    result = xr.DataArray(
+        out.reshape(values.shape[:-1] + (target.size,)),
+        dims=moved.dims,
+        coords={k: v for k, v in moved.coords.items() if "wavelength" not in v.dims},
+        attrs=dict(spectra.attrs),
+        name=spectra.name,
+    )
+    result = result.assign_coords(wavelength=target)
+    result.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
+    return result.transpose(*spectra.dims)
+
+
+def _flat_label(array: xr.DataArray, flat_index: int) -> str:
+    lead = [d for d in array.dims if d != "wavelength"]
+    if not lead:
+        return f"spectrum {array.name or ''}".strip()
+    index = np.unravel_index(flat_index, [array.sizes[d] for d in lead])
+    return "spectrum " + ", ".join(
+        f"{d}={array.coords[d].values[i]}" if d in array.coords else f"{d}#{i}" for d, i in zip(lead, index)
+    )
+
+
+def integrate(spectra: xr.DataArray) -> xr.DataArray:
+    """Integral over wavelength by the rectangle rule on a uniform grid (sum × step), in units × nm."""
+    step = grid_step(spectra)
+    out = spectra.sum("wavelength") * step
+    out.attrs = {"long_name": f"integral of {spectra.attrs.get('long_name', 'spectrum')}"}
+    return out
+
+
+# ----------------------------------------------------------------------------------------------
+# CSV exchange
+# ----------------------------------------------------------------------------------------------
+
+
+def read_spectra_csv(
+    path: str | os.PathLike,
+    *,
+    wavelengths=None,
+    units: str = RADIANCE_UNITS,
+    long_name: str = "spectral radiance",
+    non_negative: bool = True,
+    dim: str = "channel",
+) -> xr.DataArray:
+    """Read measured spectra from a CSV file into a DataArray (``channel`` × ``wavelength``).
+
+    Layout: optional comment lines starting with ``#`` (kept in the ``source_notes`` attribute);
+    a header line whose first column is the wavelength in nm (for example ``wavelength_nm``) and
+    whose other columns name the channels; then one row per wavelength. Wavelengths must be strictly
+    ascending and unique; cells must be finite numbers; with ``non_negative`` (the default, for
+    emission, reflectance and transmittance) no value may be negative.
+
+    Parameters
+    ----------
+    path : path-like
+        The CSV file.
+    wavelengths : optional
+        Resample onto this grid (see :func:`resample`); the measured grid is kept when None.
+
+    Raises
+    ------
+    FileFormatError
+        Missing or empty file, no data rows, bad header, non-numeric cell, ragged rows; the message
+        names the file and line.
+    SpectrumError
+        Unsorted, duplicate or non-finite wavelengths, NaN values, negative values; named likewise.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise FileFormatError(f"{path}: no such file")
+    notes: list[str] = []
+    header: list[str] | None = None
+    rows: list[list[float]] = []
+    lines: list[int] = []
+    try:
+        handle = path.open(newline="", encoding="utf-8-sig")
+    except OSError as exc:
+        raise FileFormatError(f"{path}: cannot be opened ({exc.strerror})") from None
+    with handle:
+        try:
+            for line_no, record in enumerate(csv.reader(handle), start=1):
+                if not record or all(not cell.strip() for cell in record):
+                    continue
+                first = record[0].strip()
+                if first.startswith("#"):
+                    notes.append(",".join(record).lstrip("#").strip())
+                    continue
+                if header is None:
+                    header = [cell.strip() for cell in record]
+                    if len(header) < 2:
+                        raise FileFormatError(
+                            f"{path}:{line_no}: header {record!r} names no channel; "
+                            "expected 'wavelength_nm,<channel>,...'"
+                        )
+                    if _is_number(header[0]):
+                        raise FileFormatError(
+                            f"{path}:{line_no}: first line {record!r} is numeric; a header line "
+                            "'wavelength_nm,<channel>,...' must come first"
+                        )
+                    if len(set(header[1:])) != len(header) - 1:
+                        raise FileFormatError(f"{path}:{line_no}: channel names repeat in {header[1:]}")
+                    continue
+                if len(record) != len(header):
+                    raise FileFormatError(
+                        f"{path}:{line_no}: {len(record)} cells but the header has {len(header)} columns"
+                    )
+                values = []
+                for column, cell in enumerate(record):
+                    try:
+                        values.append(float(cell))
+                    except ValueError:
+                        raise FileFormatError(
+                            f"{path}:{line_no}: cell {cell.strip()!r} in column '{header[column]}' "
+                            "is not a number"
+                        ) from None
+                rows.append(values)
+                lines.append(line_no)
+        except UnicodeDecodeError:
+            raise FileFormatError(f"{path}: not a UTF-8 text file") from None
+    if header is None:
+        raise FileFormatError(f"{path}: file is empty; expected a header 'wavelength_nm,<channel>,...' and data rows")
+    if not rows:
+        raise FileFormatError(f"{path}: header but no data rows")
+    table = np.asarray(rows, dtype=float)
+    wl = table[:, 0]
+    for i in range(len(wl)):
+        if not math.isfinite(wl[i]):
+            raise SpectrumError(f"{path}:{lines[i]}: wavelength {wl[i]!r} is not finite")
+        if i and wl[i] == wl[i - 1]:
+            raise SpectrumError(f"{path}:{lines[i]}: duplicate wavelength {wl[i]:g} nm; wavelengths must be unique")
+        if i and wl[i] < wl[i - 1]:
+            raise SpectrumError(
+                f"{path}:{lines[i]}: wavelength {wl[i]:g} nm follows {wl[i - 1]:g} nm; "
+                "wavelengths must be strictly ascending"
+            )
+    data = table[:, 1:]
+    bad = ~np.isfinite(data)
+    if bad.any():
+        r, c = np.argwhere(bad)[0]
+        raise SpectrumError(
+            f"{path}:{lines[r]}: value {data[r, c]!r} in column '{header[c + 1]}'; values must be finite"
+        )
+    if non_negative and (data < 0).any():
+        r, c = np.argwhere(data < 0)[0]
+        raise SpectrumError(
+            f"{path}:{lines[r]}: negative value {data[r, c]:g} in column '{header[c + 1]}'; "
+            "emission, reflectance and transmittance must be >= 0"
+        )
+    if len(wl) < 2:
+        raise SpectrumError(f"{path}: only {len(wl)} data row; need at least 2 wavelengths")
+    array = xr.DataArray(
+        data.T,
+        dims=(dim, "wavelength"),
+        coords={dim: header[1:], "wavelength": wl},
+        attrs={"units": units, "long_name": long_name, "source_file": str(path)},
+    )
+    if notes:
+        array.attrs["source_notes"] = "\n".join(notes)
+    array.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
+    if wavelengths is not None:
+        array = resample(array, wavelengths)
+    return array
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+def write_spectra_csv(
+    spectra: xr.DataArray, path: str | os.PathLike, *, notes: Iterable[str] = ()
+) -> Path:
+    """Write spectra (one leading dim × ``wavelength``, or ``wavelength`` only) as CSV.
+
+    The file reads back with :func:`read_spectra_csv`: comment lines (``notes`` plus units), then
+    ``wavelength_nm,<label>,...`` and one row per wavelength, values with 17 significant digits.
+    """
+    check_spectra(spectra, where=str(path), non_negative=False)
+    lead = [d for d in spectra.dims if d != "wavelength"]
+    if len(lead) > 1:
+        raise SpectrumError(f"{path}: can write one channel dim, got dims {tuple(spectra.dims)}")
+    if lead:
+        labels = [str(v) for v in spectra.coords[lead[0]].values] if lead[0] in spectra.coords else [
+            f"{lead[0]}{i}" for i in range(spectra.sizes[lead[0]])
+        ]
+        values = spectra.transpose(lead[0], "wavelength").values
+    else:
+        labels = [str(spectra.name or "value")]
+        values = spectra.values[None, :]
+    path = Path(path)
+    with path.open("w", newline="", encoding="utf-8") as handle:
+        for note in notes:
+            handle.write(f"# {note}\n")
+        handle.write(f"# units: {spectra.attrs.get('units', 'unknown')}\n")
+        writer = csv.writer(handle)
+        writer.writerow(["wavelength_nm", *labels])
+        for j, w in enumerate(as_wavelengths(spectra)):
+            writer.writerow([repr(float(w)), *(repr(float(v)) for v in values[:, j])])
+    return path
+
+
+__all__ = [
+    "DEFAULT_START_NM",
+    "DEFAULT_END_NM",
+    "DEFAULT_STEP_NM",
+    "RADIANCE_UNITS",
+    "SpectralEnergyWarning",
+    "wavelength_grid",
+    "default_grid",
+    "as_wavelengths",
+    "check_wavelengths",
+    "grid_step",
+    "check_spectra",
+    "make_spectra",
+    "same_grid",
+    "require_same_grid",
+    "resample",
+    "integrate",
+    "read_spectra_csv",
+    "write_spectra_csv",
+]
