@@ -1,5 +1,16 @@
 """Observers: standard CIE observers, the CIE 170-1 physiological model, individuals, populations."""
 
+from metasim.observers.categories import observer_categories, observer_features
+from metasim.observers.physiological import (
+    DEVIATIONS,
+    cie2006_observer,
+    lens_components_dataset,
+    low_density_absorbance,
+    ocular_media_density,
+    physiological_observers,
+    read_lens_components,
+)
+from metasim.observers.population import DEFAULT_SD, observer_population
 from metasim.observers.standard import (
     CONES,
     STANDARD_OBSERVERS,
@@ -8,4 +19,21 @@ from metasim.observers.standard import (
     standard_observer,
 )
 
-__all__ = ["CONES", "XYZ", "STANDARD_OBSERVERS", "standard_observer", "cone_fundamentals"]
+__all__ = [
+    "CONES",
+    "XYZ",
+    "STANDARD_OBSERVERS",
+    "standard_observer",
+    "cone_fundamentals",
+    "DEVIATIONS",
+    "DEFAULT_SD",
+    "cie2006_observer",
+    "physiological_observers",
+    "low_density_absorbance",
+    "ocular_media_density",
+    "read_lens_components",
+    "lens_components_dataset",
+    "observer_population",
+    "observer_categories",
+    "observer_features",
+]

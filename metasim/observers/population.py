@@ -1,0 +1,202 @@
+"""Seeded populations of individual CIE 170-1 observers.
+
+Each observer is the CIE 170-1:2006 observer of its age and field size with eight individual
+deviations (Asano, Fairchild & Blondé 2016) drawn independently from normal distributions with mean
+0 and the configured standard deviations. Default standard deviations, quoted from memory of Asano,
+Fairchild & Blondé (2016) and kept as parameters: lens density 18.7 %, macular density 36.5 %, L, M
+and S peak optical density 9.0 %, 9.0 %, 7.4 %, L, M and S peak-wavelength shift 2.0, 1.5, 1.3 nm.
+
+The drawn values are stored unchanged as ``observer`` coordinates. A density deviation below
+−100 % (possible for the macula, 2.7 standard deviations) gives zero density in the model.
+
+Ages and field sizes may be
+
+* one number (every observer the same);
+* a pair ``(lo, hi)``: uniform on [lo, hi];
+* a histogram: a dict whose keys are either a value (drawn exactly) or a ``(lo, hi)`` bin (uniform
+  inside) and whose values are relative frequencies; or a 1-D DataArray of relative frequencies
+  whose coordinate holds the values.
+
+Draws, in this order, from ``numpy.random.default_rng(seed)``: ages, field sizes, then the eight
+deviations in the order of :data:`metasim.observers.physiological.DEVIATIONS`.
+
+References
+----------
+Asano, Y., Fairchild, M. D. & Blondé, L. (2016) Individual colorimetric observer model.
+PLoS ONE 11(2), e0145671. CIE 170-1:2006; CIE 170-2:2015.
+"""
+
+from __future__ import annotations
+
+import json
+from numbers import Integral, Real
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import ObserverError
+from metasim.observers.physiological import (
+    AGE_RANGE_YEARS,
+    DEVIATIONS,
+    FIELD_RANGE_DEG,
+    physiological_observers,
+)
+
+#: Default standard deviations of the eight deviations (from memory of Asano et al. 2016).
+DEFAULT_SD = {
+    "lens_density_pct": 18.7,
+    "macular_density_pct": 36.5,
+    "l_density_pct": 9.0,
+    "m_density_pct": 9.0,
+    "s_density_pct": 7.4,
+    "l_shift_nm": 2.0,
+    "m_shift_nm": 1.5,
+    "s_shift_nm": 1.3,
+}
+POPULATION_MODEL = (
+    "CIE 170-1:2006 physiological observers with normally distributed individual deviations "
+    "(Asano, Fairchild & Blondé 2016)"
+)
+
+
+def _generator(seed) -> tuple[np.random.Generator, dict]:
+    if isinstance(seed, np.random.Generator):
+        state = json.dumps(seed.bit_generator.state, default=int)
+        return seed, {"seed": "numpy Generator", "generator_state": state}
+    if isinstance(seed, bool) or not isinstance(seed, Integral) or seed < 0:
+        raise ObserverError(f"seed={seed!r} is not allowed; give an integer >= 0 or a numpy.random.Generator")
+    return np.random.default_rng(int(seed)), {"seed": int(seed)}
+
+
+def _check_value(name: str, value, allowed: tuple[float, float], extrapolate: bool) -> float:
+    if isinstance(value, bool) or not isinstance(value, Real) or not np.isfinite(value) or value <= 0:
+        raise ObserverError(f"{name} value {value!r} is not allowed; need a finite number > 0")
+    if not extrapolate and not allowed[0] <= value <= allowed[1]:
+        raise ObserverError(
+            f"{name}={value:g} is outside the CIE 170-1 model; allowed: {allowed[0]:g}-{allowed[1]:g} "
+            "(or extrapolate=True)"
+        )
+    return float(value)
+
+
+def _draw(name: str, spec, n: int, rng: np.random.Generator, allowed, extrapolate: bool):
+    """Draw n values of an age or field size following ``spec``; return (values, description)."""
+    if isinstance(spec, Real) and not isinstance(spec, bool):
+        value = _check_value(name, spec, allowed, extrapolate)
+        return np.full(n, value), {"distribution": "fixed", "value": value}
+    if isinstance(spec, (tuple, list)) and len(spec) == 2:
+        lo, hi = (_check_value(name, v, allowed, extrapolate) for v in spec)
+        if lo > hi:
+            raise ObserverError(f"{name} range ({lo:g}, {hi:g}) is not allowed; need lo <= hi")
+        return rng.uniform(lo, hi, n), {"distribution": "uniform", "low": lo, "high": hi}
+    if isinstance(spec, xr.DataArray):
+        if spec.ndim != 1 or spec.dims[0] not in spec.coords:
+            raise ObserverError(f"{name} histogram DataArray must be 1-D with a coordinate of values")
+        spec = dict(zip(spec.coords[spec.dims[0]].values.tolist(), spec.values.tolist()))
+    if not isinstance(spec, dict) or not spec:
+        raise ObserverError(
+            f"{name}={spec!r} is not allowed; give a number, a (lo, hi) pair, or a histogram "
+            "(dict or DataArray of relative frequencies)"
+        )
+    bins, weights = [], []
+    for key, weight in spec.items():
+        if isinstance(key, (tuple, list)) and len(key) == 2:
+            lo, hi = (_check_value(name, v, allowed, extrapolate) for v in key)
+            if lo > hi:
+                raise ObserverError(f"{name} histogram bin ({lo:g}, {hi:g}) is not allowed; need lo <= hi")
+        else:
+            lo = hi = _check_value(name, key, allowed, extrapolate)
+        if not isinstance(weight, Real) or not np.isfinite(weight) or weight < 0:
+            raise ObserverError(f"{name} histogram weight {weight!r} for {key!r} is not allowed; need a number >= 0")
+        bins.append((lo, hi))
+        weights.append(float(weight))
+    total = sum(weights)
+    if total <= 0:
+        raise ObserverError(f"{name} histogram weights sum to {total:g}; need a positive total")
+    edges = np.asarray(bins)
+    choice = rng.choice(len(bins), size=n, p=np.asarray(weights) / total)
+    values = rng.uniform(edges[choice, 0], edges[choice, 1])
+    return values, {"distribution": "histogram", "bins": edges.tolist(), "weights": weights}
+
+
+def observer_population(
+    n: int,
+    *,
+    seed,
+    age_years=32,
+    field_size_deg=2,
+    sd_lens_density_pct: float = DEFAULT_SD["lens_density_pct"],
+    sd_macular_density_pct: float = DEFAULT_SD["macular_density_pct"],
+    sd_l_density_pct: float = DEFAULT_SD["l_density_pct"],
+    sd_m_density_pct: float = DEFAULT_SD["m_density_pct"],
+    sd_s_density_pct: float = DEFAULT_SD["s_density_pct"],
+    sd_l_shift_nm: float = DEFAULT_SD["l_shift_nm"],
+    sd_m_shift_nm: float = DEFAULT_SD["m_shift_nm"],
+    sd_s_shift_nm: float = DEFAULT_SD["s_shift_nm"],
+    wavelengths=None,
+    extrapolate: bool = False,
+    lens_components: xr.Dataset | None = None,
+) -> xr.Dataset:
+    """A reproducible population of n individual CIE 170-1 observers.
+
+    Parameters
+    ----------
+    n : int
+        Number of observers, >= 1.
+    seed : int or numpy.random.Generator
+        Source of every random draw; an integer is recorded in the result's ``seed`` attribute.
+    age_years : number, (lo, hi), dict or DataArray
+        Fixed age, uniform range, or histogram (see the module docstring); 20-80 years.
+    field_size_deg : number, (lo, hi), dict or DataArray
+        Likewise, 1-10 degrees.
+    sd_* : float
+        Standard deviation of each deviation (% or nm), >= 0; defaults from memory of Asano,
+        Fairchild & Blondé (2016).
+    wavelengths, extrapolate, lens_components
+        As in :func:`metasim.observers.physiological.physiological_observers`.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz, wavelength); ``age_years``,
+        ``field_size_deg`` and the eight deviations as ``observer`` coordinates; attributes
+        ``seed``, ``model``, ``parameters`` (JSON text) and ``metasim_version``.
+
+    References
+    ----------
+    Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671; CIE 170-1:2006; CIE 170-2:2015.
+    """
+    if isinstance(n, bool) or not isinstance(n, Integral) or n < 1:
+        raise ObserverError(f"n={n!r} is not allowed; a population needs an integer number of observers >= 1")
+    sds = {
+        "lens_density_pct": sd_lens_density_pct, "macular_density_pct": sd_macular_density_pct,
+        "l_density_pct": sd_l_density_pct, "m_density_pct": sd_m_density_pct,
+        "s_density_pct": sd_s_density_pct, "l_shift_nm": sd_l_shift_nm,
+        "m_shift_nm": sd_m_shift_nm, "s_shift_nm": sd_s_shift_nm,
+    }
+    for name, sd in sds.items():
+        if isinstance(sd, bool) or not isinstance(sd, Real) or not np.isfinite(sd) or sd < 0:
+            raise ObserverError(f"sd_{name}={sd!r} is not allowed; a standard deviation must be a finite number >= 0")
+    rng, seed_attrs = _generator(seed)
+    n = int(n)
+    ages, age_spec = _draw("age_years", age_years, n, rng, AGE_RANGE_YEARS, extrapolate)
+    fields, field_spec = _draw("field_size_deg", field_size_deg, n, rng, FIELD_RANGE_DEG, extrapolate)
+    deviations = {name: rng.normal(0.0, float(sds[name]), n) for name in DEVIATIONS}
+    population = physiological_observers(ages, fields, wavelengths=wavelengths, extrapolate=extrapolate,
+                                         lens_components=lens_components, **deviations)
+    parameters = {
+        "n": n, "age_years": age_spec, "field_size_deg": field_spec,
+        **{f"sd_{k}": float(v) for k, v in sds.items()},
+        "deviation_distribution": "normal, mean 0, independent",
+        "lens_components": None if lens_components is None else lens_components.attrs.get("source", "user"),
+    }
+    population.attrs.update({
+        **seed_attrs,
+        "model": POPULATION_MODEL,
+        "parameters": json.dumps(parameters),
+        "default_sd_source": "Asano, Fairchild & Blondé (2016), values from memory",
+    })
+    return population
+
+
+__all__ = ["DEFAULT_SD", "observer_population"]
