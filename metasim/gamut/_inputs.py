@@ -1,0 +1,190 @@
+"""Turning the many ways of stating primaries into one labelled XYZ array, and back.
+
+Accepted primaries (every gamut function goes through :func:`primaries_xyz`):
+
+* a DataArray with dims ``primary`` and ``xyz`` (tristimulus values, any common scale), with any
+  leading dims (``design``, ``observer``, ...);
+* a DataArray with dims ``primary`` and ``wavelength`` (emission spectra) plus an observer Dataset
+  (variable ``cmf``, optional leading ``observer`` dim) — integrated with
+  :func:`metasim.colorimetry.tristimulus`;
+* any object with a ``spectra`` attribute holding such a DataArray (a display), plus an observer;
+* for chromaticity-only work, a DataArray with dims ``primary`` and ``chromaticity`` (x, y), or the
+  name of a reference colour space (:data:`REFERENCE_GAMUTS`).
+
+Reference colour spaces take their primaries and white point from colour-science's
+``colour.RGB_COLOURSPACES`` (ITU-R BT.709, SMPTE EG 432-1 Display P3, SMPTE RP 431-2 DCI-P3,
+ITU-R BT.2020).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.colorimetry import tristimulus, xy_to_xyz
+from metasim.errors import GamutError
+
+#: Reference gamut name -> colour-science colour-space name.
+REFERENCE_GAMUTS = {
+    "bt709": "ITU-R BT.709",
+    "display_p3": "Display P3",
+    "dci_p3": "DCI-P3",
+    "bt2020": "ITU-R BT.2020",
+}
+
+SPACES = ("xy", "uv")
+
+
+def check_space(space: str) -> str:
+    if space not in SPACES:
+        raise GamutError(f"space={space!r} is not known; allowed: {', '.join(SPACES)}")
+    return space
+
+
+def _colour_space(name: str):
+    if name not in REFERENCE_GAMUTS:
+        raise GamutError(f"reference gamut {name!r} is not known; allowed: {', '.join(REFERENCE_GAMUTS)}")
+    import colour  # imported lazily: colour-science takes a moment to import
+
+    return colour.RGB_COLOURSPACES[REFERENCE_GAMUTS[name]]
+
+
+def reference_xy(name: str) -> xr.DataArray:
+    """xy chromaticities (``primary`` = R, G, B × ``chromaticity``) of a named reference gamut.
+
+    Values from colour-science ``colour.RGB_COLOURSPACES`` (ITU-R BT.709-6, SMPTE EG 432-1,
+    SMPTE RP 431-2, ITU-R BT.2020-2).
+    """
+    space = _colour_space(name)
+    return xr.DataArray(
+        np.asarray(space.primaries, dtype=float),
+        dims=("primary", "chromaticity"),
+        coords={"primary": ["R", "G", "B"], "chromaticity": ["x", "y"]},
+        attrs={"units": "1", "long_name": f"{space.name} primary chromaticities (CIE 1931 xy)"},
+    )
+
+
+def reference_xyz(name: str, white_luminance: float = 1.0) -> xr.DataArray:
+    """XYZ of a named reference gamut's primaries, scaled so that its own white has Y = ``white_luminance``.
+
+    The columns of the colour space's normalised primary matrix (SMPTE RP 177), as computed by
+    colour-science (``matrix_RGB_to_XYZ``).
+    """
+    space = _colour_space(name)
+    matrix = np.asarray(space.matrix_RGB_to_XYZ, dtype=float) * float(white_luminance)
+    return xr.DataArray(
+        matrix.T,
+        dims=("primary", "xyz"),
+        coords={"primary": ["R", "G", "B"], "xyz": ["X", "Y", "Z"]},
+        attrs={"units": "1", "long_name": f"{space.name} primary tristimulus values",
+               "reference_gamut": name},
+    )
+
+
+def _spectra_of(obj):
+    if isinstance(obj, (xr.DataArray, str)):
+        return obj
+    spectra = getattr(obj, "spectra", None)
+    if isinstance(spectra, xr.DataArray):
+        return spectra
+    raise GamutError(
+        f"primaries of type {type(obj).__name__} are not usable; allowed: a DataArray with dims "
+        "'primary' and 'xyz' (or 'wavelength', or 'chromaticity'), a display with a 'spectra' "
+        "attribute, or a reference name"
+    )
+
+
+def primaries_xyz(primaries, observer=None, *, allow_chromaticity: bool = False) -> xr.DataArray:
+    """The primaries as tristimulus values: a DataArray ``[leading dims...,] primary, xyz``.
+
+    ``observer`` is needed for spectra (any observer Dataset with ``cmf``; a leading ``observer``
+    dim is kept). With ``allow_chromaticity`` xy input and reference names are accepted and given
+    Y = 1 (chromaticity work only).
+    """
+    primaries = _spectra_of(primaries)
+    if isinstance(primaries, str):
+        if not allow_chromaticity:
+            return reference_xyz(primaries)
+        primaries = reference_xy(primaries)
+    if "primary" not in primaries.dims:
+        raise GamutError(f"primaries need a 'primary' dim, got dims {tuple(primaries.dims)}")
+    if "xyz" in primaries.dims:
+        xyz = primaries
+    elif "wavelength" in primaries.dims:
+        if observer is None:
+            raise GamutError("primaries given as spectra need an observer (a Dataset with 'cmf'), got none")
+        xyz = tristimulus(primaries, observer, scale="none")
+    elif "chromaticity" in primaries.dims and allow_chromaticity:
+        labels = [str(v) for v in primaries.coords["chromaticity"].values] if "chromaticity" in primaries.coords else []
+        if labels != ["x", "y"]:
+            raise GamutError(f"chromaticity primaries must be CIE 1931 x, y; got chromaticity={labels}")
+        xyz = xy_to_xyz(primaries)
+    else:
+        allowed = "'xyz', 'wavelength' or 'chromaticity'" if allow_chromaticity else "'xyz' or 'wavelength'"
+        raise GamutError(f"primaries with dims {tuple(primaries.dims)} are not usable; need 'primary' and {allowed}")
+    n = xyz.sizes["primary"]
+    if n < 3:
+        raise GamutError(f"{n} primaries given; a gamut needs at least 3 (dim 'primary' of size >= 3)")
+    values = np.asarray(xyz.values, dtype=float)
+    if not np.isfinite(values).all():
+        raise GamutError("primaries contain non-finite tristimulus values; all values must be finite")
+    lead = [d for d in xyz.dims if d not in ("primary", "xyz")]
+    return xyz.transpose(*lead, "primary", "xyz")
+
+
+def flatten(array: xr.DataArray, core: tuple[str, ...]):
+    """(values reshaped to (M, *core sizes), leading dims, leading shape, leading coords)."""
+    lead = [d for d in array.dims if d not in core]
+    moved = array.transpose(*lead, *core)
+    shape = tuple(moved.sizes[d] for d in lead)
+    values = np.asarray(moved.values, dtype=float).reshape((-1,) + moved.shape[len(lead):])
+    coords = {k: v for k, v in array.coords.items() if not (set(v.dims) & set(core)) and set(v.dims) <= set(lead)}
+    return values, lead, shape, coords
+
+
+def describe_item(lead: list[str], shape: tuple[int, ...], coords: dict, flat_index: int) -> str:
+    """Human label of one flattened leading-dim entry, e.g. ``design=d3, observer=7``."""
+    if not lead:
+        return "primaries"
+    index = np.unravel_index(flat_index, shape)
+    parts = []
+    for dim, i in zip(lead, index):
+        parts.append(f"{dim}={coords[dim].values[i]}" if dim in coords else f"{dim}#{i}")
+    return ", ".join(parts)
+
+
+def lead_array(values, lead, shape, coords, *, extra_dims=(), extra_coords=None, attrs=None, name=None):
+    """Wrap a flattened result (M, *extra) back into a labelled DataArray."""
+    values = np.asarray(values)
+    data = values.reshape(shape + values.shape[1:])
+    all_coords = {k: v for k, v in coords.items()}
+    all_coords.update(extra_coords or {})
+    return xr.DataArray(data, dims=(*lead, *extra_dims), coords=all_coords, attrs=dict(attrs or {}), name=name)
+
+
+def white_xyz(white, primaries: xr.DataArray, observer=None) -> xr.DataArray:
+    """The CIELAB white: the sum of the primaries (all drives 1) when ``white`` is None, else the
+    stated white as XYZ (a DataArray with an ``xyz`` dim, or a spectrum with ``wavelength``
+    integrated with ``observer``), broadcast against the primaries' leading dims."""
+    if white is None:
+        out = primaries.sum("primary")
+    elif isinstance(white, xr.DataArray) and "xyz" in white.dims:
+        out = white
+    elif isinstance(white, xr.DataArray) and "wavelength" in white.dims:
+        if observer is None:
+            raise GamutError("a white given as a spectrum needs an observer (a Dataset with 'cmf'), got none")
+        out = tristimulus(white, observer, scale="none")
+    else:
+        raise GamutError(
+            f"white of type {type(white).__name__} is not usable; allowed: None (sum of the primaries), "
+            "a DataArray with an 'xyz' dim, or a spectrum with a 'wavelength' dim"
+        )
+    out = out.broadcast_like(primaries.isel(primary=0, drop=True))
+    lead = [d for d in primaries.dims if d not in ("primary", "xyz")]
+    extra = [d for d in out.dims if d not in lead and d != "xyz"]
+    if extra:
+        raise GamutError(f"white has dims {extra} that the primaries lack; allowed dims: {lead + ['xyz']}")
+    out = out.transpose(*lead, "xyz")
+    if (np.asarray(out.sel(xyz="Y")) <= 0).any():
+        raise GamutError("the white has Y <= 0; a CIELAB white needs Y > 0")
+    return out

@@ -1,0 +1,299 @@
+"""Chromaticity gamut of N primaries: hull polygon, area, coverage of reference gamuts, locus share.
+
+The gamut of a display in a chromaticity diagram is the convex hull of its primaries' chromaticities
+(additive mixtures of lights lie on the segments between them: Grassmann's laws, CIE 15:2004 §7.3).
+Areas are in chromaticity units² of the chosen diagram: CIE 1931 xy or CIE 1976 u'v'
+(CIE 15:2004 §8.1). Coverage of a reference is the share of the reference area that the design's
+hull covers (intersection area / reference area). The spectrum locus of an observer is the convex
+hull of the chromaticities of its own monochromatic stimuli (its ``cmf`` at each wavelength), so the
+same functions serve the standard observer and each individual observer's own diagram.
+
+Everything is vectorised over leading dims (``design``, ``observer``, ...): hulls and intersection
+areas are single array expressions (see :mod:`metasim.gamut.polygon`); only the spectrum-locus hull
+(hundreds of points) is computed per observer with Qhull, a fraction of a millisecond each.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.colorimetry import xyz_to_uv, xyz_to_xy
+from metasim.errors import GamutError
+from metasim.gamut import polygon as geometry
+from metasim.gamut._inputs import (
+    REFERENCE_GAMUTS,
+    check_space,
+    describe_item,
+    flatten,
+    lead_array,
+    primaries_xyz,
+)
+
+_LABELS = {"xy": ["x", "y"], "uv": ["u'", "v'"]}
+_NAMES = {"xy": "CIE 1931 xy", "uv": "CIE 1976 u'v'"}
+#: A hull smaller than this share of its points' squared extent is degenerate (collinear points).
+DEGENERATE_AREA = 1e-9
+
+
+def chromaticities(xyz: xr.DataArray, space: str) -> xr.DataArray:
+    """Chromaticity (``chromaticity`` dim) of tristimulus values in ``space`` ("xy" or "uv")."""
+    check_space(space)
+    return xyz_to_xy(xyz) if space == "xy" else xyz_to_uv(xyz)
+
+
+def _hull(points: np.ndarray, lead, shape, coords, space: str):
+    """Hull of (M, N, 2) with the degenerate-input checks; returns next_vertex, on_hull, area."""
+    bad = ~np.isfinite(points).all(axis=(1, 2))
+    if bad.any():
+        item = describe_item(lead, shape, coords, int(np.argmax(bad)))
+        raise GamutError(f"{item}: a primary has no chromaticity (X + Y + Z = 0); primaries must not be black")
+    next_vertex, on_hull = geometry.convex_hull(points)
+    area = geometry.polygon_area(points, next_vertex)
+    extent = np.max(np.ptp(points, axis=1), axis=1)
+    degenerate = ~(area > DEGENERATE_AREA * extent**2) | (on_hull.sum(axis=1) < 3)
+    if degenerate.any():
+        i = int(np.argmax(degenerate))
+        item = describe_item(lead, shape, coords, i)
+        values = ", ".join(f"({a:.4g}, {b:.4g})" for a, b in points[i])
+        raise GamutError(
+            f"{item}: primaries {values} are collinear or coincide in {space} (hull area {area[i]:.3g}); "
+            "a gamut needs at least 3 primaries not on one line"
+        )
+    return next_vertex, on_hull, area
+
+
+def chromaticity_gamut(primaries_xyz_, space: str = "xy", observer=None) -> xr.Dataset:
+    """Chromaticity gamut (convex hull) of N primaries.
+
+    Parameters
+    ----------
+    primaries_xyz_ : DataArray
+        Tristimulus values with dims ``primary`` and ``xyz`` and any leading dims (``design``,
+        ``observer`` ...); or primary spectra (``primary`` × ``wavelength``, or a display with a
+        ``spectra`` attribute) together with ``observer``; or xy chromaticities (``chromaticity``
+        dim), or a reference name (``"bt709"``, ``"display_p3"``, ``"dci_p3"``, ``"bt2020"``).
+    space : {"xy", "uv"}
+        CIE 1931 xy or CIE 1976 u'v'.
+    observer : Dataset, optional
+        Observer(s) to integrate spectra with (variable ``cmf``; a leading ``observer`` dim gives
+        each observer's own diagram).
+
+    Returns
+    -------
+    Dataset
+        ``area`` (leading dims), ``polygon`` (leading dims × ``vertex`` × ``chromaticity``,
+        counter-clockwise, NaN padded), ``vertex_primary`` (index of the primary at each vertex, -1
+        padded), ``on_hull`` (leading dims × ``primary``) and ``chromaticity_of_primary``.
+
+    Raises
+    ------
+    GamutError
+        Fewer than 3 primaries, a black primary, or primaries on one line (zero area).
+
+    References
+    ----------
+    CIE 15:2004 Colorimetry §7.3, §8.1 (chromaticity diagrams); O'Rourke (1998) Computational
+    Geometry in C (convex hull, shoelace area).
+    """
+    check_space(space)
+    xyz = primaries_xyz(primaries_xyz_, observer, allow_chromaticity=True)
+    chroma = chromaticities(xyz, space)
+    points, lead, shape, coords = flatten(chroma, ("primary", "chromaticity"))
+    next_vertex, on_hull, area = _hull(points, lead, shape, coords, space)
+    order = geometry.ordered_vertices(next_vertex, on_hull)
+    polygon = np.take_along_axis(points, np.maximum(order, 0)[..., None], axis=1)
+    polygon = np.where(order[..., None] >= 0, polygon, np.nan)
+    labels = _LABELS[space]
+    n = points.shape[1]
+    primary_coords = {k: v for k, v in xyz.coords.items() if v.dims == ("primary",)}
+    unit = "1"
+    out = xr.Dataset(
+        {
+            "area": lead_array(area, lead, shape, coords, attrs={
+                "units": unit, "long_name": f"{_NAMES[space]} gamut area (convex hull of the primaries)"}),
+            "polygon": lead_array(polygon, lead, shape, coords, extra_dims=("vertex", "chromaticity"),
+                                  extra_coords={"chromaticity": labels, "vertex": np.arange(n)},
+                                  attrs={"units": unit, "long_name": f"{_NAMES[space]} gamut polygon "
+                                         "(counter-clockwise hull vertices, NaN padded)"}),
+            "vertex_primary": lead_array(order, lead, shape, coords, extra_dims=("vertex",),
+                                         extra_coords={"vertex": np.arange(n)},
+                                         attrs={"units": "1", "long_name": "index along 'primary' of each "
+                                                "hull vertex (-1 padded)"}),
+            "on_hull": lead_array(on_hull, lead, shape, coords, extra_dims=("primary",),
+                                  extra_coords=primary_coords,
+                                  attrs={"units": "1", "long_name": "primary is a vertex of the gamut hull"}),
+            "chromaticity_of_primary": lead_array(points, lead, shape, coords,
+                                                  extra_dims=("primary", "chromaticity"),
+                                                  extra_coords={**primary_coords, "chromaticity": labels},
+                                                  attrs={"units": unit, "long_name": f"{_NAMES[space]} "
+                                                         "chromaticity of each primary"}),
+        },
+        attrs={"space": space, "method": "convex hull by the edge test; shoelace area"},
+    )
+    return out
+
+
+def _edges_of(polygon: xr.DataArray, lead: list[str], vertex_dim: str):
+    """Edges (M, K, 2, 2) and mask (M, K) of NaN-padded counter-clockwise polygons."""
+    points = np.asarray(polygon.transpose(*lead, vertex_dim, "chromaticity").values, dtype=float)
+    points = points.reshape((-1,) + points.shape[len(lead):])
+    valid = np.isfinite(points).all(axis=-1)
+    count = valid.sum(axis=1)[:, None]
+    index = np.arange(points.shape[1])[None, :]
+    following = np.where(index + 1 < count, index + 1, 0)
+    end = np.take_along_axis(points, following[..., None], axis=1)
+    edges = np.nan_to_num(np.stack([points, end], axis=2))
+    return edges, valid
+
+
+def _as_gamut(value, space: str, observer=None) -> xr.Dataset:
+    if isinstance(value, xr.Dataset) and "polygon" in value:
+        if value.attrs.get("space", space) != space:
+            raise GamutError(f"gamut is in space {value.attrs.get('space')!r} but space={space!r} was asked for")
+        return value
+    return chromaticity_gamut(value, space, observer)
+
+
+def gamut_coverage(design, reference="bt709", space: str = "xy", observer=None) -> xr.DataArray:
+    """Share (0..1) of a reference gamut's chromaticity area covered by the design's gamut.
+
+    Parameters
+    ----------
+    design
+        Anything :func:`chromaticity_gamut` accepts, or its result.
+    reference
+        A reference name (``"bt709"``, ``"display_p3"``, ``"dci_p3"``, ``"bt2020"``; primaries from
+        colour-science ``colour.RGB_COLOURSPACES``), primaries (XYZ, xy, spectra with ``observer``)
+        or a :func:`chromaticity_gamut` result; it may carry its own leading dims.
+    space : {"xy", "uv"}
+
+    Returns
+    -------
+    DataArray
+        Intersection area / reference area, over the broadcast leading dims.
+
+    References
+    ----------
+    Intersection of convex polygons by Green's theorem with Cyrus & Beck (1978) edge clipping;
+    reference primaries ITU-R BT.709-6, SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020-2.
+    """
+    check_space(space)
+    gamut = _as_gamut(design, space, observer)
+    ref = _as_gamut(reference, space, observer)
+    ref_name = reference if isinstance(reference, str) else "reference"
+    poly_d = gamut["polygon"]
+    poly_r = ref["polygon"].rename(vertex="vertex_reference")
+    template = xr.broadcast(gamut["area"], ref["area"])[0]
+    lead = list(template.dims)
+    shape = tuple(template.shape)
+    coords = {k: v for k, v in template.coords.items()}
+    ea, ma = _edges_of(poly_d.broadcast_like(template), lead, "vertex")
+    eb, mb = _edges_of(poly_r.broadcast_like(template), lead, "vertex_reference")
+    inter = geometry.intersection_area(ea, ma, eb, mb)
+    reference_area = np.asarray(ref["area"].broadcast_like(template).transpose(*lead).values, dtype=float)
+    share = np.clip(inter / reference_area.reshape(-1), 0.0, 1.0)
+    return lead_array(share, lead, shape, coords, attrs={
+        "units": "1",
+        "long_name": f"share of the {ref_name} {_NAMES[space]} area covered by the design gamut",
+        "reference": ref_name,
+        "space": space,
+    }, name="coverage")
+
+
+def spectrum_locus(observer, space: str = "xy") -> xr.Dataset:
+    """An observer's spectrum locus as a convex polygon (its own monochromatic chromaticities).
+
+    Parameters
+    ----------
+    observer : Dataset
+        Variable ``cmf`` (``xyz`` × ``wavelength``) with an optional leading ``observer`` dim.
+        Wavelengths where X + Y + Z is below 1e-9 of its maximum are left out (no defined chromaticity).
+    space : {"xy", "uv"}
+
+    Returns
+    -------
+    Dataset
+        ``area`` and ``polygon`` (``vertex`` × ``chromaticity``, NaN padded), per observer.
+
+    References
+    ----------
+    CIE 15:2004 §7.3: the spectrum locus bounds the chromaticities of all real (non-negative) stimuli;
+    hull by Qhull (Barber, Dobkin & Huhdanpaa 1996, via scipy.spatial.ConvexHull).
+    """
+    check_space(space)
+    if not isinstance(observer, xr.Dataset) or "cmf" not in observer:
+        raise GamutError("observer must be a Dataset with a 'cmf' variable (xyz x wavelength)")
+    cmf = observer["cmf"]
+    chroma = chromaticities(cmf, space)
+    total = cmf.sum("xyz")
+    chroma = chroma.where(total > 1e-9 * total.max("wavelength"))
+    points, lead, shape, coords = flatten(chroma, ("wavelength", "chromaticity"))
+    hulls = [geometry.points_hull(p) for p in points]  # one Qhull call per observer
+    size = max(len(h) for h in hulls)
+    polygon = np.full((len(hulls), size, 2), np.nan)
+    area = np.empty(len(hulls))
+    for i, h in enumerate(hulls):
+        polygon[i, : len(h)] = h
+        x, y = h[:, 0] - h[:, 0].mean(), h[:, 1] - h[:, 1].mean()
+        area[i] = 0.5 * np.sum(x * np.roll(y, -1) - np.roll(x, -1) * y)
+    return xr.Dataset(
+        {
+            "area": lead_array(area, lead, shape, coords, attrs={
+                "units": "1", "long_name": f"{_NAMES[space]} area inside the spectrum locus (convex hull)"}),
+            "polygon": lead_array(polygon, lead, shape, coords, extra_dims=("vertex", "chromaticity"),
+                                  extra_coords={"vertex": np.arange(size), "chromaticity": _LABELS[space]},
+                                  attrs={"units": "1", "long_name": f"{_NAMES[space]} spectrum locus "
+                                         "(convex hull, counter-clockwise, NaN padded)"}),
+        },
+        attrs={"space": space, "method": "convex hull of the monochromatic chromaticities (Qhull)"},
+    )
+
+
+def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
+    """Share (0..1) of the observer's spectrum-locus area covered by the design's gamut.
+
+    ``design`` is anything :func:`chromaticity_gamut` accepts; spectra are integrated with the same
+    ``observer``, so each individual observer's gamut is compared with that observer's own locus.
+    """
+    locus = spectrum_locus(observer, space)
+    share = gamut_coverage(design, locus, space, observer)
+    share.attrs["long_name"] = f"share of the spectrum-locus {_NAMES[space]} area covered by the design gamut"
+    share.attrs["reference"] = "spectrum locus"
+    return share
+
+
+def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERENCE_GAMUTS)) -> xr.Dataset:
+    """The gamut of primaries in each observer's own chromaticity diagram.
+
+    Parameters
+    ----------
+    spectra
+        Primary spectra (``primary`` × ``wavelength``, optional ``design``) or a display.
+    observer : Dataset
+        ``cmf`` with a leading ``observer`` dim (a population) or a single observer.
+    references : sequence of names
+        Reference gamuts whose coverage to report. They are defined by CIE 1931 chromaticities, so
+        their coverage is meaningful for the CIE 1931 observer only; it is reported for every
+        observer as the share of the standard reference area, stated in the attributes.
+
+    Returns
+    -------
+    Dataset
+        The :func:`chromaticity_gamut` variables plus ``locus_area``, ``locus_share`` and
+        ``coverage`` (``reference`` dim), per observer.
+    """
+    gamut = chromaticity_gamut(spectra, space, observer)
+    locus = spectrum_locus(observer, space)
+    gamut["locus_area"] = locus["area"]
+    gamut["locus_share"] = gamut_coverage(gamut, locus, space)
+    gamut["locus_share"].attrs.update(long_name=f"share of the observer's own spectrum-locus area covered",
+                                      reference="spectrum locus")
+    if references:
+        cover = xr.concat([gamut_coverage(gamut, name, space) for name in references], dim="reference")
+        cover = cover.assign_coords(reference=list(references))
+        cover.attrs = {"units": "1", "long_name": "share of each reference gamut area covered",
+                       "note": "references are CIE 1931 chromaticities, compared as given in each diagram"}
+        gamut["coverage"] = cover
+    gamut.attrs["observers"] = int(observer.sizes.get("observer", 1))
+    return gamut
