@@ -73,9 +73,10 @@ def wavelength_grid(
         )
     count = int(math.floor((end_nm - start_nm) / step_nm + 1e-9)) + 1
     values = start_nm + step_nm * np.arange(count, dtype=float)
-    return xr.DataArray(
-        values, dims=("wavelength",), coords={"wavelength": values}, attrs=dict(WAVELENGTH_ATTRS)
-    ).coords["wavelength"].copy()
+    holder = xr.DataArray(
+        values, dims=("wavelength",), coords={"wavelength": ("wavelength", values, dict(WAVELENGTH_ATTRS))}
+    )
+    return holder.coords["wavelength"]
 
 
 def default_grid() -> xr.DataArray:
@@ -266,9 +267,14 @@ def resample(
     flat = values.reshape(-1, source.size)
 
     total = np.abs(np.trapezoid(flat, source, axis=-1))
-    inside = (source >= target[0]) & (source <= target[-1])
-    kept_src = np.where(inside, flat, 0.0)
-    kept = np.abs(np.trapezoid(kept_src, source, axis=-1))
+    lo, hi = max(target[0], source[0]), min(target[-1], source[-1])
+    if lo < hi:
+        inside = source[(source > lo) & (source < hi)]
+        xs = np.concatenate([[lo], inside, [hi]])
+        kept_values = np.stack([np.interp(xs, source, row) for row in flat])
+        kept = np.abs(np.trapezoid(kept_values, xs, axis=-1))
+    else:
+        kept = np.zeros_like(total)
     with np.errstate(invalid="ignore", divide="ignore"):
         lost = np.where(total > 0, 1.0 - kept / total, 0.0)
     if (lost > warn_share).any():
