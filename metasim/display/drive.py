@@ -1,0 +1,351 @@
+"""Drive solving: linear drive values (0..1) of N primaries that reproduce target colours.
+
+For the calibration observer the drives d must satisfy ``XYZ_black + M d = XYZ_target`` (M: the
+3 × N matrix of primary XYZ). With N = 3 that fixes d; with N > 3 there is an (N − 3)-dimensional
+family of solutions, and a *strategy* picks one, always within 0 ≤ d ≤ 1:
+
+``min_norm``
+    minimise Σ d_p².
+``max_efficiency``
+    maximum luminous efficiency: minimise the radiant power Σ d_p·Φ_p spent for the colour (the
+    colour, hence its luminance, is fixed), i.e. maximise the luminous efficacy of the emitted
+    light. Φ_p is each primary's integrated radiance at full drive (W·sr⁻¹·m⁻²) unless
+    ``primary_power`` gives another cost per unit drive (for example electrical watts). Ties are
+    broken towards the minimum norm (a 1e-6 quadratic term).
+``population``
+    minimum expected mismatch across an observer population against a reference rendering (a
+    reference display driven for the same colours, or reference spectra): minimise the mean over
+    observers o of ‖J_o (XYZ_o(d) − XYZ_o(reference))‖², where J_o is the Jacobian of CIELAB at
+    the reference colour, relative to the reference white as seen by o. This is the CIELAB
+    (ΔE*ab) mismatch linearised at the reference, which makes the problem a small exact QP per
+    stimulus; report the true ΔE00 with :func:`metasim.colorimetry.delta_e_2000`.
+
+Out-of-gamut targets (no d in the box reproduces them) are clipped, never silently: the drive
+minimises the CIELAB-linearised distance to the target (calibration observer, Jacobian at the
+target, display white as reference white), then the strategy picks among drives giving that
+closest colour. The result flags them in ``out_of_gamut`` and reports ``residual_xyz`` and
+``residual_delta_e`` (ΔE00). All of it is batched over ``design`` and stimuli
+(:mod:`metasim.display.solvers`).
+
+References
+----------
+Nocedal & Wright (2006) Numerical Optimization ch. 16 (QP); CIE 15:2004 §8.2 (CIELAB, whose
+derivative gives J); Sharma, Wu & Dalal (2005) (ΔE00 of the residual).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim._version import __version__
+from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab
+from metasim.errors import DisplayError
+from metasim.spectra import integrate
+from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.solvers import box_qp, equality_box_qp
+from metasim.display.sources import rgb_to_xyz
+
+STRATEGIES = ("min_norm", "max_efficiency", "population")
+_EPSILON = 216.0 / 24389.0
+_KAPPA = 24389.0 / 27.0
+_TIE_BREAK = 1e-6
+_CLIP_WEIGHT = 1e-6
+_FEASIBILITY = 1e-9
+
+
+def lab_jacobian(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
+    """∂(L*, a*, b*)/∂(X, Y, Z) at ``xyz`` (…, 3) relative to ``white`` (…, 3); returns (…, 3, 3).
+
+    References
+    ----------
+    CIE 15:2004 §8.2.1 (CIELAB with the exact ε = 216/24389, κ = 24389/27 of ISO/CIE 11664-4).
+    """
+    t = xyz / white
+    with np.errstate(invalid="ignore", divide="ignore"):
+        slope = np.where(t > _EPSILON, np.cbrt(np.maximum(t, _EPSILON)) ** -2 / 3.0, _KAPPA / 116.0)
+    g = slope / white
+    jac = np.zeros(xyz.shape + (3,))
+    jac[..., 0, 1] = 116.0 * g[..., 1]
+    jac[..., 1, 0] = 500.0 * g[..., 0]
+    jac[..., 1, 1] = -500.0 * g[..., 1]
+    jac[..., 2, 1] = 200.0 * g[..., 1]
+    jac[..., 2, 2] = -200.0 * g[..., 2]
+    return jac
+
+
+def _lab(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
+    t = xyz / white
+    f = np.where(t > _EPSILON, np.cbrt(t), (_KAPPA * t + 16.0) / 116.0)
+    return np.stack([116.0 * f[..., 1] - 16.0, 500.0 * (f[..., 0] - f[..., 1]), 200.0 * (f[..., 1] - f[..., 2])], -1)
+
+
+def _clip(A, black, target, white, H_s, f_s, iterations: int = 12):
+    """Drives in the box whose colour is closest in CIELAB (ΔE*ab) to out-of-gamut targets.
+
+    Gauss-Newton on ‖Lab(black + A d) − Lab(target)‖² with box constraints, started from the
+    CIELAB metric linearised at the white; a step is kept only if it lowers the distance. The
+    strategy objective enters with a tiny weight so that ties resolve the same way as in gamut.
+    All arrays are per row (R); colours are normalised so that the white has Y = 1.
+    """
+    R, _, N = A.shape
+    lo, hi = np.zeros(N), np.ones(N)
+    q_scale = np.maximum(np.maximum(np.trace(H_s, axis1=-2, axis2=-1) / N, np.abs(f_s).max(-1)), 1e-300)
+    lab_target = _lab(target, white)
+
+    def step(jac, residual, d):
+        g = np.einsum("rij,rjn->rin", jac, A)
+        gram = np.einsum("rin,ril->rnl", g, g)
+        scale = np.trace(gram, axis1=-2, axis2=-1) / N
+        weight = (_CLIP_WEIGHT * scale / q_scale)[:, None]
+        H_c = gram + weight[..., None] * H_s + 1e-12 * scale[:, None, None] * np.eye(N)
+        f_c = np.einsum("rin,ri->rn", g, residual - np.einsum("rin,rn->ri", g, d)) + weight * f_s
+        return box_qp(H_c, f_c, lo, hi, x0=d)
+
+    d = np.zeros((R, N))
+    jac0 = lab_jacobian(white, white)
+    d = step(jac0, np.einsum("rij,rj->ri", jac0, black - target), d)
+    cost = ((_lab(black + np.einsum("rmn,rn->rm", A, d), white) - lab_target) ** 2).sum(-1)
+    for _ in range(iterations):
+        current = black + np.einsum("rmn,rn->rm", A, d)
+        residual = _lab(current, white) - lab_target
+        proposal = step(lab_jacobian(current, white), residual, d)
+        new_cost = ((_lab(black + np.einsum("rmn,rn->rm", A, proposal), white) - lab_target) ** 2).sum(-1)
+        better = new_cost < cost * (1 - 1e-12)
+        if not better.any():
+            break
+        d = np.where(better[:, None], proposal, d)
+        cost = np.where(better, new_cost, cost)
+    return d
+
+
+def _calibration_observer(display: Display, observer):
+    if observer is None:
+        name = display.attrs.get("calibration_observer")
+        if name is None:
+            raise DisplayError("the display is not calibrated; pass observer=... (a standard name or observer Dataset)")
+        try:
+            return resolve_observer(str(name), display), str(name)
+        except DisplayError:
+            raise DisplayError(
+                f"the display was calibrated for observer {name!r}, which is not a standard observer; pass observer=..."
+            ) from None
+    obs = resolve_observer(observer, display)
+    if "observer" in obs.dims:
+        if obs.sizes["observer"] != 1:
+            raise DisplayError(
+                f"drive solving needs one calibration observer, got an 'observer' dim of size {obs.sizes['observer']}; "
+                "pass the population as population=..."
+            )
+        obs = obs.isel(observer=0)
+    return obs, observer_name(observer)
+
+
+def _flat(array: xr.DataArray, lead: list[str], tail: list[str]) -> np.ndarray:
+    shape = [array.sizes[d] for d in lead] + [array.sizes[d] for d in tail]
+    return array.transpose(*lead, *tail).values.reshape(shape)
+
+
+def _population_objective(display, population, reference, reference_white, rgb_args, target,
+                          observer, batch, stim):
+    """H (P, S, N, N) and f (P, S, N) of the linearised population mismatch."""
+    pop = resolve_observer(population, display)
+    if "observer" not in pop.dims:
+        pop = pop.expand_dims(observer=[0])
+    if reference is None:
+        raise DisplayError("strategy='population' needs reference=... (a reference Display or reference spectra)")
+    if isinstance(reference, Display):
+        if reference.batch_dims and set(reference.batch_dims) - set(batch):
+            raise DisplayError(f"the reference display varies along {reference.batch_dims}; the test display along {batch}")
+        ref_solution = solve_drive(reference, None if rgb_args else target, observer=observer, **(rgb_args or {}))
+        ref_spectra = reference.render(ref_solution["drive"])
+        white_spectrum = reference.white_spectrum()
+    elif isinstance(reference, xr.DataArray):
+        ref_spectra = reference
+        white_spectrum = display.white_spectrum() if reference_white is None else reference_white
+    else:
+        raise DisplayError(f"reference must be a Display or spectra (DataArray), got {type(reference).__name__}")
+    ref_xyz = tristimulus(ref_spectra, pop)
+    ref_white = tristimulus(white_spectrum, pop)
+    m_pop = display.primary_tristimulus(pop)
+    black_pop = display.black_tristimulus(pop)
+    extra = [d for d in ref_xyz.dims if d not in (*batch, *stim, "observer", "xyz")]
+    if extra:
+        raise DisplayError(f"reference spectra have dims {extra} that the targets lack; they must share the stimulus dims")
+    template = xr.broadcast(ref_xyz, m_pop.isel(primary=0, drop=True),
+                            target.isel(xyz=0, drop=True).expand_dims(observer=pop.sizes["observer"]) * 0)[0]
+    r = _flat(template, [*batch, *stim], ["observer", "xyz"])
+    white = _flat(ref_white.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
+    m = _flat(m_pop, batch, ["observer", "xyz", "primary"])
+    bk = _flat(black_pop.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
+    P, O, N = int(np.prod([m_pop.sizes[d] for d in batch], dtype=int)), pop.sizes["observer"], display.n_primaries
+    r = r.reshape(P, -1, O, 3)
+    m = m.reshape(P, O, 3, N)
+    white = white.reshape(P, O, 3)
+    bk = bk.reshape(P, O, 3)
+    jac = lab_jacobian(r, white[:, None])  # (P, S, O, 3, 3)
+    g = np.einsum("psoij,pojn->psoin", jac, m)
+    resid0 = np.einsum("psoij,psoj->psoi", jac, r - bk[:, None])
+    H = np.einsum("psoin,psoil->psnl", g, g) / O
+    f = -np.einsum("psoin,psoi->psn", g, resid0) / O
+    return H, f
+
+
+def solve_drive(
+    display: Display,
+    target: xr.DataArray | None = None,
+    *,
+    rgb: xr.DataArray | None = None,
+    source: str = "bt709",
+    encoding: str | None = None,
+    observer=None,
+    strategy: str = "min_norm",
+    population=None,
+    reference=None,
+    reference_white: xr.DataArray | None = None,
+    primary_power: xr.DataArray | None = None,
+) -> xr.Dataset:
+    """Drive values (0..1) that reproduce target colours on a display, for its calibration observer.
+
+    Parameters
+    ----------
+    display : Display
+        With or without a ``design`` dim.
+    target : DataArray, optional
+        Target XYZ in cd/m² (dim ``xyz`` plus stimulus dims, e.g. ``stimulus``; may vary by
+        ``design``). Give either ``target``, or ``rgb``, or (with a spectral ``reference``) neither,
+        in which case the reference spectra's XYZ are the targets.
+    rgb : DataArray, optional
+        Encoded source RGB (dim ``primary`` = R, G, B), decoded by
+        :func:`metasim.display.sources.rgb_to_xyz` with ``source`` and ``encoding``; SDR white maps
+        to the display white, HLG uses the display's peak luminance.
+    observer : str or Dataset, optional
+        The calibration observer (default: the one the display was calibrated for).
+    strategy : {"min_norm", "max_efficiency", "population"}
+        How to use the freedom of N > 3 primaries (module docstring).
+    population : Dataset, optional
+        Observer population (``cmf`` with an ``observer`` dim) for ``strategy="population"``.
+    reference : Display or DataArray, optional
+        The reference rendering for ``population``: a Display (driven for the same targets, its
+        own strategy ``min_norm``) or reference spectra (stimulus dims × ``wavelength``).
+    reference_white : DataArray, optional
+        White spectrum the observers adapt to with reference spectra (default: display white).
+    primary_power : DataArray, optional
+        Cost per unit drive of each primary (dim ``primary``) for ``max_efficiency``.
+
+    Returns
+    -------
+    Dataset
+        ``drive`` (…, primary, units 1), ``signal`` (encoded drive for the display's transfer
+        function), ``reproduced`` (achieved XYZ, cd/m²), ``target``, ``residual_xyz``, ``residual_delta_e``
+        (ΔE00 achieved vs target, display white as reference white) and ``out_of_gamut`` (bool).
+
+    References
+    ----------
+    See the module docstring.
+    """
+    if not isinstance(display, Display):
+        raise DisplayError(f"solve_drive needs a Display, got {type(display).__name__}")
+    if strategy not in STRATEGIES:
+        raise DisplayError(f"strategy={strategy!r} is not known; allowed: {', '.join(STRATEGIES)}")
+    obs, obs_name = _calibration_observer(display, observer)
+    white_xyz = display.white_tristimulus(obs)
+    rgb_args = None
+    if rgb is not None:
+        if target is not None:
+            raise DisplayError("give either target (XYZ) or rgb (source signals), not both")
+        rgb_args = {"rgb": rgb, "source": source, "encoding": encoding}
+        target = rgb_to_xyz(rgb, source, encoding=encoding, white_luminance=white_xyz.sel(xyz="Y", drop=True),
+                            peak_luminance=float(display.peak_luminance.max()))
+    elif target is None:
+        if not isinstance(reference, xr.DataArray):
+            raise DisplayError("give target (XYZ in cd/m2), rgb (source signals) or reference spectra")
+        target = tristimulus(reference, obs)
+    if not isinstance(target, xr.DataArray) or "xyz" not in target.dims:
+        raise DisplayError("target must be a DataArray with an 'xyz' dim (X, Y, Z in cd/m2)")
+    if not np.isfinite(target.values).all():
+        raise DisplayError("target XYZ must be finite numbers (cd/m2)")
+    target = target.assign_coords(xyz=["X", "Y", "Z"])
+
+    batch = display.batch_dims
+    stim = [d for d in target.dims if d != "xyz" and d not in batch]
+    primaries = display.primary_tristimulus(obs)
+    black = display.black_tristimulus(obs)
+    target_b = target.broadcast_like(primaries.isel(primary=0, drop=True)).transpose(*batch, *stim, "xyz")
+    P = int(np.prod([primaries.sizes[d] for d in batch], dtype=int))
+    N = display.n_primaries
+    stim_shape = [target_b.sizes[d] for d in stim]
+    S = int(np.prod(stim_shape, dtype=int))
+    y_white = _flat(white_xyz.sel(xyz="Y", drop=True), batch, []).reshape(P)
+    A = _flat(primaries, batch, ["xyz", "primary"]).reshape(P, 3, N) / y_white[:, None, None]
+    bk = _flat(black.broadcast_like(primaries.isel(primary=0, drop=True)), batch, ["xyz"]).reshape(P, 3)
+    t_abs = target_b.values.reshape(P, S, 3)
+    b = (t_abs - bk[:, None]) / y_white[:, None, None]
+
+    if strategy == "min_norm":
+        H = np.broadcast_to(np.eye(N), (P, 1, N, N))
+        f = np.zeros((P, S, N))
+    elif strategy == "max_efficiency":
+        power = integrate(display.spectra) if primary_power is None else primary_power
+        power = _flat(power.broadcast_like(primaries.isel(xyz=0, drop=True)), batch, ["primary"]).reshape(P, N)
+        if (power < 0).any() or not np.isfinite(power).all():
+            raise DisplayError("primary_power must be finite and >= 0 for every primary")
+        H = np.broadcast_to(_TIE_BREAK * np.eye(N), (P, 1, N, N))
+        f = np.broadcast_to((power / power.max(-1, keepdims=True))[:, None, :], (P, S, N)).copy()
+    else:
+        H, f = _population_objective(display, population, reference, reference_white, rgb_args, target,
+                                     obs, batch, stim)
+        H = H.reshape(P, S, N, N)
+        f = f.reshape(P, S, N)
+        norm = np.trace(H, axis1=-2, axis2=-1)[..., None] / N
+        norm = np.where(norm > 0, norm, 1.0)
+        H = H / norm[..., None] + 1e-9 * np.eye(N)
+        f = f / norm
+
+    lo, hi = np.zeros(N), np.ones(N)
+    drive, inside = equality_box_qp(H, f, A, b, lo, hi, tol=_FEASIBILITY)
+    outside = ~inside
+    if outside.any():
+        p_idx, s_idx = np.nonzero(outside)
+        white_n = _flat(white_xyz, batch, ["xyz"]).reshape(P, 3) / y_white[:, None]
+        H_s = H[p_idx, s_idx if H.shape[1] > 1 else 0]
+        f_s = f[p_idx, s_idx]
+        clipped = _clip(A[p_idx], bk[p_idx] / y_white[p_idx, None], t_abs[p_idx, s_idx] / y_white[p_idx, None],
+                        white_n[p_idx], H_s, f_s)
+        reached = np.einsum("rmn,rn->rm", A[p_idx], clipped)
+        again, ok = equality_box_qp(H_s[:, None], f_s[:, None], A[p_idx], reached[:, None], lo, hi, tol=1e-7)
+        drive[p_idx, s_idx] = np.where(ok[:, 0, None], again[:, 0], clipped)
+
+    achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
+    return _result(display, drive, achieved, t_abs, outside, white_xyz, batch, stim, target_b, primaries,
+                   strategy=strategy, observer=obs_name)
+
+
+def _result(display, drive, achieved, t_abs, outside, white_xyz, batch, stim, target_b, primaries, **attrs):
+    sizes = [target_b.sizes[d] for d in (*batch, *stim)]
+    coords = {k: v for k, v in target_b.coords.items() if set(v.dims) <= set((*batch, *stim))}
+    coords["primary"] = primaries.coords["primary"]
+    dims = (*batch, *stim)
+    drive_da = xr.DataArray(drive.reshape(sizes + [display.n_primaries]), dims=(*dims, "primary"), coords=coords,
+                            attrs={"units": "1", "long_name": "linear drive value"})
+    xyz_coords = {**{k: v for k, v in coords.items() if k != "primary"}, "xyz": ["X", "Y", "Z"]}
+    achieved_da = xr.DataArray(achieved.reshape(sizes + [3]), dims=(*dims, "xyz"), coords=xyz_coords,
+                               attrs={"units": "cd m-2", "long_name": "reproduced tristimulus values"})
+    target_da = xr.DataArray(t_abs.reshape(sizes + [3]), dims=(*dims, "xyz"), coords=xyz_coords,
+                             attrs={"units": "cd m-2", "long_name": "target tristimulus values"})
+    residual = achieved_da - target_da
+    residual.attrs = {"units": "cd m-2", "long_name": "reproduced minus target tristimulus values"}
+    white = white_xyz.transpose(*batch, "xyz")
+    de = delta_e_2000(xyz_to_lab(achieved_da, white), xyz_to_lab(target_da, white))
+    de.attrs = {"units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}
+    flag = xr.DataArray(outside.reshape(sizes), dims=dims, coords={k: v for k, v in xyz_coords.items() if k != "xyz"},
+                        attrs={"long_name": "target outside the display gamut (clipped)", "units": "1"})
+    signal = display.encode(drive_da)
+    ds = xr.Dataset({"drive": drive_da, "signal": signal, "reproduced": achieved_da, "target": target_da,
+                     "residual_xyz": residual, "residual_delta_e": de, "out_of_gamut": flag})
+    ds.attrs = {"model": "drive decomposition", "strategy": attrs["strategy"], "observer": attrs["observer"],
+                "display": display.name, "metasim_version": __version__}
+    return ds
+
+
+__all__ = ["STRATEGIES", "lab_jacobian", "solve_drive"]

@@ -1,0 +1,111 @@
+"""Source RGB colour spaces (BT.709 / sRGB, Display P3, BT.2020) and their decoding to XYZ.
+
+Each space is defined by its primaries' and white's CIE 1931 xy chromaticities; the RGB→XYZ
+matrix is the normalised primary matrix of SMPTE RP 177 (white Y = 1). Decoding applies the
+space's encoding (an EOTF from :mod:`metasim.display.transfer`) and scales to cd/m²:
+
+* SDR encodings (``srgb``, ``bt1886``, ``gamma``, ``linear``) are relative: RGB = 1 maps to the
+  white luminance given (the display's white, so white is shown as white).
+* ``pq`` is absolute (cd/m² per SMPTE ST 2084); ``hlg`` is display-referred with nominal peak
+  ``peak_luminance`` (ITU-R BT.2100).
+
+The XYZ so obtained are taken as the *calibration observer's* XYZ: a display calibrated for an
+observer reproduces the source colours relative to the white it was calibrated to, for that
+observer (for the CIE 1931 observer this is ordinary colorimetric reproduction).
+
+References
+----------
+ITU-R BT.709-6 (primaries, D65); IEC 61966-2-1:1999 (sRGB); SMPTE EG 432-1:2010 (Display P3:
+P3 primaries with D65 white); ITU-R BT.2020-2 and BT.2100-2 (primaries, PQ/HLG); SMPTE
+RP 177-1993 (normalised primary matrix).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import DisplayError
+from metasim.display.transfer import check_transfer, eotf
+
+_D65 = (0.3127, 0.3290)
+#: name -> (R, G, B chromaticities, white chromaticity, default encoding)
+SOURCE_SPACES = {
+    "bt709": (((0.640, 0.330), (0.300, 0.600), (0.150, 0.060)), _D65, "bt1886"),
+    "srgb": (((0.640, 0.330), (0.300, 0.600), (0.150, 0.060)), _D65, "srgb"),
+    "display_p3": (((0.680, 0.320), (0.265, 0.690), (0.150, 0.060)), _D65, "srgb"),
+    "bt2020": (((0.708, 0.292), (0.170, 0.797), (0.131, 0.046)), _D65, "bt1886"),
+}
+RGB = ("R", "G", "B")
+
+
+def _space(source: str):
+    if not isinstance(source, str) or source not in SOURCE_SPACES:
+        raise DisplayError(f"source colour space {source!r} is not known; allowed: {', '.join(SOURCE_SPACES)}")
+    return SOURCE_SPACES[source]
+
+
+def source_matrix(source: str) -> xr.DataArray:
+    """RGB→XYZ normalised primary matrix of a source space (dims ``xyz`` × ``primary`` = R, G, B).
+
+    References
+    ----------
+    SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities).
+    """
+    primaries, white, _ = _space(source)
+    xy = np.asarray(primaries, dtype=float)
+    columns = np.stack([xy[:, 0] / xy[:, 1], np.ones(3), (1 - xy[:, 0] - xy[:, 1]) / xy[:, 1]])
+    wx, wy = white
+    white_xyz = np.array([wx / wy, 1.0, (1 - wx - wy) / wy])
+    gains = np.linalg.solve(columns, white_xyz)
+    matrix = columns * gains[None, :]
+    return xr.DataArray(matrix, dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
+                        attrs={"units": "1", "long_name": f"{source} RGB to XYZ matrix (white Y = 1)"})
+
+
+def rgb_to_xyz(rgb: xr.DataArray, source: str = "bt709", *, encoding: str | None = None,
+               white_luminance=100.0, peak_luminance=None, black_luminance: float = 0.0,
+               gamma: float = 2.2) -> xr.DataArray:
+    """XYZ in cd/m² of encoded source RGB (dim ``primary`` = R, G, B).
+
+    Parameters
+    ----------
+    rgb : DataArray
+        Encoded signals 0..1 with a ``primary`` dim of size 3 (R, G, B) and any other dims.
+    source : str
+        ``bt709``, ``srgb``, ``display_p3`` or ``bt2020``.
+    encoding : str, optional
+        Transfer function of the signal (default per source: ``bt709`` → ``bt1886``, ``srgb`` and
+        ``display_p3`` → ``srgb``, ``bt2020`` → ``bt1886``; use ``pq`` or ``hlg`` for BT.2100).
+    white_luminance : float or DataArray
+        cd/m² of RGB = 1 for SDR encodings (for example the display white, per ``design``).
+    peak_luminance : float, optional
+        Nominal peak L_W for ``hlg`` (default ``white_luminance``).
+    black_luminance, gamma : see :func:`metasim.display.transfer.eotf`.
+
+    References
+    ----------
+    See the module docstring.
+    """
+    _, _, default = _space(source)
+    encoding = default if encoding is None else encoding
+    check_transfer(encoding, gamma=gamma)
+    if not isinstance(rgb, xr.DataArray) or "primary" not in rgb.dims or rgb.sizes["primary"] != 3:
+        raise DisplayError("source RGB must be a DataArray with a 'primary' dim of size 3 (R, G, B)")
+    rgb = rgb.assign_coords(primary=list(RGB))
+    if encoding in ("pq",):
+        light = eotf(rgb, "pq")
+    elif encoding == "hlg":
+        peak = white_luminance if peak_luminance is None else peak_luminance
+        peak = float(np.max(np.asarray(peak)))
+        light = eotf(rgb, "hlg", peak_luminance=peak, black_luminance=black_luminance)
+    else:
+        light = eotf(rgb, encoding, peak_luminance=1.0, gamma=gamma) * white_luminance
+    xyz = xr.dot(source_matrix(source), light, dim="primary")
+    xyz = xyz.transpose(..., "xyz")
+    xyz.attrs = {"units": "cd m-2", "long_name": f"tristimulus values of {source} RGB ({encoding})"}
+    xyz.name = "target"
+    return xyz
+
+
+__all__ = ["SOURCE_SPACES", "RGB", "source_matrix", "rgb_to_xyz"]

@@ -1,0 +1,218 @@
+"""Display transfer functions: encoded signal ↔ displayed light, per channel.
+
+All functions here return or take *display light in cd/m²* (the luminance a channel contributes
+when driven alone, for an achromatic signal), so that one convention covers the relative SDR
+curves and the absolute HDR ones:
+
+==========  =========================================================================  ===========
+name        EOTF L(V)                                                                  source
+==========  =========================================================================  ===========
+``srgb``    L_W · piecewise sRGB (linear below V = 0.04045, else ((V+0.055)/1.055)^2.4)  IEC 61966-2-1:1999
+``gamma``   L_W · V^γ                                                                  pure power law
+``linear``  L_W · V                                                                    identity
+``bt1886``  a · max(V + b, 0)^2.4, a, b from L_W and L_B                               ITU-R BT.1886
+``pq``      10000 · ((max(V^(1/m2) − c1, 0)) / (c2 − c3·V^(1/m2)))^(1/m1), absolute    SMPTE ST 2084
+``hlg``     OOTF(inverse OETF) with black lift β, system gamma 1.2 + 0.42 log10(L_W/1000)  ITU-R BT.2100-2
+==========  =========================================================================  ===========
+
+HLG is not a per-channel curve: its OOTF scales every channel by the signal's luminance Y_S^(γ−1),
+with Y_S = Σ w_i E_i. For RGB the weights are those of BT.2100 (0.2627, 0.6780, 0.0593); for a
+display of N primaries metasim uses each primary's share of the white luminance (the natural
+generalisation; it equals BT.2100 for a BT.2020 display). A signal without a ``primary`` dim is
+treated as achromatic (R = G = B), as colour-science does for a single component.
+
+References
+----------
+IEC 61966-2-1:1999 (sRGB); ITU-R BT.1886 (2011) Annex 1; SMPTE ST 2084:2014; ITU-R BT.2100-2
+(2018) Table 5 (HLG, with the black-level lift of BT.2100-2); ARIB STD-B67 (HLG OETF constants).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import DisplayError
+
+TRANSFER_FUNCTIONS = ("srgb", "gamma", "linear", "bt1886", "pq", "hlg")
+#: Default nominal peak (white) luminance L_W per transfer function, cd/m².
+DEFAULT_PEAK_LUMINANCE = {"srgb": 80.0, "gamma": 100.0, "linear": 100.0, "bt1886": 100.0,
+                          "pq": 1000.0, "hlg": 1000.0}
+#: BT.2100 luminance weights of R, G, B for the HLG OOTF.
+BT2100_WEIGHTS = (0.2627, 0.6780, 0.0593)
+
+# SMPTE ST 2084 constants (exact fractions of the standard).
+_M1 = 2610.0 / 16384.0
+_M2 = 2523.0 / 4096.0 * 128.0
+_C1 = 3424.0 / 4096.0
+_C2 = 2413.0 / 4096.0 * 32.0
+_C3 = 2392.0 / 4096.0 * 32.0
+_PQ_PEAK = 10000.0
+# ITU-R BT.2100 HLG constants: a as published, b = 1 - 4a, c = 0.5 - a ln(4a) (the defining formulas).
+_HLG_A = 0.17883277
+_HLG_B = 1.0 - 4.0 * _HLG_A
+_HLG_C = 0.5 - _HLG_A * math.log(4.0 * _HLG_A)
+
+
+def check_transfer(transfer: str, *, gamma: float = 2.2, peak_luminance: float | None = None,
+                   black_luminance: float = 0.0) -> float:
+    """Validate a transfer-function name and its parameters; return the peak luminance to use."""
+    if not isinstance(transfer, str) or transfer not in TRANSFER_FUNCTIONS:
+        raise DisplayError(f"transfer function {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")
+    if not (isinstance(gamma, (int, float, np.number)) and math.isfinite(gamma) and gamma > 0):
+        raise DisplayError(f"gamma={gamma!r} is not allowed; must be a finite number > 0")
+    peak = DEFAULT_PEAK_LUMINANCE[transfer] if peak_luminance is None else peak_luminance
+    peak_values = np.asarray(peak, dtype=float)
+    if not np.isfinite(peak_values).all() or (peak_values <= 0).any():
+        raise DisplayError(f"peak_luminance={peak!r} cd/m2 is not allowed; must be finite and > 0")
+    if not (math.isfinite(black_luminance) and 0 <= black_luminance) or (np.asarray(black_luminance) >= peak_values).any():
+        raise DisplayError(
+            f"black_luminance={black_luminance!r} cd/m2 is not allowed; need 0 <= black_luminance < peak_luminance"
+        )
+    return peak
+
+
+def _spow(x, p):
+    return np.sign(x) * np.abs(x) ** p
+
+
+def _hlg_gamma(peak):
+    return 1.2 + 0.42 * np.log10(peak / 1000.0)
+
+
+def _hlg_beta(peak, black, system_gamma):
+    return np.sqrt(3.0 * (black / peak) ** (1.0 / system_gamma))
+
+
+def _hlg_oetf(e):
+    e = np.asarray(e, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_part = _HLG_A * np.log(np.maximum(12.0 * e - _HLG_B, 1e-300)) + _HLG_C
+    return np.where(e <= 1.0 / 12.0, np.sqrt(3.0 * np.maximum(e, 0.0)), log_part)
+
+
+def _hlg_oetf_inverse(v):
+    v = np.asarray(v, dtype=float)
+    return np.where(v <= 0.5, v * v / 3.0, (np.exp((v - _HLG_C) / _HLG_A) + _HLG_B) / 12.0)
+
+
+def _weights(array: xr.DataArray, luminance_weights, channel_dim: str) -> xr.DataArray | None:
+    if channel_dim not in array.dims:
+        return None
+    n = array.sizes[channel_dim]
+    if luminance_weights is None:
+        if n != 3:
+            raise DisplayError(
+                f"HLG with {n} channels needs luminance_weights (one per {channel_dim}); "
+                "the BT.2100 weights apply to 3 channels only"
+            )
+        luminance_weights = BT2100_WEIGHTS
+    if isinstance(luminance_weights, xr.DataArray):
+        weights = luminance_weights
+    else:
+        values = np.asarray(luminance_weights, dtype=float)
+        if values.shape != (n,):
+            raise DisplayError(f"luminance_weights has shape {values.shape}; need one weight per {channel_dim} ({n})")
+        weights = xr.DataArray(values, dims=(channel_dim,),
+                               coords={channel_dim: array.coords[channel_dim]} if channel_dim in array.coords else None)
+    return weights
+
+
+def _as_array(value, what: str) -> xr.DataArray:
+    array = value if isinstance(value, xr.DataArray) else xr.DataArray(np.asarray(value, dtype=float))
+    if not np.isfinite(np.asarray(array.values, dtype=float)).all():
+        raise DisplayError(f"{what} contains non-finite values; values must be finite numbers")
+    return array
+
+
+def eotf(signal, transfer: str, *, peak_luminance: float | None = None, black_luminance: float = 0.0,
+         gamma: float = 2.2, luminance_weights=None, channel_dim: str = "primary") -> xr.DataArray:
+    """Electro-optical transfer function: encoded signal V (0..1) → display light in cd/m².
+
+    Parameters
+    ----------
+    signal : DataArray or array-like
+        Non-linear signal values, nominally 0..1.
+    transfer : str
+        One of :data:`TRANSFER_FUNCTIONS` (see the module table).
+    peak_luminance : float, optional
+        Nominal white luminance L_W in cd/m² (default from :data:`DEFAULT_PEAK_LUMINANCE`);
+        PQ is absolute and ignores it.
+    black_luminance : float
+        L_B in cd/m² for ``bt1886`` and ``hlg`` (default 0).
+    gamma : float
+        Exponent of the ``gamma`` curve.
+    luminance_weights : sequence or DataArray, optional
+        HLG only: weight of each channel in Y_S (default BT.2100 for 3 channels).
+    channel_dim : str
+        The channel dim for HLG (default ``primary``).
+
+    References
+    ----------
+    See the module docstring (IEC 61966-2-1, ITU-R BT.1886, SMPTE ST 2084, ITU-R BT.2100-2).
+    """
+    peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
+    v = _as_array(signal, "signal")
+    if transfer == "srgb":
+        light = peak * xr.where(v <= 0.04045, v / 12.92, _spow((v + 0.055) / 1.055, 2.4))
+    elif transfer == "gamma":
+        light = peak * _spow(v, gamma)
+    elif transfer == "linear":
+        light = peak * v
+    elif transfer == "bt1886":
+        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
+        light = n**2.4 * np.maximum(v + black_luminance ** (1 / 2.4) / n, 0.0) ** 2.4
+    elif transfer == "pq":
+        vp = _spow(v, 1.0 / _M2)
+        light = _PQ_PEAK * _spow(np.maximum(vp - _C1, 0.0) / (_C2 - _C3 * vp), 1.0 / _M1)
+    else:
+        system_gamma = _hlg_gamma(peak)
+        beta = _hlg_beta(peak, black_luminance, system_gamma)
+        scene = xr.apply_ufunc(_hlg_oetf_inverse, np.maximum((1 - beta) * v + beta, 0.0))
+        weights = _weights(scene, luminance_weights, channel_dim)
+        y_s = scene if weights is None else (scene * weights).sum(channel_dim)
+        light = peak * scene * np.abs(y_s) ** (system_gamma - 1.0)
+    light = light.transpose(*v.dims) if isinstance(light, xr.DataArray) else light
+    light.attrs = {"units": "cd m-2", "long_name": f"display light ({transfer} EOTF)", "transfer_function": transfer}
+    return light
+
+
+def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, black_luminance: float = 0.0,
+                 gamma: float = 2.2, luminance_weights=None, channel_dim: str = "primary") -> xr.DataArray:
+    """Inverse EOTF: display light in cd/m² → encoded signal V; parameters as :func:`eotf`.
+
+    References
+    ----------
+    See the module docstring (IEC 61966-2-1, ITU-R BT.1886, SMPTE ST 2084, ITU-R BT.2100-2).
+    """
+    peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
+    lum = _as_array(light, "light")
+    if transfer == "srgb":
+        rel = lum / peak
+        signal = xr.where(rel <= 0.0031308, rel * 12.92, 1.055 * _spow(rel, 1 / 2.4) - 0.055)
+    elif transfer == "gamma":
+        signal = _spow(lum / peak, 1.0 / gamma)
+    elif transfer == "linear":
+        signal = lum / peak
+    elif transfer == "bt1886":
+        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
+        signal = _spow(lum / n**2.4, 1 / 2.4) - black_luminance ** (1 / 2.4) / n
+    elif transfer == "pq":
+        y = _spow(lum / _PQ_PEAK, _M1)
+        signal = _spow((_C1 + _C2 * y) / (1 + _C3 * y), _M2)
+    else:
+        system_gamma = _hlg_gamma(peak)
+        beta = _hlg_beta(peak, black_luminance, system_gamma)
+        weights = _weights(lum, luminance_weights, channel_dim)
+        y_d = lum if weights is None else (lum * weights).sum(channel_dim)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            scene = xr.where(y_d == 0, 0.0, np.abs(y_d / peak) ** ((1 - system_gamma) / system_gamma) * lum / peak)
+        signal = (xr.apply_ufunc(_hlg_oetf, scene) - beta) / (1 - beta)
+    signal = signal.transpose(*lum.dims) if isinstance(signal, xr.DataArray) else signal
+    signal.attrs = {"units": "1", "long_name": f"encoded signal ({transfer})", "transfer_function": transfer}
+    return signal
+
+
+__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse"]
