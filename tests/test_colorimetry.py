@@ -194,3 +194,20 @@ def test_tristimulus_many_spectra_many_observers_shapes():
     assert xyz.dims == ("design", "primary", "observer", "xyz")
     single = tristimulus(spectra.isel(design=0, primary=1), observers.isel(observer=1))
     np.testing.assert_allclose(xyz.isel(design=0, primary=1, observer=1).values, single.values, rtol=1e-12)
+
+
+def test_ictcp_and_delta_e_itp_equal_colour_science(rng):
+    from metasim.colorimetry import delta_e_itp, xyz_to_ictcp
+
+    xyz_values = rng.uniform(0.5, 600.0, (300, 3)) * np.array([0.95, 1.0, 1.09])
+    xyz = xr.DataArray(xyz_values, dims=("stimulus", "xyz"), coords={"xyz": ["X", "Y", "Z"]})
+    ours = xyz_to_ictcp(xyz)
+    bt2020 = colour.RGB_COLOURSPACES["ITU-R BT.2020"]
+    rgb = colour.XYZ_to_RGB(xyz_values, bt2020, apply_cctf_encoding=False)
+    theirs = colour.RGB_to_ICtCp(rgb)  # colour-science, ITU-R BT.2100 PQ (RGB in cd/m2)
+    keep = (rgb > 0).all(axis=1)
+    np.testing.assert_allclose(ours.values[keep], theirs[keep], atol=1e-6)  # ITU-R BT.2100-2 via colour-science
+    d_ours = delta_e_itp(ours.isel(stimulus=slice(0, 150)), ours.isel(stimulus=slice(150, 300)).assign_coords(
+        stimulus=ours.stimulus[:150]))
+    d_theirs = colour.delta_E(ours.values[:150], ours.values[150:], method="ITP")
+    np.testing.assert_allclose(d_ours.values, d_theirs, rtol=1e-12)  # ITU-R BT.2124 via colour-science delta_E "ITP"

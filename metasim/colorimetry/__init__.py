@@ -2,6 +2,7 @@
 
 from metasim.colorimetry.cielab import LAB, lab_to_lch, xy_to_xyz, xyz_to_lab, xyz_to_uv, xyz_to_xy
 from metasim.colorimetry.difference import delta_e_2000, delta_e_2000_array
+from metasim.colorimetry.ictcp import ICTCP, delta_e_itp, xyz_to_ictcp
 from metasim.colorimetry.tristimulus import K_M, SCALES, cone_excitations, contract, tristimulus
 
 __all__ = [
@@ -18,4 +19,7 @@ __all__ = [
     "lab_to_lch",
     "delta_e_2000",
     "delta_e_2000_array",
+    "ICTCP",
+    "xyz_to_ictcp",
+    "delta_e_itp",
 ]
