@@ -27,7 +27,7 @@ from metasim.gamut._inputs import (
     describe_item,
     flatten,
     lead_array,
-    primaries_xyz,
+    primaries_xyz as as_primaries_xyz,
 )
 
 _LABELS = {"xy": ["x", "y"], "uv": ["u'", "v'"]}
@@ -63,12 +63,12 @@ def _hull(points: np.ndarray, lead, shape, coords, space: str):
     return next_vertex, on_hull, area
 
 
-def chromaticity_gamut(primaries_xyz_, space: str = "xy", observer=None) -> xr.Dataset:
+def chromaticity_gamut(primaries_xyz, space: str = "xy", observer=None) -> xr.Dataset:
     """Chromaticity gamut (convex hull) of N primaries.
 
     Parameters
     ----------
-    primaries_xyz_ : DataArray
+    primaries_xyz : DataArray
         Tristimulus values with dims ``primary`` and ``xyz`` and any leading dims (``design``,
         ``observer`` ...); or primary spectra (``primary`` × ``wavelength``, or a display with a
         ``spectra`` attribute) together with ``observer``; or xy chromaticities (``chromaticity``
@@ -97,7 +97,7 @@ def chromaticity_gamut(primaries_xyz_, space: str = "xy", observer=None) -> xr.D
     Geometry in C (convex hull, shoelace area).
     """
     check_space(space)
-    xyz = primaries_xyz(primaries_xyz_, observer, allow_chromaticity=True)
+    xyz = as_primaries_xyz(primaries_xyz, observer, allow_chromaticity=True)
     chroma = chromaticities(xyz, space)
     points, lead, shape, coords = flatten(chroma, ("primary", "chromaticity"))
     next_vertex, on_hull, area = _hull(points, lead, shape, coords, space)
