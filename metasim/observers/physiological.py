@@ -26,11 +26,11 @@ Individual deviations (Asano, Fairchild & Blondé 2016) act on this observer of 
 * ``l_density_pct``, ``m_density_pct``, ``s_density_pct``: the cone's D_peak likewise;
 * ``l_shift_nm``, ``m_shift_nm``, ``s_shift_nm``: the absorbance is shifted along a
   log-wavelength (equivalently log-wavenumber) axis so that its peak moves by exactly the given nm:
-  ``a'(λ) = a(λ · λmax / (λmax + shift))``. Shape invariance on a log-wavenumber axis is the
-  template property of photopigment spectra (Lamb 1995; Stockman & Sharpe 2000). The shift is
-  applied to the absorbance before density, media and macula, so the peak of the fundamental moves
-  by close to, not exactly, the given shift. Outside 390-830 nm the shifted absorbance takes the
-  edge value.
+  ``a'(λ) = a(λ · λmax / (λmax + shift))``, λmax the peak of the derived absorbance (L 545 nm, M
+  525 nm, S 420 nm). Shape invariance on a log-wavenumber axis is the template property of
+  photopigment spectra (Lamb 1995). The shift acts on the absorbance before density, media and
+  macula, so the fundamental's peak moves by about (L, M) or less than (S, whose peak is set by
+  the lens) the shift. Outside 390-830 nm the shifted absorbance takes the edge value.
 
 XYZ (CIE 170-2:2015): ``xyz = M(f) · lms``. An observer of field f gets the 2° matrix for f ≤ 2°,
 the 10° matrix for f ≥ 10°, and the element-wise linear interpolation in f between them. The
@@ -223,12 +223,11 @@ def lens_components_dataset(age_dependent, constant, wavelengths, *, source: str
     for name, v in zip(("age-dependent", "constant"), values):
         if v.shape != wl.shape or not np.isfinite(v).all() or (v < 0).any():
             raise ObserverError(f"{source}: {name} lens density must be {wl.size} finite values >= 0")
-    coords = {"wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))}
     return xr.Dataset(
         {"lens_density_1": ("wavelength", values[0], {"units": "1", "long_name": "age-dependent ocular media density at age 32"}),
          "lens_density_2": ("wavelength", values[1], {"units": "1", "long_name": "age-independent ocular media density"})},
-        coords=coords, attrs={"source": source, "model": "CIE 170-1:2006 two-component ocular media"},
-    )
+        coords={"wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
+        attrs={"source": source, "model": "CIE 170-1:2006 two-component ocular media"})
 
 
 def ocular_media_density(age_years=32, wavelengths=None, *, lens_components: xr.Dataset | None = None,
@@ -321,10 +320,9 @@ def _block_functions(age, field, deviations: dict, lens_components=None) -> tupl
         return np.maximum(1.0 + deviations[name] / 100.0, 0.0)
 
     macular_peak = 0.485 * np.exp(-field / 6.132) * factor("macular_density_pct")
-    transmittance = 10.0 ** -(
-        np.outer(macular_peak / 0.35, _density_table("macular_density_2deg_1nm.csv"))
-        + _ocular_density(age, lens_components) * factor("lens_density_pct")[:, None]
-    )
+    density = np.outer(macular_peak / 0.35, _density_table("macular_density_2deg_1nm.csv"))
+    density += _ocular_density(age, lens_components) * factor("lens_density_pct")[:, None]
+    transmittance = np.exp(density * -np.log(10.0))  # 10^(−D), exp being faster than pow
     pigment = np.exp(-field / 1.333)
     peak_density = np.stack([
         (0.38 + 0.54 * pigment) * factor("l_density_pct"),
@@ -373,10 +371,8 @@ def _parameter_vectors(age_years, field_size_deg, deviations: dict, extrapolate:
     try:
         shapes = np.broadcast_shapes(*(v.shape for v in arrays.values()))
     except ValueError:
-        raise ObserverError(
-            "observer parameters have incompatible lengths "
-            f"{ {k: v.size for k, v in arrays.items() if v.size != 1} }; give one value or n values each"
-        ) from None
+        sizes = {k: v.size for k, v in arrays.items() if v.size != 1}
+        raise ObserverError(f"observer parameters have incompatible lengths {sizes}; give 1 or n values each") from None
     if len(shapes) != 1:
         raise ObserverError(f"observer parameters must be scalars or 1-D vectors, got shape {shapes}")
     return {k: np.broadcast_to(v, shapes).astype(float) for k, v in arrays.items()}
@@ -386,25 +382,14 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
                             lens_components: xr.Dataset | None = None, **deviations) -> xr.Dataset:
     """Many CIE 170-1 individual observers in one vectorised call (leading ``observer`` dim).
 
-    Parameters
-    ----------
-    age_years, field_size_deg : float or 1-D array
-        Age 20-80 years and field size 1-10°, per observer (scalars broadcast).
-    **deviations : float or 1-D array
-        Any of the eight deviations in :data:`DEVIATIONS` (default 0); see the module docstring.
-        Values below −100 % give zero density.
-    wavelengths : optional
-        Output grid (nm); default 390-830 nm at 1 nm.
-    extrapolate : bool
-        Allow ages and field sizes outside the validated range (any positive value).
-    lens_components : xarray.Dataset, optional
-        Two-component lens table (:func:`read_lens_components`): use CIE 170-1's age formula.
+    Parameters: ``age_years`` (20-80) and ``field_size_deg`` (1-10), and any of the eight
+    :data:`DEVIATIONS` (default 0; below −100 % means zero density), each a number or a 1-D vector
+    (numbers broadcast); ``wavelengths``: output grid, default 390-830 nm at 1 nm; ``extrapolate``:
+    allow any positive age and field size; ``lens_components``: a two-component lens table
+    (:func:`read_lens_components`) to age the media by CIE 170-1's own formula.
 
-    Returns
-    -------
-    xarray.Dataset
-        ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz, wavelength); every
-        parameter as an ``observer`` coordinate.
+    Returns a Dataset with ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz,
+    wavelength), every parameter an ``observer`` coordinate.
 
     References
     ----------
