@@ -13,7 +13,8 @@ Method (metasim's own):
 3. The observers' concatenated CIELAB vectors are clustered by k-means (k-means++ seeding, Lloyd
    iterations, the best of several seeded restarts by within-cluster sum of squares). The squared
    Euclidean distance between two observers is the sum over stimuli of ΔE*ab², so observers in one
-   category see the stimulus set alike.
+   category see the stimulus set alike. For speed the vectors are first expressed in their
+   principal axes, dropping only axes that together hold less than 1e-5 of the variance.
 4. Each category is represented by its member nearest the cluster mean: an actual population
    member, so physiologically valid, not an average of functions. Its ``weight`` is the share of
    the population in its category.
@@ -44,6 +45,10 @@ NARROW_BAND_FWHM_NM = 20.0
 NARROW_BAND_Y = 20.0
 RESTARTS = 4
 MAX_ITERATIONS = 100
+#: Lloyd iterations stop when the within-cluster sum of squares improves by less than this share.
+TOLERANCE = 1e-6
+#: Share of the feature variance the clustering may ignore (principal axes beyond it are dropped).
+DISCARDED_VARIANCE = 1e-5
 
 
 def _stimuli(wl: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[str]]:
@@ -87,7 +92,8 @@ def observer_features(population: xr.Dataset) -> xr.DataArray:
     white, stimuli, labels = _stimuli(wl)
     functions = cmf.transpose("observer", "xyz", "wavelength").values
     white_xyz = functions @ white * step  # n × 3
-    stimulus_xyz = np.einsum("nxw,sw->nsx", functions, stimuli) * step  # n × s × 3
+    n_obs = functions.shape[0]
+    stimulus_xyz = (functions.reshape(-1, wl.size) @ stimuli.T).reshape(n_obs, 3, -1).transpose(0, 2, 1) * step
     white_scale = 100.0 / white_xyz[:, 1].mean()
     n_surfaces = len(labels) - len(NARROW_BAND_PEAKS_NM)
     band_scale = np.ones(len(labels))
@@ -113,39 +119,61 @@ def _population_cmf(population) -> xr.DataArray:
     return cmf
 
 
-def _squared_distances(points: np.ndarray, centres: np.ndarray) -> np.ndarray:
-    d = (points**2).sum(1)[:, None] - 2.0 * points @ centres.T + (centres**2).sum(1)[None, :]
+def _squared_distances(points: np.ndarray, centres: np.ndarray, norms: np.ndarray | None = None) -> np.ndarray:
+    norms = (points**2).sum(1) if norms is None else norms
+    d = norms[:, None] - 2.0 * points @ centres.T + (centres**2).sum(1)[None, :]
     return np.maximum(d, 0.0)
+
+
+def _principal_components(points: np.ndarray) -> np.ndarray:
+    """Centred points in the principal axes that hold all but :data:`DISCARDED_VARIANCE` of the variance.
+
+    Distances change by at most that share of the total variance; the k-means work shrinks from
+    3 × (number of stimuli) coordinates to about as many as there are observer parameters.
+    """
+    _, singular, axes = np.linalg.svd(points, full_matrices=False)
+    share = np.cumsum(singular**2) / max(float((singular**2).sum()), np.finfo(float).tiny)
+    keep = int(np.searchsorted(share, 1.0 - DISCARDED_VARIANCE) + 1)
+    return points @ axes[:keep].T
+
+
+def _means(points: np.ndarray, labels: np.ndarray, k: int) -> np.ndarray:
+    """Mean of the points of each cluster: one reduction over the points sorted by cluster."""
+    order = np.argsort(labels, kind="stable")
+    counts = np.bincount(labels, minlength=k)
+    starts = np.concatenate([[0], np.cumsum(counts)[:-1]])
+    return np.add.reduceat(points[order], starts, axis=0) / counts[:, None]
 
 
 def _kmeans(points: np.ndarray, k: int, rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray, float]:
     """One k-means run: k-means++ seeding then Lloyd iterations. Returns labels, centres, inertia."""
     n = points.shape[0]
+    norms = (points**2).sum(1)
     centres = np.empty((k, points.shape[1]))
     centres[0] = points[rng.integers(n)]
-    nearest = _squared_distances(points, centres[:1])[:, 0]
+    nearest = _squared_distances(points, centres[:1], norms)[:, 0]
     for j in range(1, k):  # k-means++: each new centre with probability proportional to D²
         total = nearest.sum()
         index = rng.choice(n, p=nearest / total) if total > 0 else rng.integers(n)
         centres[j] = points[index]
-        nearest = np.minimum(nearest, _squared_distances(points, centres[j:j + 1])[:, 0])
-    labels = np.full(n, -1)
+        nearest = np.minimum(nearest, _squared_distances(points, centres[j:j + 1], norms)[:, 0])
+    labels, previous = np.full(n, -1), np.inf
     for _ in range(MAX_ITERATIONS):
-        distances = _squared_distances(points, centres)
+        distances = _squared_distances(points, centres, norms)
         new_labels = distances.argmin(1)
         counts = np.bincount(new_labels, minlength=k)
         for j in np.flatnonzero(counts == 0):  # an empty cluster takes the worst-fitting point
             worst = int(distances[np.arange(n), new_labels].argmax())
             new_labels[worst] = j
             distances[worst] = 0.0
-        if np.array_equal(new_labels, labels):
+        inertia = distances[np.arange(n), new_labels].sum()
+        converged = np.array_equal(new_labels, labels) or (
+            np.isfinite(previous) and previous - inertia <= TOLERANCE * previous)
+        labels, previous = new_labels, inertia
+        centres = _means(points, labels, k)
+        if converged:
             break
-        labels = new_labels
-        counts = np.bincount(labels, minlength=k)
-        sums = np.zeros_like(centres)
-        np.add.at(sums, labels, points)
-        centres = sums / counts[:, None]
-    inertia = float(_squared_distances(points, centres)[np.arange(n), labels].sum())
+    inertia = float(_squared_distances(points, centres, norms)[np.arange(n), labels].sum())
     return labels, centres, inertia
 
 
@@ -185,9 +213,10 @@ def observer_categories(population: xr.Dataset, k: int, *, seed) -> xr.Dataset:
     features = observer_features(population)
     points = features.values.reshape(n, -1)
     points = points - points.mean(0)
-    best = min((_kmeans(points, int(k), rng) for _ in range(RESTARTS)), key=lambda run: run[2])
+    projected = _principal_components(points)
+    best = min((_kmeans(projected, int(k), rng) for _ in range(RESTARTS)), key=lambda run: run[2])
     labels, centres, _ = best
-    distance = _squared_distances(points, centres)[np.arange(n), labels]
+    distance = _squared_distances(projected, centres)[np.arange(n), labels]
     counts = np.bincount(labels, minlength=k)
     representatives = np.empty(k, dtype=int)
     spread = np.empty(k)
