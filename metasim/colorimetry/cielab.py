@@ -67,8 +67,11 @@ def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.Dat
     return out
 
 
-def _f(t):
-    return xr.where(t > _EPSILON, np.cbrt(t), (_KAPPA * t + 16.0) / 116.0)
+def _lab_values(ratio: np.ndarray) -> np.ndarray:
+    """CIELAB from XYZ / XYZ_white with X, Y, Z on the last axis (CIE 15:2004 §8.2.1)."""
+    f = np.where(ratio > _EPSILON, np.cbrt(ratio), (_KAPPA * ratio + 16.0) / 116.0)
+    fx, fy, fz = f[..., 0], f[..., 1], f[..., 2]
+    return np.stack([116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)], axis=-1)
 
 
 def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
@@ -88,11 +91,13 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     _need(white, "xyz", "white")
     if (np.asarray(white) <= 0).any():
         raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+    xyz = xyz.assign_coords(xyz=["X", "Y", "Z"])
+    white = white.assign_coords(xyz=["X", "Y", "Z"])
     ratio = xyz / white
-    fx, fy, fz = (_f(ratio.sel(xyz=c, drop=True)) for c in ("X", "Y", "Z"))
-    lab = xr.concat([116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)], dim="lab")
-    lab = lab.assign_coords(lab=list(LAB))
-    lab = lab.transpose(*[d for d in ratio.dims if d != "xyz"], "lab")
+    dims = [d for d in ratio.dims if d != "xyz"]
+    ratio = ratio.transpose(*dims, "xyz")
+    coords = {k: v for k, v in ratio.coords.items() if "xyz" not in v.dims}
+    lab = xr.DataArray(_lab_values(ratio.values), dims=(*dims, "lab"), coords={**coords, "lab": list(LAB)})
     lab.attrs = {"units": "1", "long_name": "CIELAB (CIE 1976 L*a*b*)"}
     return lab
 

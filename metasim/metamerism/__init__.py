@@ -1,0 +1,45 @@
+"""The mismatch engine: observer populations × stimuli × reference/test renderings.
+
+See :mod:`metasim.metamerism.engine` (the procedure), :mod:`~metasim.metamerism.stimuli`
+(stimulus sets), :mod:`~metasim.metamerism.summary` (statistics), :mod:`~metasim.metamerism.index`
+(observer metamerism index) and :mod:`~metasim.metamerism.choices` (calibration-observer ranking
+and white-point offsets).
+"""
+
+from metasim.metamerism.engine import ADAPTED_WHITES, mismatch, resolve_calibration_observer, resolve_observers
+from metasim.metamerism.index import observer_metamerism_index
+from metasim.metamerism import stimuli
+from metasim.metamerism.stimuli import (
+    cie_13_3_samples,
+    combine,
+    neutral_ramp,
+    primaries_and_secondaries,
+    read_stimuli_csv,
+    reflectance_set,
+    rgb_cube_grid,
+    rgb_set,
+    xyz_set,
+)
+from metasim.metamerism.summary import AGE_BANDS, STATISTICS, THRESHOLDS, summarise
+
+__all__ = [
+    "mismatch",
+    "resolve_observers",
+    "resolve_calibration_observer",
+    "ADAPTED_WHITES",
+    "observer_metamerism_index",
+    "stimuli",
+    "neutral_ramp",
+    "primaries_and_secondaries",
+    "rgb_cube_grid",
+    "rgb_set",
+    "cie_13_3_samples",
+    "reflectance_set",
+    "xyz_set",
+    "read_stimuli_csv",
+    "combine",
+    "summarise",
+    "AGE_BANDS",
+    "STATISTICS",
+    "THRESHOLDS",
+]

@@ -1,0 +1,399 @@
+"""The mismatch engine: how differently a population of observers sees a reference and a test rendering.
+
+Procedure (all observers and stimuli at once; no Python loop over either):
+
+1. **Reference rendering.** A reference :class:`~metasim.display.Display`, or real objects
+   (reflectances × an illuminant scaled so that a perfect white diffuser has the stated luminance).
+2. **White match.** With ``match_white=True`` (default) the test display's white is calibrated to
+   the reference white *as the calibration observer sees it* (chromaticity and luminance) — the way a
+   colourist matches a new display to a reference with a colorimeter built for that observer.
+3. **Colour match.** Every stimulus is rendered on the reference (for a reference display: drives
+   solved for the calibration observer), and the test display is driven so that the calibration
+   observer sees the same XYZ (:func:`metasim.display.solve_drive`, with the chosen strategy for
+   N > 3 primaries). Stimuli a side cannot reproduce are clipped and flagged.
+4. **Every observer's view.** Observer × primary tristimulus matrices are integrated once; each
+   observer's XYZ of both sides is then drive × matrix (+ black). CIELAB uses the white the observer
+   is adapted to: by default the *reference white as that observer sees it* (both sides are judged
+   in one adaptation state, as in side-by-side comparison); ``adapted_white="test"`` uses the test
+   display's white instead. CIE 2000 differences per observer × stimulus follow, plus ΔE_ITP
+   (ITU-R BT.2124) from the absolute XYZ (all luminances here are absolute, cd/m²) and the
+   observer-change metamerism index (:mod:`metasim.metamerism.index`).
+5. **Summaries** (:mod:`metasim.metamerism.summary`).
+
+References
+----------
+CIE 15:2004 (CIELAB); CIE 142-2001 (CIE 2000 colour difference); ITU-R BT.2124-0 (ΔE_ITP);
+ISO 18314-4 (metamerism index with additive correction, here for a change of observer).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim._version import __version__
+from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
+from metasim.colorimetry.cielab import _lab_values
+from metasim.colorimetry.difference import delta_e_2000_array
+from metasim.colorimetry.tristimulus import K_M
+from metasim.display import Display, calibrate_white, solve_drive
+from metasim.errors import MetasimError, StimulusError
+from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
+from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, summarise
+from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
+from metasim.spectra import RADIANCE_UNITS, require_same_grid
+
+ADAPTED_WHITES = ("reference", "test")
+
+
+def resolve_observers(observers, wavelengths) -> xr.Dataset:
+    """Observers as a Dataset with ``cmf`` and an ``observer`` dim on the given grid."""
+    if isinstance(observers, str):
+        observers = [observers]
+    if isinstance(observers, (list, tuple)):
+        if not observers:
+            raise MetasimError("the observer set is empty; give at least one observer")
+        parts = []
+        for name in observers:
+            if name not in STANDARD_OBSERVERS:
+                raise MetasimError(f"observer {name!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}")
+            parts.append(standard_observer(name, wavelengths)[["cmf"]])
+        ds = xr.concat(parts, dim="observer", combine_attrs="drop_conflicts")
+        return ds.assign_coords(observer=list(observers))
+    if not isinstance(observers, xr.Dataset) or "cmf" not in observers:
+        raise MetasimError("observers must be standard observer names or an observer Dataset with a 'cmf' variable")
+    if "observer" not in observers.dims:
+        observers = observers.expand_dims(observer=[str(observers.attrs.get("observer", "observer"))])
+    if observers.sizes["observer"] == 0:
+        raise MetasimError("the observer set is empty; give at least one observer")
+    require_same_grid(observers, wavelengths, names=("observers", "displays"))
+    return observers
+
+
+def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wavelengths) -> tuple[xr.Dataset, str]:
+    """The calibration observer (no ``observer`` dim) and its name.
+
+    ``"population_mean"`` is the mean of the observers' colour-matching functions.
+    """
+    if isinstance(calibration_observer, str):
+        if calibration_observer == "population_mean":
+            cmf = observers["cmf"].mean("observer")
+            cmf.attrs = {"units": "1", "long_name": "mean colour-matching functions of the population"}
+            ds = xr.Dataset({"cmf": cmf}, attrs={"observer": "population_mean"})
+            return ds, "population_mean"
+        if calibration_observer not in STANDARD_OBSERVERS:
+            raise MetasimError(
+                f"calibration observer {calibration_observer!r} is not known; allowed: "
+                f"{', '.join(STANDARD_OBSERVERS)}, population_mean, or an observer Dataset"
+            )
+        return standard_observer(calibration_observer, wavelengths), calibration_observer
+    if isinstance(calibration_observer, xr.Dataset) and "cmf" in calibration_observer:
+        ds = calibration_observer
+        if "observer" in ds.dims:
+            if ds.sizes["observer"] != 1:
+                raise MetasimError("the calibration observer must be one observer; select it with .isel(observer=i)")
+            ds = ds.isel(observer=0, drop=True)
+        require_same_grid(ds, wavelengths, names=("calibration observer", "displays"))
+        return ds, str(ds.attrs.get("observer", "custom"))
+    raise MetasimError("calibration_observer must be a standard observer name, 'population_mean' or an observer Dataset")
+
+
+def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Display, calibration: xr.Dataset,
+                             object_white_luminance=None) -> tuple[xr.DataArray, str]:
+    """The reference white radiance and the reference kind ("display" or "objects")."""
+    if isinstance(reference, Display):
+        require_same_grid(reference.spectra, test.spectra, names=("reference display", "test display"))
+        if reference.batch_dims:
+            raise MetasimError(f"the reference display must be a single design, got dims {reference.batch_dims}")
+        return reference.white_spectrum(), "display"
+    if isinstance(reference, str) and reference == "objects":
+        if stimuli is None or stimuli.attrs.get("kind") != "reflectance":
+            raise StimulusError("reference='objects' needs reflectance stimuli (e.g. cie_13_3_samples())")
+        illuminant = illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), test.wavelengths.values)
+    elif isinstance(reference, xr.DataArray) and set(reference.dims) == {"wavelength"}:
+        illuminant = reference
+        require_same_grid(illuminant, test.spectra, names=("reference illuminant", "test display"))
+    else:
+        raise MetasimError("reference must be a Display, 'objects', or an illuminant spectrum (wavelength only)")
+    if object_white_luminance is None:
+        object_white_luminance = float(test.white_tristimulus(calibration).sel(xyz="Y").max())
+    if not np.isfinite(object_white_luminance) or object_white_luminance <= 0:
+        raise MetasimError(f"object_white_luminance={object_white_luminance!r} cd/m2 is not allowed; must be > 0")
+    y = float(tristimulus(illuminant, calibration).sel(xyz="Y"))
+    if y <= 0:
+        raise MetasimError("the reference illuminant has no luminance for the calibration observer")
+    white = illuminant * (object_white_luminance / y)
+    white.attrs = {"units": RADIANCE_UNITS, "long_name": "radiance of a perfect white diffuser under the illuminant"}
+    return white, "objects"
+
+
+def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, white_spectrum, ref_kind: str):
+    """Reference rendering for the calibration observer: (target XYZ, drive solution or spectra)."""
+    if ref_kind == "objects":
+        spectra = (stimuli["reflectance"] * white_spectrum).transpose("stimulus", "wavelength")
+        spectra.attrs = {"units": RADIANCE_UNITS, "long_name": "reflected spectral radiance"}
+        return tristimulus(spectra, calibration), spectra
+    white_y = tristimulus(white_spectrum, calibration).sel(xyz="Y", drop=True)
+    if kind == "rgb":
+        solution = solve_drive(reference, rgb=stimuli["signal"], source=stimuli.attrs.get("source", "bt709"),
+                               encoding=stimuli.attrs.get("encoding") or None, observer=calibration)
+    else:
+        if kind == "xyz":
+            target = stimuli["xyz_relative"] * (white_y / 100.0)
+        else:
+            illuminant = illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), white_spectrum.wavelength.values)
+            scale = white_y / tristimulus(illuminant, calibration).sel(xyz="Y", drop=True)
+            target = tristimulus(stimuli["reflectance"] * illuminant * scale, calibration)
+        solution = solve_drive(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
+    return solution["reproduced"], solution
+
+
+def mismatch(
+    reference,
+    test: Display,
+    observers,
+    stimuli: xr.Dataset,
+    *,
+    calibration_observer="cie1931_2",
+    strategy: str = "min_norm",
+    strategy_population=None,
+    match_white: bool = True,
+    adapted_white: str = "reference",
+    object_white_luminance: float | None = None,
+    include_itp: bool | None = None,
+    age_bands=AGE_BANDS,
+    thresholds=THRESHOLDS,
+) -> xr.Dataset:
+    """Compare a reference rendering with a test display for a set of observers and stimuli.
+
+    Parameters
+    ----------
+    reference : Display, "objects" or DataArray
+        A reference display; ``"objects"`` for reflectance stimuli under their own illuminant; or
+        an illuminant spectrum (``wavelength`` only) for reflectance stimuli.
+    test : Display
+        The test display (may carry a ``design`` dim: every design is evaluated).
+    observers : Dataset or str or list of str
+        Observer population (``cmf`` with an ``observer`` dim, e.g. from
+        :func:`metasim.observer_population` or :func:`metasim.observer_categories`) or standard
+        observer names.
+    stimuli : Dataset
+        A stimulus set (:mod:`metasim.metamerism.stimuli`).
+    calibration_observer : str or Dataset
+        The observer both sides are matched for (default CIE 1931 2°); ``"population_mean"`` uses
+        the mean colour-matching functions of ``observers``.
+    strategy : str
+        Drive strategy of the test display for N > 3 primaries (:data:`metasim.display.STRATEGIES`);
+        ``"population"`` minimises the expected mismatch over ``strategy_population`` (default
+        ``observers``).
+    match_white : bool
+        Calibrate the test white to the reference white for the calibration observer first.
+    adapted_white : {"reference", "test"}
+        The white each observer's CIELAB is computed against, as that observer sees it.
+    object_white_luminance : float, optional
+        cd/m² of a perfect white diffuser for object references (default: the test white).
+    include_itp : bool, optional
+        Compute ΔE_ITP (ITU-R BT.2124, from the absolute XYZ); default: when either display uses an
+        HDR transfer function (PQ or HLG).
+    age_bands, thresholds : see :func:`metasim.metamerism.summary.summarise`.
+
+    Returns
+    -------
+    Dataset
+        ``xyz_reference``, ``xyz_test`` (observer × stimulus × xyz, cd/m²), ``lab_reference``,
+        ``lab_test``, ``adapted_white_xyz``, ``delta_e_2000`` (observer × stimulus), ``delta_e_itp``,
+        ``metamerism_index``, ``delta_e_white`` (observer), ``delta_e_2000_calibration`` (stimulus),
+        ``drive_test``, flags ``out_of_gamut_reference`` / ``out_of_gamut_test`` / ``out_of_gamut_both``
+        and the summaries of :func:`~metasim.metamerism.summary.summarise`.
+    """
+    if not isinstance(test, Display):
+        raise MetasimError(f"test must be a Display, got {type(test).__name__}")
+    if adapted_white not in ADAPTED_WHITES:
+        raise MetasimError(f"adapted_white={adapted_white!r} is not known; allowed: {', '.join(ADAPTED_WHITES)}")
+    kind = check_stimuli(stimuli)
+    grid = test.wavelengths
+    if kind == "reflectance":
+        require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
+    obs = resolve_observers(observers, grid)
+    calibration, calibration_name = resolve_calibration_observer(calibration_observer, obs, grid)
+    white_spectrum, ref_kind = reference_white_spectrum(reference, stimuli, test, calibration, object_white_luminance)
+
+    if include_itp is None:
+        transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
+        include_itp = bool(transfers & {"pq", "hlg"})
+    if match_white:
+        ref_white_cal = tristimulus(white_spectrum, calibration)
+        test = calibrate_white(test, calibration, white=xyz_to_xy(ref_white_cal),
+                               luminance=ref_white_cal.sel(xyz="Y", drop=True))
+
+    targets, ref_rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
+    population = obs if strategy_population is None else strategy_population
+    strategy_args = {}
+    if strategy == "population":
+        strategy_args = {"population": population,
+                         "reference": reference if ref_kind == "display" else ref_rendering,
+                         "reference_white": None if ref_kind == "display" else white_spectrum}
+    test_solution = solve_drive(test, target=targets, observer=calibration, strategy=strategy, **strategy_args)
+
+    # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
+    core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
+                          white_spectrum, obs, adapted_white, targets, include_itp)
+    xyz_ref, xyz_test, adapted, lab_ref, lab_test, de, de_white, itp, index = core
+    cal_white = tristimulus(white_spectrum, calibration) if adapted_white == "reference" else test.white_tristimulus(calibration)
+    de_cal = delta_e_2000(xyz_to_lab(targets, cal_white), xyz_to_lab(test_solution["reproduced"], cal_white))
+
+    out = xr.Dataset()
+    for name, value, long_name, units in (
+        ("xyz_reference", xyz_ref, "tristimulus values of the reference rendering, per observer", "cd m-2"),
+        ("xyz_test", xyz_test, "tristimulus values of the test rendering, per observer", "cd m-2"),
+        ("lab_reference", lab_ref, "CIELAB of the reference rendering (observer's adapted white)", "1"),
+        ("lab_test", lab_test, "CIELAB of the test rendering (observer's adapted white)", "1"),
+        ("adapted_white_xyz", adapted, f"white each observer is adapted to ({adapted_white} white as they see it)", "cd m-2"),
+        ("delta_e_2000", de, "CIE 2000 colour difference, reference vs test, per observer", "1"),
+        ("metamerism_index", index, "observer-change metamerism index, additive correction (ISO 18314-4 style)", "1"),
+        ("delta_e_white", de_white, "CIE 2000 difference between the two whites, per observer", "1"),
+        ("delta_e_2000_calibration", de_cal, "CIE 2000 difference for the calibration observer", "1"),
+        ("drive_test", test_solution["drive"], "linear drive values of the test display", "1"),
+        ("target_xyz", targets, "reference XYZ for the calibration observer (targets of the test display)", "cd m-2"),
+    ):
+        value = value.copy()
+        value.attrs = {"units": units, "long_name": long_name}
+        out[name] = value
+    test_flag = test_solution["out_of_gamut"]
+    ref_flag = ref_rendering["out_of_gamut"] if ref_kind == "display" else xr.zeros_like(test_flag, dtype=bool)
+    out["out_of_gamut_test"] = test_flag.astype(bool)
+    out["out_of_gamut_reference"] = ref_flag.astype(bool)
+    out["out_of_gamut_both"] = out["out_of_gamut_test"] & out["out_of_gamut_reference"]
+    for name in ("out_of_gamut_test", "out_of_gamut_reference", "out_of_gamut_both"):
+        out[name].attrs = {"units": "1", "long_name": name.replace("_", " ") + " (stimulus clipped)"}
+    if itp is not None:
+        out["delta_e_itp"] = itp
+        out["delta_e_itp"].attrs = {"units": "1", "long_name": "ITU-R BT.2124 difference, reference vs test, per observer"}
+    out["residual_delta_e_test"] = test_solution["residual_delta_e"]
+    if ref_kind == "display":
+        out["residual_delta_e_reference"] = ref_rendering["residual_delta_e"]
+        out["drive_reference"] = ref_rendering["drive"].rename(primary="reference_primary")
+        out["drive_reference"].attrs = {"units": "1", "long_name": "linear drive values of the reference display"}
+    out = out.merge(summarise(de, age_bands=age_bands, thresholds=thresholds, name="delta_e_2000"))
+    out.attrs = {
+        "model": "observer mismatch between a reference rendering and a test display (metasim)",
+        "reference": reference.name if ref_kind == "display" else f"objects under {stimuli.attrs.get('illuminant', 'illuminant')}",
+        "reference_kind": ref_kind,
+        "test": test.name,
+        "calibration_observer": calibration_name,
+        "white_matched": bool(match_white),
+        "adapted_white": f"{adapted_white} white as each observer sees it",
+        "drive_strategy": strategy,
+        "stimuli": stimuli.attrs.get("description", kind),
+        "stimulus_kind": kind,
+        "observer_model": str(obs.attrs.get("model", "standard observers")),
+        "observer_seed": obs.attrs.get("seed", "none"),
+        "thresholds_source": "1, 2, 3 CIE 2000 units: common practice, no source",
+        "metasim_version": __version__,
+    }
+    return out
+
+
+def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
+    """Observer functions as (observer, xyz, wavelength) float64 and the grid step."""
+    cmf = obs["cmf"].transpose("observer", "xyz", "wavelength")
+    wl = cmf.wavelength.values
+    return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
+
+
+def _display_matrices(display: Display, cmf: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
+    """Observer × primary XYZ (cd/m²) of a display: (batch, observer, 3, N) and black (batch, observer, 3)."""
+    batch = display.batch_dims
+    spectra = display.spectra.transpose(*batch, "primary", "wavelength").values
+    black = display.black.broadcast_like(display.spectra.isel(primary=0, drop=True)).transpose(*batch, "wavelength").values
+    n_w = spectra.shape[-1]
+    stack = np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
+    o = cmf.shape[0]
+    values = K_M * step * (cmf.reshape(o * 3, n_w) @ stack.reshape(-1, n_w).T)  # (O*3, B*(N+1))
+    values = values.reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)  # (B, O, 3, N+1)
+    return values[..., :-1], values[..., -1]
+
+
+def _labels(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
+    return _lab_values(xyz / white)
+
+
+def _observer_core(reference, ref_rendering, test: Display, test_solution, white_spectrum, obs, adapted_white,
+                   targets, include_itp):
+    """Every observer's XYZ, CIELAB and differences of both sides, as labelled arrays.
+
+    numpy on (design, observer, stimulus, 3) blocks: one matrix product per display for the
+    observer × primary matrices, then einsum, CIELAB and the compiled CIE 2000 kernel.
+    """
+    cmf, step = _flat_observers(obs)
+    batch = test.batch_dims
+    batch_shape = [test.spectra.sizes[d] for d in batch]
+    m_test, b_test = _display_matrices(test, cmf, step)  # (B, O, 3, N), (B, O, 3)
+    drive_test = test_solution["drive"]
+    stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
+    drive_t = drive_test.transpose(*batch, *stim, "primary").values.reshape(m_test.shape[0], -1, test.n_primaries)
+    xyz_t = np.einsum("boxp,bsp->bosx", m_test, drive_t) + b_test[:, :, None, :]
+    n_white = white_spectrum.transpose("wavelength").values
+    white_ref = K_M * step * np.einsum("oxw,w->ox", cmf, n_white)  # (O, 3)
+    if reference is not None:
+        m_ref, b_ref = _display_matrices(reference, cmf, step)
+        drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(-1, reference.n_primaries)
+        xyz_r = np.einsum("oxp,sp->osx", m_ref[0], drive_r) + b_ref[0][:, None, :]
+    else:
+        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, cmf.shape[-1])
+        xyz_r = K_M * step * np.einsum("oxw,sw->osx", cmf, spectra)
+    white_test = m_test.sum(-1) + b_test  # (B, O, 3)
+    adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
+    xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
+    lab_r = _labels(xyz_r_b, adapted[:, :, None, :])
+    lab_t = _labels(xyz_t, adapted[:, :, None, :])
+    de = delta_e_2000_array(lab_r, lab_t)
+    de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
+    # observer-change metamerism index, additive correction in XYZ (reference condition: calibration observer)
+    tgt = targets.transpose(*[d for d in batch if d in targets.dims], *stim, "xyz").values
+    rep = test_solution["reproduced"].transpose(*batch, *stim, "xyz").values.reshape(m_test.shape[0], -1, 3)
+    tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
+    corrected = xyz_t - (rep - tgt)[:, None, :, :]
+    index = delta_e_2000_array(lab_r, _labels(np.clip(corrected, 0.0, None), adapted[:, :, None, :]))
+    itp = None
+    if include_itp:
+        itp = _itp(xyz_r_b, xyz_t)
+
+    observer_coords = {k: v for k, v in obs.coords.items() if v.dims == ("observer",)}
+    stim_coords = {k: v for k, v in drive_test.coords.items() if v.dims and set(v.dims) <= set(stim)}
+    batch_coords = {k: v for k, v in test.spectra.coords.items() if v.dims and set(v.dims) <= set(batch)}
+    coords = {**batch_coords, **observer_coords, **stim_coords}
+    sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0], **{d: drive_test.sizes[d] for d in stim}}
+    pair_dims = [*batch, "observer", *stim]
+    observer_dims = [*batch, "observer"]
+
+    def wrap(values, dims, tail=None):
+        tail = tail or {}
+        shape = [sizes[d] for d in dims] + [len(v) for v in tail.values()]
+        keep = {k: v for k, v in coords.items() if set(v.dims) <= set(dims)}
+        return xr.DataArray(np.reshape(values, shape), dims=(*dims, *tail), coords={**keep, **tail})
+
+    xyz_c = {"xyz": ["X", "Y", "Z"]}
+    lab_c = {"lab": ["L*", "a*", "b*"]}
+    return (
+        wrap(xyz_r_b if batch else xyz_r, pair_dims, xyz_c),
+        wrap(xyz_t, pair_dims, xyz_c),
+        wrap(adapted, observer_dims, xyz_c),
+        wrap(lab_r, pair_dims, lab_c),
+        wrap(lab_t, pair_dims, lab_c),
+        wrap(de, pair_dims),
+        wrap(de_white, observer_dims),
+        None if itp is None else wrap(itp, pair_dims),
+        wrap(index, pair_dims),
+    )
+
+
+def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
+    from metasim.colorimetry.ictcp import _LMS_TO_ICTCP, _RGB_TO_LMS, _pq_inverse_eotf, _xyz_to_bt2020
+
+    to_lms = _RGB_TO_LMS @ _xyz_to_bt2020()
+    diff = _pq_inverse_eotf(xyz_1 @ to_lms.T) @ _LMS_TO_ICTCP.T - _pq_inverse_eotf(xyz_2 @ to_lms.T) @ _LMS_TO_ICTCP.T
+    return 720.0 * np.sqrt(diff[..., 0] ** 2 + (0.5 * diff[..., 1]) ** 2 + diff[..., 2] ** 2)
+
+
+__all__ = ["ADAPTED_WHITES", "mismatch", "resolve_observers", "resolve_calibration_observer", "reference_white_spectrum"]

@@ -1,0 +1,261 @@
+"""Stimulus sets: the colours a mismatch study reproduces on both sides.
+
+A stimulus set is an :class:`xarray.Dataset` with a ``stimulus`` dim and one of three kinds
+(attribute ``kind``):
+
+``rgb``
+    variable ``signal`` (``stimulus`` × ``primary`` = R, G, B): encoded source RGB 0..1, with
+    attributes ``source`` (``bt709``, ``srgb``, ``display_p3``, ``bt2020``) and ``encoding``
+    (a transfer-function name, or empty for the source's default).
+``xyz``
+    variable ``xyz_relative`` (``stimulus`` × ``xyz``): XYZ for the calibration observer relative to
+    the reference white, white Y = 100.
+``reflectance``
+    variable ``reflectance`` (``stimulus`` × ``wavelength``, 0..1) with attribute ``illuminant``
+    (a CIE illuminant name known to colour-science, default D65): object colours.
+"""
+
+from __future__ import annotations
+
+import csv
+import itertools
+import os
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import FileFormatError, StimulusError
+from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv, resample
+
+KINDS = ("rgb", "xyz", "reflectance")
+RGB = ("R", "G", "B")
+
+
+def rgb_set(values, labels, *, source: str = "bt709", encoding: str | None = None, description: str = "RGB signals") -> xr.Dataset:
+    """Stimuli from encoded source RGB signals (``stimulus`` × R, G, B, each 0..1)."""
+    values = np.asarray(values, dtype=float)
+    if values.ndim != 2 or values.shape[1] != 3:
+        raise StimulusError(f"RGB stimuli need 3 values (R, G, B) each, got shape {values.shape}")
+    if values.shape[0] == 0:
+        raise StimulusError("the stimulus set is empty; give at least one stimulus")
+    if not np.isfinite(values).all() or (values < 0).any() or (values > 1).any():
+        bad = values[~(np.isfinite(values) & (values >= 0) & (values <= 1))][0]
+        raise StimulusError(f"RGB signal value {bad!r} is outside the allowed range 0..1")
+    signal = xr.DataArray(values, dims=("stimulus", "primary"),
+                          coords={"stimulus": list(labels), "primary": list(RGB)},
+                          attrs={"units": "1", "long_name": f"encoded {source} RGB signal"})
+    return xr.Dataset({"signal": signal}, attrs={"kind": "rgb", "source": source, "encoding": encoding or "",
+                                                  "description": description})
+
+
+def neutral_ramp(steps: int = 11, *, source: str = "bt709", encoding: str | None = None) -> xr.Dataset:
+    """Greys from black to white in equal signal steps (``steps`` ≥ 2), white last."""
+    if not isinstance(steps, (int, np.integer)) or steps < 2:
+        raise StimulusError(f"steps={steps!r} is not allowed; a neutral ramp needs an integer >= 2")
+    levels = np.linspace(0.0, 1.0, int(steps))
+    labels = [f"grey {v:.3f}" for v in levels]
+    labels[-1] = "white"
+    return rgb_set(np.repeat(levels[:, None], 3, axis=1), labels, source=source, encoding=encoding,
+                    description=f"neutral ramp, {steps} steps")
+
+
+def primaries_and_secondaries(*, source: str = "bt709", encoding: str | None = None, level: float = 1.0) -> xr.Dataset:
+    """White, the three primaries and three secondaries of the source space at signal ``level``."""
+    if not 0 < level <= 1:
+        raise StimulusError(f"level={level!r} is not allowed; need 0 < level <= 1")
+    table = {"white": (1, 1, 1), "red": (1, 0, 0), "green": (0, 1, 0), "blue": (0, 0, 1),
+             "cyan": (0, 1, 1), "magenta": (1, 0, 1), "yellow": (1, 1, 0)}
+    return rgb_set(level * np.array(list(table.values()), dtype=float), list(table), source=source,
+                    encoding=encoding, description="white, primaries and secondaries")
+
+
+def rgb_cube_grid(per_axis: int = 5, *, source: str = "bt709", encoding: str | None = None) -> xr.Dataset:
+    """A regular grid of ``per_axis``³ signals filling the source RGB cube (corners included)."""
+    if not isinstance(per_axis, (int, np.integer)) or per_axis < 2:
+        raise StimulusError(f"per_axis={per_axis!r} is not allowed; need an integer >= 2")
+    levels = np.linspace(0.0, 1.0, int(per_axis))
+    values = np.array(list(itertools.product(levels, repeat=3)))
+    labels = [f"rgb {r:.2f} {g:.2f} {b:.2f}" for r, g, b in values]
+    return rgb_set(values, labels, source=source, encoding=encoding,
+                    description=f"RGB cube grid, {per_axis} levels per axis")
+
+
+def cie_13_3_samples(*, wavelengths=None, illuminant: str = "D65") -> xr.Dataset:
+    """The 14 CIE 13.3-1995 test colour samples (reflectances from colour-science) under ``illuminant``.
+
+    References
+    ----------
+    CIE 13.3-1995 Method of measuring and specifying colour rendering properties of light sources.
+    """
+    from colour.quality.datasets.tcs import SDS_TCS
+
+    samples = SDS_TCS["CIE 1995"]
+    grid = check_wavelengths(default_grid() if wavelengths is None else wavelengths, where="stimulus grid")
+    names = list(samples)
+    values = []
+    for name in names:
+        sd = samples[name]
+        values.append(np.interp(grid, np.asarray(sd.wavelengths, float), np.asarray(sd.values, float)))
+    return reflectance_set(np.array(values), grid, names,
+                           illuminant=illuminant, description="CIE 13.3-1995 test colour samples")
+
+
+def reflectance_set(values, wavelengths, labels, *, illuminant: str = "D65", description: str = "object colours") -> xr.Dataset:
+    """Object colours from reflectance factors (``stimulus`` × ``wavelength``, 0..1)."""
+    wl = check_wavelengths(wavelengths, where="reflectance grid")
+    values = np.asarray(values, dtype=float)
+    if values.ndim != 2 or values.shape[1] != wl.size:
+        raise StimulusError(f"reflectances need shape (stimulus, {wl.size} wavelengths), got {values.shape}")
+    if values.shape[0] == 0:
+        raise StimulusError("the stimulus set is empty; give at least one reflectance")
+    if not np.isfinite(values).all() or (values < 0).any():
+        raise StimulusError("reflectance factors must be finite and >= 0")
+    _check_illuminant(illuminant)
+    refl = xr.DataArray(values, dims=("stimulus", "wavelength"),
+                        coords={"stimulus": list(labels), "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
+                        attrs={"units": "1", "long_name": "spectral reflectance factor"})
+    return xr.Dataset({"reflectance": refl}, attrs={"kind": "reflectance", "illuminant": illuminant,
+                                                     "description": description})
+
+
+def xyz_set(values, labels, *, description: str = "XYZ targets") -> xr.Dataset:
+    """Targets as XYZ for the calibration observer, relative to the reference white (white Y = 100)."""
+    values = np.asarray(values, dtype=float)
+    if values.ndim != 2 or values.shape[1] != 3:
+        raise StimulusError(f"XYZ stimuli need 3 values each, got shape {values.shape}")
+    if values.shape[0] == 0:
+        raise StimulusError("the stimulus set is empty; give at least one stimulus")
+    if not np.isfinite(values).all() or (values < 0).any():
+        raise StimulusError("XYZ stimuli must be finite and >= 0 (white Y = 100)")
+    xyz = xr.DataArray(values, dims=("stimulus", "xyz"), coords={"stimulus": list(labels), "xyz": ["X", "Y", "Z"]},
+                       attrs={"units": "1 (reference white Y = 100)", "long_name": "target tristimulus values"})
+    return xr.Dataset({"xyz_relative": xyz}, attrs={"kind": "xyz", "description": description})
+
+
+def _check_illuminant(name: str) -> None:
+    import colour
+
+    if name not in colour.SDS_ILLUMINANTS:
+        raise StimulusError(f"illuminant {name!r} is not known; use a CIE illuminant name such as D65, D50, A, F2")
+
+
+def illuminant_spectrum(name: str, wavelengths) -> xr.DataArray:
+    """A CIE illuminant's relative spectral power distribution on a grid (colour-science tables)."""
+    import colour
+
+    _check_illuminant(name)
+    sd = colour.SDS_ILLUMINANTS[name]
+    grid = check_wavelengths(wavelengths, where="illuminant grid")
+    values = np.interp(grid, np.asarray(sd.wavelengths, float), np.asarray(sd.values, float), left=0.0, right=0.0)
+    return xr.DataArray(values, dims=("wavelength",), coords={"wavelength": ("wavelength", grid, dict(WAVELENGTH_ATTRS))},
+                        attrs={"units": "1", "long_name": f"CIE illuminant {name} (relative)"}, name=name)
+
+
+def check_stimuli(stimuli: xr.Dataset) -> str:
+    """Validate a stimulus set and return its kind."""
+    if not isinstance(stimuli, xr.Dataset) or stimuli.attrs.get("kind") not in KINDS:
+        raise StimulusError(
+            "stimuli must be a stimulus-set Dataset (kind rgb, xyz or reflectance); build one with "
+            "metasim.metamerism.stimuli (neutral_ramp, primaries_and_secondaries, rgb_cube_grid, "
+            "cie_13_3_samples, read_stimuli_csv)"
+        )
+    kind = stimuli.attrs["kind"]
+    variable = {"rgb": "signal", "xyz": "xyz_relative", "reflectance": "reflectance"}[kind]
+    if variable not in stimuli or "stimulus" not in stimuli[variable].dims:
+        raise StimulusError(f"a '{kind}' stimulus set needs a '{variable}' variable with a 'stimulus' dim")
+    if stimuli.sizes.get("stimulus", 0) == 0:
+        raise StimulusError("the stimulus set is empty; give at least one stimulus")
+    return kind
+
+
+def combine(*sets: xr.Dataset) -> xr.Dataset:
+    """Concatenate stimulus sets of the same kind (and source/illuminant) along ``stimulus``."""
+    if not sets:
+        raise StimulusError("combine needs at least one stimulus set")
+    kinds = {check_stimuli(s) for s in sets}
+    if len(kinds) != 1:
+        raise StimulusError(f"cannot combine stimulus sets of kinds {sorted(kinds)}; combine sets of one kind")
+    keys = ("source", "encoding", "illuminant")
+    first = {k: sets[0].attrs.get(k) for k in keys}
+    for s in sets[1:]:
+        other = {k: s.attrs.get(k) for k in keys}
+        if other != first:
+            raise StimulusError(f"stimulus sets differ in {first} vs {other}; combine sets with the same settings")
+    out = xr.concat(sets, dim="stimulus", combine_attrs="override")
+    out.attrs["description"] = " + ".join(s.attrs.get("description", "") for s in sets)
+    return out
+
+
+def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709", encoding: str | None = None,
+                     illuminant: str = "D65", wavelengths=None) -> xr.Dataset:
+    """Read a user stimulus set from CSV.
+
+    * ``kind="rgb"``: header ``name,R,G,B``, one stimulus per row, signals 0..1.
+    * ``kind="xyz"``: header ``name,X,Y,Z``, relative to the reference white (white Y = 100).
+    * ``kind="reflectance"``: the spectral layout of :func:`metasim.spectra.read_spectra_csv`
+      (``wavelength_nm,<sample>,...``), one column per stimulus, resampled onto ``wavelengths``.
+    """
+    if kind not in KINDS:
+        raise StimulusError(f"kind={kind!r} is not known; allowed: {', '.join(KINDS)}")
+    path = Path(path)
+    if kind == "reflectance":
+        spectra = read_spectra_csv(path, units="1", long_name="spectral reflectance factor")
+        spectra = resample(spectra, default_grid() if wavelengths is None else wavelengths)
+        return reflectance_set(spectra.values, spectra.wavelength.values, list(spectra.channel.values),
+                               illuminant=illuminant, description=f"reflectances from {path.name}")
+    expected = ["R", "G", "B"] if kind == "rgb" else ["X", "Y", "Z"]
+    if not path.is_file():
+        raise FileFormatError(f"{path}: no such file")
+    labels, rows = [], []
+    with path.open(newline="", encoding="utf-8-sig") as handle:
+        header = None
+        for line_no, record in enumerate(csv.reader(handle), start=1):
+            if not record or record[0].strip().startswith("#") or all(not c.strip() for c in record):
+                continue
+            if header is None:
+                header = [c.strip() for c in record]
+                if [h.upper() for h in header[1:]] != expected or len(header) != 4:
+                    raise FileFormatError(f"{path}:{line_no}: header {header} must be name,{','.join(expected)}")
+                continue
+            if len(record) != 4:
+                raise FileFormatError(f"{path}:{line_no}: {len(record)} cells; expected 4 (name,{','.join(expected)})")
+            try:
+                rows.append([float(c) for c in record[1:]])
+            except ValueError:
+                bad = next(c for c in record[1:] if not _is_number(c))
+                raise FileFormatError(f"{path}:{line_no}: cell {bad.strip()!r} is not a number") from None
+            labels.append(record[0].strip())
+    if header is None:
+        raise FileFormatError(f"{path}: file is empty; expected a header name,{','.join(expected)} and rows")
+    if not rows:
+        raise StimulusError(f"{path}: header but no stimuli; the stimulus set is empty")
+    if len(set(labels)) != len(labels):
+        raise FileFormatError(f"{path}: stimulus names repeat; each row needs a unique name")
+    if kind == "rgb":
+        return rgb_set(np.array(rows), labels, source=source, encoding=encoding, description=f"RGB from {path.name}")
+    return xyz_set(np.array(rows), labels, description=f"XYZ from {path.name}")
+
+
+def _is_number(text: str) -> bool:
+    try:
+        float(text)
+    except ValueError:
+        return False
+    return True
+
+
+__all__ = [
+    "KINDS",
+    "rgb_set",
+    "neutral_ramp",
+    "primaries_and_secondaries",
+    "rgb_cube_grid",
+    "cie_13_3_samples",
+    "reflectance_set",
+    "xyz_set",
+    "illuminant_spectrum",
+    "check_stimuli",
+    "combine",
+    "read_stimuli_csv",
+]

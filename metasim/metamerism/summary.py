@@ -1,0 +1,148 @@
+"""Summary statistics of mismatch results: per stimulus, per observer, by age band, shares beyond.
+
+Statistics over observers use the observers' ``weight`` coordinate when there is one (observer
+categories carry the share of the population each represents), otherwise equal weights.
+Weighted percentiles interpolate the weighted empirical distribution at the midpoints of each
+sample's weight (for equal weights this is the "hazen" plotting position); the unweighted case uses
+numpy's default linear method, so plain populations give the usual numpy numbers.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import MetasimError
+
+STATISTICS = ("mean", "median", "p95", "max")
+#: Common-practice thresholds of visibility for CIE 2000 differences (no source): 1 is about one
+#: just-noticeable difference, 2 noticeable side by side, 3 obvious.
+THRESHOLDS = (1.0, 2.0, 3.0)
+#: Default age bands in years: [20, 30), [30, 40), ..., [70, 80].
+AGE_BANDS = (20, 30, 40, 50, 60, 70, 80)
+
+
+def weighted_quantile(values: np.ndarray, weights: np.ndarray | None, q: float, axis: int) -> np.ndarray:
+    """Quantile ``q`` (0..1) along ``axis``; NaN entries are ignored."""
+    if weights is None:
+        if np.isnan(values).any():
+            return np.nanquantile(values, q, axis=axis)
+        return np.quantile(values, q, axis=axis)
+    moved = np.moveaxis(values, axis, -1)
+    w = np.broadcast_to(weights, moved.shape).astype(float)
+    w = np.where(np.isnan(moved), 0.0, w)
+    order = np.argsort(np.where(np.isnan(moved), np.inf, moved), axis=-1)
+    v = np.take_along_axis(moved, order, -1)
+    ws = np.take_along_axis(w, order, -1)
+    total = ws.sum(-1, keepdims=True)
+    position = (np.cumsum(ws, -1) - 0.5 * ws) / np.where(total > 0, total, 1.0)
+    flat_v = v.reshape(-1, v.shape[-1])
+    flat_p = position.reshape(-1, v.shape[-1])
+    flat_w = ws.reshape(-1, v.shape[-1])
+    out = np.empty(flat_v.shape[0])
+    for i in range(flat_v.shape[0]):  # one interpolation per summary cell; cells are few
+        keep = flat_w[i] > 0
+        out[i] = np.interp(q, flat_p[i][keep], flat_v[i][keep]) if keep.any() else np.nan
+    return out.reshape(v.shape[:-1])
+
+
+def _stats(values: np.ndarray, weights: np.ndarray | None, axis: int) -> np.ndarray:
+    if weights is None:
+        mean = np.nanmean(values, axis=axis) if np.isnan(values).any() else np.mean(values, axis=axis)
+    else:
+        moved = np.moveaxis(values, axis, -1)
+        w = np.where(np.isnan(moved), 0.0, np.broadcast_to(weights, moved.shape))
+        mean = np.nansum(moved * w, -1) / np.where(w.sum(-1) > 0, w.sum(-1), np.nan)
+    return np.stack([
+        mean,
+        weighted_quantile(values, weights, 0.5, axis),
+        weighted_quantile(values, weights, 0.95, axis),
+        np.nanmax(values, axis=axis),
+    ])
+
+
+def _statistic_array(values, dims, coords, long_name):
+    return xr.DataArray(values, dims=("statistic", *dims), coords={"statistic": list(STATISTICS), **coords},
+                        attrs={"units": "1", "long_name": long_name})
+
+
+def observer_weights(delta_e: xr.DataArray) -> np.ndarray | None:
+    if "weight" in delta_e.coords:
+        w = np.asarray(delta_e.coords["weight"].values, dtype=float)
+        if (w < 0).any() or not np.isfinite(w).all() or w.sum() <= 0:
+            raise MetasimError("observer weights must be finite, >= 0 and not all zero")
+        return w
+    return None
+
+
+def _band_label(lo: float, hi: float, last: bool) -> str:
+    """'20-29' for [20, 30) with whole years, '70-80' for the closed last band."""
+    if not last and float(lo).is_integer() and float(hi).is_integer():
+        return f"{lo:g}-{hi - 1:g}"
+    return f"{lo:g}-{hi:g}"
+
+
+def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOLDS, name: str = "delta_e") -> xr.Dataset:
+    """Summaries of a difference array with dims (``observer``, ``stimulus``, [other dims]).
+
+    Returns ``<name>_by_stimulus`` (statistic, stimulus, …), ``<name>_by_observer`` (statistic,
+    observer, …), ``<name>_by_age`` (statistic, age_band, …; needs an ``age_years`` coordinate),
+    ``share_beyond`` (threshold, stimulus, …: share of observers above each threshold) and
+    ``share_beyond_overall`` (threshold, …: share of observer × stimulus pairs above it).
+    """
+    for dim in ("observer", "stimulus"):
+        if dim not in delta_e.dims:
+            raise MetasimError(f"summaries need an '{dim}' dim, got {tuple(delta_e.dims)}")
+    rest = [d for d in delta_e.dims if d not in ("observer", "stimulus")]
+    arr = delta_e.transpose("observer", "stimulus", *rest)
+    values = np.asarray(arr.values, dtype=float)
+    weights = observer_weights(delta_e)
+    rest_coords = {d: arr.coords[d] for d in rest if d in arr.coords}
+    out = {}
+    out[f"{name}_by_stimulus"] = _statistic_array(
+        _stats(values, weights, 0), ("stimulus", *rest), {"stimulus": arr.coords["stimulus"], **rest_coords},
+        "statistics over observers, per stimulus")
+    by_observer = _stats(np.moveaxis(values, 1, 0), None, 0)
+    out[f"{name}_by_observer"] = _statistic_array(
+        by_observer, ("observer", *rest), {"observer": arr.coords["observer"], **rest_coords},
+        "statistics over stimuli, per observer")
+    if "age_years" in arr.coords and age_bands:
+        edges = np.asarray(age_bands, dtype=float)
+        if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
+            raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
+        ages = np.asarray(arr.coords["age_years"].values, dtype=float)
+        labels, blocks, counts = [], [], []
+        for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
+            last = i == edges.size - 2
+            inside = (ages >= lo) & ((ages <= hi) if last else (ages < hi))
+            labels.append(_band_label(lo, hi, last))
+            counts.append(int(inside.sum()))
+            if not inside.any():
+                blocks.append(np.full((len(STATISTICS), *values.shape[2:]), np.nan))
+                continue
+            block = values[inside].reshape(-1, *values.shape[2:])
+            w = None if weights is None else np.repeat(weights[inside], values.shape[1])
+            blocks.append(_stats(block, w, 0))
+        out[f"{name}_by_age"] = _statistic_array(
+            np.stack(blocks, axis=1), ("age_band", *rest), {"age_band": labels, **rest_coords},
+            "statistics over all observer x stimulus pairs in each age band")
+        out["observers_per_age_band"] = xr.DataArray(counts, dims="age_band", coords={"age_band": labels},
+                                                     attrs={"units": "1", "long_name": "observers in each age band"})
+    t = np.asarray(thresholds, dtype=float)
+    w = np.ones(values.shape[0]) if weights is None else weights
+    w = w / w.sum()
+    above = values[None] > t.reshape(-1, *([1] * values.ndim))  # (threshold, observer, stimulus, ...)
+    share = np.tensordot(above.astype(float), w, axes=([1], [0]))
+    out["share_beyond"] = xr.DataArray(share, dims=("threshold", "stimulus", *rest),
+                                       coords={"threshold": t, "stimulus": arr.coords["stimulus"], **rest_coords},
+                                       attrs={"units": "1", "long_name": "share of observers beyond each threshold",
+                                              "thresholds_source": "common practice, no source"})
+    out["share_beyond_overall"] = xr.DataArray(share.mean(axis=1), dims=("threshold", *rest),
+                                               coords={"threshold": t, **rest_coords},
+                                               attrs={"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold"})
+    ds = xr.Dataset(out)
+    ds["threshold"].attrs = {"units": "1", "long_name": "CIE 2000 difference threshold"}
+    return ds
+
+
+__all__ = ["STATISTICS", "THRESHOLDS", "AGE_BANDS", "weighted_quantile", "summarise", "observer_weights"]
