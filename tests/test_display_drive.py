@@ -154,3 +154,11 @@ def test_bad_requests(four):
         solve_drive(four, rgb=xr.DataArray([[1.0, 1.0, 1.0]], dims=("stimulus", "primary")), source="adobe")
     with pytest.raises(DisplayError, match="not calibrated"):
         solve_drive(make_display(four.spectra), target)
+
+
+@pytest.mark.parametrize("transfer", ["srgb", "bt1886", "gamma", "pq", "hlg"])
+def test_display_signal_round_trip(transfer):
+    display = make_display(emitters.laser_line([460, 530, 635, 600], 1), transfer=transfer, peak_luminance=600.0)
+    drive = xr.DataArray(np.random.default_rng(1).uniform(0.01, 1.0, (20, 4)), dims=("stimulus", "primary"),
+                         coords={"primary": display.primaries})
+    np.testing.assert_allclose(display.decode(display.encode(drive)).values, drive.values, atol=1e-9)

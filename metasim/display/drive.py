@@ -312,9 +312,13 @@ def solve_drive(
         f_s = f[p_idx, s_idx]
         clipped = _clip(A[p_idx], bk[p_idx] / y_white[p_idx, None], t_abs[p_idx, s_idx] / y_white[p_idx, None],
                         white_n[p_idx], H_s, f_s)
-        reached = np.einsum("rmn,rn->rm", A[p_idx], clipped)
-        again, ok = equality_box_qp(H_s[:, None], f_s[:, None], A[p_idx], reached[:, None], lo, hi, tol=1e-7)
-        drive[p_idx, s_idx] = np.where(ok[:, 0, None], again[:, 0], clipped)
+        # among drives giving the closest colour, take the strategy's choice (same batched solver)
+        columns, position = np.unique(s_idx, return_inverse=True)
+        b_again = b[:, columns].copy()
+        b_again[p_idx, position] = np.einsum("rmn,rn->rm", A[p_idx], clipped)
+        again, ok = equality_box_qp(H[:, columns] if H.shape[1] > 1 else H, f[:, columns], A, b_again, lo, hi,
+                                    tol=1e-7)
+        drive[p_idx, s_idx] = np.where(ok[p_idx, position, None], again[p_idx, position], clipped)
 
     achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
     return _result(display, drive, achieved, t_abs, outside, white_xyz, batch, stim, target_b, primaries,
