@@ -214,10 +214,6 @@ class Display:
         return out
 
     # -- signal ↔ drive ------------------------------------------------------------------------
-    def _transfer_kwargs(self):
-        return dict(peak_luminance=1.0 if self.transfer not in ("pq", "hlg") else None,
-                    black_luminance=self.black_luminance, gamma=self.gamma)
-
     def decode(self, signal: xr.DataArray) -> xr.DataArray:
         """Linear drive values (0..1) from encoded signals (dim ``primary``) by the display's EOTF.
 
