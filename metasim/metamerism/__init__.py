@@ -7,6 +7,7 @@ and white-point offsets).
 """
 
 from metasim.metamerism.engine import ADAPTED_WHITES, mismatch, resolve_calibration_observer, resolve_observers
+from metasim.metamerism.choices import CANDIDATES, rank_calibration_observers, white_point_offsets
 from metasim.metamerism.index import observer_metamerism_index
 from metasim.metamerism import stimuli
 from metasim.metamerism.stimuli import (
@@ -28,6 +29,9 @@ __all__ = [
     "resolve_calibration_observer",
     "ADAPTED_WHITES",
     "observer_metamerism_index",
+    "rank_calibration_observers",
+    "white_point_offsets",
+    "CANDIDATES",
     "stimuli",
     "neutral_ramp",
     "primaries_and_secondaries",

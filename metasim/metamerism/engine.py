@@ -33,7 +33,7 @@ import xarray as xr
 
 from metasim._version import __version__
 from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
-from metasim.colorimetry.cielab import _lab_values
+from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.tristimulus import K_M
 from metasim.display import Display, calibrate_white, solve_drive
@@ -145,7 +145,10 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
             scale = white_y / tristimulus(illuminant, calibration).sel(xyz="Y", drop=True)
             target = tristimulus(stimuli["reflectance"] * illuminant * scale, calibration)
         solution = solve_drive(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
-    return solution["reproduced"], solution
+    # the test display aims at the source colour, or at what the reference shows where it had to clip
+    targets = xr.where(solution["out_of_gamut"], solution["reproduced"], solution["target"])
+    targets.attrs = dict(solution["target"].attrs)
+    return targets.transpose("stimulus", "xyz"), solution
 
 
 def mismatch(
@@ -227,6 +230,8 @@ def mismatch(
                                luminance=ref_white_cal.sel(xyz="Y", drop=True))
 
     targets, ref_rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
+    # what the reference shows to the calibration observer (the standard under the reference condition)
+    reference_cal = ref_rendering["reproduced"] if ref_kind == "display" else targets
     population = obs if strategy_population is None else strategy_population
     strategy_args = {}
     if strategy == "population":
@@ -237,13 +242,14 @@ def mismatch(
 
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
     core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
-                          white_spectrum, obs, adapted_white, targets, include_itp)
+                          white_spectrum, obs, adapted_white, reference_cal, include_itp)
     xyz_ref, xyz_test, adapted, lab_ref, lab_test, de, de_white, itp, index = core
     cal_white = tristimulus(white_spectrum, calibration) if adapted_white == "reference" else test.white_tristimulus(calibration)
-    de_cal = delta_e_2000(xyz_to_lab(targets, cal_white), xyz_to_lab(test_solution["reproduced"], cal_white))
+    de_cal = delta_e_2000(xyz_to_lab(reference_cal, cal_white), xyz_to_lab(test_solution["reproduced"], cal_white))
 
-    out = xr.Dataset()
-    for name, value, long_name, units in (
+    test_flag = test_solution["out_of_gamut"].astype(bool)
+    ref_flag = ref_rendering["out_of_gamut"].astype(bool) if ref_kind == "display" else xr.zeros_like(test_flag)
+    variables = [
         ("xyz_reference", xyz_ref, "tristimulus values of the reference rendering, per observer", "cd m-2"),
         ("xyz_test", xyz_test, "tristimulus values of the test rendering, per observer", "cd m-2"),
         ("lab_reference", lab_ref, "CIELAB of the reference rendering (observer's adapted white)", "1"),
@@ -255,26 +261,28 @@ def mismatch(
         ("delta_e_2000_calibration", de_cal, "CIE 2000 difference for the calibration observer", "1"),
         ("drive_test", test_solution["drive"], "linear drive values of the test display", "1"),
         ("target_xyz", targets, "reference XYZ for the calibration observer (targets of the test display)", "cd m-2"),
-    ):
-        value = value.copy()
-        value.attrs = {"units": units, "long_name": long_name}
-        out[name] = value
-    test_flag = test_solution["out_of_gamut"]
-    ref_flag = ref_rendering["out_of_gamut"] if ref_kind == "display" else xr.zeros_like(test_flag, dtype=bool)
-    out["out_of_gamut_test"] = test_flag.astype(bool)
-    out["out_of_gamut_reference"] = ref_flag.astype(bool)
-    out["out_of_gamut_both"] = out["out_of_gamut_test"] & out["out_of_gamut_reference"]
-    for name in ("out_of_gamut_test", "out_of_gamut_reference", "out_of_gamut_both"):
-        out[name].attrs = {"units": "1", "long_name": name.replace("_", " ") + " (stimulus clipped)"}
+        ("out_of_gamut_test", test_flag, "stimulus outside the test gamut (clipped)", "1"),
+        ("out_of_gamut_reference", ref_flag, "stimulus outside the reference gamut (clipped)", "1"),
+        ("out_of_gamut_both", test_flag & ref_flag, "stimulus outside both gamuts", "1"),
+        ("residual_delta_e_test", test_solution["residual_delta_e"], "CIE 2000 residual of the test display vs its target", "1"),
+    ]
     if itp is not None:
-        out["delta_e_itp"] = itp
-        out["delta_e_itp"].attrs = {"units": "1", "long_name": "ITU-R BT.2124 difference, reference vs test, per observer"}
-    out["residual_delta_e_test"] = test_solution["residual_delta_e"]
+        variables.append(("delta_e_itp", itp, "ITU-R BT.2124 difference, reference vs test, per observer", "1"))
     if ref_kind == "display":
-        out["residual_delta_e_reference"] = ref_rendering["residual_delta_e"]
-        out["drive_reference"] = ref_rendering["drive"].rename(primary="reference_primary")
-        out["drive_reference"].attrs = {"units": "1", "long_name": "linear drive values of the reference display"}
-    out = out.merge(summarise(de, age_bands=age_bands, thresholds=thresholds, name="delta_e_2000"))
+        variables.append(("residual_delta_e_reference", ref_rendering["residual_delta_e"],
+                          "CIE 2000 residual of the reference display vs the source colour", "1"))
+        variables.append(("drive_reference", ref_rendering["drive"].rename(primary="reference_primary"),
+                          "linear drive values of the reference display", "1"))
+    summaries = summarise(de, age_bands=age_bands, thresholds=thresholds, name="delta_e_2000")
+    data = {name: value.variable.copy(deep=False) for name, value, _, _ in variables}
+    for (name, _, long_name, units) in variables:
+        data[name].attrs = {"units": units, "long_name": long_name}
+    data.update({name: summaries[name].variable for name in summaries.data_vars})
+    coords = {}
+    for source in [value for _, value, _, _ in variables] + [summaries]:
+        for key, coord in source.coords.items():
+            coords.setdefault(key, coord.variable)
+    out = xr.Dataset(data, coords=coords)
     out.attrs = {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
         "reference": reference.name if ref_kind == "display" else f"objects under {stimuli.attrs.get('illuminant', 'illuminant')}",
@@ -315,7 +323,7 @@ def _display_matrices(display: Display, cmf: np.ndarray, step: float) -> tuple[n
 
 
 def _labels(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
-    return _lab_values(xyz / white)
+    return xyz_to_lab_array(xyz, white)
 
 
 def _observer_core(reference, ref_rendering, test: Display, test_solution, white_spectrum, obs, adapted_white,
@@ -332,16 +340,16 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     drive_test = test_solution["drive"]
     stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
     drive_t = drive_test.transpose(*batch, *stim, "primary").values.reshape(m_test.shape[0], -1, test.n_primaries)
-    xyz_t = np.einsum("boxp,bsp->bosx", m_test, drive_t) + b_test[:, :, None, :]
-    n_white = white_spectrum.transpose("wavelength").values
-    white_ref = K_M * step * np.einsum("oxw,w->ox", cmf, n_white)  # (O, 3)
+    xyz_t = np.swapaxes(m_test @ np.swapaxes(drive_t, -1, -2)[:, None], -1, -2) + b_test[:, :, None, :]
     if reference is not None:
         m_ref, b_ref = _display_matrices(reference, cmf, step)
+        white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
         drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(-1, reference.n_primaries)
-        xyz_r = np.einsum("oxp,sp->osx", m_ref[0], drive_r) + b_ref[0][:, None, :]
+        xyz_r = np.swapaxes(m_ref[0] @ drive_r.T, -1, -2) + b_ref[0][:, None, :]
     else:
+        white_ref = K_M * step * (cmf @ white_spectrum.transpose("wavelength").values)  # (O, 3)
         spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, cmf.shape[-1])
-        xyz_r = K_M * step * np.einsum("oxw,sw->osx", cmf, spectra)
+        xyz_r = K_M * step * np.swapaxes(cmf @ spectra.T, -1, -2)
     white_test = m_test.sum(-1) + b_test  # (B, O, 3)
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
     xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)

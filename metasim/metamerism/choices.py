@@ -1,0 +1,170 @@
+"""Decisions a display designer takes from mismatch results.
+
+* :func:`rank_calibration_observers` — which observer to calibrate the test display with so that
+  the population sees the least mismatch against the reference.
+* :func:`white_point_offsets` — for each observer category, the white-point offset (in the
+  calibration observer's chromaticity diagram) that makes the test white match the reference white
+  for that category: the trim a display would need to look right to that group of viewers.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim._version import __version__
+from metasim.colorimetry import tristimulus, xyz_to_uv, xyz_to_xy
+from metasim.display import Display, calibrate_white
+from metasim.errors import MetasimError
+from metasim.metamerism.engine import (
+    mismatch,
+    reference_white_spectrum,
+    resolve_calibration_observer,
+    resolve_observers,
+)
+from metasim.metamerism.summary import observer_weights, weighted_quantile
+
+CANDIDATES = ("cie1931_2", "cie1964_10", "cie2015_2", "cie2015_10", "population_mean")
+
+
+def rank_calibration_observers(
+    reference,
+    test: Display,
+    observers,
+    stimuli: xr.Dataset,
+    *,
+    candidates=CANDIDATES,
+    **options,
+) -> xr.Dataset:
+    """Evaluate candidate calibration observers by the population mismatch they leave.
+
+    For each candidate the test white is matched to the reference white and every stimulus is
+    matched for that candidate (:func:`metasim.mismatch`), then the population's CIE 2000
+    differences are pooled over the white and all stimuli. The score is the (weighted) mean over
+    observers and over white + stimuli; the 95th percentile and the mean white difference are
+    reported too. One :func:`mismatch` run per candidate (a handful); nothing loops over observers
+    or stimuli.
+
+    Parameters
+    ----------
+    candidates : sequence
+        Standard observer names, ``"population_mean"``, or observer Datasets.
+    options
+        Passed on to :func:`metasim.mismatch` (e.g. ``strategy``, ``adapted_white``).
+
+    Returns
+    -------
+    Dataset
+        ``mean_delta_e``, ``p95_delta_e``, ``mean_delta_e_white``, ``mean_delta_e_stimuli`` (dim
+        ``calibration_observer``) and the attribute ``best_calibration_observer``.
+    """
+    if not candidates:
+        raise MetasimError("candidates is empty; give at least one calibration observer")
+    names, mean, p95, white, stim = [], [], [], [], []
+    for candidate in candidates:
+        result = mismatch(reference, test, observers, stimuli, calibration_observer=candidate, **options)
+        de = result["delta_e_2000"]
+        if "design" in de.dims:
+            raise MetasimError("rank_calibration_observers takes a single test design; select one with .isel(design=i)")
+        pooled = np.concatenate([result["delta_e_white"].values[:, None],
+                                 de.transpose("observer", "stimulus").values], axis=1)
+        weights = observer_weights(de)
+        w = np.ones(pooled.shape[0]) if weights is None else weights
+        w = w / w.sum()
+        names.append(result.attrs["calibration_observer"])
+        mean.append(float(w @ pooled.mean(axis=1)))
+        flat_weights = None if weights is None else np.repeat(w, pooled.shape[1])
+        p95.append(float(weighted_quantile(pooled.reshape(-1), flat_weights, 0.95, 0)))
+        white.append(float(w @ result["delta_e_white"].values))
+        stim.append(float(w @ de.transpose("observer", "stimulus").values.mean(axis=1)))
+    if len(set(names)) != len(names):
+        names = [f"{n} #{i}" for i, n in enumerate(names)]
+    coords = {"calibration_observer": names}
+    out = xr.Dataset(
+        {
+            "mean_delta_e": ("calibration_observer", mean, {"units": "1", "long_name": "mean CIE 2000 difference over observers, white and stimuli"}),
+            "p95_delta_e": ("calibration_observer", p95, {"units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli"}),
+            "mean_delta_e_white": ("calibration_observer", white, {"units": "1", "long_name": "mean CIE 2000 difference of the white"}),
+            "mean_delta_e_stimuli": ("calibration_observer", stim, {"units": "1", "long_name": "mean CIE 2000 difference over the stimuli"}),
+        },
+        coords=coords,
+    )
+    out.attrs = {
+        "model": "calibration-observer ranking by population mismatch (metasim)",
+        "best_calibration_observer": names[int(np.argmin(mean))],
+        "score": "weighted mean over observers of the mean CIE 2000 difference over white + stimuli",
+        "metasim_version": __version__,
+    }
+    return out
+
+
+def white_point_offsets(
+    reference,
+    test: Display,
+    categories: xr.Dataset,
+    *,
+    calibration_observer="cie1931_2",
+    stimuli: xr.Dataset | None = None,
+) -> xr.Dataset:
+    """White-point offset, per observer category, that makes the test white match the reference white.
+
+    For each category observer c the test display's white is calibrated so that c sees it equal to
+    the reference white as c sees it (chromaticity and luminance). The offset is that white's
+    chromaticity minus the reference white's chromaticity, both in the *calibration observer's*
+    diagram — the setting a technician with a colorimeter for the calibration observer would dial in.
+
+    Parameters
+    ----------
+    reference : Display, "objects" or illuminant spectrum
+        As for :func:`metasim.mismatch` (``"objects"`` needs ``stimuli`` with reflectances).
+    test : Display
+    categories : Dataset
+        Observers with an ``observer`` dim (e.g. :func:`metasim.observer_categories`, whose
+        ``weight`` coordinate is kept).
+
+    Returns
+    -------
+    Dataset
+        ``offset_xy`` (observer × chromaticity x, y), ``offset_uv_length`` (observer: Δu'v'),
+        ``test_white_xy`` (observer × chromaticity), ``reference_white_xy`` (chromaticity).
+    """
+    if not isinstance(test, Display):
+        raise MetasimError(f"test must be a Display, got {type(test).__name__}")
+    grid = test.wavelengths
+    group = resolve_observers(categories, grid)
+    calibration, calibration_name = resolve_calibration_observer(calibration_observer, group, grid)
+    white_spectrum, _ = reference_white_spectrum(reference, stimuli, test, calibration)
+    ref_xyz_cal = tristimulus(white_spectrum, calibration)
+    seen = tristimulus(white_spectrum, group)  # (observer, xyz): the reference white as each category sees it
+    whites = []
+    for i in range(group.sizes["observer"]):  # one small calibration per category (k is small)
+        member = group.isel(observer=i)
+        target = seen.isel(observer=i, drop=True)
+        matched = calibrate_white(test, member[["cmf"]], white=xyz_to_xy(target),
+                                  luminance=float(target.sel(xyz="Y")))
+        whites.append(matched.white_tristimulus(calibration))
+    test_white = xr.concat(whites, dim="observer").assign_coords(observer=group.observer)
+    test_xy, ref_xy = xyz_to_xy(test_white), xyz_to_xy(ref_xyz_cal)
+    test_uv, ref_uv = xyz_to_uv(test_white), xyz_to_uv(ref_xyz_cal)
+    offset_xy = test_xy - ref_xy
+    offset_uv = test_uv - ref_uv
+    coords = {k: v for k, v in group.coords.items() if v.dims == ("observer",)}
+    out = xr.Dataset(
+        {
+            "offset_xy": offset_xy.assign_attrs(units="1", long_name=f"white-point offset in {calibration_name} xy"),
+            "offset_uv_length": np.hypot(offset_uv.isel(chromaticity=0, drop=True),
+                                         offset_uv.isel(chromaticity=1, drop=True)).assign_attrs(
+                units="1", long_name=f"length of the offset in {calibration_name} u'v' (delta u'v')"),
+            "test_white_xy": test_xy.assign_attrs(units="1", long_name=f"test white matched per category, in {calibration_name} xy"),
+            "reference_white_xy": ref_xy.assign_attrs(units="1", long_name=f"reference white in {calibration_name} xy"),
+        }
+    ).assign_coords(coords)
+    out.attrs = {
+        "model": "white-point offsets per observer category (metasim)",
+        "calibration_observer": calibration_name,
+        "metasim_version": __version__,
+    }
+    return out
+
+
+__all__ = ["CANDIDATES", "rank_calibration_observers", "white_point_offsets"]
