@@ -26,6 +26,7 @@ _ENTRY_POINTS = {
     "cie2006_observer": "metasim.observers.physiological",
     "observer_population": "metasim.observers.population",
     "observer_categories": "metasim.observers.categories",
+    "physiological_observers": "metasim.observers.physiological",
     # colorimetry
     "tristimulus": "metasim.colorimetry",
     "cone_excitations": "metasim.colorimetry",
@@ -34,17 +35,24 @@ _ENTRY_POINTS = {
     "xyz_to_lab": "metasim.colorimetry",
     "delta_e_2000": "metasim.colorimetry",
     "delta_e_itp": "metasim.colorimetry",
+    "xyz_to_ictcp": "metasim.colorimetry",
+    "xy_to_xyz": "metasim.colorimetry",
     # display
     "Display": "metasim.display",
     "make_display": "metasim.display",
     "calibrate_white": "metasim.display",
     "solve_drive": "metasim.display",
+    "stack_designs": "metasim.display",
     # metamerism
     "mismatch": "metasim.metamerism",
+    "rank_calibration_observers": "metasim.metamerism",
+    "white_point_offsets": "metasim.metamerism",
     # gamut
     "chromaticity_gamut": "metasim.gamut",
     "gamut_coverage": "metasim.gamut",
     "lab_gamut_volume": "metasim.gamut",
+    "lab_coverage_volume": "metasim.gamut",
+    "extra_primary_gain": "metasim.gamut",
     # files
     "save_dataset": "metasim.io",
     "load_dataset": "metasim.io",

@@ -36,3 +36,8 @@ def test_load_errors(tmp_path):
     bad.write_text("not netcdf")
     with pytest.raises(FileFormatError, match="not a readable netCDF4 file"):
         load_dataset(bad)
+
+
+def test_every_top_level_entry_point_resolves():
+    for name in metasim.__all__:
+        assert getattr(metasim, name) is not None, name
