@@ -79,7 +79,22 @@ def standard_observer(name: str, wavelengths=None) -> xr.Dataset:
     """
     if name not in _TABLES:
         raise ObserverError(f"unknown standard observer {name!r}; allowed: {', '.join(STANDARD_OBSERVERS)}")
-    wl = check_wavelengths(default_grid() if wavelengths is None else wavelengths, where="observer grid")
+    if wavelengths is None:
+        return _observer_dataset(name, None).copy(deep=True)
+    wl = check_wavelengths(wavelengths, where="observer grid")
+    return _observer_dataset(name, wl.tobytes()).copy(deep=True)
+
+
+@lru_cache(maxsize=32)
+def _observer_dataset(name: str, grid: bytes | None) -> xr.Dataset:
+    """The observer Dataset for a grid (float64 bytes; None for the default grid), built once.
+
+    Callers get a deep copy, so the cached Dataset is never handed out.
+    """
+    if grid is None:
+        wl = check_wavelengths(default_grid(), where="observer grid")
+    else:
+        wl = np.frombuffer(grid, dtype=float).copy()
     xyz_table, lms_table, field, source = _TABLES[name]
     coords = {"wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS)), "xyz": list(XYZ)}
     data = {
