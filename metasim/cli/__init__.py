@@ -1,0 +1,295 @@
+"""The ``metasim`` command: parse the options, call the library layers, print what was written.
+
+Subcommands::
+
+    metasim demo       run the embedded demo study (data/demo/) end to end
+    metasim observers  build a seeded observer population (or its categories) to netCDF
+    metasim evaluate   one display design: gamut, extra-primary gain and mismatch against a reference
+    metasim compare    two display designs side by side against one reference (or the second
+                       against the first)
+    metasim report     an HTML report (figures embedded) from any metasim result file
+
+(A batch-sweep subcommand is planned; it will sit beside these as one more entry in COMMANDS.)
+
+Displays are described in TOML design spec files: see :mod:`metasim.cli.specs` for the format.
+Studies are assembled by :mod:`metasim.cli.study`; nothing in this package models anything.
+
+Errors from bad input (unknown options, missing or malformed files, bad specs, values outside what
+a model allows) end the command with one line ``metasim: error: ...`` on stderr and exit code 2
+(usage) or 1 (everything else); never a traceback.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+import warnings
+from pathlib import Path
+
+from metasim._version import __version__
+from metasim.errors import MetasimError
+
+PROG = "metasim"
+CALIBRATION_OBSERVERS = ("cie1931_2", "cie1964_10", "cie2015_2", "cie2015_10", "population_mean")
+STRATEGIES = ("min_norm", "max_efficiency", "population")
+SOURCES = ("bt709", "srgb", "display_p3", "bt2020")
+
+
+def _error(text: str) -> None:
+    print(f"{PROG}: error: {' '.join(str(text).split())}", file=sys.stderr)
+
+
+def _warning(message, category, filename, lineno, file=None, line=None) -> None:
+    print(f"{PROG}: warning: {' '.join(str(message).split())}", file=sys.stderr)
+
+
+# -- subcommands -------------------------------------------------------------------------------------
+
+def cmd_demo(args) -> int:
+    from metasim.cli.demo import run_demo
+
+    paths = run_demo(args.out, size=args.size, seed=args.seed, quiet=args.quiet)
+    _print_headline(paths["result"])
+    print(f"result:  {paths['result_path']}")
+    print(f"report:  {paths['report_path']}")
+    print(f"figures: {paths['figures_dir']}")
+    return 0
+
+
+def cmd_observers(args) -> int:
+    from metasim.cli.study import build_population
+    from metasim.io import save_dataset
+
+    out = Path(args.out)
+    if out.suffix != ".nc":
+        raise MetasimError(f"--out {out}: give a netCDF file name ending in .nc")
+    population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories)
+    save_dataset(population, out)
+    what = f"{args.categories} categories of {args.size} observers" if args.categories else f"{args.size} observers"
+    print(f"wrote {out}: {what}, ages {args.ages}, field size {args.field_size} deg, seed {args.seed}")
+    if args.report:
+        from metasim.report import write_report
+
+        print(f"report: {write_report(population, args.report, source=out.name)}")
+    return 0
+
+
+def _observers(args):
+    from metasim.cli.study import build_population
+    from metasim.io import load_dataset
+
+    if args.observers:
+        population = load_dataset(args.observers)
+        if not hasattr(population, "data_vars") or "cmf" not in population or "observer" not in population.dims:
+            raise MetasimError(f"{args.observers}: not an observer file (need 'cmf' with an 'observer' dim); "
+                               f"make one with '{PROG} observers'")
+        return population
+    return build_population(args.size, args.seed, args.ages, args.field_size)
+
+
+def _reference(args, specs: dict):
+    from metasim.cli.specs import load_display
+
+    if args.reference in (None, "objects"):
+        return "objects"
+    display, spec = load_display(args.reference)
+    specs[display.name] = spec
+    return display
+
+
+def _study(args, designs: list, reference, specs: dict) -> int:
+    from metasim.cli.study import Progress, build_stimuli, run_study
+    from metasim.io import save_dataset
+    from metasim.report import write_report
+
+    stimuli_text = args.stimuli or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+    if reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
+        raise MetasimError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
+                           "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
+    observers = _observers(args)
+    bands = None
+    if args.age_bands:
+        try:
+            bands = [float(v) for v in args.age_bands.split(",")]
+        except ValueError:
+            raise MetasimError(f"--age-bands {args.age_bands!r}: give ascending ages in years, e.g. 20,40,60,80") from None
+    steps = len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
+    progress = Progress(steps, quiet=args.quiet)
+    result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
+                       strategy=args.strategy, age_bands=bands, specs=specs, progress=progress,
+                       extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
+                       rank_calibration=args.choices, white_categories=6 if args.choices else 0, seed=args.seed)
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    result_path = save_dataset(result, out / "study.nc")
+    progress.step(f"wrote {result_path}")
+    _print_headline(result)
+    print(f"result:  {result_path}")
+    if not args.no_report:
+        report = write_report(result, out / "report.html", figures_dir=out / "figures", source=result_path.name)
+        print(f"report:  {report}")
+        print(f"figures: {out / 'figures'}")
+    return 0
+
+
+def cmd_evaluate(args) -> int:
+    from metasim.cli.specs import load_display
+
+    specs = {}
+    design, spec = load_display(args.design)
+    specs[design.name] = spec
+    return _study(args, [design], _reference(args, specs), specs)
+
+
+def cmd_compare(args) -> int:
+    from metasim.cli.specs import load_display
+
+    specs = {}
+    first, first_spec = load_display(args.first)
+    second, second_spec = load_display(args.second)
+    specs[first.name], specs[second.name] = first_spec, second_spec
+    if args.reference is None:  # the second judged against the first
+        return _study(args, [second], first, specs)
+    return _study(args, [first, second], _reference(args, specs), specs)
+
+
+def cmd_report(args) -> int:
+    from metasim.io import load_dataset
+    from metasim.report import write_report
+
+    data = load_dataset(args.result)
+    if not hasattr(data, "data_vars"):
+        raise MetasimError(f"{args.result}: holds a single array, not a metasim result Dataset")
+    out = Path(args.out) if args.out else Path(args.result).with_suffix(".html")
+    print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name)}")
+    return 0
+
+
+def _print_headline(result) -> None:
+    if "delta_e_2000_overall" not in result:
+        return
+    for name in result["design"].values:
+        stats = result["delta_e_2000_overall"].sel(design=name)
+        share = result["share_beyond_overall"].sel(design=name, threshold=2.0)
+        print(f"{name}: 95th percentile {float(stats.sel(statistic='p95')):.2f}, median "
+              f"{float(stats.sel(statistic='median')):.2f} CIE 2000 units; "
+              f"{100 * float(share):.0f} % of observer x stimulus pairs beyond 2")
+
+
+# -- parser ------------------------------------------------------------------------------------------
+
+EXAMPLES = {
+    "demo": "example:\n  metasim demo --out metasim-demo\n  metasim demo --out quick-demo --size 200 --seed 5",
+    "observers": ("examples:\n  metasim observers --out audience.nc --size 1000 --ages 20-70 --seed 7\n"
+                  "  metasim observers --out groups.nc --size 2000 --ages 20-80 --categories 8 --report groups.html"),
+    "evaluate": ("examples:\n  metasim evaluate data/demo/projector_four_laser.toml --reference data/demo/grading_monitor.toml "
+                 "--out study-a\n  metasim evaluate my_oled.toml --observers audience.nc --stimuli cie13.3 --out oled-vs-objects"),
+    "compare": ("examples:\n  metasim compare data/demo/projector_four_laser.toml data/demo/projector_laser_phosphor.toml "
+                "--reference data/demo/grading_monitor.toml --out a-vs-b\n"
+                "  metasim compare old_monitor.toml new_monitor.toml --size 300 --out upgrade   # second against first"),
+    "report": "examples:\n  metasim report a-vs-b/study.nc --out a-vs-b.html\n  metasim report audience.nc",
+}
+
+
+def _population_options(parser, observers_file: bool = True) -> None:
+    group = parser.add_argument_group("observers")
+    if observers_file:
+        group.add_argument("--observers", metavar="FILE.nc", help="observer file from 'metasim observers' "
+                           "(default: draw a population with the options below)")
+    group.add_argument("--size", type=int, default=1000, help="number of observers (default 1000)")
+    group.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
+    group.add_argument("--ages", default="20-70", help="age in years, N or LO-HI uniform (default 20-70)")
+    group.add_argument("--field-size", default="2", help="field size in degrees, N or LO-HI (default 2)")
+
+
+def _study_options(parser) -> None:
+    parser.add_argument("--out", default="metasim-study", help="output folder (default metasim-study)")
+    _population_options(parser)
+    group = parser.add_argument_group("stimuli and matching")
+    group.add_argument("--stimuli", help="comma list of ramp[:N], primaries, cube[:N], cie13.3 or CSV files "
+                       "(default ramp:6,primaries,cube:3; cie13.3 for --reference objects)")
+    group.add_argument("--csv-kind", choices=("rgb", "xyz", "reflectance"), default="rgb",
+                       help="what stimulus CSV files hold (default rgb)")
+    group.add_argument("--source", choices=SOURCES, default="bt709", help="colour space of RGB stimuli (default bt709)")
+    group.add_argument("--calibration-observer", choices=CALIBRATION_OBSERVERS, default="cie1931_2",
+                       help="observer both sides are matched for (default cie1931_2)")
+    group.add_argument("--strategy", choices=STRATEGIES, default="min_norm",
+                       help="drive strategy for more than 3 primaries (default min_norm)")
+    group.add_argument("--age-bands", help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
+    group.add_argument("--no-choices", dest="choices", action="store_false",
+                       help="skip the calibration-observer ranking and white-point offsets")
+    group.add_argument("--no-report", action="store_true", help="write the result file only")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog=PROG, formatter_class=argparse.RawDescriptionHelpFormatter,
+        description="Spectral simulation of observer-dependent metamerism for display design.",
+        epilog="start with:\n  metasim demo --out metasim-demo\nthen 'metasim <command> --help' for each command.")
+    parser.add_argument("--version", action="version", version=f"{PROG} {__version__}")
+    parser.add_argument("--quiet", action="store_true", help="no progress lines on stderr")
+    sub = parser.add_subparsers(dest="command", metavar="command", required=True)
+
+    def add(name, help_text, run):
+        p = sub.add_parser(name, help=help_text, description=help_text, epilog=EXAMPLES[name],
+                           formatter_class=argparse.RawDescriptionHelpFormatter)
+        p.add_argument("--quiet", action="store_true", default=argparse.SUPPRESS, help="no progress lines on stderr")
+        p.set_defaults(run=run)
+        return p
+
+    p = add("demo", "run the embedded demo study end to end (figures, result file, HTML report)", cmd_demo)
+    p.add_argument("--out", default="metasim-demo", help="output folder (default metasim-demo)")
+    p.add_argument("--size", type=int, default=1000, help="audience size (default 1000)")
+    p.add_argument("--seed", type=int, default=2024, help="random seed of the audience (default 2024)")
+
+    p = add("observers", "build a seeded observer population (or its categories) to a netCDF file", cmd_observers)
+    p.add_argument("--out", required=True, help="netCDF file to write (.nc)")
+    _population_options(p, observers_file=False)
+    p.add_argument("--categories", type=int, metavar="K", help="write K representative observer categories instead")
+    p.add_argument("--report", metavar="FILE.html", help="also write an HTML report of the observers")
+
+    p = add("evaluate", "evaluate one display design: gamut, extra-primary gain, mismatch against a reference",
+            cmd_evaluate)
+    p.add_argument("design", help="design spec (TOML)")
+    p.add_argument("--reference", help="reference display spec (TOML), or 'objects' for the stimuli as real "
+                   "surfaces under their illuminant (default objects)")
+    _study_options(p)
+
+    p = add("compare", "compare two display designs: both against --reference, or the second against the first",
+            cmd_compare)
+    p.add_argument("first", help="first design spec (TOML); the reference when --reference is not given")
+    p.add_argument("second", help="second design spec (TOML)")
+    p.add_argument("--reference", help="reference display spec (TOML) or 'objects'")
+    _study_options(p)
+
+    p = add("report", "write an HTML report (figures embedded) from a metasim result file", cmd_report)
+    p.add_argument("result", help="result file (.nc): a study, a mismatch result or an observer file")
+    p.add_argument("--out", help="HTML file to write (default: the result name with .html)")
+    p.add_argument("--figures", metavar="DIR", help="also write each figure as a PNG file into DIR")
+    return parser
+
+
+def main(argv=None) -> int:
+    """Entry point of the ``metasim`` console script; returns the exit code."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    args.quiet = bool(getattr(args, "quiet", False))
+    warnings.showwarning = _warning
+    warnings.filterwarnings("ignore", module="colour")
+    warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
+    try:
+        return int(args.run(args) or 0)
+    except MetasimError as exc:
+        _error(exc)
+    except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:
+        _error(f"{exc.filename or ''}: {exc.strerror or exc}")
+    except OSError as exc:
+        _error(f"{getattr(exc, 'filename', '') or ''} {exc}")
+    except KeyboardInterrupt:
+        _error("interrupted")
+        return 130
+    return 1
+
+
+__all__ = ["main", "build_parser"]

@@ -1,0 +1,266 @@
+"""Display design specs: a small TOML file that describes one display, turned into a calibrated Display.
+
+Format (TOML, read with Python's ``tomllib``; every key but ``[[primary]]`` is optional)::
+
+    name = "Screening-room projector, candidate A"   # label used in tables and figures
+    description = "free text, kept in the result file"
+    transfer = "bt1886"          # srgb | gamma | linear | bt1886 | pq | hlg      (default bt1886)
+    gamma = 2.4                  # exponent, only for transfer = "gamma"          (default 2.2)
+    peak_luminance = 100         # white luminance after calibration, cd/m2      (default per transfer)
+    black_luminance = 0.0        # L_B of the BT.1886 / HLG curves, cd/m2         (default 0)
+    white = "D65"                # D65 | D50 | DCI | E, or [x, y] in CIE 1931 xy (default D65)
+    calibration_observer = "cie1931_2"   # observer the white is set for: cie1931_2 | cie1964_10 |
+                                         # cie2015_2 | cie2015_10               (default cie1931_2)
+    extra_primary_base = ["R", "G", "B"] # primaries the extra-primary gain starts from
+                                         # (default: all of them, i.e. "what would one more add")
+
+    [backlight]                  # only for primaries of type "filter"
+    type = "phosphor_white_led"  # or "measured" with file = "...", column = "..."
+    pump_peak_nm = 450           # any keyword of metasim.emitters.phosphor_white_led
+
+    [[primary]]                  # one table per primary, at least 3, in any order
+    label = "G"                  # unique label
+    type = "laser"               # see PRIMARY_TYPES below
+    peak_nm = 532
+    linewidth_nm = 1.0
+    radiance = 1.0               # relative power before calibration (optional; matters for N > 3)
+
+Primary types and their keys (each maps to one :mod:`metasim.emitters` function):
+
+==============  ===============================================================================
+``laser``        ``peak_nm``, ``linewidth_nm`` (FWHM, default 0.1), ``profile`` (gaussian|lorentzian)
+``gaussian``     ``peak_nm``, ``fwhm_nm``
+``led``          ``peak_nm``, ``half_spectral_width_nm``, ``long_side_half_spectral_width_nm``
+``quantum_dot``  ``peak_nm``, ``fwhm_nm``
+``filter``       the ``[backlight]`` × a band-pass filter: ``centre_nm``, ``width_nm``, ``edge_nm``,
+                 ``peak_transmittance``, ``floor_transmittance``
+``measured``     ``file`` (CSV with a ``wavelength_nm`` column; a path relative to the spec file),
+                 ``column`` (default: the label)
+==============  ===============================================================================
+
+Every primary also takes ``radiance``. Spectra are built on the default grid (390-830 nm, 1 nm).
+The display is then white-calibrated (:func:`metasim.display.calibrate_white`) to ``white`` and
+``peak_luminance`` for ``calibration_observer``.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+from metasim import emitters
+from metasim.display import WHITE_POINTS, Display, calibrate_white, make_display
+from metasim.display.transfer import DEFAULT_PEAK_LUMINANCE, TRANSFER_FUNCTIONS
+from metasim.errors import MetasimError
+from metasim.observers import STANDARD_OBSERVERS
+from metasim.spectra import default_grid
+
+
+class SpecError(MetasimError, ValueError):
+    """A display design spec cannot be read or names something metasim does not know."""
+
+
+TOP_KEYS = ("name", "description", "transfer", "gamma", "peak_luminance", "black_luminance", "white",
+            "calibration_observer", "extra_primary_base", "backlight", "primary")
+PRIMARY_TYPES = {
+    "laser": ("peak_nm", "linewidth_nm", "profile"),
+    "gaussian": ("peak_nm", "fwhm_nm"),
+    "led": ("peak_nm", "half_spectral_width_nm", "long_side_half_spectral_width_nm"),
+    "quantum_dot": ("peak_nm", "fwhm_nm"),
+    "filter": ("centre_nm", "width_nm", "edge_nm", "peak_transmittance", "floor_transmittance"),
+    "measured": ("file", "column"),
+}
+REQUIRED = {"laser": ("peak_nm",), "gaussian": ("peak_nm", "fwhm_nm"),
+            "led": ("peak_nm", "half_spectral_width_nm"), "quantum_dot": ("peak_nm", "fwhm_nm"),
+            "filter": ("centre_nm", "width_nm"), "measured": ("file",)}
+BACKLIGHT_KEYS = ("pump_peak_nm", "pump_half_spectral_width_nm", "phosphor_peak_nm", "phosphor_fwhm_nm",
+                  "phosphor_to_pump")
+COMMON_KEYS = ("label", "type", "radiance")
+
+
+def read_spec(path) -> dict:
+    """The parsed TOML of a spec file, with ``_path`` (the file) and ``_text`` (its text) added."""
+    path = Path(path)
+    if not path.is_file():
+        raise SpecError(f"{path}: no such design spec file")
+    text = path.read_text(encoding="utf-8")
+    try:
+        spec = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError(f"{path}: not valid TOML ({exc})") from None
+    spec["_path"], spec["_text"] = path, text
+    return spec
+
+
+def _unknown(where: str, table: dict, allowed) -> None:
+    extra = [k for k in table if k not in allowed and not k.startswith("_")]
+    if extra:
+        raise SpecError(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
+
+
+def _number(where: str, key: str, value, *, positive: bool = True) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise SpecError(f"{where}: {key} = {value!r} is not a number")
+    if positive and value <= 0:
+        raise SpecError(f"{where}: {key} = {value!r} is not allowed; need a number > 0")
+    return float(value)
+
+
+def _backlight(spec: dict, where: str, grid):
+    table = spec.get("backlight")
+    if not isinstance(table, dict):
+        raise SpecError(f"{where}: primaries of type 'filter' need a [backlight] table")
+    kind = table.get("type", "phosphor_white_led")
+    if kind == "phosphor_white_led":
+        _unknown(f"{where} [backlight]", table, ("type", *BACKLIGHT_KEYS))
+        params = {k: _number(f"{where} [backlight]", k, v) for k, v in table.items() if k != "type"}
+        return emitters.phosphor_white_led(grid, **params)
+    if kind == "measured":
+        _unknown(f"{where} [backlight]", table, ("type", "file", "column"))
+        spectra = _measured(spec, f"{where} [backlight]", table, grid)
+        column = table.get("column", str(spectra.primary.values[0]))
+        return _column(spectra, column, f"{where} [backlight]")
+    raise SpecError(f"{where} [backlight]: type {kind!r} is not known; allowed: phosphor_white_led, measured")
+
+
+def _measured(spec: dict, where: str, table: dict, grid):
+    file = table.get("file")
+    if not isinstance(file, str) or not file:
+        raise SpecError(f"{where}: 'file' must name a CSV file")
+    path = Path(file)
+    if not path.is_absolute():
+        path = Path(spec["_path"]).parent / path
+    return emitters.measured_spectra(path, grid)
+
+
+def _column(spectra, column, where: str):
+    labels = [str(v) for v in spectra.primary.values]
+    if column not in labels:
+        raise SpecError(f"{where}: column {column!r} is not in the file; it holds {', '.join(labels)}")
+    return spectra.sel(primary=column)
+
+
+def primary_spectrum(spec: dict, table: dict, index: int, grid):
+    """The spectrum (``wavelength``, named by the label) of one ``[[primary]]`` table."""
+    where = f"{spec['_path']}: primary #{index + 1}"
+    if not isinstance(table, dict):
+        raise SpecError(f"{where}: each [[primary]] must be a table")
+    label = table.get("label")
+    if not isinstance(label, str) or not label:
+        raise SpecError(f"{where}: 'label' must be a non-empty string")
+    where = f"{spec['_path']}: primary {label!r}"
+    kind = table.get("type")
+    if kind not in PRIMARY_TYPES:
+        raise SpecError(f"{where}: type {kind!r} is not known; allowed: {', '.join(PRIMARY_TYPES)}")
+    _unknown(f"{where} ({kind})", table, (*COMMON_KEYS, *PRIMARY_TYPES[kind]))
+    missing = [k for k in REQUIRED[kind] if k not in table]
+    if missing:
+        raise SpecError(f"{where} ({kind}): missing key {missing[0]!r}")
+    radiance = _number(where, "radiance", table.get("radiance", 1.0))
+    params = {k: v for k, v in table.items() if k not in COMMON_KEYS}
+    if kind == "measured":
+        spectra = _measured(spec, where, table, grid)
+        out = _column(spectra, table.get("column", label), where) * radiance
+        out.attrs = dict(spectra.attrs)
+    elif kind == "filter":
+        numbers = {k: _number(where, k, v, positive=k not in ("floor_transmittance",)) for k, v in params.items()}
+        filters = emitters.band_pass_filter(numbers.pop("centre_nm"), numbers.pop("width_nm"), grid, name=label,
+                                            **numbers)
+        out = emitters.filtered_primaries(_backlight(spec, where, grid), filters).isel(primary=0) * radiance
+    else:
+        function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "led": emitters.ohno_led,
+                    "quantum_dot": emitters.quantum_dot}[kind]
+        numbers = {k: (v if k == "profile" else _number(where, k, v)) for k, v in params.items()}
+        peak = numbers.pop("peak_nm")
+        if kind == "laser":
+            out = function(peak, numbers.pop("linewidth_nm", 0.1), grid, radiance=radiance, name=label, **numbers)
+        elif kind == "led":
+            out = function(peak, numbers.pop("half_spectral_width_nm"), grid, radiance=radiance, name=label, **numbers)
+        else:
+            out = function(peak, numbers.pop("fwhm_nm"), grid, radiance=radiance, name=label)
+        out = out.isel(primary=0)
+    return out.drop_vars([c for c in out.coords if c != "wavelength"]).rename(label)
+
+
+def spec_settings(spec: dict) -> dict:
+    """The display-level settings of a spec, checked, with defaults filled in."""
+    where = str(spec["_path"])
+    _unknown(where, spec, TOP_KEYS)
+    transfer = spec.get("transfer", "bt1886")
+    if transfer not in TRANSFER_FUNCTIONS:
+        raise SpecError(f"{where}: transfer {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")
+    white = spec.get("white", "D65")
+    if isinstance(white, str):
+        if white not in WHITE_POINTS:
+            raise SpecError(f"{where}: white {white!r} is not known; allowed: {', '.join(WHITE_POINTS)} or [x, y]")
+    elif not (isinstance(white, list) and len(white) == 2):
+        raise SpecError(f"{where}: white = {white!r} is not allowed; give a name or [x, y]")
+    else:
+        white = [_number(where, "white", v) for v in white]
+    observer = spec.get("calibration_observer", "cie1931_2")
+    if observer not in STANDARD_OBSERVERS:
+        raise SpecError(f"{where}: calibration_observer {observer!r} is not known; allowed: {', '.join(STANDARD_OBSERVERS)}")
+    name = spec.get("name", Path(where).stem)
+    if not isinstance(name, str) or not name:
+        raise SpecError(f"{where}: name must be a non-empty string")
+    base = spec.get("extra_primary_base")
+    if base is not None and (not isinstance(base, list) or not all(isinstance(b, str) for b in base)):
+        raise SpecError(f"{where}: extra_primary_base must be a list of primary labels")
+    return {
+        "name": name,
+        "description": str(spec.get("description", "")),
+        "transfer": transfer,
+        "gamma": _number(where, "gamma", spec.get("gamma", 2.2)),
+        "peak_luminance": _number(where, "peak_luminance", spec.get("peak_luminance", DEFAULT_PEAK_LUMINANCE[transfer])),
+        "black_luminance": _number(where, "black_luminance", spec.get("black_luminance", 0.0), positive=False),
+        "white": white,
+        "calibration_observer": observer,
+        "extra_primary_base": base,
+    }
+
+
+def display_from_spec(spec: dict) -> Display:
+    """A white-calibrated :class:`~metasim.display.Display` from a parsed spec (:func:`read_spec`)."""
+    settings = spec_settings(spec)
+    tables = spec.get("primary")
+    where = str(spec["_path"])
+    if not isinstance(tables, list) or len(tables) < 3:
+        count = len(tables) if isinstance(tables, list) else 0
+        raise SpecError(f"{where}: {count} [[primary]] tables; a display needs at least 3")
+    grid = default_grid()
+    parts = [primary_spectrum(spec, table, i, grid) for i, table in enumerate(tables)]
+    labels = [p.name for p in parts]
+    if len(set(labels)) != len(labels):
+        raise SpecError(f"{where}: primary labels {labels} repeat; each needs a unique label")
+    base = settings["extra_primary_base"]
+    if base is not None:
+        unknown = [b for b in base if b not in labels]
+        if unknown or len(base) < 3:
+            raise SpecError(f"{where}: extra_primary_base {base} must name at least 3 of the primaries {labels}")
+    spectra = emitters.stack_primaries(*parts)
+    display = make_display(spectra, transfer=settings["transfer"], gamma=settings["gamma"],
+                           peak_luminance=settings["peak_luminance"], black_luminance=settings["black_luminance"],
+                           name=settings["name"])
+    display = calibrate_white(display, settings["calibration_observer"], white=settings["white"],
+                              luminance=settings["peak_luminance"])
+    return display.replace(attrs={"spec_file": Path(where).name, "description": settings["description"]})
+
+
+def load_display(path) -> tuple[Display, dict]:
+    """Read a spec file and build its display; returns the display and the spec (with ``_text``).
+
+    Any error from building a display out of user-written values is reported as a
+    :class:`SpecError` naming the file.
+    """
+    spec = read_spec(path)
+    try:
+        return display_from_spec(spec), spec
+    except MetasimError as exc:
+        if isinstance(exc, SpecError):
+            raise
+        raise SpecError(f"{path}: {exc}") from None
+    except (ValueError, TypeError, KeyError) as exc:
+        raise SpecError(f"{path}: cannot build the display ({type(exc).__name__}: {exc})") from None
+
+
+__all__ = ["SpecError", "PRIMARY_TYPES", "read_spec", "spec_settings", "display_from_spec", "load_display"]

@@ -1,0 +1,357 @@
+"""Figures of metasim results (matplotlib, drawn off-screen with the Agg renderer, saved as PNG).
+
+Every function takes labelled xarray inputs (the variables of a study result, see
+:mod:`metasim.cli.study`, or the same-named outputs of the library) and returns a
+:class:`matplotlib.figure.Figure`; :func:`png_bytes` and :func:`save_png` turn it into a file.
+No pyplot state is used, so figures can be made from threads and never open a window.
+
+Figures: :func:`chromaticity_diagram` (spectrum locus, each display's gamut, BT.709 / BT.2020
+outlines), :func:`primary_spectra`, :func:`delta_e_by_age` (box plots of CIE 2000 differences per
+age band), :func:`p95_by_stimulus` (bar chart), :func:`extra_primary_gain` (gain curves) and
+:func:`observer_spread` (for population files).
+
+Colours: metasim's own palette — the reference in slate, designs in ember, teal, plum and ochre;
+spectra are drawn in the approximate sRGB colour of each primary.
+"""
+
+from __future__ import annotations
+
+import io
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+from matplotlib import rc_context
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+REFERENCE_COLOUR = "#2b3a55"
+DESIGN_COLOURS = ("#d9633b", "#2a9d8f", "#8e5ea2", "#b8a31f", "#5b7fbf", "#a34f4f")
+OUTLINE_COLOUR = "#7d7d7d"
+STYLE = {
+    "font.size": 10.5, "axes.titlesize": 12, "axes.labelsize": 10.5, "legend.fontsize": 9,
+    "axes.spines.top": False, "axes.spines.right": False, "axes.grid": True, "grid.color": "#e4e4e4",
+    "grid.linewidth": 0.6, "axes.axisbelow": True, "figure.dpi": 110, "savefig.dpi": 110,
+}
+LOCUS_TICKS_NM = (460, 480, 490, 500, 510, 520, 540, 560, 580, 600, 620)
+DELTA_E_LABEL = "CIE 2000 colour difference ΔE00 (CIELAB units)"
+
+
+def _figure(width: float, height: float, nrows: int = 1, ncols: int = 1, **kwargs):
+    fig = Figure(figsize=(width, height), layout="constrained")
+    FigureCanvasAgg(fig)
+    axes = fig.subplots(nrows, ncols, squeeze=False, **kwargs)
+    return fig, axes
+
+
+def png_bytes(fig: Figure) -> bytes:
+    """The figure as PNG bytes."""
+    buffer = io.BytesIO()
+    with rc_context(STYLE):
+        fig.savefig(buffer, format="png")
+    return buffer.getvalue()
+
+
+def save_png(fig: Figure, path) -> Path:
+    """Write the figure as a PNG file; returns the path."""
+    path = Path(path)
+    path.write_bytes(png_bytes(fig))
+    return path
+
+
+def colours_for(names, roles=None) -> dict:
+    """Colour of each display: slate for the reference, the design palette in order for the others."""
+    out, k = {}, 0
+    roles = list(roles) if roles is not None else ["design"] * len(names)
+    for name, role in zip(names, roles):
+        if role == "reference":
+            out[str(name)] = REFERENCE_COLOUR
+        else:
+            out[str(name)] = DESIGN_COLOURS[k % len(DESIGN_COLOURS)]
+            k += 1
+    return out
+
+
+def _roles(array: xr.DataArray) -> list:
+    if "display_role" in array.coords:
+        return [str(v) for v in array.coords["display_role"].values]
+    return ["design"] * array.sizes["display"]
+
+
+def _closed(points: np.ndarray) -> np.ndarray:
+    points = points[np.isfinite(points).all(axis=1)]
+    return np.vstack([points, points[:1]]) if len(points) else points
+
+
+# -- chromaticity diagram ------------------------------------------------------------------------------
+
+def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray | None = None,
+                         white_xy: xr.DataArray | None = None, references=("bt709", "bt2020")) -> Figure:
+    """CIE 1931 xy diagram: spectrum locus, reference outlines and each display's gamut polygon.
+
+    ``gamut_polygon`` has dims (``display``, ``vertex``, ``chromaticity``), NaN padded, as in a
+    study result; ``primary_xy`` (display, primary, chromaticity) marks the primaries.
+    """
+    from metasim.gamut import reference_xy, spectrum_locus
+    from metasim.observers import standard_observer
+
+    observer = standard_observer("cie1931_2")
+    locus = spectrum_locus(observer)["polygon"].transpose("vertex", "chromaticity").values
+    cmf = observer["cmf"].transpose("wavelength", "xyz")
+    with rc_context(STYLE):
+        fig, axes = _figure(6.4, 6.2)
+        ax = axes[0, 0]
+        ring = _closed(locus)
+        ax.fill(ring[:, 0], ring[:, 1], color="#f4f1ea", zorder=0)
+        ax.plot(ring[:, 0], ring[:, 1], color="#4a4a4a", lw=1.2, label="spectrum locus (CIE 1931 2°)")
+        for nm in LOCUS_TICKS_NM:
+            xyz = cmf.sel(wavelength=float(nm)).values
+            x, y = xyz[0] / xyz.sum(), xyz[1] / xyz.sum()
+            ax.plot([x], [y], marker="o", ms=2.5, color="#4a4a4a")
+            ax.annotate(f"{nm}", (x, y), textcoords="offset points", xytext=(-16 if x < 0.2 else 5, 2),
+                        fontsize=7.5, color="#4a4a4a")
+        styles = {"bt709": ("--", "ITU-R BT.709"), "bt2020": (":", "ITU-R BT.2020"),
+                  "display_p3": ("-.", "Display P3"), "dci_p3": ((0, (5, 1, 1, 1)), "DCI-P3")}
+        for name in references:
+            xy = _closed(reference_xy(name).transpose("primary", "chromaticity").values)
+            style, label = styles.get(name, ("--", name))
+            ax.plot(xy[:, 0], xy[:, 1], ls=style, color=OUTLINE_COLOUR, lw=1.1, label=label)
+        names = [str(v) for v in gamut_polygon["display"].values]
+        colours = colours_for(names, _roles(gamut_polygon))
+        for name in names:
+            poly = _closed(gamut_polygon.sel(display=name).transpose("vertex", "chromaticity").values)
+            ax.plot(poly[:, 0], poly[:, 1], color=colours[name], lw=2.0, label=name)
+            ax.fill(poly[:, 0], poly[:, 1], color=colours[name], alpha=0.07)
+            if primary_xy is not None:
+                pts = primary_xy.sel(display=name).transpose("primary", "chromaticity").values
+                pts = pts[np.isfinite(pts).all(axis=1)]
+                ax.scatter(pts[:, 0], pts[:, 1], s=28, color=colours[name], edgecolor="white", zorder=5)
+        if white_xy is not None:
+            w = white_xy.transpose("display", "chromaticity").values
+            ax.scatter(w[:, 0], w[:, 1], marker="+", s=60, color="#222222", zorder=6, label="white points")
+        ax.set_xlim(-0.02, 0.78)
+        ax.set_ylim(-0.02, 0.88)
+        ax.set_aspect("equal")
+        ax.set_xlabel("x (CIE 1931 chromaticity, unitless)")
+        ax.set_ylabel("y (CIE 1931 chromaticity, unitless)")
+        ax.set_title("Chromaticity gamuts")
+        ax.legend(loc="upper right", frameon=False)
+    return fig
+
+
+# -- spectra ---------------------------------------------------------------------------------------------
+
+def _primary_colour(xy: np.ndarray) -> str:
+    """Approximate display colour of a primary from its CIE 1931 xy (sRGB, scaled to full brightness)."""
+    import colour
+
+    if not np.isfinite(xy).all() or xy[1] <= 0:
+        return "#555555"
+    xyz = np.array([xy[0] / xy[1], 1.0, (1 - xy[0] - xy[1]) / xy[1]])
+    rgb = np.clip(colour.XYZ_to_sRGB(xyz / xyz.max() * 0.6), 0, None)
+    rgb = np.clip(rgb / max(rgb.max(), 1e-9), 0, 1) * 0.85
+    return "#" + "".join(f"{int(round(c * 255)):02x}" for c in rgb)
+
+
+def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = None,
+                    primary_xy: xr.DataArray | None = None) -> Figure:
+    """Spectral radiance of each display's primaries, one panel per display.
+
+    ``spectra`` has dims ([``display``,] ``primary``, ``wavelength``); NaN rows (padding) are skipped.
+    """
+    if "display" not in spectra.dims:
+        spectra = spectra.expand_dims(display=[str(spectra.attrs.get("name", "display"))])
+    names = [str(v) for v in spectra["display"].values]
+    units = spectra.attrs.get("units", "W sr-1 m-2 nm-1").replace("sr-1", "sr⁻¹").replace("m-2", "m⁻²").replace("nm-1", "nm⁻¹")
+    with rc_context(STYLE):
+        fig, axes = _figure(7.2, 1.2 + 2.1 * len(names), len(names), 1, sharex=True)
+        wl = spectra["wavelength"].values
+        for ax, name in zip(axes[:, 0], names):
+            block = spectra.sel(display=name).transpose("primary", "wavelength")
+            for i in range(block.sizes["primary"]):
+                values = block.values[i]
+                if not np.isfinite(values).all():
+                    continue
+                label = str(primary_label.sel(display=name).values[i]) if primary_label is not None else str(block.primary.values[i])
+                xy = primary_xy.sel(display=name).transpose("primary", "chromaticity").values[i] if primary_xy is not None else np.array([np.nan, np.nan])
+                peak = wl[int(np.argmax(values))]
+                ax.plot(wl, values, color=_primary_colour(xy), lw=1.5, label=f"{label} (peak {peak:.0f} nm)")
+            ax.set_title(name, loc="left")
+            ax.set_ylabel(f"Radiance\n({units})")
+            ax.set_ylim(bottom=0)
+            ax.legend(loc="upper right", frameon=False, ncols=2)
+        axes[-1, 0].set_xlabel("Wavelength (nm)")
+        axes[-1, 0].set_xlim(wl[0], min(wl[-1], 780.0))
+        fig.suptitle("Primary spectra after white calibration")
+    return fig
+
+
+# -- differences by age band ---------------------------------------------------------------------------
+
+def band_members(age_years: np.ndarray, labels) -> list[np.ndarray]:
+    """Boolean masks of observers in each age band, read from labels such as ``"20-29"``, ``"70-80"``.
+
+    Bands follow :func:`metasim.metamerism.summarise`: band i covers [lo_i, lo_(i+1)), the last is
+    closed at its upper end.
+    """
+    bounds = [tuple(float(v) for v in str(label).split("-")) for label in labels]
+    masks = []
+    for i, (lo, hi) in enumerate(bounds):
+        if i + 1 < len(bounds):
+            masks.append((age_years >= lo) & (age_years < bounds[i + 1][0]))
+        else:
+            masks.append((age_years >= lo) & (age_years <= hi))
+    return masks
+
+
+def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 3.0)) -> Figure:
+    """Box plots of CIE 2000 differences (all observer × stimulus pairs) per age band and design.
+
+    ``delta_e`` has dims ([``design``,] ``observer``, ``stimulus``) with an ``age_years``
+    coordinate; ``age_bands`` are labels as in the engine's ``age_band`` coordinate (default:
+    decades). Boxes span the quartiles, whiskers the 5th-95th percentiles; the diamond is the mean.
+    """
+    if "design" not in delta_e.dims:
+        delta_e = delta_e.expand_dims(design=["design"])
+    ages = np.asarray(delta_e.coords["age_years"].values, dtype=float)
+    if age_bands is None:
+        lo, hi = int(np.floor(ages.min() / 10) * 10), int(np.ceil(ages.max() / 10) * 10)
+        edges = list(range(lo, max(hi, lo + 10) + 1, 10))
+        age_bands = [f"{a}-{b - 1}" for a, b in zip(edges[:-2], edges[1:-1])] + [f"{edges[-2]}-{edges[-1]}"]
+    labels = [str(b) for b in age_bands]
+    masks = band_members(ages, labels)
+    designs = [str(v) for v in delta_e["design"].values]
+    colours = colours_for(designs)
+    width = 0.8 / len(designs)
+    with rc_context(STYLE):
+        fig, axes = _figure(7.6, 4.6)
+        ax = axes[0, 0]
+        for j, name in enumerate(designs):
+            values = delta_e.sel(design=name).transpose("observer", "stimulus").values
+            data = [values[m].ravel() for m in masks]
+            positions = np.arange(len(labels)) + (j - (len(designs) - 1) / 2) * width
+            keep = [k for k, d in enumerate(data) if d.size]
+            if not keep:
+                continue
+            box = ax.boxplot([data[k] for k in keep], positions=positions[keep], widths=width * 0.85,
+                             whis=(5, 95), showfliers=False, patch_artist=True, showmeans=True,
+                             meanprops={"marker": "D", "markerfacecolor": "white", "markeredgecolor": colours[name],
+                                        "markersize": 4})
+            for patch in box["boxes"]:
+                patch.set(facecolor=colours[name], alpha=0.55, edgecolor=colours[name])
+            for part in ("whiskers", "caps", "medians"):
+                for line in box[part]:
+                    line.set(color=colours[name] if part != "medians" else "#1a1a1a", lw=1.2)
+            ax.plot([], [], color=colours[name], lw=8, alpha=0.55, label=name)
+        for t in thresholds:
+            ax.axhline(t, color="#9a9a9a", lw=0.8, ls=(0, (2, 3)), zorder=0)
+            ax.annotate(f"{t:g}", (1.0, t), xycoords=("axes fraction", "data"), xytext=(3, -3),
+                        textcoords="offset points", fontsize=7.5, color="#7a7a7a")
+        counts = [int(m.sum()) for m in masks]
+        ax.set_xticks(np.arange(len(labels)), [f"{lab}\n(n={c})" for lab, c in zip(labels, counts)])
+        ax.set_xlabel("Viewer age band (years)")
+        ax.set_ylabel(DELTA_E_LABEL)
+        ax.set_ylim(bottom=0)
+        ax.set_title("Mismatch by viewer age (box: quartiles, whiskers: 5th-95th percentile)")
+        ax.legend(loc="upper left", frameon=False)
+    return fig
+
+
+# -- 95th percentile per stimulus --------------------------------------------------------------------
+
+def p95_by_stimulus(by_stimulus: xr.DataArray, max_stimuli: int = 40) -> Figure:
+    """Horizontal bars: the population's 95th-percentile CIE 2000 difference for each stimulus.
+
+    ``by_stimulus`` has dims ([``design``,] ``statistic``, ``stimulus``), as the engine's
+    ``delta_e_2000_by_stimulus``. With more than ``max_stimuli`` stimuli the worst ones are shown.
+    """
+    if "design" not in by_stimulus.dims:
+        by_stimulus = by_stimulus.expand_dims(design=["design"])
+    p95 = by_stimulus.sel(statistic="p95").transpose("design", "stimulus")
+    worst = p95.max("design").values
+    order = np.argsort(worst)
+    shown = order[-max_stimuli:]
+    stimuli = [str(v) for v in p95["stimulus"].values]
+    designs = [str(v) for v in p95["design"].values]
+    colours = colours_for(designs)
+    height = 0.8 / len(designs)
+    with rc_context(STYLE):
+        fig, axes = _figure(7.2, 1.4 + 0.24 * len(shown) * max(1, len(designs) * 0.7))
+        ax = axes[0, 0]
+        y = np.arange(len(shown))
+        for j, name in enumerate(designs):
+            ax.barh(y + (j - (len(designs) - 1) / 2) * height, p95.sel(design=name).values[shown], height=height * 0.9,
+                    color=colours[name], label=name)
+        ax.set_yticks(y, [stimuli[i] for i in shown], fontsize=8.5)
+        ax.set_xlabel(f"95th percentile over observers, {DELTA_E_LABEL}")
+        title = "Worst-case viewers per stimulus"
+        if len(shown) < len(stimuli):
+            title += f" (the {len(shown)} worst of {len(stimuli)} stimuli)"
+        ax.set_title(title)
+        ax.grid(axis="y", visible=False)
+        ax.legend(loc="lower right", frameon=False)
+    return fig
+
+
+# -- extra-primary gain --------------------------------------------------------------------------------
+
+def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.DataArray | None = None,
+                       primary_peaks_nm: dict | None = None) -> Figure:
+    """Gamut gained by one extra laser primary at each candidate peak wavelength.
+
+    Shares (0..1) with dims ([``design``,] ``peak_wavelength``) are drawn in percent of the base
+    design's gamut; ``primary_peaks_nm`` (design name → peaks) marks the design's own primaries.
+    """
+    panels = [("area", area_gain_share, "Chromaticity area gain\n(% of base, CIE 1931 xy)")]
+    if volume_gain_share is not None:
+        panels.append(("volume", volume_gain_share, "CIELAB volume gain\n(% of base)"))
+    with rc_context(STYLE):
+        fig, axes = _figure(7.2, 1.0 + 2.4 * len(panels), len(panels), 1, sharex=True)
+        for ax, (_, share, label) in zip(axes[:, 0], panels):
+            if "design" not in share.dims:
+                share = share.expand_dims(design=["design"])
+            designs = [str(v) for v in share["design"].values]
+            colours = colours_for(designs)
+            wl = share["peak_wavelength"].values
+            for name in designs:
+                ax.plot(wl, 100 * share.sel(design=name).values, color=colours[name], lw=1.8, label=name)
+                for peak in (primary_peaks_nm or {}).get(name, []):
+                    ax.axvline(peak, color=colours[name], lw=0.8, ls=(0, (1, 2)))
+            ax.set_ylabel(label)
+            ax.set_ylim(bottom=0)
+        axes[0, 0].legend(loc="upper right", frameon=False)
+        axes[0, 0].set_title("Gain from one more laser primary (dotted: the base primaries' peaks)")
+        axes[-1, 0].set_xlabel("Candidate peak wavelength (nm)")
+    return fig
+
+
+# -- observer populations ------------------------------------------------------------------------------
+
+def observer_spread(population: xr.Dataset) -> Figure:
+    """Ages of a population and the spread of its colour-matching functions (5th-95th percentile)."""
+    with rc_context(STYLE):
+        fig, axes = _figure(9.0, 3.8, 1, 2)
+        ages = np.asarray(population.coords["age_years"].values, dtype=float) if "age_years" in population.coords else None
+        if ages is not None:
+            axes[0, 0].hist(ages, bins=max(5, min(30, len(ages) // 10)), color=REFERENCE_COLOUR, alpha=0.8)
+        axes[0, 0].set_xlabel("Age (years)")
+        axes[0, 0].set_ylabel("Observers (count)")
+        axes[0, 0].set_title("Ages")
+        cmf = population["cmf"].transpose("observer", "xyz", "wavelength")
+        wl = cmf["wavelength"].values
+        ax = axes[0, 1]
+        for i, (name, colour) in enumerate(zip(("x̄", "ȳ", "z̄"), ("#b03a2e", "#2e8b57", "#2f5d9e"))):
+            values = cmf.values[:, i]
+            lo, mid, hi = np.percentile(values, [5, 50, 95], axis=0)
+            ax.fill_between(wl, lo, hi, color=colour, alpha=0.25, lw=0)
+            ax.plot(wl, mid, color=colour, lw=1.3, label=f"{name} (median, 5-95 % band)")
+        ax.set_xlim(wl[0], min(wl[-1], 750.0))
+        ax.set_xlabel("Wavelength (nm)")
+        ax.set_ylabel("Colour-matching function (unitless)")
+        ax.set_title("Spread of the observers' functions")
+        ax.legend(frameon=False)
+    return fig
+
+
+__all__ = ["png_bytes", "save_png", "colours_for", "chromaticity_diagram", "primary_spectra", "delta_e_by_age",
+           "band_members", "p95_by_stimulus", "extra_primary_gain", "observer_spread"]

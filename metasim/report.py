@@ -1,0 +1,369 @@
+"""A self-contained HTML report of any metasim result file.
+
+The page embeds its figures as base64 PNG (``data:image/png;base64,...``), uses no script, font or
+style sheet from anywhere else, and so opens in a browser with no network. It shows what the result
+holds, section by section:
+
+* a study result (:mod:`metasim.cli.study`): headline mismatch numbers per design, gamut table, the
+  five figures of :mod:`metasim.plots`, age-band and per-stimulus tables, calibration-observer
+  ranking and white-point offsets when present;
+* a mismatch Dataset straight from :func:`metasim.mismatch` (treated as one design);
+* an observer population or category file (:func:`metasim.observer_population`): ages, parameters
+  and the spread of the colour-matching functions.
+
+Every report lists the models and parameters recorded in the file's attributes and the cautions.
+"""
+
+from __future__ import annotations
+
+import base64
+import html
+import json
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from metasim import plots
+from metasim._version import __version__
+from metasim.errors import MetasimError
+
+CAUTIONS = (
+    "metasim computes colorimetry, not eye safety. Lasers and other high-radiance light sources fall "
+    "under photobiological safety standards — IEC 60825-1 (safety of laser products) and IEC 62471 "
+    "(photobiological safety of lamps and lamp systems) — and under local regulations; nothing in this "
+    "report says whether a design is safe to look at.",
+    "Population results describe model observers (CIE 170-1:2006 with individual deviations whose "
+    "standard deviations are estimates), not measurements of any real audience.",
+    "The 1, 2 and 3 CIE 2000 unit thresholds are common practice, no source; gamut coverage of the "
+    "broadcast and cinema gamuts is computed for the CIE 1931 2° observer.",
+)
+STYLE = """
+body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:0;background:#fbfaf7;color:#1f2328}
+main{max-width:1040px;margin:0 auto;padding:24px 28px 60px}
+h1{font-size:1.6em;margin:0 0 4px;color:#2b3a55} h2{margin-top:2.2em;border-bottom:2px solid #d9633b;
+padding-bottom:4px;color:#2b3a55} h3{color:#3c4a66}
+.sub{color:#5b6270;margin:0 0 18px} table{border-collapse:collapse;margin:10px 0 18px;font-size:.92em}
+th,td{border-bottom:1px solid #dcdad3;padding:5px 10px;text-align:right} th:first-child,td:first-child{text-align:left}
+th{background:#efece4} figure{margin:18px 0} figure img{max-width:100%;border:1px solid #e4e1d8;background:#fff}
+figcaption{color:#5b6270;font-size:.9em} pre{background:#f1efe8;padding:10px;overflow-x:auto;font-size:.85em}
+.caution{background:#fff4e5;border-left:4px solid #d9633b;padding:8px 14px;margin:8px 0}
+.headline{font-size:1.05em} dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
+dt{font-weight:600;color:#3c4a66} dd{margin:0}
+"""
+REFERENCE_NAMES = {"bt709": "BT.709", "display_p3": "Display P3", "dci_p3": "DCI-P3", "bt2020": "BT.2020"}
+
+
+def _e(text) -> str:
+    return html.escape(str(text))
+
+
+def _num(value, digits: int = 2) -> str:
+    value = float(value)
+    if not np.isfinite(value):
+        return "–"
+    if abs(value) >= 1e5:
+        return f"{value:.3g}"
+    return f"{value:.{digits}f}"
+
+
+def _pct(value) -> str:
+    value = float(value)
+    return "–" if not np.isfinite(value) else f"{100 * value:.1f} %"
+
+
+def _table(header: list[str], rows: list[list[str]]) -> str:
+    head = "".join(f"<th>{_e(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{_e(c)}</td>" for c in row) + "</tr>" for row in rows)
+    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _image(png: bytes, caption: str) -> str:
+    data = base64.b64encode(png).decode("ascii")
+    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
+            f"<figcaption>{_e(caption)}</figcaption></figure>")
+
+
+def as_study(ds: xr.Dataset) -> xr.Dataset:
+    """A result with the study layout: a plain mismatch Dataset gains a one-entry ``design`` dim."""
+    if "delta_e_2000" in ds and "design" not in ds["delta_e_2000"].dims:
+        name = str(ds.attrs.get("test", "design"))
+        names = [v for v in ds.data_vars if "observer" in ds[v].dims or "stimulus" in ds[v].dims
+                 or v.startswith("delta_e") or v.startswith("share_beyond")]
+        ds = ds.copy()
+        for v in names:
+            ds[v] = ds[v].expand_dims(design=[name])
+    return ds
+
+
+def _kind(ds: xr.Dataset) -> str:
+    if "delta_e_2000" in ds or "gamut_polygon" in ds:
+        return "study"
+    if "cmf" in ds and "observer" in ds.dims:
+        return "population"
+    raise MetasimError("the file holds no metasim results this report can show (need a study, a mismatch "
+                       "result or an observer population)")
+
+
+# -- figures ---------------------------------------------------------------------------------------------
+
+def _primary_peaks(ds: xr.Dataset) -> dict:
+    """Peak wavelength of each base primary, per design (for the extra-primary figure)."""
+    out = {}
+    if "spectra" not in ds or "design" not in ds.dims:
+        return out
+    for name in ds["design"].values:
+        if name not in ds["display"].values:
+            continue
+        spectra = ds["spectra"].sel(display=name).transpose("primary", "wavelength")
+        labels = [str(v) for v in ds["primary_label"].sel(display=name).values]
+        base = str(ds["extra_base"].sel(design=name).values).split(", ") if "extra_base" in ds else labels
+        wl = spectra["wavelength"].values
+        out[str(name)] = [float(wl[int(np.nanargmax(spectra.values[i]))]) for i, lab in enumerate(labels)
+                          if lab and lab in base]
+    return out
+
+
+def report_figures(ds: xr.Dataset) -> dict:
+    """The figures a result supports, by file stem: {name: (Figure, caption)}."""
+    ds = as_study(ds)
+    figures = {}
+    if _kind(ds) == "population":
+        figures["observers"] = (plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
+        return figures
+    if "gamut_polygon" in ds:
+        figures["chromaticity"] = (plots.chromaticity_diagram(ds["gamut_polygon"], ds.get("primary_xy"), ds.get("white_xy")),
+                                   "Gamut of each display in the CIE 1931 xy diagram, with the BT.709 and BT.2020 outlines.")
+    if "spectra" in ds and "display" in ds["spectra"].dims:
+        figures["spectra"] = (plots.primary_spectra(ds["spectra"], ds.get("primary_label"), ds.get("primary_xy")),
+                              "Spectral radiance of every primary at full drive after white calibration.")
+    if "delta_e_2000" in ds and "age_years" in ds["delta_e_2000"].coords:
+        bands = list(ds["age_band"].values) if "age_band" in ds.coords else None
+        figures["age_bands"] = (plots.delta_e_by_age(ds["delta_e_2000"], bands),
+                                "CIE 2000 differences between reference and design, all stimuli pooled, by viewer age band.")
+    if "delta_e_2000_by_stimulus" in ds:
+        figures["p95_by_stimulus"] = (plots.p95_by_stimulus(ds["delta_e_2000_by_stimulus"]),
+                                      "95th percentile of the population's CIE 2000 difference, per stimulus.")
+    if "area_gain_share" in ds:
+        figures["extra_primary"] = (plots.extra_primary_gain(ds["area_gain_share"], ds.get("volume_gain_share"),
+                                                             _primary_peaks(ds)),
+                                    "Gamut area and CIELAB volume gained by one more laser primary, per candidate wavelength.")
+    return figures
+
+
+# -- sections --------------------------------------------------------------------------------------------
+
+def _headline(ds: xr.Dataset) -> str:
+    if "delta_e_2000" not in ds:
+        return ""
+    rows = []
+    for name in ds["design"].values:
+        de = ds["delta_e_2000"].sel(design=name)
+        if "delta_e_2000_overall" in ds:
+            stats = ds["delta_e_2000_overall"].sel(design=name)
+            p95, median, mean = (float(stats.sel(statistic=s)) for s in ("p95", "median", "mean"))
+        else:
+            flat = de.values.ravel()
+            p95, median, mean = float(np.quantile(flat, 0.95)), float(np.median(flat)), float(flat.mean())
+        share = ds["share_beyond_overall"].sel(design=name) if "share_beyond_overall" in ds else None
+        row = [str(name), _num(mean), _num(median), _num(p95)]
+        for t in (1.0, 2.0, 3.0):
+            row.append(_pct(share.sel(threshold=t)) if share is not None and t in share.threshold.values else "–")
+        white = ds["delta_e_white"].sel(design=name).values if "delta_e_white" in ds else np.array([np.nan])
+        row += [_num(np.median(white)), _num(np.quantile(white, 0.95))]
+        if "best_calibration_observer" in ds:
+            row.append(str(ds["best_calibration_observer"].sel(design=name).values))
+        rows.append(row)
+    header = ["design", "mean ΔE00", "median ΔE00", "95th pct ΔE00", "share > 1", "share > 2", "share > 3",
+              "white ΔE00 median", "white ΔE00 95th pct"]
+    if "best_calibration_observer" in ds:
+        header.append("best calibration observer")
+    count = ds.sizes.get("observer", 0)
+    note = (f"<p>Over all {count} observers × {ds.sizes.get('stimulus', 0)} stimuli, against "
+            f"{_e(ds.attrs.get('reference', 'the reference'))}, matched for "
+            f"{_e(ds.attrs.get('calibration_observer', ''))}.</p>")
+    return "<h2>Headline</h2>" + note + _table(header, rows)
+
+
+def _gamut(ds: xr.Dataset) -> str:
+    if "gamut_area_xy" not in ds:
+        return ""
+    refs = [str(r) for r in ds["reference_gamut"].values] if "reference_gamut" in ds.coords else []
+    header = ["display", "role", "xy area", "u'v' area"] + [f"covers {REFERENCE_NAMES.get(r, r)}" for r in refs]
+    header += ["locus share", "CIELAB volume", "CIELAB volume of BT.2020 covered"]
+    rows = []
+    for name in ds["display"].values:
+        sel = ds.sel(display=name)
+        role = str(sel["display_role"].values) if "display_role" in sel.coords else ""
+        row = [str(name), role, _num(sel["gamut_area_xy"], 4), _num(sel["gamut_area_uv"], 4)]
+        row += [_pct(sel["gamut_coverage"].sel(reference_gamut=r)) for r in refs]
+        row += [_pct(sel["locus_share"]), _num(sel["lab_volume"], 0)]
+        row.append(_pct(sel["lab_coverage_volume"].sel(reference_gamut="bt2020")) if "bt2020" in refs else "–")
+        rows.append(row)
+    return ("<h2>Gamut</h2><p>Areas in chromaticity units², CIELAB volumes in CIELAB units³ relative to each "
+            "display's own white (CIE 1931 2° observer).</p>" + _table(header, rows))
+
+
+def _by_age(ds: xr.Dataset) -> str:
+    if "delta_e_2000_by_age" not in ds:
+        return ""
+    bands = [str(b) for b in ds["age_band"].values]
+    rows = []
+    for name in ds["design"].values:
+        by = ds["delta_e_2000_by_age"].sel(design=name)
+        counts = ds["observers_per_age_band"].sel(design=name).values if "observers_per_age_band" in ds else [""] * len(bands)
+        for band, n in zip(bands, counts):
+            cell = by.sel(age_band=band)
+            rows.append([str(name), band, str(n)] + [_num(cell.sel(statistic=s)) for s in ("mean", "median", "p95", "max")])
+    return "<h3>By age band</h3>" + _table(["design", "age band (years)", "observers", "mean", "median", "95th pct", "max"], rows)
+
+
+def _by_stimulus(ds: xr.Dataset) -> str:
+    if "delta_e_2000_by_stimulus" not in ds:
+        return ""
+    rows = []
+    for name in ds["design"].values:
+        by = ds["delta_e_2000_by_stimulus"].sel(design=name)
+        share = ds["share_beyond"].sel(design=name) if "share_beyond" in ds else None
+        flags = ds["out_of_gamut_test"].sel(design=name) if "out_of_gamut_test" in ds else None
+        for stim in ds["stimulus"].values:
+            cell = by.sel(stimulus=stim)
+            row = [str(name), str(stim)] + [_num(cell.sel(statistic=s)) for s in ("mean", "median", "p95", "max")]
+            row.append(_pct(share.sel(stimulus=stim, threshold=2.0)) if share is not None and 2.0 in share.threshold.values else "–")
+            row.append("clipped" if flags is not None and bool(flags.sel(stimulus=stim)) else "")
+            rows.append(row)
+    table = _table(["design", "stimulus", "mean", "median", "95th pct", "max", "share > 2", "test gamut"], rows)
+    return f"<details><summary>Per-stimulus table ({len(rows)} rows)</summary>{table}</details>"
+
+
+def _choices(ds: xr.Dataset) -> str:
+    parts = []
+    if "calibration_mean_delta_e" in ds:
+        rows = []
+        for name in ds["design"].values:
+            for cal in ds["calibration_observer"].values:
+                rows.append([str(name), str(cal), _num(ds["calibration_mean_delta_e"].sel(design=name, calibration_observer=cal)),
+                             _num(ds["calibration_p95_delta_e"].sel(design=name, calibration_observer=cal)),
+                             _num(ds["calibration_mean_delta_e_white"].sel(design=name, calibration_observer=cal))])
+        parts.append("<h3>Calibration observer</h3><p>Each candidate observer used to match white and stimuli; "
+                     "CIE 2000 differences over the population, white and stimuli pooled.</p>"
+                     + _table(["design", "calibration observer", "mean ΔE00", "95th pct ΔE00", "mean white ΔE00"], rows))
+    if "white_offset_xy" in ds:
+        rows = []
+        for name in ds["design"].values:
+            offsets = ds["white_offset_xy"].sel(design=name)
+            for c in ds["category"].values:
+                cell = offsets.sel(category=c)
+                weight = ds["category_weight"].sel(category=c).values if "category_weight" in ds.coords else np.nan
+                age = ds["category_age_years"].sel(category=c).values if "category_age_years" in ds.coords else np.nan
+                uv = ds["white_offset_uv_length"].sel(design=name, category=c) if "white_offset_uv_length" in ds else np.nan
+                rows.append([str(name), str(c), _pct(weight), _num(age, 0), f"{float(cell.sel(chromaticity='x')):+.4f}",
+                             f"{float(cell.sel(chromaticity='y')):+.4f}", _num(uv, 4)])
+        parts.append("<h3>White-point offsets per observer category</h3><p>The white trim (in the calibration "
+                     "observer's xy) that makes the design's white match the reference white for each category.</p>"
+                     + _table(["design", "category", "share of viewers", "age", "Δx", "Δy", "Δu'v'"], rows))
+    return "".join(parts)
+
+
+def _population(ds: xr.Dataset) -> str:
+    ages = np.asarray(ds.coords["age_years"].values, dtype=float) if "age_years" in ds.coords else np.array([np.nan])
+    rows = [["observers", str(ds.sizes["observer"])], ["age range (years)", f"{np.nanmin(ages):.1f}–{np.nanmax(ages):.1f}"],
+            ["median age (years)", _num(np.nanmedian(ages), 1)]]
+    if "field_size_deg" in ds.coords:
+        rows.append(["field size (degrees)", _num(np.median(ds.coords["field_size_deg"].values), 1)])
+    if "weight" in ds.coords:
+        rows.append(["categories", "yes: each observer stands for a share of a larger population"])
+    return "<h2>Observers</h2>" + _table(["quantity", "value"], rows)
+
+
+def _value(value) -> str:
+    if isinstance(value, str):
+        try:
+            parsed = json.loads(value)
+        except ValueError:
+            return _e(value)
+        if isinstance(parsed, (dict, list)):
+            value = parsed
+        else:
+            return _e(value)
+    if isinstance(value, (dict, list)):
+        return f"<code>{_e(json.dumps(value, default=str))}</code>"
+    return _e(value)
+
+
+def _models(ds: xr.Dataset) -> str:
+    attrs = dict(ds.attrs)
+    specs = attrs.pop("display_specs", {}) or {}
+    items = "".join(f"<dt>{_e(k.replace('_', ' '))}</dt><dd>{_value(v)}</dd>" for k, v in attrs.items())
+    out = "<h2>Models and parameters</h2><dl>" + items + "</dl>"
+    if "spectra" in ds:
+        rows = []
+        for name in ds["display"].values if "display" in ds.dims else []:
+            labels = [str(v) for v in ds["primary_label"].sel(display=name).values if str(v)] if "primary_label" in ds else []
+            rows.append([str(name), str(len(labels)), ", ".join(labels)])
+        if rows:
+            out += _table(["display", "primaries", "labels"], rows)
+    for name, text in (specs.items() if isinstance(specs, dict) else []):
+        if text:
+            out += f"<h3>Design spec: {_e(name)}</h3><pre>{_e(text)}</pre>"
+    return out
+
+
+def figure_pngs(ds: xr.Dataset) -> dict:
+    """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}."""
+    return {name: (plots.png_bytes(fig), caption) for name, (fig, caption) in report_figures(ds).items()}
+
+
+def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | None = None,
+                  figures: dict | None = None) -> str:
+    """The report of a result Dataset as one HTML string (figures embedded).
+
+    ``figures`` may pass the output of :func:`figure_pngs` when it has been made already.
+    """
+    if not isinstance(ds, xr.Dataset):
+        raise MetasimError(f"a report needs a result Dataset, got {type(ds).__name__}")
+    kind = _kind(ds)
+    ds = as_study(ds)
+    title = title or str(ds.attrs.get("title", "metasim population" if kind == "population" else "metasim result"))
+    figures = figure_pngs(ds) if figures is None else figures
+    body = [f"<h1>{_e(title)}</h1>",
+            f"<p class='sub'>metasim {__version__} report{(' of ' + _e(source)) if source else ''}.</p>"]
+    if kind == "population":
+        body.append(_population(ds))
+        body += [_image(png, caption) for png, caption in figures.values()]
+    else:
+        body.append(_headline(ds))
+        if "age_bands" in figures:
+            body.append(_image(*figures["age_bands"]))
+        body.append(_by_age(ds))
+        if "p95_by_stimulus" in figures:
+            body.append("<h2>Stimuli</h2>" + _image(*figures["p95_by_stimulus"]))
+        body.append(_by_stimulus(ds))
+        body.append(_choices(ds))
+        body.append(_gamut(ds))
+        for key in ("chromaticity", "spectra", "extra_primary"):
+            if key in figures:
+                body.append(_image(*figures[key]))
+    body.append(_models(ds))
+    body.append("<h2>Cautions</h2>" + "".join(f"<p class='caution'>{_e(c)}</p>" for c in CAUTIONS))
+    return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
+            f"<meta name='viewport' content='width=device-width, initial-scale=1'><title>{_e(title)}</title>"
+            f"<style>{STYLE}</style></head><body><main>{''.join(body)}</main></body></html>")
+
+
+def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = None, source: str | None = None) -> Path:
+    """Write :func:`render_report` to ``path``; with ``figures_dir`` also each figure as a PNG file."""
+    path = Path(path)
+    if path.parent and not path.parent.exists():
+        raise MetasimError(f"{path}: folder {path.parent} does not exist")
+    figures = figure_pngs(ds)
+    if figures_dir is not None:
+        figures_dir = Path(figures_dir)
+        figures_dir.mkdir(parents=True, exist_ok=True)
+        for name, (png, _) in figures.items():
+            (figures_dir / f"{name}.png").write_bytes(png)
+    path.write_text(render_report(ds, title=title, source=source, figures=figures), encoding="utf-8")
+    return path
+
+
+__all__ = ["CAUTIONS", "as_study", "report_figures", "figure_pngs", "render_report", "write_report"]
