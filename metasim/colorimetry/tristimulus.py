@@ -10,7 +10,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import MetasimError, SpectrumError
-from metasim.spectra import RADIANCE_UNITS, check_spectra, grid_step, require_same_grid
+from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_step, require_same_grid
 
 #: Maximum luminous efficacy for photopic vision, lm/W (CIE 15:2004; 683 lm/W at 555 nm).
 K_M = 683.0
@@ -38,14 +38,18 @@ def _responses(observers, quantity: str) -> xr.DataArray:
     return observers
 
 
-def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -> xr.DataArray:
-    """Σ_λ spectra · responses · Δλ as one matrix product.
+def _wavelengths(array) -> np.ndarray:
+    """The wavelength coordinate values of a DataArray (without building a coordinate DataArray)."""
+    if "wavelength" in array.coords:
+        return np.asarray(array.coords.variables["wavelength"].values, dtype=float)
+    return as_wavelengths(array)
 
-    Output dims: the spectra's non-wavelength dims, then the responses' non-wavelength dims other
-    than ``channel_dim``, then ``channel_dim``. No Python loop over spectra or observers.
-    """
-    require_same_grid(spectra, responses, names=("spectra", "observer functions"))
-    step = grid_step(spectra)
+
+def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
+    """Σ_λ spectra · responses · Δλ as numpy values, with the output dims and coordinate variables."""
+    wl = _wavelengths(spectra)
+    require_same_grid(wl, _wavelengths(responses), names=("spectra", "observer functions"))
+    step = grid_step(wl)
     s_dims = [d for d in spectra.dims if d != "wavelength"]
     r_dims = [d for d in responses.dims if d not in ("wavelength", channel_dim)]
     shared = set(s_dims) & set(r_dims)
@@ -54,17 +58,27 @@ def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -
             f"spectra and observer functions share dims {sorted(shared)}; rename one "
             "(only 'wavelength' may be shared)"
         )
-    s = spectra.transpose(*s_dims, "wavelength").values
-    r = responses.transpose(*r_dims, channel_dim, "wavelength").values
+    s = spectra.variable.transpose(*s_dims, "wavelength").values
+    r = responses.variable.transpose(*r_dims, channel_dim, "wavelength").values
     n_w = s.shape[-1]
     out = (s.reshape(-1, n_w) @ r.reshape(-1, n_w).T) * step
     shape = s.shape[:-1] + r.shape[:-1]
     coords = {}
     for source in (spectra, responses):
-        for name, coord in source.coords.items():
+        for name, coord in source.coords.variables.items():
             if "wavelength" not in coord.dims and name not in coords:
                 coords[name] = coord
-    return xr.DataArray(out.reshape(shape), dims=(*s_dims, *r_dims, channel_dim), coords=coords)
+    return out.reshape(shape), (*s_dims, *r_dims, channel_dim), coords
+
+
+def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -> xr.DataArray:
+    """Σ_λ spectra · responses · Δλ as one matrix product.
+
+    Output dims: the spectra's non-wavelength dims, then the responses' non-wavelength dims other
+    than ``channel_dim``, then ``channel_dim``. No Python loop over spectra or observers.
+    """
+    values, dims, coords = _contract(spectra, responses, channel_dim)
+    return xr.DataArray(values, dims=dims, coords=coords)
 
 
 def tristimulus(
@@ -111,11 +125,11 @@ def tristimulus(
         raise MetasimError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
     check_spectra(spectra, where="spectra", non_negative=False)
     responses = _responses(observers, quantity)
-    values = contract(spectra, responses, channel)
-    if scale == "absolute":
-        values = values * K_M
-        units = "cd m-2" if spectra.attrs.get("units") == RADIANCE_UNITS else f"683 lm/W x ({spectra.attrs.get('units', '1')}) nm"
-    elif scale == "relative":
+    attrs = {"long_name": "tristimulus values" if quantity == "xyz" else "cone excitations",
+             "integration": "rectangle rule over the uniform wavelength grid"}
+    name = "tristimulus" if quantity == "xyz" else "cone_excitation"
+    if scale == "relative":
+        values = contract(spectra, responses, channel)
         if white is None:
             raise MetasimError("scale='relative' needs a stated white spectrum (white=...)")
         if set(white.dims) != {"wavelength"}:
@@ -125,16 +139,16 @@ def tristimulus(
         if (np.asarray(reference) <= 0).any():
             raise SpectrumError("the stated white has zero or negative response; it cannot set Y = 100")
         values = values * (100.0 / reference)
-        units = "1 (white Y = 100)"
+        values.attrs = {"units": "1 (white Y = 100)", **attrs}
+        values.name = name
+        return values
+    values, dims, coords = _contract(spectra, responses, channel)
+    if scale == "absolute":
+        values = values * K_M
+        units = "cd m-2" if spectra.attrs.get("units") == RADIANCE_UNITS else f"683 lm/W x ({spectra.attrs.get('units', '1')}) nm"
     else:
         units = f"({spectra.attrs.get('units', '1')}) nm"
-    values.attrs = {
-        "units": units,
-        "long_name": "tristimulus values" if quantity == "xyz" else "cone excitations",
-        "integration": "rectangle rule over the uniform wavelength grid",
-    }
-    values.name = "tristimulus" if quantity == "xyz" else "cone_excitation"
-    return values
+    return xr.DataArray(values, dims=dims, coords=coords, attrs={"units": units, **attrs}, name=name)
 
 
 def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray:
