@@ -6,6 +6,7 @@ import numba
 import numpy as np
 import xarray as xr
 
+from metasim.colorimetry.tristimulus import labelled
 from metasim.errors import MetasimError
 
 LAB = ("L*", "a*", "b*")
@@ -27,31 +28,45 @@ def _split(array: xr.DataArray, dim: str):
     return parts, labels
 
 
+def _xyz_columns(xyz: xr.DataArray):
+    """X, Y, Z as numpy arrays over the other dims (in order), those dims and their coordinates.
+
+    Coordinates that depend on the ``xyz`` dim are dropped, as selecting one component would.
+    """
+    dims = [d for d in xyz.dims if d != "xyz"]
+    values = xyz.variable.transpose(*dims, "xyz").values
+    return (values[..., 0], values[..., 1], values[..., 2]), dims
+
+
+def _chromaticity(first, second, xyz, dims, labels, long_name) -> xr.DataArray:
+    return labelled(np.stack([first, second], axis=-1), (*dims, "chromaticity"), (xyz,),
+                    labels={"chromaticity": labels}, attrs={"units": "1", "long_name": long_name}, name=xyz.name)
+
+
 def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
     """CIE 1931 xy chromaticity (dim ``chromaticity`` = x, y) from XYZ (CIE 15:2004 §7.3).
 
     Black (X + Y + Z = 0) gives NaN.
     """
     _need(xyz, "xyz", "xyz")
-    (x, y, z), _ = _split(xyz, "xyz")
+    if xyz.sizes["xyz"] != 3:
+        (x, y, z), _ = _split(xyz, "xyz")  # raises the unpacking error
+    (x, y, z), dims = _xyz_columns(xyz)
     total = x + y + z
     with np.errstate(invalid="ignore", divide="ignore"):
-        out = xr.concat([x / total, y / total], dim="chromaticity")
-    out = out.assign_coords(chromaticity=["x", "y"]).transpose(*[d for d in xyz.dims if d != "xyz"], "chromaticity")
-    out.attrs = {"units": "1", "long_name": "CIE 1931 xy chromaticity"}
-    return out
+        return _chromaticity(x / total, y / total, xyz, dims, ("x", "y"), "CIE 1931 xy chromaticity")
 
 
 def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
     """CIE 1976 u'v' chromaticity (dim ``chromaticity`` = u', v') from XYZ (CIE 15:2004 §8.1)."""
     _need(xyz, "xyz", "xyz")
-    (x, y, z), _ = _split(xyz, "xyz")
+    if xyz.sizes["xyz"] != 3:
+        (x, y, z), _ = _split(xyz, "xyz")  # raises the unpacking error
+    (x, y, z), dims = _xyz_columns(xyz)
     denominator = x + 15 * y + 3 * z
     with np.errstate(invalid="ignore", divide="ignore"):
-        out = xr.concat([4 * x / denominator, 9 * y / denominator], dim="chromaticity")
-    out = out.assign_coords(chromaticity=["u'", "v'"]).transpose(*[d for d in xyz.dims if d != "xyz"], "chromaticity")
-    out.attrs = {"units": "1", "long_name": "CIE 1976 u'v' chromaticity"}
-    return out
+        return _chromaticity(4 * x / denominator, 9 * y / denominator, xyz, dims, ("u'", "v'"),
+                             "CIE 1976 u'v' chromaticity")
 
 
 def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.DataArray:
@@ -170,6 +185,13 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     _need(white, "xyz", "white")
     if (np.asarray(white) <= 0).any():
         raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+    attrs = {"units": "1", "long_name": "CIELAB (CIE 1976 L*a*b*)"}
+    if _aligned(xyz, white):
+        # labels already agree: broadcast the bare variables by dim name, no alignment copies
+        ratio = xyz.variable / white.variable
+        dims = [d for d in ratio.dims if d != "xyz"]
+        return labelled(_lab_values(ratio.transpose(*dims, "xyz").values), (*dims, "lab"), (xyz, white),
+                        labels={"lab": LAB}, attrs=attrs)
     xyz = xyz.assign_coords(xyz=["X", "Y", "Z"])
     white = white.assign_coords(xyz=["X", "Y", "Z"])
     ratio = xyz / white
@@ -177,8 +199,24 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     ratio = ratio.transpose(*dims, "xyz")
     coords = {k: v for k, v in ratio.coords.items() if "xyz" not in v.dims}
     lab = xr.DataArray(_lab_values(ratio.values), dims=(*dims, "lab"), coords={**coords, "lab": list(LAB)})
-    lab.attrs = {"units": "1", "long_name": "CIELAB (CIE 1976 L*a*b*)"}
+    lab.attrs = attrs
     return lab
+
+
+def _aligned(a: xr.DataArray, b: xr.DataArray) -> bool:
+    """True when ``a / b`` needs no alignment: 3 components each, shared dims of one size and shared
+    coordinates identical (so xarray would neither reindex nor drop a conflicting coordinate)."""
+    if a.sizes["xyz"] != 3 or b.sizes["xyz"] != 3:
+        return False
+    if any(a.sizes[d] != b.sizes[d] for d in set(a.dims) & set(b.dims)):
+        return False
+    a_coords, b_coords = a.coords.variables, b.coords.variables
+    for name in set(a_coords) & set(b_coords):
+        if "xyz" in a_coords[name].dims or "xyz" in b_coords[name].dims:
+            continue
+        if not a_coords[name].identical(b_coords[name]):
+            return False
+    return True
 
 
 def lab_to_lch(lab: xr.DataArray) -> xr.DataArray:

@@ -6,6 +6,9 @@ method of colour-science's ``sd_to_XYZ`` (ASTM E308 weighting tables are not use
 
 from __future__ import annotations
 
+from functools import lru_cache
+from typing import Mapping, Sequence
+
 import numpy as np
 import xarray as xr
 
@@ -16,6 +19,43 @@ from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_
 K_M = 683.0
 
 SCALES = ("absolute", "relative", "none")
+
+
+@lru_cache(maxsize=64)
+def _label_coordinate(dim: str, labels: tuple) -> xr.Coordinates:
+    return xr.Coordinates({dim: list(labels)})
+
+
+def labelled(values, dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None,
+             attrs: dict | None = None, name=None) -> xr.DataArray:
+    """A DataArray of numpy ``values`` over ``dims``, labelled by the coordinates of ``sources``.
+
+    Every coordinate of the sources (DataArrays, Datasets or Coordinates; the first one holding a
+    name wins) that lies along ``dims`` only is kept with its existing index, so nothing is
+    realigned or re-indexed; ``labels`` adds dimension coordinates of fixed labels (for example
+    ``{"xyz": ("X", "Y", "Z")}``).
+    """
+    dims = tuple(dims)
+    allowed = set(dims)
+    variables, indexes = {}, {}
+    for source in sources:
+        coords = source if isinstance(source, xr.Coordinates) else source.coords
+        xindexes = coords.xindexes
+        for key, variable in coords.variables.items():
+            if key in variables or not set(variable.dims) <= allowed:
+                continue
+            variables[key] = variable
+            if key in xindexes:
+                indexes[key] = xindexes[key]
+    for dim, values_of_dim in (labels or {}).items():
+        fixed = _label_coordinate(dim, tuple(values_of_dim))
+        variables[dim] = fixed.variables[dim]
+        indexes[dim] = fixed.xindexes[dim]
+    # a one-variable Dataset takes the coordinates as they are (the DataArray constructor deep-copies them)
+    ds = xr.Dataset({"values": (dims, values, attrs)}, coords=xr.Coordinates(variables, indexes=indexes))
+    out = ds["values"]
+    out.name = name
+    return out
 
 
 def _responses(observers, quantity: str) -> xr.DataArray:
@@ -46,7 +86,7 @@ def _wavelengths(array) -> np.ndarray:
 
 
 def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
-    """Σ_λ spectra · responses · Δλ as numpy values, with the output dims and coordinate variables."""
+    """Σ_λ spectra · responses · Δλ as numpy values, with the output dims."""
     wl = _wavelengths(spectra)
     require_same_grid(wl, _wavelengths(responses), names=("spectra", "observer functions"))
     step = grid_step(wl)
@@ -62,13 +102,7 @@ def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
     r = responses.variable.transpose(*r_dims, channel_dim, "wavelength").values
     n_w = s.shape[-1]
     out = (s.reshape(-1, n_w) @ r.reshape(-1, n_w).T) * step
-    shape = s.shape[:-1] + r.shape[:-1]
-    coords = {}
-    for source in (spectra, responses):
-        for name, coord in source.coords.variables.items():
-            if "wavelength" not in coord.dims and name not in coords:
-                coords[name] = coord
-    return out.reshape(shape), (*s_dims, *r_dims, channel_dim), coords
+    return out.reshape(s.shape[:-1] + r.shape[:-1]), (*s_dims, *r_dims, channel_dim)
 
 
 def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -> xr.DataArray:
@@ -77,8 +111,8 @@ def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -
     Output dims: the spectra's non-wavelength dims, then the responses' non-wavelength dims other
     than ``channel_dim``, then ``channel_dim``. No Python loop over spectra or observers.
     """
-    values, dims, coords = _contract(spectra, responses, channel_dim)
-    return xr.DataArray(values, dims=dims, coords=coords)
+    values, dims = _contract(spectra, responses, channel_dim)
+    return labelled(values, dims, (spectra, responses))
 
 
 def tristimulus(
@@ -142,13 +176,13 @@ def tristimulus(
         values.attrs = {"units": "1 (white Y = 100)", **attrs}
         values.name = name
         return values
-    values, dims, coords = _contract(spectra, responses, channel)
+    values, dims = _contract(spectra, responses, channel)
     if scale == "absolute":
         values = values * K_M
         units = "cd m-2" if spectra.attrs.get("units") == RADIANCE_UNITS else f"683 lm/W x ({spectra.attrs.get('units', '1')}) nm"
     else:
         units = f"({spectra.attrs.get('units', '1')}) nm"
-    return xr.DataArray(values, dims=dims, coords=coords, attrs={"units": units, **attrs}, name=name)
+    return labelled(values, dims, (spectra, responses), attrs={"units": units, **attrs}, name=name)
 
 
 def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray:
