@@ -88,10 +88,8 @@ def as_study(ds: xr.Dataset) -> xr.Dataset:
     """A result with the study layout: a plain mismatch Dataset gains a one-entry ``design`` dim."""
     if "delta_e_2000" in ds and "design" not in ds["delta_e_2000"].dims:
         name = str(ds.attrs.get("test", "design"))
-        names = [v for v in ds.data_vars if "observer" in ds[v].dims or "stimulus" in ds[v].dims
-                 or v.startswith("delta_e") or v.startswith("share_beyond")]
         ds = ds.copy()
-        for v in names:
+        for v in list(ds.data_vars):
             ds[v] = ds[v].expand_dims(design=[name])
     return ds
 

@@ -179,6 +179,13 @@ def _print_headline(result) -> None:
 
 # -- parser ------------------------------------------------------------------------------------------
 
+class Parser(argparse.ArgumentParser):
+    """argparse with usage errors on one line: ``metasim: error: ... (see 'metasim demo --help')``."""
+
+    def error(self, message):
+        self.exit(2, f"{PROG}: error: {' '.join(message.split())} (see '{self.prog} --help')\n")
+
+
 EXAMPLES = {
     "demo": "example:\n  metasim demo --out metasim-demo\n  metasim demo --out quick-demo --size 200 --seed 5",
     "observers": ("examples:\n  metasim observers --out audience.nc --size 1000 --ages 20-70 --seed 7\n"
@@ -223,7 +230,7 @@ def _study_options(parser) -> None:
 
 
 def build_parser() -> argparse.ArgumentParser:
-    parser = argparse.ArgumentParser(
+    parser = Parser(
         prog=PROG, formatter_class=argparse.RawDescriptionHelpFormatter,
         description="Spectral simulation of observer-dependent metamerism for display design.",
         epilog="start with:\n  metasim demo --out metasim-demo\nthen 'metasim <command> --help' for each command.")

@@ -224,11 +224,11 @@ def display_from_spec(spec: dict) -> Display:
     settings = spec_settings(spec)
     tables = spec.get("primary")
     where = str(spec["_path"])
-    if not isinstance(tables, list) or len(tables) < 3:
-        count = len(tables) if isinstance(tables, list) else 0
-        raise SpecError(f"{where}: {count} [[primary]] tables; a display needs at least 3")
+    tables = tables if isinstance(tables, list) else []
     grid = default_grid()
     parts = [primary_spectrum(spec, table, i, grid) for i, table in enumerate(tables)]
+    if len(parts) < 3:
+        raise SpecError(f"{where}: {len(parts)} [[primary]] tables; a display needs at least 3")
     labels = [p.name for p in parts]
     if len(set(labels)) != len(labels):
         raise SpecError(f"{where}: primary labels {labels} repeat; each needs a unique label")

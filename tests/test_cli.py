@@ -1,0 +1,200 @@
+"""The metasim command, run as a user runs it: in a subprocess, on small cases.
+
+Populations are kept small (120-150 observers) so the whole file stays well under a minute and a
+half on two cores; the demo's headline numbers are checked with ranges only a working pipeline
+reaches, not copies of its output.
+"""
+
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+import metasim
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "data" / "demo"
+FOUR_LASER = DEMO / "projector_four_laser.toml"
+LASER_PHOSPHOR = DEMO / "projector_laser_phosphor.toml"
+MONITOR = DEMO / "grading_monitor.toml"
+
+
+def run(*args, cwd=None, check=True):
+    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
+    done = subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
+                          cwd=cwd, env=env, timeout=300)
+    if check and done.returncode != 0:
+        raise AssertionError(f"metasim {' '.join(map(str, args))} failed ({done.returncode}):\n{done.stderr}")
+    return done
+
+
+def assert_one_line_error(done):
+    assert done.returncode != 0
+    assert "Traceback" not in done.stderr
+    lines = [line for line in done.stderr.splitlines() if line.strip()]
+    errors = [line for line in lines if line.startswith("metasim: error:")]
+    assert len(errors) == 1, done.stderr
+    assert all(line.startswith("metasim: ") for line in lines), done.stderr
+
+
+@pytest.fixture(scope="module")
+def workdir(tmp_path_factory):
+    return tmp_path_factory.mktemp("cli")
+
+
+@pytest.fixture(scope="module")
+def population_file(workdir):
+    path = workdir / "audience.nc"
+    run("observers", "--out", path, "--size", 120, "--seed", 3, "--ages", "20-70", "--quiet")
+    return path
+
+
+def test_observers_writes_a_population(population_file):
+    population = metasim.load_dataset(population_file)
+    assert population.sizes["observer"] == 120
+    ages = population["age_years"].values
+    assert ages.min() >= 20 and ages.max() <= 70
+    assert population.attrs["seed"] == 3
+
+
+def test_observers_categories_with_report(workdir):
+    out, html = workdir / "groups.nc", workdir / "groups.html"
+    run("observers", "--out", out, "--size", 60, "--seed", 1, "--categories", 4, "--report", html, "--quiet")
+    groups = metasim.load_dataset(out)
+    assert groups.sizes["observer"] == 4
+    assert np.isclose(groups["weight"].values.sum(), 1.0)  # shares of the population (definition)
+    assert "data:image/png;base64," in html.read_text()
+
+
+@pytest.fixture(scope="module")
+def evaluated(workdir, population_file):
+    out = workdir / "evaluate"
+    done = run("evaluate", FOUR_LASER, "--reference", MONITOR, "--observers", population_file,
+               "--stimuli", "primaries,ramp:3", "--no-choices", "--no-report", "--out", out)
+    return out, done
+
+
+def test_evaluate_against_a_reference_display(evaluated):
+    out, done = evaluated
+    assert "metasim: [" in done.stderr  # progress lines
+    result = metasim.load_dataset(out / "study.nc")
+    assert list(result["display_role"].values) == ["reference", "design"]
+    assert result.sizes["design"] == 1 and result.sizes["observer"] == 120
+    assert {"delta_e_2000", "gamut_coverage", "lab_volume", "area_gain_share"} <= set(result.data_vars)
+    assert not (out / "report.html").exists()
+
+
+def test_report_of_a_study_file(workdir, evaluated):
+    out, _ = evaluated
+    html, figures = workdir / "evaluate.html", workdir / "evaluate-figures"
+    run("report", out / "study.nc", "--out", html, "--figures", figures, "--quiet")
+    text = html.read_text()
+    assert text.count("data:image/png;base64,") >= 5
+    assert "CIE 170-1" in text and "cie1931_2" in text  # the models used are stated
+    assert {p.name for p in figures.glob("*.png")} >= {
+        "chromaticity.png", "spectra.png", "age_bands.png", "p95_by_stimulus.png", "extra_primary.png"}
+
+
+def test_evaluate_against_real_objects(workdir, population_file):
+    out = workdir / "objects"
+    run("evaluate", LASER_PHOSPHOR, "--observers", population_file, "--no-choices", "--no-report", "--out", out,
+        "--quiet")
+    result = metasim.load_dataset(out / "study.nc")
+    assert result.attrs["reference_kind"] == "objects"
+    assert result.sizes["stimulus"] == 14  # the CIE 13.3 test colour samples (CIE 13.3-1995)
+    assert not (out / "report.html").exists()
+
+
+def test_compare_second_against_first(workdir, population_file):
+    out = workdir / "compare"
+    run("compare", MONITOR, FOUR_LASER, "--observers", population_file, "--stimuli", "primaries",
+        "--no-choices", "--no-report", "--out", out, "--quiet")
+    result = metasim.load_dataset(out / "study.nc")
+    assert result.sizes["display"] == 2 and result.sizes["design"] == 1
+    assert str(result["design"].values[0]) == "Four-laser projector (candidate A)"
+    assert result.attrs["reference"] == "Grading monitor (reference)"
+
+
+def test_demo_headline_numbers(workdir):
+    out = workdir / "demo"
+    done = run("demo", "--out", out, "--size", 150, "--seed", 11)
+    assert "95th percentile" in done.stdout
+    result = metasim.load_dataset(out / "study.nc")
+    p95 = result["delta_e_2000_overall"].sel(statistic="p95")
+    laser, hybrid = (float(p95.sel(design=d)) for d in result["design"].values)
+    # narrow lines against a broadband reference mismatch more than broadband primaries:
+    # fact of the trade, common practice, no source
+    assert laser > 1.5 * hybrid
+    assert 3.0 < laser < 30.0 and 1.0 < hybrid < 15.0  # population spread is visible, not absurd (common practice, no source)
+    share = result["share_beyond_overall"].sel(threshold=2.0)
+    assert share.sel(design=result["design"].values[0]) > share.sel(design=result["design"].values[1])
+    area = result["gamut_area_xy"]
+    assert float(area.isel(display=1)) > float(area.isel(display=0))  # four lasers span more than the monitor (geometry)
+    assert float(result["gamut_coverage"].isel(display=1).sel(reference_gamut="bt709")) > 0.999
+    assert 0.0 < float(result["gamut_coverage"].isel(display=0).sel(reference_gamut="bt2020")) < 1.0
+    gain = result["area_gain_share"].isel(design=0)
+    best = float(gain["peak_wavelength"][int(gain.argmax("peak_wavelength"))])
+    assert 480.0 <= best <= 525.0  # the cyan gap between blue and green lines of an RGB laser set (geometry)
+    assert np.isfinite(result["delta_e_2000_by_age"].values).all()
+    text = (out / "report.html").read_text()
+    assert text.count("data:image/png;base64,") >= 5
+    assert "IEC 60825-1" in text and "IEC 62471" in text
+    assert "Kestrel Lane Post" in text
+
+
+def test_help_shows_worked_examples():
+    for command in ("demo", "observers", "evaluate", "compare", "report"):
+        done = run(command, "--help")
+        assert "example" in done.stdout and f"metasim {command}" in done.stdout
+
+
+def test_bad_inputs_give_one_line_errors(workdir):
+    bad_spec = workdir / "bad.toml"
+    bad_spec.write_text('name = "x"\n[[primary]]\nlabel = "A"\ntype = "plasma"\n')
+    cases = [
+        ("evaluate", workdir / "missing.toml"),  # missing file
+        ("evaluate", bad_spec),                 # bad spec: unknown primary type
+        ("demo", "--frobnicate"),               # unknown option
+    ]
+    for case in cases:
+        assert_one_line_error(run(*case, check=False))
+    assert run("demo", "--frobnicate", check=False).returncode == 2
+
+
+@pytest.mark.parametrize("args", [
+    ("report", str(DEMO / "stimuli.csv")),             # not a result file
+    ("observers", "--out", "x.nc", "--ages", "5-90"),  # outside the model's ages
+    ("observers", "--out", "x.txt"),                   # wrong output kind
+    ("evaluate", str(FOUR_LASER), "--stimuli", "rainbow"),  # unknown stimulus set
+])
+def test_bad_inputs_in_process(args, capsys, tmp_path, monkeypatch):
+    from metasim.cli import main
+
+    monkeypatch.chdir(tmp_path)
+    code = main([*args, "--quiet"])
+    err = capsys.readouterr().err
+    assert code == 1
+    assert err.count("\n") == 1 and err.startswith("metasim: error:")
+
+
+def test_spec_errors_name_the_problem(tmp_path):
+    from metasim.cli.specs import SpecError, load_display
+
+    cases = {
+        'name = "x"\n': "at least 3",
+        'transfer = "log"\n': "transfer 'log' is not known",
+        '[[primary]]\nlabel = "A"\ntype = "laser"\npeak = 500\n': "unknown key 'peak'",
+        '[[primary]]\nlabel = "A"\ntype = "gaussian"\npeak_nm = 500\n': "missing key 'fwhm_nm'",
+        '[[primary]]\nlabel = "A"\ntype = "filter"\ncentre_nm = 500\nwidth_nm = 40\n': "[backlight]",
+        '[[primary]]\nlabel = "A"\ntype = "measured"\nfile = "none.csv"\n': "none.csv",
+    }
+    for text, expected in cases.items():
+        path = tmp_path / "spec.toml"
+        path.write_text(text)
+        with pytest.raises(SpecError, match=None) as info:
+            load_display(path)
+        assert expected in str(info.value), str(info.value)
+        assert "\n" not in str(info.value)
