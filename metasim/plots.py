@@ -168,6 +168,7 @@ def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = 
         wl = spectra["wavelength"].values
         for ax, name in zip(axes[:, 0], names):
             block = spectra.sel(display=name).transpose("primary", "wavelength")
+            used = []
             for i in range(block.sizes["primary"]):
                 values = block.values[i]
                 if not np.isfinite(values).all():
@@ -175,7 +176,10 @@ def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = 
                 label = str(primary_label.sel(display=name).values[i]) if primary_label is not None else str(block.primary.values[i])
                 xy = primary_xy.sel(display=name).transpose("primary", "chromaticity").values[i] if primary_xy is not None else np.array([np.nan, np.nan])
                 peak = wl[int(np.argmax(values))]
-                ax.plot(wl, values, color=_primary_colour(xy), lw=1.5, label=f"{label} (peak {peak:.0f} nm)")
+                colour = _primary_colour(xy)
+                style = "--" if colour in used else "-"  # two primaries of one hue: tell them apart
+                used.append(colour)
+                ax.plot(wl, values, color=colour, ls=style, lw=1.5, label=f"{label} (peak {peak:.0f} nm)")
             ax.set_title(name, loc="left")
             ax.set_ylabel(f"Radiance\n({units})")
             ax.set_ylim(bottom=0)

@@ -11,7 +11,21 @@ Subcommands::
 
 (A batch-sweep subcommand is planned; it will sit beside these as one more entry in COMMANDS.)
 
-Displays are described in TOML design spec files: see :mod:`metasim.cli.specs` for the format.
+Displays are described in TOML design spec files (full format: :mod:`metasim.cli.specs` and
+``data/demo/README.md``), for example::
+
+    name = "Four-laser projector"
+    transfer = "gamma"
+    gamma = 2.6
+    peak_luminance = 48
+    white = "D65"
+
+    [[primary]]
+    label = "B"
+    type = "laser"          # laser | gaussian | led | quantum_dot | filter | measured
+    peak_nm = 465
+    linewidth_nm = 1.0
+    # ... one [[primary]] table per primary, at least three
 Studies are assembled by :mod:`metasim.cli.study`; nothing in this package models anything.
 
 Errors from bad input (unknown options, missing or malformed files, bad specs, values outside what
