@@ -99,7 +99,7 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
     locus = spectrum_locus(observer)["polygon"].transpose("vertex", "chromaticity").values
     cmf = observer["cmf"].transpose("wavelength", "xyz")
     with rc_context(STYLE):
-        fig, axes = _figure(6.4, 6.2)
+        fig, axes = _figure(9.0, 6.2)
         ax = axes[0, 0]
         ring = _closed(locus)
         ax.fill(ring[:, 0], ring[:, 1], color="#f4f1ea", zorder=0)
@@ -135,7 +135,7 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
         ax.set_xlabel("x (CIE 1931 chromaticity, unitless)")
         ax.set_ylabel("y (CIE 1931 chromaticity, unitless)")
         ax.set_title("Chromaticity gamuts")
-        ax.legend(loc="upper right", frameon=False)
+        ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), frameon=False, fontsize="small")
     return fig
 
 
