@@ -26,7 +26,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import FileFormatError, StimulusError
-from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv, resample
+from metasim.spectra import WAVELENGTH_ATTRS, _is_number, check_wavelengths, default_grid, read_spectra_csv, resample
 
 KINDS = ("rgb", "xyz", "reflectance")
 RGB = ("R", "G", "B")
@@ -235,14 +235,6 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
     if kind == "rgb":
         return rgb_set(np.array(rows), labels, source=source, encoding=encoding, description=f"RGB from {path.name}")
     return xyz_set(np.array(rows), labels, description=f"XYZ from {path.name}")
-
-
-def _is_number(text: str) -> bool:
-    try:
-        float(text)
-    except ValueError:
-        return False
-    return True
 
 
 __all__ = [
