@@ -26,39 +26,44 @@ def _label_coordinate(dim: str, labels: tuple) -> xr.Coordinates:
     return xr.Coordinates({dim: list(labels)})
 
 
-def labelled(values, dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None,
-             attrs: dict | None = None, name=None) -> xr.DataArray:
-    """A DataArray of numpy ``values`` over ``dims``, labelled by the coordinates of ``sources``.
+def coordinates(dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None) -> xr.Coordinates:
+    """The coordinates of ``sources`` that lie along ``dims`` only, with their existing indexes.
 
-    Every coordinate of the sources (DataArrays, Datasets or Coordinates; the first one holding a
-    name wins) that lies along ``dims`` only is kept with its existing index, so nothing is
-    realigned or re-indexed; ``labels`` adds dimension coordinates of fixed labels (for example
-    ``{"xyz": ("X", "Y", "Z")}``).
+    Sources are DataArrays, Datasets or Coordinates; the first one holding a name wins. ``labels``
+    adds dimension coordinates of fixed labels (for example ``{"xyz": ("X", "Y", "Z")}``), which
+    take precedence over a source coordinate of the same name. Nothing is realigned or re-indexed.
     """
-    dims = tuple(dims)
     allowed = set(dims)
+    labels = labels or {}
     variables, indexes = {}, {}
     for source in sources:
         coords = source if isinstance(source, xr.Coordinates) else source.coords
         xindexes = coords.xindexes
         for key, variable in coords.variables.items():
-            if key in variables or not set(variable.dims) <= allowed:
+            if key in variables or key in labels or not set(variable.dims) <= allowed:
                 continue
             variables[key] = variable
             if key in xindexes:
                 indexes[key] = xindexes[key]
-    for dim, values_of_dim in (labels or {}).items():
+    for dim, values_of_dim in labels.items():
         fixed = _label_coordinate(dim, tuple(values_of_dim))
         variables[dim] = fixed.variables[dim]
         indexes[dim] = fixed.xindexes[dim]
+    return xr.Coordinates(variables, indexes=indexes)
+
+
+def labelled(values, dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None,
+             attrs: dict | None = None, name=None) -> xr.DataArray:
+    """A DataArray of numpy ``values`` over ``dims``, labelled by :func:`coordinates` of ``sources``."""
+    dims = tuple(dims)
     # a one-variable Dataset takes the coordinates as they are (the DataArray constructor deep-copies them)
-    ds = xr.Dataset({"values": (dims, values, attrs)}, coords=xr.Coordinates(variables, indexes=indexes))
-    out = ds["values"]
+    ds = xr.Dataset({"__labelled__": (dims, values, attrs)}, coords=coordinates(dims, sources, labels=labels))
+    out = ds["__labelled__"]
     out.name = name
     return out
 
 
-def _responses(observers, quantity: str) -> xr.DataArray:
+def observer_responses(observers, quantity: str = "xyz") -> xr.DataArray:
     """The observer functions to integrate against (``[observer,] <quantity> × wavelength``)."""
     if isinstance(observers, xr.Dataset):
         variable = "cmf" if quantity == "xyz" else "lms"
@@ -85,11 +90,16 @@ def _wavelengths(array) -> np.ndarray:
     return as_wavelengths(array)
 
 
-def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
-    """Σ_λ spectra · responses · Δλ as numpy values, with the output dims."""
+def grid_of(spectra: xr.DataArray, responses: xr.DataArray) -> float:
+    """The grid step (nm) of ``spectra`` after checking that ``responses`` share its grid."""
     wl = _wavelengths(spectra)
     require_same_grid(wl, _wavelengths(responses), names=("spectra", "observer functions"))
-    step = grid_step(wl)
+    return grid_step(wl)
+
+
+def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
+    """Σ_λ spectra · responses · Δλ as numpy values, with the output dims."""
+    step = grid_of(spectra, responses)
     s_dims = [d for d in spectra.dims if d != "wavelength"]
     r_dims = [d for d in responses.dims if d not in ("wavelength", channel_dim)]
     shared = set(s_dims) & set(r_dims)
@@ -158,7 +168,7 @@ def tristimulus(
     if channel is None:
         raise MetasimError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
     check_spectra(spectra, where="spectra", non_negative=False)
-    responses = _responses(observers, quantity)
+    responses = observer_responses(observers, quantity)
     attrs = {"long_name": "tristimulus values" if quantity == "xyz" else "cone excitations",
              "integration": "rectangle rule over the uniform wavelength grid"}
     name = "tristimulus" if quantity == "xyz" else "cone_excitation"
@@ -190,4 +200,5 @@ def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray
     return tristimulus(spectra, observers, quantity="lms", **kwargs)
 
 
-__all__ = ["K_M", "SCALES", "contract", "tristimulus", "cone_excitations"]
+__all__ = ["K_M", "SCALES", "contract", "tristimulus", "cone_excitations", "coordinates", "labelled",
+           "observer_responses", "grid_of"]

@@ -39,12 +39,15 @@ import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
-from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab
-from metasim.errors import DisplayError
+from metasim.colorimetry import tristimulus
+from metasim.colorimetry.difference import delta_e_2000_array
+from metasim.colorimetry.tristimulus import K_M, coordinates, grid_of, labelled, observer_responses
+from metasim.errors import DisplayError, MetasimError
 from metasim.spectra import integrate
 from metasim.display.model import Display, observer_name, resolve_observer
 from metasim.display.solvers import box_qp, equality_box_qp
-from metasim.display.sources import rgb_to_xyz
+from metasim.display.sources import rgb_to_xyz, source_light
+from metasim.display.transfer import check_transfer, eotf_inverse_values
 
 STRATEGIES = ("min_norm", "max_efficiency", "population")
 _EPSILON = 216.0 / 24389.0
@@ -52,6 +55,7 @@ _KAPPA = 24389.0 / 27.0
 _TIE_BREAK = 1e-6
 _CLIP_WEIGHT = 1e-6
 _FEASIBILITY = 1e-9
+XYZ = ("X", "Y", "Z")
 
 
 def lab_jacobian(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
@@ -249,52 +253,80 @@ def solve_drive(
     if strategy not in STRATEGIES:
         raise DisplayError(f"strategy={strategy!r} is not known; allowed: {', '.join(STRATEGIES)}")
     obs, obs_name = _calibration_observer(display, observer)
-    white_xyz = display.white_tristimulus(obs)
+    spectra = display.spectra
+    batch = display.batch_dims
+    batch_sizes = {d: spectra.sizes[d] for d in batch}
+    P = int(np.prod(list(batch_sizes.values()), dtype=int))
+    N = spectra.sizes["primary"]
+    responses, primaries, bk, white = _optics(display, spectra, obs, batch, P, N)
+    y_white = white[:, 1]
+    coord_sources = [spectra, display.black, responses]
     rgb_args = None
     if rgb is not None:
         if target is not None:
             raise DisplayError("give either target (XYZ) or rgb (source signals), not both")
         rgb_args = {"rgb": rgb, "source": source, "encoding": encoding}
-        target = rgb_to_xyz(rgb, source, encoding=encoding, white_luminance=white_xyz.sel(xyz="Y", drop=True),
-                            peak_luminance=float(display.peak_luminance.max()))
+        light, relative, matrix, light_dims = source_light(rgb, source, encoding,
+                                                           peak_luminance=float(display.peak_luminance.values.max()))
+        light, stim, stim_shape = _layout(xr.Variable((*light_dims, "primary"), light), rgb, spectra, batch_sizes,
+                                          "primary")
+        if light is None:  # labels of a shared batch dim differ: the xarray route
+            target = rgb_to_xyz(rgb, source, encoding=encoding,
+                                white_luminance=_labelled_white(white, batch_sizes, coord_sources).sel(xyz="Y", drop=True),
+                                peak_luminance=float(display.peak_luminance.max()))
+        else:
+            light = light.reshape(P, -1, 3)
+            if relative:
+                light = light * y_white[:, None, None]
+            t_abs = np.einsum("xp,...p->...x", matrix, light)
+            coord_sources = [rgb, *coord_sources]
     elif target is None:
         if not isinstance(reference, xr.DataArray):
             raise DisplayError("give target (XYZ in cd/m2), rgb (source signals) or reference spectra")
         target = tristimulus(reference, obs)
-    if not isinstance(target, xr.DataArray) or "xyz" not in target.dims:
-        raise DisplayError("target must be a DataArray with an 'xyz' dim (X, Y, Z in cd/m2)")
-    if not np.isfinite(target.values).all():
+    if target is not None:
+        if not isinstance(target, xr.DataArray) or "xyz" not in target.dims:
+            raise DisplayError("target must be a DataArray with an 'xyz' dim (X, Y, Z in cd/m2)")
+        if not np.isfinite(target.values).all():
+            raise DisplayError("target XYZ must be finite numbers (cd/m2)")
+        if target.sizes["xyz"] != 3:
+            target.assign_coords(xyz=["X", "Y", "Z"])  # raises xarray's error for the wrong size
+        values, stim, stim_shape = _layout(target.variable, target, spectra, batch_sizes, "xyz")
+        if values is None:  # labels of a shared batch dim differ: align as xarray does
+            template = _labelled_white(white, batch_sizes, coord_sources)
+            target_b = target.assign_coords(xyz=["X", "Y", "Z"]).broadcast_like(template)
+            values = target_b.transpose(*batch, *stim, "xyz").values
+            stim_shape = [target_b.sizes[d] for d in stim]
+            coord_sources = [target_b]
+        else:
+            coord_sources = [target, *coord_sources]
+        t_abs = values.reshape(P, -1, 3)
+    elif not np.isfinite(t_abs).all():
         raise DisplayError("target XYZ must be finite numbers (cd/m2)")
-    target = target.assign_coords(xyz=["X", "Y", "Z"])
-
-    batch = display.batch_dims
-    stim = [d for d in target.dims if d != "xyz" and d not in batch]
-    primaries = display.primary_tristimulus(obs)
-    black = display.black_tristimulus(obs)
-    target_b = target.broadcast_like(primaries.isel(primary=0, drop=True)).transpose(*batch, *stim, "xyz")
-    P = int(np.prod([primaries.sizes[d] for d in batch], dtype=int))
-    N = display.n_primaries
-    stim_shape = [target_b.sizes[d] for d in stim]
-    S = int(np.prod(stim_shape, dtype=int))
-    y_white = _flat(white_xyz.sel(xyz="Y", drop=True), batch, []).reshape(P)
-    A = _flat(primaries, batch, ["xyz", "primary"]).reshape(P, 3, N) / y_white[:, None, None]
-    bk = _flat(black.broadcast_like(primaries.isel(primary=0, drop=True)), batch, ["xyz"]).reshape(P, 3)
-    t_abs = target_b.values.reshape(P, S, 3)
+    S = t_abs.shape[1]
+    dims = (*batch, *stim)
+    base = coordinates(dims, coord_sources)
+    if len(coord_sources) > 1:  # xarray's alignment would keep the display's labels of its batch dims
+        base = _prefer(base, spectra, batch)
+    A = primaries / y_white[:, None, None]
     b = (t_abs - bk[:, None]) / y_white[:, None, None]
 
     if strategy == "min_norm":
         H = np.broadcast_to(np.eye(N), (P, 1, N, N))
         f = np.zeros((P, S, N))
     elif strategy == "max_efficiency":
-        power = integrate(display.spectra) if primary_power is None else primary_power
-        power = _flat(power.broadcast_like(primaries.isel(xyz=0, drop=True)), batch, ["primary"]).reshape(P, N)
+        power = integrate(spectra) if primary_power is None else primary_power
+        power = _flat(power.broadcast_like(spectra.isel(wavelength=0, drop=True)), batch, ["primary"]).reshape(P, N)
         if (power < 0).any() or not np.isfinite(power).all():
             raise DisplayError("primary_power must be finite and >= 0 for every primary")
         H = np.broadcast_to(_TIE_BREAK * np.eye(N), (P, 1, N, N))
         f = np.broadcast_to((power / power.max(-1, keepdims=True))[:, None, :], (P, S, N)).copy()
     else:
-        H, f = _population_objective(display, population, reference, reference_white, rgb_args, target,
-                                     obs, batch, stim)
+        if target is None:
+            target = labelled(t_abs.reshape([*batch_sizes.values(), *stim_shape, 3]), (*dims, "xyz"), [base],
+                              labels={"xyz": XYZ})
+        H, f = _population_objective(display, population, reference, reference_white, rgb_args,
+                                     target.assign_coords(xyz=["X", "Y", "Z"]), obs, batch, stim)
         H = H.reshape(P, S, N, N)
         f = f.reshape(P, S, N)
         norm = np.trace(H, axis1=-2, axis2=-1)[..., None] / N
@@ -307,7 +339,7 @@ def solve_drive(
     outside = ~inside
     if outside.any():
         p_idx, s_idx = np.nonzero(outside)
-        white_n = _flat(white_xyz, batch, ["xyz"]).reshape(P, 3) / y_white[:, None]
+        white_n = white / y_white[:, None]
         H_s = H[p_idx, s_idx if H.shape[1] > 1 else 0]
         f_s = f[p_idx, s_idx]
         clipped = _clip(A[p_idx], bk[p_idx] / y_white[p_idx, None], t_abs[p_idx, s_idx] / y_white[p_idx, None],
@@ -321,34 +353,137 @@ def solve_drive(
         drive[p_idx, s_idx] = np.where(ok[p_idx, position, None], again[p_idx, position], clipped)
 
     achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
-    return _result(display, drive, achieved, t_abs, outside, white_xyz, batch, stim, target_b, primaries,
-                   strategy=strategy, observer=obs_name)
+    return _result(display, spectra, drive, achieved, t_abs, outside, white, batch, dims,
+                   [*batch_sizes.values(), *stim_shape], base, strategy=strategy, observer=obs_name)
 
 
-def _result(display, drive, achieved, t_abs, outside, white_xyz, batch, stim, target_b, primaries, **attrs):
-    sizes = [target_b.sizes[d] for d in (*batch, *stim)]
-    coords = {k: v for k, v in target_b.coords.items() if set(v.dims) <= set((*batch, *stim))}
-    coords["primary"] = primaries.coords["primary"]
-    dims = (*batch, *stim)
-    drive_da = xr.DataArray(drive.reshape(sizes + [display.n_primaries]), dims=(*dims, "primary"), coords=coords,
-                            attrs={"units": "1", "long_name": "linear drive value"})
-    xyz_coords = {**{k: v for k, v in coords.items() if k != "primary"}, "xyz": ["X", "Y", "Z"]}
-    achieved_da = xr.DataArray(achieved.reshape(sizes + [3]), dims=(*dims, "xyz"), coords=xyz_coords,
-                               attrs={"units": "cd m-2", "long_name": "reproduced tristimulus values"})
-    target_da = xr.DataArray(t_abs.reshape(sizes + [3]), dims=(*dims, "xyz"), coords=xyz_coords,
-                             attrs={"units": "cd m-2", "long_name": "target tristimulus values"})
-    residual = achieved_da - target_da
-    residual.attrs = {"units": "cd m-2", "long_name": "reproduced minus target tristimulus values"}
-    white = white_xyz.transpose(*batch, "xyz")
-    de = delta_e_2000(xyz_to_lab(achieved_da, white), xyz_to_lab(target_da, white))
-    de.attrs = {"units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}
-    flag = xr.DataArray(outside.reshape(sizes), dims=dims, coords={k: v for k, v in xyz_coords.items() if k != "xyz"},
-                        attrs={"long_name": "target outside the display gamut (clipped)", "units": "1"})
-    signal = display.encode(drive_da)
-    ds = xr.Dataset({"drive": drive_da, "signal": signal, "reproduced": achieved_da, "target": target_da,
-                     "residual_xyz": residual, "residual_delta_e": de, "out_of_gamut": flag})
-    ds.attrs = {"model": "drive decomposition", "strategy": attrs["strategy"], "observer": attrs["observer"],
-                "display": display.name, "metasim_version": __version__}
+def _optics(display: Display, spectra: xr.DataArray, obs: xr.Dataset, batch, P: int, N: int):
+    """The calibration observer's functions and, in cd/m², the XYZ of the primaries (P, 3, N), of
+    black (P, 3) and of the white (P, 3): Display.primary/black/white_tristimulus on numpy values."""
+    responses = observer_responses(obs, "xyz")
+    step = grid_of(spectra, responses)
+    extra = [d for d in responses.dims if d not in ("wavelength", "xyz")]
+    shared = set(batch) & set(extra)
+    if shared:
+        raise MetasimError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
+                           "(only 'wavelength' may be shared)")
+    if extra:
+        raise DisplayError(f"the calibration observer's functions vary along {extra}; give one observer "
+                           "(dims xyz, wavelength)")
+    cmf = responses.variable.transpose("xyz", "wavelength").values
+    W = cmf.shape[-1]
+    sizes = {d: spectra.sizes[d] for d in batch}
+    rows = spectra.variable.transpose(*batch, "primary", "wavelength").values.reshape(P, N, W)
+    black_var = display.black.variable
+    black_dims = [d for d in batch if d in black_var.dims]
+    black_rows = black_var.transpose(*black_dims, "wavelength").values
+    white_rows = np.asarray(black_var.set_dims({**sizes, "wavelength": W}).values).reshape(P, W) + rows.sum(axis=1)
+
+    def xyz(values):  # the products of the separate tristimulus calls, row shapes included
+        return (values.reshape(-1, W) @ cmf.T) * step * K_M
+
+    primaries = np.swapaxes(xyz(rows).reshape(P, N, 3), -1, -2)
+    black = xr.Variable((*black_dims, "xyz"), xyz(black_rows).reshape(*black_rows.shape[:-1], 3))
+    black = np.asarray(black.set_dims({**sizes, "xyz": 3}).values).reshape(P, 3)
+    return responses, primaries, black, xyz(white_rows)
+
+
+def _prefer(coords: xr.Coordinates, spectra: xr.DataArray, batch) -> xr.Coordinates:
+    """``coords`` with the display's own labels for its batch dims."""
+    swap = [d for d in batch if d in spectra.xindexes and d in coords.xindexes]
+    if not swap:
+        return coords
+    variables, indexes = dict(coords.variables), dict(coords.xindexes)
+    for d in swap:
+        variables[d] = spectra.coords.variables[d]
+        indexes[d] = spectra.xindexes[d]
+    return xr.Coordinates(variables, indexes=indexes)
+
+
+def _layout(variable: xr.Variable, array: xr.DataArray, spectra: xr.DataArray, batch_sizes: dict, last: str):
+    """Values of ``variable`` (the data of ``array``) as (*batch, *stimulus dims, last), the stimulus
+    dims and their sizes; values None when a batch dim shared with the display carries other labels
+    (then xarray must align)."""
+    stim = [d for d in variable.dims if d != last and d not in batch_sizes]
+    stim_shape = [variable.sizes[d] for d in stim]
+    for d in set(batch_sizes) & set(array.dims):
+        if array.sizes[d] != batch_sizes[d] or (
+                d in array.xindexes and d in spectra.xindexes and not array.xindexes[d].equals(spectra.xindexes[d])):
+            return None, stim, stim_shape
+    shape = {**batch_sizes, **dict(zip(stim, stim_shape)), last: variable.sizes[last]}
+    return np.asarray(variable.set_dims(shape).values), stim, stim_shape
+
+
+def _labelled_white(white: np.ndarray, batch_sizes: dict, sources) -> xr.DataArray:
+    """The display white XYZ as a labelled (*batch, xyz) DataArray (for the xarray fallbacks)."""
+    return labelled(white.reshape([*batch_sizes.values(), 3]), (*batch_sizes, "xyz"), sources, labels={"xyz": XYZ},
+                    attrs={"units": "cd m-2"})
+
+
+def _signal_values(display: Display, drive: np.ndarray, batch, P: int) -> np.ndarray | None:
+    """Display.encode of drives (P, S, N) on numpy values; None if the peak luminance varies along
+    dims the display's spectra lack (then the labelled route applies)."""
+    peak_da = display.peak_luminance
+    if set(peak_da.dims) - set(batch):
+        return None
+    peak_max = float(peak_da.values.max())
+    transfer, gamma, black = display.transfer, display.gamma, display.black_luminance
+    if transfer in ("pq", "hlg"):
+        peak = np.asarray(peak_da.variable.set_dims({d: display.spectra.sizes[d] for d in batch}).values).reshape(P)
+        light = drive * peak[:, None, None]
+        check_transfer(transfer, gamma=gamma, peak_luminance=peak_max, black_luminance=black)
+        weights = None
+        if transfer == "hlg":
+            w = display.luminance_weights()
+            if set(w.dims) - {*batch, "primary"}:
+                return None
+            weights = np.asarray(w.variable.set_dims({**{d: display.spectra.sizes[d] for d in batch},
+                                                      "primary": display.n_primaries}).values)
+            weights = weights.reshape(P, 1, display.n_primaries)
+    else:
+        light, peak_max, black = drive, 1.0, black / peak_max
+        check_transfer(transfer, gamma=gamma, peak_luminance=1.0, black_luminance=black)
+        weights = None
+    if not np.isfinite(light).all():
+        raise DisplayError("light contains non-finite values; values must be finite numbers")
+    return eotf_inverse_values(light, transfer, peak_max, black, gamma, weights)
+
+
+def _result(display, spectra, drive, achieved, t_abs, outside, white, batch, dims, sizes, base, **attrs):
+    """The solution Dataset, built once from numpy values and the stimuli's coordinates ``base``."""
+    N = drive.shape[-1]
+    if (white <= 0).any():
+        raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+    de = delta_e_2000_array(_lab(achieved, white[:, None]), _lab(t_abs, white[:, None]))
+    primary = xr.Coordinates({"primary": spectra.coords.variables["primary"]},
+                             indexes={"primary": spectra.xindexes["primary"]})
+    coords = coordinates((*dims, "primary", "xyz"), (base, primary), labels={"xyz": XYZ})
+    signal = _signal_values(display, drive, batch, drive.shape[0])
+    if signal is None:
+        drive_da = xr.DataArray(drive.reshape(sizes + [N]), dims=(*dims, "primary"), coords=coords)
+        signal = display.encode(drive_da).transpose(*dims, "primary").values
+    xyz_attrs = {"units": "cd m-2"}
+    ds = xr.Dataset(
+        {
+            "drive": ((*dims, "primary"), drive.reshape(sizes + [N]),
+                      {"units": "1", "long_name": "linear drive value"}),
+            "signal": ((*dims, "primary"), np.reshape(signal, sizes + [N]),
+                       {"units": "1", "long_name": f"encoded drive signal ({display.transfer})"}),
+            "reproduced": ((*dims, "xyz"), achieved.reshape(sizes + [3]),
+                           {**xyz_attrs, "long_name": "reproduced tristimulus values"}),
+            "target": ((*dims, "xyz"), t_abs.reshape(sizes + [3]),
+                       {**xyz_attrs, "long_name": "target tristimulus values"}),
+            "residual_xyz": ((*dims, "xyz"), (achieved - t_abs).reshape(sizes + [3]),
+                             {**xyz_attrs, "long_name": "reproduced minus target tristimulus values"}),
+            "residual_delta_e": (dims, de.reshape(sizes), {
+                "units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}),
+            "out_of_gamut": (dims, outside.reshape(sizes),
+                             {"long_name": "target outside the display gamut (clipped)", "units": "1"}),
+        },
+        coords=coords,
+        attrs={"model": "drive decomposition", "strategy": attrs["strategy"], "observer": attrs["observer"],
+               "display": display.name, "metasim_version": __version__},
+    )
     return ds
 
 

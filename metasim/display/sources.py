@@ -22,11 +22,13 @@ RP 177-1993 (normalised primary matrix).
 
 from __future__ import annotations
 
+from functools import lru_cache
+
 import numpy as np
 import xarray as xr
 
 from metasim.errors import DisplayError
-from metasim.display.transfer import check_transfer, eotf
+from metasim.display.transfer import BT2100_WEIGHTS, check_transfer, eotf, eotf_values
 
 _D65 = (0.3127, 0.3290)
 #: name -> (R, G, B chromaticities, white chromaticity, default encoding)
@@ -45,13 +47,8 @@ def _space(source: str):
     return SOURCE_SPACES[source]
 
 
-def source_matrix(source: str) -> xr.DataArray:
-    """RGB→XYZ normalised primary matrix of a source space (dims ``xyz`` × ``primary`` = R, G, B).
-
-    References
-    ----------
-    SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities).
-    """
+@lru_cache(maxsize=None)
+def _matrix_values(source: str) -> np.ndarray:
     primaries, white, _ = _space(source)
     xy = np.asarray(primaries, dtype=float)
     columns = np.stack([xy[:, 0] / xy[:, 1], np.ones(3), (1 - xy[:, 0] - xy[:, 1]) / xy[:, 1]])
@@ -59,7 +56,19 @@ def source_matrix(source: str) -> xr.DataArray:
     white_xyz = np.array([wx / wy, 1.0, (1 - wx - wy) / wy])
     gains = np.linalg.solve(columns, white_xyz)
     matrix = columns * gains[None, :]
-    return xr.DataArray(matrix, dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
+    matrix.flags.writeable = False
+    return matrix
+
+
+def source_matrix(source: str) -> xr.DataArray:
+    """RGB→XYZ normalised primary matrix of a source space (dims ``xyz`` × ``primary`` = R, G, B).
+
+    References
+    ----------
+    SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities).
+    """
+    _space(source)
+    return xr.DataArray(_matrix_values(source).copy(), dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
                         attrs={"units": "1", "long_name": f"{source} RGB to XYZ matrix (white Y = 1)"})
 
 
@@ -106,6 +115,33 @@ def rgb_to_xyz(rgb: xr.DataArray, source: str = "bt709", *, encoding: str | None
     xyz.attrs = {"units": "cd m-2", "long_name": f"tristimulus values of {source} RGB ({encoding})"}
     xyz.name = "target"
     return xyz
+
+
+def source_light(rgb, source: str, encoding: str | None, *, peak_luminance: float, gamma: float = 2.2):
+    """Validated numpy decoding of source RGB, as :func:`rgb_to_xyz` does it before the white scaling.
+
+    Returns the light (``rgb``'s dims with ``primary`` moved last; relative, RGB = 1 → 1, for SDR
+    encodings, cd/m² for ``pq`` and ``hlg``), whether it is relative, the RGB→XYZ matrix (3 × 3)
+    and the dims of the light without ``primary``. Raises the errors of :func:`rgb_to_xyz`.
+    """
+    _, _, default = _space(source)
+    encoding = default if encoding is None else encoding
+    check_transfer(encoding, gamma=gamma)
+    if not isinstance(rgb, xr.DataArray) or "primary" not in rgb.dims or rgb.sizes["primary"] != 3:
+        raise DisplayError("source RGB must be a DataArray with a 'primary' dim of size 3 (R, G, B)")
+    dims = [d for d in rgb.dims if d != "primary"]
+    values = rgb.variable.transpose(*dims, "primary").values
+    if encoding == "pq":
+        peak, relative = check_transfer("pq"), False
+    elif encoding == "hlg":
+        peak, relative = check_transfer("hlg", gamma=2.2, peak_luminance=peak_luminance), False
+    else:
+        peak, relative = check_transfer(encoding, gamma=gamma, peak_luminance=1.0), True
+    if not np.isfinite(np.asarray(values, dtype=float)).all():
+        raise DisplayError("signal contains non-finite values; values must be finite numbers")
+    weights = np.asarray(BT2100_WEIGHTS) if encoding == "hlg" else None
+    light = eotf_values(values, encoding, peak, 0.0, gamma, weights)
+    return light, relative, _matrix_values(source), dims
 
 
 __all__ = ["SOURCE_SPACES", "RGB", "source_matrix", "rgb_to_xyz"]

@@ -127,6 +127,56 @@ def _as_array(value, what: str) -> xr.DataArray:
     return array
 
 
+def eotf_values(v: np.ndarray, transfer: str, peak: float, black_luminance: float, gamma: float,
+                weights: np.ndarray | None = None) -> np.ndarray:
+    """:func:`eotf` on numpy values with validated float parameters (the same formulas).
+
+    For HLG, ``weights`` broadcast against ``v`` with the channels on the last axis (None: the
+    signal is achromatic, as a DataArray without a channel dim).
+    """
+    if transfer == "srgb":
+        return peak * np.where(v <= 0.04045, v / 12.92, _spow((v + 0.055) / 1.055, 2.4))
+    if transfer == "gamma":
+        return peak * _spow(v, gamma)
+    if transfer == "linear":
+        return peak * v
+    if transfer == "bt1886":
+        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
+        return n**2.4 * np.maximum(v + black_luminance ** (1 / 2.4) / n, 0.0) ** 2.4
+    if transfer == "pq":
+        vp = _spow(v, 1.0 / _M2)
+        return _PQ_PEAK * _spow(np.maximum(vp - _C1, 0.0) / (_C2 - _C3 * vp), 1.0 / _M1)
+    system_gamma = _hlg_gamma(peak)
+    beta = _hlg_beta(peak, black_luminance, system_gamma)
+    scene = _hlg_oetf_inverse(np.maximum((1 - beta) * v + beta, 0.0))
+    y_s = scene if weights is None else np.nansum(scene * weights, axis=-1, keepdims=True)
+    return peak * scene * np.abs(y_s) ** (system_gamma - 1.0)
+
+
+def eotf_inverse_values(light: np.ndarray, transfer: str, peak: float, black_luminance: float, gamma: float,
+                        weights: np.ndarray | None = None) -> np.ndarray:
+    """:func:`eotf_inverse` on numpy values with validated float parameters (see :func:`eotf_values`)."""
+    if transfer == "srgb":
+        rel = light / peak
+        return np.where(rel <= 0.0031308, rel * 12.92, 1.055 * _spow(rel, 1 / 2.4) - 0.055)
+    if transfer == "gamma":
+        return _spow(light / peak, 1.0 / gamma)
+    if transfer == "linear":
+        return light / peak
+    if transfer == "bt1886":
+        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
+        return _spow(light / n**2.4, 1 / 2.4) - black_luminance ** (1 / 2.4) / n
+    if transfer == "pq":
+        y = _spow(light / _PQ_PEAK, _M1)
+        return _spow((_C1 + _C2 * y) / (1 + _C3 * y), _M2)
+    system_gamma = _hlg_gamma(peak)
+    beta = _hlg_beta(peak, black_luminance, system_gamma)
+    y_d = light if weights is None else np.nansum(light * weights, axis=-1, keepdims=True)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        scene = np.where(y_d == 0, 0.0, np.abs(y_d / peak) ** ((1 - system_gamma) / system_gamma) * light / peak)
+    return (_hlg_oetf(scene) - beta) / (1 - beta)
+
+
 def eotf(signal, transfer: str, *, peak_luminance: float | None = None, black_luminance: float = 0.0,
          gamma: float = 2.2, luminance_weights=None, channel_dim: str = "primary") -> xr.DataArray:
     """Electro-optical transfer function: encoded signal V (0..1) → display light in cd/m².
@@ -215,4 +265,5 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
     return signal
 
 
-__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse"]
+__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse",
+           "eotf_values", "eotf_inverse_values"]
