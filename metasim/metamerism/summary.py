@@ -24,10 +24,17 @@ AGE_BANDS = (20, 30, 40, 50, 60, 70, 80)
 
 def weighted_quantile(values: np.ndarray, weights: np.ndarray | None, q: float, axis: int) -> np.ndarray:
     """Quantile ``q`` (0..1) along ``axis``; NaN entries are ignored."""
+    return _quantiles(values, weights, (q,), axis)[0]
+
+
+def _quantiles(values: np.ndarray, weights: np.ndarray | None, qs, axis: int, has_nan: bool | None = None) -> np.ndarray:
+    """Quantiles ``qs`` along ``axis`` in one pass (one partition or sort): shape (len(qs), ...)."""
+    if has_nan is None:
+        has_nan = bool(np.isnan(values).any())
     if weights is None:
-        if np.isnan(values).any():
-            return np.nanquantile(values, q, axis=axis)
-        return np.quantile(values, q, axis=axis)
+        if has_nan:
+            return np.nanquantile(values, list(qs), axis=axis)
+        return np.quantile(values, list(qs), axis=axis)
     moved = np.moveaxis(values, axis, -1)
     w = np.broadcast_to(weights, moved.shape).astype(float)
     w = np.where(np.isnan(moved), 0.0, w)
@@ -39,31 +46,24 @@ def weighted_quantile(values: np.ndarray, weights: np.ndarray | None, q: float, 
     flat_v = v.reshape(-1, v.shape[-1])
     flat_p = position.reshape(-1, v.shape[-1])
     flat_w = ws.reshape(-1, v.shape[-1])
-    out = np.empty(flat_v.shape[0])
+    qs = np.asarray(qs, dtype=float)
+    out = np.empty((qs.size, flat_v.shape[0]))
     for i in range(flat_v.shape[0]):  # one interpolation per summary cell; cells are few
         keep = flat_w[i] > 0
-        out[i] = np.interp(q, flat_p[i][keep], flat_v[i][keep]) if keep.any() else np.nan
-    return out.reshape(v.shape[:-1])
+        out[:, i] = np.interp(qs, flat_p[i][keep], flat_v[i][keep]) if keep.any() else np.nan
+    return out.reshape(qs.size, *v.shape[:-1])
 
 
 def _stats(values: np.ndarray, weights: np.ndarray | None, axis: int) -> np.ndarray:
+    has_nan = bool(np.isnan(values).any())
     if weights is None:
-        mean = np.nanmean(values, axis=axis) if np.isnan(values).any() else np.mean(values, axis=axis)
+        mean = np.nanmean(values, axis=axis) if has_nan else np.mean(values, axis=axis)
     else:
         moved = np.moveaxis(values, axis, -1)
         w = np.where(np.isnan(moved), 0.0, np.broadcast_to(weights, moved.shape))
         mean = np.nansum(moved * w, -1) / np.where(w.sum(-1) > 0, w.sum(-1), np.nan)
-    return np.stack([
-        mean,
-        weighted_quantile(values, weights, 0.5, axis),
-        weighted_quantile(values, weights, 0.95, axis),
-        np.nanmax(values, axis=axis),
-    ])
-
-
-def _statistic_array(values, dims, coords, long_name):
-    return xr.DataArray(values, dims=("statistic", *dims), coords={"statistic": list(STATISTICS), **coords},
-                        attrs={"units": "1", "long_name": long_name})
+    median, p95 = _quantiles(values, weights, (0.5, 0.95), axis, has_nan)
+    return np.stack([mean, median, p95, np.nanmax(values, axis=axis) if has_nan else np.max(values, axis=axis)])
 
 
 def observer_weights(delta_e: xr.DataArray) -> np.ndarray | None:
@@ -94,28 +94,29 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
         if dim not in delta_e.dims:
             raise MetasimError(f"summaries need an '{dim}' dim, got {tuple(delta_e.dims)}")
     rest = [d for d in delta_e.dims if d not in ("observer", "stimulus")]
-    arr = delta_e.transpose("observer", "stimulus", *rest)
-    values = np.asarray(arr.values, dtype=float)
+    variable = delta_e.variable.transpose("observer", "stimulus", *rest)
+    values = np.asarray(variable.values, dtype=float)
     weights = observer_weights(delta_e)
-    rest_coords = {d: arr.coords[d] for d in rest if d in arr.coords}
+    coords_in = delta_e.coords
+    labelled_dims = ["stimulus", *[d for d in rest if d in coords_in], "observer"]
+    given = {d: coords_in.variables[d] for d in labelled_dims}  # KeyError for unlabelled stimuli or observers
+    statistic_attrs = {"units": "1"}
     out = {}
-    out[f"{name}_by_stimulus"] = _statistic_array(
-        _stats(values, weights, 0), ("stimulus", *rest), {"stimulus": arr.coords["stimulus"], **rest_coords},
-        "statistics over observers, per stimulus")
-    by_observer = _stats(np.moveaxis(values, 1, 0), None, 0)
-    out[f"{name}_by_observer"] = _statistic_array(
-        by_observer, ("observer", *rest), {"observer": arr.coords["observer"], **rest_coords},
-        "statistics over stimuli, per observer")
-    if "age_years" in arr.coords and age_bands:
+    out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), _stats(values, weights, 0),
+                                  {**statistic_attrs, "long_name": "statistics over observers, per stimulus"})
+    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), _stats(np.moveaxis(values, 1, 0), None, 0),
+                                  {**statistic_attrs, "long_name": "statistics over stimuli, per observer"})
+    fixed = {"statistic": list(STATISTICS)}
+    if "age_years" in coords_in and age_bands:
         edges = np.asarray(age_bands, dtype=float)
         if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
             raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
-        ages = np.asarray(arr.coords["age_years"].values, dtype=float)
-        labels, blocks, counts = [], [], []
+        ages = np.asarray(coords_in.variables["age_years"].values, dtype=float)
+        band_labels, blocks, counts = [], [], []
         for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
             last = i == edges.size - 2
             inside = (ages >= lo) & ((ages <= hi) if last else (ages < hi))
-            labels.append(_band_label(lo, hi, last))
+            band_labels.append(_band_label(lo, hi, last))
             counts.append(int(inside.sum()))
             if not inside.any():
                 blocks.append(np.full((len(STATISTICS), *values.shape[2:]), np.nan))
@@ -123,26 +124,30 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
             block = values[inside].reshape(-1, *values.shape[2:])
             w = None if weights is None else np.repeat(weights[inside], values.shape[1])
             blocks.append(_stats(block, w, 0))
-        out[f"{name}_by_age"] = _statistic_array(
-            np.stack(blocks, axis=1), ("age_band", *rest), {"age_band": labels, **rest_coords},
-            "statistics over all observer x stimulus pairs in each age band")
-        out["observers_per_age_band"] = xr.DataArray(counts, dims="age_band", coords={"age_band": labels},
-                                                     attrs={"units": "1", "long_name": "observers in each age band"})
+        out[f"{name}_by_age"] = (("statistic", "age_band", *rest), np.stack(blocks, axis=1), {
+            **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band"})
+        out["observers_per_age_band"] = ("age_band", np.asarray(counts),
+                                         {"units": "1", "long_name": "observers in each age band"})
+        fixed["age_band"] = band_labels
     t = np.asarray(thresholds, dtype=float)
     w = np.ones(values.shape[0]) if weights is None else weights
     w = w / w.sum()
     above = values[None] > t.reshape(-1, *([1] * values.ndim))  # (threshold, observer, stimulus, ...)
     share = np.tensordot(above.astype(float), w, axes=([1], [0]))
-    out["share_beyond"] = xr.DataArray(share, dims=("threshold", "stimulus", *rest),
-                                       coords={"threshold": t, "stimulus": arr.coords["stimulus"], **rest_coords},
-                                       attrs={"units": "1", "long_name": "share of observers beyond each threshold",
-                                              "thresholds_source": "common practice, no source"})
-    out["share_beyond_overall"] = xr.DataArray(share.mean(axis=1), dims=("threshold", *rest),
-                                               coords={"threshold": t, **rest_coords},
-                                               attrs={"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold"})
-    ds = xr.Dataset(out)
-    ds["threshold"].attrs = {"units": "1", "long_name": "CIE 2000 difference threshold"}
-    return ds
+    out["share_beyond"] = (("threshold", "stimulus", *rest), share,
+                           {"units": "1", "long_name": "share of observers beyond each threshold",
+                            "thresholds_source": "common practice, no source"})
+    out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1),
+                                   {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold"})
+    fixed["threshold"] = xr.Variable("threshold", t, {"units": "1", "long_name": "CIE 2000 difference threshold"})
+    new = xr.Coordinates(fixed)
+    # one Dataset from (dims, values, attrs) and the dimension coordinates only (as before: the
+    # observers' other coordinates are not summarised), the given ones with their indexes
+    variables = {**new.variables, **given}
+    indexes = {**new.xindexes, **{d: coords_in.xindexes[d] for d in given if d in coords_in.xindexes}}
+    order = [d for d in ("statistic", "stimulus", *rest, "observer", "age_band", "threshold") if d in variables]
+    coords = xr.Coordinates({d: variables[d] for d in order}, indexes={d: indexes[d] for d in order if d in indexes})
+    return xr.Dataset(out, coords=coords)
 
 
 __all__ = ["STATISTICS", "THRESHOLDS", "AGE_BANDS", "weighted_quantile", "summarise", "observer_weights"]
