@@ -23,7 +23,7 @@ import xarray as xr
 
 from metasim.colorimetry import xy_to_xyz
 from metasim.errors import DisplayError
-from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.model import Display, observer_name, observer_optics, resolve_observer
 from metasim.display.solvers import equality_box_qp
 
 #: Named white points (CIE 1931 xy), IEC 61966-2-1 / CIE 15:2004 4-decimal values.
@@ -98,18 +98,19 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     if not np.isfinite(target_luminance.values).all() or (target_luminance.values <= 0).any():
         raise DisplayError(f"luminance={luminance!r} cd/m2 is not allowed; must be finite and > 0")
     xy = white_xy(white)
-    target = xy_to_xyz(xy, target_luminance)
-    primaries = display.primary_tristimulus(obs)
-    black = display.black_tristimulus(obs)
     batch = display.batch_dims
-    need = target - black
-    extra = [d for d in need.dims if d != "xyz" and d not in batch]
-    if extra:
-        raise DisplayError(f"calibration target varies along {extra}; only the display's dims {batch} may vary")
-    need = need.broadcast_like(primaries.isel(primary=0, drop=True))
+    spectra = display.spectra
     n = display.n_primaries
-    A = primaries.transpose(*batch, "xyz", "primary").values.reshape(-1, 3, n)
-    b = need.transpose(*batch, "xyz").values.reshape(-1, 3)
+    sizes = {d: spectra.sizes[d] for d in batch}
+    target = _target_values(xy, target_luminance, spectra, sizes)
+    if target is None:  # labels to align or dims to refuse: the labelled route
+        need, A = _need_labelled(display, obs, xy, target_luminance, batch)
+        b = need.transpose(*batch, "xyz").values.reshape(-1, 3)
+        xy_rows = xy.broadcast_like(need.isel(xyz=0, drop=True)).transpose(*batch, "chromaticity").values
+    else:
+        _, A, black, _ = observer_optics(display, obs)
+        b = target - black
+        xy_rows = np.asarray(xy.variable.set_dims({**sizes, "chromaticity": xy.sizes["chromaticity"]}).values)
     scale = np.abs(b).max(-1, keepdims=True)
     A_n, b_n = A / scale[..., None], b / scale
     uniform = b_n[:, 1] / A_n[:, 1].sum(-1)
@@ -118,19 +119,21 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     gains, ok = equality_box_qp(H, f, A_n, b_n[:, None, :], np.zeros(n), np.full(n, np.inf), tol=1e-9)
     if not ok.all():
         i = int(np.argmin(ok[:, 0]))
-        xy_i = xy.broadcast_like(need.isel(xyz=0, drop=True)).transpose(*batch, "chromaticity").values.reshape(-1, 2)[i]
+        xy_i = xy_rows.reshape(-1, 2)[i]
         where = f" (design #{i})" if batch else ""
         raise DisplayError(
             f"white (x, y) = ({xy_i[0]:.4f}, {xy_i[1]:.4f}) cannot be reached with non-negative primary gains"
             f"{where} for observer {observer_name(observer)!r}; allowed: a white inside the primaries' gamut"
         )
     gains = gains[:, 0]
-    shape = [display.spectra.sizes[d] for d in batch]
-    gain = xr.DataArray(gains.reshape(shape + [n]), dims=(*batch, "primary"),
-                        coords={d: display.spectra.coords[d] for d in (*batch, "primary") if d in display.spectra.coords})
-    spectra = (display.spectra * gain).transpose(*display.spectra.dims)
-    spectra.attrs = dict(display.spectra.attrs)
-    total_gain = (display.to_dataset()["primary_gain"] * gain).transpose(*batch, "primary")
+    shape = [spectra.sizes[d] for d in batch]
+    gain_values = gains.reshape(shape + [n])
+    scaled = spectra.variable.transpose(*batch, "primary", "wavelength").values * gain_values[..., None]
+    new_spectra = spectra.copy(data=xr.Variable((*batch, "primary", "wavelength"), scaled)
+                               .transpose(*spectra.dims).values)
+    new_spectra.attrs = dict(spectra.attrs)
+    primary_gain = display._ds["primary_gain"].transpose(*batch, "primary")
+    total_gain = primary_gain.copy(data=primary_gain.values * gain_values)
     total_gain.attrs = {"units": "1", "long_name": "gain applied to each primary by white calibration"}
     peak = target_luminance.astype(float) * xr.ones_like(display.peak_luminance)
     peak.attrs = {"units": "cd m-2", "long_name": "nominal white luminance (all drives 1)"}
@@ -139,7 +142,40 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
              "calibration_white_xy": xy_values.tolist() if xy_values.ndim == 1 else "per design",
              "calibration_luminance": float(target_luminance.values) if target_luminance.ndim == 0 else "per design",
              "calibration_method": "white balance, N>3: gains closest to uniform (metasim)"}
-    return display.replace(spectra=spectra, primary_gain=total_gain, peak_luminance=peak, attrs=attrs)
+    return display.replace(spectra=new_spectra, primary_gain=total_gain, peak_luminance=peak, attrs=attrs)
+
+
+def _target_values(xy: xr.DataArray, luminance: xr.DataArray, spectra: xr.DataArray, sizes: dict):
+    """Target white XYZ (P, 3) from xy and luminance on numpy values (the formulas of
+    :func:`metasim.colorimetry.xy_to_xyz`), or None unless their dims and labels already agree with
+    the display's batch dims (then xarray must align them, or refuse them)."""
+    xy_dims = [d for d in xy.dims if d != "chromaticity"]
+    if not set(xy_dims) <= set(sizes) or not set(luminance.dims) <= set(xy_dims):
+        return None
+    for array in (xy, luminance):
+        for d in set(array.dims) & set(sizes):
+            if array.sizes[d] != spectra.sizes[d]:
+                return None
+            if d in array.xindexes and d in spectra.xindexes and not array.xindexes[d].equals(spectra.xindexes[d]):
+                return None
+    x = xy.sel(chromaticity="x", drop=True).variable
+    y = xy.sel(chromaticity="y", drop=True).variable
+    big_y = x * 0 + luminance.variable
+    xyz = xr.Variable.concat([x * big_y / y, big_y, (1 - x - y) * big_y / y], dim="xyz")
+    return np.asarray(xyz.set_dims({**sizes, "xyz": 3}).values).reshape(-1, 3)
+
+
+def _need_labelled(display: Display, obs, xy, target_luminance, batch):
+    """The labelled route of the target white minus black, for inputs xarray must align or refuse."""
+    target = xy_to_xyz(xy, target_luminance)
+    primaries = display.primary_tristimulus(obs)
+    black = display.black_tristimulus(obs)
+    need = target - black
+    extra = [d for d in need.dims if d != "xyz" and d not in batch]
+    if extra:
+        raise DisplayError(f"calibration target varies along {extra}; only the display's dims {batch} may vary")
+    need = need.broadcast_like(primaries.isel(primary=0, drop=True))
+    return need, primaries.transpose(*batch, "xyz", "primary").values.reshape(-1, 3, display.n_primaries)
 
 
 __all__ = ["WHITE_POINTS", "white_xy", "calibrate_white"]

@@ -41,10 +41,10 @@ import xarray as xr
 from metasim._version import __version__
 from metasim.colorimetry import tristimulus
 from metasim.colorimetry.difference import delta_e_2000_array
-from metasim.colorimetry.tristimulus import K_M, coordinates, grid_of, labelled, observer_responses
+from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.errors import DisplayError, MetasimError
 from metasim.spectra import integrate
-from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.model import Display, observer_name, observer_optics, resolve_observer
 from metasim.display.solvers import box_qp, equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light
 from metasim.display.transfer import check_transfer, eotf_inverse_values
@@ -258,7 +258,7 @@ def solve_drive(
     batch_sizes = {d: spectra.sizes[d] for d in batch}
     P = int(np.prod(list(batch_sizes.values()), dtype=int))
     N = spectra.sizes["primary"]
-    responses, primaries, bk, white = _optics(display, spectra, obs, batch, P, N)
+    responses, primaries, bk, white = observer_optics(display, obs)
     y_white = white[:, 1]
     coord_sources = [spectra, display.black, responses]
     rgb_args = None
@@ -355,37 +355,6 @@ def solve_drive(
     achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
     return _result(display, spectra, drive, achieved, t_abs, outside, white, batch, dims,
                    [*batch_sizes.values(), *stim_shape], base, strategy=strategy, observer=obs_name)
-
-
-def _optics(display: Display, spectra: xr.DataArray, obs: xr.Dataset, batch, P: int, N: int):
-    """The calibration observer's functions and, in cd/m², the XYZ of the primaries (P, 3, N), of
-    black (P, 3) and of the white (P, 3): Display.primary/black/white_tristimulus on numpy values."""
-    responses = observer_responses(obs, "xyz")
-    step = grid_of(spectra, responses)
-    extra = [d for d in responses.dims if d not in ("wavelength", "xyz")]
-    shared = set(batch) & set(extra)
-    if shared:
-        raise MetasimError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
-                           "(only 'wavelength' may be shared)")
-    if extra:
-        raise DisplayError(f"the calibration observer's functions vary along {extra}; give one observer "
-                           "(dims xyz, wavelength)")
-    cmf = responses.variable.transpose("xyz", "wavelength").values
-    W = cmf.shape[-1]
-    sizes = {d: spectra.sizes[d] for d in batch}
-    rows = spectra.variable.transpose(*batch, "primary", "wavelength").values.reshape(P, N, W)
-    black_var = display.black.variable
-    black_dims = [d for d in batch if d in black_var.dims]
-    black_rows = black_var.transpose(*black_dims, "wavelength").values
-    white_rows = np.asarray(black_var.set_dims({**sizes, "wavelength": W}).values).reshape(P, W) + rows.sum(axis=1)
-
-    def xyz(values):  # the products of the separate tristimulus calls, row shapes included
-        return (values.reshape(-1, W) @ cmf.T) * step * K_M
-
-    primaries = np.swapaxes(xyz(rows).reshape(P, N, 3), -1, -2)
-    black = xr.Variable((*black_dims, "xyz"), xyz(black_rows).reshape(*black_rows.shape[:-1], 3))
-    black = np.asarray(black.set_dims({**sizes, "xyz": 3}).values).reshape(P, 3)
-    return responses, primaries, black, xyz(white_rows)
 
 
 def _prefer(coords: xr.Coordinates, spectra: xr.DataArray, batch) -> xr.Coordinates:

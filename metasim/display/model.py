@@ -34,10 +34,11 @@ import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
-from metasim.errors import DisplayError
-from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
-from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, require_same_grid
+from metasim.errors import DisplayError, MetasimError
+from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
+from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
 from metasim.colorimetry import tristimulus, xyz_to_xy
+from metasim.colorimetry.tristimulus import K_M, grid_of, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
 ASSUMPTION = ("channel additivity: emitted radiance = black + sum over primaries of drive x full-drive "
@@ -58,7 +59,7 @@ def _check_primaries(spectra: xr.DataArray) -> None:
     if len(set(labels)) != n:
         raise DisplayError(f"primary labels {labels} repeat; each primary needs a unique label")
     batch = _batch_dims(spectra)
-    values = spectra.transpose(*batch, "primary", "wavelength").values.reshape(-1, n, spectra.sizes["wavelength"])
+    values = spectra.variable.transpose(*batch, "primary", "wavelength").values.reshape(-1, n, spectra.sizes["wavelength"])
     norms = np.linalg.norm(values, axis=-1)
     if (norms <= 0).any():
         b, p = np.argwhere(norms <= 0)[0]
@@ -72,8 +73,9 @@ def _check_primaries(spectra: xr.DataArray) -> None:
         raise DisplayError(
             f"primaries {labels[p]!r} and {labels[q]!r} have the same spectral shape; primaries must differ"
         )
-    cmf = standard_observer("cie1931_2", spectra.coords["wavelength"].values)
-    xyz = tristimulus(spectra, cmf, scale="none").transpose(*batch, "primary", "xyz").values.reshape(-1, n, 3)
+    wavelengths = spectra.coords.variables["wavelength"].values
+    cmf = standard_cmf("cie1931_2", wavelengths)
+    xyz = (values.reshape(-1, values.shape[-1]) @ cmf.T * grid_step(wavelengths)).reshape(-1, n, 3)
     total = xyz.sum(-1)
     if (total <= 0).any():
         b, p = np.argwhere(total <= 0)[0]
@@ -248,8 +250,8 @@ class Display:
         """A new Display with some variables or attributes replaced (``attrs=`` updates attributes)."""
         ds = self._ds.copy()
         attrs = variables.pop("attrs", None)
-        for key, value in variables.items():
-            ds[key] = value
+        if variables:
+            ds.update(variables)  # one merge for all of them
         if attrs:
             ds.attrs.update(attrs)
         return Display(ds)
@@ -287,6 +289,45 @@ def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
     if isinstance(observer, xr.Dataset) and "cmf" in observer:
         return observer
     raise DisplayError("observer must be a standard observer name or an observer Dataset with a 'cmf' variable")
+
+
+def observer_optics(display: "Display", observer: xr.Dataset):
+    """One observer's functions and, in cd/m², the XYZ of a display's primaries (P, 3, N), black
+    (P, 3) and white (P, 3) as numpy arrays, P the product of the batch dims (in their order).
+
+    The same validation, products and values as :meth:`Display.primary_tristimulus`,
+    :meth:`Display.black_tristimulus` and :meth:`Display.white_tristimulus` for an observer
+    Dataset (variable ``cmf`` with dims ``xyz`` and ``wavelength`` only).
+    """
+    spectra = display.spectra
+    batch = _batch_dims(spectra)
+    P = int(np.prod([spectra.sizes[d] for d in batch], dtype=int))
+    N = spectra.sizes["primary"]
+    responses = observer_responses(observer, "xyz")
+    step = grid_of(spectra, responses)
+    extra = [d for d in responses.dims if d not in ("wavelength", "xyz")]
+    shared = set(batch) & set(extra)
+    if shared:
+        raise MetasimError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
+                           "(only 'wavelength' may be shared)")
+    if extra:
+        raise DisplayError(f"the observer's functions vary along {extra}; give one observer (dims xyz, wavelength)")
+    cmf = responses.variable.transpose("xyz", "wavelength").values
+    W = cmf.shape[-1]
+    sizes = {d: spectra.sizes[d] for d in batch}
+    rows = spectra.variable.transpose(*batch, "primary", "wavelength").values.reshape(P, N, W)
+    black_var = display._ds["black"].variable
+    black_dims = [d for d in batch if d in black_var.dims]
+    black_rows = black_var.transpose(*black_dims, "wavelength").values
+    white_rows = np.asarray(black_var.set_dims({**sizes, "wavelength": W}).values).reshape(P, W) + rows.sum(axis=1)
+
+    def xyz(values):  # the products of the separate tristimulus calls, row shapes included
+        return (values.reshape(-1, W) @ cmf.T) * step * K_M
+
+    primaries = np.swapaxes(xyz(rows).reshape(P, N, 3), -1, -2)
+    black = xr.Variable((*black_dims, "xyz"), xyz(black_rows).reshape(*black_rows.shape[:-1], 3))
+    black = np.asarray(black.set_dims({**sizes, "xyz": 3}).values).reshape(P, 3)
+    return responses, primaries, black, xyz(white_rows)
 
 
 def observer_name(observer) -> str:

@@ -85,6 +85,17 @@ def standard_observer(name: str, wavelengths=None) -> xr.Dataset:
     return _observer_dataset(name, wl.tobytes()).copy(deep=True)
 
 
+def standard_cmf(name: str, wavelengths) -> np.ndarray:
+    """The colour-matching functions of a standard observer on a grid as a read-only numpy array
+    (``xyz`` × ``wavelength``), shared between calls: the ``cmf`` values of :func:`standard_observer`."""
+    if name not in _TABLES:
+        raise ObserverError(f"unknown standard observer {name!r}; allowed: {', '.join(STANDARD_OBSERVERS)}")
+    wl = check_wavelengths(wavelengths, where="observer grid")
+    values = _observer_dataset(name, wl.tobytes())["cmf"].values
+    values.flags.writeable = False
+    return values
+
+
 @lru_cache(maxsize=32)
 def _observer_dataset(name: str, grid: bytes | None) -> xr.Dataset:
     """The observer Dataset for a grid (float64 bytes; None for the default grid), built once.
