@@ -29,10 +29,7 @@ def _split(array: xr.DataArray, dim: str):
 
 
 def _xyz_columns(xyz: xr.DataArray):
-    """X, Y, Z as numpy arrays over the other dims (in order), those dims and their coordinates.
-
-    Coordinates that depend on the ``xyz`` dim are dropped, as selecting one component would.
-    """
+    """X, Y, Z as numpy arrays over the other dims (in their order) and those dims."""
     dims = [d for d in xyz.dims if d != "xyz"]
     values = xyz.variable.transpose(*dims, "xyz").values
     return (values[..., 0], values[..., 1], values[..., 2]), dims
