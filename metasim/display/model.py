@@ -38,7 +38,7 @@ from metasim.errors import DisplayError, MetasimError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
 from metasim.colorimetry import tristimulus, xyz_to_xy
-from metasim.colorimetry.tristimulus import K_M, grid_of, observer_responses
+from metasim.colorimetry.tristimulus import K_M, grid_of, labelled, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
 ASSUMPTION = ("channel additivity: emitted radiance = black + sum over primaries of drive x full-drive "
@@ -193,10 +193,10 @@ class Display:
 
     def white_spectrum(self) -> xr.DataArray:
         """Spectral radiance with every drive at 1 (black included)."""
-        out = (self.black + self.spectra.sum("primary")).transpose(..., "wavelength")
-        out.attrs = {"units": RADIANCE_UNITS, "long_name": "display white spectral radiance"}
-        out.name = "white"
-        return out
+        black, spectra = self._ds["black"], self._ds["spectra"]
+        values = (black.variable + spectra.variable.sum("primary")).transpose(..., "wavelength")
+        return labelled(values.values, values.dims, (black, spectra), name="white",
+                        attrs={"units": RADIANCE_UNITS, "long_name": "display white spectral radiance"})
 
     def primary_tristimulus(self, observer) -> xr.DataArray:
         """XYZ (cd/m²) of each primary at full drive: dims ``[design,] primary, [observer,] xyz``."""
