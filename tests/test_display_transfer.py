@@ -56,3 +56,20 @@ def test_unknown_transfer_function():
         eotf(V, "sRGB2")
     with pytest.raises(DisplayError, match="needs luminance_weights"):
         eotf(xr.DataArray(np.ones((2, 4)), dims=("stimulus", "primary")), "hlg")
+
+
+@pytest.mark.parametrize("transfer", ["srgb", "gamma", "linear", "bt1886", "pq", "hlg"])
+def test_numpy_twins_equal_the_labelled_functions(transfer):
+    from metasim.display.transfer import eotf_inverse_values, eotf_values
+
+    peak, black, gamma = (400.0, 0.05, 2.4)
+    weights = np.array([0.3, 0.6, 0.1])
+    kwargs = {"peak_luminance": peak, "black_luminance": black, "gamma": gamma}
+    if transfer == "hlg":
+        kwargs["luminance_weights"] = weights
+    signal = RGB.assign_coords(primary=["R", "G", "B"])
+    twin = eotf_values(signal.values, transfer, peak, black, gamma, weights if transfer == "hlg" else None)
+    np.testing.assert_array_equal(twin, eotf(signal, transfer, **kwargs).values)  # same formulas (internal, no source)
+    light = eotf(signal, transfer, **kwargs)
+    twin = eotf_inverse_values(light.values, transfer, peak, black, gamma, weights if transfer == "hlg" else None)
+    np.testing.assert_array_equal(twin, eotf_inverse(light, transfer, **kwargs).values)  # same formulas (internal, no source)
