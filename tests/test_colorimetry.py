@@ -211,3 +211,22 @@ def test_ictcp_and_delta_e_itp_equal_colour_science(rng):
         stimulus=ours.stimulus[:150]))
     d_theirs = colour.delta_E(ours.values[:150], ours.values[150:], method="ITP")
     np.testing.assert_allclose(d_ours.values, d_theirs, rtol=1e-12)  # ITU-R BT.2124 via colour-science delta_E "ITP"
+
+
+def test_fused_pair_differences_equal_separate_steps(rng):
+    from metasim.colorimetry.cielab import _lab_values
+    from metasim.colorimetry.fused import pair_differences
+
+    xyz_ref = rng.uniform(0.0, 90.0, (40, 25, 3))
+    xyz_test = xyz_ref + rng.normal(0, 2.0, xyz_ref.shape)
+    xyz_test[:, :3] = xyz_ref[:, :3]  # equal pairs take the exact branch
+    white = rng.uniform(90.0, 110.0, (40, 3))
+    correction = rng.normal(0, 0.5, (1, 25, 3))
+    lab_r, lab_t, de, index = pair_differences(xyz_ref, xyz_test, white, correction)
+    np.testing.assert_allclose(lab_r, _lab_values(xyz_ref / white[:, None]), atol=1e-10)  # CIE 15:2004 CIELAB
+    np.testing.assert_allclose(de, colour.delta_E(colour.XYZ_to_Lab(xyz_ref / white[:, None, 1:2], colour.XYZ_to_xy(white)[:, None]),
+                                                  colour.XYZ_to_Lab(xyz_test / white[:, None, 1:2], colour.XYZ_to_xy(white)[:, None]),
+                                                  method="CIE 2000"), atol=1e-9)  # colour-science XYZ_to_Lab + delta_E
+    corrected = np.clip(xyz_test - correction, 0, None)
+    np.testing.assert_allclose(index, colour.delta_E(lab_r, _lab_values(corrected / white[:, None]), method="CIE 2000"),
+                               atol=1e-9)  # colour-science delta_E of the corrected sample

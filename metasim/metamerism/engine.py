@@ -35,6 +35,7 @@ from metasim._version import __version__
 from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
 from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
+from metasim.colorimetry.fused import pair_differences
 from metasim.colorimetry.tristimulus import K_M
 from metasim.display import Display, calibrate_white, solve_drive
 from metasim.errors import MetasimError, StimulusError
@@ -340,12 +341,12 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     drive_test = test_solution["drive"]
     stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
     drive_t = drive_test.transpose(*batch, *stim, "primary").values.reshape(m_test.shape[0], -1, test.n_primaries)
-    xyz_t = np.swapaxes(m_test @ np.swapaxes(drive_t, -1, -2)[:, None], -1, -2) + b_test[:, :, None, :]
+    xyz_t = drive_t[:, None] @ np.swapaxes(m_test, -1, -2) + b_test[:, :, None, :]  # (B, O, S, 3)
     if reference is not None:
         m_ref, b_ref = _display_matrices(reference, cmf, step)
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
         drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(-1, reference.n_primaries)
-        xyz_r = np.swapaxes(m_ref[0] @ drive_r.T, -1, -2) + b_ref[0][:, None, :]
+        xyz_r = drive_r @ np.swapaxes(m_ref[0], -1, -2) + b_ref[0][:, None, :]  # (O, S, 3)
     else:
         white_ref = K_M * step * (cmf @ white_spectrum.transpose("wavelength").values)  # (O, 3)
         spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, cmf.shape[-1])
@@ -353,16 +354,16 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     white_test = m_test.sum(-1) + b_test  # (B, O, 3)
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
     xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
-    lab_r = _labels(xyz_r_b, adapted[:, :, None, :])
-    lab_t = _labels(xyz_t, adapted[:, :, None, :])
-    de = delta_e_2000_array(lab_r, lab_t)
-    de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
-    # observer-change metamerism index, additive correction in XYZ (reference condition: calibration observer)
+    # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
+    # observer): the test side minus (test − reference as the calibration observer sees them)
     tgt = targets.transpose(*[d for d in batch if d in targets.dims], *stim, "xyz").values
     rep = test_solution["reproduced"].transpose(*batch, *stim, "xyz").values.reshape(m_test.shape[0], -1, 3)
     tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
-    corrected = xyz_t - (rep - tgt)[:, None, :, :]
-    index = delta_e_2000_array(lab_r, _labels(np.clip(corrected, 0.0, None), adapted[:, :, None, :]))
+    rows = m_test.shape[0] * cmf.shape[0]
+    n_stim = xyz_t.shape[2]
+    lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
+                                               adapted.reshape(rows, 3), rep - tgt)
+    de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
     itp = None
     if include_itp:
         itp = _itp(xyz_r_b, xyz_t)
