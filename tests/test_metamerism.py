@@ -257,3 +257,16 @@ def test_result_round_trips_through_netcdf(reference, laser, population, stimuli
     result = mismatch(reference, laser, population.isel(observer=slice(0, 10)), stimuli)
     back = metasim.load_dataset(metasim.save_dataset(result, tmp_path / "mismatch.nc"))
     xr.testing.assert_identical(result, back)
+
+
+def test_designs_are_evaluated_in_one_call(reference, population, stimuli):
+    from metasim.display import stack_designs
+
+    designs = [make_display(emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]), name=f"red {red}")
+               for red in (620, 640)]
+    together = mismatch(reference, stack_designs(designs), population.isel(observer=slice(0, 50)), stimuli)
+    assert together["delta_e_2000"].dims == ("design", "observer", "stimulus")
+    for i, design in enumerate(designs):
+        alone = mismatch(reference, design, population.isel(observer=slice(0, 50)), stimuli)
+        np.testing.assert_allclose(together["delta_e_2000"].isel(design=i).values, alone["delta_e_2000"].values,
+                                   atol=1e-9)  # the same computation, batched (no outside reference needed)
