@@ -95,11 +95,12 @@ def main() -> None:
         best = min(best, time.perf_counter() - start)
 
     count = args.observers if args.loop_observers is None else min(args.loop_observers, args.observers)
-    matched = test  # the engine white-matched the test display; rebuild the same matched display for the loop
+    # the engine white-matched the test display for CIE 1931; the loop gets the same matched display
+    from metasim import standard_observer
     from metasim.colorimetry import tristimulus, xyz_to_xy
     from metasim.display import calibrate_white
 
-    ref_white = tristimulus(ref.white_spectrum(), "cie1931_2" and __import__("metasim").standard_observer("cie1931_2"))
+    ref_white = tristimulus(ref.white_spectrum(), standard_observer("cie1931_2"))
     matched = calibrate_white(test, "cie1931_2", white=xyz_to_xy(ref_white), luminance=ref_white.sel(xyz="Y", drop=True))
     drive_ref = result["drive_reference"].transpose("stimulus", "reference_primary").values
     drive_test = result["drive_test"].transpose("stimulus", "primary").values

@@ -4,7 +4,6 @@ import warnings
 
 import numpy as np
 import pytest
-import xarray as xr
 
 from metasim.errors import FileFormatError, GridMismatchError, SpectrumError
 from metasim.spectra import (

@@ -37,7 +37,7 @@ from metasim._version import __version__
 from metasim.errors import DisplayError, MetasimError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
-from metasim.colorimetry import tristimulus, xyz_to_xy
+from metasim.colorimetry import tristimulus
 from metasim.colorimetry.tristimulus import K_M, grid_of, labelled, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 

@@ -287,7 +287,7 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
     locus = spectrum_locus(observer, space)
     gamut["locus_area"] = locus["area"]
     gamut["locus_share"] = gamut_coverage(gamut, locus, space)
-    gamut["locus_share"].attrs.update(long_name=f"share of the observer's own spectrum-locus area covered",
+    gamut["locus_share"].attrs.update(long_name="share of the observer's own spectrum-locus area covered",
                                       reference="spectrum locus")
     if references:
         cover = xr.concat([gamut_coverage(gamut, name, space) for name in references], dim="reference")
