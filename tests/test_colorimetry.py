@@ -230,3 +230,12 @@ def test_fused_pair_differences_equal_separate_steps(rng):
     corrected = np.clip(xyz_test - correction, 0, None)
     np.testing.assert_allclose(index, colour.delta_E(lab_r, _lab_values(corrected / white[:, None]), method="CIE 2000"),
                                atol=1e-9)  # colour-science delta_E of the corrected sample
+
+
+def test_large_lab_uses_kernel_and_equals_colour_science(rng):
+    xyz_values = rng.uniform(0.0, 1.2, (20_000, 3))
+    xyz_values[:500] *= 0.003  # linear segment below ε
+    xyz = xr.DataArray(xyz_values, dims=("stimulus", "xyz"), coords={"xyz": ["X", "Y", "Z"]})
+    white = xr.DataArray([0.95047, 1.0, 1.08883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    theirs = colour.XYZ_to_Lab(xyz_values, colour.XYZ_to_xy(white.values))
+    np.testing.assert_allclose(xyz_to_lab(xyz, white).values, theirs, atol=1e-9)  # colour-science XYZ_to_Lab

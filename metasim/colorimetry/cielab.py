@@ -147,6 +147,21 @@ def _lab_rows(xyz, white, out):
             out[r, s, 2] = cols[5, s]
 
 
+def lab_of_ratio(ratio: np.ndarray) -> np.ndarray:
+    """CIELAB from XYZ / XYZ_white (X, Y, Z on the last axis); large arrays use the compiled kernel."""
+    ratio = np.asarray(ratio, dtype=float)
+    if ratio.size < 30_000:
+        return _lab_values(ratio)
+    flat = ratio.reshape(-1, 3)
+    columns = 1024
+    rows = -(-flat.shape[0] // columns)
+    padded = np.ones((rows * columns, 3))
+    padded[: flat.shape[0]] = flat
+    out = np.empty_like(padded)
+    _lab_rows(padded.reshape(rows, columns, 3), np.ones((rows, 3)), out.reshape(rows, columns, 3))
+    return out[: flat.shape[0]].reshape(ratio.shape)
+
+
 def xyz_to_lab_array(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
     """CIELAB of numpy XYZ (..., 3) against white (..., 3) broadcast over the leading axes.
 
@@ -162,7 +177,7 @@ def xyz_to_lab_array(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
         out = np.empty_like(block)
         _lab_rows(block, whites, out)
         return out.reshape(*lead, *xyz.shape[-2:])
-    return _lab_values(xyz / white)
+    return lab_of_ratio(xyz / white)
 
 
 def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
@@ -187,7 +202,7 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
         # labels already agree: broadcast the bare variables by dim name, no alignment copies
         ratio = xyz.variable / white.variable
         dims = [d for d in ratio.dims if d != "xyz"]
-        return labelled(_lab_values(ratio.transpose(*dims, "xyz").values), (*dims, "lab"), (xyz, white),
+        return labelled(lab_of_ratio(ratio.transpose(*dims, "xyz").values), (*dims, "lab"), (xyz, white),
                         labels={"lab": LAB}, attrs=attrs)
     xyz = xyz.assign_coords(xyz=["X", "Y", "Z"])
     white = white.assign_coords(xyz=["X", "Y", "Z"])
@@ -195,7 +210,7 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     dims = [d for d in ratio.dims if d != "xyz"]
     ratio = ratio.transpose(*dims, "xyz")
     coords = {k: v for k, v in ratio.coords.items() if "xyz" not in v.dims}
-    lab = xr.DataArray(_lab_values(ratio.values), dims=(*dims, "lab"), coords={**coords, "lab": list(LAB)})
+    lab = xr.DataArray(lab_of_ratio(ratio.values), dims=(*dims, "lab"), coords={**coords, "lab": list(LAB)})
     lab.attrs = attrs
     return lab
 
