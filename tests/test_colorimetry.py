@@ -38,9 +38,8 @@ def test_relative_scale_gives_white_y_100_per_observer():
         [metasim.standard_observer(n, GRID_360)["cmf"] for n in ("cie1931_2", "cie1964_10")], dim="observer"
     )
     xyz = tristimulus(spectrum, observers, scale="relative", white=spectrum)
-    np.testing.assert_allclose(xyz.sel(xyz="Y").values, 100.0, rtol=1e-12)
-    # CIE 15:2004 Table T.3: D65 white point, 2° observer, X = 95.047, Z = 108.883 (to 3 decimals)
-    np.testing.assert_allclose(xyz.isel(observer=0).values, [95.047, 100.0, 108.883], atol=0.01)
+    np.testing.assert_allclose(xyz.sel(xyz="Y").values, 100.0, rtol=1e-12)  # CIE 15:2004 §7.1: white Y = 100
+    np.testing.assert_allclose(xyz.isel(observer=0).values, [95.047, 100.0, 108.883], atol=0.01)  # CIE 15:2004 Table T.3, D65 2°
 
 
 def test_absolute_scale_is_683_lm_per_w():
@@ -49,8 +48,7 @@ def test_absolute_scale_is_683_lm_per_w():
     values[grid.values == 555.0] = 1.0  # 1 W sr-1 m-2 nm-1 over a 1 nm bin at 555 nm
     spectrum = make_spectra(values, grid)
     xyz = tristimulus(spectrum, metasim.standard_observer("cie1931_2", grid))
-    # CIE 15:2004: K_m = 683 lm/W and V(555 nm) = 1.0000 -> 683 cd/m2 (ȳ(555) = 1.0 in the 1931 table)
-    assert xyz.sel(xyz="Y").item() == pytest.approx(683.0, rel=1e-4)
+    assert xyz.sel(xyz="Y").item() == pytest.approx(683.0, rel=1e-4)  # CIE 15:2004: K_m = 683 lm/W, V(555 nm) = 1
     assert xyz.attrs["units"] == "cd m-2"
 
 
