@@ -76,7 +76,7 @@ def test_render_is_additive_and_refuses_bad_drives():
     drive = xr.DataArray([[0.2, 0.5, 1.0]], dims=("stimulus", "primary"))
     out = display.render(drive)
     expected = display.black + (drive.isel(stimulus=0).values[:, None] * display.spectra.values).sum(0)
-    np.testing.assert_allclose(out.isel(stimulus=0).values, expected.values)
+    np.testing.assert_allclose(out.isel(stimulus=0).values, expected.values)  # additivity (Berns 1996 display model)
     with pytest.raises(DisplayError, match="drive value 1.2 is outside the allowed range 0..1"):
         display.render(xr.DataArray([0.2, 1.2, 0.0], dims=("primary",)))
     with pytest.raises(DisplayError, match="-0.1 is outside"):

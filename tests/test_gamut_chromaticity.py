@@ -88,7 +88,7 @@ def test_hull_area_matches_qhull_for_random_points(rng):
     points = rng.random((40, 7, 2))
     gamut = chromaticity_gamut(xy_primaries(points, design=np.arange(40)))
     expected = [ConvexHull(p).volume for p in points]  # Qhull (scipy): 2-D "volume" is the area
-    np.testing.assert_allclose(gamut.area.values, expected, rtol=1e-12)
+    np.testing.assert_allclose(gamut.area.values, expected, rtol=1e-12)  # Qhull via scipy ConvexHull
     assert ((gamut.vertex_primary >= 0).sum("vertex") == gamut.on_hull.sum("primary")).all()
 
 

@@ -92,7 +92,7 @@ def test_ocular_media_at_32_is_the_table_and_ageing_follows_the_published_terms(
     terms = (3.1e-5 * (400 / lam) ** 4 - 6.3e-5 * 2.13 * np.exp(-(0.029 * (lam - 370)) ** 2)
              + 1.86e-4 * 11.95 * np.exp(-(0.021 * (lam - 325)) ** 2) + 1.32e-4 * 1.43 * np.exp(-(0.008 * (lam - 325)) ** 2))
     expected = 1.76490 + (age**2 - 32**2) * terms  # 1.76490: lens table at 400 nm (Stockman, Sharpe & Fach 1999)
-    assert float(ocular_media_density(age).sel(wavelength=lam)) == pytest.approx(expected, rel=1e-12)
+    assert float(ocular_media_density(age).sel(wavelength=lam)) == pytest.approx(expected, rel=1e-12)  # CIE 203:2012 age terms
 
 
 def test_macular_absorption_falls_with_field_size():
