@@ -1,0 +1,32 @@
+"""Batch sweeps: many candidate designs × a population × a stimulus set, chunked, stored, resumable.
+
+::
+
+    from metasim.sweep import design_grid, run_sweep
+
+    designs = design_grid("laser", peaks_nm={"R": [620, 630, 640], "G": [525, 532], "B": [455, 465]},
+                          width_nm=[1, 2])                         # 24 designs (design, primary, wavelength)
+    result = run_sweep(designs, monitor, viewers, stimuli, store="red-sweep", chunk_size=8)
+    result["delta_e_2000_overall"].sel(statistic="p95")           # one number per design
+
+* :mod:`metasim.sweep.grid` — the designs: a Cartesian grid of emitter parameters (``design_grid``)
+  or an explicit list of spectra (``design_list``); parameters become ``design`` coordinates.
+* :mod:`metasim.sweep.summary` — one mismatch call and the gamut numbers of a block of designs,
+  reduced to per-design summaries (``design_summaries``).
+* :mod:`metasim.sweep.store` — the store folder: ``manifest.json`` (spec hash, chunk ranges, seed,
+  model, version), one ``chunk-NNNNN.nc`` per finished chunk, the combined ``sweep.nc``.
+* :mod:`metasim.sweep.run` — ``run_sweep``: chunks along ``design`` on a scheduler ("serial",
+  "threads", "dask-threads", or a dask.distributed address), each chunk written as it completes;
+  a re-run with the same store resumes.
+
+Layer: sweep (imports every library layer above it; never the report or the CLI).
+"""
+
+from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS, GRID_KINDS, design_grid, design_list, display_settings_of
+from metasim.sweep.run import SCHEDULERS, chunk_display, evaluate_chunk, run_sweep
+from metasim.sweep.store import combine_sweep, read_manifest, spec_hash
+from metasim.sweep.summary import COVERAGE_GAMUTS, design_summaries
+
+__all__ = ["DEFAULT_DISPLAY_SETTINGS", "GRID_KINDS", "SCHEDULERS", "COVERAGE_GAMUTS", "design_grid", "design_list",
+           "display_settings_of", "run_sweep", "chunk_display", "evaluate_chunk", "combine_sweep", "read_manifest",
+           "spec_hash", "design_summaries"]

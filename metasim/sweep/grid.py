@@ -1,0 +1,199 @@
+"""Candidate designs of a sweep: a Cartesian grid of emitter parameters, or an explicit list of spectra.
+
+A sweep's designs are one DataArray ``design × primary × wavelength`` of spectral radiance at full
+drive (W·sr⁻¹·m⁻²·nm⁻¹), the swept parameters as ``design`` coordinates (``peak_nm_R``,
+``width_nm`` ...). The display-level settings the designs share (transfer function, white,
+luminance, calibration observer) travel with it in the attribute ``display_settings``;
+:func:`metasim.sweep.run_sweep` builds and white-calibrates one display per design from them.
+
+Layer: sweep (imports spectra, emitters, display).
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+from typing import Mapping, Sequence
+
+import numpy as np
+import xarray as xr
+
+from metasim import emitters
+from metasim.display import Display
+from metasim.errors import SweepError
+from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, default_grid
+
+#: Emitter kinds of a design grid and the name of each kind's width parameter.
+GRID_KINDS = {"laser": "linewidth_nm", "gaussian": "fwhm_nm", "quantum_dot": "fwhm_nm"}
+#: Largest grid :func:`design_grid` builds at once (a guard against typing one zero too many).
+MAX_DESIGNS = 1_000_000
+#: Display settings used when neither the designs nor the caller give one.
+DEFAULT_DISPLAY_SETTINGS = {"transfer": "bt1886", "gamma": 2.2, "peak_luminance": 100.0, "black_luminance": 0.0,
+                            "white": "D65", "calibration_observer": "cie1931_2"}
+
+
+def _values(where: str, value) -> list[float]:
+    """A non-empty list of finite positive numbers from a number or a sequence of numbers."""
+    items = list(value) if isinstance(value, (list, tuple, np.ndarray)) else [value]
+    if not items:
+        raise SweepError(f"{where}: empty list; give at least one value")
+    out = []
+    for item in items:
+        if isinstance(item, bool) or not isinstance(item, (int, float, np.integer, np.floating)):
+            raise SweepError(f"{where}: {item!r} is not a number")
+        if not math.isfinite(float(item)) or float(item) <= 0:
+            raise SweepError(f"{where}: {item!r} is not allowed; need finite numbers > 0")
+        out.append(float(item))
+    return out
+
+
+def display_settings_of(display: Display) -> dict:
+    """The display-level settings of a (white-calibrated) display, as a sweep uses them."""
+    white = display.attrs.get("calibration_white_xy", "D65")
+    return {
+        "transfer": display.transfer,
+        "gamma": display.gamma,
+        "peak_luminance": float(display.peak_luminance.max()),
+        "black_luminance": display.black_luminance,
+        "white": list(white) if isinstance(white, (list, tuple, np.ndarray)) else str(white),
+        "calibration_observer": str(display.attrs.get("calibration_observer", "cie1931_2")),
+    }
+
+
+def _base_spectra(base) -> tuple[xr.DataArray | None, dict]:
+    """The base design's spectra before white calibration, and its display settings."""
+    if base is None:
+        return None, {}
+    if isinstance(base, Display):
+        if base.batch_dims:
+            raise SweepError(f"the base display must be a single design, got dims {base.batch_dims}")
+        gain = base.to_dataset()["primary_gain"]
+        return (base.spectra / gain).transpose("primary", "wavelength"), display_settings_of(base)
+    if isinstance(base, xr.DataArray) and set(base.dims) == {"primary", "wavelength"}:
+        return base.transpose("primary", "wavelength"), {}
+    raise SweepError(f"base must be a Display or spectra (primary x wavelength), got {type(base).__name__}")
+
+
+def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, width_nm=1.0, *,
+                base=None, radiance: float = 1.0, profile: str = "gaussian", wavelengths=None) -> xr.DataArray:
+    """Every combination of primary peaks and widths, as one ``design × primary × wavelength`` array.
+
+    Parameters
+    ----------
+    kind : {"laser", "gaussian", "quantum_dot"}
+        Emitter of the varied primaries (:func:`metasim.emitters.laser_line`, ``gaussian``,
+        ``quantum_dot``); the width is the line width (FWHM) of a laser, the FWHM of the others.
+    peaks_nm : mapping of primary label to peak wavelengths, nm
+        e.g. ``{"R": [620, 630, 640], "G": [520, 532], "B": [450, 465]}``.
+    width_nm : number, sequence, or mapping of label to sequence
+        A number or a sequence shared by the varied primaries (one grid axis, coordinate
+        ``width_nm``), or one sequence per label (axes ``width_nm_<label>``).
+    base : Display or DataArray, optional
+        A design whose other primaries stay fixed (spectra before white calibration); a varied label
+        replaces the base primary of that label, new labels are appended. A Display also gives the
+        designs its display settings (transfer, white, luminance, calibration observer).
+    radiance : float
+        Integrated radiance of each varied primary before calibration, W·sr⁻¹·m⁻² (matters for N > 3).
+    profile : {"gaussian", "lorentzian"}
+        Line shape of laser primaries.
+    wavelengths : optional
+        The grid (default: the base's grid, else 390–830 nm at 1 nm).
+
+    Returns
+    -------
+    DataArray
+        ``design`` (0 … n−1) × ``primary`` × ``wavelength``; coordinates ``peak_nm_<label>`` and the
+        width axes on ``design``; attributes ``units``, ``long_name``, ``model``, ``parameters`` and,
+        with a Display base, ``display_settings``.
+    """
+    if kind not in GRID_KINDS:
+        raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    if not isinstance(peaks_nm, Mapping) or not peaks_nm:
+        raise SweepError("peaks_nm must map at least one primary label to peak wavelengths, e.g. {'R': [620, 640]}")
+    labels = [str(k) for k in peaks_nm]
+    axes = [(f"peak_nm_{label}", _values(f"peaks_nm[{label!r}]", peaks_nm[label])) for label in labels]
+    if isinstance(width_nm, Mapping):
+        missing = [label for label in labels if label not in width_nm]
+        extra = [str(k) for k in width_nm if str(k) not in labels]
+        if missing or extra:
+            raise SweepError(f"width_nm has labels {list(map(str, width_nm))}; give exactly the varied primaries {labels}")
+        axes += [(f"width_nm_{label}", _values(f"width_nm[{label!r}]", width_nm[label])) for label in labels]
+        width_of = {label: f"width_nm_{label}" for label in labels}
+    else:
+        axes.append(("width_nm", _values("width_nm", width_nm)))
+        width_of = {label: "width_nm" for label in labels}
+    count = math.prod(len(values) for _, values in axes)
+    if count > MAX_DESIGNS:
+        raise SweepError(f"the grid has {count} designs; allowed: at most {MAX_DESIGNS} per sweep")
+    rows = np.array(list(itertools.product(*[values for _, values in axes])), dtype=float).reshape(count, len(axes))
+    column = {name: rows[:, i] for i, (name, _) in enumerate(axes)}
+
+    fixed, settings = _base_spectra(base)
+    if wavelengths is None:
+        wavelengths = fixed.wavelength.values if fixed is not None else default_grid().values
+    wl = np.asarray(wavelengths, dtype=float)
+    if fixed is not None and (fixed.sizes["wavelength"] != wl.size or not np.allclose(fixed.wavelength.values, wl)):
+        raise SweepError("wavelengths differ from the base design's grid; give the base's grid or none")
+    width_key = GRID_KINDS[kind]
+    varied = {}
+    for label in labels:
+        pairs = np.stack([column[f"peak_nm_{label}"], column[width_of[label]]], axis=1)
+        unique, inverse = np.unique(pairs, axis=0, return_inverse=True)
+        arguments = {"radiance": radiance, **({"profile": profile} if kind == "laser" else {})}
+        function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}[kind]
+        spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"{label} {i}" for i in range(len(unique))],
+                           **arguments)
+        varied[label] = spectra.transpose("primary", "wavelength").values[np.asarray(inverse).reshape(-1)]
+    order = [str(p) for p in fixed.primary.values] if fixed is not None else []
+    order += [label for label in labels if label not in order]
+    values = np.empty((count, len(order), wl.size))
+    for j, label in enumerate(order):
+        values[:, j] = varied[label] if label in varied else fixed.sel(primary=label).values[None, :]
+    coords = {"design": ("design", np.arange(count), {"units": "1", "long_name": "design index"}),
+              "primary": order, "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))}
+    for name, _ in axes:
+        what = "peak wavelength of primary " + name.rsplit("_", 1)[1] if name.startswith("peak") else (
+            f"{width_key.replace('_nm', '').replace('fwhm', 'FWHM')} of "
+            + ("the varied primaries" if name == "width_nm" else "primary " + name.rsplit("_", 1)[1]))
+        coords[name] = ("design", column[name], {"units": "nm", "long_name": what})
+    parameters = {"kind": kind, "peaks_nm": {k: _values(k, v) for k, v in peaks_nm.items()},
+                  "width_nm": ({str(k): _values(k, v) for k, v in width_nm.items()} if isinstance(width_nm, Mapping)
+                               else _values("width_nm", width_nm)),
+                  "radiance": float(radiance), "profile": profile,
+                  "fixed_primaries": [p for p in order if p not in labels]}
+    attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
+             "model": f"design grid: {kind} primaries {', '.join(labels)} varied (Cartesian product)",
+             "parameters": json.dumps(parameters)}
+    if settings:
+        attrs["display_settings"] = settings
+    if isinstance(base, Display):
+        attrs["base_design"] = base.name
+    return xr.DataArray(values, dims=("design", "primary", "wavelength"), coords=coords, attrs=attrs, name="spectra")
+
+
+def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
+    """An explicit list of designs (each ``primary × wavelength``, same primaries and grid) as a sweep's designs.
+
+    ``parameters`` become ``design`` coordinates: ``name=sequence`` (one value per design).
+    """
+    spectra = list(spectra)
+    if not spectra:
+        raise SweepError("design_list: no spectra given; pass at least one primary x wavelength array")
+    for i, item in enumerate(spectra):
+        if not isinstance(item, xr.DataArray) or set(item.dims) != {"primary", "wavelength"}:
+            raise SweepError(f"design #{i}: need a DataArray with dims primary, wavelength")
+    parts = [s.transpose("primary", "wavelength").drop_vars([c for c in s.coords if c not in s.dims]) for s in spectra]
+    out = xr.concat(parts, dim="design", join="exact", combine_attrs="drop")
+    out = out.assign_coords(design=("design", np.arange(len(parts)), {"units": "1", "long_name": "design index"}))
+    for name, values in parameters.items():
+        values = list(values)
+        if len(values) != len(parts):
+            raise SweepError(f"parameter {name!r} has {len(values)} values for {len(parts)} designs; give one per design")
+        out = out.assign_coords({name: ("design", values)})
+    out.attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
+                 "model": "explicit design list"}
+    return out.rename("spectra")
+
+
+__all__ = ["GRID_KINDS", "MAX_DESIGNS", "DEFAULT_DISPLAY_SETTINGS", "design_grid", "design_list", "display_settings_of"]

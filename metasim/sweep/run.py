@@ -1,0 +1,351 @@
+"""Running a sweep: designs in chunks along ``design``, each chunk written to the store as it completes.
+
+Each chunk is one :func:`metasim.sweep.summary.design_summaries` call (one :func:`metasim.mismatch`
+call on the chunk's designs stacked along ``design``, plus their gamut numbers), reduced to
+per-design summaries, so memory is bounded by the chunk size, not the sweep size. Only the process
+that called :func:`run_sweep` writes files: workers return the (small) summaries.
+
+Schedulers
+----------
+``"serial"``            one chunk after another in this process.
+``"threads"`` (default) a thread pool in this process (numpy and the compiled kernels release the
+                        GIL); the first pending chunk runs alone first, so compilation and input
+                        errors surface before the pool starts.
+``"dask-threads"``      an in-process ``dask.distributed`` cluster of threads (mainly for trying
+                        the distributed path on one machine).
+``"tcp://host:port"``   (any ``scheme://`` address) the ``dask.distributed`` scheduler there; the
+                        workers need metasim installed. A ``distributed.Client`` may be passed too.
+
+The distributed schedulers import ``distributed`` only when asked for; without it the error says
+``pip install -e ".[distributed]"``.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import threading
+import time
+from concurrent.futures import FIRST_COMPLETED, ThreadPoolExecutor, wait
+from pathlib import Path
+
+import numpy as np
+import xarray as xr
+
+from metasim._version import __version__
+from metasim.display import Display, calibrate_white, make_display
+from metasim.errors import MetasimError, SweepError
+from metasim.metamerism.engine import resolve_observers
+from metasim.metamerism.summary import THRESHOLDS
+from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
+from metasim.sweep.store import (
+    chunk_name,
+    chunk_ranges,
+    combine_sweep,
+    finished_chunks,
+    open_store,
+    spec_hash,
+    write_chunk,
+)
+from metasim.sweep.summary import design_summaries
+
+SCHEDULERS = ("serial", "threads", "dask-threads")
+#: observer × stimulus × design triples per chunk when no chunk size is given (bounds a chunk's memory)
+PAIRS_PER_CHUNK = 2_000_000
+MAX_AUTO_CHUNK = 64
+_SERIAL_KERNELS = threading.Lock()
+
+
+def _settings(designs, display_settings) -> dict:
+    given = designs.attrs.get("display_settings", {}) if isinstance(designs, xr.DataArray) else {}
+    if isinstance(given, str):
+        given = json.loads(given)
+    settings = {**DEFAULT_DISPLAY_SETTINGS, **given, **(display_settings or {})}
+    unknown = [k for k in settings if k not in DEFAULT_DISPLAY_SETTINGS]
+    if unknown:
+        raise SweepError(f"display setting {unknown[0]!r} is not known; allowed: {', '.join(DEFAULT_DISPLAY_SETTINGS)}")
+    return settings
+
+
+def _check_designs(designs) -> None:
+    if isinstance(designs, Display):
+        if designs.batch_dims != ["design"]:
+            raise SweepError(f"a Display of designs needs exactly one 'design' dim, got {designs.batch_dims}")
+        return
+    if not isinstance(designs, xr.DataArray) or set(designs.dims) != {"design", "primary", "wavelength"}:
+        what = tuple(designs.dims) if isinstance(designs, xr.DataArray) else type(designs).__name__
+        raise SweepError(f"designs must be a DataArray (design, primary, wavelength) or a Display with a 'design' "
+                         f"dim, got {what}")
+    if designs.sizes["design"] == 0:
+        raise SweepError("designs: the 'design' dim is empty; give at least one design")
+
+
+def chunk_display(designs, settings: dict) -> Display:
+    """The white-calibrated Display of a block of designs."""
+    if isinstance(designs, Display):
+        return designs
+    if isinstance(designs, xr.Dataset):
+        return Display.from_dataset(designs)
+    display = make_display(designs.transpose("design", "primary", "wavelength"), transfer=settings["transfer"],
+                           gamma=settings["gamma"], peak_luminance=settings["peak_luminance"],
+                           black_luminance=settings["black_luminance"], name="sweep designs")
+    return calibrate_white(display, settings["calibration_observer"], white=settings["white"],
+                           luminance=settings["peak_luminance"])
+
+
+def evaluate_chunk(designs, reference, observers, stimuli, options: dict) -> xr.Dataset:
+    """Per-design summaries of one chunk (runs on workers; pure: writes nothing)."""
+    display = chunk_display(designs, options["display_settings"])
+    lock = _SERIAL_KERNELS if options.get("serialise_kernels") else None
+    if lock is not None:
+        lock.acquire()
+    try:
+        return design_summaries(display, reference, observers, stimuli, lab_volume=options["lab_volume"],
+                                **options["mismatch"])
+    finally:
+        if lock is not None:
+            lock.release()
+
+
+def _kernels_need_serialising() -> bool:
+    """numba's 'workqueue' threading layer must not be entered from two threads at once."""
+    try:
+        import numba
+
+        return numba.threading_layer() == "workqueue"
+    except (ImportError, ValueError):
+        return False
+
+
+def _auto_chunk_size(count: int, pairs: int) -> int:
+    return int(max(1, min(MAX_AUTO_CHUNK, count, PAIRS_PER_CHUNK // max(pairs, 1))))
+
+
+def _describe(item) -> str:
+    if isinstance(item, Display):
+        return item.name
+    return str(item) if isinstance(item, str) else type(item).__name__
+
+
+def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chunk_size: int | None = None,
+              scheduler="threads", workers: int | None = None, calibration_observer="cie1931_2",
+              strategy: str = "min_norm", display_settings: dict | None = None, lab_volume: bool = False,
+              age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None) -> xr.Dataset:
+    """Evaluate every design against ``reference`` in chunks, writing each chunk to ``store``; resume.
+
+    Parameters
+    ----------
+    designs : DataArray or Display
+        ``design × primary × wavelength`` spectra (:func:`metasim.sweep.design_grid`,
+        :func:`metasim.sweep.design_list`; parameters as ``design`` coordinates), made into displays
+        with ``display_settings`` and white-calibrated; or a Display with a ``design`` dim, used as is.
+    reference : Display or "objects"
+        As for :func:`metasim.mismatch`.
+    observers : Dataset or str or list of str
+        The population (``cmf`` over ``observer``) or standard observer names.
+    stimuli : Dataset
+        A stimulus set (:mod:`metasim.metamerism.stimuli`).
+    store : path
+        Folder of the chunk files, ``manifest.json`` and the combined ``sweep.nc``. A store of the
+        same spec resumes (finished chunks are skipped); one of another spec is refused.
+    chunk_size : int, optional
+        Designs per chunk (default: about 2 million observer × stimulus × design triples, at most 64).
+    scheduler : str or distributed.Client
+        ``"serial"``, ``"threads"`` (default), ``"dask-threads"``, a ``scheme://host:port`` dask
+        scheduler address, or a ``distributed.Client`` (see the module docstring).
+    workers : int, optional
+        Threads for ``"threads"`` / ``"dask-threads"`` (default: CPU count).
+    calibration_observer, strategy, age_bands, thresholds
+        As for :func:`metasim.mismatch`.
+    display_settings : dict, optional
+        ``transfer``, ``gamma``, ``peak_luminance``, ``black_luminance``, ``white``,
+        ``calibration_observer`` of the designs (over the designs' own ``display_settings``
+        attribute, over :data:`metasim.sweep.DEFAULT_DISPLAY_SETTINGS`).
+    lab_volume : bool
+        Also compute each design's CIELAB volume (slower).
+    progress : callable, optional
+        Called with one dict per event: ``kind`` ("skipped", "computed", "combined"), ``chunk``,
+        ``start``, ``stop``, ``done``, ``total``, ``seconds``, ``message``.
+    attrs : dict, optional
+        Extra attributes for the manifest and the result (e.g. the text of a sweep spec file).
+
+    Returns
+    -------
+    Dataset
+        Per-design summaries over ``design`` (:mod:`metasim.sweep.summary`), with the attributes
+        ``spec_hash``, ``spec``, ``observer_seed``, ``observer_model``, ``metasim_version``; also
+        written to ``store/sweep.nc``.
+    """
+    _check_designs(designs)
+    _check_scheduler(scheduler)
+    settings = _settings(designs, display_settings) if not isinstance(designs, Display) else {}
+    count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
+    grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
+    observers = resolve_observers(observers, grid)
+    full = designs if isinstance(designs, Display) else chunk_display(designs, settings)  # checks every design now
+    mismatch_options = {"calibration_observer": calibration_observer, "strategy": strategy, "thresholds": tuple(thresholds)}
+    if age_bands is not None:
+        mismatch_options["age_bands"] = tuple(age_bands)
+    if isinstance(reference, str) and reference == "objects":  # one object white for every chunk
+        mismatch_options["object_white_luminance"] = float(full.peak_luminance.max())
+    if chunk_size is None:
+        chunk_size = _auto_chunk_size(count, observers.sizes["observer"] * stimuli.sizes.get("stimulus", 1))
+    if isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer)) or chunk_size < 1:
+        raise SweepError(f"chunk_size={chunk_size!r} is not allowed; need a whole number >= 1")
+    chunk_size = int(chunk_size)
+    options = {"display_settings": settings, "lab_volume": bool(lab_volume), "mismatch": mismatch_options}
+    digest = spec_hash(designs, reference, observers, stimuli, settings, bool(lab_volume),
+                       {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer)
+    ranges = chunk_ranges(count, chunk_size)
+    coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
+              if v.dims == ("design",) and c != "design"]
+    manifest = {
+        "format": "metasim sweep store", "format_version": 1, "spec_hash": digest, "chunk_size": chunk_size,
+        "design_count": count,
+        "chunks": [{"index": i, "start": a, "stop": b, "file": chunk_name(i)} for i, (a, b) in enumerate(ranges)],
+        "spec": {"parameters": coords, "design_model": str(getattr(designs, "attrs", {}).get("model", "")),
+                 "design_parameters": getattr(designs, "attrs", {}).get("parameters", ""),
+                 "display_settings": settings, "reference": _describe(reference),
+                 "calibration_observer": _describe(calibration_observer), "strategy": strategy,
+                 "lab_volume": bool(lab_volume), "observer_count": int(observers.sizes["observer"]),
+                 "stimulus_count": int(stimuli.sizes.get("stimulus", 0)),
+                 "stimuli": str(stimuli.attrs.get("description", "")), "thresholds": list(thresholds),
+                 "age_bands": None if age_bands is None else list(age_bands), **(attrs or {})},
+        "observer_seed": observers.attrs.get("seed", "none"),
+        "observer_model": str(observers.attrs.get("model", "standard observers")),
+        "model": "per-design summaries of metasim.mismatch and the chromaticity gamut, chunked along design",
+        "metasim_version": __version__,
+    }
+    manifest = open_store(store, manifest)
+    done = finished_chunks(store, manifest)
+    state = {"done": 0, "total": len(ranges), "start": time.perf_counter()}
+
+    def report(kind: str, index: int | None, message: str) -> None:
+        if kind in ("skipped", "computed"):
+            state["done"] += 1
+        if progress is not None:
+            start, stop = ranges[index] if index is not None else (0, count)
+            progress({"kind": kind, "chunk": index, "start": start, "stop": stop, "done": state["done"],
+                      "total": state["total"], "seconds": time.perf_counter() - state["start"], "message": message})
+
+    for index in sorted(done):
+        a, b = ranges[index]
+        report("skipped", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) already in the store")
+    pending = [i for i in range(len(ranges)) if i not in done]
+
+    def block(index: int):
+        a, b = ranges[index]
+        if isinstance(designs, Display):
+            return designs.to_dataset().isel(design=slice(a, b))
+        return designs.isel(design=slice(a, b))
+
+    def finish(index: int, summary: xr.Dataset) -> None:
+        path = write_chunk(store, manifest, index, summary)
+        a, b = ranges[index]
+        p95 = summary["delta_e_2000_overall"].sel(statistic="p95").values
+        report("computed", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) written to {Path(path).name}; "
+               f"95th percentile {np.nanmin(p95):.2f}-{np.nanmax(p95):.2f} CIE 2000 units")
+
+    _execute(scheduler, pending, block, finish, reference, observers, stimuli, options, workers)
+    combined = combine_sweep(store)
+    report("combined", None, f"combined {count} designs into {Path(store) / 'sweep.nc'}")
+    return combined
+
+
+def _run_chunk(index, block, reference, observers, stimuli, options):
+    try:
+        return evaluate_chunk(block(index), reference, observers, stimuli, options)
+    except SweepError:
+        raise
+    except MetasimError as exc:
+        raise SweepError(f"chunk {index}: {exc}") from exc
+
+
+def _execute(scheduler, pending, block, finish, reference, observers, stimuli, options, workers) -> None:
+    if not pending:
+        return
+    if isinstance(scheduler, str) and scheduler in ("serial", "threads"):
+        first, rest = pending[0], pending[1:]
+        finish(first, _run_chunk(first, block, reference, observers, stimuli, options))
+        if scheduler == "serial" or not rest:
+            for index in rest:
+                finish(index, _run_chunk(index, block, reference, observers, stimuli, options))
+            return
+        options = {**options, "serialise_kernels": _kernels_need_serialising()}
+        _threads(rest, block, finish, reference, observers, stimuli, options, workers)
+        return
+    _distributed(scheduler, pending, block, finish, reference, observers, stimuli, options, workers)
+
+
+def _threads(pending, block, finish, reference, observers, stimuli, options, workers) -> None:
+    size = max(1, int(workers or os.cpu_count() or 1))
+    pool = ThreadPoolExecutor(max_workers=size, thread_name_prefix="metasim-sweep")
+    queue = list(pending)
+    running = {}
+    try:
+        while queue or running:
+            while queue and len(running) < size:  # submit lazily: at most `size` chunks in memory at once
+                index = queue.pop(0)
+                running[pool.submit(_run_chunk, index, block, reference, observers, stimuli, options)] = index
+            finished, _ = wait(list(running), return_when=FIRST_COMPLETED)
+            for future in finished:
+                index = running.pop(future)
+                finish(index, future.result())
+    finally:
+        pool.shutdown(wait=True, cancel_futures=True)
+
+
+def _check_scheduler(scheduler) -> None:
+    if isinstance(scheduler, str):
+        if scheduler in SCHEDULERS or "://" in scheduler:
+            return
+        raise SweepError(f"scheduler {scheduler!r} is not known; allowed: {', '.join(SCHEDULERS)} or a dask "
+                         "scheduler address such as 'tcp://127.0.0.1:8786'")
+    if not (hasattr(scheduler, "submit") and hasattr(scheduler, "scatter")):
+        raise SweepError(f"scheduler of type {type(scheduler).__name__} is not usable; allowed: "
+                         f"{', '.join(SCHEDULERS)}, a 'tcp://host:port' address or a distributed.Client")
+
+
+def _client(scheduler, workers):
+    """(client, close) for a scheduler address, "dask-threads", or a given Client."""
+    _check_scheduler(scheduler)
+    if not isinstance(scheduler, str):
+        return scheduler, False
+    try:
+        from distributed import Client, LocalCluster
+    except ImportError:
+        raise SweepError(f"scheduler {scheduler!r} needs dask.distributed, which is not installed; "
+                         'install it with pip install -e ".[distributed]"') from None
+    if scheduler == "dask-threads":
+        cluster = LocalCluster(n_workers=1, threads_per_worker=max(1, int(workers or os.cpu_count() or 1)),
+                               processes=False, dashboard_address=None)
+        return Client(cluster), True
+    try:
+        return Client(scheduler, timeout="10s"), True
+    except (OSError, TimeoutError) as exc:
+        raise SweepError(f"scheduler {scheduler!r}: cannot connect ({exc}); start one with 'dask scheduler'") from None
+
+
+def _distributed(scheduler, pending, block, finish, reference, observers, stimuli, options, workers) -> None:
+    client, close = _client(scheduler, workers)
+    try:
+        from distributed import as_completed
+
+        shared = client.scatter([reference, observers, stimuli], broadcast=True)
+        futures = {client.submit(evaluate_chunk, block(i), *shared, options, pure=False): i for i in pending}
+        for future in as_completed(list(futures)):
+            index = futures[future]
+            try:
+                summary = future.result()
+            except MetasimError as exc:
+                raise SweepError(f"chunk {index}: {exc}") from exc
+            finish(index, summary)
+    finally:
+        if close:
+            cluster = getattr(client, "cluster", None)
+            client.close()
+            if cluster is not None:
+                cluster.close()
+
+
+__all__ = ["SCHEDULERS", "PAIRS_PER_CHUNK", "run_sweep", "evaluate_chunk", "chunk_display"]
