@@ -8,8 +8,8 @@ Subcommands::
     metasim compare    two display designs side by side against one reference (or the second
                        against the first)
     metasim report     an HTML report (figures embedded) from any metasim result file
-
-(A batch-sweep subcommand is planned; it will sit beside these as one more entry in COMMANDS.)
+    metasim sweep      a grid of candidate designs (a sweep spec, :mod:`metasim.cli.sweep`) in chunks
+                       written to a store folder as they finish; a re-run resumes
 
 Displays are described in TOML design spec files (full format: :mod:`metasim.cli.specs` and
 ``data/demo/README.md``), for example::
@@ -111,6 +111,15 @@ def _reference(args, specs: dict):
     return display
 
 
+def _age_bands(args):
+    if not args.age_bands:
+        return None
+    try:
+        return [float(v) for v in args.age_bands.split(",")]
+    except ValueError:
+        raise MetasimError(f"--age-bands {args.age_bands!r}: give ascending ages in years, e.g. 20,40,60,80") from None
+
+
 def _study(args, designs: list, reference, specs: dict) -> int:
     from metasim.cli.study import Progress, build_stimuli, run_study
     from metasim.io import save_dataset
@@ -122,12 +131,7 @@ def _study(args, designs: list, reference, specs: dict) -> int:
         raise MetasimError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
                            "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
     observers = _observers(args)
-    bands = None
-    if args.age_bands:
-        try:
-            bands = [float(v) for v in args.age_bands.split(",")]
-        except ValueError:
-            raise MetasimError(f"--age-bands {args.age_bands!r}: give ascending ages in years, e.g. 20,40,60,80") from None
+    bands = _age_bands(args)
     steps = len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
     progress = Progress(steps, quiet=args.quiet)
     result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
@@ -180,6 +184,45 @@ def cmd_report(args) -> int:
     return 0
 
 
+def cmd_sweep(args) -> int:
+    import numpy as np
+
+    from metasim.cli.study import Progress, build_stimuli, default_age_bands
+    from metasim.cli.sweep import read_sweep_spec, relative, sweep_designs
+    from metasim.sweep import run_sweep
+
+    spec = read_sweep_spec(args.spec)
+    designs, _ = sweep_designs(spec)
+    if args.reference is None and "reference" in spec:
+        args.reference = spec["reference"] if spec["reference"] == "objects" else str(relative(spec, spec["reference"]))
+    reference = _reference(args, {})
+    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+    observers = _observers(args)
+    line = Progress(0, quiet=args.quiet)
+
+    def progress(event):
+        line.steps = event["total"] + 1  # the chunks and the combine step
+        line.step(event["message"])
+
+    result = run_sweep(designs, reference, observers, stimuli, store=args.out,
+                       chunk_size=args.chunk_size or spec.get("chunk_size"), scheduler=args.scheduler,
+                       workers=args.workers, calibration_observer=args.calibration_observer or spec.get(
+                           "calibration_observer", "cie1931_2"), strategy=args.strategy or spec.get("strategy", "min_norm"),
+                       lab_volume=bool(args.lab_volume if args.lab_volume is not None else spec.get("lab_volume", False)),
+                       age_bands=_age_bands(args) or default_age_bands(observers), progress=progress,
+                       attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
+                              "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
+    p95 = result["delta_e_2000_overall"].sel(statistic="p95")
+    parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
+    for rank, index in enumerate(np.argsort(p95.values)[:3], start=1):
+        values = ", ".join(f"{c} {float(result[c].values[index]):g}" for c in parameters)
+        print(f"#{rank}: design {int(result.design.values[index])} ({values}): 95th percentile "
+              f"{float(p95.values[index]):.2f} CIE 2000 units")
+    print(f"result:  {Path(args.out) / 'sweep.nc'} ({result.sizes['design']} designs)")
+    return 0
+
+
 def _print_headline(result) -> None:
     if "delta_e_2000_overall" not in result:
         return
@@ -210,6 +253,12 @@ EXAMPLES = {
                 "--reference data/demo/grading_monitor.toml --out a-vs-b\n"
                 "  metasim compare old_monitor.toml new_monitor.toml --size 300 --out upgrade   # second against first"),
     "report": "examples:\n  metasim report a-vs-b/study.nc --out a-vs-b.html\n  metasim report audience.nc",
+    "sweep": ("examples:\n  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7\n"
+              "  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
+              "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
+              "--scheduler tcp://10.0.0.5:8786\n"
+              "the store folder holds manifest.json, one chunk-NNNNN.nc per finished chunk and the combined sweep.nc;\n"
+              "the spec format is described in data/demo/README.md"),
 }
 
 
@@ -227,6 +276,13 @@ def _population_options(parser, observers_file: bool = True) -> None:
 def _study_options(parser) -> None:
     parser.add_argument("--out", default="metasim-study", help="output folder (default metasim-study)")
     _population_options(parser)
+    group = _matching_options(parser)
+    group.add_argument("--no-choices", dest="choices", action="store_false",
+                       help="skip the calibration-observer ranking and white-point offsets")
+    group.add_argument("--no-report", action="store_true", help="write the result file only")
+
+
+def _matching_options(parser):
     group = parser.add_argument_group("stimuli and matching")
     group.add_argument("--stimuli", help="comma list of ramp[:N], primaries, cube[:N], cie13.3 or CSV files "
                        "(default ramp:6,primaries,cube:3; cie13.3 for --reference objects)")
@@ -238,9 +294,7 @@ def _study_options(parser) -> None:
     group.add_argument("--strategy", choices=STRATEGIES, default="min_norm",
                        help="drive strategy for more than 3 primaries (default min_norm)")
     group.add_argument("--age-bands", help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
-    group.add_argument("--no-choices", dest="choices", action="store_false",
-                       help="skip the calibration-observer ranking and white-point offsets")
-    group.add_argument("--no-report", action="store_true", help="write the result file only")
+    return group
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -283,6 +337,20 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("second", help="second design spec (TOML)")
     p.add_argument("--reference", help="reference display spec (TOML) or 'objects'")
     _study_options(p)
+
+    p = add("sweep", "evaluate a grid of candidate designs (a sweep spec) in chunks; resumable", cmd_sweep)
+    p.add_argument("spec", help="sweep spec (TOML): the designs to vary and, optionally, reference and stimuli")
+    p.add_argument("--out", required=True, metavar="STORE", help="store folder (chunk files, manifest, sweep.nc); "
+                   "an existing store of the same sweep resumes")
+    p.add_argument("--reference", help="reference display spec (TOML) or 'objects' (default: the spec's, else objects)")
+    p.add_argument("--chunk-size", type=int, metavar="N", help="designs per chunk (default: the spec's, else automatic)")
+    p.add_argument("--scheduler", default="threads", help="serial, threads (default), dask-threads, or a dask "
+                   "scheduler address such as tcp://host:8786")
+    p.add_argument("--workers", type=int, metavar="N", help="threads for threads / dask-threads (default: CPU count)")
+    p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
+    _population_options(p)
+    _matching_options(p)
+    p.set_defaults(calibration_observer=None, strategy=None)
 
     p = add("report", "write an HTML report (figures embedded) from a metasim result file", cmd_report)
     p.add_argument("result", help="result file (.nc): a study, a mismatch result or an observer file")

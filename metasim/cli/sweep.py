@@ -1,0 +1,146 @@
+"""Sweep specs: a small TOML file that describes a grid of candidate designs, for ``metasim sweep``.
+
+Format (TOML; paths are relative to the spec file; only ``[vary]`` and ``[vary.peaks_nm]`` are
+required)::
+
+    name = "Red laser of candidate A"      # label kept in the result
+    description = "free text, kept in the result"
+    base = "projector_four_laser.toml"     # display spec: its other primaries and its settings stay
+    reference = "grading_monitor.toml"     # display spec, or "objects"            (default objects)
+    stimuli = "ramp:6,primaries,cube:3"    # the --stimuli list                    (default as --stimuli)
+    calibration_observer = "cie1931_2"     # cie1931_2 | cie1964_10 | cie2015_2 | cie2015_10 | population_mean
+    strategy = "min_norm"                  # min_norm | max_efficiency | population
+    chunk_size = 4                         # designs per chunk                     (default: automatic)
+    lab_volume = false                     # also the CIELAB volume of every design (slower)
+
+    [display]                              # only without base: the display-level keys of a display
+    transfer = "gamma"                     # spec (transfer, gamma, peak_luminance, black_luminance,
+    gamma = 2.6                            # white, calibration_observer)
+    peak_luminance = 48
+
+    [vary]
+    kind = "laser"                         # laser | gaussian | quantum_dot
+    width_nm = [1.0, 2.0]                  # line width (laser) or FWHM, shared by the varied primaries;
+                                           # or a table with one list per primary: {R = [1, 2], G = [1]}
+    radiance = 1.0                         # integrated radiance before calibration (matters for N > 3)
+    profile = "gaussian"                   # laser line shape: gaussian | lorentzian
+
+    [vary.peaks_nm]                        # one entry per varied primary label
+    R = {start = 610, stop = 650, step = 5}    # stop included; or a list: R = [610, 625, 640]
+
+The designs are every combination of the listed values (:func:`metasim.sweep.design_grid`); with a
+``base`` a varied label replaces the base primary of that label and new labels are added. Options
+given on the command line (``--reference``, ``--stimuli``, ``--chunk-size``,
+``--calibration-observer``, ``--strategy``) win over the spec.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from metasim.cli.specs import SpecError, load_display, read_spec, spec_settings
+from metasim.errors import MetasimError
+from metasim.sweep import GRID_KINDS, design_grid
+
+TOP_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy",
+            "chunk_size", "lab_volume", "display", "vary")
+VARY_KEYS = ("kind", "peaks_nm", "width_nm", "radiance", "profile")
+DISPLAY_KEYS = ("transfer", "gamma", "peak_luminance", "black_luminance", "white", "calibration_observer")
+#: largest number of values one ``{start, stop, step}`` range may expand to
+MAX_RANGE_VALUES = 10_000
+
+
+def _unknown(where: str, table: dict, allowed) -> None:
+    extra = [k for k in table if k not in allowed and not str(k).startswith("_")]
+    if extra:
+        raise SpecError(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
+
+
+def value_list(where: str, value) -> list[float]:
+    """A list of numbers from a number, a list, or a ``{start, stop, step}`` table (stop included)."""
+    if isinstance(value, dict):
+        _unknown(where, value, ("start", "stop", "step"))
+        try:
+            start, stop, step = (float(value[k]) for k in ("start", "stop", "step"))
+        except KeyError as exc:
+            raise SpecError(f"{where}: a range needs start, stop and step; {exc.args[0]!r} is missing") from None
+        except (TypeError, ValueError):
+            raise SpecError(f"{where}: start, stop and step must be numbers, got {value!r}") from None
+        if step <= 0 or stop < start or (stop - start) / step > MAX_RANGE_VALUES:
+            raise SpecError(f"{where}: range {value!r} is not allowed; need step > 0, stop >= start and at most "
+                            f"{MAX_RANGE_VALUES} values")
+        return [float(v) for v in np.round(np.arange(start, stop + step / 2, step), 9)]
+    values = value if isinstance(value, list) else [value]
+    if not values or any(isinstance(v, bool) or not isinstance(v, (int, float)) for v in values):
+        raise SpecError(f"{where}: {value!r} is not allowed; give a number, a list of numbers or "
+                        "{start = ..., stop = ..., step = ...}")
+    return [float(v) for v in values]
+
+
+def read_sweep_spec(path) -> dict:
+    """The parsed sweep spec (``_path``, ``_text`` added), its keys and value types checked."""
+    spec = read_spec(path)
+    where = str(spec["_path"])
+    _unknown(where, spec, TOP_KEYS)
+    vary = spec.get("vary")
+    if not isinstance(vary, dict):
+        raise SpecError(f"{where}: a sweep spec needs a [vary] table with [vary.peaks_nm]")
+    _unknown(f"{where} [vary]", vary, VARY_KEYS)
+    kind = vary.get("kind", "laser")
+    if kind not in GRID_KINDS:
+        raise SpecError(f"{where} [vary]: kind {kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    peaks = vary.get("peaks_nm")
+    if not isinstance(peaks, dict) or not peaks:
+        raise SpecError(f"{where}: [vary.peaks_nm] must give at least one primary label, e.g. R = [620, 640]")
+    for key in ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy"):
+        if key in spec and not isinstance(spec[key], str):
+            raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
+    if "chunk_size" in spec and (isinstance(spec["chunk_size"], bool) or not isinstance(spec["chunk_size"], int)
+                                 or spec["chunk_size"] < 1):
+        raise SpecError(f"{where}: chunk_size = {spec['chunk_size']!r} is not allowed; need a whole number >= 1")
+    if "lab_volume" in spec and not isinstance(spec["lab_volume"], bool):
+        raise SpecError(f"{where}: lab_volume = {spec['lab_volume']!r} must be true or false")
+    if "display" in spec:
+        if "base" in spec:
+            raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
+        if not isinstance(spec["display"], dict):
+            raise SpecError(f"{where}: display must be a table of display settings")
+        _unknown(f"{where} [display]", spec["display"], DISPLAY_KEYS)
+    return spec
+
+
+def relative(spec: dict, value: str) -> Path:
+    path = Path(value)
+    return path if path.is_absolute() else Path(spec["_path"]).parent / path
+
+
+def sweep_designs(spec: dict):
+    """The designs of a sweep spec (:func:`metasim.sweep.design_grid`) and the base design spec, if any."""
+    where = str(spec["_path"])
+    vary = spec["vary"]
+    peaks = {str(label): value_list(f"{where} [vary.peaks_nm] {label}", v) for label, v in vary["peaks_nm"].items()}
+    width = vary.get("width_nm", 1.0)
+    if isinstance(width, dict):
+        width = {str(label): value_list(f"{where} [vary] width_nm.{label}", v) for label, v in width.items()}
+    else:
+        width = value_list(f"{where} [vary] width_nm", width)
+    base, base_spec = None, None
+    if "base" in spec:
+        base, base_spec = load_display(relative(spec, spec["base"]))
+    radiance = vary.get("radiance", 1.0)
+    if isinstance(radiance, bool) or not isinstance(radiance, (int, float)) or radiance <= 0:
+        raise SpecError(f"{where} [vary]: radiance = {radiance!r} is not allowed; need a number > 0")
+    try:
+        designs = design_grid(vary.get("kind", "laser"), peaks, width, base=base, radiance=float(radiance),
+                              profile=vary.get("profile", "gaussian"))
+    except MetasimError as exc:
+        raise SpecError(f"{where}: {exc}") from None
+    if "display" in spec:
+        settings = spec_settings({**spec["display"], "_path": spec["_path"]})
+        designs.attrs["display_settings"] = {k: settings[k] for k in DISPLAY_KEYS}
+    return designs, base_spec
+
+
+__all__ = ["TOP_KEYS", "VARY_KEYS", "read_sweep_spec", "sweep_designs", "value_list", "relative"]
