@@ -1,0 +1,200 @@
+"""Batch sweeps: per-design summaries equal single mismatch() calls; chunked stores resume; schedulers agree.
+
+Kept small (30 observers, 7 stimuli, 8 designs) so the file runs in well under a minute.
+"""
+
+import os
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import metasim
+from metasim import emitters
+from metasim.errors import SweepError
+from metasim.metamerism import primaries_and_secondaries
+from metasim.sweep import chunk_display, design_grid, design_list, read_manifest, run_sweep
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO_SWEEP = ROOT / "data" / "demo" / "sweep_red_laser.toml"
+
+
+@pytest.fixture(scope="module")
+def monitor():
+    spectra = emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])
+    return metasim.calibrate_white(metasim.make_display(spectra), "cie1931_2", white="D65", luminance=100)
+
+
+@pytest.fixture(scope="module")
+def viewers():
+    return metasim.observer_population(30, seed=11, age_years=(20, 70))
+
+
+@pytest.fixture(scope="module")
+def stimuli():
+    return primaries_and_secondaries()
+
+
+@pytest.fixture(scope="module")
+def designs():
+    return design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0])
+
+
+@pytest.fixture(scope="module")
+def swept(tmp_path_factory, designs, monitor, viewers, stimuli):
+    store = tmp_path_factory.mktemp("sweep") / "store"
+    events = []
+    result = run_sweep(designs, monitor, viewers, stimuli, store=store, chunk_size=3, scheduler="serial",
+                       progress=events.append)
+    return store, result, events
+
+
+def test_grid_is_the_cartesian_product(designs):
+    assert designs.dims == ("design", "primary", "wavelength")
+    assert designs.sizes["design"] == 8 and list(designs.primary.values) == ["R", "G", "B"]
+    combos = {(r, g, w) for r, g, w in zip(designs["peak_nm_R"].values, designs["peak_nm_G"].values,
+                                          designs["width_nm"].values)}
+    assert len(combos) == 8
+    assert designs["peak_nm_R"].attrs["units"] == "nm" and designs.attrs["units"]
+    one = designs.isel(design=5)
+    expected = emitters.laser_line([float(one.peak_nm_R), float(one.peak_nm_G), 460.0], float(one.width_nm))
+    np.testing.assert_allclose(one.values, expected.values, atol=1e-15)  # the emitter itself (no outside reference)
+
+
+def test_grid_keeps_the_base_primaries():
+    base = metasim.calibrate_white(metasim.make_display(emitters.laser_line([465, 500, 532, 639], 1.0,
+                                                                            name=["B", "C", "G", "R"])), "cie1931_2")
+    grid = design_grid("laser", peaks_nm={"R": [620, 630]}, width_nm=1.0, base=base)
+    assert list(grid.primary.values) == ["B", "C", "G", "R"]
+    uncalibrated = emitters.laser_line([465, 500, 532, 639], 1.0, name=["B", "C", "G", "R"])
+    np.testing.assert_allclose(grid.isel(design=1).sel(primary="C").values, uncalibrated.sel(primary="C").values,
+                               rtol=1e-12)  # gains undone exactly (no outside reference)
+    assert grid.attrs["display_settings"]["transfer"] == base.transfer
+
+
+def test_bad_grids_are_refused():
+    with pytest.raises(SweepError, match="kind='led'"):
+        design_grid("led", peaks_nm={"R": [620]})
+    with pytest.raises(SweepError, match="peaks_nm\\['R'\\]"):
+        design_grid("laser", peaks_nm={"R": [-3]})
+
+
+def test_combined_sweep_equals_single_mismatch_calls(swept, designs, monitor, viewers, stimuli):
+    store, result, _ = swept
+    assert result.sizes["design"] == 8
+    assert result.attrs["observer_seed"] == 11 and result.attrs["metasim_version"] == metasim.__version__
+    assert result.attrs["spec_hash"] == read_manifest(store)["spec_hash"]
+    settings = {"transfer": "bt1886", "gamma": 2.2, "peak_luminance": 100.0, "black_luminance": 0.0, "white": "D65",
+                "calibration_observer": "cie1931_2"}
+    for i in (0, 3, 7):
+        spectra = designs.isel(design=i).drop_vars([c for c in designs.coords if designs[c].dims == ("design",)])
+        display = chunk_display(spectra.expand_dims(design=[i]), settings)
+        alone = metasim.mismatch(monitor, display, viewers, stimuli)
+        de = alone["delta_e_2000"].isel(design=0).values.ravel()
+        expected = [de.mean(), np.median(de), np.quantile(de, 0.95), de.max()]
+        # the same numbers computed once by numpy on a one-design mismatch() (no outside reference)
+        np.testing.assert_allclose(result["delta_e_2000_overall"].isel(design=i).values, expected, atol=1e-9)
+        np.testing.assert_allclose(result["share_beyond_overall"].isel(design=i).values,
+                                   [(de > t).mean() for t in (1, 2, 3)], atol=1e-9)
+        white = alone["delta_e_white"].isel(design=0).values
+        np.testing.assert_allclose(float(result["delta_e_white"].isel(design=i).sel(statistic="p95")),
+                                   np.quantile(white, 0.95), atol=1e-9)
+        gamut = metasim.chromaticity_gamut(display, observer=metasim.standard_observer("cie1931_2"))
+        np.testing.assert_allclose(float(result["gamut_area_xy"].isel(design=i)), float(gamut["area"].squeeze()),
+                                   atol=1e-12)
+        coverage = metasim.gamut_coverage(gamut, "bt2020")
+        np.testing.assert_allclose(float(result["gamut_coverage"].isel(design=i).sel(reference_gamut="bt2020")),
+                                   float(coverage.squeeze()), atol=1e-12)
+    np.testing.assert_array_equal(result["peak_nm_R"].values, designs["peak_nm_R"].values)
+    assert result["delta_e_2000_overall"].attrs["long_name"] and result["gamut_coverage"].attrs["units"] == "1"
+    back = metasim.load_dataset(store / "sweep.nc")
+    xr.testing.assert_identical(back, result)
+
+
+def test_resume_recomputes_only_missing_chunks(swept, designs, monitor, viewers, stimuli):
+    store, first, events = swept
+    assert [e["kind"] for e in events].count("computed") == 3
+    os.remove(store / "chunk-00001.nc")
+    kept = (store / "chunk-00000.nc").stat().st_mtime_ns
+    again = []
+    time.sleep(0.01)
+    result = run_sweep(designs, monitor, viewers, stimuli, store=store, chunk_size=3, scheduler="serial",
+                       progress=again.append)
+    computed = [e["chunk"] for e in again if e["kind"] == "computed"]
+    assert computed == [1]
+    assert sorted(e["chunk"] for e in again if e["kind"] == "skipped") == [0, 2]
+    assert (store / "chunk-00000.nc").stat().st_mtime_ns == kept
+    xr.testing.assert_identical(result, first)
+
+
+def test_a_store_of_another_spec_is_refused(swept, designs, monitor, viewers, stimuli):
+    store = swept[0]
+    with pytest.raises(SweepError, match="different spec"):
+        run_sweep(designs.isel(design=slice(0, 4)), monitor, viewers, stimuli, store=store, chunk_size=3)
+    with pytest.raises(SweepError, match="chunk size 3"):
+        run_sweep(designs, monitor, viewers, stimuli, store=store, chunk_size=2)
+    with pytest.raises(SweepError, match="scheduler 'fast'"):
+        run_sweep(designs, monitor, viewers, stimuli, store=store, scheduler="fast")
+
+
+def test_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, stimuli):
+    result = run_sweep(designs, monitor, viewers, stimuli, store=tmp_path / "threads", chunk_size=2,
+                       scheduler="threads", workers=2)
+    serial = swept[1]
+    for name in ("delta_e_2000_overall", "delta_e_2000_by_age", "delta_e_white", "gamut_coverage", "share_beyond_overall"):
+        np.testing.assert_array_equal(result[name].values, serial[name].values)
+
+
+def test_explicit_design_list_and_objects_reference(tmp_path, viewers):
+    spectra = [emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]) for red in (615, 630, 645)]
+    designs = design_list(spectra, red_nm=[615, 630, 645])
+    result = run_sweep(designs, "objects", viewers, metasim.metamerism.cie_13_3_samples(), store=tmp_path / "objects",
+                       chunk_size=2, scheduler="serial", lab_volume=True)
+    assert list(result["red_nm"].values) == [615, 630, 645]
+    assert (result["lab_volume"].values > 0).all()
+    assert result.attrs["reference_kind"] == "objects"
+
+
+def test_missing_distributed_gives_the_install_hint(monkeypatch, tmp_path, designs, monitor, viewers, stimuli):
+    monkeypatch.setitem(sys.modules, "distributed", None)
+    with pytest.raises(SweepError, match=r'pip install -e "\.\[distributed\]"'):
+        run_sweep(designs.isel(design=slice(0, 2)), monitor, viewers, stimuli, store=tmp_path / "dask",
+                  scheduler="tcp://127.0.0.1:1")
+
+
+def test_dask_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, stimuli):
+    pytest.importorskip("distributed")
+    result = run_sweep(designs, monitor, viewers, stimuli, store=tmp_path / "dask", chunk_size=3,
+                       scheduler="dask-threads", workers=2)
+    np.testing.assert_array_equal(result["delta_e_2000_overall"].values, swept[1]["delta_e_2000_overall"].values)
+
+
+def run_cli(*args):
+    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
+    return subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
+                          env=env, timeout=300)
+
+
+def test_cli_sweep_writes_the_store(tmp_path):
+    done = run_cli("sweep", DEMO_SWEEP, "--out", tmp_path / "red", "--size", 30, "--seed", 5,
+                   "--stimuli", "primaries", "--chunk-size", 4)
+    assert done.returncode == 0, done.stderr
+    assert "combined 9 designs" in done.stderr and "result:" in done.stdout
+    result = metasim.load_dataset(tmp_path / "red" / "sweep.nc")
+    assert result.sizes["design"] == 9
+    np.testing.assert_allclose(result["peak_nm_R"].values, np.arange(610, 651, 5))
+    assert sorted(p.name for p in (tmp_path / "red").glob("chunk-*.nc")) == [f"chunk-0000{i}.nc" for i in range(3)]
+    assert "sweep_spec_text" in result.attrs["spec"]
+
+
+def test_cli_bad_sweep_spec_is_one_line(tmp_path):
+    spec = tmp_path / "bad.toml"
+    spec.write_text('[vary]\nkind = "laser"\n[vary.peaks_nm]\nR = {start = 650, stop = 610, step = 5}\n')
+    done = run_cli("sweep", spec, "--out", tmp_path / "bad", "--size", 10)
+    assert done.returncode != 0 and "Traceback" not in done.stderr
+    lines = [line for line in done.stderr.splitlines() if line.strip()]
+    assert len(lines) == 1 and lines[0].startswith("metasim: error:") and "stop >= start" in lines[0]
