@@ -53,6 +53,9 @@ _ENTRY_POINTS = {
     "lab_gamut_volume": "metasim.gamut",
     "lab_coverage_volume": "metasim.gamut",
     "extra_primary_gain": "metasim.gamut",
+    # sweeps
+    "design_grid": "metasim.sweep",
+    "run_sweep": "metasim.sweep",
     # files
     "save_dataset": "metasim.io",
     "load_dataset": "metasim.io",
