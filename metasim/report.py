@@ -9,7 +9,9 @@ holds, section by section:
   ranking and white-point offsets when present;
 * a mismatch Dataset straight from :func:`metasim.mismatch` (treated as one design);
 * an observer population or category file (:func:`metasim.observer_population`): ages, parameters
-  and the spread of the colour-matching functions.
+  and the spread of the colour-matching functions;
+* a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
+  sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs and the sweep spec.
 
 Every report lists the models and parameters recorded in the file's attributes and the cautions.
 """
@@ -94,13 +96,21 @@ def as_study(ds: xr.Dataset) -> xr.Dataset:
     return ds
 
 
+def is_sweep(ds: xr.Dataset) -> bool:
+    """Whether ``ds`` is a sweep's per-design summaries (combined ``sweep.nc`` or one chunk file)."""
+    return ("delta_e_2000_overall" in ds and "design" in ds.dims and "delta_e_2000" not in ds
+            and (ds.attrs.get("result_kind") == "metasim sweep" or "spec_hash" in ds.attrs))
+
+
 def _kind(ds: xr.Dataset) -> str:
+    if is_sweep(ds):
+        return "sweep"
     if "delta_e_2000" in ds or "gamut_polygon" in ds:
         return "study"
     if "cmf" in ds and "observer" in ds.dims:
         return "population"
     raise MetasimError("the file holds no metasim results this report can show (need a study, a mismatch "
-                       "result or an observer population)")
+                       "result, a sweep or an observer population)")
 
 
 # -- figures ---------------------------------------------------------------------------------------------
@@ -126,6 +136,14 @@ def report_figures(ds: xr.Dataset) -> dict:
     """The figures a result supports, by file stem: {name: (Figure, caption)}."""
     ds = as_study(ds)
     figures = {}
+    if _kind(ds) == "sweep":
+        varied = plots.sweep_parameters(ds)[0]
+        what = {1: "against the varied parameter, with the BT.2020 coverage of each design",
+                2: "over the two varied parameters (the best design outlined)"}.get(
+            len(varied), "for every design, sorted (the best design starred)")
+        figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
+                            f"observer × stimulus pairs, per design, {what}.")
+        return figures
     if _kind(ds) == "population":
         figures["observers"] = (plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
         return figures
@@ -289,11 +307,14 @@ def _value(value) -> str:
     return _e(value)
 
 
+def _attribute_list(attrs: dict) -> str:
+    return "<dl>" + "".join(f"<dt>{_e(k.replace('_', ' '))}</dt><dd>{_value(v)}</dd>" for k, v in attrs.items()) + "</dl>"
+
+
 def _models(ds: xr.Dataset) -> str:
     attrs = dict(ds.attrs)
     specs = attrs.pop("display_specs", {}) or {}
-    items = "".join(f"<dt>{_e(k.replace('_', ' '))}</dt><dd>{_value(v)}</dd>" for k, v in attrs.items())
-    out = "<h2>Models and parameters</h2><dl>" + items + "</dl>"
+    out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
     if "spectra" in ds:
         rows = []
         for name in ds["display"].values if "display" in ds.dims else []:
@@ -304,6 +325,115 @@ def _models(ds: xr.Dataset) -> str:
     for name, text in (specs.items() if isinstance(specs, dict) else []):
         if text:
             out += f"<h3>Design spec: {_e(name)}</h3><pre>{_e(text)}</pre>"
+    return out
+
+
+# -- sweeps ----------------------------------------------------------------------------------------------
+
+def _sweep_spec(ds: xr.Dataset) -> dict:
+    spec = ds.attrs.get("spec", {})
+    if isinstance(spec, str):
+        try:
+            spec = json.loads(spec)
+        except ValueError:
+            return {}
+    return spec if isinstance(spec, dict) else {}
+
+
+def _sweep_numbers(ds: xr.Dataset) -> dict:
+    """Per-design p95, median, share beyond 2 and BT.2020 coverage (NaN where the file lacks them)."""
+    stats = ds["delta_e_2000_overall"].transpose("design", "statistic")
+    nan = np.full(ds.sizes["design"], np.nan)
+    share = nan
+    if "share_beyond_overall" in ds and 2.0 in ds["share_beyond_overall"]["threshold"].values:
+        share = ds["share_beyond_overall"].sel(threshold=2.0).transpose("design").values
+    coverage = nan
+    if "gamut_coverage" in ds and "bt2020" in ds["gamut_coverage"]["reference_gamut"].values:
+        coverage = ds["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
+    p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
+    return {"p95": p95, "median": np.asarray(stats.sel(statistic="median").values, dtype=float),
+            "share2": np.asarray(share, dtype=float), "bt2020": np.asarray(coverage, dtype=float),
+            "order": np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")}
+
+
+def _cell(value) -> str:
+    return f"{value:g}" if isinstance(value, (int, float, np.integer, np.floating)) else str(value)
+
+
+def _design_name(ds: xr.Dataset, index: int) -> str:
+    return f"design {ds['design'].values[index]}"
+
+
+def _parameters_of(ds: xr.Dataset, names, index: int) -> str:
+    return ", ".join(f"{plots.parameter_text(ds, c)[0]} {plots.parameter_value(ds, c, index)}" for c in names)
+
+
+def _sweep_headline(ds: xr.Dataset) -> str:
+    spec = _sweep_spec(ds)
+    numbers = _sweep_numbers(ds)
+    varied, fixed = plots.sweep_parameters(ds)
+    best = int(numbers["order"][0])
+    observers = ds.attrs.get("observer_count", spec.get("observer_count", "?"))
+    stimuli = ds.attrs.get("stimulus_count", spec.get("stimulus_count", "?"))
+    count = ds.sizes["design"]
+    reference = spec.get("reference") or ds.attrs.get("reference", "the reference")
+    parts = [f"<p>{count} design{'s' if count != 1 else ''}, each judged by {_e(observers)} observers × {_e(stimuli)} "
+             f"stimuli against {_e(reference)}, matched for {_e(ds.attrs.get('calibration_observer', ''))}."]
+    if spec.get("sweep_description"):
+        parts.append(f" {_e(str(spec['sweep_description']).rstrip('.'))}.")
+    parts.append("</p>")
+    described = _parameters_of(ds, varied, best)
+    share = numbers["share2"][best]
+    parts.append(f"<p class='headline'><strong>Best design: {_e(_design_name(ds, best))}</strong>"
+                 f"{' (' + _e(described) + ')' if described else ''} — 95th percentile "
+                 f"<strong>{_num(numbers['p95'][best])}</strong>, median {_num(numbers['median'][best])} CIE 2000 units"
+                 f"{', ' + _pct(share) + ' of observer × stimulus pairs beyond 2' if np.isfinite(share) else ''}"
+                 f"{', BT.2020 coverage ' + _pct(numbers['bt2020'][best]) if np.isfinite(numbers['bt2020'][best]) else ''}."
+                 "</p>")
+    if count > 1 and np.isfinite(numbers["p95"]).any():
+        worst = int(numbers["order"][-1]) if np.isfinite(numbers["p95"][numbers["order"][-1]]) else best
+        parts.append(f"<p>95th percentiles over the sweep: {_num(numbers['p95'][best])} to {_num(numbers['p95'][worst])} "
+                     f"CIE 2000 units (worst: {_e(_design_name(ds, worst))}).</p>")
+    if varied:
+        parts.append(f"<p>Varied: {_e(', '.join(plots.parameter_label(ds, c) for c in varied))}.</p>")
+    try:
+        kept = json.loads(spec.get("design_parameters") or "{}").get("fixed_primaries", [])
+    except (TypeError, ValueError, AttributeError):
+        kept = []
+    held = [_parameters_of(ds, fixed, best)] if fixed else []
+    held += [f"the base primaries {', '.join(map(str, kept))}"] if kept else []
+    if held:
+        parts.append(f"<p>Held fixed: {_e('; '.join(held))}.</p>")
+    return "<h2>Headline</h2>" + "".join(parts)
+
+
+def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
+    numbers = _sweep_numbers(ds)
+    varied = plots.sweep_parameters(ds)[0]
+    header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
+    header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
+    rows = []
+    for rank, index in enumerate(numbers["order"][:shown], start=1):
+        index = int(index)
+        rows.append([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
+                    + [_num(numbers["p95"][index]), _num(numbers["median"][index]), _pct(numbers["share2"][index]),
+                       _pct(numbers["bt2020"][index])])
+    count = ds.sizes["design"]
+    what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
+    return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "
+            "stimulus pairs; the share is of pairs beyond 2 CIE 2000 units; BT.2020 coverage is of its CIE 1931 xy "
+            "area.</p>" + _table(header, rows))
+
+
+def _sweep_models(ds: xr.Dataset) -> str:
+    attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
+    spec = dict(_sweep_spec(ds))
+    text = spec.pop("sweep_spec_text", "")
+    out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
+    if spec:
+        out += "<h3>Sweep spec</h3>" + _attribute_list(spec)
+    if text:
+        out += f"<h3>Sweep spec file</h3><pre>{_e(text)}</pre>"
     return out
 
 
@@ -322,11 +452,17 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         raise MetasimError(f"a report needs a result Dataset, got {type(ds).__name__}")
     kind = _kind(ds)
     ds = as_study(ds)
+    if kind == "sweep":
+        title = title or str(_sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
     title = title or str(ds.attrs.get("title", "metasim population" if kind == "population" else "metasim result"))
     figures = figure_pngs(ds) if figures is None else figures
     body = [f"<h1>{_e(title)}</h1>",
-            f"<p class='sub'>metasim {__version__} report{(' of ' + _e(source)) if source else ''}.</p>"]
-    if kind == "population":
+            f"<p class='sub'>metasim {__version__} {'sweep ' if kind == 'sweep' else ''}report"
+            f"{(' of ' + _e(source)) if source else ''}.</p>"]
+    if kind == "sweep":
+        body += [_sweep_headline(ds)] + [_image(png, caption) for png, caption in figures.values()]
+        body += [_sweep_best(ds), _sweep_models(ds)]
+    elif kind == "population":
         body.append(_population(ds))
         body += [_image(png, caption) for png, caption in figures.values()]
     else:
@@ -342,7 +478,8 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         for key in ("chromaticity", "spectra", "extra_primary"):
             if key in figures:
                 body.append(_image(*figures[key]))
-    body.append(_models(ds))
+    if kind != "sweep":
+        body.append(_models(ds))
     body.append("<h2>Cautions</h2>" + "".join(f"<p class='caution'>{_e(c)}</p>" for c in CAUTIONS))
     return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
             f"<meta name='viewport' content='width=device-width, initial-scale=1'><title>{_e(title)}</title>"
@@ -364,4 +501,4 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     return path
 
 
-__all__ = ["CAUTIONS", "as_study", "report_figures", "figure_pngs", "render_report", "write_report"]
+__all__ = ["CAUTIONS", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report", "write_report"]
