@@ -353,7 +353,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.set_defaults(calibration_observer=None, strategy=None)
 
     p = add("report", "write an HTML report (figures embedded) from a metasim result file", cmd_report)
-    p.add_argument("result", help="result file (.nc): a study, a mismatch result or an observer file")
+    p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc) or an observer file")
     p.add_argument("--out", help="HTML file to write (default: the result name with .html)")
     p.add_argument("--figures", metavar="DIR", help="also write each figure as a PNG file into DIR")
     return parser
