@@ -1,0 +1,231 @@
+"""Figures of sweep results: curves for one varied parameter, a heat map for two, a rank plot otherwise."""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+from matplotlib import rc_context
+from matplotlib.colors import LinearSegmentedColormap
+from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
+from matplotlib.ticker import MaxNLocator
+
+from metasim.plots.figures import DELTA_E_LABEL, DESIGN_COLOURS, REFERENCE_COLOUR, STYLE, _figure
+
+#: Sequential map of the sweep heat map, light (small mismatch) to dark (large): cream, ember, slate.
+MISMATCH_CMAP = LinearSegmentedColormap.from_list("metasim_mismatch", ["#f4f1ea", "#e9b27d", "#d9633b", "#8e3b46",
+                                                                      REFERENCE_COLOUR])
+COLOUR_WORDS = {"R": "red", "G": "green", "B": "blue", "C": "cyan", "Y": "yellow", "M": "magenta", "O": "orange",
+                "V": "violet", "DR": "deep red", "W": "white"}
+EMITTER_WORDS = {"laser": "laser", "gaussian": "Gaussian primary", "quantum_dot": "quantum-dot primary"}
+
+
+def _sweep_spec(summary: xr.Dataset) -> dict:
+    import json
+
+    spec = summary.attrs.get("spec", {})
+    if isinstance(spec, str):
+        try:
+            spec = json.loads(spec)
+        except ValueError:
+            spec = {}
+    return spec if isinstance(spec, dict) else {}
+
+
+def _design_kind(summary: xr.Dataset) -> str | None:
+    import json
+
+    parameters = _sweep_spec(summary).get("design_parameters", "")
+    try:
+        parameters = json.loads(parameters) if isinstance(parameters, str) else parameters
+    except ValueError:
+        return None
+    return parameters.get("kind") if isinstance(parameters, dict) else None
+
+
+def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
+    """The design parameters of a sweep summary: (varied, fixed) coordinate names, in the spec's order.
+
+    A parameter is varied when it takes more than one value over ``design``.
+    """
+    names = [str(c) for c in summary.coords if summary[c].dims == ("design",) and c != "design"]
+    order = [str(c) for c in _sweep_spec(summary).get("parameters", []) if str(c) in names]
+    names = order + [c for c in names if c not in order]
+    varied = [c for c in names if len(np.unique(summary[c].values)) > 1]
+    return varied, [c for c in names if c not in varied]
+
+
+def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
+    """Words and units of a design parameter, e.g. ``("red laser peak", "nm")`` (units "" when none)."""
+    kind = _design_kind(summary)
+    emitter = EMITTER_WORDS.get(kind, "primary")
+    units = summary[name].attrs.get("units") if name in summary.coords else None
+    if units is None and name.endswith("_nm"):
+        units = "nm"
+    if name.startswith("peak_nm_"):
+        label = name[len("peak_nm_"):]
+        text = f"{COLOUR_WORDS.get(label, label)} {emitter} peak"
+    elif name == "width_nm" or name.startswith("width_nm_"):
+        width = "line width (FWHM)" if kind == "laser" else "FWHM"
+        label = name[len("width_nm_"):] if name != "width_nm" else None
+        text = f"{COLOUR_WORDS.get(label, label)} {emitter} {width}" if label else f"{emitter} {width}"
+    else:
+        text = str(summary[name].attrs.get("long_name", name.replace("_", " "))) if name in summary.coords else name
+    return text, ("" if not units or units == "1" else str(units))
+
+
+def parameter_label(summary: xr.Dataset, name: str) -> str:
+    """Axis label of a design parameter with its units, e.g. ``"red laser peak (nm)"``."""
+    text, units = parameter_text(summary, name)
+    return f"{text} ({units})" if units else text
+
+
+def parameter_value(summary: xr.Dataset, name: str, index: int) -> str:
+    """One design's value of a parameter with its units, e.g. ``"640 nm"``."""
+    units = parameter_text(summary, name)[1]
+    return _tick(summary[name].values[index]) + (f" {units}" if units else "")
+
+
+def _as_float(values) -> np.ndarray | None:
+    try:
+        out = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        return None
+    return out if np.isfinite(out).all() else None
+
+
+def _tick(value) -> str:
+    return f"{value:g}" if isinstance(value, (float, np.floating, int, np.integer)) else str(value)
+
+
+def _best_index(p95: np.ndarray) -> int:
+    return int(np.nanargmin(p95)) if np.isfinite(p95).any() else 0
+
+
+def _sweep_curves(summary: xr.Dataset, name: str, p95: np.ndarray, median: np.ndarray) -> Figure:
+    raw = summary[name].values
+    x = _as_float(raw)
+    categorical = x is None
+    if categorical:
+        categories = list(dict.fromkeys(map(str, raw)))
+        x = np.array([categories.index(str(v)) for v in raw], dtype=float)
+    order = np.argsort(x, kind="stable")
+    coverage = None
+    if "gamut_coverage" in summary and "bt2020" in summary["gamut_coverage"]["reference_gamut"].values:
+        coverage = 100 * summary["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
+    best = _best_index(p95)
+    with rc_context(STYLE):
+        fig, axes = _figure(7.6, 4.4 if coverage is None else 6.4, 1 if coverage is None else 2, 1, sharex=True,
+                            gridspec_kw=None if coverage is None else {"height_ratios": [2.2, 1]})
+        ax = axes[0, 0]
+        ax.plot(x[order], p95[order], color=DESIGN_COLOURS[0], lw=1.8, marker="o", ms=4.5, label="95th percentile")
+        ax.plot(x[order], median[order], color=DESIGN_COLOURS[1], lw=1.5, marker="s", ms=4, ls="--", label="median")
+        ax.scatter([x[best]], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
+                   label=f"best: design {_tick(summary['design'].values[best])} ({parameter_value(summary, name, best)})")
+        ax.axhline(2.0, color="#9a9a9a", lw=0.8, ls=(0, (2, 3)), zorder=0)
+        ax.annotate("2", (1.0, 2.0), xycoords=("axes fraction", "data"), xytext=(3, -3), textcoords="offset points",
+                    fontsize=7.5, color="#7a7a7a")
+        ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
+        ax.set_ylim(bottom=0)
+        ax.set_title("Mismatch of each design against the reference")
+        ax.legend(loc="best", frameon=False)
+        if coverage is not None:
+            ax2 = axes[1, 0]
+            ax2.plot(x[order], coverage[order], color=REFERENCE_COLOUR, lw=1.6, marker="o", ms=4,
+                     label="BT.2020 xy area covered")
+            ax2.set_ylabel("BT.2020 covered\n(% of xy area, CIE 1931)")
+            ax2.legend(loc="best", frameon=False)
+        bottom = axes[-1, 0]
+        if categorical:
+            bottom.set_xticks(np.arange(len(categories)), categories)
+        bottom.set_xlabel(parameter_label(summary, name))
+    return fig
+
+
+def _sweep_heat_map(summary: xr.Dataset, names: list[str], p95: np.ndarray) -> Figure:
+    (xn, yn) = names
+    xs = list(dict.fromkeys(sorted(summary[xn].values.tolist(), key=lambda v: (str(type(v)), v))))
+    ys = list(dict.fromkeys(sorted(summary[yn].values.tolist(), key=lambda v: (str(type(v)), v))))
+    grid = np.full((len(ys), len(xs)), np.nan)
+    for xv, yv, value in zip(summary[xn].values.tolist(), summary[yn].values.tolist(), p95):
+        i, j = ys.index(yv), xs.index(xv)
+        grid[i, j] = value if not np.isfinite(grid[i, j]) else min(grid[i, j], value)  # repeats: the better one
+    best = _best_index(p95)
+    bx, by = xs.index(summary[xn].values.tolist()[best]), ys.index(summary[yn].values.tolist()[best])
+    with rc_context(STYLE):
+        fig, axes = _figure(min(10.0, 4.6 + 0.55 * len(xs)), min(8.0, 2.4 + 0.45 * len(ys)))
+        ax = axes[0, 0]
+        image = ax.imshow(np.ma.masked_invalid(grid), origin="lower", aspect="auto", cmap=MISMATCH_CMAP,
+                          vmin=0.0, vmax=float(np.nanmax(p95)) if np.isfinite(p95).any() else 1.0)
+        ax.grid(False)
+        if grid.size <= 150:
+            top = float(np.nanmax(grid)) if np.isfinite(grid).any() else 1.0
+            for i in range(len(ys)):
+                for j in range(len(xs)):
+                    if np.isfinite(grid[i, j]):
+                        ax.text(j, i, f"{grid[i, j]:.2f}", ha="center", va="center", fontsize=8,
+                                color="white" if grid[i, j] > 0.55 * top else "#1f2328")
+        ax.add_patch(Rectangle((bx - 0.5, by - 0.5), 1.0, 1.0, fill=False, edgecolor=DESIGN_COLOURS[1], lw=3.0,
+                               zorder=5, label=f"best: design {_tick(summary['design'].values[best])} "
+                                               f"(95th percentile {p95[best]:.2f})"))
+        step_x, step_y = max(1, len(xs) // 12), max(1, len(ys) // 12)
+        ax.set_xticks(np.arange(len(xs))[::step_x], [_tick(v) for v in xs][::step_x])
+        ax.set_yticks(np.arange(len(ys))[::step_y], [_tick(v) for v in ys][::step_y])
+        ax.set_xlabel(parameter_label(summary, xn))
+        ax.set_ylabel(parameter_label(summary, yn))
+        ax.set_title("95th percentile mismatch per design")
+        bar = fig.colorbar(image, ax=ax)
+        bar.set_label("95th percentile CIE 2000 ΔE00\n(CIELAB units)")
+        ax.legend(loc="upper left", bbox_to_anchor=(0.0, -0.16), frameon=False)
+    return fig
+
+
+def _sweep_rank(summary: xr.Dataset, varied: list[str], p95: np.ndarray, median: np.ndarray) -> Figure:
+    order = np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")
+    rank = np.arange(1, len(order) + 1)
+    best = order[0]
+    designs = summary["design"].values
+    with rc_context(STYLE):
+        fig, axes = _figure(7.6, 4.4)
+        ax = axes[0, 0]
+        many = len(order) > 60
+        ax.plot(rank, p95[order], color=DESIGN_COLOURS[0], lw=1.4, marker=None if many else "o", ms=4,
+                label="95th percentile")
+        ax.plot(rank, median[order], color=DESIGN_COLOURS[1], lw=1.0, ls="--", marker=None if many else "s", ms=3,
+                label="median (same design)")
+        values = "\n".join(f"{parameter_text(summary, c)[0]} {parameter_value(summary, c, best)}" for c in varied[:5])
+        ax.scatter([1], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
+                   label=f"best: design {_tick(designs[best])}" + (f"\n{values}" if values else ""))
+        ax.set_xlabel("Rank of the design (1 = smallest 95th percentile)")
+        ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
+        ax.set_ylim(bottom=0)
+        ax.set_xlim(0.5, len(order) + 0.5)
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+        title = f"All {len(order)} designs, sorted"
+        if len(varied) > 2:
+            title += f" ({len(varied)} parameters varied)"
+        ax.set_title(title)
+        ax.legend(loc="upper left", frameon=False)
+    return fig
+
+
+def sweep_figure(summary: xr.Dataset) -> Figure:
+    """The per-design mismatch of a sweep (:mod:`metasim.sweep`) against its varied parameters.
+
+    One varied parameter: the 95th percentile and median CIE 2000 difference (all observer ×
+    stimulus pairs) against the parameter, with BT.2020 coverage in a second panel when present.
+    Two: a heat map of the 95th percentile over both. None or more than two: every design's 95th
+    percentile, sorted (rank plot). The design with the smallest 95th percentile is starred.
+    """
+    stats = summary["delta_e_2000_overall"].transpose("design", "statistic")
+    p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
+    median = np.asarray(stats.sel(statistic="median").values, dtype=float)
+    varied, _ = sweep_parameters(summary)
+    if len(varied) == 1:
+        return _sweep_curves(summary, varied[0], p95, median)
+    if len(varied) == 2:
+        return _sweep_heat_map(summary, varied, p95)
+    return _sweep_rank(summary, varied, p95, median)
+
+
+__all__ = ["MISMATCH_CMAP", "sweep_parameters", "parameter_text", "parameter_label", "parameter_value", "sweep_figure"]
