@@ -330,16 +330,6 @@ def _models(ds: xr.Dataset) -> str:
 
 # -- sweeps ----------------------------------------------------------------------------------------------
 
-def _sweep_spec(ds: xr.Dataset) -> dict:
-    spec = ds.attrs.get("spec", {})
-    if isinstance(spec, str):
-        try:
-            spec = json.loads(spec)
-        except ValueError:
-            return {}
-    return spec if isinstance(spec, dict) else {}
-
-
 def _sweep_numbers(ds: xr.Dataset) -> dict:
     """Per-design p95, median, share beyond 2 and BT.2020 coverage (NaN where the file lacks them)."""
     stats = ds["delta_e_2000_overall"].transpose("design", "statistic")
@@ -369,7 +359,7 @@ def _parameters_of(ds: xr.Dataset, names, index: int) -> str:
 
 
 def _sweep_headline(ds: xr.Dataset) -> str:
-    spec = _sweep_spec(ds)
+    spec = plots.sweep_spec(ds)
     numbers = _sweep_numbers(ds)
     varied, fixed = plots.sweep_parameters(ds)
     best = int(numbers["order"][0])
@@ -427,7 +417,7 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
 
 def _sweep_models(ds: xr.Dataset) -> str:
     attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
-    spec = dict(_sweep_spec(ds))
+    spec = dict(plots.sweep_spec(ds))
     text = spec.pop("sweep_spec_text", "")
     out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
     if spec:
@@ -453,7 +443,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     kind = _kind(ds)
     ds = as_study(ds)
     if kind == "sweep":
-        title = title or str(_sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
+        title = title or str(plots.sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
     title = title or str(ds.attrs.get("title", "metasim population" if kind == "population" else "metasim result"))
     figures = figure_pngs(ds) if figures is None else figures
     body = [f"<h1>{_e(title)}</h1>",

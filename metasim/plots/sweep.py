@@ -20,7 +20,8 @@ COLOUR_WORDS = {"R": "red", "G": "green", "B": "blue", "C": "cyan", "Y": "yellow
 EMITTER_WORDS = {"laser": "laser", "gaussian": "Gaussian primary", "quantum_dot": "quantum-dot primary"}
 
 
-def _sweep_spec(summary: xr.Dataset) -> dict:
+def sweep_spec(summary: xr.Dataset) -> dict:
+    """The sweep spec recorded in a sweep result's attributes (a dict; empty when absent or unreadable)."""
     import json
 
     spec = summary.attrs.get("spec", {})
@@ -35,7 +36,7 @@ def _sweep_spec(summary: xr.Dataset) -> dict:
 def _design_kind(summary: xr.Dataset) -> str | None:
     import json
 
-    parameters = _sweep_spec(summary).get("design_parameters", "")
+    parameters = sweep_spec(summary).get("design_parameters", "")
     try:
         parameters = json.loads(parameters) if isinstance(parameters, str) else parameters
     except ValueError:
@@ -49,7 +50,7 @@ def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
     A parameter is varied when it takes more than one value over ``design``.
     """
     names = [str(c) for c in summary.coords if summary[c].dims == ("design",) and c != "design"]
-    order = [str(c) for c in _sweep_spec(summary).get("parameters", []) if str(c) in names]
+    order = [str(c) for c in sweep_spec(summary).get("parameters", []) if str(c) in names]
     names = order + [c for c in names if c not in order]
     varied = [c for c in names if len(np.unique(summary[c].values)) > 1]
     return varied, [c for c in names if c not in varied]
@@ -228,4 +229,4 @@ def sweep_figure(summary: xr.Dataset) -> Figure:
     return _sweep_rank(summary, varied, p95, median)
 
 
-__all__ = ["MISMATCH_CMAP", "sweep_parameters", "parameter_text", "parameter_label", "parameter_value", "sweep_figure"]
+__all__ = ["MISMATCH_CMAP", "sweep_spec", "sweep_parameters", "parameter_text", "parameter_label", "parameter_value", "sweep_figure"]
