@@ -14,6 +14,7 @@ import numba
 import numpy as np
 import xarray as xr
 
+from metasim.colorimetry._simd import wide_vectors as _wide_vectors
 from metasim.errors import MetasimError
 
 _25_POW_7 = 25.0**7
@@ -195,100 +196,115 @@ def _sin_reduced(x):
     return x * p
 
 
+@numba.njit(cache=True, inline="always", error_model="numpy", fastmath=_FAST)
+def _vector_pair(L1, a1, b1, L2, a2, b2, k_L):
+    """ΔE00 of one pair and whether :func:`_pair` must recompute it (branch-free, vectorisable).
+
+    Hue terms come from the chroma vectors v = (a', b) instead of hue angles (exact algebra):
+    with P = C'1·C'2, dot = v1·v2 and cross = v1 × v2, ΔH'² = 2·cross²/(P + dot) for hues less
+    than 90° apart and 2·(P − dot) otherwise (each free of cancellation on its side), with the sign
+    of cross; the mean hue is the bisector of the shorter hue arc (what eq. 14 of Sharma, Wu &
+    Dalal selects): the direction of C'2·v1 + C'1·v2, or, for hues more than 90° apart where that
+    sum is ill-conditioned, the perpendicular of C'2·v1 − C'1·v2. R_C·ΔH' is taken under one
+    square root, and the three weighted terms and R_T are brought over one denominator, so a pair
+    costs 8 square roots and 5 divisions. Achromatic samples and hues equal or opposite to within
+    1e-9 rad are flagged.
+    """
+    c1 = math.sqrt(a1 * a1 + b1 * b1)
+    c2 = math.sqrt(a2 * a2 + b2 * b2)
+    cb = 0.5 * (c1 + c2)
+    cb2 = cb * cb
+    cb7 = cb2 * cb2 * cb2 * cb
+    g = 0.5 * (1.0 - math.sqrt(cb7 / (cb7 + _25_POW_7)))
+    ap1 = (1.0 + g) * a1
+    ap2 = (1.0 + g) * a2
+    cp1 = math.sqrt(ap1 * ap1 + b1 * b1)
+    cp2 = math.sqrt(ap2 * ap2 + b2 * b2)
+    cc = cp1 * cp2
+    cross = ap1 * b2 - b1 * ap2
+    dot = ap1 * ap2 + b1 * b2
+    flag = (cc == 0.0) | (abs(cross) <= 1e-9 * cc)
+    acute = dot >= 0.0
+    dh2 = 2.0 * cross * cross / (cc + dot) if acute else 2.0 * (cc - dot)  # ΔH'²
+    px = cp2 * ap1
+    py = cp2 * b1
+    qx = cp1 * ap2
+    qy = cp1 * b2
+    sign = -1.0 if cross < 0.0 else 1.0
+    sx = px + qx if acute else sign * (qy - py)
+    sy = py + qy if acute else sign * (px - qx)
+    n2 = sx * sx + sy * sy
+    rn = 1.0 / math.sqrt(n2 if n2 > 0.0 else 1.0)
+    c = sx * rn
+    s = sy * rn
+    hb = _atan2(s, c if n2 > 0.0 else 1.0) / _DEG
+    hb = hb + 360.0 if hb < 0.0 else hb
+    dL = L2 - L1
+    dC = cp2 - cp1
+    Lb = 0.5 * (L1 + L2)
+    Cb = 0.5 * (cp1 + cp2)
+    c2h = 2.0 * c * c - 1.0
+    s2h = 2.0 * s * c
+    c3h = c * (4.0 * c * c - 3.0)
+    s3h = s * (3.0 - 4.0 * s * s)
+    c4h = 2.0 * c2h * c2h - 1.0
+    s4h = 2.0 * s2h * c2h
+    t = (1.0 - 0.17 * (c * _C30 + s * _S30) + 0.24 * c2h
+         + 0.32 * (c3h * _C6 - s3h * _S6) - 0.20 * (c4h * _C63 + s4h * _S63))
+    q = (hb - 275.0) / 25.0
+    dtheta = 30.0 * _exp_negative(q * q)
+    Cb2 = Cb * Cb
+    Cb7 = Cb2 * Cb2 * Cb2 * Cb
+    m7 = Cb7 + _25_POW_7
+    Lq = (Lb - 50.0) * (Lb - 50.0)
+    root = math.sqrt(20.0 + Lq)
+    sl_num = root + 0.015 * Lq  # S_L = sl_num / root
+    sc = 1.0 + 0.045 * Cb
+    sh = 1.0 + 0.015 * Cb * t
+    # R_T·ΔC'/S_C·ΔH'/S_H with R_C·ΔH' = 2·sign·√(C̄'^7·ΔH'²·(C̄'^7 + 25^7)) / (C̄'^7 + 25^7)
+    rcdh = 2.0 * sign * math.sqrt(Cb7 * dh2 * m7)
+    sin_t = _sin_reduced(2.0 * dtheta * _DEG)
+    wl = dL * root * sc * sh          # the three terms times k_L·S_L·S_C·S_H·root
+    wc = dC * k_L * sl_num * sh
+    whs = k_L * sl_num * sc           # ΔH'/S_H·(k_L·S_L·S_C·S_H·root) / ΔH'
+    num = (wl * wl + wc * wc + whs * whs * dh2) * m7 - sin_t * wc * whs * rcdh
+    den = k_L * sl_num * sc * sh
+    den2 = den * den * m7
+    return math.sqrt(num * den2) / den2, flag
+
+
 @numba.njit(cache=True, error_model="numpy", fastmath=_FAST)
 def _delta_e_2000_vector(L1v, a1v, b1v, L2v, a2v, b2v, k_L, out, special):
-    """ΔE00 for all pairs; pairs flagged in ``special`` must be recomputed by :func:`_pair`.
-
-    Hue terms come from unit chroma vectors u = (a', b)/C' instead of hue angles:
-    ΔH' = sign(a'1·b2 − b1·a'2)·√(C'1C'2)·|u1 − u2|, and the mean hue is the bisector of the shorter
-    hue arc (what eq. 14 of Sharma, Wu & Dalal selects): the direction of u1 + u2, or, for hues
-    more than 90° apart where that sum is ill-conditioned, the perpendicular of u2 − u1.
-    Achromatic samples and hues equal or opposite to within 1e-9 rad are flagged.
-    """
+    """ΔE00 of pairs given as six columns; pairs flagged in ``special`` need :func:`_pair`."""
+    _wide_vectors()
     for i in range(out.shape[0]):
-        L1 = L1v[i]
-        a1 = a1v[i]
-        b1 = b1v[i]
-        L2 = L2v[i]
-        a2 = a2v[i]
-        b2 = b2v[i]
-        c1 = math.sqrt(a1 * a1 + b1 * b1)
-        c2 = math.sqrt(a2 * a2 + b2 * b2)
-        cb = 0.5 * (c1 + c2)
-        cb2 = cb * cb
-        cb7 = cb2 * cb2 * cb2 * cb
-        g = 0.5 * (1.0 - math.sqrt(cb7 / (cb7 + _25_POW_7)))
-        ap1 = (1.0 + g) * a1
-        ap2 = (1.0 + g) * a2
-        cp1 = math.sqrt(ap1 * ap1 + b1 * b1)
-        cp2 = math.sqrt(ap2 * ap2 + b2 * b2)
-        cc = cp1 * cp2
-        cross = ap1 * b2 - b1 * ap2
-        special[i] = (cc == 0.0) | (abs(cross) <= 1e-9 * cc)
-        rr = 1.0 / (cc if cc > 0.0 else 1.0)
-        r1 = cp2 * rr if cc > 0.0 else 1.0
-        r2 = cp1 * rr if cc > 0.0 else 1.0
-        u1x = ap1 * r1
-        u1y = b1 * r1
-        u2x = ap2 * r2
-        u2y = b2 * r2
-        dx = u1x - u2x
-        dy = u1y - u2y
-        dH = math.sqrt(cc * (dx * dx + dy * dy))
-        dH = -dH if cross < 0.0 else dH
-        obtuse = u1x * u2x + u1y * u2y < 0.0
-        sign = -1.0 if cross < 0.0 else 1.0
-        sx = -sign * dy if obtuse else u1x + u2x
-        sy = sign * dx if obtuse else u1y + u2y
-        norm = math.sqrt(sx * sx + sy * sy)
-        rn = 1.0 / (norm if norm > 0.0 else 1.0)
-        c = sx * rn
-        s = sy * rn
-        hb = _atan2(s, c if norm > 0.0 else 1.0) / _DEG
-        hb = hb + 360.0 if hb < 0.0 else hb
-        dL = L2 - L1
-        dC = cp2 - cp1
-        Lb = 0.5 * (L1 + L2)
-        Cb = 0.5 * (cp1 + cp2)
-        c2h = 2.0 * c * c - 1.0
-        s2h = 2.0 * s * c
-        c3h = c * (4.0 * c * c - 3.0)
-        s3h = s * (3.0 - 4.0 * s * s)
-        c4h = 2.0 * c2h * c2h - 1.0
-        s4h = 2.0 * s2h * c2h
-        t = (1.0 - 0.17 * (c * _C30 + s * _S30) + 0.24 * c2h
-             + 0.32 * (c3h * _C6 - s3h * _S6) - 0.20 * (c4h * _C63 + s4h * _S63))
-        q = (hb - 275.0) / 25.0
-        dtheta = 30.0 * _exp_negative(q * q)
-        Cb2 = Cb * Cb
-        Cb7 = Cb2 * Cb2 * Cb2 * Cb
-        rc = 2.0 * math.sqrt(Cb7 / (Cb7 + _25_POW_7))
-        Lq = (Lb - 50.0) * (Lb - 50.0)
-        root = math.sqrt(20.0 + Lq)
-        sl_num = root + 0.015 * Lq  # S_L = sl_num / root
-        sc = 1.0 + 0.045 * Cb
-        sh = 1.0 + 0.015 * Cb * t
-        rt = -_sin_reduced(2.0 * dtheta * _DEG) * rc
-        inv = 1.0 / (k_L * sl_num * sc * sh)  # one division for the three weighted terms
-        tl = dL * root * sc * sh * inv
-        tc = dC * k_L * sl_num * sh * inv
-        th = dH * k_L * sl_num * sc * inv
-        out[i] = math.sqrt(tl * tl + tc * tc + th * th + rt * tc * th)
+        out[i], special[i] = _vector_pair(L1v[i], a1v[i], b1v[i], L2v[i], a2v[i], b2v[i], k_L)
 
 
 _BLOCK = 2048  # pairs per block: columns of one block stay in L1/L2 cache
+#: Vector loops always run on a multiple of this many pairs (padded), so every pair goes through the
+#: same vector code: LLVM's scalar remainder loop can round differently in the last bit, which would
+#: make a result depend on where a pair sits in its array (and sweeps on their chunk size).
+PAD = 16
+
+
+@numba.njit(cache=True, inline="always")
+def padded(m):
+    """``m`` rounded up to a multiple of :data:`PAD`."""
+    return (m + PAD - 1) // PAD * PAD
 
 
 @numba.njit(cache=True, parallel=True, error_model="numpy")
 def _delta_e_2000_blocks(lab1, lab2, k_L, out):
-    """Parallel over blocks: transpose each block to columns, run the vector loop, mend flagged pairs."""
+    """Parallel over blocks: transpose each block to padded columns, run the vector loop, mend flagged pairs."""
     n = out.shape[0]
     blocks = (n + _BLOCK - 1) // _BLOCK
     for block in numba.prange(blocks):
         start = block * _BLOCK
         stop = min(start + _BLOCK, n)
         m = stop - start
-        columns = np.empty((6, m))
+        width = padded(m)
+        columns = np.ones((6, width))
         for j in range(m):
             columns[0, j] = lab1[start + j, 0]
             columns[1, j] = lab1[start + j, 1]
@@ -296,14 +312,15 @@ def _delta_e_2000_blocks(lab1, lab2, k_L, out):
             columns[3, j] = lab2[start + j, 0]
             columns[4, j] = lab2[start + j, 1]
             columns[5, j] = lab2[start + j, 2]
-        special = np.empty(m, dtype=np.bool_)
-        part = out[start:stop]
+        special = np.empty(width, dtype=np.bool_)
+        values = np.empty(width)
         _delta_e_2000_vector(columns[0], columns[1], columns[2], columns[3], columns[4], columns[5],
-                             k_L, part, special)
+                             k_L, values, special)
         for j in range(m):
+            out[start + j] = values[j]
             if special[j]:
-                part[j] = _pair(columns[0, j], columns[1, j], columns[2, j],
-                                columns[3, j], columns[4, j], columns[5, j], k_L)
+                out[start + j] = _pair(columns[0, j], columns[1, j], columns[2, j],
+                                       columns[3, j], columns[4, j], columns[5, j], k_L)
 
 
 def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:

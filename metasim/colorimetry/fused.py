@@ -18,7 +18,7 @@ import numba
 import numpy as np
 
 from metasim.colorimetry.cielab import _lab_row
-from metasim.colorimetry.difference import _delta_e_2000_vector, _pair
+from metasim.colorimetry.difference import _delta_e_2000_vector, _pair, padded
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -31,10 +31,11 @@ def _mend(lab_1, lab_2, out, special):
 @numba.njit(cache=True, parallel=True, error_model="numpy")
 def _pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index):
     rows, columns = xyz_test.shape[0], xyz_test.shape[1]
+    width = padded(columns)  # full vectors only: results do not depend on the row length
     for r in numba.prange(rows):
         c = correction[r // observers]
-        buf = np.empty((9, columns))   # xyz_ref, xyz_test, corrected test XYZ (as columns)
-        lab = np.empty((9, columns))   # lab_ref, lab_test, lab of the corrected test
+        buf = np.ones((9, width))   # xyz_ref, xyz_test, corrected test XYZ (as columns)
+        lab = np.empty((9, width))  # lab_ref, lab_test, lab of the corrected test
         for s in range(columns):
             for k in range(3):
                 buf[k, s] = xyz_ref[r, s, k]
@@ -44,12 +45,15 @@ def _pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_tes
         for side in range(3):
             _lab_row(buf[3 * side], buf[3 * side + 1], buf[3 * side + 2], wx, wy, wz,
                      lab[3 * side], lab[3 * side + 1], lab[3 * side + 2])
-        special = np.empty(columns, dtype=np.bool_)
-        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, delta_e[r], special)
-        _mend(lab[0:3], lab[3:6], delta_e[r], special)
-        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[6], lab[7], lab[8], 1.0, index[r], special)
-        _mend(lab[0:3], lab[6:9], index[r], special)
+        special = np.empty(width, dtype=np.bool_)
+        values = np.empty((2, width))
+        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, values[0], special)
+        _mend(lab[0:3], lab[3:6], values[0], special)
+        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[6], lab[7], lab[8], 1.0, values[1], special)
+        _mend(lab[0:3], lab[6:9], values[1], special)
         for s in range(columns):
+            delta_e[r, s] = values[0, s]
+            index[r, s] = values[1, s]
             for k in range(3):
                 lab_ref[r, s, k] = lab[k, s]
                 lab_test[r, s, k] = lab[3 + k, s]

@@ -12,6 +12,7 @@ from typing import Mapping, Sequence
 import numpy as np
 import xarray as xr
 
+from metasim.colorimetry.integration import spectral_products
 from metasim.errors import MetasimError, SpectrumError
 from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_step, require_same_grid
 
@@ -111,7 +112,7 @@ def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
     s = spectra.variable.transpose(*s_dims, "wavelength").values
     r = responses.variable.transpose(*r_dims, channel_dim, "wavelength").values
     n_w = s.shape[-1]
-    out = (s.reshape(-1, n_w) @ r.reshape(-1, n_w).T) * step
+    out = spectral_products(s.reshape(-1, n_w), r.reshape(-1, n_w)) * step
     return out.reshape(s.shape[:-1] + r.shape[:-1]), (*s_dims, *r_dims, channel_dim)
 
 

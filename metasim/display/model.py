@@ -38,6 +38,7 @@ from metasim.errors import DisplayError, MetasimError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
 from metasim.colorimetry import tristimulus
+from metasim.colorimetry.integration import spectral_products
 from metasim.colorimetry.tristimulus import K_M, grid_of, labelled, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
@@ -75,7 +76,7 @@ def _check_primaries(spectra: xr.DataArray) -> None:
         )
     wavelengths = spectra.coords.variables["wavelength"].values
     cmf = standard_cmf("cie1931_2", wavelengths)
-    xyz = (values.reshape(-1, values.shape[-1]) @ cmf.T * grid_step(wavelengths)).reshape(-1, n, 3)
+    xyz = (spectral_products(values.reshape(-1, values.shape[-1]), cmf) * grid_step(wavelengths)).reshape(-1, n, 3)
     total = xyz.sum(-1)
     if (total <= 0).any():
         b, p = np.argwhere(total <= 0)[0]
@@ -321,8 +322,8 @@ def observer_optics(display: "Display", observer: xr.Dataset):
     black_rows = black_var.transpose(*black_dims, "wavelength").values
     white_rows = np.asarray(black_var.set_dims({**sizes, "wavelength": W}).values).reshape(P, W) + rows.sum(axis=1)
 
-    def xyz(values):  # the products of the separate tristimulus calls, row shapes included
-        return (values.reshape(-1, W) @ cmf.T) * step * K_M
+    def xyz(values):  # as the separate tristimulus calls compute them
+        return spectral_products(values.reshape(-1, W), cmf) * step * K_M
 
     primaries = np.swapaxes(xyz(rows).reshape(P, N, 3), -1, -2)
     black = xr.Variable((*black_dims, "xyz"), xyz(black_rows).reshape(*black_rows.shape[:-1], 3))

@@ -31,11 +31,13 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from metasim._threads import blas_single_threaded
 from metasim._version import __version__
 from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
 from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
+from metasim.colorimetry.integration import spectral_products
 from metasim.colorimetry.tristimulus import K_M
 from metasim.display import Display, calibrate_white, solve_drive
 from metasim.errors import MetasimError, StimulusError
@@ -152,6 +154,7 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
     return targets.transpose("stimulus", "xyz"), solution
 
 
+@blas_single_threaded
 def mismatch(
     reference,
     test: Display,
@@ -318,7 +321,7 @@ def _display_matrices(display: Display, cmf: np.ndarray, step: float) -> tuple[n
     n_w = spectra.shape[-1]
     stack = np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
     o = cmf.shape[0]
-    values = K_M * step * (cmf.reshape(o * 3, n_w) @ stack.reshape(-1, n_w).T)  # (O*3, B*(N+1))
+    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), stack.reshape(-1, n_w))  # (O*3, B*(N+1))
     values = values.reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)  # (B, O, 3, N+1)
     return values[..., :-1], values[..., -1]
 

@@ -37,6 +37,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
+from metasim.colorimetry.integration import spectral_products
 from metasim.errors import ObserverError
 from metasim.spectra import check_wavelengths
 
@@ -91,9 +92,9 @@ def observer_features(population: xr.Dataset) -> xr.DataArray:
     step = wl[1] - wl[0]
     white, stimuli, labels = _stimuli(wl)
     functions = cmf.transpose("observer", "xyz", "wavelength").values
-    white_xyz = functions @ white * step  # n × 3
+    white_xyz = spectral_products(functions.reshape(-1, wl.size), white[None]).reshape(-1, 3) * step  # n × 3
     n_obs = functions.shape[0]
-    stimulus_xyz = (functions.reshape(-1, wl.size) @ stimuli.T).reshape(n_obs, 3, -1).transpose(0, 2, 1) * step
+    stimulus_xyz = spectral_products(functions.reshape(-1, wl.size), stimuli).reshape(n_obs, 3, -1).transpose(0, 2, 1) * step
     white_scale = 100.0 / white_xyz[:, 1].mean()
     n_surfaces = len(labels) - len(NARROW_BAND_PEAKS_NM)
     band_scale = np.ones(len(labels))
