@@ -45,7 +45,8 @@ from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.errors import DisplayError, MetasimError
 from metasim.spectra import integrate
 from metasim.display.model import Display, observer_name, observer_optics, resolve_observer
-from metasim.display.solvers import box_qp, equality_box_qp
+from metasim.display.compiled import clip_rows
+from metasim.display.solvers import equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light
 from metasim.display.transfer import check_transfer, eotf_inverse_values
 
@@ -90,37 +91,20 @@ def _clip(A, black, target, white, H_s, f_s, iterations: int = 12):
     Gauss-Newton on ‖Lab(black + A d) − Lab(target)‖² with box constraints, started from the
     CIELAB metric linearised at the white; a step is kept only if it lowers the distance. The
     strategy objective enters with a tiny weight so that ties resolve the same way as in gamut.
-    All arrays are per row (R); colours are normalised so that the white has Y = 1.
+    All arrays are per row (R); colours are normalised so that the white has Y = 1. Each row is
+    solved by the compiled :func:`metasim.display.compiled.clip_rows`.
     """
     R, _, N = A.shape
-    lo, hi = np.zeros(N), np.ones(N)
+    H_s = np.ascontiguousarray(np.broadcast_to(H_s, (R, N, N)), dtype=float)
+    f_s = np.ascontiguousarray(np.broadcast_to(f_s, (R, N)), dtype=float)
     q_scale = np.maximum(np.maximum(np.trace(H_s, axis1=-2, axis2=-1) / N, np.abs(f_s).max(-1)), 1e-300)
-    lab_target = _lab(target, white)
-
-    def step(jac, residual, d):
-        g = np.einsum("rij,rjn->rin", jac, A)
-        gram = np.einsum("rin,ril->rnl", g, g)
-        scale = np.trace(gram, axis1=-2, axis2=-1) / N
-        weight = (_CLIP_WEIGHT * scale / q_scale)[:, None]
-        H_c = gram + weight[..., None] * H_s + 1e-12 * scale[:, None, None] * np.eye(N)
-        f_c = np.einsum("rin,ri->rn", g, residual - np.einsum("rin,rn->ri", g, d)) + weight * f_s
-        return box_qp(H_c, f_c, lo, hi, x0=d)
-
-    d = np.zeros((R, N))
-    jac0 = lab_jacobian(white, white)
-    d = step(jac0, np.einsum("rij,rj->ri", jac0, black - target), d)
-    cost = ((_lab(black + np.einsum("rmn,rn->rm", A, d), white) - lab_target) ** 2).sum(-1)
-    for _ in range(iterations):
-        current = black + np.einsum("rmn,rn->rm", A, d)
-        residual = _lab(current, white) - lab_target
-        proposal = step(lab_jacobian(current, white), residual, d)
-        new_cost = ((_lab(black + np.einsum("rmn,rn->rm", A, proposal), white) - lab_target) ** 2).sum(-1)
-        better = new_cost < cost * (1 - 1e-12)
-        if not better.any():
-            break
-        d = np.where(better[:, None], proposal, d)
-        cost = np.where(better, new_cost, cost)
-    return d
+    out = np.empty((R, N))
+    if R:
+        clip_rows(np.ascontiguousarray(A, dtype=float), np.ascontiguousarray(np.broadcast_to(black, (R, 3)), dtype=float),
+                  np.ascontiguousarray(np.broadcast_to(target, (R, 3)), dtype=float),
+                  np.ascontiguousarray(np.broadcast_to(white, (R, 3)), dtype=float),
+                  H_s, f_s, q_scale, _CLIP_WEIGHT, iterations, 10 * N + 20, out)
+    return out
 
 
 def _calibration_observer(display: Display, observer):

@@ -28,6 +28,8 @@ import itertools
 
 import numpy as np
 
+from metasim.display.compiled import box_qp_rows
+
 _CHUNK_ROWS = 2048
 
 
@@ -170,52 +172,14 @@ def box_qp(H, f, lo, hi, *, x0=None, max_iter: int | None = None, tol: float = 1
     """
     H, f = np.asarray(H, dtype=float), np.asarray(f, dtype=float)
     R, N = f.shape
-    lo = np.broadcast_to(np.asarray(lo, dtype=float), (N,))
-    hi = np.broadcast_to(np.asarray(hi, dtype=float), (N,))
-    x = np.clip(np.broadcast_to(0.5 * (lo + hi), (R, N)) if x0 is None else np.asarray(x0, dtype=float), lo, hi).copy()
-    at_lo = x <= lo
-    at_hi = x >= hi
-    active = np.ones(R, dtype=bool)
-    eye = np.eye(N)
-    scale = 1.0 + np.abs(f).max(-1) + np.abs(H).max((-1, -2))
-    for _ in range(max_iter or 10 * N + 20):
-        rows = np.flatnonzero(active)
-        if rows.size == 0:
-            break
-        xr_, Hr, fr = x[rows], H[rows], f[rows]
-        free = ~(at_lo[rows] | at_hi[rows])
-        g = np.einsum("rij,rj->ri", Hr, xr_) + fr
-        mask = free[:, :, None] & free[:, None, :]
-        reduced = np.where(mask, Hr, eye)
-        p = np.linalg.solve(reduced, np.where(free, -g, 0.0)[..., None])[..., 0]
-        moving = np.abs(p).max(-1) > 1e-14 * (1 + np.abs(xr_).max(-1))
-        # rows with a step: ratio test against the bounds of the free variables
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(free & (p < 0), (lo - xr_) / p, np.where(free & (p > 0), (hi - xr_) / p, np.inf))
-        block = np.argmin(ratio, axis=-1)
-        alpha = np.minimum(1.0, ratio[np.arange(rows.size), block])
-        alpha = np.where(moving, np.maximum(alpha, 0.0), 0.0)
-        new_x = xr_ + alpha[:, None] * p
-        blocked = moving & (alpha < 1.0)
-        r_b, i_b = rows[blocked], block[blocked]
-        going_down = p[blocked, i_b] < 0
-        new_x[blocked, i_b] = np.where(going_down, lo[i_b], hi[i_b])
-        x[rows] = new_x
-        at_lo[r_b[going_down], i_b[going_down]] = True
-        at_hi[r_b[~going_down], i_b[~going_down]] = True
-        # rows without a step: check the multipliers of the working set, release the worst
-        still = rows[~moving]
-        if still.size:
-            g_s = np.einsum("rij,rj->ri", H[still], x[still]) + f[still]
-            lam = np.where(at_lo[still], g_s, np.where(at_hi[still], -g_s, np.inf))
-            worst = np.argmin(lam, axis=-1)
-            lam_min = lam[np.arange(still.size), worst]
-            release = lam_min < -tol * scale[still]
-            r_r, i_r = still[release], worst[release]
-            at_lo[r_r, i_r] = False
-            at_hi[r_r, i_r] = False
-            active[still[~release]] = False
-    return np.clip(x, lo, hi)
+    lo = np.ascontiguousarray(np.broadcast_to(np.asarray(lo, dtype=float), (N,)))
+    hi = np.ascontiguousarray(np.broadcast_to(np.asarray(hi, dtype=float), (N,)))
+    start = np.broadcast_to(0.5 * (lo + hi), (R, N)) if x0 is None else np.asarray(x0, dtype=float)
+    x = np.array(np.broadcast_to(start, (R, N)), dtype=float)  # a fresh (R, N) array, solved in place
+    if R:
+        box_qp_rows(np.ascontiguousarray(np.broadcast_to(H, (R, N, N))), np.ascontiguousarray(f), lo, hi, x,
+                    max_iter or 10 * N + 20, tol)
+    return x
 
 
 __all__ = ["equality_box_qp", "box_qp"]

@@ -37,8 +37,8 @@ from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
 from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
-from metasim.colorimetry.integration import spectral_products
-from metasim.colorimetry.tristimulus import K_M
+from metasim.colorimetry.integration import apply_matrices, spectral_products
+from metasim.colorimetry.tristimulus import K_M, labelled
 from metasim.display import Display, calibrate_white, solve_drive
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
@@ -313,17 +313,33 @@ def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
     return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
 
 
-def _display_matrices(display: Display, cmf: np.ndarray, step: float) -> tuple[np.ndarray, np.ndarray]:
-    """Observer × primary XYZ (cd/m²) of a display: (batch, observer, 3, N) and black (batch, observer, 3)."""
+def _display_rows(display: Display) -> np.ndarray:
+    """A display's primaries and black as rows to integrate: (batch, N + 1, wavelength)."""
     batch = display.batch_dims
     spectra = display.spectra.transpose(*batch, "primary", "wavelength").values
     black = display.black.broadcast_like(display.spectra.isel(primary=0, drop=True)).transpose(*batch, "wavelength").values
     n_w = spectra.shape[-1]
-    stack = np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
+    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
+
+
+def _display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
+
+    All displays are integrated in one pass over the observer functions (which, for a large
+    population, are the bulk of the memory traffic).
+    """
+    stacks = [_display_rows(display) for display in displays]
+    n_w = cmf.shape[-1]
     o = cmf.shape[0]
-    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), stack.reshape(-1, n_w))  # (O*3, B*(N+1))
-    values = values.reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)  # (B, O, 3, N+1)
-    return values[..., :-1], values[..., -1]
+    rows = np.concatenate([stack.reshape(-1, n_w) for stack in stacks])
+    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), rows)  # (O*3, rows)
+    out, start = [], 0
+    for stack in stacks:
+        count = stack.shape[0] * stack.shape[1]
+        part = values[:, start:start + count].reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)
+        out.append((part[..., :-1], part[..., -1]))  # (B, O, 3, N+1) split into primaries and black
+        start += count
+    return out
 
 
 def _labels(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
@@ -340,16 +356,17 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     cmf, step = _flat_observers(obs)
     batch = test.batch_dims
     batch_shape = [test.spectra.sizes[d] for d in batch]
-    m_test, b_test = _display_matrices(test, cmf, step)  # (B, O, 3, N), (B, O, 3)
+    matrices = _display_matrices([test] if reference is None else [test, reference], cmf, step)
+    m_test, b_test = matrices[0]  # (B, O, 3, N), (B, O, 3)
     drive_test = test_solution["drive"]
     stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
     drive_t = drive_test.transpose(*batch, *stim, "primary").values.reshape(m_test.shape[0], -1, test.n_primaries)
-    xyz_t = drive_t[:, None] @ np.swapaxes(m_test, -1, -2) + b_test[:, :, None, :]  # (B, O, S, 3)
+    xyz_t = apply_matrices(drive_t, m_test, b_test)  # (B, O, S, 3)
     if reference is not None:
-        m_ref, b_ref = _display_matrices(reference, cmf, step)
+        m_ref, b_ref = matrices[1]
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
-        drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(-1, reference.n_primaries)
-        xyz_r = drive_r @ np.swapaxes(m_ref[0], -1, -2) + b_ref[0][:, None, :]  # (O, S, 3)
+        drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(1, -1, reference.n_primaries)
+        xyz_r = apply_matrices(drive_r, m_ref[:1], b_ref[:1])[0]  # (O, S, 3), summed like the test side
     else:
         white_ref = K_M * step * (cmf @ white_spectrum.transpose("wavelength").values)  # (O, 3)
         spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, cmf.shape[-1])
@@ -371,19 +388,15 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     if include_itp:
         itp = _itp(xyz_r_b, xyz_t)
 
-    observer_coords = {k: v for k, v in obs.coords.items() if v.dims == ("observer",)}
-    stim_coords = {k: v for k, v in drive_test.coords.items() if v.dims and set(v.dims) <= set(stim)}
-    batch_coords = {k: v for k, v in test.spectra.coords.items() if v.dims and set(v.dims) <= set(batch)}
-    coords = {**batch_coords, **observer_coords, **stim_coords}
     sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0], **{d: drive_test.sizes[d] for d in stim}}
     pair_dims = [*batch, "observer", *stim]
     observer_dims = [*batch, "observer"]
+    sources = (test.spectra.coords, obs.coords, drive_test.coords)
 
     def wrap(values, dims, tail=None):
         tail = tail or {}
         shape = [sizes[d] for d in dims] + [len(v) for v in tail.values()]
-        keep = {k: v for k, v in coords.items() if set(v.dims) <= set(dims)}
-        return xr.DataArray(np.reshape(values, shape), dims=(*dims, *tail), coords={**keep, **tail})
+        return labelled(np.reshape(values, shape), (*dims, *tail), sources, labels=tail)
 
     xyz_c = {"xyz": ["X", "Y", "Z"]}
     lab_c = {"lab": ["L*", "a*", "b*"]}

@@ -1,0 +1,247 @@
+"""Compiled row-by-row versions of the drive solver's inner loops (box QP, CIELAB clipping).
+
+Both work on one row (one stimulus of one design) at a time with N ≤ a few primaries, where numpy's
+per-call overhead dominated; rows run in parallel. Same algorithms as documented in
+:mod:`metasim.display.solvers` (primal active-set method for the box QP) and
+the out-of-gamut clipping of :func:`metasim.display.solve_drive` (Gauss-Newton in CIELAB).
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+_EPSILON = 216.0 / 24389.0
+_KAPPA = 24389.0 / 27.0
+
+
+@numba.njit(cache=True)
+def _solve_free(H, g, free, p, work, rhs):
+    """p = −H_FF⁻¹ g_F on the free set (0 elsewhere), Gaussian elimination with partial pivoting."""
+    n = g.shape[0]
+    for i in range(n):
+        for j in range(n):
+            work[i, j] = H[i, j] if (free[i] and free[j]) else (1.0 if i == j else 0.0)
+        rhs[i] = -g[i] if free[i] else 0.0
+    for c in range(n):
+        pivot = c
+        for r in range(c + 1, n):
+            if abs(work[r, c]) > abs(work[pivot, c]):
+                pivot = r
+        if pivot != c:
+            for j in range(n):
+                work[c, j], work[pivot, j] = work[pivot, j], work[c, j]
+            rhs[c], rhs[pivot] = rhs[pivot], rhs[c]
+        for r in range(c + 1, n):
+            factor = work[r, c] / work[c, c]
+            for j in range(c, n):
+                work[r, j] -= factor * work[c, j]
+            rhs[r] -= factor * rhs[c]
+    for c in range(n - 1, -1, -1):
+        total = rhs[c]
+        for j in range(c + 1, n):
+            total -= work[c, j] * p[j]
+        p[c] = total / work[c, c]
+
+
+@numba.njit(cache=True)
+def _box_qp_row(H, f, lo, hi, x, max_iter, tol):
+    """One row of :func:`metasim.display.solvers.box_qp`; x (start, clipped) is updated in place."""
+    n = f.shape[0]
+    at_lo = np.empty(n, dtype=np.bool_)
+    at_hi = np.empty(n, dtype=np.bool_)
+    free = np.empty(n, dtype=np.bool_)
+    g = np.empty(n)
+    p = np.empty(n)
+    work = np.empty((n, n))
+    rhs = np.empty(n)
+    scale = 1.0
+    top_f = 0.0
+    top_h = 0.0
+    for i in range(n):
+        x[i] = min(max(x[i], lo[i]), hi[i])
+        at_lo[i] = x[i] <= lo[i]
+        at_hi[i] = x[i] >= hi[i]
+        top_f = max(top_f, abs(f[i]))
+        for j in range(n):
+            top_h = max(top_h, abs(H[i, j]))
+    scale = 1.0 + top_f + top_h
+    for _ in range(max_iter):
+        for i in range(n):
+            free[i] = not (at_lo[i] or at_hi[i])
+            total = f[i]
+            for j in range(n):
+                total += H[i, j] * x[j]
+            g[i] = total
+        _solve_free(H, g, free, p, work, rhs)
+        size_p = 0.0
+        size_x = 0.0
+        for i in range(n):
+            size_p = max(size_p, abs(p[i]))
+            size_x = max(size_x, abs(x[i]))
+        if size_p > 1e-14 * (1.0 + size_x):
+            alpha = 1.0
+            block = -1
+            for i in range(n):
+                if free[i] and p[i] != 0.0:
+                    ratio = (lo[i] - x[i]) / p[i] if p[i] < 0.0 else (hi[i] - x[i]) / p[i]
+                    if ratio < alpha:
+                        alpha = ratio
+                        block = i
+            alpha = max(alpha, 0.0)
+            for i in range(n):
+                x[i] += alpha * p[i]
+            if block >= 0:
+                if p[block] < 0.0:
+                    x[block] = lo[block]
+                    at_lo[block] = True
+                else:
+                    x[block] = hi[block]
+                    at_hi[block] = True
+            continue
+        # no step: check the multipliers of the working set, release the worst
+        worst = -1
+        lam_min = np.inf
+        for i in range(n):
+            lam = g[i] if at_lo[i] else (-g[i] if at_hi[i] else np.inf)
+            if lam < lam_min:
+                lam_min = lam
+                worst = i
+        if worst >= 0 and lam_min < -tol * scale:
+            at_lo[worst] = False
+            at_hi[worst] = False
+        else:
+            break
+    for i in range(n):
+        x[i] = min(max(x[i], lo[i]), hi[i])
+
+
+@numba.njit(cache=True, parallel=True)
+def box_qp_rows(H, f, lo, hi, x, max_iter, tol):
+    """All rows of a batched box QP (H (R, N, N), f (R, N), x (R, N) start and result)."""
+    for r in numba.prange(f.shape[0]):
+        _box_qp_row(H[r], f[r], lo, hi, x[r], max_iter, tol)
+
+
+@numba.njit(cache=True, inline="always")
+def _f(t):
+    return np.cbrt(t) if t > _EPSILON else (_KAPPA * t + 16.0) / 116.0
+
+
+@numba.njit(cache=True)
+def _lab3(x, y, z, wx, wy, wz, out):
+    fx, fy, fz = _f(x / wx), _f(y / wy), _f(z / wz)
+    out[0] = 116.0 * fy - 16.0
+    out[1] = 500.0 * (fx - fy)
+    out[2] = 200.0 * (fy - fz)
+
+
+@numba.njit(cache=True)
+def _jacobian(xyz, white, jac):
+    """∂(L*, a*, b*)/∂(X, Y, Z) (CIE 15:2004 §8.2.1)."""
+    g = np.empty(3)
+    for k in range(3):
+        t = xyz[k] / white[k]
+        slope = np.cbrt(max(t, _EPSILON)) ** -2 / 3.0 if t > _EPSILON else _KAPPA / 116.0
+        g[k] = slope / white[k]
+    jac[:] = 0.0
+    jac[0, 1] = 116.0 * g[1]
+    jac[1, 0] = 500.0 * g[0]
+    jac[1, 1] = -500.0 * g[1]
+    jac[2, 1] = 200.0 * g[1]
+    jac[2, 2] = -200.0 * g[2]
+
+
+@numba.njit(cache=True)
+def _colour(A, black, d, out):
+    for m in range(3):
+        total = black[m]
+        for k in range(d.shape[0]):
+            total += A[m, k] * d[k]
+        out[m] = total
+
+
+@numba.njit(cache=True)
+def _cost(A, black, d, white, lab_target, xyz, lab):
+    _colour(A, black, d, xyz)
+    _lab3(xyz[0], xyz[1], xyz[2], white[0], white[1], white[2], lab)
+    return (lab[0] - lab_target[0]) ** 2 + (lab[1] - lab_target[1]) ** 2 + (lab[2] - lab_target[2]) ** 2
+
+
+@numba.njit(cache=True)
+def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_iter, out):
+    n = d.shape[0]
+    g = np.zeros((3, n))
+    for i in range(3):
+        for k in range(n):
+            total = 0.0
+            for m in range(3):
+                total += jac[i, m] * A[m, k]
+            g[i, k] = total
+    gram = np.empty((n, n))
+    trace = 0.0
+    for k in range(n):
+        for m in range(n):
+            total = 0.0
+            for i in range(3):
+                total += g[i, k] * g[i, m]
+            gram[k, m] = total
+        trace += gram[k, k]
+    scale = trace / n
+    weight = weight_factor * scale / q_scale
+    H_c = np.empty((n, n))
+    f_c = np.empty(n)
+    gd = np.empty(3)
+    for i in range(3):
+        total = 0.0
+        for k in range(n):
+            total += g[i, k] * d[k]
+        gd[i] = residual[i] - total
+    for k in range(n):
+        for m in range(n):
+            H_c[k, m] = gram[k, m] + weight * H_s[k, m] + (1e-12 * scale if k == m else 0.0)
+        total = 0.0
+        for i in range(3):
+            total += g[i, k] * gd[i]
+        f_c[k] = total + weight * f_s[k]
+        out[k] = d[k]
+    _box_qp_row(H_c, f_c, lo, hi, out, max_iter, 1e-12)
+
+
+@numba.njit(cache=True, parallel=True)
+def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out):
+    """Gauss-Newton in CIELAB with box constraints, per row (see ``metasim.display.drive``)."""
+    R, _, n = A.shape
+    lo = np.zeros(n)
+    hi = np.ones(n)
+    for r in numba.prange(R):
+        lab_target = np.empty(3)
+        _lab3(target[r, 0], target[r, 1], target[r, 2], white[r, 0], white[r, 1], white[r, 2], lab_target)
+        jac = np.empty((3, 3))
+        _jacobian(white[r], white[r], jac)
+        residual = np.empty(3)
+        for i in range(3):
+            total = 0.0
+            for m in range(3):
+                total += jac[i, m] * (black[r, m] - target[r, m])
+            residual[i] = total
+        d = np.zeros(n)
+        proposal = np.empty(n)
+        _step(jac, residual, d, A[r], H_s[r], f_s[r], q_scale[r], weight_factor, lo, hi, max_iter, proposal)
+        d[:] = proposal
+        xyz = np.empty(3)
+        lab = np.empty(3)
+        cost = _cost(A[r], black[r], d, white[r], lab_target, xyz, lab)
+        for _ in range(iterations):
+            _colour(A[r], black[r], d, xyz)
+            _lab3(xyz[0], xyz[1], xyz[2], white[r, 0], white[r, 1], white[r, 2], lab)
+            for i in range(3):
+                residual[i] = lab[i] - lab_target[i]
+            _jacobian(xyz, white[r], jac)
+            _step(jac, residual, d, A[r], H_s[r], f_s[r], q_scale[r], weight_factor, lo, hi, max_iter, proposal)
+            new_cost = _cost(A[r], black[r], proposal, white[r], lab_target, xyz, lab)
+            if not new_cost < cost * (1 - 1e-12):
+                break
+            d[:] = proposal
+            cost = new_cost
+        out[r] = d
