@@ -1,0 +1,64 @@
+"""Compiled helper kernels against numpy (reference library) and position independence."""
+
+import numpy as np
+import pytest
+
+from metasim._threads import _controller, single_threaded_blas
+from metasim.colorimetry.cielab import lab_of_ratio
+from metasim.colorimetry.difference import delta_e_2000_array
+from metasim.colorimetry.integration import apply_matrices, spectral_products
+from metasim.metamerism._rowstats import row_stats, segment_stats
+
+
+def test_spectral_products_equal_numpy_and_do_not_depend_on_shape():
+    rng = np.random.default_rng(1)
+    a, b = rng.uniform(0, 1, (300, 401)), rng.uniform(0, 1, (7, 401))
+    full = spectral_products(a, b)
+    np.testing.assert_allclose(full, a @ b.T, rtol=1e-13)  # numpy matmul as reference
+    assert np.array_equal(spectral_products(a[17:20], b), full[17:20])  # same bits in any batch
+    assert np.array_equal(spectral_products(a, b[2:3]), full[:, 2:3])
+    assert np.array_equal(spectral_products(b, a), full.T)
+
+
+def test_apply_matrices_equal_numpy():
+    rng = np.random.default_rng(2)
+    drive, m, black = rng.uniform(0, 1, (2, 9, 4)), rng.uniform(0, 1, (2, 5, 3, 4)), rng.uniform(0, 1, (2, 5, 3))
+    expected = np.einsum("gsn,gokn->gosk", drive, m) + black[:, :, None, :]  # numpy einsum as reference
+    np.testing.assert_allclose(apply_matrices(drive, m, black), expected, rtol=1e-14)
+
+
+def test_row_and_segment_stats_equal_numpy():
+    rng = np.random.default_rng(3)
+    values = np.round(rng.gamma(2.0, 1.0, (40, 301)), 2)  # with ties
+    stats, shares = row_stats(values, (1.0, 2.0))
+    expected = np.stack([values.mean(1), np.quantile(values, 0.5, axis=1), np.quantile(values, 0.95, axis=1),
+                         values.max(1)])  # numpy mean / quantile (linear) / max as reference
+    np.testing.assert_allclose(stats, expected, rtol=1e-13)
+    np.testing.assert_allclose(shares, [(values > 1.0).mean(1), (values > 2.0).mean(1)])
+    seg, _ = segment_stats(values.ravel()[:1000], [1, 999])
+    np.testing.assert_allclose(seg[:, 1], [values.ravel()[1:1000].mean(), np.median(values.ravel()[1:1000]),
+                                           np.percentile(values.ravel()[1:1000], 95), values.ravel()[1:1000].max()],
+                               rtol=1e-13)
+    assert seg[1, 0] == values.ravel()[0]
+
+
+@pytest.mark.parametrize("n", [1, 7, 17, 2047, 2049])
+def test_delta_e_and_lab_do_not_depend_on_position(n):
+    rng = np.random.default_rng(4)
+    lab_1 = np.column_stack([rng.uniform(0, 100, 4096), rng.uniform(-100, 100, 4096), rng.uniform(-100, 100, 4096)])
+    lab_2 = lab_1 + rng.normal(0, 3, lab_1.shape)
+    assert np.array_equal(delta_e_2000_array(lab_1[-n:], lab_2[-n:]), delta_e_2000_array(lab_1, lab_2)[-n:])
+    ratio = rng.uniform(0, 1.2, (4096, 3))
+    assert np.array_equal(lab_of_ratio(ratio[-n:]), lab_of_ratio(ratio)[-n:])
+
+
+def test_single_threaded_blas_restores_the_count_and_nests():
+    def counts():
+        return [info["num_threads"] for info in _controller().info() if info["user_api"] == "blas"]
+
+    before = counts()
+    with single_threaded_blas():
+        with single_threaded_blas():
+            assert all(c == 1 for c in counts())
+        assert all(c == 1 for c in counts())
+    assert counts() == before
