@@ -26,7 +26,8 @@ _C63, _S63 = math.cos(63 * _DEG), math.sin(63 * _DEG)
 
 
 @numba.njit(cache=True, inline="always", error_model="numpy")
-def _pair(L1, a1, b1, L2, a2, b2, k_L):
+def _primed(a1, b1, a2, b2):
+    """a'1, a'2, C'1, C'2: the a* axis rescaled by 1 + G (Sharma, Wu & Dalal eqs. 2-6)."""
     c1 = math.sqrt(a1 * a1 + b1 * b1)
     c2 = math.sqrt(a2 * a2 + b2 * b2)
     cb = 0.5 * (c1 + c2)
@@ -37,6 +38,12 @@ def _pair(L1, a1, b1, L2, a2, b2, k_L):
     ap2 = (1.0 + g) * a2
     cp1 = math.sqrt(ap1 * ap1 + b1 * b1)
     cp2 = math.sqrt(ap2 * ap2 + b2 * b2)
+    return ap1, ap2, cp1, cp2
+
+
+@numba.njit(cache=True, inline="always", error_model="numpy")
+def _pair(L1, a1, b1, L2, a2, b2, k_L):
+    ap1, ap2, cp1, cp2 = _primed(a1, b1, a2, b2)
     if b1 == 0.0 and ap1 == 0.0:
         h1 = 0.0
     else:
@@ -210,16 +217,7 @@ def _vector_pair(L1, a1, b1, L2, a2, b2, k_L):
     costs 8 square roots and 5 divisions. Achromatic samples and hues equal or opposite to within
     1e-9 rad are flagged.
     """
-    c1 = math.sqrt(a1 * a1 + b1 * b1)
-    c2 = math.sqrt(a2 * a2 + b2 * b2)
-    cb = 0.5 * (c1 + c2)
-    cb2 = cb * cb
-    cb7 = cb2 * cb2 * cb2 * cb
-    g = 0.5 * (1.0 - math.sqrt(cb7 / (cb7 + _25_POW_7)))
-    ap1 = (1.0 + g) * a1
-    ap2 = (1.0 + g) * a2
-    cp1 = math.sqrt(ap1 * ap1 + b1 * b1)
-    cp2 = math.sqrt(ap2 * ap2 + b2 * b2)
+    ap1, ap2, cp1, cp2 = _primed(a1, b1, a2, b2)
     cc = cp1 * cp2
     cross = ap1 * b2 - b1 * ap2
     dot = ap1 * ap2 + b1 * b2
