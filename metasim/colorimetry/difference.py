@@ -42,6 +42,20 @@ def _primed(a1, b1, a2, b2):
 
 
 @numba.njit(cache=True, inline="always", error_model="numpy")
+def _hue_weight(c, s):
+    """T of the mean hue from its cosine and sine; the four cosines by multiple-angle identities."""
+    c2h = 2.0 * c * c - 1.0
+    s2h = 2.0 * s * c
+    c3h = c * (4.0 * c * c - 3.0)
+    s3h = s * (3.0 - 4.0 * s * s)
+    c4h = 2.0 * c2h * c2h - 1.0
+    s4h = 2.0 * s2h * c2h
+    t = (1.0 - 0.17 * (c * _C30 + s * _S30) + 0.24 * c2h
+         + 0.32 * (c3h * _C6 - s3h * _S6) - 0.20 * (c4h * _C63 + s4h * _S63))
+    return t
+
+
+@numba.njit(cache=True, inline="always", error_model="numpy")
 def _pair(L1, a1, b1, L2, a2, b2, k_L):
     ap1, ap2, cp1, cp2 = _primed(a1, b1, a2, b2)
     if b1 == 0.0 and ap1 == 0.0:
@@ -75,14 +89,7 @@ def _pair(L1, a1, b1, L2, a2, b2, k_L):
     Cb = 0.5 * (cp1 + cp2)
     c = math.cos(hb * _DEG)
     s = math.sin(hb * _DEG)
-    c2h = 2.0 * c * c - 1.0
-    s2h = 2.0 * s * c
-    c3h = c * (4.0 * c * c - 3.0)
-    s3h = s * (3.0 - 4.0 * s * s)
-    c4h = 2.0 * c2h * c2h - 1.0
-    s4h = 2.0 * s2h * c2h
-    t = (1.0 - 0.17 * (c * _C30 + s * _S30) + 0.24 * c2h
-         + 0.32 * (c3h * _C6 - s3h * _S6) - 0.20 * (c4h * _C63 + s4h * _S63))
+    t = _hue_weight(c, s)
     q = (hb - 275.0) / 25.0
     dtheta = 30.0 * math.exp(-q * q)
     Cb2 = Cb * Cb
@@ -241,14 +248,7 @@ def _vector_pair(L1, a1, b1, L2, a2, b2, k_L):
     dC = cp2 - cp1
     Lb = 0.5 * (L1 + L2)
     Cb = 0.5 * (cp1 + cp2)
-    c2h = 2.0 * c * c - 1.0
-    s2h = 2.0 * s * c
-    c3h = c * (4.0 * c * c - 3.0)
-    s3h = s * (3.0 - 4.0 * s * s)
-    c4h = 2.0 * c2h * c2h - 1.0
-    s4h = 2.0 * s2h * c2h
-    t = (1.0 - 0.17 * (c * _C30 + s * _S30) + 0.24 * c2h
-         + 0.32 * (c3h * _C6 - s3h * _S6) - 0.20 * (c4h * _C63 + s4h * _S63))
+    t = _hue_weight(c, s)
     q = (hb - 275.0) / 25.0
     dtheta = 30.0 * _exp_negative(q * q)
     Cb2 = Cb * Cb

@@ -325,8 +325,8 @@ def _display_rows(display: Display) -> np.ndarray:
 def _display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
     """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
 
-    All displays are integrated in one pass over the observer functions (which, for a large
-    population, are the bulk of the memory traffic).
+    All displays are integrated in one :func:`~metasim.colorimetry.integration.spectral_products`
+    call (one pass over the observer functions).
     """
     stacks = [_display_rows(display) for display in displays]
     n_w = cmf.shape[-1]
