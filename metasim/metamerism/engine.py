@@ -33,16 +33,16 @@ import xarray as xr
 
 from metasim._threads import blas_single_threaded
 from metasim._version import __version__
-from metasim.colorimetry import delta_e_2000, tristimulus, xyz_to_lab, xyz_to_xy
-from metasim.colorimetry.cielab import xyz_to_lab_array
+from metasim.colorimetry import tristimulus, xyz_to_xy
+from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
 from metasim.colorimetry.integration import apply_matrices, spectral_products
-from metasim.colorimetry.tristimulus import K_M, labelled
+from metasim.colorimetry.tristimulus import K_M, coordinates
 from metasim.display import Display, calibrate_white, solve_drive
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
-from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, summarise
+from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
 from metasim.spectra import RADIANCE_UNITS, require_same_grid
 
@@ -228,8 +228,8 @@ def mismatch(
     if include_itp is None:
         transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
         include_itp = bool(transfers & {"pq", "hlg"})
+    ref_white_cal = tristimulus(white_spectrum, calibration)
     if match_white:
-        ref_white_cal = tristimulus(white_spectrum, calibration)
         test = calibrate_white(test, calibration, white=xyz_to_xy(ref_white_cal),
                                luminance=ref_white_cal.sel(xyz="Y", drop=True))
 
@@ -247,45 +247,57 @@ def mismatch(
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
     core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
                           white_spectrum, obs, adapted_white, reference_cal, include_itp)
-    xyz_ref, xyz_test, adapted, lab_ref, lab_test, de, de_white, itp, index = core
-    cal_white = tristimulus(white_spectrum, calibration) if adapted_white == "reference" else test.white_tristimulus(calibration)
-    de_cal = delta_e_2000(xyz_to_lab(reference_cal, cal_white), xyz_to_lab(test_solution["reproduced"], cal_white))
+    cal_white = ref_white_cal if adapted_white == "reference" else test.white_tristimulus(calibration)
+    de_cal = _delta_e_variable(_lab_variable(reference_cal.variable, cal_white.variable),
+                               _lab_variable(test_solution["reproduced"].variable, cal_white.variable))
 
-    test_flag = test_solution["out_of_gamut"].astype(bool)
-    ref_flag = ref_rendering["out_of_gamut"].astype(bool) if ref_kind == "display" else xr.zeros_like(test_flag)
-    variables = [
-        ("xyz_reference", xyz_ref, "tristimulus values of the reference rendering, per observer", "cd m-2"),
-        ("xyz_test", xyz_test, "tristimulus values of the test rendering, per observer", "cd m-2"),
-        ("lab_reference", lab_ref, "CIELAB of the reference rendering (observer's adapted white)", "1"),
-        ("lab_test", lab_test, "CIELAB of the test rendering (observer's adapted white)", "1"),
-        ("adapted_white_xyz", adapted, f"white each observer is adapted to ({adapted_white} white as they see it)", "cd m-2"),
-        ("delta_e_2000", de, "CIE 2000 colour difference, reference vs test, per observer", "1"),
-        ("metamerism_index", index, "observer-change metamerism index, additive correction (ISO 18314-4 style)", "1"),
-        ("delta_e_white", de_white, "CIE 2000 difference between the two whites, per observer", "1"),
+    test_flag = test_solution["out_of_gamut"].variable.astype(bool)
+    ref_flag = (ref_rendering["out_of_gamut"].variable.astype(bool) if ref_kind == "display"
+                else xr.zeros_like(test_flag))
+    described = [
+        ("xyz_reference", "tristimulus values of the reference rendering, per observer", "cd m-2"),
+        ("xyz_test", "tristimulus values of the test rendering, per observer", "cd m-2"),
+        ("lab_reference", "CIELAB of the reference rendering (observer's adapted white)", "1"),
+        ("lab_test", "CIELAB of the test rendering (observer's adapted white)", "1"),
+        ("adapted_white_xyz", f"white each observer is adapted to ({adapted_white} white as they see it)", "cd m-2"),
+        ("delta_e_2000", "CIE 2000 colour difference, reference vs test, per observer", "1"),
+        ("metamerism_index", "observer-change metamerism index, additive correction (ISO 18314-4 style)", "1"),
+        ("delta_e_white", "CIE 2000 difference between the two whites, per observer", "1"),
+        ("delta_e_itp", "ITU-R BT.2124 difference, reference vs test, per observer", "1"),
+    ]
+    data = {name: (*core[name], {"units": units, "long_name": long_name})
+            for name, long_name, units in described if name in core}
+    given = [
         ("delta_e_2000_calibration", de_cal, "CIE 2000 difference for the calibration observer", "1"),
-        ("drive_test", test_solution["drive"], "linear drive values of the test display", "1"),
-        ("target_xyz", targets, "reference XYZ for the calibration observer (targets of the test display)", "cd m-2"),
+        ("drive_test", test_solution["drive"].variable, "linear drive values of the test display", "1"),
+        ("target_xyz", targets.variable, "reference XYZ for the calibration observer (targets of the test display)",
+         "cd m-2"),
         ("out_of_gamut_test", test_flag, "stimulus outside the test gamut (clipped)", "1"),
         ("out_of_gamut_reference", ref_flag, "stimulus outside the reference gamut (clipped)", "1"),
         ("out_of_gamut_both", test_flag & ref_flag, "stimulus outside both gamuts", "1"),
-        ("residual_delta_e_test", test_solution["residual_delta_e"], "CIE 2000 residual of the test display vs its target", "1"),
+        ("residual_delta_e_test", test_solution["residual_delta_e"].variable,
+         "CIE 2000 residual of the test display vs its target", "1"),
     ]
-    if itp is not None:
-        variables.append(("delta_e_itp", itp, "ITU-R BT.2124 difference, reference vs test, per observer", "1"))
+    sources = [test.spectra, obs, test_solution]
     if ref_kind == "display":
-        variables.append(("residual_delta_e_reference", ref_rendering["residual_delta_e"],
-                          "CIE 2000 residual of the reference display vs the source colour", "1"))
-        variables.append(("drive_reference", ref_rendering["drive"].rename(primary="reference_primary"),
-                          "linear drive values of the reference display", "1"))
-    summaries = summarise(de, age_bands=age_bands, thresholds=thresholds, name="delta_e_2000")
-    data = {name: value.variable.copy(deep=False) for name, value, _, _ in variables}
-    for (name, _, long_name, units) in variables:
-        data[name].attrs = {"units": units, "long_name": long_name}
-    data.update({name: summaries[name].variable for name in summaries.data_vars})
-    coords = {}
-    for source in [value for _, value, _, _ in variables] + [summaries]:
-        for key, coord in source.coords.items():
-            coords.setdefault(key, coord.variable)
+        ref_drive = ref_rendering["drive"].rename(primary="reference_primary")
+        given.append(("residual_delta_e_reference", ref_rendering["residual_delta_e"].variable,
+                      "CIE 2000 residual of the reference display vs the source colour", "1"))
+        given.append(("drive_reference", ref_drive.variable, "linear drive values of the reference display", "1"))
+        sources.append(ref_drive)
+    else:
+        sources.append(targets)
+    for name, variable, long_name, units in given:
+        data[name] = (variable.dims, variable.data, {"units": units, "long_name": long_name})
+    de_dims, de_values = core["delta_e_2000"]
+    rest = [d for d in de_dims if d not in ("observer", "stimulus")]
+    summaries, summary_coords = summary_variables(
+        np.moveaxis(de_values, [de_dims.index("observer"), de_dims.index("stimulus")], [0, 1]), rest,
+        observer_weights(obs), obs.coords.variables["age_years"].values if "age_years" in obs.coords else None,
+        age_bands=age_bands, thresholds=thresholds, name="delta_e_2000")
+    data.update(summaries)
+    dims = {d for value in data.values() for d in value[0]}
+    coords = coordinates(dims, [*sources, summary_coords], labels={"xyz": ("X", "Y", "Z"), "lab": LAB})
     out = xr.Dataset(data, coords=coords)
     out.attrs = {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
@@ -389,28 +401,40 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
         itp = _itp(xyz_r_b, xyz_t)
 
     sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0], **{d: drive_test.sizes[d] for d in stim}}
-    pair_dims = [*batch, "observer", *stim]
-    observer_dims = [*batch, "observer"]
-    sources = (test.spectra.coords, obs.coords, drive_test.coords)
+    pair_dims = (*batch, "observer", *stim)
+    observer_dims = (*batch, "observer")
 
-    def wrap(values, dims, tail=None):
-        tail = tail or {}
-        shape = [sizes[d] for d in dims] + [len(v) for v in tail.values()]
-        return labelled(np.reshape(values, shape), (*dims, *tail), sources, labels=tail)
+    def shaped(values, dims, tail=()):
+        return (*dims, *tail), np.reshape(values, [sizes[d] for d in dims] + [3] * len(tail))
 
-    xyz_c = {"xyz": ["X", "Y", "Z"]}
-    lab_c = {"lab": ["L*", "a*", "b*"]}
-    return (
-        wrap(xyz_r_b if batch else xyz_r, pair_dims, xyz_c),
-        wrap(xyz_t, pair_dims, xyz_c),
-        wrap(adapted, observer_dims, xyz_c),
-        wrap(lab_r, pair_dims, lab_c),
-        wrap(lab_t, pair_dims, lab_c),
-        wrap(de, pair_dims),
-        wrap(de_white, observer_dims),
-        None if itp is None else wrap(itp, pair_dims),
-        wrap(index, pair_dims),
-    )
+    out = {
+        "xyz_reference": shaped(xyz_r_b if batch else xyz_r, pair_dims, ("xyz",)),
+        "xyz_test": shaped(xyz_t, pair_dims, ("xyz",)),
+        "adapted_white_xyz": shaped(adapted, observer_dims, ("xyz",)),
+        "lab_reference": shaped(lab_r, pair_dims, ("lab",)),
+        "lab_test": shaped(lab_t, pair_dims, ("lab",)),
+        "delta_e_2000": shaped(de, pair_dims),
+        "delta_e_white": shaped(de_white, observer_dims),
+        "metamerism_index": shaped(index, pair_dims),
+    }
+    if itp is not None:
+        out["delta_e_itp"] = shaped(itp, pair_dims)
+    return out
+
+
+def _lab_variable(xyz: xr.Variable, white: xr.Variable) -> xr.Variable:
+    """CIELAB of XYZ against a white, broadcast by dim name (as :func:`metasim.colorimetry.xyz_to_lab`)."""
+    ratio = xyz / white
+    dims = [d for d in ratio.dims if d != "xyz"]
+    return xr.Variable((*dims, "lab"), lab_of_ratio(ratio.transpose(*dims, "xyz").values))
+
+
+def _delta_e_variable(lab_1: xr.Variable, lab_2: xr.Variable) -> xr.Variable:
+    """CIE 2000 difference of two CIELAB Variables broadcast by dim name (dims in order of appearance)."""
+    sizes = {**dict(zip(lab_1.dims, lab_1.shape)), **dict(zip(lab_2.dims, lab_2.shape))}
+    full = {d: sizes[d] for d in [*[d for d in sizes if d != "lab"], "lab"]}
+    values = delta_e_2000_array(lab_1.set_dims(full).values, lab_2.set_dims(full).values)
+    return xr.Variable(tuple(full)[:-1], values)
 
 
 def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:

@@ -14,6 +14,7 @@ import xarray as xr
 
 from metasim._threads import blas_single_threaded
 from metasim.errors import MetasimError
+from metasim.colorimetry.tristimulus import _label_coordinate
 from metasim.metamerism._rowstats import row_stats, segment_stats
 
 STATISTICS = ("mean", "median", "p95", "max")
@@ -100,12 +101,26 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
         if dim not in delta_e.dims:
             raise MetasimError(f"summaries need an '{dim}' dim, got {tuple(delta_e.dims)}")
     rest = [d for d in delta_e.dims if d not in ("observer", "stimulus")]
-    variable = delta_e.variable.transpose("observer", "stimulus", *rest)
-    values = np.asarray(variable.values, dtype=float)
-    weights = observer_weights(delta_e)
+    values = np.asarray(delta_e.variable.transpose("observer", "stimulus", *rest).values, dtype=float)
     coords_in = delta_e.coords
     labelled_dims = ["stimulus", *[d for d in rest if d in coords_in], "observer"]
     given = {d: coords_in.variables[d] for d in labelled_dims}  # KeyError for unlabelled stimuli or observers
+    ages = coords_in.variables["age_years"].values if "age_years" in coords_in else None
+    out, fixed = summary_variables(values, rest, observer_weights(delta_e), ages, age_bands=age_bands,
+                                   thresholds=thresholds, name=name)
+    # one Dataset from (dims, values, attrs) and the dimension coordinates only (as before: the
+    # observers' other coordinates are not summarised), the given ones with their indexes
+    variables = {**fixed.variables, **given}
+    indexes = {**fixed.xindexes, **{d: coords_in.xindexes[d] for d in given if d in coords_in.xindexes}}
+    order = [d for d in ("statistic", "stimulus", *rest, "observer", "age_band", "threshold") if d in variables]
+    coords = xr.Coordinates({d: variables[d] for d in order}, indexes={d: indexes[d] for d in order if d in indexes})
+    return xr.Dataset(out, coords=coords)
+
+
+def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=AGE_BANDS,
+                      thresholds=THRESHOLDS, name: str = "delta_e") -> tuple[dict, xr.Coordinates]:
+    """The summaries of :func:`summarise` from numpy values (observer, stimulus, *rest): a dict of
+    (dims, values, attrs) and the Coordinates of the summary dims (statistic, age_band, threshold)."""
     statistic_attrs = {"units": "1"}
     out = {}
     t = np.asarray(thresholds, dtype=float)
@@ -120,12 +135,12 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
                                   {**statistic_attrs, "long_name": "statistics over observers, per stimulus"})
     out[f"{name}_by_observer"] = (("statistic", "observer", *rest), _stats(np.moveaxis(values, 1, 0), None, 0),
                                   {**statistic_attrs, "long_name": "statistics over stimuli, per observer"})
-    fixed = {"statistic": list(STATISTICS)}
-    if "age_years" in coords_in and age_bands:
+    fixed = [_label_coordinate("statistic", STATISTICS)]
+    if ages is not None and age_bands:
         edges = np.asarray(age_bands, dtype=float)
         if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
             raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
-        ages = np.asarray(coords_in.variables["age_years"].values, dtype=float)
+        ages = np.asarray(ages, dtype=float)
         band_labels, blocks, counts, members = [], [], [], []
         for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
             last = i == edges.size - 2
@@ -148,7 +163,7 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
             **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band"})
         out["observers_per_age_band"] = ("age_band", np.asarray(counts),
                                          {"units": "1", "long_name": "observers in each age band"})
-        fixed["age_band"] = band_labels
+        fixed.append(_label_coordinate("age_band", tuple(band_labels)))
     if share is None:
         w = np.ones(values.shape[0]) if weights is None else weights
         w = w / w.sum()
@@ -159,15 +174,13 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
                             "thresholds_source": "common practice, no source"})
     out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1),
                                    {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold"})
-    fixed["threshold"] = xr.Variable("threshold", t, {"units": "1", "long_name": "CIE 2000 difference threshold"})
-    new = xr.Coordinates(fixed)
-    # one Dataset from (dims, values, attrs) and the dimension coordinates only (as before: the
-    # observers' other coordinates are not summarised), the given ones with their indexes
-    variables = {**new.variables, **given}
-    indexes = {**new.xindexes, **{d: coords_in.xindexes[d] for d in given if d in coords_in.xindexes}}
-    order = [d for d in ("statistic", "stimulus", *rest, "observer", "age_band", "threshold") if d in variables]
-    coords = xr.Coordinates({d: variables[d] for d in order}, indexes={d: indexes[d] for d in order if d in indexes})
-    return xr.Dataset(out, coords=coords)
+    threshold = _label_coordinate("threshold", tuple(t.tolist()))
+    variables = {name: variable for part in fixed for name, variable in part.variables.items()}
+    indexes = {name: index for part in fixed for name, index in part.xindexes.items()}
+    # a fresh variable for the attributes (the cached coordinate is shared), its index reused
+    variables["threshold"] = xr.Variable("threshold", t, {"units": "1", "long_name": "CIE 2000 difference threshold"})
+    indexes["threshold"] = threshold.xindexes["threshold"]
+    return out, xr.Coordinates(variables, indexes=indexes)
 
 
-__all__ = ["STATISTICS", "THRESHOLDS", "AGE_BANDS", "weighted_quantile", "summarise", "observer_weights"]
+__all__ = ["STATISTICS", "THRESHOLDS", "AGE_BANDS", "weighted_quantile", "summarise", "summary_variables", "observer_weights"]
