@@ -35,6 +35,9 @@ def test_row_and_segment_stats_equal_numpy():
                          values.max(1)])  # numpy mean / quantile (linear) / max as reference
     np.testing.assert_allclose(stats, expected, rtol=1e-13)
     np.testing.assert_allclose(shares, [(values > 1.0).mean(1), (values > 2.0).mean(1)])
+    by_column, column_shares = row_stats(values.T, (1.0, 2.0), axis=0)  # the same rows, stored as columns
+    np.testing.assert_allclose(by_column, expected, rtol=1e-13)
+    np.testing.assert_array_equal(column_shares, shares)
     seg, _ = segment_stats(values.ravel()[:1000], [1, 999])
     np.testing.assert_allclose(seg[:, 1], [values.ravel()[1:1000].mean(), np.median(values.ravel()[1:1000]),
                                            np.percentile(values.ravel()[1:1000], 95), values.ravel()[1:1000].max()],

@@ -128,7 +128,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     # pass per summary; anything else through numpy
     fast = weights is None and not rest and values.size > 0 and not np.isnan(values).any()
     if fast:
-        by_stimulus, share = row_stats(values.T, t)
+        by_stimulus, share = row_stats(values, t, axis=0)
     else:
         by_stimulus, share = _stats(values, weights, 0), None
     out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus,
