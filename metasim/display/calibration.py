@@ -45,11 +45,22 @@ def white_xy(white) -> xr.DataArray:
         if values.shape != (2,):
             raise DisplayError(f"white={white!r} is not allowed; give a name or an (x, y) pair")
         xy = xr.DataArray(values, dims=("chromaticity",), coords={"chromaticity": ["x", "y"]})
-    x, y = np.asarray(xy.sel(chromaticity="x")), np.asarray(xy.sel(chromaticity="y"))
+        x, y = values
+    if isinstance(white, xr.DataArray):
+        x, y = np.asarray(_component(xy, "x").values), np.asarray(_component(xy, "y").values)
     if (y <= 0).any() or (x < 0).any() or (x + y > 1).any():
         raise DisplayError(f"white chromaticity (x, y) = ({x}, {y}) is not allowed; need x >= 0, y > 0, x + y <= 1")
     xy.attrs = {"units": "1", "long_name": "CIE 1931 xy chromaticity of the target white"}
     return xy
+
+
+def _component(xy: xr.DataArray, name: str) -> xr.Variable:
+    """The ``x`` or ``y`` part of a chromaticity DataArray as a Variable (what ``.sel`` picks, without
+    building a DataArray); the usual KeyError when the label is missing."""
+    labels = list(xy.coords.variables["chromaticity"].values) if "chromaticity" in xy.coords else []
+    if name not in labels:
+        return xy.sel(chromaticity=name, drop=True).variable
+    return xy.variable.isel(chromaticity=labels.index(name))
 
 
 def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", luminance=None) -> Display:
@@ -128,20 +139,31 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     gains = gains[:, 0]
     shape = [spectra.sizes[d] for d in batch]
     gain_values = gains.reshape(shape + [n])
-    scaled = spectra.variable.transpose(*batch, "primary", "wavelength").values * gain_values[..., None]
-    new_spectra = spectra.copy(data=xr.Variable((*batch, "primary", "wavelength"), scaled)
-                               .transpose(*spectra.dims).values)
-    new_spectra.attrs = dict(spectra.attrs)
-    primary_gain = display._ds["primary_gain"].transpose(*batch, "primary")
-    total_gain = primary_gain.copy(data=primary_gain.values * gain_values)
-    total_gain.attrs = {"units": "1", "long_name": "gain applied to each primary by white calibration"}
-    peak = target_luminance.astype(float) * xr.ones_like(display.peak_luminance)
-    peak.attrs = {"units": "cd m-2", "long_name": "nominal white luminance (all drives 1)"}
+    scaled = xr.Variable((*batch, "primary", "wavelength"),
+                         spectra.variable.transpose(*batch, "primary", "wavelength").values * gain_values[..., None])
+    scaled = scaled.transpose(*spectra.dims).values
+    gain_attrs = {"units": "1", "long_name": "gain applied to each primary by white calibration"}
+    peak_attrs = {"units": "cd m-2", "long_name": "nominal white luminance (all drives 1)"}
     xy_values = np.asarray(xy.values, dtype=float)
     attrs = {"calibration_observer": observer_name(observer),
              "calibration_white_xy": xy_values.tolist() if xy_values.ndim == 1 else "per design",
              "calibration_luminance": float(target_luminance.values) if target_luminance.ndim == 0 else "per design",
              "calibration_method": "white balance, N>3: gains closest to uniform (metasim)"}
+    primary_gain = display._ds["primary_gain"]
+    if (gains > 0).all() and target_luminance.ndim == 0 and primary_gain.dims == (*batch, "primary"):
+        # same shapes and dims throughout: swap the values (the primaries' checks are scale-invariant)
+        peak = np.full(display.peak_luminance.shape, float(target_luminance.values))
+        return display._rescaled({"spectra": scaled, "primary_gain": primary_gain.values * gain_values,
+                                  "peak_luminance": peak},
+                                 {"spectra": spectra.attrs, "primary_gain": gain_attrs, "peak_luminance": peak_attrs},
+                                 attrs)
+    new_spectra = spectra.copy(data=scaled)
+    new_spectra.attrs = dict(spectra.attrs)
+    primary_gain = primary_gain.transpose(*batch, "primary")
+    total_gain = primary_gain.copy(data=primary_gain.values * gain_values)
+    total_gain.attrs = gain_attrs
+    peak = target_luminance.astype(float) * xr.ones_like(display.peak_luminance)
+    peak.attrs = peak_attrs
     return display.replace(spectra=new_spectra, primary_gain=total_gain, peak_luminance=peak, attrs=attrs)
 
 
@@ -158,8 +180,11 @@ def _target_values(xy: xr.DataArray, luminance: xr.DataArray, spectra: xr.DataAr
                 return None
             if d in array.xindexes and d in spectra.xindexes and not array.xindexes[d].equals(spectra.xindexes[d]):
                 return None
-    x = xy.sel(chromaticity="x", drop=True).variable
-    y = xy.sel(chromaticity="y", drop=True).variable
+    x, y = _component(xy, "x"), _component(xy, "y")
+    if x.ndim == 0 and luminance.ndim == 0:  # one white for every design: the same formulas on floats
+        x, y, big_y = float(x.values), float(y.values), float(luminance.values)
+        xyz = np.array([x * big_y / y, big_y, (1 - x - y) * big_y / y])
+        return np.broadcast_to(xyz, (int(np.prod(list(sizes.values()), dtype=int)), 3)).copy()
     big_y = x * 0 + luminance.variable
     xyz = xr.Variable.concat([x * big_y / y, big_y, (1 - x - y) * big_y / y], dim="xyz")
     return np.asarray(xyz.set_dims({**sizes, "xyz": 3}).values).reshape(-1, 3)

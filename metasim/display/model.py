@@ -91,6 +91,16 @@ def _check_primaries(spectra: xr.DataArray) -> None:
         raise DisplayError(f"primaries are collinear in chromaticity: {text}; they must span a gamut area")
 
 
+def _check_settings(dataset: xr.Dataset) -> None:
+    """Refuse an unknown transfer function or settings it does not allow."""
+    transfer = dataset.attrs.get("transfer_function")
+    if transfer not in TRANSFER_FUNCTIONS:
+        raise DisplayError(f"transfer function {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")
+    check_transfer(transfer, gamma=float(dataset.attrs.get("gamma", 2.2)),
+                   peak_luminance=dataset["peak_luminance"].values if "peak_luminance" in dataset else None,
+                   black_luminance=float(dataset.attrs.get("black_luminance", 0.0)))
+
+
 class Display:
     """An additive display of N ≥ 3 primaries (see the module docstring for the layout).
 
@@ -110,12 +120,7 @@ class Display:
             check_spectra(dataset["black"], where="display black")
             if "primary" in dataset["black"].dims:
                 raise DisplayError("the black-level spectrum must not have a 'primary' dim")
-        transfer = dataset.attrs.get("transfer_function")
-        if transfer not in TRANSFER_FUNCTIONS:
-            raise DisplayError(f"transfer function {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")
-        check_transfer(transfer, gamma=float(dataset.attrs.get("gamma", 2.2)),
-                       peak_luminance=dataset["peak_luminance"].values if "peak_luminance" in dataset else None,
-                       black_luminance=float(dataset.attrs.get("black_luminance", 0.0)))
+        _check_settings(dataset)
         self._ds = dataset
 
     # -- conversion ----------------------------------------------------------------------------
@@ -256,6 +261,19 @@ class Display:
         if attrs:
             ds.attrs.update(attrs)
         return Display(ds)
+
+    def _rescaled(self, values: dict, variable_attrs: dict, attrs: dict) -> "Display":
+        """A new Display with the values of some variables swapped for arrays of the same shape and
+        dim order, without a merge. Only for strictly positive gains on validated primaries (the
+        checks of the primaries are scale-invariant, so they are not repeated); the settings are."""
+        ds = self._ds.copy(data={name: values.get(name, variable.data) for name, variable in self._ds.data_vars.items()})
+        for name, variable_attributes in variable_attrs.items():
+            ds[name].attrs = dict(variable_attributes)
+        ds.attrs.update(attrs)
+        _check_settings(ds)
+        out = Display.__new__(Display)
+        out._ds = ds
+        return out
 
 
 def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:
