@@ -136,11 +136,11 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
         spectra = (stimuli["reflectance"] * white_spectrum).transpose("stimulus", "wavelength")
         spectra.attrs = {"units": RADIANCE_UNITS, "long_name": "reflected spectral radiance"}
         return tristimulus(spectra, calibration), spectra
-    white_y = tristimulus(white_spectrum, calibration).sel(xyz="Y", drop=True)
     if kind == "rgb":
         solution = solve_drive(reference, rgb=stimuli["signal"], source=stimuli.attrs.get("source", "bt709"),
                                encoding=stimuli.attrs.get("encoding") or None, observer=calibration)
     else:
+        white_y = tristimulus(white_spectrum, calibration).sel(xyz="Y", drop=True)
         if kind == "xyz":
             target = stimuli["xyz_relative"] * (white_y / 100.0)
         else:
@@ -149,8 +149,9 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
             target = tristimulus(stimuli["reflectance"] * illuminant * scale, calibration)
         solution = solve_drive(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
     # the test display aims at the source colour, or at what the reference shows where it had to clip
-    targets = xr.where(solution["out_of_gamut"], solution["reproduced"], solution["target"])
-    targets.attrs = dict(solution["target"].attrs)
+    target = solution["target"]  # dims (..., xyz), out_of_gamut the same dims without xyz
+    targets = target.copy(data=np.where(solution["out_of_gamut"].values[..., None], solution["reproduced"].values,
+                                        target.values))
     return targets.transpose("stimulus", "xyz"), solution
 
 
@@ -320,16 +321,18 @@ def mismatch(
 
 def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
     """Observer functions as (observer, xyz, wavelength) float64 and the grid step."""
-    cmf = obs["cmf"].transpose("observer", "xyz", "wavelength")
-    wl = cmf.wavelength.values
+    cmf = obs.variables["cmf"].transpose("observer", "xyz", "wavelength")
+    wl = obs.variables["wavelength"].values
     return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
 
 
 def _display_rows(display: Display) -> np.ndarray:
     """A display's primaries and black as rows to integrate: (batch, N + 1, wavelength)."""
     batch = display.batch_dims
-    spectra = display.spectra.transpose(*batch, "primary", "wavelength").values
-    black = display.black.broadcast_like(display.spectra.isel(primary=0, drop=True)).transpose(*batch, "wavelength").values
+    variable = display.spectra.variable
+    spectra = variable.transpose(*batch, "primary", "wavelength").values
+    sizes = {**{d: variable.sizes[d] for d in batch}, "wavelength": variable.sizes["wavelength"]}
+    black = np.asarray(display.black.variable.set_dims(sizes).values)
     n_w = spectra.shape[-1]
     return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
 
