@@ -83,6 +83,40 @@ def test_render_is_additive_and_refuses_bad_drives():
         display.render(xr.DataArray([0.2, -0.1, 0.0], dims=("primary",)))
 
 
+def test_observed_xyz_equals_colour_science_on_the_rendered_spectra():
+    import colour
+
+    import metasim
+
+    display = make_display(emitters.gaussian([450, 540, 620], 25),
+                           black=emitters.gaussian(550, 200).isel(primary=0) * 1e-3, name="three LEDs")
+    designs = stack_designs([display, make_display(emitters.laser_line([455, 532, 638], 2.0))], design=[0, 1])
+    observers = metasim.observer_population(3, seed=7, age_years=(25, 70))
+    rng = np.random.default_rng(2)
+    drive = xr.DataArray(rng.uniform(0, 1, (4, 3)), dims=("stimulus", "primary"),
+                         coords={"stimulus": list("abcd"), "primary": designs.primaries})
+    seen = designs.observed_xyz(drive, observers)
+    assert seen.dims == ("design", "observer", "stimulus", "xyz") and seen.attrs["units"] == "cd m-2"
+    wl = observers.wavelength.values
+    for design in (0, 1):
+        spectra = designs.spectra.sel(design=design)
+        black = designs.black.sel(design=design) if "design" in designs.black.dims else designs.black
+        for o in range(3):
+            cmfs = colour.MultiSpectralDistributions(observers["cmf"].isel(observer=o).transpose("wavelength", "xyz")
+                                                     .values, wl)
+            for s in range(4):
+                radiance = black.values + drive.values[s] @ spectra.values
+                expected = colour.sd_to_XYZ(colour.SpectralDistribution(radiance, wl), cmfs, method="Integration",
+                                            k=683.0, shape=colour.SpectralShape(wl[0], wl[-1], 1))
+                # colour-science's sd_to_XYZ ("Integration", k = 683 lm/W) of the rendered spectrum
+                np.testing.assert_allclose(seen.sel(design=design).isel(observer=o, stimulus=s).values, expected,
+                                           rtol=1e-10)
+    one = display.observed_xyz(drive.isel(stimulus=0), "cie1931_2")  # one observer, one stimulus
+    assert one.dims == ("xyz",)
+    with pytest.raises(DisplayError, match="outside the allowed range"):
+        display.observed_xyz(drive + 1.0, observers)
+
+
 def test_bad_displays():
     good = emitters.gaussian([450, 540, 620], 25)
     with pytest.raises(DisplayError, match="at least 3 primaries"):

@@ -143,19 +143,43 @@ def _lab_row(x, y, z, wx, wy, wz, out_l, out_a, out_b):
 
 
 @numba.njit(cache=True, inline="always", error_model="numpy")
-def _lab_of_row(xyz, white, out, r):
-    columns = xyz.shape[1]
-    width = (columns + 15) // 16 * 16  # full vectors only: results do not depend on the row length
+def _lab_span(xyz, start, stop, wx, wy, wz, out):
+    """CIELAB of the rows xyz[start:stop] (X, Y, Z) into out[start:stop], through padded columns."""
+    m = stop - start
+    width = (m + 15) // 16 * 16  # full vectors only: results do not depend on the span length
     cols = np.ones((6, width))
-    for s in range(columns):
-        cols[0, s] = xyz[r, s, 0]
-        cols[1, s] = xyz[r, s, 1]
-        cols[2, s] = xyz[r, s, 2]
-    _lab_row(cols[0], cols[1], cols[2], white[r, 0], white[r, 1], white[r, 2], cols[3], cols[4], cols[5])
-    for s in range(columns):
-        out[r, s, 0] = cols[3, s]
-        out[r, s, 1] = cols[4, s]
-        out[r, s, 2] = cols[5, s]
+    for s in range(m):
+        cols[0, s] = xyz[start + s, 0]
+        cols[1, s] = xyz[start + s, 1]
+        cols[2, s] = xyz[start + s, 2]
+    _lab_row(cols[0], cols[1], cols[2], wx, wy, wz, cols[3], cols[4], cols[5])
+    for s in range(m):
+        out[start + s, 0] = cols[3, s]
+        out[start + s, 1] = cols[4, s]
+        out[start + s, 2] = cols[5, s]
+
+
+@numba.njit(cache=True, inline="always", error_model="numpy")
+def _lab_of_row(xyz, white, out, r):
+    _lab_span(xyz[r], 0, xyz.shape[1], white[r, 0], white[r, 1], white[r, 2], out[r])
+
+
+_CHUNK = 1024
+
+
+@numba.njit(cache=True, parallel=True, error_model="numpy")
+def _lab_chunks(flat, out):
+    """CIELAB of ratios flat (n, 3) (white 1, 1, 1) in chunks of _CHUNK rows, chunks in parallel."""
+    n = flat.shape[0]
+    for c in numba.prange((n + _CHUNK - 1) // _CHUNK):
+        _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _lab_chunks_serial(flat, out):
+    n = flat.shape[0]
+    for c in range((n + _CHUNK - 1) // _CHUNK):
+        _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
 
 
 @numba.njit(cache=True, parallel=True, error_model="numpy")
@@ -182,14 +206,11 @@ def lab_of_ratio(ratio: np.ndarray) -> np.ndarray:
     One code path for every size, so a colour's CIELAB does not depend on the array it came in.
     """
     ratio = np.asarray(ratio, dtype=float)
-    flat = ratio.reshape(-1, 3)
-    columns = min(1024, max(flat.shape[0], 1))
-    rows = -(-flat.shape[0] // columns)
-    padded = np.ones((rows * columns, 3))
-    padded[: flat.shape[0]] = flat
-    out = np.empty_like(padded)
-    _run_lab_rows(padded.reshape(rows, columns, 3), np.ones((rows, 3)), out.reshape(rows, columns, 3))
-    return out[: flat.shape[0]].reshape(ratio.shape)
+    flat = np.ascontiguousarray(ratio.reshape(-1, 3))
+    out = np.empty_like(flat)
+    if flat.shape[0]:
+        (_lab_chunks if flat.shape[0] >= 4096 else _lab_chunks_serial)(flat, out)
+    return out.reshape(ratio.shape)
 
 
 def xyz_to_lab_array(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:

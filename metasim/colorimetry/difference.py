@@ -15,6 +15,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.colorimetry._simd import wide_vectors as _wide_vectors
+from metasim.colorimetry.tristimulus import labelled
 from metasim.errors import MetasimError
 
 _25_POW_7 = 25.0**7
@@ -341,6 +342,17 @@ def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:
     return out.reshape(shape)
 
 
+def _coordinates_agree(a: xr.DataArray, b: xr.DataArray) -> bool:
+    """True when broadcasting ``a`` against ``b`` needs no alignment: three CIELAB components each,
+    shared dims of one size, shared coordinates identical."""
+    if a.sizes["lab"] != 3 or b.sizes["lab"] != 3:
+        return False
+    if any(a.sizes[d] != b.sizes[d] for d in set(a.dims) & set(b.dims)):
+        return False
+    a_coords, b_coords = a.coords.variables, b.coords.variables
+    return all(a_coords[name].identical(b_coords[name]) for name in set(a_coords) & set(b_coords))
+
+
 def delta_e_2000(lab_1, lab_2, *, k_L: float = 1.0):
     """CIE 2000 colour difference ΔE00, vectorised over any leading dims.
 
@@ -367,14 +379,21 @@ def delta_e_2000(lab_1, lab_2, *, k_L: float = 1.0):
         for name, value in (("lab_1", lab_1), ("lab_2", lab_2)):
             if "lab" not in value.dims:
                 raise MetasimError(f"{name} has no 'lab' dim (dims {tuple(value.dims)})")
+        attrs = {"units": "1", "long_name": "CIE 2000 colour difference", "k_L": float(k_L)}
+        if _coordinates_agree(lab_1, lab_2):
+            # no alignment needed: broadcast the bare variables by dim name (dims in order of
+            # appearance, as xarray.broadcast orders them)
+            sizes = {**dict(zip(lab_1.dims, lab_1.shape)), **dict(zip(lab_2.dims, lab_2.shape))}
+            dims = [d for d in sizes if d != "lab"]
+            full = {d: sizes[d] for d in (*dims, "lab")}
+            values = delta_e_2000_array(lab_1.variable.set_dims(full).values, lab_2.variable.set_dims(full).values,
+                                        k_L=k_L)
+            return labelled(values, dims, (lab_1, lab_2), name="delta_e_2000", attrs=attrs)
         x, y = xr.broadcast(lab_1, lab_2)
         dims = [d for d in x.dims if d != "lab"]
         values = delta_e_2000_array(x.transpose(*dims, "lab").values, y.transpose(*dims, "lab").values, k_L=k_L)
         coords = {k: v for k, v in x.coords.items() if "lab" not in v.dims}
-        return xr.DataArray(
-            values, dims=dims, coords=coords, name="delta_e_2000",
-            attrs={"units": "1", "long_name": "CIE 2000 colour difference", "k_L": float(k_L)},
-        )
+        return xr.DataArray(values, dims=dims, coords=coords, name="delta_e_2000", attrs=attrs)
     return delta_e_2000_array(lab_1, lab_2, k_L=k_L)
 
 

@@ -38,7 +38,7 @@ from metasim.errors import DisplayError, MetasimError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
 from metasim.colorimetry import tristimulus
-from metasim.colorimetry.integration import spectral_products
+from metasim.colorimetry.integration import apply_matrices, spectral_products
 from metasim.colorimetry.tristimulus import K_M, grid_of, labelled, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
@@ -197,6 +197,52 @@ class Display:
         out.name = "radiance"
         return out
 
+    def observed_xyz(self, drive: xr.DataArray, observers) -> xr.DataArray:
+        """XYZ (cd/m²) every observer sees for linear drive values: black + Σ_p d_p · XYZ(primary p).
+
+        Parameters
+        ----------
+        drive : DataArray
+            Linear drive values (dim ``primary``, each in 0..1); its other dims are stimulus dims
+            and may include the display's ``design`` dim.
+        observers : Dataset or DataArray or str
+            Observer functions (``cmf`` with or without an ``observer`` dim) on the display's grid,
+            or a standard observer name.
+
+        Returns
+        -------
+        DataArray
+            Dims (*display batch dims, *observer dims, *stimulus dims, ``xyz``). Each observer's
+            primary and black XYZ are integrated once (rectangle rule, K_m = 683 lm/W, as
+            :func:`metasim.tristimulus`) and applied to every drive, primaries summed in order.
+        """
+        drive = check_drive(drive, self.primaries)
+        responses = observer_responses(resolve_observer(observers, self), "xyz")
+        step = grid_of(self.spectra, responses)
+        batch = self.batch_dims
+        observer_dims = [d for d in responses.dims if d not in ("xyz", "wavelength")]
+        shared = set(observer_dims) & (set(batch) | set(drive.dims))
+        if shared:
+            raise MetasimError(f"observer functions share dims {sorted(shared)} with the display or the drives; "
+                               "rename one")
+        spectra = self.spectra
+        for d in set(batch) & set(drive.dims):
+            if drive.sizes[d] != spectra.sizes[d] or (
+                    d in drive.xindexes and d in spectra.xindexes and not drive.xindexes[d].equals(spectra.xindexes[d])):
+                raise DisplayError(f"drive dim {d!r} does not match the display's {d!r} (sizes or labels differ)")
+        cmf_var = responses.variable.transpose(*observer_dims, "xyz", "wavelength")
+        cmf = np.ascontiguousarray(cmf_var.values, dtype=float).reshape(-1, 3, cmf_var.shape[-1])
+        (matrices, black), = display_matrices([self], cmf, step)
+        stim = [d for d in drive.dims if d != "primary" and d not in batch]
+        sizes = {**{d: spectra.sizes[d] for d in batch}, **{d: drive.sizes[d] for d in stim}}
+        values = drive.variable.set_dims({**sizes, "primary": self.n_primaries}).values
+        xyz = apply_matrices(values.reshape(matrices.shape[0], -1, self.n_primaries), matrices, black)
+        shape = [spectra.sizes[d] for d in batch] + [responses.sizes[d] for d in observer_dims] + \
+            [drive.sizes[d] for d in stim] + [3]
+        return labelled(xyz.reshape(shape), (*batch, *observer_dims, *stim, "xyz"), (spectra, responses, drive),
+                        labels={"xyz": ("X", "Y", "Z")}, name="xyz",
+                        attrs={"units": "cd m-2", "long_name": "tristimulus values seen by each observer"})
+
     def white_spectrum(self) -> xr.DataArray:
         """Spectral radiance with every drive at 1 (black included)."""
         black, spectra = self._ds["black"], self._ds["spectra"]
@@ -274,6 +320,37 @@ class Display:
         out = Display.__new__(Display)
         out._ds = ds
         return out
+
+
+def display_rows(display: Display) -> np.ndarray:
+    """A display's primaries and black as rows to integrate: (batch, N + 1, wavelength)."""
+    batch = display.batch_dims
+    variable = display.spectra.variable
+    spectra = variable.transpose(*batch, "primary", "wavelength").values
+    sizes = {**{d: variable.sizes[d] for d in batch}, "wavelength": variable.sizes["wavelength"]}
+    black = np.asarray(display.black.variable.set_dims(sizes).values)
+    n_w = spectra.shape[-1]
+    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
+
+
+def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
+    """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
+
+    All displays are integrated in one :func:`~metasim.colorimetry.integration.spectral_products`
+    call (one pass over the observer functions).
+    """
+    stacks = [display_rows(display) for display in displays]
+    n_w = cmf.shape[-1]
+    o = cmf.shape[0]
+    rows = np.concatenate([stack.reshape(-1, n_w) for stack in stacks])
+    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), rows)  # (O*3, rows)
+    out, start = [], 0
+    for stack in stacks:
+        count = stack.shape[0] * stack.shape[1]
+        part = values[:, start:start + count].reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)
+        out.append((part[..., :-1], part[..., -1]))  # (B, O, 3, N+1) split into primaries and black
+        start += count
+    return out
 
 
 def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:

@@ -37,9 +37,10 @@ from metasim.colorimetry import tristimulus, xyz_to_xy
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
-from metasim.colorimetry.integration import apply_matrices, spectral_products
+from metasim.colorimetry.integration import apply_matrices
 from metasim.colorimetry.tristimulus import K_M, coordinates
 from metasim.display import Display, calibrate_white, solve_drive
+from metasim.display.model import display_matrices
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
 from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
@@ -326,37 +327,6 @@ def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
     return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
 
 
-def _display_rows(display: Display) -> np.ndarray:
-    """A display's primaries and black as rows to integrate: (batch, N + 1, wavelength)."""
-    batch = display.batch_dims
-    variable = display.spectra.variable
-    spectra = variable.transpose(*batch, "primary", "wavelength").values
-    sizes = {**{d: variable.sizes[d] for d in batch}, "wavelength": variable.sizes["wavelength"]}
-    black = np.asarray(display.black.variable.set_dims(sizes).values)
-    n_w = spectra.shape[-1]
-    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
-
-
-def _display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
-
-    All displays are integrated in one :func:`~metasim.colorimetry.integration.spectral_products`
-    call (one pass over the observer functions).
-    """
-    stacks = [_display_rows(display) for display in displays]
-    n_w = cmf.shape[-1]
-    o = cmf.shape[0]
-    rows = np.concatenate([stack.reshape(-1, n_w) for stack in stacks])
-    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), rows)  # (O*3, rows)
-    out, start = [], 0
-    for stack in stacks:
-        count = stack.shape[0] * stack.shape[1]
-        part = values[:, start:start + count].reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)
-        out.append((part[..., :-1], part[..., -1]))  # (B, O, 3, N+1) split into primaries and black
-        start += count
-    return out
-
-
 def _labels(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
     return xyz_to_lab_array(xyz, white)
 
@@ -371,7 +341,7 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     cmf, step = _flat_observers(obs)
     batch = test.batch_dims
     batch_shape = [test.spectra.sizes[d] for d in batch]
-    matrices = _display_matrices([test] if reference is None else [test, reference], cmf, step)
+    matrices = display_matrices([test] if reference is None else [test, reference], cmf, step)
     m_test, b_test = matrices[0]  # (B, O, 3, N), (B, O, 3)
     drive_test = test_solution["drive"]
     stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
