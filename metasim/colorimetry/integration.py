@@ -72,19 +72,35 @@ def spectral_products(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 
+_PAD = 16  # vector loops run on whole multiples of this many stimuli (no scalar remainder)
+
+
 @numba.njit(cache=True, parallel=True, error_model="numpy", fastmath=_FAST)
-def _apply(drive, matrices, offset, out):
+def _apply(drive_t, matrices, offset, out):
+    """out[g, o, s, k] = offset[g, o, k] + Σ_p drive_t[g, p, s]·matrices[g, o, k, p], p in order.
+
+    Vectorised along the stimuli (drive_t is (G, N, S_padded)); every value is summed in the same
+    order whatever the call holds.
+    """
+    wide_vectors()
     groups, observers = matrices.shape[0], matrices.shape[1]
-    stimuli, n = drive.shape[1], drive.shape[2]
+    n, width = drive_t.shape[1], drive_t.shape[2]
+    stimuli = out.shape[2]
     for task in numba.prange(groups * observers):
         g = task // observers
         o = task % observers
+        acc = np.empty((3, width))
+        for k in range(3):
+            base = offset[g, o, k]
+            for s in range(width):
+                acc[k, s] = base
+            for p in range(n):
+                weight = matrices[g, o, k, p]
+                for s in range(width):
+                    acc[k, s] += drive_t[g, p, s] * weight
         for s in range(stimuli):
             for k in range(3):
-                total = offset[g, o, k]
-                for p in range(n):
-                    total += drive[g, s, p] * matrices[g, o, k, p]
-                out[g, o, s, k] = total
+                out[g, o, s, k] = acc[k, s]
 
 
 def apply_matrices(drive: np.ndarray, matrices: np.ndarray, offset: np.ndarray) -> np.ndarray:
@@ -94,12 +110,15 @@ def apply_matrices(drive: np.ndarray, matrices: np.ndarray, offset: np.ndarray) 
     over the N primaries in order, starting from the offset (the display black), so it does not
     depend on how many groups, observers or stimuli are in the call.
     """
-    drive = np.ascontiguousarray(drive, dtype=float)
+    drive = np.asarray(drive, dtype=float)
     matrices = np.ascontiguousarray(matrices, dtype=float)
     offset = np.ascontiguousarray(offset, dtype=float)
-    out = np.empty((matrices.shape[0], matrices.shape[1], drive.shape[1], 3))
+    groups, stimuli, n = drive.shape
+    drive_t = np.zeros((groups, n, (stimuli + _PAD - 1) // _PAD * _PAD))
+    drive_t[:, :, :stimuli] = np.swapaxes(drive, 1, 2)
+    out = np.empty((matrices.shape[0], matrices.shape[1], stimuli, 3))
     if out.size:
-        _apply(drive, matrices, offset, out)
+        _apply(drive_t, matrices, offset, out)
     return out
 
 

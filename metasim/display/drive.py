@@ -232,6 +232,27 @@ def solve_drive(
     ----------
     See the module docstring.
     """
+    return drive_solution(display, target, rgb=rgb, source=source, encoding=encoding, observer=observer,
+                          strategy=strategy, population=population, reference=reference,
+                          reference_white=reference_white, primary_power=primary_power).dataset()
+
+
+def drive_solution(
+    display: Display,
+    target: xr.DataArray | None = None,
+    *,
+    rgb: xr.DataArray | None = None,
+    source: str = "bt709",
+    encoding: str | None = None,
+    observer=None,
+    strategy: str = "min_norm",
+    population=None,
+    reference=None,
+    reference_white: xr.DataArray | None = None,
+    primary_power: xr.DataArray | None = None,
+) -> "DriveSolution":
+    """The work of :func:`solve_drive`, kept as numpy values (:class:`DriveSolution`); the Dataset
+    is built only when asked for."""
     if not isinstance(display, Display):
         raise DisplayError(f"solve_drive needs a Display, got {type(display).__name__}")
     if strategy not in STRATEGIES:
@@ -337,8 +358,8 @@ def solve_drive(
         drive[p_idx, s_idx] = np.where(ok[p_idx, position, None], again[p_idx, position], clipped)
 
     achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
-    return _result(display, spectra, drive, achieved, t_abs, outside, white, batch, dims,
-                   [*batch_sizes.values(), *stim_shape], base, strategy=strategy, observer=obs_name)
+    return DriveSolution(display, drive, achieved, t_abs, outside, white, batch, dims,
+                         [*batch_sizes.values(), *stim_shape], base, strategy, obs_name)
 
 
 def _prefer(coords: xr.Coordinates, spectra: xr.DataArray, batch) -> xr.Coordinates:
@@ -402,42 +423,78 @@ def _signal_values(display: Display, drive: np.ndarray, batch, P: int) -> np.nda
     return eotf_inverse_values(light, transfer, peak_max, black, gamma, weights)
 
 
-def _result(display, spectra, drive, achieved, t_abs, outside, white, batch, dims, sizes, base, **attrs):
-    """The solution Dataset, built once from numpy values and the stimuli's coordinates ``base``."""
-    N = drive.shape[-1]
-    if (white <= 0).any():
-        raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
-    de = delta_e_2000_array(_lab(achieved, white[:, None]), _lab(t_abs, white[:, None]))
-    primary = xr.Coordinates({"primary": spectra.coords.variables["primary"]},
-                             indexes={"primary": spectra.xindexes["primary"]})
-    coords = coordinates((*dims, "primary", "xyz"), (base, primary), labels={"xyz": XYZ})
-    signal = _signal_values(display, drive, batch, drive.shape[0])
-    if signal is None:
-        drive_da = xr.DataArray(drive.reshape(sizes + [N]), dims=(*dims, "primary"), coords=coords)
-        signal = display.encode(drive_da).transpose(*dims, "primary").values
-    xyz_attrs = {"units": "cd m-2"}
-    ds = xr.Dataset(
-        {
-            "drive": ((*dims, "primary"), drive.reshape(sizes + [N]),
-                      {"units": "1", "long_name": "linear drive value"}),
-            "signal": ((*dims, "primary"), np.reshape(signal, sizes + [N]),
-                       {"units": "1", "long_name": f"encoded drive signal ({display.transfer})"}),
-            "reproduced": ((*dims, "xyz"), achieved.reshape(sizes + [3]),
-                           {**xyz_attrs, "long_name": "reproduced tristimulus values"}),
-            "target": ((*dims, "xyz"), t_abs.reshape(sizes + [3]),
-                       {**xyz_attrs, "long_name": "target tristimulus values"}),
-            "residual_xyz": ((*dims, "xyz"), (achieved - t_abs).reshape(sizes + [3]),
-                             {**xyz_attrs, "long_name": "reproduced minus target tristimulus values"}),
-            "residual_delta_e": (dims, de.reshape(sizes), {
-                "units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}),
-            "out_of_gamut": (dims, outside.reshape(sizes),
-                             {"long_name": "target outside the display gamut (clipped)", "units": "1"}),
-        },
-        coords=coords,
-        attrs={"model": "drive decomposition", "strategy": attrs["strategy"], "observer": attrs["observer"],
-               "display": display.name, "metasim_version": __version__},
-    )
-    return ds
+class DriveSolution:
+    """A drive solution as numpy values over (P, S): P the display's designs, S the stimuli.
+
+    ``drive`` (P, S, N), ``reproduced`` and ``target`` (P, S, 3) in cd/m², ``out_of_gamut`` (P, S),
+    ``white`` (P, 3); :meth:`variable` gives one of them with its dims, :meth:`dataset` the
+    labelled result of :func:`solve_drive`.
+    """
+
+    def __init__(self, display, drive, achieved, t_abs, outside, white, batch, dims, sizes, base, strategy, observer):
+        if (white <= 0).any():
+            raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+        self.display, self.drive, self.reproduced, self.target = display, drive, achieved, t_abs
+        self.out_of_gamut, self.white, self.batch, self.dims = outside, white, list(batch), tuple(dims)
+        self.sizes, self.base, self.strategy, self.observer = list(sizes), base, strategy, observer
+        self._residual = None
+
+    @property
+    def residual_delta_e(self) -> np.ndarray:
+        """ΔE00 of reproduced vs target (display white as reference white), (P, S)."""
+        if self._residual is None:
+            self._residual = delta_e_2000_array(_lab(self.reproduced, self.white[:, None]),
+                                                _lab(self.target, self.white[:, None]))
+        return self._residual
+
+    def variable(self, name: str) -> xr.Variable:
+        """``drive``, ``reproduced``, ``target``, ``out_of_gamut`` or ``residual_delta_e`` with its dims."""
+        values = {"drive": (self.drive, "primary"), "reproduced": (self.reproduced, "xyz"),
+                  "target": (self.target, "xyz"), "out_of_gamut": (self.out_of_gamut, None),
+                  "residual_delta_e": (self.residual_delta_e, None)}[name]
+        array, last = values
+        if last is None:
+            return xr.Variable(self.dims, array.reshape(self.sizes))
+        return xr.Variable((*self.dims, last), array.reshape(self.sizes + [array.shape[-1]]))
+
+    def coords(self) -> xr.Coordinates:
+        spectra = self.display.spectra
+        primary = xr.Coordinates({"primary": spectra.coords.variables["primary"]},
+                                 indexes={"primary": spectra.xindexes["primary"]})
+        return coordinates((*self.dims, "primary", "xyz"), (self.base, primary), labels={"xyz": XYZ})
+
+    def dataset(self) -> xr.Dataset:
+        """The labelled solution (see :func:`solve_drive`)."""
+        display, dims, sizes, drive = self.display, self.dims, self.sizes, self.drive
+        N = drive.shape[-1]
+        coords = self.coords()
+        signal = _signal_values(display, drive, self.batch, drive.shape[0])
+        if signal is None:
+            drive_da = xr.DataArray(drive.reshape(sizes + [N]), dims=(*dims, "primary"), coords=coords)
+            signal = display.encode(drive_da).transpose(*dims, "primary").values
+        xyz_attrs = {"units": "cd m-2"}
+        achieved, t_abs = self.reproduced, self.target
+        return xr.Dataset(
+            {
+                "drive": ((*dims, "primary"), drive.reshape(sizes + [N]),
+                          {"units": "1", "long_name": "linear drive value"}),
+                "signal": ((*dims, "primary"), np.reshape(signal, sizes + [N]),
+                           {"units": "1", "long_name": f"encoded drive signal ({display.transfer})"}),
+                "reproduced": ((*dims, "xyz"), achieved.reshape(sizes + [3]),
+                               {**xyz_attrs, "long_name": "reproduced tristimulus values"}),
+                "target": ((*dims, "xyz"), t_abs.reshape(sizes + [3]),
+                           {**xyz_attrs, "long_name": "target tristimulus values"}),
+                "residual_xyz": ((*dims, "xyz"), (achieved - t_abs).reshape(sizes + [3]),
+                                 {**xyz_attrs, "long_name": "reproduced minus target tristimulus values"}),
+                "residual_delta_e": (dims, self.residual_delta_e.reshape(sizes), {
+                    "units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}),
+                "out_of_gamut": (dims, self.out_of_gamut.reshape(sizes),
+                                 {"long_name": "target outside the display gamut (clipped)", "units": "1"}),
+            },
+            coords=coords,
+            attrs={"model": "drive decomposition", "strategy": self.strategy, "observer": self.observer,
+                   "display": display.name, "metasim_version": __version__},
+        )
 
 
-__all__ = ["STRATEGIES", "lab_jacobian", "solve_drive"]
+__all__ = ["STRATEGIES", "DriveSolution", "drive_solution", "lab_jacobian", "solve_drive"]

@@ -24,6 +24,7 @@ QP via the KKT system; active-set methods for convex QP).
 
 from __future__ import annotations
 
+import functools
 import itertools
 
 import numpy as np
@@ -34,7 +35,14 @@ _CHUNK_ROWS = 2048
 
 
 def _candidates(n: int, k: int, lo: np.ndarray, hi: np.ndarray):
-    """Active sets of ≤ k bounds (index, value) with distinct indices; finite bounds only."""
+    """Active sets of ≤ k bounds (index, value) with distinct indices; finite bounds only.
+
+    The same bounds give the same (read-only) arrays: they are built once and kept."""
+    return _candidate_arrays(n, k, tuple(float(v) for v in lo), tuple(float(v) for v in hi))
+
+
+@functools.lru_cache(maxsize=64)
+def _candidate_arrays(n: int, k: int, lo: tuple, hi: tuple):
     sets = [()]
     for size in range(1, k + 1):
         for idx in itertools.combinations(range(n), size):
@@ -53,6 +61,8 @@ def _candidates(n: int, k: int, lo: np.ndarray, hi: np.ndarray):
             used[ci, slot] = True
             values[ci, slot] = bound
             upper[ci, slot] = side == 1
+    for array in (rows, used, values, upper):
+        array.flags.writeable = False
     return rows, used, values, upper
 
 

@@ -37,9 +37,10 @@ from metasim.colorimetry import tristimulus, xyz_to_xy
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
-from metasim.colorimetry.integration import apply_matrices
-from metasim.colorimetry.tristimulus import K_M, coordinates
-from metasim.display import Display, calibrate_white, solve_drive
+from metasim.colorimetry.integration import apply_matrices, spectral_products
+from metasim.colorimetry.tristimulus import K_M, coordinates, labelled
+from metasim.display import Display, calibrate_white
+from metasim.display.drive import drive_solution
 from metasim.display.model import display_matrices
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
@@ -138,8 +139,8 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
         spectra.attrs = {"units": RADIANCE_UNITS, "long_name": "reflected spectral radiance"}
         return tristimulus(spectra, calibration), spectra
     if kind == "rgb":
-        solution = solve_drive(reference, rgb=stimuli["signal"], source=stimuli.attrs.get("source", "bt709"),
-                               encoding=stimuli.attrs.get("encoding") or None, observer=calibration)
+        solution = drive_solution(reference, rgb=stimuli["signal"], source=stimuli.attrs.get("source", "bt709"),
+                                  encoding=stimuli.attrs.get("encoding") or None, observer=calibration)
     else:
         white_y = tristimulus(white_spectrum, calibration).sel(xyz="Y", drop=True)
         if kind == "xyz":
@@ -148,11 +149,11 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
             illuminant = illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), white_spectrum.wavelength.values)
             scale = white_y / tristimulus(illuminant, calibration).sel(xyz="Y", drop=True)
             target = tristimulus(stimuli["reflectance"] * illuminant * scale, calibration)
-        solution = solve_drive(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
+        solution = drive_solution(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
     # the test display aims at the source colour, or at what the reference shows where it had to clip
-    target = solution["target"]  # dims (..., xyz), out_of_gamut the same dims without xyz
-    targets = target.copy(data=np.where(solution["out_of_gamut"].values[..., None], solution["reproduced"].values,
-                                        target.values))
+    values = np.where(solution.out_of_gamut[..., None], solution.reproduced, solution.target)
+    targets = labelled(values.reshape(solution.sizes + [3]), (*solution.dims, "xyz"), [solution.coords()],
+                       attrs={"units": "cd m-2", "long_name": "target tristimulus values"})
     return targets.transpose("stimulus", "xyz"), solution
 
 
@@ -237,24 +238,24 @@ def mismatch(
 
     targets, ref_rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
     # what the reference shows to the calibration observer (the standard under the reference condition)
-    reference_cal = ref_rendering["reproduced"] if ref_kind == "display" else targets
+    reference_cal = ref_rendering.variable("reproduced") if ref_kind == "display" else targets.variable
     population = obs if strategy_population is None else strategy_population
     strategy_args = {}
     if strategy == "population":
         strategy_args = {"population": population,
                          "reference": reference if ref_kind == "display" else ref_rendering,
                          "reference_white": None if ref_kind == "display" else white_spectrum}
-    test_solution = solve_drive(test, target=targets, observer=calibration, strategy=strategy, **strategy_args)
+    test_solution = drive_solution(test, target=targets, observer=calibration, strategy=strategy, **strategy_args)
 
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
     core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
                           white_spectrum, obs, adapted_white, reference_cal, include_itp)
     cal_white = ref_white_cal if adapted_white == "reference" else test.white_tristimulus(calibration)
-    de_cal = _delta_e_variable(_lab_variable(reference_cal.variable, cal_white.variable),
-                               _lab_variable(test_solution["reproduced"].variable, cal_white.variable))
+    de_cal = _delta_e_variable(_lab_variable(reference_cal, cal_white.variable),
+                               _lab_variable(test_solution.variable("reproduced"), cal_white.variable))
 
-    test_flag = test_solution["out_of_gamut"].variable.astype(bool)
-    ref_flag = (ref_rendering["out_of_gamut"].variable.astype(bool) if ref_kind == "display"
+    test_flag = test_solution.variable("out_of_gamut").astype(bool)
+    ref_flag = (ref_rendering.variable("out_of_gamut").astype(bool) if ref_kind == "display"
                 else xr.zeros_like(test_flag))
     described = [
         ("xyz_reference", "tristimulus values of the reference rendering, per observer", "cd m-2"),
@@ -271,22 +272,23 @@ def mismatch(
             for name, long_name, units in described if name in core}
     given = [
         ("delta_e_2000_calibration", de_cal, "CIE 2000 difference for the calibration observer", "1"),
-        ("drive_test", test_solution["drive"].variable, "linear drive values of the test display", "1"),
+        ("drive_test", test_solution.variable("drive"), "linear drive values of the test display", "1"),
         ("target_xyz", targets.variable, "reference XYZ for the calibration observer (targets of the test display)",
          "cd m-2"),
         ("out_of_gamut_test", test_flag, "stimulus outside the test gamut (clipped)", "1"),
         ("out_of_gamut_reference", ref_flag, "stimulus outside the reference gamut (clipped)", "1"),
         ("out_of_gamut_both", test_flag & ref_flag, "stimulus outside both gamuts", "1"),
-        ("residual_delta_e_test", test_solution["residual_delta_e"].variable,
+        ("residual_delta_e_test", test_solution.variable("residual_delta_e"),
          "CIE 2000 residual of the test display vs its target", "1"),
     ]
-    sources = [test.spectra, obs, test_solution]
+    sources = [test.spectra, obs, test_solution.coords()]
     if ref_kind == "display":
-        ref_drive = ref_rendering["drive"].rename(primary="reference_primary")
-        given.append(("residual_delta_e_reference", ref_rendering["residual_delta_e"].variable,
+        ref_drive = ref_rendering.variable("drive")
+        given.append(("residual_delta_e_reference", ref_rendering.variable("residual_delta_e"),
                       "CIE 2000 residual of the reference display vs the source colour", "1"))
-        given.append(("drive_reference", ref_drive.variable, "linear drive values of the reference display", "1"))
-        sources.append(ref_drive)
+        given.append(("drive_reference", xr.Variable((*ref_drive.dims[:-1], "reference_primary"), ref_drive.data),
+                      "linear drive values of the reference display", "1"))
+        sources.append(_renamed_primaries(reference))
     else:
         sources.append(targets)
     for name, variable, long_name, units in given:
@@ -343,26 +345,26 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     batch_shape = [test.spectra.sizes[d] for d in batch]
     matrices = display_matrices([test] if reference is None else [test, reference], cmf, step)
     m_test, b_test = matrices[0]  # (B, O, 3, N), (B, O, 3)
-    drive_test = test_solution["drive"]
-    stim = [d for d in drive_test.dims if d not in batch and d != "primary"]
-    drive_t = drive_test.transpose(*batch, *stim, "primary").values.reshape(m_test.shape[0], -1, test.n_primaries)
-    xyz_t = apply_matrices(drive_t, m_test, b_test)  # (B, O, S, 3)
+    stim = list(test_solution.dims[len(batch):])
+    xyz_t = apply_matrices(test_solution.drive, m_test, b_test)  # (B, O, S, 3)
     if reference is not None:
         m_ref, b_ref = matrices[1]
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
-        drive_r = ref_rendering["drive"].transpose(*stim, "primary").values.reshape(1, -1, reference.n_primaries)
-        xyz_r = apply_matrices(drive_r, m_ref[:1], b_ref[:1])[0]  # (O, S, 3), summed like the test side
+        xyz_r = apply_matrices(ref_rendering.drive, m_ref[:1], b_ref[:1])[0]  # (O, S, 3), summed like the test side
     else:
-        white_ref = K_M * step * (cmf @ white_spectrum.transpose("wavelength").values)  # (O, 3)
-        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, cmf.shape[-1])
-        xyz_r = K_M * step * np.swapaxes(cmf @ spectra.T, -1, -2)
+        n_w = cmf.shape[-1]
+        white_ref = K_M * step * spectral_products(cmf.reshape(-1, n_w), white_spectrum.values.reshape(1, n_w))
+        white_ref = white_ref.reshape(-1, 3)  # (O, 3)
+        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)
+        xyz_r = K_M * step * np.swapaxes(spectral_products(cmf.reshape(-1, n_w), spectra).reshape(cmf.shape[0], 3, -1),
+                                         -1, -2)
     white_test = m_test.sum(-1) + b_test  # (B, O, 3)
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
     xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
     # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
     # observer): the test side minus (test − reference as the calibration observer sees them)
     tgt = targets.transpose(*[d for d in batch if d in targets.dims], *stim, "xyz").values
-    rep = test_solution["reproduced"].transpose(*batch, *stim, "xyz").values.reshape(m_test.shape[0], -1, 3)
+    rep = test_solution.reproduced
     tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
     rows = m_test.shape[0] * cmf.shape[0]
     n_stim = xyz_t.shape[2]
@@ -373,7 +375,8 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     if include_itp:
         itp = _itp(xyz_r_b, xyz_t)
 
-    sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0], **{d: drive_test.sizes[d] for d in stim}}
+    sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0],
+             **dict(zip(test_solution.dims, test_solution.sizes))}
     pair_dims = (*batch, "observer", *stim)
     observer_dims = (*batch, "observer")
 
@@ -393,6 +396,14 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     if itp is not None:
         out["delta_e_itp"] = shaped(itp, pair_dims)
     return out
+
+
+def _renamed_primaries(display: Display) -> xr.Coordinates:
+    """The display's coordinates along ``primary``, on a ``reference_primary`` dim (as DataArray.rename)."""
+    coords = display.spectra.coords
+    variables = {("reference_primary" if name == "primary" else name): xr.Variable(("reference_primary",), v.values, v.attrs)
+                 for name, v in coords.variables.items() if v.dims == ("primary",)}
+    return xr.Coordinates(variables)
 
 
 def _lab_variable(xyz: xr.Variable, white: xr.Variable) -> xr.Variable:
