@@ -65,3 +65,21 @@ def test_single_threaded_blas_restores_the_count_and_nests():
             assert all(c == 1 for c in counts())
         assert all(c == 1 for c in counts())
     assert counts() == before
+
+
+@pytest.mark.parametrize("n", [3, 4, 5, 6])
+def test_compiled_equality_qp_equals_the_batched_numpy_solver(n):
+    from metasim.display.solvers import equality_box_qp
+
+    rng = np.random.default_rng(n)
+    P, S = 2, 300
+    A = rng.uniform(0.05, 1.0, (P, 3, n))
+    b = np.einsum("pmn,psn->psm", A, rng.uniform(-0.2, 1.1, (P, S, n)))  # some targets out of reach
+    f = rng.normal(0, 0.3, (P, S, n))
+    H = np.broadcast_to(np.eye(n) + 0.1, (P, 1, n, n))
+    shared = equality_box_qp(H, f, A, b, np.zeros(n), np.ones(n))  # compiled rows (one H per design)
+    per_row = equality_box_qp(np.ascontiguousarray(np.broadcast_to(H, (P, S, n, n))), f, A, b, np.zeros(n),
+                              np.ones(n))  # numpy path (H per stimulus): the other implementation
+    np.testing.assert_array_equal(shared[1], per_row[1])
+    assert 0 < shared[1].sum() < shared[1].size
+    np.testing.assert_allclose(shared[0], per_row[0], atol=1e-9)

@@ -245,3 +245,90 @@ def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterati
             d[:] = proposal
             cost = new_cost
         out[r] = d
+
+
+@numba.njit(cache=True, parallel=True, error_model="numpy")
+def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, tol, best_d, feasible):
+    """The shared-H case of :func:`metasim.display.solvers.equality_box_qp`, row by row.
+
+    inverse (P, C, N + k, K): the inverted KKT matrix of every candidate (drive and bound-multiplier
+    rows); H (P, N, N); f (P, S, N); A (P, m, N); b (P, S, m); values / used / upper (C, k) of the
+    candidates, grouped by size with group g = candidates starts[g]:starts[g + 1]. The same tests in
+    the same order as the numpy version: a row stops at the first group holding a KKT point; among
+    a group the least objective wins (KKT points first, the first of equals).
+    """
+    P, S, N = f.shape
+    m = A.shape[1]
+    k = values.shape[1]
+    groups = starts.shape[0] - 1
+    for task in numba.prange(P * S):
+        p = task // S
+        s = task % S
+        d = np.empty(N)
+        chosen = np.empty(N)
+        mu = np.empty(max(k, 1))
+        best_obj = np.inf
+        b_scale = 0.0
+        for j in range(m):
+            b_scale = max(b_scale, abs(b[p, s, j]))
+        eq_tol = tol * (1.0 + b_scale)
+        for g in range(groups):
+            pick_value = np.inf
+            pick = -1
+            closed = False
+            for c in range(starts[g], starts[g + 1]):
+                inv = inverse[p, c]
+                for r in range(N + k):
+                    total = 0.0
+                    for q in range(N):
+                        total += inv[r, q] * -f[p, s, q]
+                    for q in range(m):
+                        total += inv[r, N + q] * b[p, s, q]
+                    for q in range(k):
+                        total += inv[r, N + m + q] * values[c, q]
+                    if r < N:
+                        d[r] = total
+                    else:
+                        mu[r - N] = total
+                ok = True
+                for r in range(N):
+                    if not (d[r] >= lo[r] - tol and d[r] <= hi[r] + tol and np.isfinite(d[r])):
+                        ok = False
+                for j in range(m):
+                    colour = 0.0
+                    for q in range(N):
+                        colour += A[p, j, q] * d[q]
+                    if not abs(colour - b[p, s, j]) <= eq_tol:
+                        ok = False
+                objective = np.inf
+                if ok:
+                    objective = 0.0
+                    for r in range(N):
+                        hd = 0.0
+                        for q in range(N):
+                            hd += H[p, r, q] * d[q]
+                        objective += (0.5 * hd + f[p, s, r]) * d[r]
+                    top = 0.0
+                    for q in range(k):
+                        top = max(top, abs(mu[q]))
+                    mu_scale = 1e-7 * (1.0 + top)
+                    optimal = True
+                    for q in range(k):
+                        sign = mu[q] if upper[c, q] else -mu[q]
+                        if used[c, q] and not sign >= -mu_scale:
+                            optimal = False
+                    if optimal:
+                        objective = -np.inf
+                        closed = True
+                if pick < 0 or objective < pick_value:  # np.argmin: the first of equal values
+                    pick_value = objective
+                    pick = c
+                    for r in range(N):
+                        chosen[r] = d[r]
+            if pick >= 0 and pick_value < best_obj:
+                best_obj = pick_value
+                for r in range(N):
+                    best_d[p, s, r] = min(max(chosen[r], lo[r]), hi[r])
+                feasible[p, s] = True
+            if closed:
+                break

@@ -29,7 +29,7 @@ import itertools
 
 import numpy as np
 
-from metasim.display.compiled import box_qp_rows
+from metasim.display.compiled import box_qp_rows, equality_qp_rows
 
 _CHUNK_ROWS = 2048
 
@@ -120,6 +120,12 @@ def equality_box_qp(H, f, A, b, lo, hi, *, tol: float = 1e-9):
     if shared:  # one KKT inverse per design and candidate; stimuli then enter through plain GEMMs
         inverse = _inverse(kkt[:, 0])[..., keep, :]  # (P, C, N + k, K)
     sizes = used.sum(-1)
+    if shared:  # compiled, row by row (candidates come grouped by size, in order)
+        starts = np.searchsorted(sizes, np.arange(k + 2)).astype(np.int64)
+        H_shared = np.ascontiguousarray(H[:, 0])
+        equality_qp_rows(np.ascontiguousarray(inverse), H_shared, np.ascontiguousarray(f), np.ascontiguousarray(A),
+                         np.ascontiguousarray(b), lo, hi, values, used, upper, starts, float(tol), best_d, feasible)
+        return best_d, feasible
     groups = [np.flatnonzero(sizes == j) for j in range(k + 1)]
     for p in range(P):
         for start in range(0, S, _CHUNK_ROWS):
