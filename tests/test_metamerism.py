@@ -157,6 +157,26 @@ def test_every_number_equals_a_per_observer_colour_science_computation(reference
     np.testing.assert_allclose(ours("delta_e_itp")[lms_positive], itp[lms_positive], rtol=1e-6, atol=1e-6)  # ITU-R BT.2124 via colour-science
 
 
+def test_index_of_clipped_stimuli_equals_colour_science(reference, laser):
+    from metasim.metamerism import rgb_set
+
+    observers = metasim.observer_population(3, seed=4, age_years=(30, 70))
+    stimuli = rgb_set([[0.0, 0.9, 0.9], [0.1, 0.9, 0.1], [0.5, 0.5, 0.5]], ["cyan", "green", "grey"], source="bt2020")
+    result = mismatch(laser, reference, observers, stimuli)  # the broadband monitor cannot show BT.2020 cyan
+    clipped = result["out_of_gamut_test"].values
+    assert clipped.any() and not clipped.all()
+    white = metasim.tristimulus(laser.white_spectrum(), metasim.standard_observer("cie1931_2"))
+    matched = calibrate_white(reference, "cie1931_2", white=metasim.xyz_to_xy(white),
+                              luminance=float(white.sel(xyz="Y")))
+    theirs = _colour_science_case(result, laser, matched, observers)
+    index = result["metamerism_index"].transpose("observer", "stimulus").values
+    de = result["delta_e_2000"].transpose("observer", "stimulus").values
+    np.testing.assert_allclose(index, theirs["index"], atol=1e-6)  # colour-science XYZ_to_metamerism_index
+    assert np.all(np.abs(index[:, clipped] - de[:, clipped]) > 1e-3)  # the residual correction is applied
+    # inside the test gamut both sides match for the calibration observer: no correction, index = ΔE00
+    np.testing.assert_array_equal(index[:, ~clipped], de[:, ~clipped])
+
+
 def test_observer_metamerism_index_equals_colour_science(rng):
     spl_t, std_t, spl_r, std_r = (rng.uniform(0.05, 0.9, (50, 3)) for _ in range(4))
     white_xyz = np.array([0.9642, 1.0, 0.8251])

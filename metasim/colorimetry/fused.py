@@ -34,29 +34,51 @@ def _pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_tes
     width = padded(columns)  # full vectors only: results do not depend on the row length
     for r in numba.prange(rows):
         c = correction[r // observers]
-        buf = np.ones((9, width))   # xyz_ref, xyz_test, corrected test XYZ (as columns)
-        lab = np.empty((9, width))  # lab_ref, lab_test, lab of the corrected test
+        buf = np.ones((6, width))   # xyz_ref, xyz_test (as columns)
+        lab = np.empty((6, width))  # lab_ref, lab_test
+        corrected = 0
         for s in range(columns):
             for k in range(3):
                 buf[k, s] = xyz_ref[r, s, k]
                 buf[3 + k, s] = xyz_test[r, s, k]
-                buf[6 + k, s] = max(xyz_test[r, s, k] - c[s, k], 0.0)
+            corrected += (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0)
         wx, wy, wz = white[r, 0], white[r, 1], white[r, 2]
-        for side in range(3):
+        for side in range(2):
             _lab_row(buf[3 * side], buf[3 * side + 1], buf[3 * side + 2], wx, wy, wz,
                      lab[3 * side], lab[3 * side + 1], lab[3 * side + 2])
         special = np.empty(width, dtype=np.bool_)
-        values = np.empty((2, width))
-        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, values[0], special)
-        _mend(lab[0:3], lab[3:6], values[0], special)
-        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[6], lab[7], lab[8], 1.0, values[1], special)
-        _mend(lab[0:3], lab[6:9], values[1], special)
+        values = np.empty(width)
+        _delta_e_2000_vector(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, values, special)
+        _mend(lab[0:3], lab[3:6], values, special)
         for s in range(columns):
-            delta_e[r, s] = values[0, s]
-            index[r, s] = values[1, s]
+            delta_e[r, s] = values[s]
+            index[r, s] = values[s]  # no correction: the index is the difference itself
             for k in range(3):
                 lab_ref[r, s, k] = lab[k, s]
                 lab_test[r, s, k] = lab[3 + k, s]
+        if corrected == 0:
+            continue
+        # the stimuli with a correction, gathered into columns of their own
+        part = padded(corrected)
+        where = np.empty(corrected, dtype=np.int64)
+        cbuf = np.ones((3, part))
+        cref = np.ones((3, part))
+        clab = np.empty((3, part))
+        j = 0
+        for s in range(columns):
+            if (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0):
+                where[j] = s
+                for k in range(3):
+                    cbuf[k, j] = max(xyz_test[r, s, k] - c[s, k], 0.0)
+                    cref[k, j] = lab[k, s]
+                j += 1
+        _lab_row(cbuf[0], cbuf[1], cbuf[2], wx, wy, wz, clab[0], clab[1], clab[2])
+        cspecial = np.empty(part, dtype=np.bool_)
+        cvalues = np.empty(part)
+        _delta_e_2000_vector(cref[0], cref[1], cref[2], clab[0], clab[1], clab[2], 1.0, cvalues, cspecial)
+        _mend(cref, clab, cvalues, cspecial)
+        for j in range(corrected):
+            index[r, where[j]] = cvalues[j]
 
 
 def pair_differences(xyz_ref: np.ndarray, xyz_test: np.ndarray, white: np.ndarray, correction: np.ndarray):
@@ -71,7 +93,8 @@ def pair_differences(xyz_ref: np.ndarray, xyz_test: np.ndarray, white: np.ndarra
     correction : (groups, stimuli, 3)
         XYZ subtracted from the test side before the index difference (sample minus standard under
         the reference condition); row r uses group ``r // (rows / groups)``. Negative corrected XYZ
-        are clipped to 0.
+        are clipped to 0. Where a correction is exactly zero the index is the difference itself
+        (the same computation), and only the corrected stimuli go through CIELAB and CIE 2000 again.
 
     Returns
     -------

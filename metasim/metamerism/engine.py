@@ -17,7 +17,9 @@ Procedure (all observers and stimuli at once; no Python loop over either):
    in one adaptation state, as in side-by-side comparison); ``adapted_white="test"`` uses the test
    display's white instead. CIE 2000 differences per observer × stimulus follow, plus ΔE_ITP
    (ITU-R BT.2124) from the absolute XYZ (all luminances here are absolute, cd/m²) and the
-   observer-change metamerism index (:mod:`metasim.metamerism.index`).
+   observer-change metamerism index (:mod:`metasim.metamerism.index`): the additive correction is
+   the test display's residual for the calibration observer, which is zero for stimuli inside the
+   test gamut (matched by construction), so there the index equals ΔE00.
 5. **Summaries** (:mod:`metasim.metamerism.summary`).
 
 References
@@ -362,14 +364,18 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
     xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
     # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
-    # observer): the test side minus (test − reference as the calibration observer sees them)
+    # observer): the test side minus (test − reference as the calibration observer sees them). A
+    # stimulus inside the test gamut is matched for the calibration observer by construction
+    # (A·d = target); its residual is the solver's rounding (~1e-13 cd/m²), so its correction is
+    # zero and its index is its ΔE00. Clipped stimuli carry their real residual.
     tgt = targets.transpose(*[d for d in batch if d in targets.dims], *stim, "xyz").values
     rep = test_solution.reproduced
     tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
+    correction = np.where(test_solution.out_of_gamut[..., None], rep - tgt, 0.0)
     rows = m_test.shape[0] * cmf.shape[0]
     n_stim = xyz_t.shape[2]
     lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
-                                               adapted.reshape(rows, 3), rep - tgt)
+                                               adapted.reshape(rows, 3), correction)
     de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
     itp = None
     if include_itp:
