@@ -7,7 +7,7 @@ from metasim._threads import _controller, single_threaded_blas
 from metasim.colorimetry.cielab import lab_of_ratio
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.integration import apply_matrices, spectral_products
-from metasim.metamerism._rowstats import row_stats, segment_stats
+from metasim.metamerism._rowstats import observer_stimulus_stats, row_stats
 
 
 def test_spectral_products_equal_numpy_and_do_not_depend_on_shape():
@@ -27,7 +27,7 @@ def test_apply_matrices_equal_numpy():
     np.testing.assert_allclose(apply_matrices(drive, m, black), expected, rtol=1e-14)
 
 
-def test_row_and_segment_stats_equal_numpy():
+def test_row_and_summary_stats_equal_numpy():
     rng = np.random.default_rng(3)
     values = np.round(rng.gamma(2.0, 1.0, (40, 301)), 2)  # with ties
     stats, shares = row_stats(values, (1.0, 2.0))
@@ -38,11 +38,17 @@ def test_row_and_segment_stats_equal_numpy():
     by_column, column_shares = row_stats(values.T, (1.0, 2.0), axis=0)  # the same rows, stored as columns
     np.testing.assert_allclose(by_column, expected, rtol=1e-13)
     np.testing.assert_array_equal(column_shares, shares)
-    seg, _ = segment_stats(values.ravel()[:1000], [1, 999])
-    np.testing.assert_allclose(seg[:, 1], [values.ravel()[1:1000].mean(), np.median(values.ravel()[1:1000]),
-                                           np.percentile(values.ravel()[1:1000], 95), values.ravel()[1:1000].max()],
-                               rtol=1e-13)
-    assert seg[1, 0] == values.ravel()[0]
+    segments = [np.array([3]), np.arange(5, 40, 2)]
+    by_stimulus, by_stimulus_shares, by_observer, by_segment = observer_stimulus_stats(values.T, (1.0, 2.0), segments)
+    np.testing.assert_allclose(by_stimulus, expected, rtol=1e-13)  # values.T: observers 301, stimuli 40
+    np.testing.assert_array_equal(by_stimulus_shares, shares)
+    np.testing.assert_allclose(by_observer, np.stack([values.mean(0), np.median(values, 0),
+                                                      np.percentile(values, 95, axis=0), values.max(0)]), rtol=1e-13)
+    pairs = values.T[segments[1]].ravel()
+    np.testing.assert_allclose(by_segment[:, 1], [pairs.mean(), np.median(pairs), np.percentile(pairs, 95),
+                                                  pairs.max()], rtol=1e-13)
+    np.testing.assert_allclose(by_segment[:, 0], [values.T[3].mean(), np.median(values.T[3]),
+                                                  np.percentile(values.T[3], 95), values.T[3].max()], rtol=1e-13)
 
 
 @pytest.mark.parametrize("n", [1, 7, 17, 2047, 2049])

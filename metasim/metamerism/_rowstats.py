@@ -56,31 +56,9 @@ def _sorted_rows(rows, thresholds, out, shares):
         _summarise_sorted(rows[g], thresholds, out, shares, g)
 
 
-@numba.njit(cache=True, parallel=True)
-def _sorted_segments(flat, starts, stops, thresholds, out, shares):
-    for g in numba.prange(starts.shape[0]):
-        _summarise_sorted(flat[starts[g]:stops[g]], thresholds, out, shares, g)
-
-
-def segment_stats(flat: np.ndarray, lengths, thresholds=()) -> tuple[np.ndarray, np.ndarray]:
-    """Statistics of consecutive segments of ``flat`` with the given (positive) lengths.
-
-    Returns (4, S) mean, median, p95, max and (T, S) shares of values above each threshold.
-    """
-    flat = np.asarray(flat, dtype=float).ravel()
-    lengths = np.asarray(lengths, dtype=np.int64)
-    stops = np.cumsum(lengths)
-    starts = stops - lengths
-    thresholds = np.asarray(thresholds, dtype=float).ravel()
-    out = np.empty((4, lengths.size))
-    shares = np.empty((thresholds.size, lengths.size))
-    if lengths.size:
-        ordered = np.empty(int(stops[-1]))
-        for g, (start, stop) in enumerate(zip(starts, stops)):
-            ordered[start:stop] = np.sort(flat[start:stop])
-            out[0, g] = flat[start:stop].mean()
-        _sorted_segments(ordered, starts, stops, thresholds, out, shares)
-    return out, shares
+@numba.njit(cache=True)
+def _sorted_one(row, thresholds, out, shares, g):
+    _summarise_sorted(row, thresholds, out, shares, g)
 
 
 def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray | tuple[np.ndarray, np.ndarray]:
@@ -98,3 +76,29 @@ def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray |
     _sorted_rows(ordered if axis == 1 else ordered.T, thresholds, out, shares)
     out[0] = rows.mean(axis=axis)
     return (out, shares) if thresholds.size else out
+
+
+
+def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
+    """All the summaries of an (observer, stimulus) array without NaN in one go.
+
+    ``segments``: non-empty arrays of observer indices (the age bands). Each summary is one numpy
+    sort (over observers, over stimuli, of each segment's pairs) and one compiled pass over it.
+    Returns by_stimulus (4, S), shares beyond the thresholds (T, S), by_observer (4, O) and
+    by_segment (4, G) (statistics of all observer × stimulus pairs of each segment).
+    """
+    values = np.ascontiguousarray(values, dtype=float)
+    thresholds = np.asarray(thresholds, dtype=float).ravel()
+    by_stimulus = np.empty((4, values.shape[1]))
+    shares = np.empty((thresholds.size, values.shape[1]))
+    _sorted_rows(np.sort(values, axis=0).T, thresholds, by_stimulus, shares)
+    by_stimulus[0] = values.mean(axis=0)
+    by_observer = np.empty((4, values.shape[0]))
+    _sorted_rows(np.sort(values, axis=1), thresholds[:0], by_observer, np.empty((0, values.shape[0])))
+    by_observer[0] = values.mean(axis=1)
+    by_segment = np.empty((4, len(segments)))
+    for g, members in enumerate(segments):
+        pairs = values[members].ravel()
+        _sorted_one(np.sort(pairs), thresholds[:0], by_segment, np.empty((0, len(segments))), g)
+        by_segment[0, g] = pairs.mean()
+    return by_stimulus, shares, by_observer, by_segment

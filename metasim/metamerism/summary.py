@@ -15,7 +15,7 @@ import xarray as xr
 from metasim._threads import blas_single_threaded
 from metasim.errors import MetasimError
 from metasim.colorimetry.tristimulus import _label_coordinate
-from metasim.metamerism._rowstats import row_stats, segment_stats
+from metasim.metamerism._rowstats import observer_stimulus_stats, row_stats
 
 STATISTICS = ("mean", "median", "p95", "max")
 #: Common-practice thresholds of visibility for CIE 2000 differences (no source): 1 is about one
@@ -117,6 +117,22 @@ def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOL
     return xr.Dataset(out, coords=coords)
 
 
+def _age_bands(ages, age_bands):
+    """Labels, observer counts and membership masks of the age bands [lo, hi) (the last one closed)."""
+    edges = np.asarray(age_bands, dtype=float)
+    if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
+        raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
+    ages = np.asarray(ages, dtype=float)
+    labels, counts, members = [], [], []
+    for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
+        last = i == edges.size - 2
+        inside = (ages >= lo) & ((ages <= hi) if last else (ages < hi))
+        labels.append(_band_label(lo, hi, last))
+        counts.append(int(inside.sum()))
+        members.append(inside)
+    return labels, counts, members
+
+
 def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=AGE_BANDS,
                       thresholds=THRESHOLDS, name: str = "delta_e") -> tuple[dict, xr.Coordinates]:
     """The summaries of :func:`summarise` from numpy values (observer, stimulus, *rest): a dict of
@@ -127,27 +143,22 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     # the common case (equal weights, no NaN, observer × stimulus only) goes through one compiled
     # pass per summary; anything else through numpy
     fast = weights is None and not rest and values.size > 0 and not np.isnan(values).any()
-    if fast:
-        by_stimulus, share = row_stats(values, t, axis=0)
+    bands = _age_bands(ages, age_bands) if ages is not None and age_bands else None
+    if fast:  # all sorts at once on helper threads, then one compiled pass per summary
+        segments = [np.flatnonzero(inside) for inside in (bands[2] if bands else []) if inside.any()]
+        by_stimulus, share, by_observer, by_segment = observer_stimulus_stats(values, t, segments)
     else:
         by_stimulus, share = _stats(values, weights, 0), None
+        by_observer = _stats(np.moveaxis(values, 1, 0), None, 0)
     out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus,
                                   {**statistic_attrs, "long_name": "statistics over observers, per stimulus"})
-    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), _stats(np.moveaxis(values, 1, 0), None, 0),
+    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer,
                                   {**statistic_attrs, "long_name": "statistics over stimuli, per observer"})
     fixed = [_label_coordinate("statistic", STATISTICS)]
-    if ages is not None and age_bands:
-        edges = np.asarray(age_bands, dtype=float)
-        if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
-            raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
-        ages = np.asarray(ages, dtype=float)
-        band_labels, blocks, counts, members = [], [], [], []
-        for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
-            last = i == edges.size - 2
-            inside = (ages >= lo) & ((ages <= hi) if last else (ages < hi))
-            band_labels.append(_band_label(lo, hi, last))
-            counts.append(int(inside.sum()))
-            members.append(inside)
+    if bands:
+        band_labels, counts, members = bands
+        blocks = []
+        for inside in members:
             if fast or not inside.any():
                 blocks.append(np.full((len(STATISTICS), *values.shape[2:]), np.nan))
                 continue
@@ -156,9 +167,8 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
             blocks.append(_stats(block, w, 0))
         by_age = np.stack(blocks, axis=1)
         filled = [i for i, count in enumerate(counts) if count]
-        if fast and filled:  # all bands in one call: the pairs of each band, band after band
-            order = np.concatenate([np.flatnonzero(members[i]) for i in filled])
-            by_age[:, filled] = segment_stats(values[order], [counts[i] * values.shape[1] for i in filled])[0]
+        if fast and filled:
+            by_age[:, filled] = by_segment
         out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, {
             **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band"})
         out["observers_per_age_band"] = ("age_band", np.asarray(counts),
