@@ -19,7 +19,9 @@ observer's 3 × N matrices, XYZ of every stimulus from the drives metasim solved
 same work on both sides and are taken from metasim), ``XYZ_to_Lab`` against the observer's white,
 ``delta_E`` (CIE 2000). With ``--loop-observers`` < ``--observers`` the loop time is measured on
 that many observers and scaled (stated in the output).
-Prints both times, the ratio and the largest difference of the per-observer ΔE00.
+Prints both times, the ratio and the largest difference of the per-observer ΔE00. The process keeps
+freed memory for reuse as the ``metasim`` command does (:mod:`metasim._memory`; it applies to both
+sides); ``--default-allocator`` leaves glibc's default policy.
 """
 
 from __future__ import annotations
@@ -96,9 +98,14 @@ def main() -> None:
                         help="observers timed in the colour-science loop (default: all)")
     parser.add_argument("--repeats", type=int, default=3)
     parser.add_argument("--seed", type=int, default=11)
+    parser.add_argument("--default-allocator", action="store_true",
+                        help="leave glibc's allocator policy as it is (the metasim command keeps freed memory)")
     args = parser.parse_args()
 
     from metasim import mismatch
+    from metasim._memory import keep_freed_memory
+
+    kept = False if args.default_allocator else keep_freed_memory()  # as the metasim command runs
 
     ref, test, observers, stimuli = build_case(args.observers, args.stimuli, args.seed)
     result = mismatch(ref, test, observers, stimuli)  # warm-up (compiles kernels once)
@@ -130,6 +137,7 @@ def main() -> None:
     ours = result["delta_e_2000"].transpose("observer", "stimulus").values[:count]
 
     print(f"case                          : {args.observers} observers x 2 displays x {args.stimuli} stimuli")
+    print(f"allocator                     : {'freed memory kept for reuse (both sides)' if kept else 'default policy'}")
     print(f"metasim mismatch(), full study: {best * 1e3:9.1f} ms (best of {args.repeats}; also solves drives,"
           " matches the white, index, summaries)")
     print(f"metasim, the loop's work      : {same * 1e3:9.1f} ms (observed_xyz, xyz_to_lab, delta_e_2000 on all pairs)")

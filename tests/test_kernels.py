@@ -89,3 +89,12 @@ def test_compiled_equality_qp_equals_the_batched_numpy_solver(n):
     np.testing.assert_array_equal(shared[1], per_row[1])
     assert 0 < shared[1].sum() < shared[1].size
     np.testing.assert_allclose(shared[0], per_row[0], atol=1e-9)
+
+
+def test_keep_freed_memory_is_a_switch(monkeypatch):
+    from metasim._memory import keep_freed_memory
+
+    monkeypatch.setenv("METASIM_KEEP_FREED_MEMORY", "0")
+    assert keep_freed_memory() is False  # turned off by the environment, nothing changed
+    monkeypatch.delenv("METASIM_KEEP_FREED_MEMORY")
+    assert isinstance(keep_freed_memory(), bool)  # True under glibc, False elsewhere

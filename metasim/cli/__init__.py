@@ -40,6 +40,7 @@ import sys
 import warnings
 from pathlib import Path
 
+from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.errors import MetasimError
 
@@ -364,6 +365,7 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     args.quiet = bool(getattr(args, "quiet", False))
+    keep_freed_memory()  # many studies in one process: reuse freed memory (metasim._memory)
     warnings.showwarning = _warning
     warnings.filterwarnings("ignore", module="colour")
     warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
