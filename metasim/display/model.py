@@ -244,11 +244,15 @@ class Display:
                         attrs={"units": "cd m-2", "long_name": "tristimulus values seen by each observer"})
 
     def white_spectrum(self) -> xr.DataArray:
-        """Spectral radiance with every drive at 1 (black included)."""
-        black, spectra = self._ds["black"], self._ds["spectra"]
-        values = (black.variable + spectra.variable.sum("primary")).transpose(..., "wavelength")
-        return labelled(values.values, values.dims, (black, spectra), name="white",
-                        attrs={"units": RADIANCE_UNITS, "long_name": "display white spectral radiance"})
+        """Spectral radiance with every drive at 1 (black included); a fresh copy on every call."""
+        white = getattr(self, "_white", None)
+        if white is None:  # computed once per display (a Display does not change)
+            black, spectra = self._ds["black"], self._ds["spectra"]
+            values = (black.variable + spectra.variable.sum("primary")).transpose(..., "wavelength")
+            white = labelled(values.values, values.dims, (black, spectra), name="white",
+                             attrs={"units": RADIANCE_UNITS, "long_name": "display white spectral radiance"})
+            self._white = white
+        return white.copy()
 
     def primary_tristimulus(self, observer) -> xr.DataArray:
         """XYZ (cd/m²) of each primary at full drive: dims ``[design,] primary, [observer,] xyz``."""

@@ -35,7 +35,7 @@ import xarray as xr
 
 from metasim._threads import blas_single_threaded
 from metasim._version import __version__
-from metasim.colorimetry import tristimulus, xyz_to_xy
+from metasim.colorimetry import tristimulus
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import pair_differences
@@ -235,8 +235,9 @@ def mismatch(
         include_itp = bool(transfers & {"pq", "hlg"})
     ref_white_cal = tristimulus(white_spectrum, calibration)
     if match_white:
-        test = calibrate_white(test, calibration, white=xyz_to_xy(ref_white_cal),
-                               luminance=ref_white_cal.sel(xyz="Y", drop=True))
+        X, Y, Z = ref_white_cal.transpose("xyz").values  # one white: xy as xyz_to_xy computes it
+        total = X + Y + Z
+        test = calibrate_white(test, calibration, white=(X / total, Y / total), luminance=float(Y))
 
     targets, ref_rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
     # what the reference shows to the calibration observer (the standard under the reference condition)

@@ -138,9 +138,24 @@ def check_wavelengths(
 
 
 def grid_step(wavelengths) -> float:
-    """Step in nm of a uniform grid (validated)."""
+    """Step in nm of a uniform grid (validated; a grid seen before is recognised by its values)."""
+    try:
+        values = as_wavelengths(wavelengths)
+    except (TypeError, ValueError):
+        values = None
+    if values is not None and values.ndim == 1 and values.dtype == np.float64:
+        step = _checked_steps.get(values.tobytes())
+        if step is not None:
+            return step
     values = check_wavelengths(wavelengths, where="grid", uniform=True)
-    return float(values[1] - values[0])
+    step = float(values[1] - values[0])
+    if len(_checked_steps) >= 64:
+        _checked_steps.clear()
+    _checked_steps[values.tobytes()] = step
+    return step
+
+
+_checked_steps: dict[bytes, float] = {}  # valid uniform grids (their bytes) and their steps
 
 
 def check_spectra(
