@@ -75,32 +75,47 @@ def spectral_products(a: np.ndarray, b: np.ndarray) -> np.ndarray:
 _PAD = 16  # vector loops run on whole multiples of this many stimuli (no scalar remainder)
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy", fastmath=_FAST)
-def _apply(drive_t, matrices, offset, out):
-    """out[g, o, s, k] = offset[g, o, k] + Σ_p drive_t[g, p, s]·matrices[g, o, k, p], p in order.
-
-    Vectorised along the stimuli (drive_t is (G, N, S_padded)); every value is summed in the same
-    order whatever the call holds.
-    """
+@numba.njit(cache=True, error_model="numpy", fastmath=_FAST)
+def xyz_of_drives(drive_t, g, matrices, offset, o, out, first):
+    """out[first + k, s] = offset[g, o, k] + Σ_p drive_t[g, p, s]·matrices[g, o, k, p], p in order,
+    for every (padded) column s of drive_t (G, N, S_padded): one observer's XYZ of all stimuli as
+    three columns. The one place drives become XYZ, so every caller gets the same values."""
     wide_vectors()
-    groups, observers = matrices.shape[0], matrices.shape[1]
     n, width = drive_t.shape[1], drive_t.shape[2]
+    for k in range(3):
+        row = out[first + k]
+        base = offset[g, o, k]
+        for s in range(width):
+            row[s] = base
+        for p in range(n):
+            weight = matrices[g, o, k, p]
+            for s in range(width):
+                row[s] += drive_t[g, p, s] * weight
+
+
+@numba.njit(cache=True, parallel=True, error_model="numpy")
+def _apply(drive_t, matrices, offset, out):
+    """out[g, o, s, k] from :func:`xyz_of_drives`, every group and observer in parallel."""
+    groups, observers = matrices.shape[0], matrices.shape[1]
+    width = drive_t.shape[2]
     stimuli = out.shape[2]
     for task in numba.prange(groups * observers):
         g = task // observers
         o = task % observers
         acc = np.empty((3, width))
-        for k in range(3):
-            base = offset[g, o, k]
-            for s in range(width):
-                acc[k, s] = base
-            for p in range(n):
-                weight = matrices[g, o, k, p]
-                for s in range(width):
-                    acc[k, s] += drive_t[g, p, s] * weight
+        xyz_of_drives(drive_t, g, matrices, offset, o, acc, 0)
         for s in range(stimuli):
             for k in range(3):
                 out[g, o, s, k] = acc[k, s]
+
+
+def padded_drives(drive: np.ndarray) -> np.ndarray:
+    """Drives (G, S, N) as (G, N, S_padded) columns, zero beyond S (the layout of :func:`xyz_of_drives`)."""
+    drive = np.asarray(drive, dtype=float)
+    groups, stimuli, n = drive.shape
+    drive_t = np.zeros((groups, n, (stimuli + _PAD - 1) // _PAD * _PAD))
+    drive_t[:, :, :stimuli] = np.swapaxes(drive, 1, 2)
+    return drive_t
 
 
 def apply_matrices(drive: np.ndarray, matrices: np.ndarray, offset: np.ndarray) -> np.ndarray:
@@ -110,16 +125,13 @@ def apply_matrices(drive: np.ndarray, matrices: np.ndarray, offset: np.ndarray) 
     over the N primaries in order, starting from the offset (the display black), so it does not
     depend on how many groups, observers or stimuli are in the call.
     """
-    drive = np.asarray(drive, dtype=float)
+    drive_t = padded_drives(drive)
     matrices = np.ascontiguousarray(matrices, dtype=float)
     offset = np.ascontiguousarray(offset, dtype=float)
-    groups, stimuli, n = drive.shape
-    drive_t = np.zeros((groups, n, (stimuli + _PAD - 1) // _PAD * _PAD))
-    drive_t[:, :, :stimuli] = np.swapaxes(drive, 1, 2)
-    out = np.empty((matrices.shape[0], matrices.shape[1], stimuli, 3))
+    out = np.empty((matrices.shape[0], matrices.shape[1], np.shape(drive)[1], 3))
     if out.size:
         _apply(drive_t, matrices, offset, out)
     return out
 
 
-__all__ = ["apply_matrices", "spectral_products"]
+__all__ = ["apply_matrices", "padded_drives", "spectral_products", "xyz_of_drives"]

@@ -38,7 +38,7 @@ from metasim._version import __version__
 from metasim.colorimetry import tristimulus
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
-from metasim.colorimetry.fused import pair_differences
+from metasim.colorimetry.fused import driven_pair_differences, pair_differences
 from metasim.colorimetry.integration import apply_matrices, spectral_products
 from metasim.colorimetry.tristimulus import K_M, coordinates, labelled
 from metasim.display import Display, calibrate_white
@@ -349,21 +349,15 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     matrices = display_matrices([test] if reference is None else [test, reference], cmf, step)
     m_test, b_test = matrices[0]  # (B, O, 3, N), (B, O, 3)
     stim = list(test_solution.dims[len(batch):])
-    xyz_t = apply_matrices(test_solution.drive, m_test, b_test)  # (B, O, S, 3)
+    white_test = m_test.sum(-1) + b_test  # (B, O, 3)
     if reference is not None:
         m_ref, b_ref = matrices[1]
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
-        xyz_r = apply_matrices(ref_rendering.drive, m_ref[:1], b_ref[:1])[0]  # (O, S, 3), summed like the test side
     else:
         n_w = cmf.shape[-1]
         white_ref = K_M * step * spectral_products(cmf.reshape(-1, n_w), white_spectrum.values.reshape(1, n_w))
         white_ref = white_ref.reshape(-1, 3)  # (O, 3)
-        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)
-        xyz_r = K_M * step * np.swapaxes(spectral_products(cmf.reshape(-1, n_w), spectra).reshape(cmf.shape[0], 3, -1),
-                                         -1, -2)
-    white_test = m_test.sum(-1) + b_test  # (B, O, 3)
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
-    xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
     # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
     # observer): the test side minus (test − reference as the calibration observer sees them). A
     # stimulus inside the test gamut is matched for the calibration observer by construction
@@ -374,9 +368,20 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
     correction = np.where(test_solution.out_of_gamut[..., None], rep - tgt, 0.0)
     rows = m_test.shape[0] * cmf.shape[0]
-    n_stim = xyz_t.shape[2]
-    lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
-                                               adapted.reshape(rows, 3), correction)
+    if reference is not None:  # both sides' XYZ from the drives, in the same pass as CIELAB and CIE 2000
+        xyz_r, xyz_t, lab_r, lab_t, de, index = driven_pair_differences(
+            ref_rendering.drive, m_ref[:1], b_ref[:1], test_solution.drive, m_test, b_test, adapted.reshape(rows, 3),
+            correction)
+        xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
+    else:
+        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)
+        xyz_r = K_M * step * np.swapaxes(spectral_products(cmf.reshape(-1, n_w), spectra).reshape(cmf.shape[0], 3, -1),
+                                         -1, -2)
+        xyz_t = apply_matrices(test_solution.drive, m_test, b_test)  # (B, O, S, 3)
+        xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
+        n_stim = xyz_t.shape[2]
+        lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
+                                                   adapted.reshape(rows, 3), correction)
     de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
     itp = None
     if include_itp:
