@@ -12,12 +12,13 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from metasim._paths import data_dir
 from metasim.cli.specs import load_display
 from metasim.cli.study import Progress, build_population, build_stimuli, run_study
 from metasim.io import save_dataset
 from metasim.report import write_report
 
-DEMO_DIR = Path(__file__).resolve().parents[2] / "data" / "demo"
+DEMO_DIR = data_dir() / "demo"
 REFERENCE_SPEC = "grading_monitor.toml"
 DESIGN_SPECS = ("projector_four_laser.toml", "projector_laser_phosphor.toml")
 AUDIENCE_AGES = "20-70"

@@ -59,17 +59,17 @@ from __future__ import annotations
 
 import os
 from functools import lru_cache
-from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
+from metasim._paths import data_dir
 from metasim._version import __version__
 from metasim.errors import ObserverError
 from metasim.observers.standard import CONES, XYZ
 from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv
 
-DATA_DIR = Path(__file__).resolve().parents[2] / "data"
+DATA_DIR = data_dir()
 #: Native grid of the model (nm): the sampling of the shipped tables and of the S&S fundamentals.
 BASE_WAVELENGTHS = np.arange(390.0, 831.0, 1.0)
 AGE_RANGE_YEARS = (20.0, 80.0)
