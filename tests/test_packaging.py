@@ -25,3 +25,10 @@ def test_every_file_in_data_is_package_data():
 def test_data_dir_holds_the_tables_and_the_demo():
     assert (data_dir() / "lens_density_32y_1nm.csv").is_file()
     assert (data_dir() / "demo" / "grading_monitor.toml").is_file()
+
+
+def test_every_package_is_installed():
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]["packages"])
+    for init in (ROOT / "metasim").rglob("__init__.py"):
+        package = ".".join(init.parent.relative_to(ROOT).parts)
+        assert package in listed, f"{package} is missing from [tool.setuptools] packages"

@@ -149,6 +149,25 @@ def test_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, stimul
         np.testing.assert_array_equal(result[name].values, serial[name].values)
 
 
+def test_per_stimulus_summaries_equal_numpy_per_design(tmp_path, swept, designs, monitor, viewers, stimuli):
+    result = run_sweep(designs, monitor, viewers, stimuli, store=tmp_path / "per-stimulus", chunk_size=3,
+                       scheduler="serial", per_stimulus=True)
+    assert result["delta_e_2000_by_stimulus"].dims == ("design", "statistic", "stimulus")
+    assert list(result["stimulus"].values) == list(stimuli["stimulus"].values)
+    assert result.attrs["spec_hash"] != swept[1].attrs["spec_hash"]  # another spec: its own store
+    np.testing.assert_array_equal(result["delta_e_2000_overall"].values, swept[1]["delta_e_2000_overall"].values)
+    settings = {"transfer": "bt1886", "gamma": 2.2, "peak_luminance": 100.0, "black_luminance": 0.0, "white": "D65",
+                "calibration_observer": "cie1931_2"}
+    i = 5
+    spectra = designs.isel(design=i).drop_vars([c for c in designs.coords if designs[c].dims == ("design",)])
+    alone = metasim.mismatch(monitor, chunk_display(spectra.expand_dims(design=[i]), settings), viewers, stimuli)
+    de = alone["delta_e_2000"].isel(design=0).transpose("observer", "stimulus").values
+    # numpy's mean / median / quantile (linear) / max over the observers of each stimulus
+    expected = np.stack([de.mean(0), np.median(de, 0), np.quantile(de, 0.95, axis=0), de.max(0)])
+    np.testing.assert_allclose(result["delta_e_2000_by_stimulus"].isel(design=i).values, expected, atol=1e-9)
+    np.testing.assert_allclose(result["share_beyond"].isel(design=i).sel(threshold=2.0).values, (de > 2.0).mean(0))
+
+
 def test_explicit_design_list_and_objects_reference(tmp_path, viewers):
     spectra = [emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]) for red in (615, 630, 645)]
     designs = design_list(spectra, red_nm=[615, 630, 645])

@@ -146,3 +146,17 @@ def test_write_report_of_a_loaded_sweep(tmp_path, pair_sweep):
     text = path.read_text(encoding="utf-8")
     assert "<h1>Red and green lines</h1>" in text
     assert_sweep_page(text, result)
+
+
+def test_per_stimulus_sweep_lists_the_hardest_stimuli(tmp_path, inputs):
+    designs = design_grid("laser", peaks_nm={"R": [625, 645], "G": [532], "B": [465]}, width_nm=1.0)
+    result = run_sweep(designs, *inputs, store=tmp_path / "per-stimulus", scheduler="serial", per_stimulus=True)
+    text = render_report(result)
+    index, _ = best_of(result)
+    assert f"Hardest stimuli for design {result['design'].values[index]}" in text
+    p95 = result["delta_e_2000_by_stimulus"].isel(design=index).sel(statistic="p95")
+    hardest = str(p95["stimulus"].values[int(np.argmax(p95.values))])
+    first_row = text.split("Hardest stimuli")[1].split("<tr><td>")[1]
+    assert first_row.startswith(f"{html.escape(hardest)}</td>")  # the worst stimulus heads the table
+    assert "Hardest stimuli" not in render_report(run_sweep(designs, *inputs, store=tmp_path / "plain",
+                                                            scheduler="serial"))

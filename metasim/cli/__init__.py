@@ -211,6 +211,8 @@ def cmd_sweep(args) -> int:
                        workers=args.workers, calibration_observer=args.calibration_observer or spec.get(
                            "calibration_observer", "cie1931_2"), strategy=args.strategy or spec.get("strategy", "min_norm"),
                        lab_volume=bool(args.lab_volume if args.lab_volume is not None else spec.get("lab_volume", False)),
+                       per_stimulus=bool(args.per_stimulus if args.per_stimulus is not None
+                                         else spec.get("per_stimulus", False)),
                        age_bands=_age_bands(args) or default_age_bands(observers), progress=progress,
                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
@@ -349,6 +351,8 @@ def build_parser() -> argparse.ArgumentParser:
                    "scheduler address such as tcp://host:8786")
     p.add_argument("--workers", type=int, metavar="N", help="threads for threads / dask-threads (default: CPU count)")
     p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
+    p.add_argument("--per-stimulus", action="store_true", default=None,
+                   help="also keep every stimulus's statistics over observers, per design")
     _population_options(p)
     _matching_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)

@@ -12,6 +12,7 @@ required)::
     strategy = "min_norm"                  # min_norm | max_efficiency | population
     chunk_size = 4                         # designs per chunk                     (default: automatic)
     lab_volume = false                     # also the CIELAB volume of every design (slower)
+    per_stimulus = false                   # also every stimulus's statistics, per design
 
     [display]                              # only without base: the display-level keys of a display
     transfer = "gamma"                     # spec (transfer, gamma, peak_luminance, black_luminance,
@@ -45,7 +46,7 @@ from metasim.errors import MetasimError
 from metasim.sweep import GRID_KINDS, design_grid
 
 TOP_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy",
-            "chunk_size", "lab_volume", "display", "vary")
+            "chunk_size", "lab_volume", "per_stimulus", "display", "vary")
 VARY_KEYS = ("kind", "peaks_nm", "width_nm", "radiance", "profile")
 DISPLAY_KEYS = ("transfer", "gamma", "peak_luminance", "black_luminance", "white", "calibration_observer")
 #: largest number of values one ``{start, stop, step}`` range may expand to
@@ -100,8 +101,9 @@ def read_sweep_spec(path) -> dict:
     if "chunk_size" in spec and (isinstance(spec["chunk_size"], bool) or not isinstance(spec["chunk_size"], int)
                                  or spec["chunk_size"] < 1):
         raise SpecError(f"{where}: chunk_size = {spec['chunk_size']!r} is not allowed; need a whole number >= 1")
-    if "lab_volume" in spec and not isinstance(spec["lab_volume"], bool):
-        raise SpecError(f"{where}: lab_volume = {spec['lab_volume']!r} must be true or false")
+    for key in ("lab_volume", "per_stimulus"):
+        if key in spec and not isinstance(spec[key], bool):
+            raise SpecError(f"{where}: {key} = {spec[key]!r} must be true or false")
     if "display" in spec:
         if "base" in spec:
             raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")

@@ -101,7 +101,7 @@ def evaluate_chunk(designs, reference, observers, stimuli, options: dict) -> xr.
         lock.acquire()
     try:
         return design_summaries(display, reference, observers, stimuli, lab_volume=options["lab_volume"],
-                                **options["mismatch"])
+                                per_stimulus=options.get("per_stimulus", False), **options["mismatch"])
     finally:
         if lock is not None:
             lock.release()
@@ -130,7 +130,7 @@ def _describe(item) -> str:
 def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chunk_size: int | None = None,
               scheduler="threads", workers: int | None = None, calibration_observer="cie1931_2",
               strategy: str = "min_norm", display_settings: dict | None = None, lab_volume: bool = False,
-              age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None) -> xr.Dataset:
+              per_stimulus: bool = False, age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None) -> xr.Dataset:
     """Evaluate every design against ``reference`` in chunks, writing each chunk to ``store``; resume.
 
     Parameters
@@ -163,6 +163,9 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         attribute, over :data:`metasim.sweep.DEFAULT_DISPLAY_SETTINGS`).
     lab_volume : bool
         Also compute each design's CIELAB volume (slower).
+    per_stimulus : bool
+        Also keep every stimulus's statistics over observers and shares beyond the thresholds
+        (``delta_e_2000_by_stimulus``, ``share_beyond``: design × stimulus numbers).
     progress : callable, optional
         Called with one dict per event: ``kind`` ("skipped", "computed", "combined"), ``chunk``,
         ``start``, ``stop``, ``done``, ``total``, ``seconds``, ``message``.
@@ -193,9 +196,11 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer)) or chunk_size < 1:
         raise SweepError(f"chunk_size={chunk_size!r} is not allowed; need a whole number >= 1")
     chunk_size = int(chunk_size)
-    options = {"display_settings": settings, "lab_volume": bool(lab_volume), "mismatch": mismatch_options}
+    options = {"display_settings": settings, "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus),
+               "mismatch": mismatch_options}
     digest = spec_hash(designs, reference, observers, stimuli, settings, bool(lab_volume),
-                       {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer)
+                       {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer,
+                       *(["per stimulus"] if per_stimulus else []))  # stores without it keep their hash
     ranges = chunk_ranges(count, chunk_size)
     coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
               if v.dims == ("design",) and c != "design"]
@@ -207,7 +212,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
                  "design_parameters": getattr(designs, "attrs", {}).get("parameters", ""),
                  "display_settings": settings, "reference": _describe(reference),
                  "calibration_observer": _describe(calibration_observer), "strategy": strategy,
-                 "lab_volume": bool(lab_volume), "observer_count": int(observers.sizes["observer"]),
+                 "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus), "observer_count": int(observers.sizes["observer"]),
                  "stimulus_count": int(stimuli.sizes.get("stimulus", 0)),
                  "stimuli": str(stimuli.attrs.get("description", "")), "thresholds": list(thresholds),
                  "age_bands": None if age_bands is None else list(age_bands), **(attrs or {})},

@@ -19,6 +19,10 @@ variable (dims)                          holds
 ``gamut_coverage`` (design, reference_gamut)   share of BT.709, Display P3, BT.2020 xy area covered
 ``primary_xy`` (design, primary, chromaticity) CIE 1931 xy of each primary
 ``lab_volume`` (design)                  CIELAB volume of the colour solid (optional: slower)
+``delta_e_2000_by_stimulus`` (design, statistic, stimulus)   statistics over observers for each
+                                         stimulus (optional, ``per_stimulus=True``: grows with the set)
+``share_beyond`` (design, threshold, stimulus)   share of observers beyond each threshold, per
+                                         stimulus (optional, with ``per_stimulus``)
 =======================================  ==============================================================
 """
 
@@ -60,7 +64,7 @@ def _pairs_table(array: xr.DataArray, weights, long_name: str, units: str = "1")
 
 
 def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume: bool = False,
-                     **mismatch_options) -> xr.Dataset:
+                     per_stimulus: bool = False, **mismatch_options) -> xr.Dataset:
     """Mismatch and gamut summaries of every design of ``test`` (a Display with a ``design`` dim).
 
     Parameters
@@ -72,6 +76,9 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
         As for :func:`metasim.mismatch` (all designs are evaluated in one call).
     lab_volume : bool
         Also compute the CIELAB volume of each design's colour solid (slower).
+    per_stimulus : bool
+        Also keep the statistics over observers and the shares beyond the thresholds of every
+        stimulus (design × stimulus numbers: which colours a design gets wrong).
 
     Returns
     -------
@@ -116,8 +123,11 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
     out["primary_xy"] = gamut["chromaticity_of_primary"].transpose("design", "primary", "chromaticity")
     if lab_volume:
         out["lab_volume"] = lab_gamut_volume(test, cie1931).transpose("design")
+    if per_stimulus:
+        out["delta_e_2000_by_stimulus"] = result["delta_e_2000_by_stimulus"].transpose("design", "statistic", "stimulus")
+        out["share_beyond"] = result["share_beyond"].transpose("design", "threshold", "stimulus")
     for name in ("gamut_area_xy", "primary_xy", "share_beyond_overall", "delta_e_2000_by_age", "observers_per_age_band",
-                 "lab_volume"):
+                 "lab_volume", "delta_e_2000_by_stimulus", "share_beyond"):
         if name in out:
             value = out[name]
             out[name] = xr.DataArray(value.values, dims=value.dims, attrs=dict(value.attrs))
@@ -127,6 +137,8 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
               "threshold": result["threshold"].variable}
     if "age_band" in result.coords:
         coords["age_band"] = result["age_band"].variable
+    if per_stimulus:
+        coords.update({k: v.variable for k, v in result.coords.items() if v.dims == ("stimulus",)})
     summary = xr.Dataset(out, coords=coords)
     summary.attrs = {key: result.attrs[key] for key in (
         "model", "reference", "reference_kind", "calibration_observer", "white_matched", "adapted_white",

@@ -11,16 +11,14 @@ holds, section by section:
 * an observer population or category file (:func:`metasim.observer_population`): ages, parameters
   and the spread of the colour-matching functions;
 * a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
-  sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs and the sweep spec.
+  sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs, the stimuli hardest for
+  the best design (sweeps with per-stimulus summaries) and the sweep spec (:mod:`metasim.report.sweep`).
 
 Every report lists the models and parameters recorded in the file's attributes and the cautions.
 """
 
 from __future__ import annotations
 
-import base64
-import html
-import json
 from pathlib import Path
 
 import numpy as np
@@ -29,61 +27,9 @@ import xarray as xr
 from metasim import plots
 from metasim._version import __version__
 from metasim.errors import MetasimError
-
-CAUTIONS = (
-    "metasim computes colorimetry, not eye safety. Lasers and other high-radiance light sources fall "
-    "under photobiological safety standards — IEC 60825-1 (safety of laser products) and IEC 62471 "
-    "(photobiological safety of lamps and lamp systems) — and under local regulations; nothing in this "
-    "report says whether a design is safe to look at.",
-    "Population results describe model observers (CIE 170-1:2006 with individual deviations whose "
-    "standard deviations are estimates), not measurements of any real audience.",
-    "The 1, 2 and 3 CIE 2000 unit thresholds are common practice, no source; gamut coverage of the "
-    "broadcast and cinema gamuts is computed for the CIE 1931 2° observer.",
-)
-STYLE = """
-body{font-family:system-ui,-apple-system,'Segoe UI',sans-serif;margin:0;background:#fbfaf7;color:#1f2328}
-main{max-width:1040px;margin:0 auto;padding:24px 28px 60px}
-h1{font-size:1.6em;margin:0 0 4px;color:#2b3a55} h2{margin-top:2.2em;border-bottom:2px solid #d9633b;
-padding-bottom:4px;color:#2b3a55} h3{color:#3c4a66}
-.sub{color:#5b6270;margin:0 0 18px} table{border-collapse:collapse;margin:10px 0 18px;font-size:.92em}
-th,td{border-bottom:1px solid #dcdad3;padding:5px 10px;text-align:right} th:first-child,td:first-child{text-align:left}
-th{background:#efece4} figure{margin:18px 0} figure img{max-width:100%;border:1px solid #e4e1d8;background:#fff}
-figcaption{color:#5b6270;font-size:.9em} pre{background:#f1efe8;padding:10px;overflow-x:auto;font-size:.85em}
-.caution{background:#fff4e5;border-left:4px solid #d9633b;padding:8px 14px;margin:8px 0}
-.headline{font-size:1.05em} dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
-dt{font-weight:600;color:#3c4a66} dd{margin:0}
-"""
-REFERENCE_NAMES = {"bt709": "BT.709", "display_p3": "Display P3", "dci_p3": "DCI-P3", "bt2020": "BT.2020"}
-
-
-def _e(text) -> str:
-    return html.escape(str(text))
-
-
-def _num(value, digits: int = 2) -> str:
-    value = float(value)
-    if not np.isfinite(value):
-        return "–"
-    if abs(value) >= 1e5:
-        return f"{value:.3g}"
-    return f"{value:.{digits}f}"
-
-
-def _pct(value) -> str:
-    value = float(value)
-    return "–" if not np.isfinite(value) else f"{100 * value:.1f} %"
-
-
-def _table(header: list[str], rows: list[list[str]]) -> str:
-    head = "".join(f"<th>{_e(h)}</th>" for h in header)
-    body = "".join("<tr>" + "".join(f"<td>{_e(c)}</td>" for c in row) + "</tr>" for row in rows)
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
-
-
-def _image(png: bytes, caption: str) -> str:
-    data = base64.b64encode(png).decode("ascii")
-    return (f'<figure><img alt="{_e(caption)}" src="data:image/png;base64,{data}">'
-            f"<figcaption>{_e(caption)}</figcaption></figure>")
+from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
+                                 _table)
+from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
 
 
 def as_study(ds: xr.Dataset) -> xr.Dataset:
@@ -292,25 +238,6 @@ def _population(ds: xr.Dataset) -> str:
     return "<h2>Observers</h2>" + _table(["quantity", "value"], rows)
 
 
-def _value(value) -> str:
-    if isinstance(value, str):
-        try:
-            parsed = json.loads(value)
-        except ValueError:
-            return _e(value)
-        if isinstance(parsed, (dict, list)):
-            value = parsed
-        else:
-            return _e(value)
-    if isinstance(value, (dict, list)):
-        return f"<code>{_e(json.dumps(value, default=str))}</code>"
-    return _e(value)
-
-
-def _attribute_list(attrs: dict) -> str:
-    return "<dl>" + "".join(f"<dt>{_e(k.replace('_', ' '))}</dt><dd>{_value(v)}</dd>" for k, v in attrs.items()) + "</dl>"
-
-
 def _models(ds: xr.Dataset) -> str:
     attrs = dict(ds.attrs)
     specs = attrs.pop("display_specs", {}) or {}
@@ -329,104 +256,6 @@ def _models(ds: xr.Dataset) -> str:
 
 
 # -- sweeps ----------------------------------------------------------------------------------------------
-
-def _sweep_numbers(ds: xr.Dataset) -> dict:
-    """Per-design p95, median, share beyond 2 and BT.2020 coverage (NaN where the file lacks them)."""
-    stats = ds["delta_e_2000_overall"].transpose("design", "statistic")
-    nan = np.full(ds.sizes["design"], np.nan)
-    share = nan
-    if "share_beyond_overall" in ds and 2.0 in ds["share_beyond_overall"]["threshold"].values:
-        share = ds["share_beyond_overall"].sel(threshold=2.0).transpose("design").values
-    coverage = nan
-    if "gamut_coverage" in ds and "bt2020" in ds["gamut_coverage"]["reference_gamut"].values:
-        coverage = ds["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
-    p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
-    return {"p95": p95, "median": np.asarray(stats.sel(statistic="median").values, dtype=float),
-            "share2": np.asarray(share, dtype=float), "bt2020": np.asarray(coverage, dtype=float),
-            "order": np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")}
-
-
-def _cell(value) -> str:
-    return f"{value:g}" if isinstance(value, (int, float, np.integer, np.floating)) else str(value)
-
-
-def _design_name(ds: xr.Dataset, index: int) -> str:
-    return f"design {ds['design'].values[index]}"
-
-
-def _parameters_of(ds: xr.Dataset, names, index: int) -> str:
-    return ", ".join(f"{plots.parameter_text(ds, c)[0]} {plots.parameter_value(ds, c, index)}" for c in names)
-
-
-def _sweep_headline(ds: xr.Dataset) -> str:
-    spec = plots.sweep_spec(ds)
-    numbers = _sweep_numbers(ds)
-    varied, fixed = plots.sweep_parameters(ds)
-    best = int(numbers["order"][0])
-    observers = ds.attrs.get("observer_count", spec.get("observer_count", "?"))
-    stimuli = ds.attrs.get("stimulus_count", spec.get("stimulus_count", "?"))
-    count = ds.sizes["design"]
-    reference = spec.get("reference") or ds.attrs.get("reference", "the reference")
-    parts = [f"<p>{count} design{'s' if count != 1 else ''}, each judged by {_e(observers)} observers × {_e(stimuli)} "
-             f"stimuli against {_e(reference)}, matched for {_e(ds.attrs.get('calibration_observer', ''))}."]
-    if spec.get("sweep_description"):
-        parts.append(f" {_e(str(spec['sweep_description']).rstrip('.'))}.")
-    parts.append("</p>")
-    described = _parameters_of(ds, varied, best)
-    share = numbers["share2"][best]
-    parts.append(f"<p class='headline'><strong>Best design: {_e(_design_name(ds, best))}</strong>"
-                 f"{' (' + _e(described) + ')' if described else ''} — 95th percentile "
-                 f"<strong>{_num(numbers['p95'][best])}</strong>, median {_num(numbers['median'][best])} CIE 2000 units"
-                 f"{', ' + _pct(share) + ' of observer × stimulus pairs beyond 2' if np.isfinite(share) else ''}"
-                 f"{', BT.2020 coverage ' + _pct(numbers['bt2020'][best]) if np.isfinite(numbers['bt2020'][best]) else ''}."
-                 "</p>")
-    if count > 1 and np.isfinite(numbers["p95"]).any():
-        worst = int(numbers["order"][-1]) if np.isfinite(numbers["p95"][numbers["order"][-1]]) else best
-        parts.append(f"<p>95th percentiles over the sweep: {_num(numbers['p95'][best])} to {_num(numbers['p95'][worst])} "
-                     f"CIE 2000 units (worst: {_e(_design_name(ds, worst))}).</p>")
-    if varied:
-        parts.append(f"<p>Varied: {_e(', '.join(plots.parameter_label(ds, c) for c in varied))}.</p>")
-    try:
-        kept = json.loads(spec.get("design_parameters") or "{}").get("fixed_primaries", [])
-    except (TypeError, ValueError, AttributeError):
-        kept = []
-    held = [_parameters_of(ds, fixed, best)] if fixed else []
-    held += [f"the base primaries {', '.join(map(str, kept))}"] if kept else []
-    if held:
-        parts.append(f"<p>Held fixed: {_e('; '.join(held))}.</p>")
-    return "<h2>Headline</h2>" + "".join(parts)
-
-
-def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
-    numbers = _sweep_numbers(ds)
-    varied = plots.sweep_parameters(ds)[0]
-    header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
-    header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
-    rows = []
-    for rank, index in enumerate(numbers["order"][:shown], start=1):
-        index = int(index)
-        rows.append([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
-                    + [_num(numbers["p95"][index]), _num(numbers["median"][index]), _pct(numbers["share2"][index]),
-                       _pct(numbers["bt2020"][index])])
-    count = ds.sizes["design"]
-    what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
-    return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "
-            "stimulus pairs; the share is of pairs beyond 2 CIE 2000 units; BT.2020 coverage is of its CIE 1931 xy "
-            "area.</p>" + _table(header, rows))
-
-
-def _sweep_models(ds: xr.Dataset) -> str:
-    attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
-    spec = dict(plots.sweep_spec(ds))
-    text = spec.pop("sweep_spec_text", "")
-    out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
-    if spec:
-        out += "<h3>Sweep spec</h3>" + _attribute_list(spec)
-    if text:
-        out += f"<h3>Sweep spec file</h3><pre>{_e(text)}</pre>"
-    return out
-
-
 def figure_pngs(ds: xr.Dataset) -> dict:
     """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}."""
     return {name: (plots.png_bytes(fig), caption) for name, (fig, caption) in report_figures(ds).items()}
@@ -451,7 +280,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
             f"{(' of ' + _e(source)) if source else ''}.</p>"]
     if kind == "sweep":
         body += [_sweep_headline(ds)] + [_image(png, caption) for png, caption in figures.values()]
-        body += [_sweep_best(ds), _sweep_models(ds)]
+        body += [_sweep_best(ds), _sweep_stimuli(ds), _sweep_models(ds)]
     elif kind == "population":
         body.append(_population(ds))
         body += [_image(png, caption) for png, caption in figures.values()]

@@ -1,0 +1,126 @@
+"""The sweep page of a report: headline, best designs, the stimuli hardest for the best design,
+models (for ``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`)."""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import xarray as xr
+
+from metasim import plots
+from metasim.report.html import _attribute_list, _e, _num, _pct, _table
+
+def _sweep_numbers(ds: xr.Dataset) -> dict:
+    """Per-design p95, median, share beyond 2 and BT.2020 coverage (NaN where the file lacks them)."""
+    stats = ds["delta_e_2000_overall"].transpose("design", "statistic")
+    nan = np.full(ds.sizes["design"], np.nan)
+    share = nan
+    if "share_beyond_overall" in ds and 2.0 in ds["share_beyond_overall"]["threshold"].values:
+        share = ds["share_beyond_overall"].sel(threshold=2.0).transpose("design").values
+    coverage = nan
+    if "gamut_coverage" in ds and "bt2020" in ds["gamut_coverage"]["reference_gamut"].values:
+        coverage = ds["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
+    p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
+    return {"p95": p95, "median": np.asarray(stats.sel(statistic="median").values, dtype=float),
+            "share2": np.asarray(share, dtype=float), "bt2020": np.asarray(coverage, dtype=float),
+            "order": np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")}
+
+
+def _cell(value) -> str:
+    return f"{value:g}" if isinstance(value, (int, float, np.integer, np.floating)) else str(value)
+
+
+def _design_name(ds: xr.Dataset, index: int) -> str:
+    return f"design {ds['design'].values[index]}"
+
+
+def _parameters_of(ds: xr.Dataset, names, index: int) -> str:
+    return ", ".join(f"{plots.parameter_text(ds, c)[0]} {plots.parameter_value(ds, c, index)}" for c in names)
+
+
+def _sweep_headline(ds: xr.Dataset) -> str:
+    spec = plots.sweep_spec(ds)
+    numbers = _sweep_numbers(ds)
+    varied, fixed = plots.sweep_parameters(ds)
+    best = int(numbers["order"][0])
+    observers = ds.attrs.get("observer_count", spec.get("observer_count", "?"))
+    stimuli = ds.attrs.get("stimulus_count", spec.get("stimulus_count", "?"))
+    count = ds.sizes["design"]
+    reference = spec.get("reference") or ds.attrs.get("reference", "the reference")
+    parts = [f"<p>{count} design{'s' if count != 1 else ''}, each judged by {_e(observers)} observers × {_e(stimuli)} "
+             f"stimuli against {_e(reference)}, matched for {_e(ds.attrs.get('calibration_observer', ''))}."]
+    if spec.get("sweep_description"):
+        parts.append(f" {_e(str(spec['sweep_description']).rstrip('.'))}.")
+    parts.append("</p>")
+    described = _parameters_of(ds, varied, best)
+    share = numbers["share2"][best]
+    parts.append(f"<p class='headline'><strong>Best design: {_e(_design_name(ds, best))}</strong>"
+                 f"{' (' + _e(described) + ')' if described else ''} — 95th percentile "
+                 f"<strong>{_num(numbers['p95'][best])}</strong>, median {_num(numbers['median'][best])} CIE 2000 units"
+                 f"{', ' + _pct(share) + ' of observer × stimulus pairs beyond 2' if np.isfinite(share) else ''}"
+                 f"{', BT.2020 coverage ' + _pct(numbers['bt2020'][best]) if np.isfinite(numbers['bt2020'][best]) else ''}."
+                 "</p>")
+    if count > 1 and np.isfinite(numbers["p95"]).any():
+        worst = int(numbers["order"][-1]) if np.isfinite(numbers["p95"][numbers["order"][-1]]) else best
+        parts.append(f"<p>95th percentiles over the sweep: {_num(numbers['p95'][best])} to {_num(numbers['p95'][worst])} "
+                     f"CIE 2000 units (worst: {_e(_design_name(ds, worst))}).</p>")
+    if varied:
+        parts.append(f"<p>Varied: {_e(', '.join(plots.parameter_label(ds, c) for c in varied))}.</p>")
+    try:
+        kept = json.loads(spec.get("design_parameters") or "{}").get("fixed_primaries", [])
+    except (TypeError, ValueError, AttributeError):
+        kept = []
+    held = [_parameters_of(ds, fixed, best)] if fixed else []
+    held += [f"the base primaries {', '.join(map(str, kept))}"] if kept else []
+    if held:
+        parts.append(f"<p>Held fixed: {_e('; '.join(held))}.</p>")
+    return "<h2>Headline</h2>" + "".join(parts)
+
+
+def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
+    numbers = _sweep_numbers(ds)
+    varied = plots.sweep_parameters(ds)[0]
+    header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
+    header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
+    rows = []
+    for rank, index in enumerate(numbers["order"][:shown], start=1):
+        index = int(index)
+        rows.append([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
+                    + [_num(numbers["p95"][index]), _num(numbers["median"][index]), _pct(numbers["share2"][index]),
+                       _pct(numbers["bt2020"][index])])
+    count = ds.sizes["design"]
+    what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
+    return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "
+            "stimulus pairs; the share is of pairs beyond 2 CIE 2000 units; BT.2020 coverage is of its CIE 1931 xy "
+            "area.</p>" + _table(header, rows))
+
+
+def _sweep_models(ds: xr.Dataset) -> str:
+    attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
+    spec = dict(plots.sweep_spec(ds))
+    text = spec.pop("sweep_spec_text", "")
+    out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
+    if spec:
+        out += "<h3>Sweep spec</h3>" + _attribute_list(spec)
+    if text:
+        out += f"<h3>Sweep spec file</h3><pre>{_e(text)}</pre>"
+    return out
+
+
+def _sweep_stimuli(ds: xr.Dataset, shown: int = 10) -> str:
+    """The stimuli hardest for the best design (sweeps run with per-stimulus summaries only)."""
+    if "delta_e_2000_by_stimulus" not in ds or "stimulus" not in ds.dims:
+        return ""
+    best = int(_sweep_numbers(ds)["order"][0])
+    by = ds["delta_e_2000_by_stimulus"].isel(design=best).transpose("statistic", "stimulus")
+    p95 = by.sel(statistic="p95").values
+    share = None
+    if "share_beyond" in ds and 2.0 in ds["share_beyond"]["threshold"].values:
+        share = ds["share_beyond"].isel(design=best).sel(threshold=2.0).transpose("stimulus").values
+    order = np.argsort(np.where(np.isfinite(p95), -p95, np.inf), kind="stable")[:shown]
+    rows = [[str(ds["stimulus"].values[i])] + [_num(by.sel(statistic=s).values[i]) for s in ("mean", "median", "p95", "max")]
+            + [_pct(share[i]) if share is not None else "–"] for i in order]
+    return (f"<h2>Hardest stimuli for {_e(_design_name(ds, best))}</h2><p>The {len(rows)} stimuli with the largest "
+            "95th percentile over observers of the CIE 2000 difference; the share is of observers beyond 2.</p>"
+            + _table(["stimulus", "mean", "median", "95th pct", "max", "share > 2"], rows))
