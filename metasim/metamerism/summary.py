@@ -142,11 +142,15 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     t = np.asarray(thresholds, dtype=float)
     # the common case (equal weights, no NaN, observer × stimulus only) goes through one compiled
     # pass per summary; anything else through numpy
-    fast = weights is None and not rest and values.size > 0 and not np.isnan(values).any()
+    fast = weights is None and values.size > 0 and not np.isnan(values).any()
     bands = _age_bands(ages, age_bands) if ages is not None and age_bands else None
-    if fast:  # all sorts at once on helper threads, then one compiled pass per summary
+    if fast:  # one sort per summary, then one compiled pass over it; other dims one slice at a time
         segments = [np.flatnonzero(inside) for inside in (bands[2] if bands else []) if inside.any()]
-        by_stimulus, share, by_observer, by_segment = observer_stimulus_stats(values, t, segments)
+        flat = values.reshape(*values.shape[:2], -1)
+        parts = [observer_stimulus_stats(flat[:, :, i], t, segments) for i in range(flat.shape[2])]
+        by_stimulus, share, by_observer, by_segment = (
+            np.stack([part[j] for part in parts], axis=-1).reshape(*parts[0][j].shape, *values.shape[2:])
+            for j in range(4))
     else:
         by_stimulus, share = _stats(values, weights, 0), None
         by_observer = _stats(np.moveaxis(values, 1, 0), None, 0)
