@@ -100,6 +100,10 @@ def test_combined_sweep_equals_single_mismatch_calls(swept, designs, monitor, vi
         np.testing.assert_allclose(result["delta_e_2000_overall"].isel(design=i).values, expected, atol=1e-9)
         np.testing.assert_allclose(result["share_beyond_overall"].isel(design=i).values,
                                    [(de > t).mean() for t in (1, 2, 3)], atol=1e-9)
+        ages = viewers["age_years"].values
+        band = alone["delta_e_2000"].isel(design=0).values[(ages >= 40) & (ages < 50)].ravel()
+        np.testing.assert_allclose(result["delta_e_2000_by_age"].isel(design=i).sel(age_band="40-49").values,
+                                   [band.mean(), np.median(band), np.quantile(band, 0.95), band.max()], atol=1e-9)
         white = alone["delta_e_white"].isel(design=0).values
         np.testing.assert_allclose(float(result["delta_e_white"].isel(design=i).sel(statistic="p95")),
                                    np.quantile(white, 0.95), atol=1e-9)
