@@ -196,6 +196,19 @@ def test_dask_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, s
     np.testing.assert_array_equal(result["delta_e_2000_overall"].values, swept[1]["delta_e_2000_overall"].values)
 
 
+def test_scheduler_address_with_worker_processes_equals_serial(tmp_path, swept, designs, monitor, viewers, stimuli):
+    distributed = pytest.importorskip("distributed")
+    # a real cluster: scheduler and two worker processes, reached through its tcp:// address
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None,
+                                  scheduler_port=0) as cluster:
+        address = cluster.scheduler_address
+        assert address.startswith("tcp://")
+        result = run_sweep(designs, monitor, viewers, stimuli, store=tmp_path / "cluster", chunk_size=3,
+                           scheduler=address)
+    for name in ("delta_e_2000_overall", "delta_e_2000_by_age", "gamut_coverage"):
+        np.testing.assert_array_equal(result[name].values, swept[1][name].values)
+
+
 def run_cli(*args):
     env = {**os.environ, "PYTHONWARNINGS": "ignore"}
     return subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
