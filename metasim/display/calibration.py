@@ -23,7 +23,8 @@ import xarray as xr
 
 from metasim.colorimetry import xy_to_xyz
 from metasim.errors import DisplayError
-from metasim.display.model import Display, observer_name, observer_optics, resolve_observer
+from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.optics import observer_optics
 from metasim.display.solvers import equality_box_qp
 
 #: Named white points (CIE 1931 xy), IEC 61966-2-1 / CIE 15:2004 4-decimal values.

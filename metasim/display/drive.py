@@ -44,7 +44,8 @@ from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.errors import DisplayError, MetasimError
 from metasim.spectra import integrate
-from metasim.display.model import Display, observer_name, observer_optics, resolve_observer
+from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.optics import observer_optics
 from metasim.display.compiled import clip_rows
 from metasim.display.solvers import equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light

@@ -39,7 +39,8 @@ from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standar
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
 from metasim.colorimetry import tristimulus
 from metasim.colorimetry.integration import apply_matrices, spectral_products
-from metasim.colorimetry.tristimulus import K_M, grid_of, labelled, observer_responses
+from metasim.display.optics import display_matrices
+from metasim.colorimetry.tristimulus import grid_of, labelled, observer_responses
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
 ASSUMPTION = ("channel additivity: emitted radiance = black + sum over primaries of drive x full-drive "
@@ -326,37 +327,6 @@ class Display:
         return out
 
 
-def display_rows(display: Display) -> np.ndarray:
-    """A display's primaries and black as rows to integrate: (batch, N + 1, wavelength)."""
-    batch = display.batch_dims
-    variable = display.spectra.variable
-    spectra = variable.transpose(*batch, "primary", "wavelength").values
-    sizes = {**{d: variable.sizes[d] for d in batch}, "wavelength": variable.sizes["wavelength"]}
-    black = np.asarray(display.black.variable.set_dims(sizes).values)
-    n_w = spectra.shape[-1]
-    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
-
-
-def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
-    """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
-
-    All displays are integrated in one :func:`~metasim.colorimetry.integration.spectral_products`
-    call (one pass over the observer functions).
-    """
-    stacks = [display_rows(display) for display in displays]
-    n_w = cmf.shape[-1]
-    o = cmf.shape[0]
-    rows = np.concatenate([stack.reshape(-1, n_w) for stack in stacks])
-    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), rows)  # (O*3, rows)
-    out, start = [], 0
-    for stack in stacks:
-        count = stack.shape[0] * stack.shape[1]
-        part = values[:, start:start + count].reshape(o, 3, stack.shape[0], stack.shape[1]).transpose(2, 0, 1, 3)
-        out.append((part[..., :-1], part[..., -1]))  # (B, O, 3, N+1) split into primaries and black
-        start += count
-    return out
-
-
 def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:
     """Validate explicit linear drive values: a DataArray with a ``primary`` dim, finite, in 0..1."""
     if not isinstance(drive, xr.DataArray) or "primary" not in drive.dims:
@@ -389,45 +359,6 @@ def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
     if isinstance(observer, xr.Dataset) and "cmf" in observer:
         return observer
     raise DisplayError("observer must be a standard observer name or an observer Dataset with a 'cmf' variable")
-
-
-def observer_optics(display: "Display", observer: xr.Dataset):
-    """One observer's functions and, in cd/m², the XYZ of a display's primaries (P, 3, N), black
-    (P, 3) and white (P, 3) as numpy arrays, P the product of the batch dims (in their order).
-
-    The same validation, products and values as :meth:`Display.primary_tristimulus`,
-    :meth:`Display.black_tristimulus` and :meth:`Display.white_tristimulus` for an observer
-    Dataset (variable ``cmf`` with dims ``xyz`` and ``wavelength`` only).
-    """
-    spectra = display.spectra
-    batch = _batch_dims(spectra)
-    P = int(np.prod([spectra.sizes[d] for d in batch], dtype=int))
-    N = spectra.sizes["primary"]
-    responses = observer_responses(observer, "xyz")
-    step = grid_of(spectra, responses)
-    extra = [d for d in responses.dims if d not in ("wavelength", "xyz")]
-    shared = set(batch) & set(extra)
-    if shared:
-        raise MetasimError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
-                           "(only 'wavelength' may be shared)")
-    if extra:
-        raise DisplayError(f"the observer's functions vary along {extra}; give one observer (dims xyz, wavelength)")
-    cmf = responses.variable.transpose("xyz", "wavelength").values
-    W = cmf.shape[-1]
-    sizes = {d: spectra.sizes[d] for d in batch}
-    rows = spectra.variable.transpose(*batch, "primary", "wavelength").values.reshape(P, N, W)
-    black_var = display._ds["black"].variable
-    black_dims = [d for d in batch if d in black_var.dims]
-    black_rows = black_var.transpose(*black_dims, "wavelength").values
-    white_rows = np.asarray(black_var.set_dims({**sizes, "wavelength": W}).values).reshape(P, W) + rows.sum(axis=1)
-
-    def xyz(values):  # as the separate tristimulus calls compute them
-        return spectral_products(values.reshape(-1, W), cmf) * step * K_M
-
-    primaries = np.swapaxes(xyz(rows).reshape(P, N, 3), -1, -2)
-    black = xr.Variable((*black_dims, "xyz"), xyz(black_rows).reshape(*black_rows.shape[:-1], 3))
-    black = np.asarray(black.set_dims({**sizes, "xyz": 3}).values).reshape(P, 3)
-    return responses, primaries, black, xyz(white_rows)
 
 
 def observer_name(observer) -> str:

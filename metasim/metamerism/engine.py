@@ -43,7 +43,7 @@ from metasim.colorimetry.integration import apply_matrices, spectral_products
 from metasim.colorimetry.tristimulus import K_M, coordinates, labelled
 from metasim.display import Display, calibrate_white
 from metasim.display.drive import drive_solution
-from metasim.display.model import display_matrices
+from metasim.display.optics import display_matrices
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
 from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
