@@ -27,6 +27,12 @@ def display_rows(display) -> np.ndarray:
     return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
 
 
+def observer_xyz(cmf: np.ndarray, step: float, rows: np.ndarray) -> np.ndarray:
+    """XYZ (cd/m²) of radiance rows (R, wavelength) for observers cmf (O, 3, wavelength): (O·3, R)."""
+    n_w = cmf.shape[-1]
+    return K_M * step * spectral_products(cmf.reshape(-1, n_w), rows.reshape(-1, n_w))
+
+
 def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
     """Observer × primary XYZ (cd/m²) of each display: (batch, observer, 3, N) and black (batch, observer, 3).
 
@@ -36,8 +42,7 @@ def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.nd
     stacks = [display_rows(display) for display in displays]
     n_w = cmf.shape[-1]
     o = cmf.shape[0]
-    rows = np.concatenate([stack.reshape(-1, n_w) for stack in stacks])
-    values = K_M * step * spectral_products(cmf.reshape(o * 3, n_w), rows)  # (O*3, rows)
+    values = observer_xyz(cmf, step, np.concatenate([stack.reshape(-1, n_w) for stack in stacks]))
     out, start = [], 0
     for stack in stacks:
         count = stack.shape[0] * stack.shape[1]
@@ -86,4 +91,4 @@ def observer_optics(display, observer: xr.Dataset):
     return responses, primaries, black, xyz(white_rows)
 
 
-__all__ = ["display_matrices", "display_rows", "observer_optics"]
+__all__ = ["display_matrices", "display_rows", "observer_optics", "observer_xyz"]

@@ -39,11 +39,11 @@ from metasim.colorimetry import tristimulus
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
-from metasim.colorimetry.integration import apply_matrices, spectral_products
-from metasim.colorimetry.tristimulus import K_M, coordinates, labelled
+from metasim.colorimetry.integration import apply_matrices
+from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.display import Display, calibrate_white
 from metasim.display.drive import drive_solution
-from metasim.display.optics import display_matrices
+from metasim.display.optics import display_matrices, observer_xyz
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
 from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
@@ -354,9 +354,12 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
         m_ref, b_ref = matrices[1]
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
     else:
+        # the white and every object's reflected light in one integration: (O, 3, 1 + S)
         n_w = cmf.shape[-1]
-        white_ref = K_M * step * spectral_products(cmf.reshape(-1, n_w), white_spectrum.values.reshape(1, n_w))
-        white_ref = white_ref.reshape(-1, 3)  # (O, 3)
+        light = np.concatenate([white_spectrum.values.reshape(1, n_w),
+                                ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)])
+        seen = observer_xyz(cmf, step, light).reshape(cmf.shape[0], 3, -1)
+        white_ref = seen[..., 0]  # (O, 3)
     adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
     # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
     # observer): the test side minus (test − reference as the calibration observer sees them). A
@@ -374,9 +377,7 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
             correction)
         xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
     else:
-        spectra = ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)
-        xyz_r = K_M * step * np.swapaxes(spectral_products(cmf.reshape(-1, n_w), spectra).reshape(cmf.shape[0], 3, -1),
-                                         -1, -2)
+        xyz_r = np.ascontiguousarray(np.swapaxes(seen[..., 1:], -1, -2))  # (O, S, 3)
         xyz_t = apply_matrices(test_solution.drive, m_test, b_test)  # (B, O, S, 3)
         xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
         n_stim = xyz_t.shape[2]
