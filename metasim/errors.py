@@ -12,6 +12,14 @@ class MetasimError(Exception):
     """Base class of every error metasim raises on purpose."""
 
 
+class MetasimWarning(UserWarning):
+    """Base class of the warnings metasim gives (the result is computed, but something deserves a look)."""
+
+
+class DuplicateStimulusWarning(MetasimWarning):
+    """A stimulus set holds the same colour more than once (pooled statistics count it twice)."""
+
+
 class SpectrumError(MetasimError, ValueError):
     """A spectrum, a wavelength grid or a spectral file is not usable."""
 
@@ -46,6 +54,8 @@ class FileFormatError(MetasimError, ValueError):
 
 __all__ = [
     "MetasimError",
+    "MetasimWarning",
+    "DuplicateStimulusWarning",
     "SpectrumError",
     "GridMismatchError",
     "ObserverError",

@@ -161,12 +161,7 @@ def build_stimuli(tokens: str, *, source: str = "bt709", csv_kind: str = "rgb") 
                                "or a .csv file")
     if not sets:
         raise MetasimError("no stimulus set given; allowed: " + ", ".join(STIMULUS_SETS) + " or a .csv file")
-    stimuli = combine(*sets)
-    labels = [str(v) for v in stimuli.stimulus.values]
-    if len(set(labels)) != len(labels):  # e.g. white in both the ramp and the primaries set
-        keep = np.unique(labels, return_index=True)[1]
-        stimuli = stimuli.isel(stimulus=np.sort(keep))
-    return stimuli
+    return combine(*sets)  # distinct colours: white in the ramp, the primaries and the cube is kept once
 
 
 def default_age_bands(observers: xr.Dataset):

@@ -13,6 +13,8 @@ from metasim.metamerism import stimuli
 from metasim.metamerism.stimuli import (
     cie_13_3_samples,
     combine,
+    distinct,
+    duplicate_colours,
     neutral_ramp,
     primaries_and_secondaries,
     read_stimuli_csv,
@@ -42,6 +44,8 @@ __all__ = [
     "xyz_set",
     "read_stimuli_csv",
     "combine",
+    "distinct",
+    "duplicate_colours",
     "summarise",
     "AGE_BANDS",
     "STATISTICS",

@@ -13,6 +13,15 @@ A stimulus set is an :class:`xarray.Dataset` with a ``stimulus`` dim and one of 
 ``reflectance``
     variable ``reflectance`` (``stimulus`` × ``wavelength``, 0..1) with attribute ``illuminant``
     (a CIE illuminant name known to colour-science, default D65): object colours.
+
+Distinct colours: two stimuli of one set are *the same colour* when every value that defines them
+(the three signals, the three XYZ values, or every reflectance factor) agrees within
+:data:`SAME_COLOUR_TOLERANCE`. Every set metasim builds holds distinct colours: the built-in sets
+do by construction and :func:`combine` merges repeats (keeping the first label; ``ramp`` and
+``cube`` both hold black and white, ``primaries`` and ``cube`` the primaries and secondaries).
+A set given by the user (:func:`rgb_set`, :func:`xyz_set`, :func:`reflectance_set`,
+:func:`read_stimuli_csv`) is kept as given, with a :class:`~metasim.errors.DuplicateStimulusWarning`
+naming the repeats; :func:`distinct` merges them.
 """
 
 from __future__ import annotations
@@ -20,16 +29,21 @@ from __future__ import annotations
 import csv
 import itertools
 import os
+import warnings
 from pathlib import Path
 
 import numpy as np
 import xarray as xr
 
-from metasim.errors import FileFormatError, StimulusError
+from metasim.errors import DuplicateStimulusWarning, FileFormatError, StimulusError
 from metasim.spectra import WAVELENGTH_ATTRS, _is_number, check_wavelengths, default_grid, read_spectra_csv, resample
 
 KINDS = ("rgb", "xyz", "reflectance")
 RGB = ("R", "G", "B")
+#: Two stimuli are the same colour when every defining value agrees within this (signal 0..1,
+#: XYZ with white Y = 100, or reflectance factor).
+SAME_COLOUR_TOLERANCE = 1e-9
+_VARIABLE = {"rgb": "signal", "xyz": "xyz_relative", "reflectance": "reflectance"}
 
 
 def rgb_set(values, labels, *, source: str = "bt709", encoding: str | None = None, description: str = "RGB signals") -> xr.Dataset:
@@ -45,8 +59,8 @@ def rgb_set(values, labels, *, source: str = "bt709", encoding: str | None = Non
     signal = xr.DataArray(values, dims=("stimulus", "primary"),
                           coords={"stimulus": list(labels), "primary": list(RGB)},
                           attrs={"units": "1", "long_name": f"encoded {source} RGB signal"})
-    return xr.Dataset({"signal": signal}, attrs={"kind": "rgb", "source": source, "encoding": encoding or "",
-                                                  "description": description})
+    return _warn_duplicates(xr.Dataset({"signal": signal}, attrs={
+        "kind": "rgb", "source": source, "encoding": encoding or "", "description": description}))
 
 
 def neutral_ramp(steps: int = 11, *, source: str = "bt709", encoding: str | None = None) -> xr.Dataset:
@@ -115,8 +129,8 @@ def reflectance_set(values, wavelengths, labels, *, illuminant: str = "D65", des
     refl = xr.DataArray(values, dims=("stimulus", "wavelength"),
                         coords={"stimulus": list(labels), "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
                         attrs={"units": "1", "long_name": "spectral reflectance factor"})
-    return xr.Dataset({"reflectance": refl}, attrs={"kind": "reflectance", "illuminant": illuminant,
-                                                     "description": description})
+    return _warn_duplicates(xr.Dataset({"reflectance": refl}, attrs={
+        "kind": "reflectance", "illuminant": illuminant, "description": description}))
 
 
 def xyz_set(values, labels, *, description: str = "XYZ targets") -> xr.Dataset:
@@ -130,7 +144,113 @@ def xyz_set(values, labels, *, description: str = "XYZ targets") -> xr.Dataset:
         raise StimulusError("XYZ stimuli must be finite and >= 0 (white Y = 100)")
     xyz = xr.DataArray(values, dims=("stimulus", "xyz"), coords={"stimulus": list(labels), "xyz": ["X", "Y", "Z"]},
                        attrs={"units": "1 (reference white Y = 100)", "long_name": "target tristimulus values"})
-    return xr.Dataset({"xyz_relative": xyz}, attrs={"kind": "xyz", "description": description})
+    return _warn_duplicates(xr.Dataset({"xyz_relative": xyz}, attrs={"kind": "xyz", "description": description}))
+
+
+def _colour_values(stimuli: xr.Dataset, kind: str) -> np.ndarray:
+    """The values that define each stimulus's colour: (stimulus, k) float."""
+    variable = stimuli[_VARIABLE[kind]]
+    other = [d for d in variable.dims if d != "stimulus"]
+    return np.asarray(variable.transpose("stimulus", *other).values, dtype=float).reshape(variable.sizes["stimulus"], -1)
+
+
+def duplicate_colours(stimuli: xr.Dataset, *, tolerance: float = SAME_COLOUR_TOLERANCE) -> list[list[int]]:
+    """Groups of stimuli that are the same colour (every defining value within ``tolerance``).
+
+    Parameters
+    ----------
+    stimuli : Dataset
+        A stimulus set.
+    tolerance : float
+        Largest absolute difference of any defining value (signal, XYZ or reflectance factor) for
+        two stimuli to count as one colour.
+
+    Returns
+    -------
+    list of list of int
+        One list of stimulus positions per repeated colour (two or more each, ascending, the first
+        one the stimulus a merge keeps); empty when every colour is distinct. Sameness is taken as
+        transitive (a chain of near-equal stimuli is one group).
+    """
+    values = _colour_values(stimuli, check_stimuli(stimuli))
+    n = values.shape[0]
+    # candidates by one weighted sum: |Σ r·(a − b)| <= tolerance·Σ r whenever max|a − b| <= tolerance,
+    # so sorting the sums and comparing neighbours within that reach finds every pair, no more
+    # than a few spurious ones, without comparing all n² pairs
+    weights = 1.0 + np.arange(values.shape[1]) / max(values.shape[1], 1)
+    key = values @ weights
+    reach = tolerance * weights.sum() * (1 + 1e-9) + 1e-12 * np.abs(key).max(initial=0.0)
+    order = np.argsort(key, kind="stable")
+    parent = np.arange(n)
+
+    def root(i):
+        while parent[i] != i:
+            parent[i] = parent[parent[i]]
+            i = parent[i]
+        return i
+
+    for a in range(n):  # Python over candidate neighbours only: they are rare
+        i = order[a]
+        for b in range(a + 1, n):
+            j = order[b]
+            if key[j] - key[i] > reach:
+                break
+            if np.abs(values[i] - values[j]).max() <= tolerance:
+                ri, rj = root(i), root(j)
+                if ri != rj:
+                    parent[max(ri, rj)] = min(ri, rj)
+    roots = np.array([root(i) for i in range(n)])
+    groups = {}
+    for i, r in enumerate(roots):
+        groups.setdefault(int(r), []).append(i)
+    return sorted((g for g in groups.values() if len(g) > 1), key=lambda g: g[0])
+
+
+def _describe(stimuli: xr.Dataset, groups) -> str:
+    labels = [str(v) for v in stimuli["stimulus"].values]
+    return "; ".join(" = ".join(repr(labels[i]) for i in group) for group in groups)
+
+
+def _warn_duplicates(stimuli: xr.Dataset) -> xr.Dataset:
+    """Warn (naming them) when a user-given set repeats a colour; the set is returned unchanged."""
+    groups = duplicate_colours(stimuli)
+    if groups:
+        extra = sum(len(g) - 1 for g in groups)
+        warnings.warn(
+            f"the stimulus set '{stimuli.attrs.get('description', '')}' holds {extra} repeated "
+            f"colour{'s' if extra > 1 else ''} ({_describe(stimuli, groups)}); pooled statistics count each "
+            "repeat again; merge them with metasim.metamerism.distinct()",
+            DuplicateStimulusWarning, stacklevel=3)
+    return stimuli
+
+
+def distinct(stimuli: xr.Dataset, *, tolerance: float = SAME_COLOUR_TOLERANCE) -> xr.Dataset:
+    """The stimulus set with every repeated colour merged into its first occurrence.
+
+    Parameters
+    ----------
+    stimuli : Dataset
+        A stimulus set.
+    tolerance : float
+        As for :func:`duplicate_colours`.
+
+    Returns
+    -------
+    Dataset
+        The set without repeats, in the original order; the attribute ``merged_stimuli`` lists what
+        was merged ("kept = dropped = ..."; empty when nothing was).
+    """
+    groups = duplicate_colours(stimuli, tolerance=tolerance)
+    out = stimuli
+    if groups:
+        drop = sorted(i for group in groups for i in group[1:])
+        keep = np.setdiff1d(np.arange(stimuli.sizes["stimulus"]), drop)
+        out = stimuli.isel(stimulus=keep)
+    out = out.copy()
+    previous = str(stimuli.attrs.get("merged_stimuli", ""))
+    now = _describe(stimuli, groups)
+    out.attrs["merged_stimuli"] = "; ".join(t for t in (previous, now) if t)
+    return out
 
 
 def _check_illuminant(name: str) -> None:
@@ -161,7 +281,7 @@ def check_stimuli(stimuli: xr.Dataset) -> str:
             "cie_13_3_samples, read_stimuli_csv)"
         )
     kind = stimuli.attrs["kind"]
-    variable = {"rgb": "signal", "xyz": "xyz_relative", "reflectance": "reflectance"}[kind]
+    variable = _VARIABLE[kind]
     if variable not in stimuli or "stimulus" not in stimuli[variable].dims:
         raise StimulusError(f"a '{kind}' stimulus set needs a '{variable}' variable with a 'stimulus' dim")
     if stimuli.sizes.get("stimulus", 0) == 0:
@@ -170,7 +290,13 @@ def check_stimuli(stimuli: xr.Dataset) -> str:
 
 
 def combine(*sets: xr.Dataset) -> xr.Dataset:
-    """Concatenate stimulus sets of the same kind (and source/illuminant) along ``stimulus``."""
+    """Concatenate stimulus sets of the same kind (and source/illuminant) along ``stimulus``.
+
+    The result holds distinct colours: a colour given more than once (say white in a ramp, the
+    primaries and an RGB grid) is kept once, under its first label (:func:`distinct`; attribute
+    ``merged_stimuli``). Different colours that share a label get `` (2)``, `` (3)``, ... appended
+    to the later labels (attribute ``renamed_stimuli``).
+    """
     if not sets:
         raise StimulusError("combine needs at least one stimulus set")
     kinds = {check_stimuli(s) for s in sets}
@@ -184,6 +310,20 @@ def combine(*sets: xr.Dataset) -> xr.Dataset:
             raise StimulusError(f"stimulus sets differ in {first} vs {other}; combine sets with the same settings")
     out = xr.concat(sets, dim="stimulus", combine_attrs="override")
     out.attrs["description"] = " + ".join(s.attrs.get("description", "") for s in sets)
+    out.attrs.pop("merged_stimuli", None)
+    out = distinct(out)
+    labels = [str(v) for v in out["stimulus"].values]
+    if len(set(labels)) != len(labels):
+        unique, renamed = [], []
+        for label in labels:
+            new, i = label, 2
+            while new in unique or (new != label and new in labels):
+                new, i = f"{label} ({i})", i + 1
+            if new != label:
+                renamed.append(f"{label!r} -> {new!r}")
+            unique.append(new)
+        out = out.assign_coords(stimulus=unique)
+        out.attrs["renamed_stimuli"] = "; ".join(renamed)
     return out
 
 
@@ -249,5 +389,8 @@ __all__ = [
     "illuminant_spectrum",
     "check_stimuli",
     "combine",
+    "SAME_COLOUR_TOLERANCE",
+    "duplicate_colours",
+    "distinct",
     "read_stimuli_csv",
 ]
