@@ -52,6 +52,18 @@ class FileFormatError(MetasimError, ValueError):
     """A file cannot be read: missing, empty, or not in the expected layout."""
 
 
+class OutputError(MetasimError, ValueError):
+    """An output path cannot be written as asked (see :func:`metasim.io.check_outputs`)."""
+
+
+class OutputExistsError(OutputError):
+    """An output file exists already and replacing it was not asked for."""
+
+
+class OutputIsInputError(OutputError):
+    """An output path names one of the command's input files (or two outputs name one file)."""
+
+
 __all__ = [
     "MetasimError",
     "MetasimWarning",
@@ -64,4 +76,7 @@ __all__ = [
     "StimulusError",
     "SweepError",
     "FileFormatError",
+    "OutputError",
+    "OutputExistsError",
+    "OutputIsInputError",
 ]

@@ -1,5 +1,31 @@
-"""netCDF4 save and load for any metasim Dataset, lossless for values, coordinates and attributes.
+"""Files: safe writing of every output, and lossless netCDF4 save/load of metasim Datasets.
 
+Writing outputs (every file metasim writes goes through these)
+-------------------------------------------------------------
+* :func:`check_outputs` — call it once, before computing anything, with every file the job will
+  write and every file it reads. It refuses an output that is one of the inputs (or two outputs
+  that are one file), refuses an output that exists unless ``replace=True``, and removes temporary
+  files that an earlier, killed run left beside those outputs. It raises
+  :class:`~metasim.errors.OutputIsInputError` / :class:`~metasim.errors.OutputExistsError`.
+* :func:`atomic_output` — a context manager that yields a temporary path ``NAME.<pid>.partial``
+  beside ``NAME``; write the file there, and when the block ends normally it is renamed onto
+  ``NAME`` in one step (on error, or if the process dies, no file appears under ``NAME``; a killed
+  run's ``*.partial`` is removed by the next :func:`check_outputs` of the same output).
+  :func:`write_bytes` and :func:`write_text` are the one-call forms; :func:`save_dataset` uses it.
+
+Typical command::
+
+    outputs = [out / "result.nc", out / "table.csv"]
+    check_outputs(outputs, inputs=[spec_path, observers_path], replace=replace)   # before computing
+    ...                                                                             # compute
+    save_dataset(result, out / "result.nc")
+    write_text(out / "table.csv", text)
+
+The helpers import only the standard library (numpy and xarray are imported by the netCDF
+functions when called), so a command can check its paths before loading the heavy modules.
+
+netCDF
+------
 netCDF attributes hold only strings, numbers and numeric vectors. Anything else a metasim result may
 carry in its attributes (booleans, None, dicts, lists of strings, nested parameter records) is stored
 as a JSON string, and the names of those attributes are listed in the attribute
@@ -8,20 +34,209 @@ as a JSON string, and the names of those attributes are listed in the attribute
 
 from __future__ import annotations
 
+import contextlib
+import glob
 import json
 import os
 from pathlib import Path
+from typing import Iterable, Iterator
 
-import numpy as np
-import xarray as xr
-
-from metasim.errors import FileFormatError
+from metasim.errors import FileFormatError, OutputError, OutputExistsError, OutputIsInputError
 
 _JSON_LIST = "metasim_json_attrs"
 _DATAARRAY_FLAG = "metasim_dataarray_name"
 
 
+PARTIAL_SUFFIX = ".partial"
+
+
+# -- writing outputs safely -----------------------------------------------------------------------
+
+def partial_path(path: str | os.PathLike) -> Path:
+    """The temporary name ``NAME.<pid>.partial`` an output is written under before its rename."""
+    path = Path(path)
+    return path.with_name(f"{path.name}.{os.getpid()}{PARTIAL_SUFFIX}")
+
+
+def process_alive(pid: int) -> bool:
+    """Whether a process with this id runs on this machine (True when that cannot be told)."""
+    if pid == os.getpid():
+        return True
+    if pid <= 0:
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except OSError:  # e.g. PermissionError: it exists but belongs to someone else
+        return True
+    return True
+
+
+def remove_stale_partials(path: str | os.PathLike) -> list[Path]:
+    """Remove ``NAME.<pid>.partial`` files of the output ``path`` whose process is gone.
+
+    Returns the files removed. Temporary files of running processes are left alone.
+    """
+    path = Path(path)
+    if not path.parent.is_dir():
+        return []
+    removed = []
+    for text in glob.glob(glob.escape(str(path)) + ".*" + PARTIAL_SUFFIX) + [str(path) + PARTIAL_SUFFIX]:
+        candidate = Path(text)
+        middle = candidate.name[len(path.name) + 1:-len(PARTIAL_SUFFIX)]
+        stale = candidate.name == path.name + PARTIAL_SUFFIX or (middle.isdigit() and not process_alive(int(middle)))
+        if stale and candidate.is_file():
+            with contextlib.suppress(FileNotFoundError):
+                candidate.unlink()
+                removed.append(candidate)
+    return removed
+
+
+def same_file(a: str | os.PathLike, b: str | os.PathLike) -> bool:
+    """Whether two paths name one file (through links, ``..`` or a relative path)."""
+    a, b = Path(a), Path(b)
+    with contextlib.suppress(OSError):
+        if a.exists() and b.exists():
+            return os.path.samefile(a, b)
+    return os.path.normcase(os.path.realpath(a)) == os.path.normcase(os.path.realpath(b))
+
+
+def check_outputs(outputs: Iterable, *, inputs: Iterable = (), replace: bool = False) -> list[Path]:
+    """Check the files a job will write before it computes anything; returns them as paths.
+
+    Refuses (nothing is written or removed then):
+
+    * an output that is one of ``inputs``, or two outputs that name one file
+      (:class:`~metasim.errors.OutputIsInputError`);
+    * an output that is a folder (:class:`~metasim.errors.OutputError`);
+    * an output that exists, unless ``replace`` (:class:`~metasim.errors.OutputExistsError`).
+
+    Then removes the temporary ``*.partial`` files an earlier, killed run left for these outputs
+    (:func:`remove_stale_partials`). ``None`` entries are skipped.
+    """
+    outs = [Path(o) for o in outputs if o is not None]
+    ins = [Path(i) for i in inputs if i is not None]
+    for i, out in enumerate(outs):
+        for source in ins:
+            if same_file(out, source):
+                also = f" (as {source})" if str(source) != str(out) else ""
+                raise OutputIsInputError(f"{out}: is an output and also an input{also}; nothing was written; "
+                                         "give the output another name")
+        for other in outs[:i]:
+            if same_file(out, other):
+                also = f" (also as {other})" if str(other) != str(out) else ""
+                raise OutputIsInputError(f"{out}: is named for two outputs{also}; nothing was written; give each "
+                                         "output its own name")
+        if out.is_dir():
+            raise OutputError(f"{out}: is a folder; give a file name for this output")
+    existing = [out for out in outs if out.exists() or out.is_symlink()]
+    if existing and not replace:
+        more = f" (and {len(existing) - 1} more)" if len(existing) > 1 else ""
+        raise OutputExistsError(f"{existing[0]}: exists already{more}; nothing was written; give replace=True "
+                                "to replace existing outputs")
+    for out in outs:
+        remove_stale_partials(out)
+    return outs
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | os.PathLike, *, replace: bool = True) -> Iterator[Path]:
+    """Write one output file under a temporary name and rename it into place when complete.
+
+    ::
+
+        with atomic_output("report.html") as tmp:
+            tmp.write_text(html, encoding="utf-8")
+
+    The block writes to ``tmp`` (``NAME.<pid>.partial`` in the same folder); when it ends normally
+    the file is flushed to disk and renamed onto ``path`` in one step, so ``path`` is either the old
+    file or the complete new one, never a partial one. If the block raises, the temporary file is
+    removed. With ``replace=False`` an existing ``path`` is never replaced
+    (:class:`~metasim.errors.OutputExistsError`, also when it appears while the block runs).
+    """
+    path = Path(path)
+    if path.is_dir():
+        raise OutputError(f"{path}: is a folder; give a file name for this output")
+    if not path.parent.is_dir():
+        raise OutputError(f"{path}: folder {path.parent} does not exist")
+    if not replace and (path.exists() or path.is_symlink()):
+        raise OutputExistsError(f"{path}: exists already; nothing was written; give replace=True to replace it")
+    tmp = partial_path(path)
+    try:
+        yield tmp
+        if not tmp.is_file():
+            raise OutputError(f"{path}: nothing was written to the temporary file {tmp.name}")
+        with open(tmp, "rb+") as handle:
+            os.fsync(handle.fileno())
+        if replace:
+            os.replace(tmp, path)
+        else:
+            try:
+                os.link(tmp, path)  # fails if path exists, atomically
+            except FileExistsError:
+                raise OutputExistsError(f"{path}: appeared while it was being written; nothing was replaced") from None
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            tmp.unlink()
+
+
+def write_bytes(path: str | os.PathLike, data: bytes, *, replace: bool = True) -> Path:
+    """Write ``data`` to ``path`` through :func:`atomic_output`; returns the path."""
+    with atomic_output(path, replace=replace) as tmp:
+        tmp.write_bytes(data)
+    return Path(path)
+
+
+def write_text(path: str | os.PathLike, text: str, *, replace: bool = True, encoding: str = "utf-8") -> Path:
+    """Write ``text`` to ``path`` through :func:`atomic_output`; returns the path."""
+    with atomic_output(path, replace=replace) as tmp:
+        tmp.write_text(text, encoding=encoding, newline="")
+    return Path(path)
+
+
+# -- reading text ---------------------------------------------------------------------------------
+
+_WIDE_BOMS = {b"\xff\xfe\x00\x00": "UTF-32", b"\x00\x00\xfe\xff": "UTF-32", b"\xff\xfe": "UTF-16",
+              b"\xfe\xff": "UTF-16"}
+
+
+def read_text_file(path: str | os.PathLike, what: str = "text file") -> str:
+    """The text of a UTF-8 file (a UTF-8 byte-order mark is dropped), for TOML and CSV inputs.
+
+    Raises :class:`~metasim.errors.FileFormatError` naming the file for a missing file or folder,
+    a file that cannot be read, UTF-16/UTF-32 text, bytes that are not UTF-8 (with the first bad
+    byte and its position) and NUL bytes (binary data), so no reader meets undecodable input.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise FileFormatError(f"{path}: no such file")
+    if path.is_dir():
+        raise FileFormatError(f"{path}: is a folder, not a {what}")
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise FileFormatError(f"{path}: cannot be read ({exc.strerror or exc})") from None
+    for bom, name in _WIDE_BOMS.items():
+        if data.startswith(bom):
+            raise FileFormatError(f"{path}: is {name} text; save the {what} as UTF-8")
+    try:
+        text = data.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = data[:exc.start].count(b"\n") + 1
+        raise FileFormatError(f"{path}:{line}: byte 0x{data[exc.start]:02x} is not UTF-8 text; save the {what} as "
+                              "UTF-8 (Latin-1 and other encodings are not read)") from None
+    if "\x00" in text:
+        line = text[:text.index("\x00")].count("\n") + 1
+        raise FileFormatError(f"{path}:{line}: holds NUL bytes; not a {what}")
+    return text
+
+
+# -- netCDF ---------------------------------------------------------------------------------------
+
 def _plain(value) -> bool:
+    import numpy as np
+
     if isinstance(value, bool) or value is None:
         return False
     if isinstance(value, (str, int, float, np.integer, np.floating)):
@@ -32,6 +247,8 @@ def _plain(value) -> bool:
 
 
 def _to_json(value):
+    import numpy as np
+
     if isinstance(value, np.ndarray):
         return {"__ndarray__": value.tolist(), "dtype": str(value.dtype)}
     if isinstance(value, (np.integer,)):
@@ -50,6 +267,8 @@ def _to_json(value):
 
 
 def _from_json(value):
+    import numpy as np
+
     if isinstance(value, dict):
         if "__ndarray__" in value:
             return np.asarray(value["__ndarray__"], dtype=value["dtype"])
@@ -80,22 +299,42 @@ def _encode_attrs(attrs: dict, where: str) -> dict:
     return out
 
 
-def _decode_attrs(attrs: dict) -> dict:
+def _decode_attrs(attrs: dict, where: str) -> dict:
+    import numpy as np
+
     attrs = dict(attrs)
-    encoded = json.loads(attrs.pop(_JSON_LIST, "[]"))
+    listed = attrs.pop(_JSON_LIST, "[]")
+    try:
+        encoded = json.loads(listed)
+    except (TypeError, ValueError):
+        raise FileFormatError(f"{where}: attribute {_JSON_LIST!r} = {str(listed)[:60]!r} is not a JSON list of "
+                              "attribute names; the file was not written by metasim or was edited") from None
+    if not isinstance(encoded, list) or not all(isinstance(k, str) for k in encoded):
+        raise FileFormatError(f"{where}: attribute {_JSON_LIST!r} must be a JSON list of attribute names, got "
+                              f"{str(listed)[:60]!r}")
     for key in encoded:
-        attrs[key] = _from_json(json.loads(attrs[key]))
+        if key not in attrs:
+            raise FileFormatError(f"{where}: attribute {key!r} is listed in {_JSON_LIST!r} but missing")
+        try:
+            attrs[key] = _from_json(json.loads(attrs[key]))
+        except (TypeError, ValueError, KeyError):
+            raise FileFormatError(f"{where}: attribute {key!r} = {str(attrs[key])[:60]!r} is not valid JSON "
+                                  "(metasim stores it as JSON); the file was edited or not written by metasim") from None
     for key, value in attrs.items():
         if isinstance(value, np.ndarray) and value.ndim == 0:
             attrs[key] = value.item()
     return attrs
 
 
-def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike) -> Path:
-    """Save a metasim Dataset (or DataArray) to a netCDF4 file, losslessly.
+def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, replace: bool = True) -> Path:
+    """Save a metasim Dataset (or DataArray) to a netCDF4 file, losslessly; returns the path written.
 
-    Returns the path written. Existing files are replaced.
+    Written through :func:`atomic_output` (a temporary ``*.partial`` file renamed when complete).
+    An existing file is replaced unless ``replace=False``
+    (:class:`~metasim.errors.OutputExistsError`).
     """
+    import xarray as xr
+
     path = Path(path)
     if isinstance(data, xr.DataArray):
         name = data.name if data.name is not None else "values"
@@ -113,11 +352,8 @@ def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike) -> Pa
     for name in list(out.variables):
         out[name].attrs = _encode_attrs(ds[name].attrs, f"{path}:{name}")
         out[name].encoding = {"_FillValue": None}
-    if path.parent and not path.parent.exists():
-        raise FileFormatError(f"{path}: folder {path.parent} does not exist")
-    tmp = path.with_name(path.name + ".partial")
-    out.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
-    os.replace(tmp, path)
+    with atomic_output(path, replace=replace) as tmp:
+        out.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
     return path
 
 
@@ -125,25 +361,32 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
     """Load a file written by :func:`save_dataset`, restoring attributes exactly.
 
     Returns a DataArray if a DataArray was saved, else a Dataset, fully loaded into memory.
+    Raises :class:`~metasim.errors.FileFormatError` for a missing or unreadable file and for
+    attributes metasim stores as JSON that do not hold JSON.
     """
+    import xarray as xr
+
     path = Path(path)
     if not path.is_file():
         raise FileFormatError(f"{path}: no such file")
     try:
         with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False) as handle:
             ds = handle.load()
-    except (OSError, ValueError) as exc:
+    except (OSError, ValueError, RuntimeError, KeyError, IndexError) as exc:
         raise FileFormatError(f"{path}: not a readable netCDF4 file ({exc})") from None
-    ds.attrs = _decode_attrs(ds.attrs)
+    ds.attrs = _decode_attrs(ds.attrs, str(path))
     for name in list(ds.variables):
-        ds[name].attrs = _decode_attrs(ds[name].attrs)
+        ds[name].attrs = _decode_attrs(ds[name].attrs, f"{path}: variable {name!r}")
         ds[name].encoding = {}
         if ds[name].dtype == object:
             ds[name] = ds[name].astype(str)
     flag = ds.attrs.pop(_DATAARRAY_FLAG, None)
     if flag is not None:
+        if flag not in ds:
+            raise FileFormatError(f"{path}: attribute {_DATAARRAY_FLAG!r} names {flag!r}, which the file does not hold")
         return ds[flag]
     return ds
 
 
-__all__ = ["save_dataset", "load_dataset"]
+__all__ = ["PARTIAL_SUFFIX", "partial_path", "process_alive", "remove_stale_partials", "same_file", "check_outputs",
+           "atomic_output", "write_bytes", "write_text", "read_text_file", "save_dataset", "load_dataset"]

@@ -31,6 +31,12 @@ Studies are assembled by :mod:`metasim.cli.study`; nothing in this package model
 Errors from bad input (unknown options, missing or malformed files, bad specs, values outside what
 a model allows) end the command with one line ``metasim: error: ...`` on stderr and exit code 2
 (usage) or 1 (everything else); never a traceback.
+
+Files: every command first checks, before loading the numerical modules, that its input files exist
+and are readable and that no output would replace an input (:mod:`metasim.cli.paths`); an output
+that exists already is replaced only with ``--replace`` (the same option on every subcommand),
+otherwise the command stops before computing, naming the file. Every output is written under a
+temporary ``*.partial`` name and renamed when complete (:func:`metasim.io.atomic_output`).
 """
 
 from __future__ import annotations
@@ -42,6 +48,7 @@ from pathlib import Path
 
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
+from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE, check_command_files
 from metasim.errors import MetasimError
 
 PROG = "metasim"
@@ -50,12 +57,23 @@ STRATEGIES = ("min_norm", "max_efficiency", "population")
 SOURCES = ("bt709", "srgb", "display_p3", "bt2020")
 
 
+#: library keyword hints in messages, as the command-line option that does the same
+CLI_OPTIONS = {"replace=True": "--replace"}
+
+
+def _for_cli(text) -> str:
+    text = " ".join(str(text).split())
+    for keyword, option in CLI_OPTIONS.items():
+        text = text.replace(keyword, option)
+    return text
+
+
 def _error(text: str) -> None:
-    print(f"{PROG}: error: {' '.join(str(text).split())}", file=sys.stderr)
+    print(f"{PROG}: error: {_for_cli(text)}", file=sys.stderr)
 
 
 def _warning(message, category, filename, lineno, file=None, line=None) -> None:
-    print(f"{PROG}: warning: {' '.join(str(message).split())}", file=sys.stderr)
+    print(f"{PROG}: warning: {_for_cli(message)}", file=sys.stderr)
 
 
 # -- subcommands -------------------------------------------------------------------------------------
@@ -63,7 +81,7 @@ def _warning(message, category, filename, lineno, file=None, line=None) -> None:
 def cmd_demo(args) -> int:
     from metasim.cli.demo import run_demo
 
-    paths = run_demo(args.out, size=args.size, seed=args.seed, quiet=args.quiet)
+    paths = run_demo(args.out, size=args.size, seed=args.seed, quiet=args.quiet, replace=args.replace)
     _print_headline(paths["result"])
     print(f"result:  {paths['result_path']}")
     print(f"report:  {paths['report_path']}")
@@ -79,13 +97,13 @@ def cmd_observers(args) -> int:
     if out.suffix != ".nc":
         raise MetasimError(f"--out {out}: give a netCDF file name ending in .nc")
     population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories)
-    save_dataset(population, out)
+    save_dataset(population, out, replace=args.replace)
     what = f"{args.categories} categories of {args.size} observers" if args.categories else f"{args.size} observers"
     print(f"wrote {out}: {what}, ages {args.ages}, field size {args.field_size} deg, seed {args.seed}")
     if args.report:
         from metasim.report import write_report
 
-        print(f"report: {write_report(population, args.report, source=out.name)}")
+        print(f"report: {write_report(population, args.report, source=out.name, replace=args.replace, inputs=args.inputs)}")
     return 0
 
 
@@ -123,9 +141,13 @@ def _age_bands(args):
 
 def _study(args, designs: list, reference, specs: dict) -> int:
     from metasim.cli.study import Progress, build_stimuli, run_study
-    from metasim.io import save_dataset
-    from metasim.report import write_report
+    from metasim.io import check_outputs, save_dataset
+    from metasim.report import report_outputs, write_report
 
+    out = Path(args.out)
+    figures = out / FIGURES_DIR
+    if not args.no_report:  # the figure files too, before computing
+        check_outputs(report_outputs("study", out / REPORT_FILE, figures), inputs=args.inputs, replace=args.replace)
     stimuli_text = args.stimuli or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     if reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
@@ -139,16 +161,16 @@ def _study(args, designs: list, reference, specs: dict) -> int:
                        strategy=args.strategy, age_bands=bands, specs=specs, progress=progress,
                        extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
                        rank_calibration=args.choices, white_categories=6 if args.choices else 0, seed=args.seed)
-    out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
-    result_path = save_dataset(result, out / "study.nc")
+    result_path = save_dataset(result, out / RESULT_FILE, replace=args.replace)
     progress.step(f"wrote {result_path}")
     _print_headline(result)
     print(f"result:  {result_path}")
     if not args.no_report:
-        report = write_report(result, out / "report.html", figures_dir=out / "figures", source=result_path.name)
+        report = write_report(result, out / REPORT_FILE, figures_dir=figures, source=result_path.name,
+                              replace=args.replace, inputs=args.inputs)
         print(f"report:  {report}")
-        print(f"figures: {out / 'figures'}")
+        print(f"figures: {figures}")
     return 0
 
 
@@ -180,8 +202,8 @@ def cmd_report(args) -> int:
     data = load_dataset(args.result)
     if not hasattr(data, "data_vars"):
         raise MetasimError(f"{args.result}: holds a single array, not a metasim result Dataset")
-    out = Path(args.out) if args.out else Path(args.result).with_suffix(".html")
-    print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name)}")
+    out = args.outputs[0]
+    print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name, replace=args.replace, inputs=args.inputs)}")
     return 0
 
 
@@ -214,6 +236,7 @@ def cmd_sweep(args) -> int:
                        per_stimulus=bool(args.per_stimulus if args.per_stimulus is not None
                                          else spec.get("per_stimulus", False)),
                        age_bands=_age_bands(args) or default_age_bands(observers), progress=progress,
+                       replace=args.replace,
                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
     p95 = result["delta_e_2000_overall"].sel(statistic="p95")
@@ -265,6 +288,14 @@ EXAMPLES = {
 }
 
 
+REPLACE_HELP = {
+    None: "replace output files that exist already (default: stop before computing, naming the file); "
+          "an output is never allowed to be one of the input files",
+    "sweep": "if the store folder holds a different sweep, remove its metasim files (manifest, chunks, sweep.nc) "
+             "and start afresh (default: stop, naming the folder); a store of the same sweep always resumes",
+}
+
+
 def _population_options(parser, observers_file: bool = True) -> None:
     group = parser.add_argument_group("observers")
     if observers_file:
@@ -313,6 +344,7 @@ def build_parser() -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=help_text, description=help_text, epilog=EXAMPLES[name],
                            formatter_class=argparse.RawDescriptionHelpFormatter)
         p.add_argument("--quiet", action="store_true", default=argparse.SUPPRESS, help="no progress lines on stderr")
+        p.add_argument("--replace", action="store_true", help=REPLACE_HELP.get(name, REPLACE_HELP[None]))
         p.set_defaults(run=run)
         return p
 
@@ -370,11 +402,13 @@ def main(argv=None) -> int:
     args = parser.parse_args(argv)
     args.quiet = bool(getattr(args, "quiet", False))
     keep_freed_memory()  # many studies in one process: reuse freed memory (metasim._memory)
-    warnings.showwarning = _warning
-    warnings.filterwarnings("ignore", module="colour")
-    warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
     try:
-        return int(args.run(args) or 0)
+        with warnings.catch_warnings():  # restored on return: main() may run many times in one process
+            warnings.showwarning = _warning
+            warnings.filterwarnings("ignore", module="colour")
+            warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
+            check_command_files(args)  # inputs and outputs, before the numerical modules load
+            return int(args.run(args) or 0)
     except MetasimError as exc:
         _error(exc)
     except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:

@@ -15,8 +15,9 @@ from pathlib import Path
 from metasim._paths import data_dir
 from metasim.cli.specs import load_display
 from metasim.cli.study import Progress, build_population, build_stimuli, run_study
-from metasim.io import save_dataset
-from metasim.report import write_report
+from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE
+from metasim.io import check_outputs, save_dataset
+from metasim.report import report_outputs, write_report
 
 DEMO_DIR = data_dir() / "demo"
 REFERENCE_SPEC = "grading_monitor.toml"
@@ -25,9 +26,15 @@ AUDIENCE_AGES = "20-70"
 STIMULI = "ramp:6,primaries,{csv}"
 
 
-def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False) -> dict:
-    """Run the demo study into the folder ``out``; returns the paths written and the result."""
+def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, replace: bool = False) -> dict:
+    """Run the demo study into the folder ``out``; returns the paths written and the result.
+
+    Existing outputs (``study.nc``, ``report.html``, the figures) are replaced only with ``replace``;
+    otherwise the demo stops before computing (:func:`metasim.io.check_outputs`).
+    """
     out = Path(out)
+    figures = out / FIGURES_DIR
+    check_outputs([out / RESULT_FILE, *report_outputs("study", out / REPORT_FILE, figures)], replace=replace)
     out.mkdir(parents=True, exist_ok=True)
     progress = Progress(12, quiet=quiet)
     reference, ref_spec = load_display(DEMO_DIR / REFERENCE_SPEC)
@@ -45,11 +52,10 @@ def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False) ->
     result.attrs["title"] = "Kestrel Lane Post: screening-room projector candidates against the grading monitor"
     result.attrs["scenario"] = ("invented demo: a post-production house weighs two projector designs against its "
                                 "broadband grading monitor for audiences aged 20-70")
-    result_path = save_dataset(result, out / "study.nc")
-    report_path = write_report(result, out / "report.html", figures_dir=out / "figures", source="study.nc")
-    progress.step(f"wrote {result_path}, {report_path} and {out / 'figures'}")
-    return {"result": result, "result_path": result_path, "report_path": report_path,
-            "figures_dir": out / "figures"}
+    result_path = save_dataset(result, out / RESULT_FILE, replace=replace)
+    report_path = write_report(result, out / REPORT_FILE, figures_dir=figures, source=RESULT_FILE, replace=replace)
+    progress.step(f"wrote {result_path}, {report_path} and {figures}")
+    return {"result": result, "result_path": result_path, "report_path": report_path, "figures_dir": figures}
 
 
 __all__ = ["DEMO_DIR", "run_demo"]

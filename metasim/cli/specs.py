@@ -45,19 +45,15 @@ The display is then white-calibrated (:func:`metasim.display.calibrate_white`) t
 
 from __future__ import annotations
 
-import tomllib
 from pathlib import Path
 
 from metasim import emitters
+from metasim.cli.paths import SpecError, read_toml
 from metasim.display import WHITE_POINTS, Display, calibrate_white, make_display
 from metasim.display.transfer import DEFAULT_PEAK_LUMINANCE, TRANSFER_FUNCTIONS
 from metasim.errors import MetasimError
 from metasim.observers import STANDARD_OBSERVERS
 from metasim.spectra import default_grid
-
-
-class SpecError(MetasimError, ValueError):
-    """A display design spec cannot be read or names something metasim does not know."""
 
 
 TOP_KEYS = ("name", "description", "transfer", "gamma", "peak_luminance", "black_luminance", "white",
@@ -80,16 +76,7 @@ COMMON_KEYS = ("label", "type", "radiance")
 
 def read_spec(path) -> dict:
     """The parsed TOML of a spec file, with ``_path`` (the file) and ``_text`` (its text) added."""
-    path = Path(path)
-    if not path.is_file():
-        raise SpecError(f"{path}: no such design spec file")
-    text = path.read_text(encoding="utf-8")
-    try:
-        spec = tomllib.loads(text)
-    except tomllib.TOMLDecodeError as exc:
-        raise SpecError(f"{path}: not valid TOML ({exc})") from None
-    spec["_path"], spec["_text"] = path, text
-    return spec
+    return read_toml(path, "design spec")
 
 
 def _unknown(where: str, table: dict, allowed) -> None:

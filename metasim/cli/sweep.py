@@ -41,7 +41,8 @@ from pathlib import Path
 
 import numpy as np
 
-from metasim.cli.specs import SpecError, load_display, read_spec, spec_settings
+from metasim.cli.paths import SpecError, read_toml, relative_to
+from metasim.cli.specs import load_display, spec_settings
 from metasim.errors import MetasimError
 from metasim.sweep import GRID_KINDS, design_grid
 
@@ -82,7 +83,7 @@ def value_list(where: str, value) -> list[float]:
 
 def read_sweep_spec(path) -> dict:
     """The parsed sweep spec (``_path``, ``_text`` added), its keys and value types checked."""
-    spec = read_spec(path)
+    spec = read_toml(path, "sweep spec")
     where = str(spec["_path"])
     _unknown(where, spec, TOP_KEYS)
     vary = spec.get("vary")
@@ -114,8 +115,8 @@ def read_sweep_spec(path) -> dict:
 
 
 def relative(spec: dict, value: str) -> Path:
-    path = Path(value)
-    return path if path.is_absolute() else Path(spec["_path"]).parent / path
+    """A path written in the sweep spec (absolute, or relative to the spec's folder)."""
+    return relative_to(spec["_path"], value)
 
 
 def sweep_designs(spec: dict):

@@ -27,6 +27,7 @@ naming the repeats; :func:`distinct` merges them.
 from __future__ import annotations
 
 import csv
+import io
 import itertools
 import os
 import warnings
@@ -36,6 +37,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import DuplicateStimulusWarning, FileFormatError, StimulusError
+from metasim.io import read_text_file
 from metasim.spectra import WAVELENGTH_ATTRS, _is_number, check_wavelengths, default_grid, read_spectra_csv, resample
 
 KINDS = ("rgb", "xyz", "reflectance")
@@ -345,27 +347,29 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
         return reflectance_set(spectra.values, spectra.wavelength.values, list(spectra.channel.values),
                                illuminant=illuminant, description=f"reflectances from {path.name}")
     expected = ["R", "G", "B"] if kind == "rgb" else ["X", "Y", "Z"]
-    if not path.is_file():
-        raise FileFormatError(f"{path}: no such file")
+    text = read_text_file(path, "CSV file")
     labels, rows = [], []
-    with path.open(newline="", encoding="utf-8-sig") as handle:
-        header = None
-        for line_no, record in enumerate(csv.reader(handle), start=1):
-            if not record or record[0].strip().startswith("#") or all(not c.strip() for c in record):
-                continue
-            if header is None:
-                header = [c.strip() for c in record]
-                if [h.upper() for h in header[1:]] != expected or len(header) != 4:
-                    raise FileFormatError(f"{path}:{line_no}: header {header} must be name,{','.join(expected)}")
-                continue
-            if len(record) != 4:
-                raise FileFormatError(f"{path}:{line_no}: {len(record)} cells; expected 4 (name,{','.join(expected)})")
-            try:
-                rows.append([float(c) for c in record[1:]])
-            except ValueError:
-                bad = next(c for c in record[1:] if not _is_number(c))
-                raise FileFormatError(f"{path}:{line_no}: cell {bad.strip()!r} is not a number") from None
-            labels.append(record[0].strip())
+    header = None
+    try:
+        records = list(csv.reader(io.StringIO(text, newline="")))
+    except csv.Error as exc:
+        raise FileFormatError(f"{path}: not a readable CSV file ({exc})") from None
+    for line_no, record in enumerate(records, start=1):
+        if not record or record[0].strip().startswith("#") or all(not c.strip() for c in record):
+            continue
+        if header is None:
+            header = [c.strip() for c in record]
+            if [h.upper() for h in header[1:]] != expected or len(header) != 4:
+                raise FileFormatError(f"{path}:{line_no}: header {header} must be name,{','.join(expected)}")
+            continue
+        if len(record) != 4:
+            raise FileFormatError(f"{path}:{line_no}: {len(record)} cells; expected 4 (name,{','.join(expected)})")
+        try:
+            rows.append([float(c) for c in record[1:]])
+        except ValueError:
+            bad = next(c for c in record[1:] if not _is_number(c))
+            raise FileFormatError(f"{path}:{line_no}: cell {bad.strip()!r} is not a number") from None
+        labels.append(record[0].strip())
     if header is None:
         raise FileFormatError(f"{path}: file is empty; expected a header name,{','.join(expected)} and rows")
     if not rows:

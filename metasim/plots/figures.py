@@ -26,6 +26,8 @@ from matplotlib import rc_context
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from metasim.io import write_bytes
+
 REFERENCE_COLOUR = "#2b3a55"
 DESIGN_COLOURS = ("#d9633b", "#2a9d8f", "#8e5ea2", "#b8a31f", "#5b7fbf", "#a34f4f")
 OUTLINE_COLOUR = "#7d7d7d"
@@ -53,11 +55,9 @@ def png_bytes(fig: Figure) -> bytes:
     return buffer.getvalue()
 
 
-def save_png(fig: Figure, path) -> Path:
-    """Write the figure as a PNG file; returns the path."""
-    path = Path(path)
-    path.write_bytes(png_bytes(fig))
-    return path
+def save_png(fig: Figure, path, *, replace: bool = True) -> Path:
+    """Write the figure as a PNG file (through :func:`metasim.io.write_bytes`); returns the path."""
+    return write_bytes(path, png_bytes(fig), replace=replace)
 
 
 def colours_for(names, roles=None) -> dict:

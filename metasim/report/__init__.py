@@ -26,7 +26,8 @@ import xarray as xr
 
 from metasim import plots
 from metasim._version import __version__
-from metasim.errors import MetasimError
+from metasim.errors import MetasimError, OutputError
+from metasim.io import check_outputs, write_bytes, write_text
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
@@ -305,19 +306,46 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
             f"<style>{STYLE}</style></head><body><main>{''.join(body)}</main></body></html>")
 
 
-def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = None, source: str | None = None) -> Path:
-    """Write :func:`render_report` to ``path``; with ``figures_dir`` also each figure as a PNG file."""
+#: the figure files a report may write, by result kind (file stems; see :func:`report_figures`)
+FIGURE_NAMES = {
+    "study": ("chromaticity", "spectra", "age_bands", "p95_by_stimulus", "extra_primary"),
+    "population": ("observers",),
+    "sweep": ("sweep",),
+}
+
+
+def report_outputs(kind: str, path, figures_dir=None) -> list[Path]:
+    """Every file :func:`write_report` may write for a result of ``kind`` ("study", "population",
+    "sweep"): the page and each figure it may hold."""
+    outputs = [Path(path)]
+    if figures_dir is not None:
+        outputs += [Path(figures_dir) / f"{name}.png" for name in FIGURE_NAMES[kind]]
+    return outputs
+
+
+def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = None, source: str | None = None,
+                 replace: bool = True, inputs=()) -> Path:
+    """Write :func:`render_report` to ``path``; with ``figures_dir`` also each figure as a PNG file.
+
+    Every file is written through :func:`metasim.io.atomic_output` (complete or absent, never
+    partial). With ``replace=False`` nothing is rendered when the page or a figure file exists
+    already (:class:`~metasim.errors.OutputExistsError`); an output that is one of ``inputs`` is
+    refused either way (:func:`metasim.io.check_outputs`).
+    """
     path = Path(path)
-    if path.parent and not path.parent.exists():
-        raise MetasimError(f"{path}: folder {path.parent} does not exist")
+    if not isinstance(ds, xr.Dataset):
+        raise MetasimError(f"a report needs a result Dataset, got {type(ds).__name__}")
+    if not path.parent.is_dir():
+        raise OutputError(f"{path}: folder {path.parent} does not exist")
+    check_outputs(report_outputs(_kind(ds), path, figures_dir), inputs=inputs, replace=replace)
     figures = figure_pngs(ds)
     if figures_dir is not None:
         figures_dir = Path(figures_dir)
         figures_dir.mkdir(parents=True, exist_ok=True)
         for name, (png, _) in figures.items():
-            (figures_dir / f"{name}.png").write_bytes(png)
-    path.write_text(render_report(ds, title=title, source=source, figures=figures), encoding="utf-8")
-    return path
+            write_bytes(figures_dir / f"{name}.png", png, replace=replace)
+    return write_text(path, render_report(ds, title=title, source=source, figures=figures), replace=replace)
 
 
-__all__ = ["CAUTIONS", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report", "write_report"]
+__all__ = ["CAUTIONS", "FIGURE_NAMES", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report",
+           "report_outputs", "write_report"]

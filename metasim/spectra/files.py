@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 import math
 import os
 from pathlib import Path
@@ -12,6 +13,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import FileFormatError, SpectrumError
+from metasim.io import atomic_output, read_text_file
 from metasim.spectra.grid import RADIANCE_UNITS, WAVELENGTH_ATTRS, as_wavelengths, check_spectra, resample
 
 
@@ -48,57 +50,52 @@ def read_spectra_csv(
         Unsorted, duplicate or non-finite wavelengths, NaN values, negative values; named likewise.
     """
     path = Path(path)
-    if not path.is_file():
-        raise FileFormatError(f"{path}: no such file")
+    text = read_text_file(path, "CSV file")
     notes: list[str] = []
     header: list[str] | None = None
     rows: list[list[float]] = []
     lines: list[int] = []
     try:
-        handle = path.open(newline="", encoding="utf-8-sig")
-    except OSError as exc:
-        raise FileFormatError(f"{path}: cannot be opened ({exc.strerror})") from None
-    with handle:
-        try:
-            for line_no, record in enumerate(csv.reader(handle), start=1):
-                if not record or all(not cell.strip() for cell in record):
-                    continue
-                first = record[0].strip()
-                if first.startswith("#"):
-                    notes.append(",".join(record).lstrip("#").strip())
-                    continue
-                if header is None:
-                    header = [cell.strip() for cell in record]
-                    if len(header) < 2:
-                        raise FileFormatError(
-                            f"{path}:{line_no}: header {record!r} names no channel; "
-                            "expected 'wavelength_nm,<channel>,...'"
-                        )
-                    if _is_number(header[0]):
-                        raise FileFormatError(
-                            f"{path}:{line_no}: first line {record!r} is numeric; a header line "
-                            "'wavelength_nm,<channel>,...' must come first"
-                        )
-                    if len(set(header[1:])) != len(header) - 1:
-                        raise FileFormatError(f"{path}:{line_no}: channel names repeat in {header[1:]}")
-                    continue
-                if len(record) != len(header):
-                    raise FileFormatError(
-                        f"{path}:{line_no}: {len(record)} cells but the header has {len(header)} columns"
-                    )
-                values = []
-                for column, cell in enumerate(record):
-                    try:
-                        values.append(float(cell))
-                    except ValueError:
-                        raise FileFormatError(
-                            f"{path}:{line_no}: cell {cell.strip()!r} in column '{header[column]}' "
-                            "is not a number"
-                        ) from None
-                rows.append(values)
-                lines.append(line_no)
-        except UnicodeDecodeError:
-            raise FileFormatError(f"{path}: not a UTF-8 text file") from None
+        records = list(csv.reader(io.StringIO(text, newline="")))
+    except csv.Error as exc:
+        raise FileFormatError(f"{path}: not a readable CSV file ({exc})") from None
+    for line_no, record in enumerate(records, start=1):
+        if not record or all(not cell.strip() for cell in record):
+            continue
+        first = record[0].strip()
+        if first.startswith("#"):
+            notes.append(",".join(record).lstrip("#").strip())
+            continue
+        if header is None:
+            header = [cell.strip() for cell in record]
+            if len(header) < 2:
+                raise FileFormatError(
+                    f"{path}:{line_no}: header {record!r} names no channel; "
+                    "expected 'wavelength_nm,<channel>,...'"
+                )
+            if _is_number(header[0]):
+                raise FileFormatError(
+                    f"{path}:{line_no}: first line {record!r} is numeric; a header line "
+                    "'wavelength_nm,<channel>,...' must come first"
+                )
+            if len(set(header[1:])) != len(header) - 1:
+                raise FileFormatError(f"{path}:{line_no}: channel names repeat in {header[1:]}")
+            continue
+        if len(record) != len(header):
+            raise FileFormatError(
+                f"{path}:{line_no}: {len(record)} cells but the header has {len(header)} columns"
+            )
+        values = []
+        for column, cell in enumerate(record):
+            try:
+                values.append(float(cell))
+            except ValueError:
+                raise FileFormatError(
+                    f"{path}:{line_no}: cell {cell.strip()!r} in column '{header[column]}' "
+                    "is not a number"
+                ) from None
+        rows.append(values)
+        lines.append(line_no)
     if header is None:
         raise FileFormatError(f"{path}: file is empty; expected a header 'wavelength_nm,<channel>,...' and data rows")
     if not rows:
@@ -153,12 +150,14 @@ def _is_number(text: str) -> bool:
 
 
 def write_spectra_csv(
-    spectra: xr.DataArray, path: str | os.PathLike, *, notes: Iterable[str] = ()
+    spectra: xr.DataArray, path: str | os.PathLike, *, notes: Iterable[str] = (), replace: bool = True
 ) -> Path:
     """Write spectra (one leading dim × ``wavelength``, or ``wavelength`` only) as CSV.
 
     The file reads back with :func:`read_spectra_csv`: comment lines (``notes`` plus units), then
     ``wavelength_nm,<label>,...`` and one row per wavelength, values with 17 significant digits.
+    Written through :func:`metasim.io.atomic_output`; an existing file is replaced unless
+    ``replace=False``.
     """
     check_spectra(spectra, where=str(path), non_negative=False)
     lead = [d for d in spectra.dims if d != "wavelength"]
@@ -173,7 +172,7 @@ def write_spectra_csv(
         labels = [str(spectra.name or "value")]
         values = spectra.values[None, :]
     path = Path(path)
-    with path.open("w", newline="", encoding="utf-8") as handle:
+    with atomic_output(path, replace=replace) as tmp, tmp.open("w", newline="", encoding="utf-8") as handle:
         for note in notes:
             handle.write(f"# {note}\n")
         handle.write(f"# units: {spectra.attrs.get('units', 'unknown')}\n")

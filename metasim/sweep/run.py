@@ -130,7 +130,8 @@ def _describe(item) -> str:
 def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chunk_size: int | None = None,
               scheduler="threads", workers: int | None = None, calibration_observer="cie1931_2",
               strategy: str = "min_norm", display_settings: dict | None = None, lab_volume: bool = False,
-              per_stimulus: bool = False, age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None) -> xr.Dataset:
+              per_stimulus: bool = False, age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None,
+              replace: bool = False) -> xr.Dataset:
     """Evaluate every design against ``reference`` in chunks, writing each chunk to ``store``; resume.
 
     Parameters
@@ -171,6 +172,9 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         ``start``, ``stop``, ``done``, ``total``, ``seconds``, ``message``.
     attrs : dict, optional
         Extra attributes for the manifest and the result (e.g. the text of a sweep spec file).
+    replace : bool
+        A store holding a different sweep is refused unless ``replace``; then its metasim files
+        (manifest, chunk files, ``sweep.nc``) are removed and the sweep starts afresh.
 
     Returns
     -------
@@ -221,7 +225,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         "model": "per-design summaries of metasim.mismatch and the chromaticity gamut, chunked along design",
         "metasim_version": __version__,
     }
-    manifest = open_store(store, manifest)
+    manifest = open_store(store, manifest, replace=replace)
     done = finished_chunks(store, manifest)
     state = {"done": 0, "total": len(ranges), "start": time.perf_counter()}
 

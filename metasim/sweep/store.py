@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import hashlib
 import json
-import os
 from pathlib import Path
 
 import numpy as np
@@ -28,7 +27,7 @@ import xarray as xr
 from metasim._version import __version__
 from metasim.display import Display
 from metasim.errors import SweepError
-from metasim.io import load_dataset, save_dataset
+from metasim.io import load_dataset, save_dataset, write_text
 
 STORE_FORMAT = "metasim sweep store"
 STORE_FORMAT_VERSION = 1
@@ -94,25 +93,53 @@ def read_manifest(store) -> dict | None:
     return manifest
 
 
-def open_store(store, manifest: dict) -> dict:
-    """Create the store for ``manifest``, or check that an existing one belongs to the same sweep."""
+def _clear_store(folder: Path) -> None:
+    """Remove the metasim files of a store (manifest, chunk files, combined result); others stay."""
+    for path in [folder / MANIFEST, folder / COMBINED, *folder.glob("chunk-*.nc")]:
+        if path.is_file():
+            path.unlink()
+
+
+def _readable_manifest(folder: Path) -> dict | None:
+    """The manifest, or None when it is missing or unreadable (a store that is about to be replaced)."""
+    try:
+        return read_manifest(folder)
+    except SweepError:
+        (folder / MANIFEST).unlink(missing_ok=True)
+        return None
+
+
+def open_store(store, manifest: dict, *, replace: bool = False) -> dict:
+    """Create the store for ``manifest``, or check that an existing one belongs to the same sweep.
+
+    A store of another sweep is refused, unless ``replace``: then its metasim files are removed
+    (manifest, chunk files, ``sweep.nc``; nothing else in the folder) and the store starts afresh.
+    """
     folder = Path(store)
     if folder.exists() and not folder.is_dir():
         raise SweepError(f"{folder}: is a file; the sweep store must be a folder")
     folder.mkdir(parents=True, exist_ok=True)
-    existing = read_manifest(folder)
+    existing = read_manifest(folder) if not replace else _readable_manifest(folder)
+    if existing is not None and replace and (existing.get("spec_hash") != manifest["spec_hash"]
+                                             or existing.get("chunk_size") != manifest["chunk_size"]):
+        _clear_store(folder)
+        existing = None
     if existing is None:
         stray = sorted(p.name for p in folder.glob("chunk-*.nc"))
-        if stray:
-            raise SweepError(f"{folder}: holds chunk files ({stray[0]}, ...) but no {MANIFEST}; use an empty or new folder")
-        text = json.dumps(manifest, indent=2, sort_keys=True, default=str)
-        tmp = folder / (MANIFEST + ".partial")
-        tmp.write_text(text + "\n", encoding="utf-8")
-        os.replace(tmp, folder / MANIFEST)
+        if replace and (stray or (folder / COMBINED).exists()):
+            _clear_store(folder)
+        elif stray:
+            raise SweepError(f"{folder}: holds chunk files ({stray[0]}, ...) but no {MANIFEST}; use an empty or new "
+                             "folder, or give replace=True to remove them")
+        elif (folder / COMBINED).exists():
+            raise SweepError(f"{folder}: holds a {COMBINED} but no {MANIFEST}; use an empty or new folder, or give "
+                             "replace=True to replace it")
+        write_text(folder / MANIFEST, json.dumps(manifest, indent=2, sort_keys=True, default=str) + "\n")
         return manifest
     if existing.get("spec_hash") != manifest["spec_hash"]:
         raise SweepError(f"{folder}: holds a sweep of a different spec (hash {str(existing.get('spec_hash'))[:12]}, "
-                         f"this spec {manifest['spec_hash'][:12]}); use a new store folder or delete this one")
+                         f"this spec {manifest['spec_hash'][:12]}); use a new store folder, or give replace=True to "
+                         "replace that sweep")
     if existing.get("chunk_size") != manifest["chunk_size"]:
         raise SweepError(f"{folder}: was made with chunk size {existing.get('chunk_size')}, not "
                          f"{manifest['chunk_size']}; give --chunk-size {existing.get('chunk_size')} or a new store folder")

@@ -1,0 +1,163 @@
+"""The files a ``metasim`` command reads and writes, found from its arguments alone, and checked first.
+
+This module imports only the standard library and metasim's light utilities (errors, file helpers):
+:func:`check_command_files` runs before the numerical modules are loaded, so a missing input, a
+spec that is not UTF-8 TOML, an output that would replace an input, or an output that exists when
+``--replace`` was not given ends the command in well under a second, before anything is computed.
+
+Inputs of a command: its spec files (design, reference, sweep spec and the ``base`` / ``reference``
+specs a sweep spec names), every CSV file those specs name (``file = ...`` of measured primaries and
+backlights, relative to the spec), the ``--observers`` file, stimulus CSV files in ``--stimuli``
+(or a sweep spec's ``stimuli``) and the result file of ``report``.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from pathlib import Path
+
+from metasim.errors import FileFormatError, MetasimError
+from metasim.io import check_outputs, read_text_file
+
+RESULT_FILE = "study.nc"
+REPORT_FILE = "report.html"
+FIGURES_DIR = "figures"
+
+
+class SpecError(MetasimError, ValueError):
+    """A display design spec or sweep spec cannot be read or names something metasim does not know."""
+
+
+def read_toml(path, what: str = "design spec") -> dict:
+    """The parsed TOML of a spec file, with ``_path`` (the file) and ``_text`` (its text) added."""
+    path = Path(path)
+    if not path.is_file() and not path.is_dir():
+        raise SpecError(f"{path}: no such {what} file")
+    try:
+        text = read_text_file(path, f"{what} file")
+    except FileFormatError as exc:
+        raise SpecError(str(exc)) from None
+    try:
+        spec = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise SpecError(f"{path}: not valid TOML ({exc})") from None
+    spec["_path"], spec["_text"] = path, text
+    return spec
+
+
+def relative_to(spec_path, value) -> Path:
+    """A path written in a spec file: absolute, or relative to the spec's folder."""
+    path = Path(value)
+    return path if path.is_absolute() else Path(spec_path).parent / path
+
+
+def spec_files(spec: dict) -> list[Path]:
+    """The CSV files a parsed design spec names (measured primaries and a measured backlight)."""
+    tables = spec.get("primary") if isinstance(spec.get("primary"), list) else []
+    backlight = spec.get("backlight") if isinstance(spec.get("backlight"), dict) else {}
+    files = []
+    for table in [*tables, backlight]:
+        if isinstance(table, dict) and isinstance(table.get("file"), str) and table["file"]:
+            files.append(relative_to(spec["_path"], table["file"]))
+    return files
+
+
+def design_spec_inputs(path) -> list[Path]:
+    """A design spec file and the files it names (the spec is read and parsed, nothing built)."""
+    spec = read_toml(path)
+    files = spec_files(spec)
+    for file in files:
+        if not file.is_file():
+            raise SpecError(f"{path}: file {file}: {'is a folder' if file.is_dir() else 'no such file'}")
+    return [Path(path), *files]
+
+
+def stimulus_files(text) -> list[Path]:
+    """The CSV files of a ``--stimuli`` list (tokens ending in .csv)."""
+    tokens = [t.strip() for t in str(text or "").split(",")]
+    return [Path(t) for t in tokens if t.lower().endswith(".csv")]
+
+
+def check_inputs(paths) -> None:
+    """Every input must be an existing, readable file: one line naming the first that is not."""
+    for path in paths:
+        path = Path(path)
+        if not path.exists():
+            raise FileFormatError(f"{path}: no such file")
+        if path.is_dir():
+            raise FileFormatError(f"{path}: is a folder; give a file")
+
+
+def _sweep_inputs(args) -> list[Path]:
+    spec = read_toml(args.spec, "sweep spec")
+    inputs = [Path(args.spec)]
+    for key in ("base", "reference"):
+        value = spec.get(key)
+        if key == "reference" and (args.reference is not None or value == "objects"):
+            continue
+        if isinstance(value, str) and value:
+            path = relative_to(args.spec, value)
+            inputs += design_spec_inputs(path) if path.is_file() else [path]
+    if args.stimuli is None and isinstance(spec.get("stimuli"), str):
+        inputs += stimulus_files(spec["stimuli"])
+    return inputs
+
+
+def command_files(args) -> tuple[list[Path], list[Path]]:
+    """(inputs, outputs) of a parsed ``metasim`` command line; outputs whose names need the result
+    (report figures) are checked by the command itself before it computes."""
+    command = args.command
+    inputs, outputs = [], []
+    if command in ("evaluate", "compare"):
+        specs = [args.design] if command == "evaluate" else [args.first, args.second]
+        if args.reference not in (None, "objects"):
+            specs.append(args.reference)
+        check_inputs(specs)
+        for spec in specs:
+            inputs += design_spec_inputs(spec)
+    elif command == "sweep":
+        check_inputs([args.spec])
+        inputs += _sweep_inputs(args)
+        if args.reference not in (None, "objects"):
+            check_inputs([args.reference])
+            inputs += design_spec_inputs(args.reference)
+    elif command == "report":
+        inputs.append(Path(args.result))
+    if command in ("evaluate", "compare", "sweep"):
+        inputs += stimulus_files(args.stimuli)
+        if args.observers:
+            inputs.append(Path(args.observers))
+    check_inputs(inputs)
+    if command in ("demo", "evaluate", "compare"):
+        out = Path(args.out)
+        if out.exists() and not out.is_dir():
+            raise FileFormatError(f"--out {out}: is a file; give a folder for the result, report and figures")
+        outputs.append(out / RESULT_FILE)
+        if not getattr(args, "no_report", False):
+            outputs.append(out / REPORT_FILE)
+    elif command == "observers":
+        outputs += [Path(args.out), *([Path(args.report)] if args.report else [])]
+    elif command == "report":
+        outputs.append(Path(args.out) if args.out else Path(args.result).with_suffix(".html"))
+    return inputs, outputs
+
+
+def check_command_files(args) -> None:
+    """Check a command's inputs and outputs before any computing (see the module docstring).
+
+    Stores ``args.inputs`` and ``args.outputs`` for the command. A sweep's store is checked by the
+    sweep itself (its files are replaced when the same sweep resumes; see :mod:`metasim.sweep.store`).
+    """
+    inputs, outputs = command_files(args)
+    args.inputs, args.outputs = inputs, outputs
+    if args.command == "sweep":
+        store = Path(args.out)
+        if store.exists() and not store.is_dir():
+            raise FileFormatError(f"--out {store}: is a file; the sweep store must be a folder")
+        check_outputs([store / "sweep.nc", store / "manifest.json"], inputs=inputs, replace=True)
+        return
+    check_outputs(outputs, inputs=inputs, replace=args.replace)
+
+
+__all__ = ["SpecError", "RESULT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
+           "design_spec_inputs", "stimulus_files", "check_inputs", "command_files", "check_command_files"]
