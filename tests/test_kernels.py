@@ -123,3 +123,31 @@ def test_driven_pairs_equal_apply_matrices_then_pair_differences():
     index, delta_e = rest[3], rest[2]
     untouched = (correction == 0).all(-1)  # (G, S)
     assert np.array_equal(index.reshape(G, O, S)[:, :, untouched[0]][0], delta_e.reshape(G, O, S)[0][:, untouched[0]])
+
+
+def test_series_equal_libm():
+    from metasim.colorimetry._kernels.series import atan2, cbrt_folded, exp_negative, sin_reduced
+
+    rng = np.random.default_rng(5)
+    for y, x in rng.normal(0, 50, (200, 2)):
+        assert abs(atan2(y, x) - np.arctan2(y, x)) <= 4e-16 * np.pi  # numpy (libm) as reference
+    for t in np.r_[0.0, rng.uniform(0, 45, 200)]:
+        # six squarings multiply the rounding of exp(-t/64) by up to 64
+        assert abs(exp_negative(t) - np.exp(-t)) <= 1e-14  # numpy (libm) as reference
+    for x in rng.uniform(0, np.pi / 3, 200):
+        assert abs(sin_reduced(x) - np.sin(x)) <= 2e-16  # numpy (libm) as reference
+    for t in np.r_[8.0**-4, 8.0**8, 10.0 ** rng.uniform(-3.5, 7, 200)]:
+        assert abs(cbrt_folded(t) / np.cbrt(t) - 1.0) <= 1e-15  # numpy (libm) as reference
+
+
+def test_compiled_code_lives_in_kernel_packages():
+    # common practice, no source: the fence of DEVELOPERS.md ("Compiled code is fenced off")
+    import pathlib
+
+    import metasim
+
+    root = pathlib.Path(metasim.__file__).parent
+    outside = [str(path.relative_to(root)) for path in root.rglob("*.py")
+               if "_kernels" not in path.parts
+               and any(mark in path.read_text() for mark in ("@numba.", "numba.njit", "@intrinsic", "@njit"))]
+    assert outside == []

@@ -2,19 +2,16 @@
 
 from __future__ import annotations
 
-import numba
 import numpy as np
 import xarray as xr
 
-from metasim.colorimetry._simd import wide_vectors as _wide_vectors
+from metasim.colorimetry._kernels.cielab import lab_of_ratios, lab_of_rows
+from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
+from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.colorimetry.tristimulus import labelled
 from metasim.errors import MetasimError
 
 LAB = ("L*", "a*", "b*")
-
-# CIE 15:2004 / ISO/CIE 11664-4 exact constants.
-_EPSILON = 216.0 / 24389.0
-_KAPPA = 24389.0 / 27.0
 
 
 def _need(array: xr.DataArray, dim: str, what: str) -> None:
@@ -88,117 +85,6 @@ def _lab_values(ratio: np.ndarray) -> np.ndarray:
     return np.stack([116.0 * fy - 16.0, 500.0 * (fx - fy), 200.0 * (fy - fz)], axis=-1)
 
 
-# --- compiled CIELAB for large blocks ---------------------------------------------------------
-# The cube root is evaluated without libm and without division so the loop vectorises and stays
-# off the divider: fold t into [1/8, 1) by powers of 8 (selects), a cubic first guess of t^(-1/3)
-# (relative error < 1.8e-2; least-squares fit of the relative error, reweighted towards minimax),
-# then two division-free steps r <- r·(1 + d/3 + 2d²/9 + 14d³/81) with d = 1 − t·r³ (the series of
-# (1 − d)^(-1/3), fourth-order convergent: 1.8e-2 → 1.1e-6 → 1e-23), and cbrt(t) = t·r².
-_FAST = {"contract", "arcp", "nsz"}
-_G3, _G2, _G1, _G0 = -2.640437763032095, 5.932840744617895, -4.7879239657076935, 2.47888644033241
-
-
-@numba.njit(cache=True, inline="always", error_model="numpy", fastmath=_FAST)
-def _cbrt_folded(t):
-    """Cube root of t in [8**-4, 8**8] (wider inputs lose accuracy; CIELAB ratios above ε stay far inside)."""
-    scale = 1.0
-    big = t >= 4096.0
-    t = t * (1.0 / 4096.0) if big else t
-    scale = scale * 16.0 if big else scale
-    big = t >= 64.0
-    t = t * (1.0 / 64.0) if big else t
-    scale = scale * 4.0 if big else scale
-    for _ in range(2):  # fixed trip count: unrolled by LLVM
-        big = t >= 1.0
-        t = t * 0.125 if big else t
-        scale = scale * 2.0 if big else scale
-    small = t < 1.0 / 64.0
-    t = t * 64.0 if small else t
-    scale = scale * 0.25 if small else scale
-    small = t < 0.125
-    t = t * 8.0 if small else t
-    scale = scale * 0.5 if small else scale
-    r = ((_G3 * t + _G2) * t + _G1) * t + _G0
-    for _ in range(2):
-        d = 1.0 - t * (r * r * r)
-        r = r + r * d * (1.0 / 3.0 + d * (2.0 / 9.0 + d * (14.0 / 81.0)))
-    return t * (r * r) * scale
-
-
-@numba.njit(cache=True, inline="always", error_model="numpy", fastmath=_FAST)
-def _f_lab(t):
-    return _cbrt_folded(max(t, _EPSILON)) if t > _EPSILON else (_KAPPA * t + 16.0) / 116.0
-
-
-@numba.njit(cache=True, error_model="numpy", fastmath=_FAST)
-def _lab_row(x, y, z, wx, wy, wz, out_l, out_a, out_b):
-    _wide_vectors()
-    for s in range(x.shape[0]):
-        fx = _f_lab(x[s] / wx)
-        fy = _f_lab(y[s] / wy)
-        fz = _f_lab(z[s] / wz)
-        out_l[s] = 116.0 * fy - 16.0
-        out_a[s] = 500.0 * (fx - fy)
-        out_b[s] = 200.0 * (fy - fz)
-
-
-@numba.njit(cache=True, inline="always", error_model="numpy")
-def _lab_span(xyz, start, stop, wx, wy, wz, out):
-    """CIELAB of the rows xyz[start:stop] (X, Y, Z) into out[start:stop], through padded columns."""
-    m = stop - start
-    width = (m + 15) // 16 * 16  # full vectors only: results do not depend on the span length
-    cols = np.ones((6, width))
-    for s in range(m):
-        cols[0, s] = xyz[start + s, 0]
-        cols[1, s] = xyz[start + s, 1]
-        cols[2, s] = xyz[start + s, 2]
-    _lab_row(cols[0], cols[1], cols[2], wx, wy, wz, cols[3], cols[4], cols[5])
-    for s in range(m):
-        out[start + s, 0] = cols[3, s]
-        out[start + s, 1] = cols[4, s]
-        out[start + s, 2] = cols[5, s]
-
-
-@numba.njit(cache=True, inline="always", error_model="numpy")
-def _lab_of_row(xyz, white, out, r):
-    _lab_span(xyz[r], 0, xyz.shape[1], white[r, 0], white[r, 1], white[r, 2], out[r])
-
-
-_CHUNK = 1024
-
-
-@numba.njit(cache=True, parallel=True, error_model="numpy")
-def _lab_chunks(flat, out):
-    """CIELAB of ratios flat (n, 3) (white 1, 1, 1) in chunks of _CHUNK rows, chunks in parallel."""
-    n = flat.shape[0]
-    for c in numba.prange((n + _CHUNK - 1) // _CHUNK):
-        _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
-
-
-@numba.njit(cache=True, error_model="numpy")
-def _lab_chunks_serial(flat, out):
-    n = flat.shape[0]
-    for c in range((n + _CHUNK - 1) // _CHUNK):
-        _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
-
-
-@numba.njit(cache=True, parallel=True, error_model="numpy")
-def _lab_rows(xyz, white, out):
-    """CIELAB of xyz (rows, columns, 3) against one white per row (rows, 3), rows in parallel."""
-    for r in numba.prange(xyz.shape[0]):
-        _lab_of_row(xyz, white, out, r)
-
-
-@numba.njit(cache=True, error_model="numpy")
-def _lab_rows_serial(xyz, white, out):
-    """As :func:`_lab_rows` on one thread (small inputs: no thread start-up)."""
-    for r in range(xyz.shape[0]):
-        _lab_of_row(xyz, white, out, r)
-
-
-def _run_lab_rows(xyz: np.ndarray, white: np.ndarray, out: np.ndarray) -> None:
-    (_lab_rows if xyz.shape[0] * xyz.shape[1] >= 4096 else _lab_rows_serial)(xyz, white, out)
-
 
 def lab_of_ratio(ratio: np.ndarray) -> np.ndarray:
     """CIELAB from XYZ / XYZ_white (X, Y, Z on the last axis), through the compiled kernel.
@@ -209,7 +95,7 @@ def lab_of_ratio(ratio: np.ndarray) -> np.ndarray:
     flat = np.ascontiguousarray(ratio.reshape(-1, 3))
     out = np.empty_like(flat)
     if flat.shape[0]:
-        (_lab_chunks if flat.shape[0] >= 4096 else _lab_chunks_serial)(flat, out)
+        lab_of_ratios(flat, out)
     return out.reshape(ratio.shape)
 
 
@@ -228,7 +114,7 @@ def xyz_to_lab_array(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
         whites = np.ascontiguousarray(np.broadcast_to(white, (*lead, 1, 3))).reshape(-1, 3)
         out = np.empty_like(block)
         if block.size:
-            _run_lab_rows(block, whites, out)
+            lab_of_rows(block, whites, out)
         return out.reshape(*lead, *xyz.shape[-2:])
     return lab_of_ratio(xyz / white)
 

@@ -40,20 +40,20 @@ import xarray as xr
 
 from metasim._version import __version__
 from metasim.colorimetry import tristimulus
+from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
+from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.errors import DisplayError, MetasimError
 from metasim.spectra import integrate
 from metasim.display.model import Display, observer_name, resolve_observer
 from metasim.display.optics import observer_optics
-from metasim.display.compiled import clip_rows
+from metasim.display._kernels.clip import clip_rows
 from metasim.display.solvers import equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light
 from metasim.display.transfer import check_transfer, eotf_inverse_values
 
 STRATEGIES = ("min_norm", "max_efficiency", "population")
-_EPSILON = 216.0 / 24389.0
-_KAPPA = 24389.0 / 27.0
 _TIE_BREAK = 1e-6
 _CLIP_WEIGHT = 1e-6
 _FEASIBILITY = 1e-9
@@ -93,7 +93,7 @@ def _clip(A, black, target, white, H_s, f_s, iterations: int = 12):
     CIELAB metric linearised at the white; a step is kept only if it lowers the distance. The
     strategy objective enters with a tiny weight so that ties resolve the same way as in gamut.
     All arrays are per row (R); colours are normalised so that the white has Y = 1. Each row is
-    solved by the compiled :func:`metasim.display.compiled.clip_rows`.
+    solved by the compiled :func:`metasim.display._kernels.clip.clip_rows`.
     """
     R, _, N = A.shape
     H_s = np.ascontiguousarray(np.broadcast_to(H_s, (R, N, N)), dtype=float)

@@ -29,7 +29,7 @@ import itertools
 
 import numpy as np
 
-from metasim.display.compiled import box_qp_rows, equality_qp_rows
+from metasim.display._kernels.qp import box_qp_rows, equality_qp_rows
 
 _CHUNK_ROWS = 2048
 

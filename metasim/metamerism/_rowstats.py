@@ -9,56 +9,9 @@ sorted rows. The means are numpy's own.
 
 from __future__ import annotations
 
-import math
-
-import numba
 import numpy as np
 
-
-@numba.njit(cache=True, inline="always")
-def _quantile_of_sorted(row, n, q):
-    """numpy's linear quantile q of the sorted row[:n]."""
-    virtual = (n - 1) * q
-    previous = min(max(int(math.floor(virtual)), 0), n - 1)
-    following = min(previous + 1, n - 1)
-    a, b = row[previous], row[following]
-    gamma = virtual - previous
-    diff = b - a
-    return b - diff * (1.0 - gamma) if gamma >= 0.5 else a + diff * gamma
-
-
-@numba.njit(cache=True, inline="always")
-def _count_above(row, n, threshold):
-    """How many of the sorted row[:n] are > threshold (binary search)."""
-    lo, hi = 0, n
-    while lo < hi:
-        mid = (lo + hi) // 2
-        if row[mid] > threshold:
-            hi = mid
-        else:
-            lo = mid + 1
-    return n - lo
-
-
-@numba.njit(cache=True, inline="always")
-def _summarise_sorted(row, thresholds, out, shares, g):
-    n = row.shape[0]
-    out[1, g] = _quantile_of_sorted(row, n, 0.5)
-    out[2, g] = _quantile_of_sorted(row, n, 0.95)
-    out[3, g] = row[n - 1]
-    for t in range(thresholds.shape[0]):
-        shares[t, g] = _count_above(row, n, thresholds[t]) / n
-
-
-@numba.njit(cache=True, parallel=True)
-def _sorted_rows(rows, thresholds, out, shares):
-    for g in numba.prange(rows.shape[0]):
-        _summarise_sorted(rows[g], thresholds, out, shares, g)
-
-
-@numba.njit(cache=True)
-def _sorted_one(row, thresholds, out, shares, g):
-    _summarise_sorted(row, thresholds, out, shares, g)
+from metasim.metamerism._kernels.rowstats import sorted_one, sorted_rows
 
 
 def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray | tuple[np.ndarray, np.ndarray]:
@@ -73,7 +26,7 @@ def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray |
     ordered = np.sort(rows, axis=axis)
     out = np.empty((4, count))
     shares = np.empty((thresholds.size, count))
-    _sorted_rows(ordered if axis == 1 else ordered.T, thresholds, out, shares)
+    sorted_rows(ordered if axis == 1 else ordered.T, thresholds, out, shares)
     out[0] = rows.mean(axis=axis)
     return (out, shares) if thresholds.size else out
 
@@ -91,14 +44,14 @@ def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
     thresholds = np.asarray(thresholds, dtype=float).ravel()
     by_stimulus = np.empty((4, values.shape[1]))
     shares = np.empty((thresholds.size, values.shape[1]))
-    _sorted_rows(np.sort(values, axis=0).T, thresholds, by_stimulus, shares)
+    sorted_rows(np.sort(values, axis=0).T, thresholds, by_stimulus, shares)
     by_stimulus[0] = values.mean(axis=0)
     by_observer = np.empty((4, values.shape[0]))
-    _sorted_rows(np.sort(values, axis=1), thresholds[:0], by_observer, np.empty((0, values.shape[0])))
+    sorted_rows(np.sort(values, axis=1), thresholds[:0], by_observer, np.empty((0, values.shape[0])))
     by_observer[0] = values.mean(axis=1)
     by_segment = np.empty((4, len(segments)))
     for g, members in enumerate(segments):
         pairs = values[members].ravel()
-        _sorted_one(np.sort(pairs), thresholds[:0], by_segment, np.empty((0, len(segments))), g)
+        sorted_one(np.sort(pairs), thresholds[:0], by_segment, np.empty((0, len(segments))), g)
         by_segment[0, g] = pairs.mean()
     return by_stimulus, shares, by_observer, by_segment

@@ -1,0 +1,105 @@
+"""Compiled pass behind :mod:`metasim.colorimetry.fused`: per row (one observer of one design), XYZ
+as columns → CIELAB of both sides → CIE 2000 → the additively corrected difference (the index).
+
+Reuses the column loops of the CIELAB, CIE 2000 and drive-sum kernels, so every value equals what
+the separate kernels give.
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+from metasim.colorimetry._kernels.cielab import lab_columns
+from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_columns, delta_e_2000_scalar, padded
+from metasim.colorimetry._kernels.sums import xyz_of_drives
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _mend(lab_1, lab_2, out, special):
+    for j in range(out.shape[0]):
+        if special[j]:
+            out[j] = delta_e_2000_scalar(lab_1[0, j], lab_1[1, j], lab_1[2, j], lab_2[0, j], lab_2[1, j], lab_2[2, j], 1.0)
+
+
+@numba.njit(cache=True, error_model="numpy")
+def _pairs_of_columns(buf, c, wx, wy, wz, columns, r, lab_ref, lab_test, delta_e, index):
+    """Row r of the outputs from buf (6, width): the reference and test XYZ as columns."""
+    width = buf.shape[1]
+    lab = np.empty((6, width))  # lab_ref, lab_test
+    corrected = 0
+    for s in range(columns):
+        corrected += (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0)
+    for side in range(2):
+        lab_columns(buf[3 * side], buf[3 * side + 1], buf[3 * side + 2], wx, wy, wz,
+                 lab[3 * side], lab[3 * side + 1], lab[3 * side + 2])
+    special = np.empty(width, dtype=np.bool_)
+    values = np.empty(width)
+    delta_e_2000_columns(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, values, special)
+    _mend(lab[0:3], lab[3:6], values, special)
+    for s in range(columns):
+        delta_e[r, s] = values[s]
+        index[r, s] = values[s]  # no correction: the index is the difference itself
+        for k in range(3):
+            lab_ref[r, s, k] = lab[k, s]
+            lab_test[r, s, k] = lab[3 + k, s]
+    if corrected == 0:
+        return
+    # the stimuli with a correction, gathered into columns of their own
+    part = padded(corrected)
+    where = np.empty(corrected, dtype=np.int64)
+    cbuf = np.ones((3, part))
+    cref = np.ones((3, part))
+    clab = np.empty((3, part))
+    j = 0
+    for s in range(columns):
+        if (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0):
+            where[j] = s
+            for k in range(3):
+                cbuf[k, j] = max(buf[3 + k, s] - c[s, k], 0.0)
+                cref[k, j] = lab[k, s]
+            j += 1
+    lab_columns(cbuf[0], cbuf[1], cbuf[2], wx, wy, wz, clab[0], clab[1], clab[2])
+    cspecial = np.empty(part, dtype=np.bool_)
+    cvalues = np.empty(part)
+    delta_e_2000_columns(cref[0], cref[1], cref[2], clab[0], clab[1], clab[2], 1.0, cvalues, cspecial)
+    _mend(cref, clab, cvalues, cspecial)
+    for j in range(corrected):
+        index[r, where[j]] = cvalues[j]
+
+
+@numba.njit(cache=True, parallel=True, error_model="numpy")
+def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index):
+    rows, columns = xyz_test.shape[0], xyz_test.shape[1]
+    width = padded(columns)  # full vectors only: results do not depend on the row length
+    for r in numba.prange(rows):
+        buf = np.ones((6, width))  # xyz_ref, xyz_test (as columns)
+        for s in range(columns):
+            for k in range(3):
+                buf[k, s] = xyz_ref[r, s, k]
+                buf[3 + k, s] = xyz_test[r, s, k]
+        _pairs_of_columns(buf, correction[r // observers], white[r, 0], white[r, 1], white[r, 2], columns, r,
+                          lab_ref, lab_test, delta_e, index)
+
+
+@numba.njit(cache=True, parallel=True, error_model="numpy")
+def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white, correction,
+                      xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index):
+    groups, observers = test_matrices.shape[0], test_matrices.shape[1]
+    columns = xyz_test.shape[2]
+    width = test_t.shape[2]
+    for r in numba.prange(groups * observers):
+        g = r // observers
+        o = r % observers
+        buf = np.empty((6, width))
+        xyz_of_drives(ref_t, 0, ref_matrices, ref_black, o, buf, 0)
+        xyz_of_drives(test_t, g, test_matrices, test_black, o, buf, 3)
+        for s in range(columns):
+            for k in range(3):
+                xyz_test[g, o, s, k] = buf[3 + k, s]
+        if g == 0:
+            for s in range(columns):
+                for k in range(3):
+                    xyz_ref[o, s, k] = buf[k, s]
+        _pairs_of_columns(buf, correction[g], white[r, 0], white[r, 1], white[r, 2], columns, r,
+                          lab_ref, lab_test, delta_e, index)

@@ -1,0 +1,139 @@
+"""Compiled CIELAB clipping behind :func:`metasim.display.drive.solve_drive`: Gauss-Newton in CIELAB
+with box constraints on the drives, row by row (rows in parallel).
+
+CIELAB here uses libm's cube root (CIE 15:2004 §8.2.1) and its Jacobian; each step is a box QP
+(:func:`metasim.display._kernels.qp.box_qp_row`).
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
+from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
+from metasim.display._kernels.qp import box_qp_row
+
+
+@numba.njit(cache=True, inline="always")
+def _f(t):
+    return np.cbrt(t) if t > _EPSILON else (_KAPPA * t + 16.0) / 116.0
+
+
+@numba.njit(cache=True)
+def _lab3(x, y, z, wx, wy, wz, out):
+    fx, fy, fz = _f(x / wx), _f(y / wy), _f(z / wz)
+    out[0] = 116.0 * fy - 16.0
+    out[1] = 500.0 * (fx - fy)
+    out[2] = 200.0 * (fy - fz)
+
+
+@numba.njit(cache=True)
+def _jacobian(xyz, white, jac):
+    """∂(L*, a*, b*)/∂(X, Y, Z) (CIE 15:2004 §8.2.1)."""
+    g = np.empty(3)
+    for k in range(3):
+        t = xyz[k] / white[k]
+        slope = np.cbrt(max(t, _EPSILON)) ** -2 / 3.0 if t > _EPSILON else _KAPPA / 116.0
+        g[k] = slope / white[k]
+    jac[:] = 0.0
+    jac[0, 1] = 116.0 * g[1]
+    jac[1, 0] = 500.0 * g[0]
+    jac[1, 1] = -500.0 * g[1]
+    jac[2, 1] = 200.0 * g[1]
+    jac[2, 2] = -200.0 * g[2]
+
+
+@numba.njit(cache=True)
+def _colour(A, black, d, out):
+    for m in range(3):
+        total = black[m]
+        for k in range(d.shape[0]):
+            total += A[m, k] * d[k]
+        out[m] = total
+
+
+@numba.njit(cache=True)
+def _cost(A, black, d, white, lab_target, xyz, lab):
+    _colour(A, black, d, xyz)
+    _lab3(xyz[0], xyz[1], xyz[2], white[0], white[1], white[2], lab)
+    return (lab[0] - lab_target[0]) ** 2 + (lab[1] - lab_target[1]) ** 2 + (lab[2] - lab_target[2]) ** 2
+
+
+@numba.njit(cache=True)
+def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_iter, out):
+    n = d.shape[0]
+    g = np.zeros((3, n))
+    for i in range(3):
+        for k in range(n):
+            total = 0.0
+            for m in range(3):
+                total += jac[i, m] * A[m, k]
+            g[i, k] = total
+    gram = np.empty((n, n))
+    trace = 0.0
+    for k in range(n):
+        for m in range(n):
+            total = 0.0
+            for i in range(3):
+                total += g[i, k] * g[i, m]
+            gram[k, m] = total
+        trace += gram[k, k]
+    scale = trace / n
+    weight = weight_factor * scale / q_scale
+    H_c = np.empty((n, n))
+    f_c = np.empty(n)
+    gd = np.empty(3)
+    for i in range(3):
+        total = 0.0
+        for k in range(n):
+            total += g[i, k] * d[k]
+        gd[i] = residual[i] - total
+    for k in range(n):
+        for m in range(n):
+            H_c[k, m] = gram[k, m] + weight * H_s[k, m] + (1e-12 * scale if k == m else 0.0)
+        total = 0.0
+        for i in range(3):
+            total += g[i, k] * gd[i]
+        f_c[k] = total + weight * f_s[k]
+        out[k] = d[k]
+    box_qp_row(H_c, f_c, lo, hi, out, max_iter, 1e-12)
+
+
+@numba.njit(cache=True, parallel=True)
+def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out):
+    """Gauss-Newton in CIELAB with box constraints, per row (see ``metasim.display.drive``)."""
+    R, _, n = A.shape
+    lo = np.zeros(n)
+    hi = np.ones(n)
+    for r in numba.prange(R):
+        lab_target = np.empty(3)
+        _lab3(target[r, 0], target[r, 1], target[r, 2], white[r, 0], white[r, 1], white[r, 2], lab_target)
+        jac = np.empty((3, 3))
+        _jacobian(white[r], white[r], jac)
+        residual = np.empty(3)
+        for i in range(3):
+            total = 0.0
+            for m in range(3):
+                total += jac[i, m] * (black[r, m] - target[r, m])
+            residual[i] = total
+        d = np.zeros(n)
+        proposal = np.empty(n)
+        _step(jac, residual, d, A[r], H_s[r], f_s[r], q_scale[r], weight_factor, lo, hi, max_iter, proposal)
+        d[:] = proposal
+        xyz = np.empty(3)
+        lab = np.empty(3)
+        cost = _cost(A[r], black[r], d, white[r], lab_target, xyz, lab)
+        for _ in range(iterations):
+            _colour(A[r], black[r], d, xyz)
+            _lab3(xyz[0], xyz[1], xyz[2], white[r, 0], white[r, 1], white[r, 2], lab)
+            for i in range(3):
+                residual[i] = lab[i] - lab_target[i]
+            _jacobian(xyz, white[r], jac)
+            _step(jac, residual, d, A[r], H_s[r], f_s[r], q_scale[r], weight_factor, lo, hi, max_iter, proposal)
+            new_cost = _cost(A[r], black[r], proposal, white[r], lab_target, xyz, lab)
+            if not new_cost < cost * (1 - 1e-12):
+                break
+            d[:] = proposal
+            cost = new_cost
+        out[r] = d
