@@ -36,6 +36,7 @@ from metasim.spectra import (
     read_spectra_csv,
     require_same_grid,
 )
+from metasim.spectra.convert import as_spectra
 
 NORMALISATIONS = ("total", "peak", "none")
 LINE_PROFILES = ("gaussian", "lorentzian")
@@ -387,9 +388,12 @@ def filtered_primaries(source: xr.DataArray, filters: xr.DataArray) -> xr.DataAr
     Parameters
     ----------
     source : DataArray
-        The backlight spectrum (``wavelength``, or ``primary`` of size 1 × ``wavelength``), radiance.
+        The backlight spectrum (``wavelength``, or ``primary`` of size 1 × ``wavelength``), radiance;
+        or a colour-science ``SpectralDistribution``.
     filters : DataArray
-        Transmittances (``primary`` × ``wavelength``, units 1, within 0..1), on the same grid.
+        Transmittances (``primary`` × ``wavelength``, units 1, within 0..1), on the same grid; or
+        colour-science distributions (labels → ``primary``). A colour-science input is put on the
+        grid of the other argument (:mod:`metasim.spectra.convert`).
 
     Returns
     -------
@@ -399,6 +403,12 @@ def filtered_primaries(source: xr.DataArray, filters: xr.DataArray) -> xr.DataAr
     ----------
     Common practice, no source (Beer-Lambert: transmitted radiance = incident × transmittance).
     """
+    if isinstance(source, xr.DataArray) or not isinstance(filters, xr.DataArray):
+        source = as_spectra(source, where="source", dims_example=("wavelength",))
+        filters = as_spectra(filters, dim="primary", wavelengths=source.coords["wavelength"].values, where="filters",
+                             units="1", long_name="spectral transmittance")
+    else:  # colour-science source, labelled filters: the source goes on the filters' grid
+        source = as_spectra(source, wavelengths=filters.coords["wavelength"].values, where="source")
     check_spectra(source, where="source")
     check_spectra(filters, where="filters")
     if "primary" in source.dims:
@@ -444,14 +454,19 @@ def stack_primaries(*spectra: xr.DataArray) -> xr.DataArray:
     """Stack single or multi-primary spectra into one ``primary`` × ``wavelength`` array.
 
     Each argument has dims ``wavelength`` (labelled by its ``name``) or ``primary`` × ``wavelength``;
-    all share the grid and the units; primary labels must be unique.
+    all share the grid and the units; primary labels must be unique. colour-science distributions
+    are accepted and put on the grid of the first DataArray (else of the first argument).
     """
     if len(spectra) == 1 and isinstance(spectra[0], (list, tuple)):
         spectra = tuple(spectra[0])
     if not spectra:
         raise SpectrumError("stack_primaries: no spectra given; pass at least one DataArray")
     parts = []
+    labelled = next((item for item in spectra if isinstance(item, xr.DataArray)), None)
     for i, item in enumerate(spectra):
+        grid = (labelled if labelled is not None else parts[0] if parts else None)
+        item = as_spectra(item, dim="primary", where=f"spectra #{i}", units=RADIANCE_UNITS,
+                          wavelengths=None if grid is None else grid.coords["wavelength"].values)
         check_spectra(item, where=f"spectra #{i}", non_negative=False)
         if "primary" not in item.dims:
             item = item.expand_dims(primary=[str(item.name or f"primary{i}")])

@@ -14,7 +14,9 @@ import xarray as xr
 
 from metasim.colorimetry.integration import spectral_products
 from metasim.errors import MetasimError, SpectrumError
+from metasim.observers.convert import as_observer
 from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_step, require_same_grid
+from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
 
 #: Maximum luminous efficacy for photopic vision, lm/W (CIE 15:2004; 683 lm/W at 555 nm).
 K_M = 683.0
@@ -140,10 +142,13 @@ def tristimulus(
     ----------
     spectra : DataArray
         Any dims plus ``wavelength`` (nm). For ``scale="absolute"`` spectral radiance in
-        W·sr⁻¹·m⁻²·nm⁻¹.
+        W·sr⁻¹·m⁻²·nm⁻¹. A colour-science spectral distribution is converted
+        (:mod:`metasim.spectra.convert`), onto the observers' grid when they have one.
     observers : Dataset or DataArray
         An observer Dataset (variable ``cmf``, or ``lms`` for ``quantity="lms"``) or the functions
-        themselves as a DataArray with ``xyz`` (or ``cone``) and ``wavelength`` dims, with or without a leading ``observer`` dim; the same grid as ``spectra``.
+        themselves as a DataArray with ``xyz`` (or ``cone``) and ``wavelength`` dims, with or without a
+        leading ``observer`` dim; the same grid as ``spectra``. colour-science colour-matching
+        functions or cone fundamentals are put on the spectra's grid (:mod:`metasim.observers.convert`).
     scale : {"absolute", "relative", "none"}
         ``absolute``: K_m·Σ S·x̄·Δλ with K_m = 683 lm/W, giving cd/m² for radiance input.
         ``relative``: scaled per observer so that ``white`` has Y = 100 (for ``quantity="lms"``
@@ -168,7 +173,15 @@ def tristimulus(
     channel = {"xyz": "xyz", "lms": "cone"}.get(quantity)
     if channel is None:
         raise MetasimError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
+    if is_colour_spectrum(spectra):  # colour-science input: on the observer's grid when it has one
+        grid = observers if isinstance(observers, (xr.Dataset, xr.DataArray)) and "wavelength" in observers.dims else None
+        spectra = as_spectra(spectra, wavelengths=grid, where="spectra")
+    spectra = as_spectra(spectra, where="spectra", dims_example=("stimulus", "wavelength"))
     check_spectra(spectra, where="spectra", non_negative=False)
+    if is_colour_object(observers):
+        observers = as_observer(observers, _wavelengths(spectra))
+    if white is not None:
+        white = as_spectra(white, wavelengths=_wavelengths(spectra), where="white")
     responses = observer_responses(observers, quantity)
     attrs = {"long_name": "tristimulus values" if quantity == "xyz" else "cone excitations",
              "integration": "rectangle rule over the uniform wavelength grid"}

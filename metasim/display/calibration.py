@@ -21,11 +21,12 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from metasim.colorimetry import xy_to_xyz
+from metasim.colorimetry import tristimulus, xy_to_xyz, xyz_to_xy
 from metasim.errors import DisplayError
 from metasim.display.model import Display, observer_name, resolve_observer
 from metasim.display.optics import observer_optics
 from metasim.display.solvers import equality_box_qp
+from metasim.spectra.convert import as_spectra, is_colour_spectrum
 
 #: Named white points (CIE 1931 xy), IEC 61966-2-1 / CIE 15:2004 4-decimal values.
 WHITE_POINTS = {"D65": (0.3127, 0.3290), "D50": (0.3457, 0.3585), "DCI": (0.3140, 0.3510), "E": (1 / 3, 1 / 3)}
@@ -55,6 +56,18 @@ def white_xy(white) -> xr.DataArray:
     return xy
 
 
+def _is_spectrum(white) -> bool:
+    return is_colour_spectrum(white) or (isinstance(white, xr.DataArray) and "wavelength" in white.dims)
+
+
+def _white_of_spectrum(white, display: Display, observer: xr.Dataset) -> xr.DataArray:
+    """The chromaticity of a white given as a spectrum (an illuminant), for the calibration observer."""
+    spectrum = as_spectra(white, wavelengths=display.wavelengths.values, where="white", dims_example=("wavelength",))
+    if set(spectrum.dims) != {"wavelength"}:
+        raise DisplayError(f"a white spectrum has only a 'wavelength' dim, got {tuple(spectrum.dims)}")
+    return xyz_to_xy(tristimulus(spectrum, observer, scale="none"))
+
+
 def _component(xy: xr.DataArray, name: str) -> xr.Variable:
     """The ``x`` or ``y`` part of a chromaticity DataArray as a Variable (what ``.sel`` picks, without
     building a DataArray); the usual KeyError when the label is missing."""
@@ -74,8 +87,11 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     observer : str or Dataset
         A standard observer name or an observer Dataset (variable ``cmf``, no ``observer`` dim or
         one of size 1) on the display's grid — standard or individual.
-    white : str or (x, y) or DataArray
-        Target chromaticity (default D65); a DataArray may vary along ``design``.
+    white : str or (x, y) or DataArray or spectrum
+        Target chromaticity (default D65); a DataArray may vary along ``design``. A spectrum (a
+        ``wavelength`` DataArray or a colour-science ``SpectralDistribution`` such as
+        ``colour.SDS_ILLUMINANTS["D65"]``, put on the display's grid) gives its chromaticity for
+        ``observer``.
     luminance : float or DataArray, optional
         Target white luminance Y in cd/m² (default the display's ``peak_luminance``).
 
@@ -109,7 +125,7 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
         target_luminance = xr.DataArray(float(target_luminance))
     if not np.isfinite(target_luminance.values).all() or (target_luminance.values <= 0).any():
         raise DisplayError(f"luminance={luminance!r} cd/m2 is not allowed; must be finite and > 0")
-    xy = white_xy(white)
+    xy = white_xy(_white_of_spectrum(white, display, obs) if _is_spectrum(white) else white)
     batch = display.batch_dims
     spectra = display.spectra
     n = display.n_primaries

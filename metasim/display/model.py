@@ -36,7 +36,9 @@ import xarray as xr
 from metasim._version import __version__
 from metasim.errors import DisplayError, MetasimError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
+from metasim.observers.convert import as_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
+from metasim.spectra.convert import as_spectra, is_colour_object
 from metasim.colorimetry import tristimulus
 from metasim.colorimetry.integration import apply_matrices, spectral_products
 from metasim.display.optics import display_matrices
@@ -346,7 +348,10 @@ def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:
 
 
 def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
-    """An observer Dataset (with ``cmf``) from a Dataset, a ``cmf`` DataArray or a standard name."""
+    """An observer Dataset (with ``cmf``) from a Dataset, a ``cmf`` DataArray, a standard name or
+    colour-science colour-matching functions (put on the display's grid)."""
+    if is_colour_object(observer):
+        observer = as_observer(observer, display.wavelengths.values if display is not None else None)
     if isinstance(observer, str):
         if observer not in STANDARD_OBSERVERS:
             raise DisplayError(f"observer {observer!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}")
@@ -358,12 +363,15 @@ def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
         return observer.to_dataset(name="cmf")
     if isinstance(observer, xr.Dataset) and "cmf" in observer:
         return observer
-    raise DisplayError("observer must be a standard observer name or an observer Dataset with a 'cmf' variable")
+    raise DisplayError("observer must be a standard observer name, an observer Dataset with a 'cmf' variable or "
+                       f"colour-science XYZ_ColourMatchingFunctions, got {type(observer).__name__}")
 
 
 def observer_name(observer) -> str:
     if isinstance(observer, str):
         return observer
+    if is_colour_object(observer):
+        return str(getattr(observer, "name", "custom"))
     return str(getattr(observer, "attrs", {}).get("observer", "custom"))
 
 
@@ -375,7 +383,7 @@ def make_display(
     gamma: float = 2.2,
     peak_luminance=None,
     black_luminance: float = 0.0,
-    name: str = "display",
+    name: str | None = None,
 ) -> Display:
     """Build a :class:`Display` from primary spectra.
 
@@ -383,9 +391,12 @@ def make_display(
     ----------
     spectra : DataArray
         ``[design,] primary × wavelength`` spectral radiance at full drive (W·sr⁻¹·m⁻²·nm⁻¹),
-        N ≥ 3 distinct, non-collinear primaries (for example from :mod:`metasim.emitters`).
+        N ≥ 3 distinct, non-collinear primaries (for example from :mod:`metasim.emitters`); or a
+        colour-science ``MultiSpectralDistributions`` such as ``RGB_DisplayPrimaries`` (its labels
+        become the ``primary`` labels, its wavelengths the display's grid; taken as radiance).
     black : DataArray, optional
-        Black-level spectral radiance (``[design,] wavelength``), default zero.
+        Black-level spectral radiance (``[design,] wavelength``), default zero; a colour-science
+        ``SpectralDistribution`` is put on the primaries' grid.
     transfer : str
         Transfer function of the display's own drive signals: one of
         :data:`metasim.display.transfer.TRANSFER_FUNCTIONS`.
@@ -398,15 +409,19 @@ def make_display(
     black_luminance : float
         L_B in cd/m² for the BT.1886 and HLG curves (keep 0 when a black spectrum is given, so
         black is not counted twice).
-    name : str
-        A label kept in the attributes.
+    name : str, optional
+        A label kept in the attributes (default: a colour-science object's name, else "display").
 
     References
     ----------
     Berns (1996) Displays 16(4) 173-182 (additive display model).
     """
-    if not isinstance(spectra, xr.DataArray):
-        raise DisplayError(f"spectra must be a DataArray (primary x wavelength), got {type(spectra).__name__}")
+    if name is None:
+        name = str(spectra.name) if is_colour_object(spectra) else "display"
+    spectra = as_spectra(spectra, dim="primary", where="display spectra", units=RADIANCE_UNITS)
+    if black is not None:
+        black = as_spectra(black, wavelengths=spectra.coords["wavelength"].values, where="display black",
+                           dims_example=("wavelength",), units=RADIANCE_UNITS)
     if not isinstance(transfer, str) or transfer not in TRANSFER_FUNCTIONS:
         raise DisplayError(f"transfer function {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")
     check_spectra(spectra, where="display spectra")

@@ -9,7 +9,13 @@ Accepted primaries (every gamut function goes through :func:`primaries_xyz`):
   :func:`metasim.colorimetry.tristimulus`;
 * any object with a ``spectra`` attribute holding such a DataArray (a display), plus an observer;
 * for chromaticity-only work, a DataArray with dims ``primary`` and ``chromaticity`` (x, y), or the
-  name of a reference colour space (:data:`REFERENCE_GAMUTS`).
+  name of a reference colour space (:data:`REFERENCE_GAMUTS`);
+* colour-science objects, converted once by :func:`gamut_inputs`: display primaries (any
+  ``MultiSpectralDistributions``, labels → ``primary``, on the observer's grid when the observer is a
+  Dataset), an ``RGB_Colourspace`` (like a reference name: its primaries and white), colour-matching
+  functions as the observer (on the spectra's grid);
+* plain arrays where each axis is clear: (N, 3) = N primaries × X, Y, Z; for chromaticity work also
+  (N, 2) = N primaries × x, y (N ≥ 3). Other shapes are refused with how to label them.
 
 Reference colour spaces take their primaries and white point from colour-science's
 ``colour.RGB_COLOURSPACES`` (ITU-R BT.709, SMPTE EG 432-1 Display P3, SMPTE RP 431-2 DCI-P3,
@@ -23,6 +29,8 @@ import xarray as xr
 
 from metasim.colorimetry import tristimulus, xy_to_xyz
 from metasim.errors import GamutError
+from metasim.observers.convert import as_observer
+from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum, unlabelled_message
 
 #: Reference gamut name -> colour-science colour-space name.
 REFERENCE_GAMUTS = {
@@ -41,7 +49,24 @@ def check_space(space: str) -> str:
     return space
 
 
-def _colour_space(name: str):
+def is_colour_space(value) -> bool:
+    """True for a colour-science ``RGB_Colourspace`` (e.g. ``colour.RGB_COLOURSPACES["ITU-R BT.709"]``)."""
+    return is_colour_object(value) and type(value).__name__ == "RGB_Colourspace"
+
+
+def is_reference(value) -> bool:
+    """A reference gamut: a name of :data:`REFERENCE_GAMUTS` or a colour-science ``RGB_Colourspace``."""
+    return isinstance(value, str) or is_colour_space(value)
+
+
+def reference_name(value) -> str:
+    """The label of a reference gamut (its key, or the colour-science colour space's name)."""
+    return str(value.name) if is_colour_space(value) else str(value)
+
+
+def _colour_space(name):
+    if is_colour_space(name):
+        return name
     if name not in REFERENCE_GAMUTS:
         raise GamutError(f"reference gamut {name!r} is not known; allowed: {', '.join(REFERENCE_GAMUTS)}")
     import colour  # imported lazily: colour-science takes a moment to import
@@ -49,8 +74,9 @@ def _colour_space(name: str):
     return colour.RGB_COLOURSPACES[REFERENCE_GAMUTS[name]]
 
 
-def reference_xy(name: str) -> xr.DataArray:
-    """xy chromaticities (``primary`` = R, G, B × ``chromaticity``) of a named reference gamut.
+def reference_xy(name) -> xr.DataArray:
+    """xy chromaticities (``primary`` = R, G, B × ``chromaticity``) of a named reference gamut (or of
+    a colour-science ``RGB_Colourspace``).
 
     Values from colour-science ``colour.RGB_COLOURSPACES`` (ITU-R BT.709-6, SMPTE EG 432-1,
     SMPTE RP 431-2, ITU-R BT.2020-2).
@@ -64,8 +90,9 @@ def reference_xy(name: str) -> xr.DataArray:
     )
 
 
-def reference_xyz(name: str, white_luminance: float = 1.0) -> xr.DataArray:
-    """XYZ of a named reference gamut's primaries, scaled so that its own white has Y = ``white_luminance``.
+def reference_xyz(name, white_luminance: float = 1.0) -> xr.DataArray:
+    """XYZ of a named reference gamut's (or an ``RGB_Colourspace``'s) primaries, scaled so that its
+    own white has Y = ``white_luminance``.
 
     The columns of the colour space's normalised primary matrix (SMPTE RP 177), as computed by
     colour-science (``matrix_RGB_to_XYZ``).
@@ -77,12 +104,12 @@ def reference_xyz(name: str, white_luminance: float = 1.0) -> xr.DataArray:
         dims=("primary", "xyz"),
         coords={"primary": ["R", "G", "B"], "xyz": ["X", "Y", "Z"]},
         attrs={"units": "1", "long_name": f"{space.name} primary tristimulus values",
-               "reference_gamut": name},
+               "reference_gamut": reference_name(name)},
     )
 
 
 def _spectra_of(obj):
-    if isinstance(obj, (xr.DataArray, str)):
+    if isinstance(obj, xr.DataArray) or is_reference(obj):
         return obj
     spectra = getattr(obj, "spectra", None)
     if isinstance(spectra, xr.DataArray):
@@ -90,8 +117,44 @@ def _spectra_of(obj):
     raise GamutError(
         f"primaries of type {type(obj).__name__} are not usable; allowed: a DataArray with dims "
         "'primary' and 'xyz' (or 'wavelength', or 'chromaticity'), a display with a 'spectra' "
-        "attribute, or a reference name"
+        "attribute, a reference name, colour-science display primaries or an RGB_Colourspace, or a "
+        "plain (N, 3) array of primary XYZ"
     )
+
+
+def _grid(value):
+    """The wavelengths of a labelled spectral object, or None."""
+    if isinstance(value, (xr.DataArray, xr.Dataset)) and "wavelength" in value.dims:
+        return value.coords["wavelength"].values
+    return None
+
+
+def _plain_primaries(values) -> xr.DataArray:
+    """A plain (N, 3) array as primary XYZ, (N, 2) as primary xy; other shapes are refused."""
+    try:
+        array = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        raise GamutError(f"primaries {values!r} are not numbers; give an (N, 3) array of primary XYZ") from None
+    if array.ndim == 2 and array.shape[0] >= 3 and array.shape[1] in (2, 3):
+        dim, labels = ("xyz", ["X", "Y", "Z"]) if array.shape[1] == 3 else ("chromaticity", ["x", "y"])
+        return xr.DataArray(array, dims=("primary", dim),
+                            coords={"primary": [f"primary{i}" for i in range(array.shape[0])], dim: labels},
+                            attrs={"units": "1", "long_name": "primary tristimulus values" if dim == "xyz"
+                                   else "primary chromaticities (CIE 1931 xy)"})
+    raise GamutError(unlabelled_message(f"primaries of shape {array.shape}", ("primary", "xyz"))
+                     + "; a plain array is read as (N, 3) = N >= 3 primaries x X, Y, Z (or (N, 2) x, y)")
+
+
+def gamut_inputs(primaries, observer=None):
+    """The primaries and observer of a gamut call with colour-science objects and plain arrays
+    converted, once (see the module docstring). Returns ``(primaries, observer)``."""
+    if is_colour_spectrum(primaries):
+        primaries = as_spectra(primaries, dim="primary", wavelengths=_grid(observer), where="primaries")
+    elif isinstance(primaries, (np.ndarray, list, tuple)):
+        primaries = _plain_primaries(primaries)
+    if is_colour_object(observer):
+        observer = as_observer(observer, _grid(_spectra_of(primaries)) if not is_reference(primaries) else None)
+    return primaries, observer
 
 
 def primaries_xyz(primaries, observer=None, *, allow_chromaticity: bool = False) -> xr.DataArray:
@@ -101,8 +164,9 @@ def primaries_xyz(primaries, observer=None, *, allow_chromaticity: bool = False)
     dim is kept). With ``allow_chromaticity`` xy input and reference names are accepted and given
     Y = 1 (chromaticity work only).
     """
+    primaries, observer = gamut_inputs(primaries, observer)
     primaries = _spectra_of(primaries)
-    if isinstance(primaries, str):
+    if is_reference(primaries):
         if not allow_chromaticity:
             return reference_xyz(primaries)
         primaries = reference_xy(primaries)
@@ -164,8 +228,15 @@ def lead_array(values, lead, shape, coords, *, extra_dims=(), extra_coords=None,
 
 def white_xyz(white, primaries: xr.DataArray, observer=None) -> xr.DataArray:
     """The CIELAB white: the sum of the primaries (all drives 1) when ``white`` is None, else the
-    stated white as XYZ (a DataArray with an ``xyz`` dim, or a spectrum with ``wavelength``
-    integrated with ``observer``), broadcast against the primaries' leading dims."""
+    stated white as XYZ (a DataArray with an ``xyz`` dim or a plain (X, Y, Z); or a spectrum with
+    ``wavelength`` or a colour-science ``SpectralDistribution``, integrated with ``observer``),
+    broadcast against the primaries' leading dims."""
+    if is_colour_object(observer):
+        observer = as_observer(observer, _grid(white))
+    if is_colour_spectrum(white):
+        white = as_spectra(white, wavelengths=_grid(observer), where="white", dims_example=("wavelength",))
+    elif isinstance(white, (np.ndarray, list, tuple)) and np.shape(white) == (3,):
+        white = xr.DataArray(np.asarray(white, dtype=float), dims=("xyz",), coords={"xyz": ["X", "Y", "Z"]})
     if white is None:
         out = primaries.sum("primary")
     elif isinstance(white, xr.DataArray) and "xyz" in white.dims:
@@ -177,7 +248,8 @@ def white_xyz(white, primaries: xr.DataArray, observer=None) -> xr.DataArray:
     else:
         raise GamutError(
             f"white of type {type(white).__name__} is not usable; allowed: None (sum of the primaries), "
-            "a DataArray with an 'xyz' dim, or a spectrum with a 'wavelength' dim"
+            "a DataArray with an 'xyz' dim or a plain (X, Y, Z), or a spectrum (a 'wavelength' DataArray or a "
+            "colour-science SpectralDistribution)"
         )
     out = out.broadcast_like(primaries.isel(primary=0, drop=True))
     lead = [d for d in primaries.dims if d not in ("primary", "xyz")]

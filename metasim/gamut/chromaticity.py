@@ -21,12 +21,16 @@ import xarray as xr
 from metasim.colorimetry import xyz_to_uv, xyz_to_xy
 from metasim.errors import GamutError
 from metasim.gamut import polygon as geometry
+from metasim.observers.convert import as_observer
 from metasim.gamut._inputs import (
     REFERENCE_GAMUTS,
     check_space,
     describe_item,
     flatten,
+    gamut_inputs,
+    is_reference,
     lead_array,
+    reference_name,
     primaries_xyz as as_primaries_xyz,
 )
 
@@ -73,11 +77,14 @@ def chromaticity_gamut(primaries_xyz, space: str = "xy", observer=None) -> xr.Da
         ``observer`` ...); or primary spectra (``primary`` × ``wavelength``, or a display with a
         ``spectra`` attribute) together with ``observer``; or xy chromaticities (``chromaticity``
         dim), or a reference name (``"bt709"``, ``"display_p3"``, ``"dci_p3"``, ``"bt2020"``).
+        Also colour-science display primaries (``RGB_DisplayPrimaries`` or any
+        ``MultiSpectralDistributions``, with ``observer``), a colour-science ``RGB_Colourspace``, or
+        a plain (N, 3) array of primary XYZ (rows = primaries) or (N, 2) of xy.
     space : {"xy", "uv"}
         CIE 1931 xy or CIE 1976 u'v'.
     observer : Dataset, optional
         Observer(s) to integrate spectra with (variable ``cmf``; a leading ``observer`` dim gives
-        each observer's own diagram).
+        each observer's own diagram), or colour-science ``XYZ_ColourMatchingFunctions``.
 
     Returns
     -------
@@ -164,8 +171,9 @@ def gamut_coverage(design, reference="bt709", space: str = "xy", observer=None) 
         Anything :func:`chromaticity_gamut` accepts, or its result.
     reference
         A reference name (``"bt709"``, ``"display_p3"``, ``"dci_p3"``, ``"bt2020"``; primaries from
-        colour-science ``colour.RGB_COLOURSPACES``), primaries (XYZ, xy, spectra with ``observer``)
-        or a :func:`chromaticity_gamut` result; it may carry its own leading dims.
+        colour-science ``colour.RGB_COLOURSPACES``), a colour-science ``RGB_Colourspace``, primaries
+        (XYZ, xy, spectra with ``observer``, plain arrays as for :func:`chromaticity_gamut`) or a
+        :func:`chromaticity_gamut` result; it may carry its own leading dims.
     space : {"xy", "uv"}
 
     Returns
@@ -179,9 +187,11 @@ def gamut_coverage(design, reference="bt709", space: str = "xy", observer=None) 
     reference primaries ITU-R BT.709-6, SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020-2.
     """
     check_space(space)
+    if not (isinstance(design, xr.Dataset) and "polygon" in design):
+        design, observer = gamut_inputs(design, observer)
     gamut = _as_gamut(design, space, observer)
     ref = _as_gamut(reference, space, observer)
-    ref_name = reference if isinstance(reference, str) else "reference"
+    ref_name = reference_name(reference) if is_reference(reference) else "reference"
     poly_d = gamut["polygon"]
     poly_r = ref["polygon"].rename(vertex="vertex_reference")
     template = xr.broadcast(gamut["area"], ref["area"])[0]
@@ -222,8 +232,10 @@ def spectrum_locus(observer, space: str = "xy") -> xr.Dataset:
     hull by Qhull (Barber, Dobkin & Huhdanpaa 1996, via scipy.spatial.ConvexHull).
     """
     check_space(space)
+    observer = as_observer(observer)
     if not isinstance(observer, xr.Dataset) or "cmf" not in observer:
-        raise GamutError("observer must be a Dataset with a 'cmf' variable (xyz x wavelength)")
+        raise GamutError("observer must be a Dataset with a 'cmf' variable (xyz x wavelength) or colour-science "
+                         "XYZ_ColourMatchingFunctions")
     cmf = observer["cmf"]
     chroma = chromaticities(cmf, space)
     total = cmf.sum("xyz")
@@ -256,6 +268,8 @@ def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
     ``design`` is anything :func:`chromaticity_gamut` accepts; spectra are integrated with the same
     ``observer``, so each individual observer's gamut is compared with that observer's own locus.
     """
+    design, observer = gamut_inputs(design, observer)
+    observer = as_observer(observer)
     locus = spectrum_locus(observer, space)
     share = gamut_coverage(design, locus, space, observer)
     share.attrs["long_name"] = f"share of the spectrum-locus {_NAMES[space]} area covered by the design gamut"
@@ -283,6 +297,8 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
         The :func:`chromaticity_gamut` variables plus ``locus_area``, ``locus_share`` and
         ``coverage`` (``reference`` dim), per observer.
     """
+    spectra, observer = gamut_inputs(spectra, observer)
+    observer = as_observer(observer)
     gamut = chromaticity_gamut(spectra, space, observer)
     locus = spectrum_locus(observer, space)
     gamut["locus_area"] = locus["area"]

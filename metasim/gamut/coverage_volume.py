@@ -26,7 +26,16 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import GamutError
-from metasim.gamut._inputs import flatten, lead_array, primaries_xyz, reference_xyz, white_xyz
+from metasim.gamut._inputs import (
+    flatten,
+    gamut_inputs,
+    is_reference,
+    lead_array,
+    primaries_xyz,
+    reference_name,
+    reference_xyz,
+    white_xyz,
+)
 from metasim.gamut.volume import (
     BLOCK_NODES,
     GRADING,
@@ -158,11 +167,12 @@ def lab_coverage_volume(design, reference="bt2020", observer=None, white=None, *
     """
     if not 0 < rtol < 0.1:
         raise GamutError(f"rtol={rtol!r} is not allowed; need 0 < rtol < 0.1")
+    design, observer = gamut_inputs(design, observer)
     xyz = primaries_xyz(design, observer)
     white_da = white_xyz(white, xyz, observer)
-    if isinstance(reference, str):
+    if is_reference(reference):
         ref = reference_xyz(reference) * white_da.sel(xyz="Y", drop=True)
-        ref_name = reference
+        ref_name = reference_name(reference)
     else:
         ref = primaries_xyz(reference, observer)
         ref_name = "reference"

@@ -18,7 +18,7 @@ import xarray as xr
 
 from metasim.colorimetry import tristimulus
 from metasim.errors import GamutError
-from metasim.gamut._inputs import _spectra_of, check_space, primaries_xyz, white_xyz
+from metasim.gamut._inputs import _spectra_of, check_space, gamut_inputs, primaries_xyz, white_xyz
 from metasim.gamut.chromaticity import chromaticity_gamut
 from metasim.gamut.volume import VOLUME_UNITS, lab_gamut_volume
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_wavelengths, grid_step
@@ -127,6 +127,7 @@ def extra_primary_gain(
         raise GamutError(f"level={level!r} is not allowed; need a finite number > 0")
     if observer is None:
         raise GamutError("extra_primary_gain needs an observer (a Dataset with 'cmf'), got none")
+    primaries, observer = gamut_inputs(primaries, observer)
     base = primaries_xyz(primaries, observer)
     custom = candidates is not None
     if candidates is None:

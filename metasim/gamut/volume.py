@@ -29,7 +29,7 @@ import xarray as xr
 
 from metasim.colorimetry import xyz_to_lab
 from metasim.errors import GamutError
-from metasim.gamut._inputs import describe_item, flatten, lead_array, primaries_xyz, white_xyz
+from metasim.gamut._inputs import describe_item, flatten, gamut_inputs, lead_array, primaries_xyz, white_xyz
 
 VOLUME_UNITS = "(CIELAB unit)3"
 #: Largest node count (designs × faces × nodes) mapped to CIELAB in one block.
@@ -199,6 +199,7 @@ def lab_gamut_volume(display_or_primaries, observer=None, white=None, *, rtol: f
     """
     if not 0 < rtol < 0.1:
         raise GamutError(f"rtol={rtol!r} is not allowed; need 0 < rtol < 0.1")
+    display_or_primaries, observer = gamut_inputs(display_or_primaries, observer)
     xyz = primaries_xyz(display_or_primaries, observer)
     white_da = white_xyz(white, xyz, observer)
     values, lead, shape, coords = flatten(xyz, ("primary", "xyz"))

@@ -21,7 +21,9 @@ from metasim.metamerism.engine import (
     reference_white_spectrum,
     resolve_calibration_observer,
     resolve_observers,
+    resolve_reference,
 )
+from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.summary import observer_weights, weighted_quantile
 
 CANDIDATES = ("cie1931_2", "cie1964_10", "cie2015_2", "cie2015_10", "population_mean")
@@ -60,6 +62,10 @@ def rank_calibration_observers(
     """
     if not candidates:
         raise MetasimError("candidates is empty; give at least one calibration observer")
+    if isinstance(test, Display):  # colour-science inputs converted once, not once per candidate
+        grid = test.wavelengths.values
+        reference, stimuli = resolve_reference(reference, grid), as_stimuli(stimuli, grid)
+        observers = resolve_observers(observers, grid)
     names, mean, p95, white, stim = [], [], [], [], []
     for candidate in candidates:
         result = mismatch(reference, test, observers, stimuli, calibration_observer=candidate, **options)
@@ -132,6 +138,8 @@ def white_point_offsets(
         raise MetasimError(f"test must be a Display, got {type(test).__name__}")
     grid = test.wavelengths
     group = resolve_observers(categories, grid)
+    if stimuli is not None:
+        stimuli = as_stimuli(stimuli, grid.values)
     calibration, calibration_name = resolve_calibration_observer(calibration_observer, group, grid)
     white_spectrum, _ = reference_white_spectrum(reference, stimuli, test, calibration)
     ref_xyz_cal = tristimulus(white_spectrum, calibration)

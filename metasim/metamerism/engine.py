@@ -45,30 +45,50 @@ from metasim.display import Display, calibrate_white
 from metasim.display.drive import drive_solution
 from metasim.display.optics import display_matrices, observer_xyz
 from metasim.errors import MetasimError, StimulusError
-from metasim.metamerism.stimuli import check_stimuli, illuminant_spectrum
+from metasim.metamerism.stimuli import as_stimuli, check_stimuli, stimulus_illuminant
 from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
+from metasim.observers.convert import as_observer, is_colour_observer
 from metasim.spectra import RADIANCE_UNITS, require_same_grid
+from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
 
 ADAPTED_WHITES = ("reference", "test")
 
 
 def resolve_observers(observers, wavelengths) -> xr.Dataset:
-    """Observers as a Dataset with ``cmf`` and an ``observer`` dim on the given grid."""
-    if isinstance(observers, str):
+    """Observers as a Dataset with ``cmf`` and an ``observer`` dim on the given grid.
+
+    Accepted: an observer Dataset, standard observer names, colour-science colour-matching
+    functions (``XYZ_ColourMatchingFunctions``, put on the grid), or a list mixing names and
+    colour-science objects (labelled by name).
+    """
+    if isinstance(observers, str) or is_colour_object(observers):
         observers = [observers]
     if isinstance(observers, (list, tuple)):
         if not observers:
             raise MetasimError("the observer set is empty; give at least one observer")
-        parts = []
-        for name in observers:
-            if name not in STANDARD_OBSERVERS:
-                raise MetasimError(f"observer {name!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}")
-            parts.append(standard_observer(name, wavelengths)[["cmf"]])
+        parts, labels = [], []
+        for item in observers:
+            if is_colour_observer(item):
+                converted = as_observer(item, wavelengths)
+                if "cmf" not in converted:
+                    raise MetasimError(f"observer {str(item.name)!r} holds cone fundamentals only; mismatch "
+                                       "needs XYZ colour-matching functions (XYZ_ColourMatchingFunctions)")
+                parts.append(converted[["cmf"]])
+                labels.append(str(item.name))
+                continue
+            if not isinstance(item, str) or item not in STANDARD_OBSERVERS:
+                raise MetasimError(f"observer {item!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}, "
+                                   "colour-science XYZ_ColourMatchingFunctions, or an observer Dataset")
+            parts.append(standard_observer(item, wavelengths)[["cmf"]])
+            labels.append(item)
+        if len(set(labels)) != len(labels):
+            raise MetasimError(f"observer names {labels} repeat; each observer needs a unique name")
         ds = xr.concat(parts, dim="observer", combine_attrs="drop_conflicts")
-        return ds.assign_coords(observer=list(observers))
+        return ds.assign_coords(observer=labels)
     if not isinstance(observers, xr.Dataset) or "cmf" not in observers:
-        raise MetasimError("observers must be standard observer names or an observer Dataset with a 'cmf' variable")
+        raise MetasimError("observers must be standard observer names, colour-science colour-matching functions "
+                           "or an observer Dataset with a 'cmf' variable")
     if "observer" not in observers.dims:
         observers = observers.expand_dims(observer=[str(observers.attrs.get("observer", "observer"))])
     if observers.sizes["observer"] == 0:
@@ -94,6 +114,8 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
                 f"{', '.join(STANDARD_OBSERVERS)}, population_mean, or an observer Dataset"
             )
         return standard_observer(calibration_observer, wavelengths), calibration_observer
+    if is_colour_object(calibration_observer):
+        calibration_observer = as_observer(calibration_observer, wavelengths)
     if isinstance(calibration_observer, xr.Dataset) and "cmf" in calibration_observer:
         ds = calibration_observer
         if "observer" in ds.dims:
@@ -102,12 +124,24 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
             ds = ds.isel(observer=0, drop=True)
         require_same_grid(ds, wavelengths, names=("calibration observer", "displays"))
         return ds, str(ds.attrs.get("observer", "custom"))
-    raise MetasimError("calibration_observer must be a standard observer name, 'population_mean' or an observer Dataset")
+    raise MetasimError("calibration_observer must be a standard observer name, 'population_mean', an observer Dataset "
+                       "or colour-science XYZ_ColourMatchingFunctions")
+
+
+def resolve_reference(reference, wavelengths):
+    """The ``reference`` argument at a public entry: a colour-science ``SpectralDistribution`` (an
+    illuminant) becomes a ``wavelength`` DataArray on the test display's grid; anything else is
+    returned unchanged."""
+    if is_colour_spectrum(reference):
+        return as_spectra(reference, wavelengths=wavelengths, where="reference illuminant",
+                          dims_example=("wavelength",))
+    return reference
 
 
 def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Display, calibration: xr.Dataset,
                              object_white_luminance=None) -> tuple[xr.DataArray, str]:
     """The reference white radiance and the reference kind ("display" or "objects")."""
+    reference = resolve_reference(reference, test.wavelengths.values)
     if isinstance(reference, Display):
         require_same_grid(reference.spectra, test.spectra, names=("reference display", "test display"))
         if reference.batch_dims:
@@ -116,12 +150,13 @@ def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Displa
     if isinstance(reference, str) and reference == "objects":
         if stimuli is None or stimuli.attrs.get("kind") != "reflectance":
             raise StimulusError("reference='objects' needs reflectance stimuli (e.g. cie_13_3_samples())")
-        illuminant = illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), test.wavelengths.values)
+        illuminant = stimulus_illuminant(stimuli, test.wavelengths.values)
     elif isinstance(reference, xr.DataArray) and set(reference.dims) == {"wavelength"}:
         illuminant = reference
         require_same_grid(illuminant, test.spectra, names=("reference illuminant", "test display"))
     else:
-        raise MetasimError("reference must be a Display, 'objects', or an illuminant spectrum (wavelength only)")
+        raise MetasimError("reference must be a Display, 'objects', or an illuminant spectrum (a wavelength-only "
+                           f"DataArray or a colour-science SpectralDistribution), got {type(reference).__name__}")
     if object_white_luminance is None:
         object_white_luminance = float(test.white_tristimulus(calibration).sel(xyz="Y").max())
     if not np.isfinite(object_white_luminance) or object_white_luminance <= 0:
@@ -148,7 +183,7 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
         if kind == "xyz":
             target = stimuli["xyz_relative"] * (white_y / 100.0)
         else:
-            illuminant = illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), white_spectrum.wavelength.values)
+            illuminant = stimulus_illuminant(stimuli, white_spectrum.wavelength.values)
             scale = white_y / tristimulus(illuminant, calibration).sel(xyz="Y", drop=True)
             target = tristimulus(stimuli["reflectance"] * illuminant * scale, calibration)
         solution = drive_solution(reference, target=target.transpose("stimulus", "xyz"), observer=calibration)
@@ -182,18 +217,22 @@ def mismatch(
     ----------
     reference : Display, "objects" or DataArray
         A reference display; ``"objects"`` for reflectance stimuli under their own illuminant; or
-        an illuminant spectrum (``wavelength`` only) for reflectance stimuli.
+        an illuminant spectrum (``wavelength`` only, or a colour-science ``SpectralDistribution``
+        put on the test display's grid) for reflectance stimuli.
     test : Display
         The test display (may carry a ``design`` dim: every design is evaluated).
     observers : Dataset or str or list of str
         Observer population (``cmf`` with an ``observer`` dim, e.g. from
-        :func:`metasim.observer_population` or :func:`metasim.observer_categories`) or standard
-        observer names.
+        :func:`metasim.observer_population` or :func:`metasim.observer_categories`), standard
+        observer names, or colour-science ``XYZ_ColourMatchingFunctions`` (one, or a list).
     stimuli : Dataset
-        A stimulus set (:mod:`metasim.metamerism.stimuli`).
+        A stimulus set (:mod:`metasim.metamerism.stimuli`), or colour-science reflectances (a
+        ``MultiSpectralDistributions``, or a colour checker's distributions), taken as a
+        reflectance set on the test display's grid.
     calibration_observer : str or Dataset
         The observer both sides are matched for (default CIE 1931 2°); ``"population_mean"`` uses
-        the mean colour-matching functions of ``observers``.
+        the mean colour-matching functions of ``observers``; colour-science colour-matching
+        functions are accepted.
     strategy : str
         Drive strategy of the test display for N > 3 primaries (:data:`metasim.display.STRATEGIES`);
         ``"population"`` minimises the expected mismatch over ``strategy_population`` (default
@@ -222,8 +261,10 @@ def mismatch(
         raise MetasimError(f"test must be a Display, got {type(test).__name__}")
     if adapted_white not in ADAPTED_WHITES:
         raise MetasimError(f"adapted_white={adapted_white!r} is not known; allowed: {', '.join(ADAPTED_WHITES)}")
-    kind = check_stimuli(stimuli)
     grid = test.wavelengths
+    stimuli = as_stimuli(stimuli, grid.values)
+    reference = resolve_reference(reference, grid.values)
+    kind = check_stimuli(stimuli)
     if kind == "reflectance":
         require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
     obs = resolve_observers(observers, grid)
@@ -308,7 +349,9 @@ def mismatch(
     out = xr.Dataset(data, coords=coords)
     out.attrs = {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
-        "reference": reference.name if ref_kind == "display" else f"objects under {stimuli.attrs.get('illuminant', 'illuminant')}",
+        "reference": reference.name if ref_kind == "display" else "objects under " + (
+            str(reference.name or "the given illuminant") if isinstance(reference, xr.DataArray)
+            else str(stimuli.attrs.get("illuminant", "illuminant"))),
         "reference_kind": ref_kind,
         "test": test.name,
         "calibration_observer": calibration_name,
@@ -442,4 +485,5 @@ def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
     return 720.0 * np.sqrt(diff[..., 0] ** 2 + (0.5 * diff[..., 1]) ** 2 + diff[..., 2] ** 2)
 
 
-__all__ = ["ADAPTED_WHITES", "mismatch", "resolve_observers", "resolve_calibration_observer", "reference_white_spectrum"]
+__all__ = ["ADAPTED_WHITES", "mismatch", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
+           "reference_white_spectrum"]

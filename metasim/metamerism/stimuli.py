@@ -12,7 +12,9 @@ A stimulus set is an :class:`xarray.Dataset` with a ``stimulus`` dim and one of 
     the reference white, white Y = 100.
 ``reflectance``
     variable ``reflectance`` (``stimulus`` × ``wavelength``, 0..1) with attribute ``illuminant``
-    (a CIE illuminant name known to colour-science, default D65): object colours.
+    (a CIE illuminant name known to colour-science, default D65): object colours. An illuminant
+    given as a spectrum is kept as the variable ``illuminant`` (``wavelength``, on the set's grid)
+    and named by the attribute.
 
 Distinct colours: two stimuli of one set are *the same colour* when every value that defines them
 (the three signals, the three XYZ values, or every reflectance factor) agrees within
@@ -22,6 +24,11 @@ do by construction and :func:`combine` merges repeats (keeping the first label; 
 A set given by the user (:func:`rgb_set`, :func:`xyz_set`, :func:`reflectance_set`,
 :func:`read_stimuli_csv`) is kept as given, with a :class:`~metasim.errors.DuplicateStimulusWarning`
 naming the repeats; :func:`distinct` merges them.
+
+colour-science objects go in where they fit: a ``MultiSpectralDistributions`` of reflectances, or a
+colour-science dataset of reflectance ``SpectralDistribution`` objects (a colour checker), is a
+reflectance set (labels become the ``stimulus`` labels); a ``SpectralDistribution`` is an
+illuminant. They are converted by :mod:`metasim.spectra.convert` onto the set's grid.
 """
 
 from __future__ import annotations
@@ -39,6 +46,7 @@ import xarray as xr
 from metasim.errors import DuplicateStimulusWarning, FileFormatError, StimulusError
 from metasim.io import read_text_file
 from metasim.spectra import WAVELENGTH_ATTRS, _is_number, check_wavelengths, default_grid, read_spectra_csv, resample
+from metasim.spectra.convert import as_spectra, is_colour_collection, is_colour_spectrum, unlabelled_message
 
 KINDS = ("rgb", "xyz", "reflectance")
 RGB = ("R", "G", "B")
@@ -97,8 +105,9 @@ def rgb_cube_grid(per_axis: int = 5, *, source: str = "bt709", encoding: str | N
                     description=f"RGB cube grid, {per_axis} levels per axis")
 
 
-def cie_13_3_samples(*, wavelengths=None, illuminant: str = "D65") -> xr.Dataset:
-    """The 14 CIE 13.3-1995 test colour samples (reflectances from colour-science) under ``illuminant``.
+def cie_13_3_samples(*, wavelengths=None, illuminant="D65") -> xr.Dataset:
+    """The 14 CIE 13.3-1995 test colour samples (reflectances from colour-science) under ``illuminant``
+    (a name, or a spectrum as for :func:`reflectance_set`).
 
     References
     ----------
@@ -117,8 +126,47 @@ def cie_13_3_samples(*, wavelengths=None, illuminant: str = "D65") -> xr.Dataset
                            illuminant=illuminant, description="CIE 13.3-1995 test colour samples")
 
 
-def reflectance_set(values, wavelengths, labels, *, illuminant: str = "D65", description: str = "object colours") -> xr.Dataset:
-    """Object colours from reflectance factors (``stimulus`` × ``wavelength``, 0..1)."""
+def reflectance_set(values, wavelengths=None, labels=None, *, illuminant="D65",
+                    description: str | None = None) -> xr.Dataset:
+    """Object colours from reflectance factors (``stimulus`` × ``wavelength``, 0..1).
+
+    Parameters
+    ----------
+    values
+        Reflectance factors: a plain (stimulus, wavelength) array with ``wavelengths`` and
+        ``labels``; a DataArray with dims ``stimulus`` and ``wavelength``; or colour-science
+        reflectances (a ``MultiSpectralDistributions``, or a mapping / list of
+        ``SpectralDistribution`` objects such as ``colour.SDS_COLOURCHECKERS[...]``), whose labels
+        become the stimulus labels.
+    wavelengths
+        The grid of a plain array; for colour-science objects the grid to put them on (default
+        390-830 nm at 1 nm, as every stimulus set; :func:`metasim.spectra.resample` policy); for
+        a DataArray, unused (it keeps its own).
+    labels
+        Stimulus names (plain arrays; for other inputs they replace the inputs' labels).
+    illuminant
+        A CIE illuminant name known to colour-science (default D65), or a spectrum (a ``wavelength``
+        DataArray or a colour-science ``SpectralDistribution``), put on the set's grid.
+    """
+    if is_colour_spectrum(values) or is_colour_collection(values):
+        values = as_spectra(values, dim="stimulus", wavelengths=default_grid() if wavelengths is None else wavelengths,
+                            where="reflectances", units="1", long_name="spectral reflectance factor")
+        description = description or f"reflectances from colour-science ({values.attrs.get('source', '')})"
+    if isinstance(values, xr.DataArray):
+        if values.ndim == 1 and "wavelength" in values.dims:
+            values = values.expand_dims(stimulus=[str(values.name or "sample")])
+        other = [d for d in values.dims if d != "wavelength"]
+        if "wavelength" not in values.dims or len(other) != 1:
+            raise StimulusError(f"reflectances need dims ('stimulus', 'wavelength'), got {tuple(values.dims)}")
+        label_dim = other[0]
+        if labels is None:
+            labels = ([str(v) for v in values.coords[label_dim].values] if label_dim in values.coords
+                      else [f"sample {i + 1}" for i in range(values.sizes[label_dim])])
+        wavelengths = values.coords["wavelength"].values
+        values = values.transpose(label_dim, "wavelength").values
+    if wavelengths is None or labels is None:
+        raise StimulusError(unlabelled_message("reflectances", ("stimulus", "wavelength")) +
+                            "; or pass wavelengths= and labels=")
     wl = check_wavelengths(wavelengths, where="reflectance grid")
     values = np.asarray(values, dtype=float)
     if values.ndim != 2 or values.shape[1] != wl.size:
@@ -127,12 +175,65 @@ def reflectance_set(values, wavelengths, labels, *, illuminant: str = "D65", des
         raise StimulusError("the stimulus set is empty; give at least one reflectance")
     if not np.isfinite(values).all() or (values < 0).any():
         raise StimulusError("reflectance factors must be finite and >= 0")
-    _check_illuminant(illuminant)
+    labels = list(labels)
+    if len(labels) != values.shape[0]:
+        raise StimulusError(f"{len(labels)} labels for {values.shape[0]} reflectances; give one label per stimulus")
     refl = xr.DataArray(values, dims=("stimulus", "wavelength"),
-                        coords={"stimulus": list(labels), "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
+                        coords={"stimulus": labels, "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
                         attrs={"units": "1", "long_name": "spectral reflectance factor"})
-    return _warn_duplicates(xr.Dataset({"reflectance": refl}, attrs={
-        "kind": "reflectance", "illuminant": illuminant, "description": description}))
+    data = {"reflectance": refl}
+    if isinstance(illuminant, str):
+        _check_illuminant(illuminant)
+        name = illuminant
+    else:
+        spectrum = _illuminant_of_spectrum(illuminant, wl)
+        name = str(spectrum.name)
+        data["illuminant"] = spectrum
+    return _warn_duplicates(xr.Dataset(data, attrs={"kind": "reflectance", "illuminant": name,
+                                                    "description": description or "object colours"}))
+
+
+def _illuminant_of_spectrum(illuminant, wavelengths) -> xr.DataArray:
+    """An illuminant spectrum (DataArray or colour-science distribution) on a grid, as a stimulus-set variable."""
+    spectrum = as_spectra(illuminant, wavelengths=wavelengths, where="illuminant", dims_example=("wavelength",))
+    if set(spectrum.dims) != {"wavelength"}:
+        raise StimulusError(f"an illuminant has only a 'wavelength' dim, got {tuple(spectrum.dims)}")
+    if not np.array_equal(spectrum.coords["wavelength"].values, wavelengths):
+        raise StimulusError("the illuminant is sampled on another grid than the reflectances; resample it "
+                            "(metasim.spectra.resample) or give it as a colour-science SpectralDistribution")
+    values = np.asarray(spectrum.values, dtype=float)
+    if not np.isfinite(values).all() or (values < 0).any() or not (values > 0).any():
+        raise StimulusError("an illuminant's spectral power must be finite, >= 0 and not all zero")
+    name = str(spectrum.name) if spectrum.name is not None else "illuminant"
+    return xr.DataArray(values, dims=("wavelength",),
+                        coords={"wavelength": ("wavelength", np.asarray(wavelengths, float), dict(WAVELENGTH_ATTRS))},
+                        attrs={"units": spectrum.attrs.get("units", "1"),
+                               "long_name": f"illuminant {name} (relative spectral power)"}, name=name)
+
+
+def stimulus_illuminant(stimuli: xr.Dataset, wavelengths) -> xr.DataArray:
+    """The illuminant of a reflectance set on ``wavelengths``: its own spectrum (the variable
+    ``illuminant``, which shares the set's grid) or the CIE illuminant its attribute names."""
+    if "illuminant" in stimuli.data_vars:
+        return stimuli["illuminant"]
+    return illuminant_spectrum(stimuli.attrs.get("illuminant", "D65"), wavelengths)
+
+
+def as_stimuli(stimuli, wavelengths=None) -> xr.Dataset:
+    """A stimulus set at a public entry: a stimulus-set Dataset passes unchanged; colour-science
+    reflectances become a reflectance set on ``wavelengths`` (:func:`reflectance_set`); a plain
+    array is refused with how to make a set of it."""
+    if is_colour_spectrum(stimuli) or is_colour_collection(stimuli):
+        if type(stimuli).__name__ == "SpectralDistribution":
+            raise StimulusError("one colour-science SpectralDistribution is not a stimulus set; give "
+                                "reflectances (a MultiSpectralDistributions) or use it as the illuminant")
+        return reflectance_set(stimuli, wavelengths)
+    if isinstance(stimuli, (np.ndarray, list, tuple)):
+        raise StimulusError(
+            "stimuli: a plain array does not say what it holds; make a stimulus set of it, e.g. "
+            "rgb_set(values, labels) for encoded R, G, B signals, xyz_set(values, labels) for XYZ "
+            "relative to the white, or reflectance_set(values, wavelengths_nm, labels)")
+    return stimuli
 
 
 def xyz_set(values, labels, *, description: str = "XYZ targets") -> xr.Dataset:
@@ -262,10 +363,14 @@ def _check_illuminant(name: str) -> None:
         raise StimulusError(f"illuminant {name!r} is not known; use a CIE illuminant name such as D65, D50, A, F2")
 
 
-def illuminant_spectrum(name: str, wavelengths) -> xr.DataArray:
-    """A CIE illuminant's relative spectral power distribution on a grid (colour-science tables)."""
+def illuminant_spectrum(name, wavelengths) -> xr.DataArray:
+    """A CIE illuminant's relative spectral power distribution on a grid (colour-science tables);
+    ``name`` may also be the spectrum itself (a colour-science ``SpectralDistribution`` or a
+    ``wavelength`` DataArray), put on the grid."""
     import colour
 
+    if not isinstance(name, str):
+        return _illuminant_of_spectrum(name, check_wavelengths(wavelengths, where="illuminant grid"))
     _check_illuminant(name)
     sd = colour.SDS_ILLUMINANTS[name]
     grid = check_wavelengths(wavelengths, where="illuminant grid")
@@ -310,7 +415,11 @@ def combine(*sets: xr.Dataset) -> xr.Dataset:
         other = {k: s.attrs.get(k) for k in keys}
         if other != first:
             raise StimulusError(f"stimulus sets differ in {first} vs {other}; combine sets with the same settings")
-    out = xr.concat(sets, dim="stimulus", combine_attrs="override")
+    spectra = [s["illuminant"] for s in sets if "illuminant" in s.data_vars]
+    if spectra and (len(spectra) != len(sets) or any(not spectra[0].identical(o) for o in spectra[1:])):
+        raise StimulusError("stimulus sets carry different illuminant spectra; combine sets under one illuminant")
+    out = xr.concat(sets, dim="stimulus", data_vars="minimal", coords="minimal", compat="override",
+                    combine_attrs="override")
     out.attrs["description"] = " + ".join(s.attrs.get("description", "") for s in sets)
     out.attrs.pop("merged_stimuli", None)
     out = distinct(out)
@@ -391,6 +500,8 @@ __all__ = [
     "reflectance_set",
     "xyz_set",
     "illuminant_spectrum",
+    "stimulus_illuminant",
+    "as_stimuli",
     "check_stimuli",
     "combine",
     "SAME_COLOUR_TOLERANCE",

@@ -35,7 +35,10 @@ import xarray as xr
 from metasim._version import __version__
 from metasim.display import Display, calibrate_white, make_display
 from metasim.errors import MetasimError, SweepError
-from metasim.metamerism.engine import resolve_observers
+from metasim.metamerism.engine import resolve_observers, resolve_reference
+from metasim.metamerism.stimuli import as_stimuli
+from metasim.observers.convert import as_observer
+from metasim.spectra.convert import is_colour_object
 from metasim.metamerism.summary import THRESHOLDS
 from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 from metasim.sweep.store import (
@@ -189,6 +192,10 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
     grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
     observers = resolve_observers(observers, grid)
+    # colour-science inputs converted once, before the spec hash (metasim.spectra.convert)
+    stimuli, reference = as_stimuli(stimuli, grid), resolve_reference(reference, grid)
+    if is_colour_object(calibration_observer):
+        calibration_observer = as_observer(calibration_observer, grid)
     full = designs if isinstance(designs, Display) else chunk_display(designs, settings)  # checks every design now
     mismatch_options = {"calibration_observer": calibration_observer, "strategy": strategy, "thresholds": tuple(thresholds)}
     if age_bands is not None:
