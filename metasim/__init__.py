@@ -53,7 +53,8 @@ _ENTRY_POINTS = {
     "lab_gamut_volume": "metasim.gamut",
     "lab_coverage_volume": "metasim.gamut",
     "extra_primary_gain": "metasim.gamut",
-    # sweeps
+    # studies and sweeps
+    "run_study": "metasim.study",
     "design_grid": "metasim.sweep",
     "run_sweep": "metasim.sweep",
     # files

@@ -208,8 +208,16 @@ def test_object_reference_cie_13_3_samples(laser, population):
 def test_summaries_by_age_band_and_weights(reference, laser, stimuli, population):
     result = mismatch(reference, laser, population, stimuli)
     by_age = result["delta_e_2000_by_age"]
-    assert list(by_age.age_band.values) == ["20-29", "30-39", "40-49", "50-59", "60-69", "70-80"]
+    # default: the decades covering the ages 20-70, the last band closed (common practice, no source)
+    assert list(by_age.age_band.values) == ["20-29", "30-39", "40-49", "50-59", "60-70"]
     assert int(result["observers_per_age_band"].sum()) == 300
+    ages = population["age_years"].values
+    counts = [((ages >= lo) & (ages < lo + 10)).sum() for lo in (20, 30, 40, 50)] + [((ages >= 60) & (ages <= 70)).sum()]
+    assert result["observers_per_age_band"].values.tolist() == counts  # counted with numpy
+    given = mismatch(reference, laser, population, stimuli, age_bands=(20, 30, 40, 50, 60, 70, 80))
+    assert list(given.age_band.values) == ["20-29", "30-39", "40-49", "50-59", "60-69", "70-80"]
+    np.testing.assert_array_equal(given["delta_e_2000_by_age"].isel(age_band=slice(0, 4)).values,
+                                  by_age.isel(age_band=slice(0, 4)).values)
     categories = metasim.observer_categories(population, 4, seed=2)
     weighted = mismatch(reference, laser, categories, stimuli)
     de = weighted["delta_e_2000"].values

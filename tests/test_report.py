@@ -12,7 +12,7 @@ import xarray as xr
 import metasim
 from metasim import plots
 from metasim.cli.specs import load_display
-from metasim.cli.study import build_stimuli, run_study
+from metasim.cli.study import build_stimuli, spec_texts
 from metasim.errors import MetasimError
 from metasim.report import CAUTIONS, render_report, write_report
 
@@ -26,9 +26,9 @@ def small_study():
     laser, laser_spec = load_display(DEMO / "projector_four_laser.toml")
     observers = metasim.observer_population(40, seed=5, age_years=(20, 70))
     stimuli = build_stimuli("primaries")
-    result = run_study(monitor, [laser], observers, stimuli, rank_calibration=False, white_categories=0,
-                       specs={monitor.name: monitor_spec, laser.name: laser_spec},
-                       extra_bases=[["B", "G", "R"]], extra_peaks_nm=np.arange(450.0, 651.0, 10.0))
+    result = metasim.run_study(monitor, [laser], observers, stimuli, rank_calibration=False, white_categories=0,
+                               spec_texts=spec_texts({monitor.name: monitor_spec, laser.name: laser_spec}),
+                               extra_bases=[["B", "G", "R"]], extra_peaks_nm=np.arange(450.0, 651.0, 10.0))
     return result, monitor, laser, observers, stimuli
 
 

@@ -26,7 +26,8 @@ Displays are described in TOML design spec files (full format: :mod:`metasim.cli
     peak_nm = 465
     linewidth_nm = 1.0
     # ... one [[primary]] table per primary, at least three
-Studies are assembled by :mod:`metasim.cli.study`; nothing in this package models anything.
+Studies are the library function :func:`metasim.study.run_study`; this package parses the options,
+calls the library and prints what was written. Nothing here models anything.
 
 Errors from bad input (unknown options, missing or malformed files, bad specs, values outside what
 a model allows) end the command with one line ``metasim: error: ...`` on stderr and exit code 2
@@ -42,8 +43,10 @@ temporary ``*.partial`` name and renamed when complete (:func:`metasim.io.atomic
 from __future__ import annotations
 
 import argparse
+import importlib
 import sys
 import warnings
+from collections.abc import Sequence
 from pathlib import Path
 
 from metasim._memory import keep_freed_memory
@@ -52,9 +55,38 @@ from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE, check_comma
 from metasim.errors import MetasimError
 
 PROG = "metasim"
-CALIBRATION_OBSERVERS = ("cie1931_2", "cie1964_10", "cie2015_2", "cie2015_10", "population_mean")
-STRATEGIES = ("min_norm", "max_efficiency", "population")
-SOURCES = ("bt709", "srgb", "display_p3", "bt2020")
+
+
+class LibraryChoices(Sequence):
+    """The allowed values of an option, read from a library constant when first needed.
+
+    Importing the library takes seconds (xarray, numba, colour-science); the parser reads the
+    constant only to check a given value or to print help, so ``metasim --help`` and usage errors
+    of other options stay quick.
+    """
+
+    def __init__(self, module: str, name: str):
+        self.module, self.name, self._values = module, name, None
+
+    def _load(self) -> tuple:
+        if self._values is None:
+            self._values = tuple(getattr(importlib.import_module(self.module), self.name))
+        return self._values
+
+    def __getitem__(self, index):
+        return self._load()[index]
+
+    def __len__(self) -> int:
+        return len(self._load())
+
+    def __contains__(self, value) -> bool:
+        return value in self._load()
+
+
+CALIBRATION_OBSERVERS = LibraryChoices("metasim.metamerism.choices", "CANDIDATES")
+STRATEGIES = LibraryChoices("metasim.display.drive", "STRATEGIES")
+SOURCES = LibraryChoices("metasim.display.sources", "SOURCE_SPACES")
+CSV_KINDS = LibraryChoices("metasim.metamerism.stimuli", "KINDS")
 
 
 #: library keyword hints in messages, as the command-line option that does the same
@@ -131,8 +163,11 @@ def _reference(args, specs: dict):
 
 
 def _age_bands(args):
+    """The --age-bands edges, or the library's default policy ("decades") when not given."""
+    from metasim.metamerism.summary import DECADES
+
     if not args.age_bands:
-        return None
+        return DECADES
     try:
         return [float(v) for v in args.age_bands.split(",")]
     except ValueError:
@@ -140,9 +175,10 @@ def _age_bands(args):
 
 
 def _study(args, designs: list, reference, specs: dict) -> int:
-    from metasim.cli.study import Progress, build_stimuli, run_study
+    from metasim.cli.study import Progress, build_stimuli, spec_texts
     from metasim.io import check_outputs, save_dataset
     from metasim.report import report_outputs, write_report
+    from metasim.study import WHITE_CATEGORIES, run_study
 
     out = Path(args.out)
     figures = out / FIGURES_DIR
@@ -154,13 +190,13 @@ def _study(args, designs: list, reference, specs: dict) -> int:
         raise MetasimError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
                            "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
     observers = _observers(args)
-    bands = _age_bands(args)
     steps = len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
     progress = Progress(steps, quiet=args.quiet)
     result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
-                       strategy=args.strategy, age_bands=bands, specs=specs, progress=progress,
-                       extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
-                       rank_calibration=args.choices, white_categories=6 if args.choices else 0, seed=args.seed)
+                       strategy=args.strategy, age_bands=_age_bands(args), spec_texts=spec_texts(specs),
+                       progress=progress, extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
+                       rank_calibration=args.choices, white_categories=WHITE_CATEGORIES if args.choices else 0,
+                       seed=args.seed)
     out.mkdir(parents=True, exist_ok=True)
     result_path = save_dataset(result, out / RESULT_FILE, replace=args.replace)
     progress.step(f"wrote {result_path}")
@@ -210,8 +246,9 @@ def cmd_report(args) -> int:
 def cmd_sweep(args) -> int:
     import numpy as np
 
-    from metasim.cli.study import Progress, build_stimuli, default_age_bands
+    from metasim.cli.study import Progress, build_stimuli
     from metasim.cli.sweep import read_sweep_spec, relative, sweep_designs
+    from metasim.metamerism.summary import age_band_edges
     from metasim.sweep import run_sweep
 
     spec = read_sweep_spec(args.spec)
@@ -235,7 +272,7 @@ def cmd_sweep(args) -> int:
                        lab_volume=bool(args.lab_volume if args.lab_volume is not None else spec.get("lab_volume", False)),
                        per_stimulus=bool(args.per_stimulus if args.per_stimulus is not None
                                          else spec.get("per_stimulus", False)),
-                       age_bands=_age_bands(args) or default_age_bands(observers), progress=progress,
+                       age_bands=age_band_edges(_age_bands(args), observers.coords.get("age_years")), progress=progress,
                        replace=args.replace,
                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
@@ -320,13 +357,16 @@ def _matching_options(parser):
     group = parser.add_argument_group("stimuli and matching")
     group.add_argument("--stimuli", help="comma list of ramp[:N], primaries, cube[:N], cie13.3 or CSV files "
                        "(default ramp:6,primaries,cube:3; cie13.3 for --reference objects)")
-    group.add_argument("--csv-kind", choices=("rgb", "xyz", "reflectance"), default="rgb",
-                       help="what stimulus CSV files hold (default rgb)")
-    group.add_argument("--source", choices=SOURCES, default="bt709", help="colour space of RGB stimuli (default bt709)")
-    group.add_argument("--calibration-observer", choices=CALIBRATION_OBSERVERS, default="cie1931_2",
-                       help="observer both sides are matched for (default cie1931_2)")
-    group.add_argument("--strategy", choices=STRATEGIES, default="min_norm",
-                       help="drive strategy for more than 3 primaries (default min_norm)")
+    # choice lists from the library's constants (LibraryChoices); a metavar keeps argparse from
+    # reading them while it builds the parser
+    group.add_argument("--csv-kind", choices=CSV_KINDS, default="rgb", metavar="KIND",
+                       help="what stimulus CSV files hold: %(choices)s (default rgb)")
+    group.add_argument("--source", choices=SOURCES, default="bt709", metavar="SPACE",
+                       help="colour space of RGB stimuli: %(choices)s (default bt709)")
+    group.add_argument("--calibration-observer", choices=CALIBRATION_OBSERVERS, default="cie1931_2", metavar="NAME",
+                       help="observer both sides are matched for: %(choices)s (default cie1931_2)")
+    group.add_argument("--strategy", choices=STRATEGIES, default="min_norm", metavar="NAME",
+                       help="drive strategy for more than 3 primaries: %(choices)s (default min_norm)")
     group.add_argument("--age-bands", help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
     return group
 

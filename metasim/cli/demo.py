@@ -14,10 +14,11 @@ from pathlib import Path
 
 from metasim._paths import data_dir
 from metasim.cli.specs import load_display
-from metasim.cli.study import Progress, build_population, build_stimuli, run_study
+from metasim.cli.study import Progress, build_population, build_stimuli, spec_texts
 from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE
 from metasim.io import check_outputs, save_dataset
 from metasim.report import report_outputs, write_report
+from metasim.study import run_study
 
 DEMO_DIR = data_dir() / "demo"
 REFERENCE_SPEC = "grading_monitor.toml"
@@ -47,7 +48,7 @@ def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, re
     observers = build_population(size, seed, AUDIENCE_AGES, "2")
     progress.step(f"audience: {size} observers aged {AUDIENCE_AGES}, seed {seed}")
     stimuli = build_stimuli(STIMULI.format(csv=DEMO_DIR / "stimuli.csv"))
-    result = run_study(reference, designs, observers, stimuli, specs=specs, progress=progress, seed=seed,
+    result = run_study(reference, designs, observers, stimuli, spec_texts=spec_texts(specs), progress=progress, seed=seed,
                        extra_bases=[specs[d.name].get("extra_primary_base") for d in designs])
     result.attrs["title"] = "Kestrel Lane Post: screening-room projector candidates against the grading monitor"
     result.attrs["scenario"] = ("invented demo: a post-production house weighs two projector designs against its "

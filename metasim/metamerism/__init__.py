@@ -23,7 +23,7 @@ from metasim.metamerism.stimuli import (
     rgb_set,
     xyz_set,
 )
-from metasim.metamerism.summary import AGE_BANDS, STATISTICS, THRESHOLDS, summarise
+from metasim.metamerism.summary import DECADES, STATISTICS, THRESHOLDS, age_band_edges, decade_age_bands, summarise
 
 __all__ = [
     "mismatch",
@@ -47,7 +47,9 @@ __all__ = [
     "distinct",
     "duplicate_colours",
     "summarise",
-    "AGE_BANDS",
+    "DECADES",
+    "decade_age_bands",
+    "age_band_edges",
     "STATISTICS",
     "THRESHOLDS",
 ]

@@ -25,8 +25,10 @@ from metasim.metamerism.engine import (
 )
 from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.summary import observer_weights, weighted_quantile
+from metasim.observers.standard import STANDARD_OBSERVERS
 
-CANDIDATES = ("cie1931_2", "cie1964_10", "cie2015_2", "cie2015_10", "population_mean")
+#: Calibration observers: every standard observer and the population's mean observer.
+CANDIDATES = (*STANDARD_OBSERVERS, "population_mean")
 
 
 def rank_calibration_observers(

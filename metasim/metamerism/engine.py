@@ -46,7 +46,7 @@ from metasim.display.drive import drive_solution
 from metasim.display.optics import display_matrices, observer_xyz
 from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism.stimuli import as_stimuli, check_stimuli, stimulus_illuminant
-from metasim.metamerism.summary import AGE_BANDS, THRESHOLDS, observer_weights, summary_variables
+from metasim.metamerism.summary import DECADES, THRESHOLDS, observer_weights, summary_variables
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
 from metasim.observers.convert import as_observer, is_colour_observer
 from metasim.spectra import RADIANCE_UNITS, require_same_grid
@@ -208,7 +208,7 @@ def mismatch(
     adapted_white: str = "reference",
     object_white_luminance: float | None = None,
     include_itp: bool | None = None,
-    age_bands=AGE_BANDS,
+    age_bands=DECADES,
     thresholds=THRESHOLDS,
 ) -> xr.Dataset:
     """Compare a reference rendering with a test display for a set of observers and stimuli.
@@ -246,7 +246,8 @@ def mismatch(
     include_itp : bool, optional
         Compute ΔE_ITP (ITU-R BT.2124, from the absolute XYZ); default: when either display uses an
         HDR transfer function (PQ or HLG).
-    age_bands, thresholds : see :func:`metasim.metamerism.summary.summarise`.
+    age_bands, thresholds : see :func:`metasim.metamerism.summary.summarise` (default age bands: the
+        decades that cover the observers' ages, :func:`metasim.metamerism.summary.decade_age_bands`).
 
     Returns
     -------

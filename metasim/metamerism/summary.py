@@ -9,6 +9,8 @@ numpy's default linear method, so plain populations give the usual numpy numbers
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 import xarray as xr
 
@@ -21,8 +23,9 @@ STATISTICS = ("mean", "median", "p95", "max")
 #: Common-practice thresholds of visibility for CIE 2000 differences (no source): 1 is about one
 #: just-noticeable difference, 2 noticeable side by side, 3 obvious.
 THRESHOLDS = (1.0, 2.0, 3.0)
-#: Default age bands in years: [20, 30), [30, 40), ..., [70, 80].
-AGE_BANDS = (20, 30, 40, 50, 60, 70, 80)
+#: The default age-band policy: decade bands (edges at whole multiples of 10 years) that just cover
+#: the observers' ages, so no band is empty at either end (see :func:`decade_age_bands`).
+DECADES = "decades"
 
 
 def weighted_quantile(values: np.ndarray, weights: np.ndarray | None, q: float, axis: int) -> np.ndarray:
@@ -81,6 +84,70 @@ def observer_weights(delta_e: xr.DataArray) -> np.ndarray | None:
     return None
 
 
+def decade_age_bands(ages) -> list[int]:
+    """Edges of the decade age bands that cover ``ages`` (years): the default age-band policy.
+
+    The bands are [lo, lo + 10), [lo + 10, lo + 20), ..., the last one closed, from the decade below
+    the youngest observer to the decade at or above the oldest; a single decade when all ages fall
+    in one. Decades are common practice, no source.
+
+    Parameters
+    ----------
+    ages : array_like
+        Observer ages in years (at least one, finite).
+
+    Returns
+    -------
+    list of int
+        Ascending band edges in years.
+
+    Raises
+    ------
+    MetasimError
+        When no finite age is given.
+
+    Examples
+    --------
+    >>> decade_age_bands([20.4, 33.0, 69.9])
+    [20, 30, 40, 50, 60, 70]
+    >>> decade_age_bands([32.0])
+    [30, 40]
+    """
+    ages = np.asarray(ages, dtype=float).ravel()
+    if ages.size == 0 or not np.isfinite(ages).all():
+        raise MetasimError(f"age bands need finite ages in years, got {ages.tolist()[:5]}")
+    lo, hi = math.floor(ages.min() / 10) * 10, math.ceil(ages.max() / 10) * 10
+    edges = list(range(int(lo), int(hi) + 1, 10))
+    return edges if len(edges) >= 2 else [int(lo), int(lo) + 10]
+
+
+def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
+    """The band edges an ``age_bands`` option stands for, for observers of ``ages`` (years).
+
+    ``"decades"`` (:data:`DECADES`, the default everywhere) gives :func:`decade_age_bands` of the
+    ages; a sequence gives those edges (ascending, at least two); ``None`` or an empty sequence
+    gives no bands. Observers without ages (``ages`` None) have no bands either.
+    """
+    if ages is None or age_bands is None or (not isinstance(age_bands, str) and len(age_bands) == 0):
+        return None
+    if isinstance(age_bands, str):
+        if age_bands != DECADES:
+            raise MetasimError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band "
+                               "edges in years")
+        return tuple(decade_age_bands(ages))
+    if np.ndim(age_bands) != 1:
+        raise MetasimError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band edges "
+                           "in years")
+    return tuple(age_bands)
+
+
+def age_band_labels(edges) -> list[str]:
+    """Labels of the bands between ``edges``: '20-29' for [20, 30) in whole years, '60-70' for the
+    closed last band (the ``age_band`` coordinate of the summaries)."""
+    edges = [float(e) for e in edges]
+    return [_band_label(lo, hi, i == len(edges) - 2) for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:]))]
+
+
 def _band_label(lo: float, hi: float, last: bool) -> str:
     """'20-29' for [20, 30) with whole years, '70-80' for the closed last band."""
     if not last and float(lo).is_integer() and float(hi).is_integer():
@@ -89,13 +156,14 @@ def _band_label(lo: float, hi: float, last: bool) -> str:
 
 
 @blas_single_threaded
-def summarise(delta_e: xr.DataArray, *, age_bands=AGE_BANDS, thresholds=THRESHOLDS, name: str = "delta_e") -> xr.Dataset:
+def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS, name: str = "delta_e") -> xr.Dataset:
     """Summaries of a difference array with dims (``observer``, ``stimulus``, [other dims]).
 
     Returns ``<name>_by_stimulus`` (statistic, stimulus, …), ``<name>_by_observer`` (statistic,
     observer, …), ``<name>_by_age`` (statistic, age_band, …; needs an ``age_years`` coordinate),
     ``share_beyond`` (threshold, stimulus, …: share of observers above each threshold) and
     ``share_beyond_overall`` (threshold, …: share of observer × stimulus pairs above it).
+    ``age_bands`` is resolved by :func:`age_band_edges` (default: the decades covering the ages).
     """
     for dim in ("observer", "stimulus"):
         if dim not in delta_e.dims:
@@ -133,7 +201,7 @@ def _age_bands(ages, age_bands):
     return labels, counts, members
 
 
-def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=AGE_BANDS,
+def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=DECADES,
                       thresholds=THRESHOLDS, name: str = "delta_e") -> tuple[dict, xr.Coordinates]:
     """The summaries of :func:`summarise` from numpy values (observer, stimulus, *rest): a dict of
     (dims, values, attrs) and the Coordinates of the summary dims (statistic, age_band, threshold)."""
@@ -143,7 +211,8 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     # the common case (equal weights, no NaN, observer × stimulus only) goes through one compiled
     # pass per summary; anything else through numpy
     fast = weights is None and values.size > 0 and not np.isnan(values).any()
-    bands = _age_bands(ages, age_bands) if ages is not None and age_bands else None
+    edges = age_band_edges(age_bands, ages)
+    bands = _age_bands(ages, edges) if edges else None
     if fast:  # one sort per summary, then one compiled pass over it; other dims one slice at a time
         segments = [np.flatnonzero(inside) for inside in (bands[2] if bands else []) if inside.any()]
         flat = values.reshape(*values.shape[:2], -1)
@@ -197,4 +266,4 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     return out, xr.Coordinates(variables, indexes=indexes)
 
 
-__all__ = ["STATISTICS", "THRESHOLDS", "AGE_BANDS", "weighted_quantile", "summarise", "summary_variables", "observer_weights"]
+__all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels", "weighted_quantile", "summarise", "summary_variables", "observer_weights"]

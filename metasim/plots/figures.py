@@ -1,7 +1,7 @@
 """Figures of metasim results (matplotlib, drawn off-screen with the Agg renderer, saved as PNG).
 
 Every function takes labelled xarray inputs (the variables of a study result, see
-:mod:`metasim.cli.study`, or the same-named outputs of the library) and returns a
+:mod:`metasim.study`, or the same-named outputs of the library) and returns a
 :class:`matplotlib.figure.Figure`; :func:`png_bytes` and :func:`save_png` turn it into a file.
 No pyplot state is used, so figures can be made from threads and never open a window.
 
@@ -213,16 +213,16 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
     """Box plots of CIE 2000 differences (all observer × stimulus pairs) per age band and design.
 
     ``delta_e`` has dims ([``design``,] ``observer``, ``stimulus``) with an ``age_years``
-    coordinate; ``age_bands`` are labels as in the engine's ``age_band`` coordinate (default:
-    decades). Boxes span the quartiles, whiskers the 5th-95th percentiles; the diamond is the mean.
+    coordinate; ``age_bands`` are labels as in the engine's ``age_band`` coordinate (default: the
+    engine's default bands, the decades covering the ages). Boxes span the quartiles, whiskers the 5th-95th percentiles; the diamond is the mean.
     """
     if "design" not in delta_e.dims:
         delta_e = delta_e.expand_dims(design=["design"])
     ages = np.asarray(delta_e.coords["age_years"].values, dtype=float)
     if age_bands is None:
-        lo, hi = int(np.floor(ages.min() / 10) * 10), int(np.ceil(ages.max() / 10) * 10)
-        edges = list(range(lo, max(hi, lo + 10) + 1, 10))
-        age_bands = [f"{a}-{b - 1}" for a, b in zip(edges[:-2], edges[1:-1])] + [f"{edges[-2]}-{edges[-1]}"]
+        from metasim.metamerism.summary import age_band_labels, decade_age_bands
+
+        age_bands = age_band_labels(decade_age_bands(ages))
     labels = [str(b) for b in age_bands]
     masks = band_members(ages, labels)
     designs = [str(v) for v in delta_e["design"].values]

@@ -4,10 +4,11 @@ The page embeds its figures as base64 PNG (``data:image/png;base64,...``), uses 
 style sheet from anywhere else, and so opens in a browser with no network. It shows what the result
 holds, section by section:
 
-* a study result (:mod:`metasim.cli.study`): headline mismatch numbers per design, gamut table, the
-  five figures of :mod:`metasim.plots`, age-band and per-stimulus tables, calibration-observer
-  ranking and white-point offsets when present;
-* a mismatch Dataset straight from :func:`metasim.mismatch` (treated as one design);
+* a study result (:func:`metasim.run_study`; the layout documented in :mod:`metasim.study`):
+  headline mismatch numbers per design, gamut table, the five figures of :mod:`metasim.plots`,
+  age-band and per-stimulus tables, calibration-observer ranking and white-point offsets when
+  present;
+* a mismatch Dataset straight from :func:`metasim.mismatch` (one design: :func:`metasim.study.as_study`);
 * an observer population or category file (:func:`metasim.observer_population`): ages, parameters
   and the spread of the colour-matching functions;
 * a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
@@ -31,16 +32,7 @@ from metasim.io import check_outputs, write_bytes, write_text
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
-
-
-def as_study(ds: xr.Dataset) -> xr.Dataset:
-    """A result with the study layout: a plain mismatch Dataset gains a one-entry ``design`` dim."""
-    if "delta_e_2000" in ds and "design" not in ds["delta_e_2000"].dims:
-        name = str(ds.attrs.get("test", "design"))
-        ds = ds.copy()
-        for v in list(ds.data_vars):
-            ds[v] = ds[v].expand_dims(design=[name])
-    return ds
+from metasim.study import RESULT_KIND, as_study
 
 
 def is_sweep(ds: xr.Dataset) -> bool:
@@ -52,7 +44,7 @@ def is_sweep(ds: xr.Dataset) -> bool:
 def _kind(ds: xr.Dataset) -> str:
     if is_sweep(ds):
         return "sweep"
-    if "delta_e_2000" in ds or "gamut_polygon" in ds:
+    if ds.attrs.get("result_kind") == RESULT_KIND or "delta_e_2000" in ds or "gamut_polygon" in ds:
         return "study"
     if "cmf" in ds and "observer" in ds.dims:
         return "population"

@@ -1,0 +1,470 @@
+"""Studies: the gamut of every display and the population mismatch of each design, in one Dataset.
+
+A *study* compares one or more candidate display designs with a reference (a display, or real
+objects under their illuminant) for a population of observers: the chromaticity gamut, CIELAB
+volume and coverage of every display, the extra-primary gain of each design, the engine's mismatch
+results and summaries per design and, optionally, the calibration-observer ranking and the white
+trims per observer category. :func:`run_study` chooses the library calls and gathers their outputs
+into one self-describing Dataset that :mod:`metasim.report` renders and :func:`metasim.save_dataset`
+writes losslessly. Nothing here models anything: every number comes from a library function
+(:mod:`metasim.gamut`, :func:`metasim.mismatch`, :mod:`metasim.metamerism.choices`).
+
+Study result layout
+-------------------
+Dims (project vocabulary):
+
+``display``          every display in the study, the reference display (if there is one) first;
+                     coordinate ``display_role`` ("reference" or "design")
+``design``           the candidates judged against the reference (the last entries of ``display``)
+``primary``          an index 0..N-1 (N: most primaries of any display); ``primary_label`` names it
+``wavelength``, ``chromaticity`` (x, y), ``vertex``, ``reference_gamut`` (bt709, display_p3,
+dci_p3, bt2020), ``peak_wavelength``, and the engine's ``observer``, ``stimulus``, ``xyz``,
+``statistic`` (mean, median, p95, max), ``age_band``, ``threshold``; with choices also
+``calibration_observer`` and ``category``.
+
+Variables over ``display`` (CIE 1931 2° observer, each display's own white):
+
+=========================================  ======================================================
+``spectra`` (display, primary, wavelength)  radiance of each primary at full drive after white
+                                            calibration, W sr-1 m-2 nm-1 (NaN pads missing ones)
+``primary_label`` (display, primary)        label of each primary ("" pads)
+``primary_xy`` (display, primary, chrom.)   CIE 1931 xy of each primary
+``white_xy`` (display, chromaticity)        CIE 1931 xy of the display white
+``gamut_area_xy``, ``gamut_area_uv``        chromaticity gamut area in xy and u'v'
+``gamut_polygon`` (display, vertex, chr.)   hull in CIE 1931 xy, NaN padded
+``gamut_coverage`` (display, reference_gamut)      share of each reference xy area covered
+``locus_share`` (display)                   share of the CIE 1931 spectrum-locus area
+``lab_volume`` (display)                    CIELAB volume of the colour solid
+``lab_coverage_volume`` (display, reference_gamut) share of each reference solid's volume covered
+=========================================  ======================================================
+
+Variables over ``design``:
+
+==============================================  =================================================
+``delta_e_2000`` (design, observer, stimulus)   CIE 2000 difference per observer and stimulus;
+                                                the ``observer`` coordinates (``age_years``, ...)
+                                                come with it
+``delta_e_white`` (design, observer)            CIE 2000 difference of the whites
+``delta_e_2000_by_stimulus``, ``_by_age``,      the engine's summaries (:func:`metasim.mismatch`);
+``observers_per_age_band``, ``share_beyond``,   age bands by default the decades covering the
+``share_beyond_overall``                        observers' ages
+``out_of_gamut_test``, ``out_of_gamut_reference``, ``delta_e_2000_calibration``  as in the engine
+``delta_e_2000_overall`` (design, statistic)    over all observer × stimulus pairs (weighted)
+``metamerism_index_by_stimulus``                observer metamerism index, statistics per stimulus
+``area_gain_share``, ``volume_gain_share``,     gain of one extra laser primary per candidate peak
+``area_gain``, ``volume_gain`` (design, peak_wavelength)
+``extra_base`` (design)                         the primaries the gain starts from
+``calibration_mean_delta_e``, ``calibration_p95_delta_e``, ``calibration_mean_delta_e_white``
+(design, calibration_observer), ``best_calibration_observer`` (design)   with the ranking
+``white_offset_xy`` (design, category, chromaticity), ``white_offset_uv_length`` (design,
+category), coordinates ``category_weight``, ``category_age_years``   with the white trims
+==============================================  =================================================
+
+Every variable has ``units`` and ``long_name``. Attributes: ``result_kind`` = ``"metasim study"``
+(:data:`RESULT_KIND`), ``title``, ``model`` and the engine's settings (``calibration_observer``,
+``drive_strategy``, ``white_matched``, ``adapted_white``, ``reference``, ``reference_kind``),
+``observer_model``, ``observer_parameters``, ``observer_seed``, ``observer_count``,
+``observer_categories``, ``stimuli``, ``stimulus_kind``, ``stimulus_source``,
+``thresholds_source``, ``gamut_observer``, ``gamut_references``, ``extra_primary_candidates``,
+``display_specs`` (display name → text of its spec file) and ``metasim_version``.
+
+A plain :func:`metasim.mismatch` result takes this layout through :func:`as_study` (a one-entry
+``design`` dim).
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Sequence
+
+import numpy as np
+import xarray as xr
+
+from metasim._version import __version__
+from metasim.colorimetry import xyz_to_xy
+from metasim.display import Display
+from metasim.gamut import (
+    REFERENCE_GAMUTS,
+    chromaticity_gamut,
+    extra_primary_gain,
+    gamut_coverage,
+    lab_coverage_volume,
+    lab_gamut_volume,
+    locus_share,
+)
+from metasim.metamerism import mismatch
+from metasim.metamerism.choices import rank_calibration_observers, white_point_offsets
+from metasim.metamerism.summary import DECADES, STATISTICS, summarise, weighted_quantile
+from metasim.observers import observer_categories, standard_observer
+from metasim.spectra import default_grid
+
+RESULT_KIND = "metasim study"
+#: The observer of every gamut number of a study.
+GAMUT_OBSERVER = "cie1931_2"
+#: Candidate peaks of the extra-primary gain curve, nm.
+EXTRA_PEAKS_NM = np.arange(450.0, 651.0, 1.0)
+#: The engine's variables a study keeps, per design.
+MISMATCH_VARIABLES = ("delta_e_2000", "delta_e_white", "delta_e_2000_by_stimulus", "delta_e_2000_by_age",
+                      "observers_per_age_band", "share_beyond", "share_beyond_overall", "out_of_gamut_test",
+                      "out_of_gamut_reference", "delta_e_2000_calibration")
+#: Observer categories of the white trims when the population has none (``white_categories``).
+WHITE_CATEGORIES = 6
+
+VARIABLE_ATTRS = {
+    "spectra": ("W sr-1 m-2 nm-1", "spectral radiance of each primary at full drive, after white calibration"),
+    "primary_label": ("1", "label of each primary (empty: padding)"),
+    "primary_xy": ("1", "CIE 1931 xy chromaticity of each primary"),
+    "white_xy": ("1", "CIE 1931 xy chromaticity of the display white"),
+    "gamut_area_xy": ("1", "chromaticity gamut area in CIE 1931 xy"),
+    "gamut_area_uv": ("1", "chromaticity gamut area in CIE 1976 u'v'"),
+    "gamut_polygon": ("1", "chromaticity gamut polygon in CIE 1931 xy (NaN padded)"),
+    "gamut_coverage": ("1", "share of each reference gamut's xy area covered"),
+    "locus_share": ("1", "share of the CIE 1931 spectrum-locus area covered"),
+    "lab_volume": ("1", "CIELAB volume of the colour solid (own white), CIELAB units cubed"),
+    "lab_coverage_volume": ("1", "share of each reference colour solid's CIELAB volume covered"),
+    "area_gain_share": ("1", "chromaticity area gained by one extra laser primary, share of the base area"),
+    "volume_gain_share": ("1", "CIELAB volume gained by one extra laser primary, share of the base volume"),
+    "extra_base": ("1", "primaries the extra-primary gain starts from"),
+}
+
+
+def _quiet(text: str) -> None:
+    """The default progress callback: says nothing."""
+
+
+# -- gamut of every display --------------------------------------------------------------------------
+
+def _gamut_block(display: Display, cie1931: xr.Dataset) -> dict:
+    gamut = chromaticity_gamut(display, observer=cie1931)
+    refs = list(REFERENCE_GAMUTS)
+    coverage = xr.concat([gamut_coverage(gamut, r) for r in refs], dim="reference_gamut")
+    volume_cover = xr.concat([lab_coverage_volume(display, r, observer=cie1931)["coverage"] for r in refs],
+                             dim="reference_gamut")
+    return {
+        "gamut_area_xy": gamut["area"],
+        "gamut_area_uv": chromaticity_gamut(display, space="uv", observer=cie1931)["area"],
+        "gamut_polygon": gamut["polygon"],
+        "primary_xy": gamut["chromaticity_of_primary"],
+        "gamut_coverage": coverage.assign_coords(reference_gamut=refs),
+        "locus_share": locus_share(display, cie1931),
+        "lab_volume": lab_gamut_volume(display, cie1931),
+        "lab_coverage_volume": volume_cover.assign_coords(reference_gamut=refs),
+    }
+
+
+def _pad_primary(array: xr.DataArray, n: int) -> xr.DataArray:
+    array = array.drop_vars([c for c in array.coords if "primary" in array[c].dims])
+    array = array.assign_coords(primary=np.arange(array.sizes["primary"]))
+    return array.reindex(primary=np.arange(n))
+
+
+def _clean(array: xr.DataArray, keep=()) -> xr.DataArray:
+    drop = [c for c in array.coords if c not in array.dims and c not in keep]
+    return array.drop_vars(drop)
+
+
+def unique_names(names: Sequence[str]) -> list[str]:
+    """``names`` with repeats numbered: ["A", "A"] → ["A", "A (2)"]."""
+    out = []
+    for name in names:
+        label, i = name, 2
+        while label in out:
+            label, i = f"{name} ({i})", i + 1
+        out.append(label)
+    return out
+
+
+def display_blocks(displays: Sequence[Display], roles: Sequence[str], observer: xr.Dataset | None = None,
+                   progress: Callable[[str], None] | None = None) -> xr.Dataset:
+    """Spectra and gamut variables of every display, stacked along ``display``.
+
+    Parameters
+    ----------
+    displays : sequence of Display
+        The displays, in study order.
+    roles : sequence of str
+        ``"reference"`` or ``"design"`` per display (coordinate ``display_role``).
+    observer : Dataset, optional
+        The observer of the gamut numbers (default :data:`GAMUT_OBSERVER` on the default grid).
+    progress : callable, optional
+        Called with one line of text per display.
+
+    Returns
+    -------
+    Dataset
+        The ``display`` variables of the study layout (module docstring); repeated display names
+        are numbered (:func:`unique_names`).
+    """
+    progress = progress or _quiet
+    observer = observer if observer is not None else standard_observer(GAMUT_OBSERVER, default_grid().values)
+    n = max(d.n_primaries for d in displays)
+    parts = []
+    for display in displays:
+        block = {k: _clean(v) for k, v in _gamut_block(display, observer).items()}
+        block["spectra"] = _pad_primary(display.spectra, n)
+        block["primary_xy"] = _pad_primary(block["primary_xy"], n)
+        labels = display.primaries + [""] * (n - display.n_primaries)
+        block["primary_label"] = xr.DataArray(np.array(labels, dtype=str), dims="primary",
+                                              coords={"primary": np.arange(n)})
+        block["white_xy"] = _clean(xyz_to_xy(display.white_tristimulus(observer)))
+        parts.append(xr.Dataset(block))
+        progress(f"gamut of {display.name!r}: {float(block['gamut_area_xy']):.4f} xy area, "
+                 f"{float(block['lab_volume']):.3g} CIELAB volume")
+    max_vertex = max(p.sizes["vertex"] for p in parts)
+    parts = [p.reindex(vertex=np.arange(max_vertex)) for p in parts]
+    names = unique_names([d.name for d in displays])
+    out = xr.concat(parts, dim=xr.DataArray(names, dims="display", name="display"))
+    out = out.assign_coords(display_role=("display", list(roles)))
+    out["primary_label"] = out["primary_label"].astype(str)
+    return out
+
+
+# -- decisions ---------------------------------------------------------------------------------------
+
+def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: xr.Dataset, *, strategy: str,
+                   calibration_observer, rank: bool, categories: int, seed: int) -> xr.Dataset | None:
+    """Calibration-observer ranking and per-category white-point offsets of one design.
+
+    Parameters
+    ----------
+    reference, design, observers, stimuli, strategy, calibration_observer
+        As for :func:`run_study`.
+    rank : bool
+        Rank the candidate calibration observers
+        (:func:`metasim.metamerism.rank_calibration_observers`).
+    categories : int
+        Observer categories for the white trims (:func:`metasim.metamerism.white_point_offsets`);
+        a population of categories is used as it is; 0 skips the trims.
+    seed : int
+        Seed of the category clustering.
+
+    Returns
+    -------
+    Dataset or None
+        The ``calibration_*``, ``best_calibration_observer`` and ``white_offset_*`` variables of the
+        study layout (attribute ``best``), or None when neither was asked for.
+    """
+    out, best = xr.Dataset(), "n/a"
+    if rank:
+        ranking = rank_calibration_observers(reference, design, observers, stimuli, strategy=strategy)
+        best = str(ranking.attrs.get("best_calibration_observer", "n/a"))
+        out["calibration_mean_delta_e"] = ranking["mean_delta_e"]
+        out["calibration_p95_delta_e"] = ranking["p95_delta_e"]
+        out["calibration_mean_delta_e_white"] = ranking["mean_delta_e_white"]
+        out["best_calibration_observer"] = xr.DataArray(best)
+    if categories:
+        group = observers if "weight" in observers.coords else observer_categories(
+            observers, min(int(categories), observers.sizes["observer"]), seed=seed)
+        offsets = white_point_offsets(reference, design, group, calibration_observer=calibration_observer,
+                                      stimuli=stimuli if stimuli.attrs.get("kind") == "reflectance" else None)
+        keep = [c for c in ("weight", "age_years") if c in offsets.coords]
+        for name in ("offset_xy", "offset_uv_length"):
+            if name in offsets:
+                value = offsets[name].drop_vars([c for c in offsets[name].coords
+                                                 if c not in offsets[name].dims and c not in keep])
+                value = value.rename(observer="category").assign_coords(category=np.arange(value.sizes["observer"]))
+                out[f"white_{name}"] = value.rename({c: f"category_{c}" for c in keep})
+    if not out.data_vars:
+        return None
+    out.attrs["best"] = best
+    return out
+
+
+def overall_statistics(delta_e: xr.DataArray) -> xr.DataArray:
+    """mean, median, p95, max of ``delta_e`` over all observer × stimulus pairs (observer weights
+    if present), dim ``statistic``."""
+    values = delta_e.transpose("observer", "stimulus").values
+    weights = None
+    if "weight" in delta_e.coords:
+        weights = np.repeat(np.asarray(delta_e.coords["weight"].values, dtype=float), values.shape[1])
+    flat = values.reshape(-1)
+    mean = float(np.average(flat, weights=weights))
+    stats = [mean, float(weighted_quantile(flat, weights, 0.5, 0)), float(weighted_quantile(flat, weights, 0.95, 0)),
+             float(np.max(flat))]
+    return xr.DataArray(stats, dims="statistic", coords={"statistic": list(STATISTICS)},
+                        attrs={"units": "1", "long_name": "CIE 2000 difference over all observer x stimulus pairs"})
+
+
+def study_attributes(engine: dict, observers: xr.Dataset, stimuli: xr.Dataset, spec_texts: dict | None, reference,
+                     design_names: Sequence[str], strategy: str, calibration) -> dict:
+    """The attributes of a study result (module docstring) from the engine's and the inputs'."""
+    population = dict(observers.attrs)
+    parameters = population.get("parameters", "{}")
+    if isinstance(parameters, str):
+        try:
+            parameters = json.loads(parameters)
+        except ValueError:
+            parameters = {"text": parameters}
+    return {
+        "result_kind": RESULT_KIND,
+        "title": f"{', '.join(design_names)} against "
+                 f"{reference.name if isinstance(reference, Display) else 'real objects'}",
+        "model": engine.get("model", ""),
+        "observer_model": str(population.get("model", engine.get("observer_model", ""))),
+        "observer_parameters": parameters,
+        "observer_seed": population.get("seed", "none"),
+        "observer_count": int(observers.sizes["observer"]),
+        "observer_categories": bool("weight" in observers.coords),
+        "calibration_observer": calibration,
+        "drive_strategy": strategy,
+        "white_matched": engine.get("white_matched", True),
+        "adapted_white": engine.get("adapted_white", ""),
+        "reference": engine.get("reference", ""),
+        "reference_kind": engine.get("reference_kind", ""),
+        "stimuli": stimuli.attrs.get("description", ""),
+        "stimulus_kind": stimuli.attrs.get("kind", ""),
+        "stimulus_source": stimuli.attrs.get("source", ""),
+        "thresholds_source": engine.get("thresholds_source", "common practice, no source"),
+        "gamut_observer": GAMUT_OBSERVER,
+        "gamut_references": "primaries from colour-science: ITU-R BT.709, SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020",
+        "extra_primary_candidates": "laser lines 450-650 nm, power of the mean base primary, CIELAB white fixed",
+        "display_specs": dict(spec_texts or {}),
+        "metasim_version": __version__,
+    }
+
+
+# -- the study ---------------------------------------------------------------------------------------
+
+def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stimuli: xr.Dataset, *,
+              calibration_observer="cie1931_2", strategy: str = "min_norm", age_bands=DECADES,
+              extra_bases: Sequence | None = None, spec_texts: dict | None = None,
+              progress: Callable[[str], None] | None = None, extra_peaks_nm=EXTRA_PEAKS_NM,
+              rank_calibration: bool = True, white_categories: int = WHITE_CATEGORIES, seed: int = 0) -> xr.Dataset:
+    """Gamut of every display and the population mismatch of each design against ``reference``.
+
+    For every display: chromaticity gamut, CIELAB volume and coverage of the reference gamuts
+    (CIE 1931 2° observer). For every design: :func:`metasim.mismatch` against ``reference`` with
+    its summaries, the statistics over all pairs, the observer metamerism index per stimulus, the
+    gain of one extra laser primary and, optionally, the calibration-observer ranking and the white
+    trims per observer category.
+
+    Parameters
+    ----------
+    reference : Display or "objects"
+        The reference display, or ``"objects"``: the stimuli as real surfaces under their own
+        illuminant (reflectance stimuli).
+    designs : sequence of Display
+        The candidate displays.
+    observers : Dataset
+        Observer population (:func:`metasim.observer_population` or
+        :func:`metasim.observer_categories`).
+    stimuli : Dataset
+        A stimulus set (:mod:`metasim.metamerism.stimuli`).
+    calibration_observer : str or Dataset
+        The observer both sides are matched for (as for :func:`metasim.mismatch`).
+    strategy : str
+        Drive strategy for more than three primaries (:data:`metasim.display.STRATEGIES`).
+    age_bands : "decades" or sequence of float or None
+        Age-band edges in years; ``"decades"`` (default): the decades covering the observers'
+        ages (:func:`metasim.metamerism.summary.decade_age_bands`); None: no bands.
+    extra_bases : sequence, optional
+        Per design, the primary labels the extra-primary gain starts from (None: all primaries).
+    spec_texts : dict, optional
+        Display name → text of its spec file, kept in the ``display_specs`` attribute.
+    progress : callable, optional
+        Called with one line of text after each step (gamut per display, mismatch, gain and
+        choices per design).
+    extra_peaks_nm : array_like
+        Candidate peaks of the extra laser primary, nm (default 450-650 nm every 1 nm).
+    rank_calibration : bool
+        Rank the candidate calibration observers per design.
+    white_categories : int
+        Observer categories of the white trims (0: none).
+    seed : int
+        Seed of the category clustering.
+
+    Returns
+    -------
+    Dataset
+        The study result (layout in the module docstring).
+
+    Raises
+    ------
+    MetasimError
+        From the library functions called, for inputs they do not allow.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.metamerism import neutral_ramp
+    >>> def display(name, peaks):
+    ...     spectra = gaussian(peaks, [25, 30, 35], name=["B", "G", "R"])
+    ...     return metasim.calibrate_white(metasim.make_display(spectra, name=name), "cie1931_2")
+    >>> reference, design = display("monitor", [455, 535, 615]), display("candidate", [465, 530, 630])
+    >>> audience = metasim.observer_population(4, seed=1, age_years=(20, 70))
+    >>> study = metasim.run_study(reference, [design], audience, neutral_ramp(3), extra_peaks_nm=[500],
+    ...                           rank_calibration=False, white_categories=0)
+    >>> study.attrs["result_kind"], list(study.display.values), study.sizes["observer"]
+    ('metasim study', ['monitor', 'candidate'], 4)
+    """
+    progress = progress or _quiet
+    cie1931 = standard_observer(GAMUT_OBSERVER, default_grid().values)
+    designs = list(designs)
+    displays = ([reference] if isinstance(reference, Display) else []) + designs
+    roles = (["reference"] if isinstance(reference, Display) else []) + ["design"] * len(designs)
+    blocks = display_blocks(displays, roles, cie1931, progress)
+    design_names = list(blocks.display.values[len(displays) - len(designs):])
+    results, gains, choices = [], [], []
+    for i, design in enumerate(designs):
+        result = mismatch(reference, design, observers, stimuli, calibration_observer=calibration_observer,
+                          strategy=strategy, age_bands=age_bands)
+        overall = overall_statistics(result["delta_e_2000"])
+        keep = [v for v in MISMATCH_VARIABLES if v in result]
+        part = result[keep]
+        part = part.drop_vars([c for c in part.coords if c not in part.dims and "observer" not in part[c].dims])
+        part["delta_e_2000_overall"] = overall
+        part["metamerism_index_by_stimulus"] = summarise(result["metamerism_index"], age_bands=(),
+                                                         name="metamerism_index")["metamerism_index_by_stimulus"]
+        results.append(part)
+        p95 = float(overall.sel(statistic="p95"))
+        progress(f"mismatch of {design.name!r}: {observers.sizes['observer']} observers x "
+                 f"{stimuli.sizes['stimulus']} stimuli, 95th percentile {p95:.2f} CIE 2000 units")
+        base = design.spectra
+        labels = (extra_bases or [None] * len(designs))[i]
+        if labels:
+            base = base.sel(primary=list(labels))
+        gain = extra_primary_gain(base, cie1931, peak_nm=extra_peaks_nm, kind="laser", volume=True)
+        gains.append(gain[["area_gain_share", "volume_gain_share", "area_gain", "volume_gain"]]
+                     .assign(extra_base=xr.DataArray(", ".join(str(p) for p in base.primary.values))))
+        progress(f"extra-primary gain of {design.name!r}: {len(extra_peaks_nm)} candidate lines")
+        if rank_calibration or white_categories:
+            choice = decision_block(reference, design, observers, stimuli, strategy=strategy,
+                                    calibration_observer=calibration_observer, rank=rank_calibration,
+                                    categories=white_categories, seed=seed)
+            if choice is not None:
+                choices.append(choice)
+                progress(f"calibration choices for {design.name!r}: best {choice.attrs.get('best', 'n/a')}")
+    engine = dict(results[0].attrs) if results else {}
+    design_dim = xr.DataArray(design_names, dims="design", name="design")
+    mism = xr.concat(results, dim=design_dim, combine_attrs="drop_conflicts")
+    gain = xr.concat(gains, dim=design_dim)
+    parts = [blocks, mism, gain]
+    if choices and len(choices) == len(designs):
+        parts.append(xr.concat(choices, dim=design_dim, combine_attrs="drop"))
+    out = xr.merge(parts, combine_attrs="override")
+    out.attrs = study_attributes(engine, observers, stimuli, spec_texts, reference, design_names, strategy,
+                                 calibration_observer)
+    for name, (units, long_name) in VARIABLE_ATTRS.items():
+        if name in out:
+            out[name].attrs.update({"units": units, "long_name": long_name})
+    for name in out.data_vars:
+        out[name].attrs.setdefault("long_name", name.replace("_", " "))
+        out[name].attrs.setdefault("units", "1")
+    return out
+
+
+def as_study(ds: xr.Dataset) -> xr.Dataset:
+    """A result in the study layout: a plain :func:`metasim.mismatch` Dataset gains a one-entry
+    ``design`` dim (named by its ``test`` attribute); a study is returned as it is."""
+    if "delta_e_2000" in ds and "design" not in ds["delta_e_2000"].dims:
+        name = str(ds.attrs.get("test", "design"))
+        ds = ds.copy()
+        for v in list(ds.data_vars):
+            ds[v] = ds[v].expand_dims(design=[name])
+    return ds
+
+
+__all__ = ["RESULT_KIND", "GAMUT_OBSERVER", "EXTRA_PEAKS_NM", "MISMATCH_VARIABLES", "WHITE_CATEGORIES",
+           "VARIABLE_ATTRS", "run_study", "display_blocks", "decision_block", "overall_statistics",
+           "study_attributes", "unique_names", "as_study"]
