@@ -48,6 +48,18 @@ class SweepError(MetasimError, ValueError):
     """A sweep specification or its output store is not usable."""
 
 
+class StoreLockedError(SweepError):
+    """Another run is writing the sweep store (its lock file names the process and host)."""
+
+
+class StoreIntegrityError(SweepError):
+    """A sweep store's manifest or a chunk file does not hold what the store recorded."""
+
+
+class ChunkSetAsideWarning(MetasimWarning):
+    """A chunk file did not match the store's manifest; it was renamed aside and is computed again."""
+
+
 class FileFormatError(MetasimError, ValueError):
     """A file cannot be read: missing, empty, or not in the expected layout."""
 
@@ -75,6 +87,9 @@ __all__ = [
     "GamutError",
     "StimulusError",
     "SweepError",
+    "StoreLockedError",
+    "StoreIntegrityError",
+    "ChunkSetAsideWarning",
     "FileFormatError",
     "OutputError",
     "OutputExistsError",

@@ -105,15 +105,15 @@ def same_file(a: str | os.PathLike, b: str | os.PathLike) -> bool:
 def check_outputs(outputs: Iterable, *, inputs: Iterable = (), replace: bool = False) -> list[Path]:
     """Check the files a job will write before it computes anything; returns them as paths.
 
-    Refuses (nothing is written or removed then):
+    Refuses, writing nothing and leaving every complete file as it is:
 
     * an output that is one of ``inputs``, or two outputs that name one file
       (:class:`~metasim.errors.OutputIsInputError`);
     * an output that is a folder (:class:`~metasim.errors.OutputError`);
     * an output that exists, unless ``replace`` (:class:`~metasim.errors.OutputExistsError`).
 
-    Then removes the temporary ``*.partial`` files an earlier, killed run left for these outputs
-    (:func:`remove_stale_partials`). ``None`` entries are skipped.
+    The temporary ``*.partial`` files an earlier, killed run left for these outputs are removed
+    (:func:`remove_stale_partials`) before the last check. ``None`` entries are skipped.
     """
     outs = [Path(o) for o in outputs if o is not None]
     ins = [Path(i) for i in inputs if i is not None]
@@ -130,13 +130,13 @@ def check_outputs(outputs: Iterable, *, inputs: Iterable = (), replace: bool = F
                                          "output its own name")
         if out.is_dir():
             raise OutputError(f"{out}: is a folder; give a file name for this output")
+    for out in outs:  # temporary files of killed runs go in any case: they hold nothing complete
+        remove_stale_partials(out)
     existing = [out for out in outs if out.exists() or out.is_symlink()]
     if existing and not replace:
         more = f" (and {len(existing) - 1} more)" if len(existing) > 1 else ""
         raise OutputExistsError(f"{existing[0]}: exists already{more}; nothing was written; give replace=True "
                                 "to replace existing outputs")
-    for out in outs:
-        remove_stale_partials(out)
     return outs
 
 
@@ -326,12 +326,14 @@ def _decode_attrs(attrs: dict, where: str) -> dict:
     return attrs
 
 
-def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, replace: bool = True) -> Path:
+def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, replace: bool = True,
+                 before_rename=None) -> Path:
     """Save a metasim Dataset (or DataArray) to a netCDF4 file, losslessly; returns the path written.
 
     Written through :func:`atomic_output` (a temporary ``*.partial`` file renamed when complete).
     An existing file is replaced unless ``replace=False``
-    (:class:`~metasim.errors.OutputExistsError`).
+    (:class:`~metasim.errors.OutputExistsError`). ``before_rename``, if given, is called with the
+    complete temporary file just before the rename (e.g. to record its checksum).
     """
     import xarray as xr
 
@@ -354,6 +356,8 @@ def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, re
         out[name].encoding = {"_FillValue": None}
     with atomic_output(path, replace=replace) as tmp:
         out.to_netcdf(tmp, engine="netcdf4", format="NETCDF4")
+        if before_rename is not None:
+            before_rename(tmp)
     return path
 
 

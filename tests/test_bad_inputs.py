@@ -10,6 +10,7 @@ lines, a handful of stimuli), so the table stays quick.
 
 from __future__ import annotations
 
+import json
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -62,6 +63,15 @@ R = [630, 640]
 G = [532]
 B = [465]
 """
+
+
+def manifest_text(edit) -> str:
+    """A manifest of a two-design store in chunks of one, changed by ``edit(manifest)``."""
+    chunks = [{"index": i, "start": i, "stop": i + 1, "file": f"chunk-{i:05d}.nc", "sha256": None} for i in range(2)]
+    manifest = {"format": "metasim sweep store", "format_version": 2, "spec_hash": "0" * 64, "chunk_size": 1,
+                "design_count": 2, "chunks": chunks, "spec": {}}
+    edit(manifest)
+    return json.dumps(manifest)
 
 
 @pytest.fixture(scope="module")
@@ -117,6 +127,19 @@ CASES = [
          ["store.txt", "is a file"], {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store.txt": "mine"}),
     Case("sweep over an unknown sweep.nc", ["sweep", "sweep.toml", "--out", "store", "--size", "4"],
          ["sweep.nc", "--replace"], {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store/sweep.nc": b"mine"}),
+    # -- sweep stores: edited manifests --------------------------------------------------------------------
+    Case("sweep: manifest is not JSON", ["sweep", "sweep.toml", "--out", "store", "--size", "4"],
+         ["store/manifest.json", "not a readable sweep manifest", "--replace"],
+         {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store/manifest.json": '{"format": "metasim sweep'}),
+    Case("sweep: manifest lists too few chunks", ["sweep", "sweep.toml", "--out", "store", "--size", "4"],
+         ["store/manifest.json", "0 chunks listed", "edited or damaged"],
+         {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store/manifest.json": manifest_text(lambda m: m.update(chunks=[]))}),
+    Case("sweep: manifest chunk size is text", ["sweep", "sweep.toml", "--out", "store", "--size", "4"],
+         ["store/manifest.json", "chunk_size = '1'"],
+         {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store/manifest.json": manifest_text(lambda m: m.update(chunk_size="1"))}),
+    Case("sweep: manifest chunk entry edited", ["sweep", "sweep.toml", "--out", "store", "--size", "4"],
+         ["store/manifest.json", "chunk entry 1", "designs 1-1"],
+         {"sweep.toml": SWEEP, "monitor.toml": SPEC, "store/manifest.json": manifest_text(lambda m: m["chunks"][1].update(start=0))}),
     # -- inputs: missing, folders, named inside specs ---------------------------------------------------
     Case("evaluate: missing spec", ["evaluate", "missing.toml"], ["missing.toml", "no such file"]),
     Case("evaluate: spec is a folder", ["evaluate", "specs"], ["specs", "folder"], {"specs/x.txt": "x"}),
@@ -187,3 +210,19 @@ def test_bad_input_ends_in_one_line_and_loses_nothing(case, tmp_path, monkeypatc
     assert code == case.code, err
     assert_one_error_line(err, case.expect)
     assert snapshot(tmp_path) == before  # every file as it was, none added
+
+
+def test_a_store_another_run_writes_is_refused_in_one_line(tmp_path, monkeypatch, capsys, observers_nc):
+    import socket
+
+    from metasim.sweep.store import store_lock
+
+    _make(tmp_path, {"sweep.toml": SWEEP, "monitor.toml": SPEC}, observers_nc)
+    monkeypatch.chdir(tmp_path)
+    with store_lock(tmp_path / "store"):  # another writer, as far as the command can tell
+        before = snapshot(tmp_path)
+        code = run_main(["sweep", "sweep.toml", "--out", "store", "--size", "4", "--quiet"])
+        assert snapshot(tmp_path) == before
+    assert code == 1
+    assert_one_error_line(capsys.readouterr().err, ["store", f"process {os.getpid()} on {socket.gethostname()}",
+                                                    "--wait"])

@@ -90,7 +90,7 @@ CSV_KINDS = LibraryChoices("metasim.metamerism.stimuli", "KINDS")
 
 
 #: library keyword hints in messages, as the command-line option that does the same
-CLI_OPTIONS = {"replace=True": "--replace"}
+CLI_OPTIONS = {"replace=True": "--replace", "wait=True": "--wait"}
 
 
 def _for_cli(text) -> str:
@@ -262,6 +262,10 @@ def cmd_sweep(args) -> int:
     line = Progress(0, quiet=args.quiet)
 
     def progress(event):
+        if event["kind"] == "waiting":
+            if not args.quiet:
+                print(f"{PROG}: {event['message']}", file=sys.stderr, flush=True)
+            return
         line.steps = event["total"] + 1  # the chunks and the combine step
         line.step(event["message"])
 
@@ -273,7 +277,7 @@ def cmd_sweep(args) -> int:
                        per_stimulus=bool(args.per_stimulus if args.per_stimulus is not None
                                          else spec.get("per_stimulus", False)),
                        age_bands=age_band_edges(_age_bands(args), observers.coords.get("age_years")), progress=progress,
-                       replace=args.replace,
+                       replace=args.replace, wait=args.wait,
                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
     p95 = result["delta_e_2000_overall"].sel(statistic="p95")
@@ -320,7 +324,9 @@ EXAMPLES = {
               "  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
               "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
               "--scheduler tcp://10.0.0.5:8786\n"
-              "the store folder holds manifest.json, one chunk-NNNNN.nc per finished chunk and the combined sweep.nc;\n"
+              "the store folder holds manifest.json (with a checksum of every finished chunk), one chunk-NNNNN.nc per\n"
+              "finished chunk and the combined sweep.nc; a chunk file that does not match its checksum is renamed\n"
+              "to chunk-NNNNN.nc.set-aside and computed again; writer.lock names the run writing the store;\n"
               "the spec format is described in data/demo/README.md"),
 }
 
@@ -425,6 +431,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
     p.add_argument("--per-stimulus", action="store_true", default=None,
                    help="also keep every stimulus's statistics over observers, per design")
+    p.add_argument("--wait", action="store_true", help="if another run is writing the same store, wait for it to "
+                   "finish and then resume (default: stop, naming that run's process and host)")
     _population_options(p)
     _matching_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)

@@ -42,12 +42,15 @@ from metasim.spectra.convert import is_colour_object
 from metasim.metamerism.summary import THRESHOLDS
 from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 from metasim.sweep.store import (
+    STORE_FORMAT,
+    STORE_FORMAT_VERSION,
     chunk_name,
     chunk_ranges,
     combine_sweep,
-    finished_chunks,
     open_store,
     spec_hash,
+    store_lock,
+    verified_chunks,
     write_chunk,
 )
 from metasim.sweep.summary import design_summaries
@@ -134,7 +137,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
               scheduler="threads", workers: int | None = None, calibration_observer="cie1931_2",
               strategy: str = "min_norm", display_settings: dict | None = None, lab_volume: bool = False,
               per_stimulus: bool = False, age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None,
-              replace: bool = False) -> xr.Dataset:
+              replace: bool = False, wait: bool = False) -> xr.Dataset:
     """Evaluate every design against ``reference`` in chunks, writing each chunk to ``store``; resume.
 
     Parameters
@@ -171,13 +174,17 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         Also keep every stimulus's statistics over observers and shares beyond the thresholds
         (``delta_e_2000_by_stimulus``, ``share_beyond``: design × stimulus numbers).
     progress : callable, optional
-        Called with one dict per event: ``kind`` ("skipped", "computed", "combined"), ``chunk``,
+        Called with one dict per event: ``kind`` ("waiting", "skipped", "computed", "combined"), ``chunk``,
         ``start``, ``stop``, ``done``, ``total``, ``seconds``, ``message``.
     attrs : dict, optional
         Extra attributes for the manifest and the result (e.g. the text of a sweep spec file).
     replace : bool
         A store holding a different sweep is refused unless ``replace``; then its metasim files
         (manifest, chunk files, ``sweep.nc``) are removed and the sweep starts afresh.
+    wait : bool
+        Only one run writes a store at a time (:func:`metasim.sweep.store.store_lock`): another
+        run's store is refused (:class:`~metasim.errors.StoreLockedError`) unless ``wait``; then
+        this run waits for it and resumes (a "waiting" progress event says so).
 
     Returns
     -------
@@ -188,6 +195,9 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     """
     _check_designs(designs)
     _check_scheduler(scheduler)
+    if isinstance(reference, str) and reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
+        raise SweepError(f"reference='objects' (real surfaces) needs reflectance stimuli such as the CIE 13.3 samples; "
+                         f"these stimuli are {stimuli.attrs.get('kind', 'unknown')!r}")
     settings = _settings(designs, display_settings) if not isinstance(designs, Display) else {}
     count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
     grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
@@ -216,7 +226,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
               if v.dims == ("design",) and c != "design"]
     manifest = {
-        "format": "metasim sweep store", "format_version": 1, "spec_hash": digest, "chunk_size": chunk_size,
+        "format": STORE_FORMAT, "format_version": STORE_FORMAT_VERSION, "spec_hash": digest, "chunk_size": chunk_size,
         "design_count": count,
         "chunks": [{"index": i, "start": a, "stop": b, "file": chunk_name(i)} for i, (a, b) in enumerate(ranges)],
         "spec": {"parameters": coords, "design_model": str(getattr(designs, "attrs", {}).get("model", "")),
@@ -232,8 +242,6 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         "model": "per-design summaries of metasim.mismatch and the chromaticity gamut, chunked along design",
         "metasim_version": __version__,
     }
-    manifest = open_store(store, manifest, replace=replace)
-    done = finished_chunks(store, manifest)
     state = {"done": 0, "total": len(ranges), "start": time.perf_counter()}
 
     def report(kind: str, index: int | None, message: str) -> None:
@@ -244,6 +252,20 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
             progress({"kind": kind, "chunk": index, "start": start, "stop": stop, "done": state["done"],
                       "total": state["total"], "seconds": time.perf_counter() - state["start"], "message": message})
 
+    def waiting(holder) -> None:
+        report("waiting", None, f"waiting for the run writing {store} (process {(holder or {}).get('pid', '?')} on "
+               f"{(holder or {}).get('host', '?')}) to finish")
+
+    with store_lock(store, wait=wait, on_wait=waiting):  # one writer at a time
+        return _fill_store(store, manifest, replace, ranges, count, report, designs, scheduler, reference, observers,
+                           stimuli, options, workers)
+
+
+def _fill_store(store, manifest, replace, ranges, count, report, designs, scheduler, reference, observers, stimuli,
+                options, workers) -> xr.Dataset:
+    """Under the store's lock: open or resume it, compute the pending chunks, verify, combine."""
+    manifest = open_store(store, manifest, replace=replace)
+    done = verified_chunks(store, manifest)
     for index in sorted(done):
         a, b = ranges[index]
         report("skipped", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) already in the store")
@@ -263,6 +285,8 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
                f"95th percentile {np.nanmin(p95):.2f}-{np.nanmax(p95):.2f} CIE 2000 units")
 
     _execute(scheduler, pending, block, finish, reference, observers, stimuli, options, workers)
+    again = sorted(set(range(len(ranges))) - verified_chunks(store, manifest))  # checked again before combining
+    _execute(scheduler, again, block, finish, reference, observers, stimuli, options, workers)
     combined = combine_sweep(store)
     report("combined", None, f"combined {count} designs into {Path(store) / 'sweep.nc'}")
     return combined

@@ -1,24 +1,45 @@
-"""The sweep store: a folder of chunk files, a manifest, and the combined result.
+"""The sweep store: a folder of chunk files, a manifest, a lock, and the combined result.
 
 Layout::
 
-    STORE/manifest.json      what the sweep is: spec hash, chunk size, chunk ranges, seed, model,
-                             metasim version, a description of the spec
+    STORE/manifest.json      what the sweep is: spec hash, chunk size, chunk ranges (with the
+                             SHA-256 of each finished chunk file), seed, model, metasim version,
+                             a description of the spec
     STORE/chunk-00000.nc     per-design summaries of designs [start, stop) of chunk 0, written
     STORE/chunk-00001.nc     (atomically, by metasim.io.save_dataset) as soon as the chunk is done
     ...
     STORE/sweep.nc           every chunk gathered along ``design`` (:func:`combine_sweep`)
+    STORE/writer.lock        while a run writes the store: its process id, host and start time
 
-A chunk is finished when its file exists; a re-run with the same store skips finished chunks. The
-spec hash is a SHA-256 over everything that decides the numbers (design spectra and parameters,
+Only one process writes a store at a time (:func:`store_lock`): a second run is refused with the
+holder's process id and host, or waits for it when asked; the lock of a run that was killed (its
+process gone) is taken over with one line saying so.
+
+A chunk is finished when its file exists and its SHA-256 equals the one the manifest recorded when
+the file was written (the manifest is updated just before the file is renamed into place). A re-run
+with the same store skips finished chunks; a chunk file that does not match (changed, truncated,
+copied from another slot, or without a recorded checksum) is renamed aside
+(``chunk-NNNNN.nc.set-aside``, never deleted) and computed again, with one warning line
+(:class:`~metasim.errors.ChunkSetAsideWarning`). Before combining, every chunk is checked again,
+including the design range its attributes record. The manifest itself is checked on every read
+(keys, types, chunk ranges); an edited or damaged one is refused with one line
+(:class:`~metasim.errors.StoreIntegrityError`).
+
+The spec hash is a SHA-256 over everything that decides the numbers (design spectra and parameters,
 display settings, reference, observers, stimuli, calibration observer, strategy, options); a store
-made for a different hash, or with a different chunk size, is refused.
+made for a different hash, or with a different chunk size, is refused (or, when asked, replaced).
+A change of the sweep's name or description only (not hashed) is taken into the manifest on resume.
 """
 
 from __future__ import annotations
 
+import contextlib
 import hashlib
 import json
+import os
+import socket
+import time
+import warnings
 from pathlib import Path
 
 import numpy as np
@@ -26,13 +47,26 @@ import xarray as xr
 
 from metasim._version import __version__
 from metasim.display import Display
-from metasim.errors import SweepError
-from metasim.io import load_dataset, save_dataset, write_text
+from metasim.errors import (
+    ChunkSetAsideWarning,
+    MetasimWarning,
+    StoreIntegrityError,
+    StoreLockedError,
+    SweepError,
+)
+from metasim.io import load_dataset, process_alive, remove_stale_partials, save_dataset, write_text
+
+try:
+    import fcntl
+except ImportError:  # not a POSIX system: the lock falls back to its process id check
+    fcntl = None
 
 STORE_FORMAT = "metasim sweep store"
-STORE_FORMAT_VERSION = 1
+STORE_FORMAT_VERSION = 2
 MANIFEST = "manifest.json"
 COMBINED = "sweep.nc"
+LOCK = "writer.lock"
+SET_ASIDE = ".set-aside"
 #: attributes left out of the spec hash: they name the software, not the computation
 _UNHASHED_ATTRS = ("metasim_version",)
 
@@ -79,29 +113,178 @@ def spec_hash(*items) -> str:
     return hasher.hexdigest()
 
 
+def file_checksum(path) -> str:
+    """SHA-256 (hex) of a file's bytes."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        for block in iter(lambda: handle.read(1 << 20), b""):
+            digest.update(block)
+    return digest.hexdigest()
+
+
+def _damaged(path, what: str):
+    return StoreIntegrityError(f"{path}: {what}; the manifest was edited or damaged; use a new store folder, or "
+                               "give replace=True to start this store afresh")
+
+
+def check_manifest(manifest, path) -> dict:
+    """The manifest, its keys, types and chunk ranges checked (:class:`StoreIntegrityError` if not)."""
+    if not isinstance(manifest, dict) or manifest.get("format") != STORE_FORMAT:
+        raise SweepError(f"{path}: not a metasim sweep manifest (format {STORE_FORMAT!r} expected)")
+    for key, kind in (("spec_hash", str), ("chunk_size", int), ("design_count", int), ("chunks", list),
+                      ("spec", dict)):
+        value = manifest.get(key)
+        if not isinstance(value, kind) or isinstance(value, bool):
+            raise _damaged(path, f"{key} = {str(value)[:40]!r} is not a {kind.__name__}")
+    if manifest["chunk_size"] < 1 or manifest["design_count"] < 1:
+        raise _damaged(path, f"chunk_size {manifest['chunk_size']} and design_count {manifest['design_count']} "
+                             "must be >= 1")
+    expected = chunk_ranges(manifest["design_count"], manifest["chunk_size"])
+    if len(manifest["chunks"]) != len(expected):
+        raise _damaged(path, f"{len(manifest['chunks'])} chunks listed; {manifest['design_count']} designs in chunks "
+                             f"of {manifest['chunk_size']} make {len(expected)}")
+    for i, (chunk, (start, stop)) in enumerate(zip(manifest["chunks"], expected)):
+        if not isinstance(chunk, dict) or [chunk.get(k) for k in ("index", "start", "stop", "file")] != [
+                i, start, stop, chunk_name(i)]:
+            raise _damaged(path, f"chunk entry {i} ({str(chunk)[:60]}) should be designs {start}-{stop - 1} in "
+                                 f"{chunk_name(i)}")
+        checksum = chunk.get("sha256")
+        if checksum is not None and not (isinstance(checksum, str) and len(checksum) == 64
+                                         and all(c in "0123456789abcdef" for c in checksum)):
+            raise _damaged(path, f"chunk entry {i}: sha256 = {str(checksum)[:40]!r} is not a SHA-256 checksum")
+    return manifest
+
+
 def read_manifest(store) -> dict | None:
-    """The manifest of a store, or None when the folder holds none."""
+    """The manifest of a store, checked (:func:`check_manifest`), or None when the folder holds none."""
     path = Path(store) / MANIFEST
     if not path.is_file():
         return None
     try:
         manifest = json.loads(path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
-        raise SweepError(f"{path}: not a readable sweep manifest ({exc})") from None
-    if not isinstance(manifest, dict) or manifest.get("format") != STORE_FORMAT:
-        raise SweepError(f"{path}: not a metasim sweep manifest (format {STORE_FORMAT!r} expected)")
-    return manifest
+        raise StoreIntegrityError(f"{path}: not a readable sweep manifest ({exc}); use a new store folder, or give "
+                                  "replace=True to start this store afresh") from None
+    return check_manifest(manifest, path)
 
+
+def write_manifest(store, manifest: dict) -> Path:
+    """Write the manifest (atomically)."""
+    return write_text(Path(store) / MANIFEST, json.dumps(manifest, indent=2, sort_keys=True, default=str) + "\n")
+
+
+# -- the lock -------------------------------------------------------------------------------------
+
+def _read_holder(handle) -> dict | None:
+    with contextlib.suppress(OSError, ValueError):
+        handle.seek(0)
+        holder = json.loads(handle.read() or "null")
+        return holder if isinstance(holder, dict) else None
+    return None
+
+
+def _describe_holder(holder: dict | None) -> str:
+    if not holder:
+        return "a run that left no details"
+    return (f"process {holder.get('pid', '?')} on {holder.get('host', '?')}, started "
+            f"{holder.get('started', '?')}")
+
+
+def _try_lock(handle) -> bool | None:
+    """True: locked; False: another process holds it; None: the file system cannot lock."""
+    if fcntl is None:
+        return None
+    try:
+        fcntl.flock(handle.fileno(), fcntl.LOCK_EX | fcntl.LOCK_NB)
+        return True
+    except BlockingIOError:
+        return False
+    except OSError:
+        return None
+
+
+def _stale(holder: dict | None) -> bool:
+    """Whether a lock's holder is known to be gone (same host, process not running)."""
+    if not holder:
+        return True
+    return holder.get("host") == socket.gethostname() and not process_alive(int(holder.get("pid", -1)))
+
+
+@contextlib.contextmanager
+def store_lock(store, *, wait: bool = False, poll_seconds: float = 0.5, on_wait=None):
+    """Hold the store's writer lock (``STORE/writer.lock``) while the block runs.
+
+    The lock file holds this process's id, host and start time, and is locked with ``flock`` (the
+    operating system releases it when the process dies, however it dies). When another live run
+    holds it: :class:`~metasim.errors.StoreLockedError` naming that run, or, with ``wait``, wait
+    for it (``on_wait(holder)`` is called once with its details). A lock left by a killed run is
+    taken over with a :class:`~metasim.errors.MetasimWarning` saying so. The folder is created if
+    needed (and removed again on exit if it is still empty).
+    """
+    folder = Path(store)
+    if folder.exists() and not folder.is_dir():
+        raise SweepError(f"{folder}: is a file; the sweep store must be a folder")
+    created = not folder.exists()
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / LOCK
+    me = {"pid": os.getpid(), "host": socket.gethostname(),
+          "started": time.strftime("%Y-%m-%d %H:%M:%S %z")}
+    handle, announced = None, False
+    try:
+        while handle is None:
+            candidate = open(path, "a+", encoding="utf-8")
+            locked = _try_lock(candidate)
+            holder = _read_holder(candidate)
+            if locked is None:  # no flock here: judge by the process id it names
+                locked = holder is None or holder.get("pid") == me["pid"] or _stale(holder)
+            if locked:
+                try:
+                    same = os.path.samestat(os.fstat(candidate.fileno()), os.stat(path))
+                except FileNotFoundError:
+                    same = False
+                if not same:  # the previous holder removed the file as we opened it: open again
+                    candidate.close()
+                    continue
+                if holder and holder.get("pid") != me["pid"]:
+                    warnings.warn(f"{path}: taking over the lock of {_describe_holder(holder)}, which ended "
+                                  "without releasing it", MetasimWarning, stacklevel=3)
+                candidate.seek(0)
+                candidate.truncate()
+                candidate.write(json.dumps(me) + "\n")
+                candidate.flush()
+                handle = candidate
+                break
+            candidate.close()
+            if not wait:
+                raise StoreLockedError(f"{folder}: another run is writing this sweep store ({_describe_holder(holder)}); "
+                                       "let it finish (a re-run then resumes), or give wait=True to wait for it")
+            if not announced and on_wait is not None:
+                on_wait(holder)
+            announced = True
+            time.sleep(poll_seconds)
+        yield me
+    finally:
+        if handle is not None:
+            with contextlib.suppress(OSError):
+                path.unlink()
+            handle.close()  # releases the flock
+        if created:
+            with contextlib.suppress(OSError):
+                folder.rmdir()  # only if still empty
+
+
+# -- chunks ---------------------------------------------------------------------------------------
 
 def _clear_store(folder: Path) -> None:
-    """Remove the metasim files of a store (manifest, chunk files, combined result); others stay."""
-    for path in [folder / MANIFEST, folder / COMBINED, *folder.glob("chunk-*.nc")]:
+    """Remove the metasim files of a store (manifest, chunks, set-aside chunks, combined result)."""
+    for path in [folder / MANIFEST, folder / COMBINED, *folder.glob("chunk-*.nc"),
+                 *folder.glob(f"chunk-*.nc{SET_ASIDE}*")]:
         if path.is_file():
             path.unlink()
 
 
 def _readable_manifest(folder: Path) -> dict | None:
-    """The manifest, or None when it is missing or unreadable (a store that is about to be replaced)."""
+    """The manifest, or None when it is missing or damaged (a store that is about to be replaced)."""
     try:
         return read_manifest(folder)
     except SweepError:
@@ -112,16 +295,21 @@ def _readable_manifest(folder: Path) -> dict | None:
 def open_store(store, manifest: dict, *, replace: bool = False) -> dict:
     """Create the store for ``manifest``, or check that an existing one belongs to the same sweep.
 
-    A store of another sweep is refused, unless ``replace``: then its metasim files are removed
-    (manifest, chunk files, ``sweep.nc``; nothing else in the folder) and the store starts afresh.
+    Call it holding :func:`store_lock`. A store of another sweep is refused, unless ``replace``:
+    then its metasim files are removed (manifest, chunk files, ``sweep.nc``; nothing else in the
+    folder) and the store starts afresh. Temporary files of killed runs are removed.
     """
     folder = Path(store)
     if folder.exists() and not folder.is_dir():
         raise SweepError(f"{folder}: is a file; the sweep store must be a folder")
     folder.mkdir(parents=True, exist_ok=True)
+    for chunk in manifest["chunks"]:
+        remove_stale_partials(folder / chunk["file"])
+    remove_stale_partials(folder / MANIFEST)
+    remove_stale_partials(folder / COMBINED)
     existing = read_manifest(folder) if not replace else _readable_manifest(folder)
-    if existing is not None and replace and (existing.get("spec_hash") != manifest["spec_hash"]
-                                             or existing.get("chunk_size") != manifest["chunk_size"]):
+    if existing is not None and replace and any(existing.get(k) != manifest[k] for k in
+                                                ("spec_hash", "chunk_size", "design_count")):
         _clear_store(folder)
         existing = None
     if existing is None:
@@ -134,34 +322,100 @@ def open_store(store, manifest: dict, *, replace: bool = False) -> dict:
         elif (folder / COMBINED).exists():
             raise SweepError(f"{folder}: holds a {COMBINED} but no {MANIFEST}; use an empty or new folder, or give "
                              "replace=True to replace it")
-        write_text(folder / MANIFEST, json.dumps(manifest, indent=2, sort_keys=True, default=str) + "\n")
+        write_manifest(folder, manifest)
         return manifest
     if existing.get("spec_hash") != manifest["spec_hash"]:
         raise SweepError(f"{folder}: holds a sweep of a different spec (hash {str(existing.get('spec_hash'))[:12]}, "
                          f"this spec {manifest['spec_hash'][:12]}); use a new store folder, or give replace=True to "
                          "replace that sweep")
-    if existing.get("chunk_size") != manifest["chunk_size"]:
-        raise SweepError(f"{folder}: was made with chunk size {existing.get('chunk_size')}, not "
-                         f"{manifest['chunk_size']}; give --chunk-size {existing.get('chunk_size')} or a new store folder")
+    if existing["chunk_size"] != manifest["chunk_size"]:
+        raise SweepError(f"{folder}: was made with chunk size {existing['chunk_size']}; this run asks for chunk size "
+                         f"{manifest['chunk_size']}; run it with chunk size {existing['chunk_size']}, use a new store "
+                         "folder, or give replace=True to start afresh")
+    if existing["design_count"] != manifest["design_count"]:
+        raise _damaged(folder / MANIFEST, f"design_count {existing['design_count']} differs from the "
+                                          f"{manifest['design_count']} designs of this sweep (same spec hash)")
+    if existing["spec"] != manifest["spec"]:  # name, description, spec text: not in the hash, taken as now
+        existing = {**existing, "spec": manifest["spec"]}
+        write_manifest(folder, existing)
     return existing
 
 
-def finished_chunks(store, manifest: dict) -> set[int]:
-    """Indexes of the chunks whose file is in the store."""
+def set_aside(path) -> Path:
+    """Rename a chunk file aside (``NAME.set-aside``, ``NAME.set-aside-2``, ...); returns the new path."""
+    path = Path(path)
+    target, n = path.with_name(path.name + SET_ASIDE), 2
+    while target.exists():
+        target, n = path.with_name(f"{path.name}{SET_ASIDE}-{n}"), n + 1
+    os.replace(path, target)
+    return target
+
+
+def _chunk_problem(path: Path, chunk: dict) -> str | None:
+    if not chunk.get("sha256"):
+        return f"{MANIFEST} records no checksum for it"
+    if file_checksum(path) != chunk["sha256"]:
+        return (f"its bytes do not match the checksum in {MANIFEST} (changed, truncated or copied from another "
+                f"chunk; {path.stat().st_size} bytes)")
+    return None
+
+
+def _put_aside(store, manifest: dict, chunk: dict, problem: str, *, warn: bool = True) -> Path:
+    path = Path(store) / chunk["file"]
+    aside = set_aside(path)
+    chunk["sha256"] = None
+    write_manifest(store, manifest)
+    if warn:
+        warnings.warn(f"{path}: {problem}; set aside as {aside.name} and computed again", ChunkSetAsideWarning,
+                      stacklevel=3)
+    return aside
+
+
+def verified_chunks(store, manifest: dict) -> set[int]:
+    """Indexes of the finished chunks: file present and its checksum equal to the manifest's.
+
+    A chunk file that does not match is set aside (:func:`set_aside`), its checksum cleared from
+    the manifest, and a :class:`~metasim.errors.ChunkSetAsideWarning` names it; it is then pending.
+    """
     folder = Path(store)
-    return {chunk["index"] for chunk in manifest["chunks"] if (folder / chunk["file"]).is_file()}
+    good = set()
+    for chunk in manifest["chunks"]:
+        path = folder / chunk["file"]
+        if not path.is_file():
+            continue
+        problem = _chunk_problem(path, chunk)
+        if problem is None:
+            good.add(chunk["index"])
+        else:
+            _put_aside(store, manifest, chunk, problem)
+    return good
+
+
+def finished_chunks(store, manifest: dict) -> set[int]:
+    """Indexes of the finished chunks (:func:`verified_chunks`)."""
+    return verified_chunks(store, manifest)
 
 
 def write_chunk(store, manifest: dict, index: int, summary: xr.Dataset) -> Path:
+    """Write one chunk file; its checksum goes into the manifest just before the file is renamed in."""
     chunk = manifest["chunks"][index]
     summary = summary.copy()
     summary.attrs = {**summary.attrs, "spec_hash": manifest["spec_hash"], "chunk": index,
                      "design_start": chunk["start"], "design_stop": chunk["stop"]}
-    return save_dataset(summary, Path(store) / chunk["file"])
+
+    def record(tmp: Path) -> None:
+        chunk["sha256"] = file_checksum(tmp)
+        write_manifest(store, manifest)
+
+    return save_dataset(summary, Path(store) / chunk["file"], before_rename=record)
 
 
 def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
-    """Gather every chunk of a finished store into one Dataset over ``design`` (saved as ``sweep.nc``)."""
+    """Gather every chunk of a finished store into one Dataset over ``design`` (saved as ``sweep.nc``).
+
+    Every chunk's checksum and design range are checked first; a chunk that fails is set aside and
+    :class:`~metasim.errors.StoreIntegrityError` asks for the sweep to be run again.
+    """
     folder = Path(store)
     manifest = read_manifest(folder)
     if manifest is None:
@@ -172,9 +426,19 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
                          f"({missing[0]}, ...); run the sweep again to finish them")
     parts = []
     for chunk in manifest["chunks"]:
-        part = load_dataset(folder / chunk["file"])
-        if part.attrs.get("spec_hash") != manifest["spec_hash"] or part.sizes.get("design") != chunk["stop"] - chunk["start"]:
-            raise SweepError(f"{folder / chunk['file']}: does not belong to this store's sweep; delete it and run again")
+        path = folder / chunk["file"]
+        problem = _chunk_problem(path, chunk)
+        if problem is None:
+            part = load_dataset(path)
+            if [part.attrs.get("spec_hash"), part.attrs.get("design_start"), part.attrs.get("design_stop"),
+                    part.sizes.get("design")] != [manifest["spec_hash"], chunk["start"], chunk["stop"],
+                                                  chunk["stop"] - chunk["start"]]:
+                problem = (f"it does not hold designs {chunk['start']}-{chunk['stop'] - 1} of this sweep (spec hash "
+                           f"{str(part.attrs.get('spec_hash'))[:12]}, designs {part.attrs.get('design_start')}-"
+                           f"{part.attrs.get('design_stop')})")
+        if problem is not None:
+            aside = _put_aside(folder, manifest, chunk, problem, warn=False).name
+            raise StoreIntegrityError(f"{path}: {problem}; set aside as {aside}; run the sweep again to compute it")
         parts.append(part)
     combined = xr.concat(parts, dim="design", data_vars="minimal", coords="minimal", compat="equals",
                          combine_attrs="drop_conflicts")
@@ -198,5 +462,7 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     return combined
 
 
-__all__ = ["STORE_FORMAT", "MANIFEST", "COMBINED", "chunk_name", "chunk_ranges", "spec_hash", "read_manifest",
-           "open_store", "finished_chunks", "write_chunk", "combine_sweep"]
+__all__ = ["STORE_FORMAT", "STORE_FORMAT_VERSION", "MANIFEST", "COMBINED", "LOCK", "SET_ASIDE", "chunk_name",
+           "chunk_ranges", "spec_hash", "file_checksum", "check_manifest", "read_manifest", "write_manifest",
+           "store_lock", "open_store", "set_aside", "verified_chunks", "finished_chunks", "write_chunk",
+           "combine_sweep"]
