@@ -44,6 +44,10 @@ class StimulusError(MetasimError, ValueError):
     """A stimulus set is empty, malformed or cannot be reproduced."""
 
 
+class StatisticsError(MetasimError, ValueError):
+    """A statistic, interval or comparison was asked for with settings or data it cannot use."""
+
+
 class SweepError(MetasimError, ValueError):
     """A sweep specification or its output store is not usable."""
 
@@ -86,6 +90,7 @@ __all__ = [
     "DisplayError",
     "GamutError",
     "StimulusError",
+    "StatisticsError",
     "SweepError",
     "StoreLockedError",
     "StoreIntegrityError",
