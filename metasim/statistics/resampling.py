@@ -23,7 +23,7 @@ from __future__ import annotations
 import numpy as np
 
 from metasim.errors import StatisticsError
-from metasim.statistics import _pooled
+from metasim.statistics._kernels import pooled as _pooled
 
 #: Resamples drawn by default (Efron & Tibshirani 1993 suggest at least 200 for percentile intervals
 #: of moderate accuracy; more narrows only the resampling noise of the bounds).
@@ -65,8 +65,8 @@ def resample_counts(n_observers: int, resamples: int = DEFAULT_RESAMPLES, seed: 
     words = (n_resamples * n_observers + 1) // 2 + 64
     while True:  # more words only if the rare rejections used up the spare ones
         raw = np.random.PCG64(seed).random_raw(words)
-        counts, used = _pooled.resample_counts(raw, n_resamples, n_observers)
-        if used >= 0:
+        counts = np.zeros((n_resamples, n_observers))
+        if _pooled.resample_counts(raw, counts) >= 0:
             return counts
         words *= 2
 
@@ -138,7 +138,10 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
     pool = values if members.size == n_observers else values[members]
     low, high = float(pool.min()), float(pool.max())
     scale = _pooled.FINE / (high - low) if high > low else 0.0
-    hist, hist_count, coarse, sums, above = _pooled.first_pass(values, members, w, low, scale, thresholds)
+    hist, hist_count = np.zeros(_pooled.FINE), np.zeros(_pooled.FINE, dtype=np.int64)
+    coarse = np.zeros((members.size, _pooled.COARSE))
+    sums, above = np.zeros(members.size), np.zeros((members.size, thresholds.size))
+    _pooled.first_pass(values, members, w, low, scale, thresholds, hist, hist_count, coarse, sums, above)
     member_w = w[members]
     if counts is None:
         resample_w = np.empty((0, members.size))
@@ -176,21 +179,28 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
         plans.append((q, np.ascontiguousarray(targets), gamma, first_bin, last_bin))
     first_bins = np.array([p[3] for p in plans], dtype=np.int64)
     last_bins = np.array([p[4] for p in plans], dtype=np.int64)
-    offsets = np.concatenate([[0], np.cumsum([hist_count[f:l + 1].sum() for f, l in zip(first_bins, last_bins)])])
-    windows, owners, belows = _pooled.gather_windows(values, members, low, scale, first_bins, last_bins,
-                                                     offsets.astype(np.int64))
+    sizes = [int(hist_count[f:l + 1].sum()) for f, l in zip(first_bins, last_bins)]
+    offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
+    windows = np.empty(offsets[-1] + len(plans))  # one spare slot after each window
+    owners = np.empty(offsets[-1] + len(plans), dtype=np.int64)
+    belows = np.empty((members.size, len(plans)))
+    _pooled.gather_windows(values, members, low, scale, first_bins, last_bins, offsets, windows, owners, belows)
     for i, (q, targets, gamma, _, _) in enumerate(plans):
-        window, owner = windows[offsets[i]:offsets[i + 1]], owners[offsets[i]:offsets[i + 1]]
+        window, owner = windows[offsets[i] + i:offsets[i + 1] + i], owners[offsets[i] + i:offsets[i + 1] + i]
         order = np.argsort(window)
         window, owner, below = window[order], owner[order], belows[:, i]
         # the full sample's position in the window, then every resample walks from there
+        positions = np.empty(targets.shape, dtype=np.int64)
+        full = np.empty((targets.shape[0], 1), dtype=np.int64)
         first_reached = np.array([float(below @ member_w) + member_w[owner[0]]])
-        full = _pooled.walk(owner, member_w[None, :], first_reached, 0, targets[:, :1].copy())
+        _pooled.walk(owner, np.ascontiguousarray(member_w[None, :]), first_reached, 0, targets[:, :1].copy(), full)
+        positions[:, :1] = full
         start = max(int(full[0, 0]), 0)
         within = np.bincount(owner[:start + 1], minlength=members.size)
         reached = resample_w @ (below + within)
-        positions = np.concatenate([full, _pooled.walk(owner, resample_w, reached, start,
-                                                       np.ascontiguousarray(targets[:, 1:]))], axis=1)
+        resampled = np.empty((targets.shape[0], targets.shape[1] - 1), dtype=np.int64)
+        _pooled.walk(owner, resample_w, reached, start, np.ascontiguousarray(targets[:, 1:]), resampled)
+        positions[:, 1:] = resampled
         outside = (positions < 0).any(axis=0)
         picked = window[np.maximum(positions, 0)]
         results[i] = picked[0] if weighted else _lerp(picked[0], picked[1], gamma)

@@ -1,4 +1,4 @@
-"""Compiled passes behind the pooled statistics and their resampled replicates.
+"""Compiled passes behind :mod:`metasim.statistics.resampling`: pooled statistics and their replicates.
 
 A *pool* is every value of some observers (``members``) over all stimuli: an (observer, stimulus)
 array read row by row, each value carrying its observer's weight. The quantiles of a pool, for the
@@ -38,18 +38,12 @@ def _bin_of(value, low, scale):
 
 
 @numba.njit(cache=True)
-def first_pass(values, members, weights, low, scale, thresholds):
-    """Fine histogram of weights and of counts, coarse histogram per member (M, COARSE), per-member
-    sums (M) and counts above each threshold (M, T)."""
+def first_pass(values, members, weights, low, scale, thresholds, hist, hist_count, coarse, sums, above):
+    """Fill the fine histogram of weights (FINE) and of counts, each member's coarse histogram
+    (M, COARSE), per-member sums (M) and counts above each threshold (M, T); outputs zeroed."""
     n_stimuli = values.shape[1]
-    n_members = members.shape[0]
-    hist = np.zeros(FINE)
-    hist_count = np.zeros(FINE, dtype=np.int64)
-    coarse = np.zeros((n_members, COARSE))
-    sums = np.zeros(n_members)
-    above = np.zeros((n_members, thresholds.shape[0]))
     bins = np.empty(n_stimuli, dtype=np.int64)
-    for a in range(n_members):
+    for a in range(members.shape[0]):
         row = values[members[a]]
         w = weights[members[a]]
         total = 0.0
@@ -68,20 +62,15 @@ def first_pass(values, members, weights, low, scale, thresholds):
             hist[b] += w
             hist_count[b] += 1
             coarse[a, b >> _SHIFT] += 1.0
-    return hist, hist_count, coarse, sums, above
 
 
 @numba.njit(cache=True)
-def gather_windows(values, members, low, scale, first_bins, last_bins, offsets):
-    """The values of fine bins first_bins[q]..last_bins[q] of every window q, with their member
-    positions, at offsets[q]..offsets[q + 1] (in pool order; numpy sorts each window, faster than
-    a compiled sort), and each member's count of values in bins below each window (M, Q)."""
-    n_windows = first_bins.shape[0]
-    # window q fills offsets[q] + q onwards: one spare slot after each takes the last unkept write
-    window = np.empty(offsets[n_windows] + n_windows)
-    owner = np.empty(offsets[n_windows] + n_windows, dtype=np.int64)
-    below = np.zeros((members.shape[0], n_windows))
-    for q in range(n_windows):
+def gather_windows(values, members, low, scale, first_bins, last_bins, offsets, window, owner, below):
+    """Gather the values of fine bins first_bins[q]..last_bins[q] of every window q, with their
+    member positions, into window / owner at offsets[q] + q onwards (in pool order; numpy sorts
+    each window, faster than a compiled sort; one spare slot after each window takes the last
+    unkept write), and each member's count of values in bins below each window into below (M, Q)."""
+    for q in range(first_bins.shape[0]):
         first, last = first_bins[q], last_bins[q]
         n = offsets[q] + q
         for a in range(members.shape[0]):
@@ -94,23 +83,17 @@ def gather_windows(values, members, low, scale, first_bins, last_bins, offsets):
                 owner[n] = a
                 n += (b >= first) & (b <= last)
             below[a, q] = count
-    keep = np.empty(offsets[n_windows], dtype=np.int64)
-    for q in range(n_windows):
-        for i in range(offsets[q], offsets[q + 1]):
-            keep[i] = i + q
-    return window[keep], owner[keep], below
 
 
 @numba.njit(cache=True)
-def walk(owner, resample_weights, reached, centre, targets):
+def walk(owner, resample_weights, reached, centre, targets, out):
     """Position in the window of each resample's order statistic, walking from ``centre``.
 
     ``resample_weights`` (R, M): each member's weight in each resample; ``reached`` (R): cumulative
-    weight up to and including window[centre]; ``targets`` (K, R), ascending in K. Returns (K, R)
-    positions, -1 where the order statistic lies outside the window.
+    weight up to and including window[centre]; ``targets`` (K, R), ascending in K. Writes (K, R)
+    positions into ``out``, -1 where the order statistic lies outside the window.
     """
     m = owner.shape[0]
-    out = np.empty(targets.shape, dtype=np.int64)
     for r in range(resample_weights.shape[0]):
         weights = resample_weights[r]
         j = centre
@@ -133,18 +116,18 @@ def walk(owner, resample_weights, reached, centre, targets):
                 if acc < target:
                     j = -1  # not reached inside the window
             out[k, r] = j
-    return out
 
 
 @numba.njit(cache=True)
-def resample_counts(raw, n_resamples, n_observers):
-    """(R, n_observers) how often each observer is drawn in each resample, from raw 64-bit words.
+def resample_counts(raw, counts):
+    """Fill ``counts`` (R, n, zeroed): how often each of n observers is drawn in each resample,
+    from raw 64-bit words.
 
     Each word gives two 32-bit draws, mapped to 0..n-1 by Lemire's multiply-shift method with
-    rejection (exactly uniform). Returns the counts and the number of words used, or -1 if
-    ``raw`` ran out (the caller draws more).
+    rejection (exactly uniform). Returns the number of words used, or -1 if ``raw`` ran out (the
+    caller draws more).
     """
-    counts = np.zeros((n_resamples, n_observers))
+    n_resamples, n_observers = counts.shape
     n = np.uint64(n_observers)
     limit = np.uint64((1 << 32) % n_observers)  # products whose low half is below this are rejected
     mask = np.uint64(0xFFFFFFFF)
@@ -156,7 +139,7 @@ def resample_counts(raw, n_resamples, n_observers):
         while drawn < n_observers:
             if half == 0:
                 if used == raw.shape[0]:
-                    return counts, -1
+                    return -1
                 word = raw[used]
                 used += 1
                 draw = word & mask
@@ -169,4 +152,4 @@ def resample_counts(raw, n_resamples, n_observers):
                 continue
             counts[r, np.int64(product >> np.uint64(32))] += 1.0
             drawn += 1
-    return counts, used
+    return used

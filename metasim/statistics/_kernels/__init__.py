@@ -1,0 +1,7 @@
+"""Compiled kernels of the statistics layer, fenced off from the model modules.
+
+``pooled``  pooled quantiles of the full sample and of every resample of the observers (histogram
+            pass, window gathering, walks), and resample counts from raw random words (entry
+            points first_pass, gather_windows, walk, resample_counts; used by
+            :mod:`metasim.statistics.resampling`)
+"""
