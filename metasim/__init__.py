@@ -57,6 +57,9 @@ _ENTRY_POINTS = {
     "run_study": "metasim.study",
     "design_grid": "metasim.sweep",
     "run_sweep": "metasim.sweep",
+    # colour-science objects, both ways
+    "to_colour": "metasim.interop",
+    "from_colour": "metasim.interop",
     # files
     "save_dataset": "metasim.io",
     "load_dataset": "metasim.io",

@@ -230,3 +230,67 @@ def test_resampling_follows_the_policy(crt):
                                np.asarray(crt.values).T[:, [4, 5]], rtol=0, atol=0)  # table values at its nodes
     inside = array.sel(wavelength=402.0).values
     np.testing.assert_allclose(inside, 0.6 * crt.values[4] + 0.4 * crt.values[5], rtol=1e-12)  # linear, no source
+
+
+# -- back to colour-science -------------------------------------------------------------------------
+
+def test_round_trip_display_spectra_identical():
+    spectra = emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])
+    for array in (spectra, emitters.laser_line([638, 532, 465, 589], 1.0, name=["R", "G", "B", "Y"])):
+        out = metasim.to_colour(array)
+        xr.testing.assert_identical(metasim.from_colour(out), array)
+    display = metasim.make_display(spectra, name="monitor")
+    primaries = metasim.to_colour(display)
+    assert type(primaries).__name__ == "RGB_DisplayPrimaries" and primaries.name == "monitor"
+    np.testing.assert_array_equal(primaries.values, spectra.values.T)
+    again = metasim.make_display(primaries)
+    xr.testing.assert_identical(again.spectra, display.spectra)
+    assert again.primaries == ["R", "G", "B"] and again.name == "monitor"
+    four = metasim.to_colour(metasim.make_display(emitters.laser_line([638, 532, 465, 589], 1.0)))
+    assert type(four).__name__ == "MultiSpectralDistributions" and len(four.labels) == 4
+
+
+def test_colour_objects_from_metasim_work_in_colour_science():
+    grid = wavelength_grid(360, 830)
+    observer = metasim.standard_observer("cie1931_2", grid)
+    cmfs = metasim.to_colour(observer)
+    assert type(cmfs).__name__ == "XYZ_ColourMatchingFunctions" and cmfs.name == "cie1931_2"
+    assert list(cmfs.labels) == ["x_bar", "y_bar", "z_bar"]
+    np.testing.assert_array_equal(cmfs.values, colour.MSDS_CMFS[CIE1931].values)  # colour-science table
+    xr.testing.assert_identical(metasim.from_colour(cmfs), observer)
+    # a display's primaries through colour-science's own integration: metasim's chromaticities
+    display = metasim.make_display(emitters.gaussian([612, 548, 455], [38, 42, 28], grid, name=["R", "G", "B"]))
+    primaries = metasim.to_colour(display)
+    xy = metasim.xyz_to_xy(display.primary_tristimulus("cie1931_2")).transpose("primary", "chromaticity").values
+    for i, label in enumerate(primaries.labels):
+        sd = colour.SpectralDistribution(primaries.signals[label])
+        np.testing.assert_allclose(colour.XYZ_to_xy(colour.sd_to_XYZ(sd, cmfs, method="Integration")), xy[i],
+                                   atol=1e-12)  # colour-science sd_to_XYZ
+
+
+def test_round_trip_observer_and_population_member():
+    population = metasim.observer_population(3, seed=4, age_years=(30, 60))
+    member = population.isel(observer=1, drop=True)[["cmf"]]
+    member.attrs = dict(population.attrs)
+    xr.testing.assert_identical(metasim.from_colour(metasim.to_colour(member)), member)
+    with pytest.raises(MetasimError, match=r"isel\(observer=i\)"):
+        metasim.to_colour(population)
+    lms = metasim.standard_observer("cie2015_2")["lms"]
+    fundamentals = metasim.to_colour(lms)
+    assert type(fundamentals).__name__ == "LMS_ConeFundamentals"
+    xr.testing.assert_identical(metasim.from_colour(fundamentals), lms)
+
+
+def test_round_trip_reflectances_and_illuminant():
+    stimuli = cie_13_3_samples()
+    reflectances = metasim.to_colour(stimuli)
+    assert list(reflectances.labels) == list(stimuli.stimulus.values)
+    xr.testing.assert_identical(metasim.from_colour(reflectances), stimuli["reflectance"])
+    again = reflectance_set(reflectances)
+    xr.testing.assert_identical(again["reflectance"], stimuli["reflectance"])
+    d65 = metasim.metamerism.stimuli.illuminant_spectrum("D65", metasim.default_grid())
+    sd = metasim.to_colour(d65)
+    assert type(sd).__name__ == "SpectralDistribution" and sd.name == "D65"
+    xr.testing.assert_identical(metasim.from_colour(sd), d65)
+    with pytest.raises(SpectrumError, match=r"isel\(design=0\)"):
+        metasim.to_colour(xr.concat([stimuli["reflectance"]] * 2, dim="design"))

@@ -149,6 +149,9 @@ def from_colour(obj, wavelengths=None, *, dim: str | None = None, units: str | N
     else:
         array = xr.DataArray(values, dims=("wavelength",), coords=coords)
     array.name = metadata.get("name", str(obj.name))
+    for coord, coord_attrs in (metadata.get("coord_attrs") or {}).items():
+        if coord in array.coords:
+            array.coords[coord].attrs = dict(coord_attrs)
     attrs = dict(metadata.get("attrs") or {
         "units": class_units, "long_name": class_long_name,
         "source": f"colour-science {type(obj).__name__} {str(obj.name)!r}"})
@@ -211,7 +214,8 @@ def spectra_to_colour(array: xr.DataArray, *, name: str | None = None):
                             f"select one first, e.g. .isel({other[0]}=0)")
     wl = np.asarray(array.coords["wavelength"].values, dtype=float)
     label = name or (str(array.name) if array.name is not None else str(array.attrs.get("long_name", "spectra")))
-    metadata = {"name": array.name, "attrs": dict(array.attrs)}
+    metadata = {"name": array.name, "attrs": dict(array.attrs),
+                "coord_attrs": {d: dict(array.coords[d].attrs) for d in array.dims if d in array.coords}}
     if not other:
         out = colour.SpectralDistribution(np.asarray(array.values, dtype=float), wl, name=label)
     else:
