@@ -60,6 +60,10 @@ _ENTRY_POINTS = {
     # colour-science objects, both ways
     "to_colour": "metasim.interop",
     "from_colour": "metasim.interop",
+    # spreadsheets
+    "result_tables": "metasim.tables",
+    "write_csv_tables": "metasim.tables",
+    "write_workbook": "metasim.tables",
     # files
     "save_dataset": "metasim.io",
     "load_dataset": "metasim.io",

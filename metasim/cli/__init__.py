@@ -8,6 +8,7 @@ Subcommands::
     metasim compare    two display designs side by side against one reference (or the second
                        against the first)
     metasim report     an HTML report (figures embedded) from any metasim result file
+    metasim tables     the summary tables of any result file as CSV files and, optionally, a workbook
     metasim sweep      a grid of candidate designs (a sweep spec, :mod:`metasim.cli.sweep`) in chunks
                        written to a store folder as they finish; a re-run resumes
 
@@ -243,6 +244,30 @@ def cmd_report(args) -> int:
     return 0
 
 
+def cmd_tables(args) -> int:
+    from metasim.io import load_dataset
+    from metasim.tables import require_workbook_writer, result_tables, write_csv_tables, write_workbook
+
+    source = args.inputs[0]  # the result file, or sweep.nc of a store folder (metasim.cli.paths)
+    if args.no_csv and not args.xlsx:
+        raise MetasimError("--no-csv without --xlsx writes nothing; give --xlsx FILE.xlsx or drop --no-csv")
+    if args.xlsx:
+        require_workbook_writer(args.xlsx)  # before anything is written
+    data = load_dataset(source)
+    if not hasattr(data, "data_vars"):
+        raise MetasimError(f"{source}: holds a single array, not a metasim result Dataset")
+    tables = result_tables(data, pairs=args.pairs)
+    if not args.no_csv:
+        out = Path(args.out) if args.out else source.parent / f"{source.stem}-tables"
+        paths = write_csv_tables(tables, out, replace=args.replace, inputs=args.inputs)
+        print(f"tables:   {len(tables)} CSV files and contents.csv in {out}")
+        for table, path in zip(tables, paths[1:]):
+            print(f"  {path.name}: {table.rows} rows, {len(table.columns)} columns")
+    if args.xlsx:
+        print(f"workbook: {write_workbook(tables, args.xlsx, replace=args.replace, inputs=args.inputs)}")
+    return 0
+
+
 def cmd_sweep(args) -> int:
     import numpy as np
 
@@ -320,6 +345,11 @@ EXAMPLES = {
                 "--reference data/demo/grading_monitor.toml --out a-vs-b\n"
                 "  metasim compare old_monitor.toml new_monitor.toml --size 300 --out upgrade   # second against first"),
     "report": "examples:\n  metasim report a-vs-b/study.nc --out a-vs-b.html\n  metasim report audience.nc",
+    "tables": ("examples:\n  metasim tables a-vs-b/study.nc --out a-vs-b-tables --xlsx a-vs-b.xlsx\n"
+               "  metasim tables red-sweep            # the sweep store: red-sweep/sweep-tables/*.csv\n"
+               "  metasim tables audience.nc --xlsx audience.xlsx --no-csv\n"
+               "one CSV file per table (one row per combination of its dims, a column per dim, coordinate and value;\n"
+               "headers 'key [units]'); contents.csv lists every column with its long name and units"),
     "sweep": ("examples:\n  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7\n"
               "  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
               "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
@@ -441,6 +471,17 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc) or an observer file")
     p.add_argument("--out", help="HTML file to write (default: the result name with .html)")
     p.add_argument("--figures", metavar="DIR", help="also write each figure as a PNG file into DIR")
+
+    p = add("tables", "write the summary tables of a result file as CSV files (tidy, units in the header) "
+            "and, optionally, one .xlsx workbook", cmd_tables)
+    p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc, or the "
+                   "STORE folder) or an observer file")
+    p.add_argument("--out", metavar="FOLDER", help="folder for the CSV files (default: RESULT-tables beside the result)")
+    p.add_argument("--xlsx", metavar="FILE.xlsx", help="also write every table into one workbook (needs the "
+                   "spreadsheet extra: pip install \"metasim[spreadsheet]\")")
+    p.add_argument("--no-csv", action="store_true", help="write the workbook only")
+    p.add_argument("--pairs", action="store_true", help="also tabulate the per observer x stimulus arrays "
+                   "(observers x stimuli rows per design)")
     return parser
 
 

@@ -123,6 +123,8 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
             inputs += design_spec_inputs(args.reference)
     elif command == "report":
         inputs.append(Path(args.result))
+    elif command == "tables":
+        inputs.append(_table_source(args.result))
     if command in ("evaluate", "compare", "sweep"):
         inputs += stimulus_files(args.stimuli)
         if args.observers:
@@ -139,7 +141,20 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
         outputs += [Path(args.out), *([Path(args.report)] if args.report else [])]
     elif command == "report":
         outputs.append(Path(args.out) if args.out else Path(args.result).with_suffix(".html"))
+    elif command == "tables" and args.xlsx:  # the CSV names follow the file's tables: checked by the command
+        outputs.append(Path(args.xlsx))
     return inputs, outputs
+
+
+def _table_source(result) -> Path:
+    """The file ``metasim tables`` reads: the result file, or ``sweep.nc`` of a sweep store folder."""
+    path = Path(result)
+    if path.is_dir():
+        if not (path / "sweep.nc").is_file():
+            raise FileFormatError(f"{path}: is a folder without sweep.nc; give a result file (.nc) or a finished "
+                                  "sweep store")
+        return path / "sweep.nc"
+    return path
 
 
 def check_command_files(args) -> None:
