@@ -64,6 +64,10 @@ class ChunkSetAsideWarning(MetasimWarning):
     """A chunk file did not match the store's manifest; it was renamed aside and is computed again."""
 
 
+class FittingError(MetasimError, ValueError):
+    """Colour-matching data cannot be fitted: malformed, out of range, or too few values."""
+
+
 class FileFormatError(MetasimError, ValueError):
     """A file cannot be read: missing, empty, or not in the expected layout."""
 
@@ -95,6 +99,7 @@ __all__ = [
     "StoreLockedError",
     "StoreIntegrityError",
     "ChunkSetAsideWarning",
+    "FittingError",
     "FileFormatError",
     "OutputError",
     "OutputExistsError",

@@ -24,13 +24,15 @@ Individual deviations (Asano, Fairchild & Blondé 2016) act on this observer of 
 * ``lens_density_pct``, ``macular_density_pct``: D_ocul and D_mac are multiplied by
   ``max(0, 1 + pct/100)``;
 * ``l_density_pct``, ``m_density_pct``, ``s_density_pct``: the cone's D_peak likewise;
-* ``l_shift_nm``, ``m_shift_nm``, ``s_shift_nm``: the absorbance is shifted along a
-  log-wavelength (equivalently log-wavenumber) axis so that its peak moves by exactly the given nm:
+* ``l_shift_nm``, ``m_shift_nm``, ``s_shift_nm``: the absorbance is shifted so that its peak moves
+  by exactly the given nm, along ``peak_shift_axis`` — ``"log_wavelength"`` (default, as always):
   ``a'(λ) = a(λ · λmax / (λmax + shift))``, λmax the peak of the derived absorbance (L 545 nm, M
-  525 nm, S 420 nm). Shape invariance on a log-wavenumber axis is the template property of
-  photopigment spectra (Lamb 1995). The shift acts on the absorbance before density, media and
-  macula, so the fundamental's peak moves by about (L, M) or less than (S, whose peak is set by
-  the lens) the shift. Outside 390-830 nm the shifted absorbance takes the edge value.
+  525 nm, S 420 nm); or ``"wavelength"``: ``a'(λ) = a(λ − shift)`` — reading the 1-nm table
+  linearly (default) or by monotone cubic interpolation (``absorbance_interpolation``); both
+  options, their sources and why the defaults are kept: :mod:`metasim.observers.pigments`. The
+  shift acts on the absorbance before density, media and macula, so the fundamental's peak moves
+  by about (L, M) or less than (S, whose peak is set by the lens) the shift. Outside 390-830 nm the
+  shifted absorbance takes the edge value.
 
 XYZ (CIE 170-2:2015): ``xyz = M(f) · lms``. An observer of field f gets the 2° matrix for f ≤ 2°,
 the 10° matrix for f ≥ 10°, and the element-wise linear interpolation in f between them. The
@@ -66,6 +68,8 @@ import xarray as xr
 from metasim._paths import data_dir
 from metasim._version import __version__
 from metasim.errors import ObserverError
+from metasim.observers.pigments import (DEFAULT_ABSORBANCE_INTERPOLATION, DEFAULT_PEAK_SHIFT_AXIS,
+                                        check_absorbance_interpolation, check_peak_shift_axis, shifted_absorbance)
 from metasim.observers.standard import CONES, XYZ
 from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv
 
@@ -293,7 +297,9 @@ def _xyz_matrices(field: np.ndarray) -> np.ndarray:
     return XYZ_MATRIX_2DEG * (1.0 - weight) + XYZ_MATRIX_10DEG * weight
 
 
-def _observer_functions(params: dict, wl: np.ndarray, lens_components=None) -> tuple[np.ndarray, np.ndarray]:
+def _observer_functions(params: dict, wl: np.ndarray, lens_components=None,
+                        peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+                        interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> tuple[np.ndarray, np.ndarray]:
     """LMS and XYZ functions (n × 3 × len(wl)) for parameter vectors of length n.
 
     Each block of up to :data:`BLOCK_OBSERVERS` observers is one set of numpy array operations
@@ -305,12 +311,15 @@ def _observer_functions(params: dict, wl: np.ndarray, lens_components=None) -> t
     for start in range(0, n, BLOCK_OBSERVERS):
         part = slice(start, start + BLOCK_OBSERVERS)
         block = {k: v[part] for k, v in params.items()}
-        block_lms, block_xyz = _block_functions(block["age_years"], block["field_size_deg"], block, lens_components)
+        block_lms, block_xyz = _block_functions(block["age_years"], block["field_size_deg"], block, lens_components,
+                                                peak_shift_axis, interpolation)
         lms[part], xyz[part] = _to_grid(block_lms, wl), _to_grid(block_xyz, wl)
     return lms, xyz
 
 
-def _block_functions(age, field, deviations: dict, lens_components=None) -> tuple[np.ndarray, np.ndarray]:
+def _block_functions(age, field, deviations: dict, lens_components=None,
+                     peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+                     interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> tuple[np.ndarray, np.ndarray]:
     """LMS and XYZ functions (n × 3 × base grid) for parameter vectors of length n, array-wise."""
     wl = BASE_WAVELENGTHS
     absorbance, peak_nm = _absorbances()
@@ -331,20 +340,7 @@ def _block_functions(age, field, deviations: dict, lens_components=None) -> tupl
     ], axis=1)
     shift = np.stack([deviations[f"{c}_shift_nm"] for c in "lms"], axis=1)
     if np.any(shift != 0):
-        # a'(λ) = a(λ · λmax / (λmax + shift)), linear interpolation on the 1-nm base grid, done in
-        # place on (n, 3, wavelength) arrays; positions outside the grid take the edge value.
-        position = wl * (peak_nm / (peak_nm + shift))[..., None]
-        position -= wl[0]
-        index = position.astype(np.intp)
-        np.clip(index, 0, wl.size - 2, out=index)
-        position -= index
-        np.clip(position, 0.0, 1.0, out=position)
-        index += (np.arange(3) * wl.size)[:, None]
-        slope = np.diff(absorbance, axis=1, append=0.0).ravel()
-        absorbance = absorbance.ravel()[index]
-        position *= slope[index]
-        absorbance += position
-        del position, index
+        absorbance = shifted_absorbance(wl, absorbance, peak_nm, shift, peak_shift_axis, interpolation=interpolation)
     else:
         absorbance = np.broadcast_to(absorbance, (n, 3, wl.size))
     # 1 − 10^(−D·a) = −expm1(−ln10 · D · a), times λ and the media transmittance
@@ -379,14 +375,20 @@ def _parameter_vectors(age_years, field_size_deg, deviations: dict, extrapolate:
 
 
 def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None, extrapolate: bool = False,
-                            lens_components: xr.Dataset | None = None, **deviations) -> xr.Dataset:
+                            lens_components: xr.Dataset | None = None,
+                            peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+                            absorbance_interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION, **deviations) -> xr.Dataset:
     """Many CIE 170-1 individual observers in one vectorised call (leading ``observer`` dim).
 
     Parameters: ``age_years`` (20-80) and ``field_size_deg`` (1-10), and any of the eight
     :data:`DEVIATIONS` (default 0; below −100 % means zero density), each a number or a 1-D vector
     (numbers broadcast); ``wavelengths``: output grid, default 390-830 nm at 1 nm; ``extrapolate``:
     allow any positive age and field size; ``lens_components``: a two-component lens table
-    (:func:`read_lens_components`) to age the media by CIE 170-1's own formula.
+    (:func:`read_lens_components`) to age the media by CIE 170-1's own formula; ``peak_shift_axis``:
+    ``"log_wavelength"`` (default) or ``"wavelength"``, the axis along which the peak shifts move the
+    absorbance (:data:`PEAK_SHIFT_AXES`, module docstring); ``absorbance_interpolation``:
+    ``"linear"`` (default) or ``"monotone_cubic"``, how the 1-nm absorbance table is read at shifted
+    positions (:mod:`metasim.observers.pigments`). Both are recorded as attributes.
 
     Returns a Dataset with ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz,
     wavelength), every parameter an ``observer`` coordinate.
@@ -396,8 +398,10 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
     CIE 170-1:2006; CIE 170-2:2015; Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671.
     """
     params = _parameter_vectors(age_years, field_size_deg, deviations, extrapolate)
+    check_peak_shift_axis(peak_shift_axis)
+    check_absorbance_interpolation(absorbance_interpolation)
     wl = _grid(wavelengths)
-    lms, xyz = _observer_functions(params, wl, lens_components)
+    lms, xyz = _observer_functions(params, wl, lens_components, peak_shift_axis, absorbance_interpolation)
     n = params["age_years"].size
     coords = {
         "observer": ("observer", np.arange(n), {"long_name": "observer index", "units": "1"}),
@@ -419,6 +423,8 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
             "ageing": ("CIE 170-1:2006 two-component formula (user table)" if lens_components is not None
                        else "van de Kraats & van Norren (2007) / CIE 203:2012 age terms"),
             "xyz_transform": "CIE 170-2:2015 matrix, 2° for f <= 2, 10° for f >= 10, linear in f between",
+            "peak_shift_axis": peak_shift_axis,
+            "absorbance_interpolation": absorbance_interpolation,
             "extrapolate": int(bool(extrapolate)),
             "metasim_version": __version__,
         },
@@ -432,6 +438,8 @@ def cie2006_observer(
     wavelengths=None,
     extrapolate: bool = False,
     lens_components: xr.Dataset | None = None,
+    peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+    absorbance_interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION,
     lens_density_pct: float = 0,
     macular_density_pct: float = 0,
     l_density_pct: float = 0,
@@ -454,8 +462,8 @@ def cie2006_observer(
     l_density_pct, m_density_pct, s_density_pct : float
         Change of the cone photopigment peak optical density, % (>= −100).
     l_shift_nm, m_shift_nm, s_shift_nm : float
-        Shift of the photopigment absorbance peak, nm, applied on a log-wavelength axis.
-    wavelengths, extrapolate, lens_components
+        Shift of the photopigment absorbance peak, nm, along ``peak_shift_axis``.
+    wavelengths, extrapolate, lens_components, peak_shift_axis, absorbance_interpolation
         As in :func:`physiological_observers`.
 
     Returns
@@ -475,7 +483,8 @@ def cie2006_observer(
         if name.endswith("_pct") and float(value) < -100:
             raise ObserverError(f"{name}={float(value):g} is not allowed; a density change must be >= -100 %")
     many = physiological_observers(age_years, field_size_deg, wavelengths=wavelengths, extrapolate=extrapolate,
-                                   lens_components=lens_components, **deviations)
+                                   lens_components=lens_components, peak_shift_axis=peak_shift_axis,
+                                   absorbance_interpolation=absorbance_interpolation, **deviations)
     one = many.isel(observer=0, drop=True)
     parameters = {"age_years": float(age_years), "field_size_deg": float(field_size_deg),
                   **{k: float(v) for k, v in deviations.items()}}
@@ -486,6 +495,8 @@ def cie2006_observer(
 
 __all__ = [
     "AGE_RANGE_YEARS",
+    "PEAK_SHIFT_AXES",
+    "DEFAULT_PEAK_SHIFT_AXIS",
     "FIELD_RANGE_DEG",
     "DEVIATIONS",
     "XYZ_MATRIX_2DEG",

@@ -37,6 +37,7 @@ import xarray as xr
 from metasim.errors import ObserverError
 from metasim.observers.physiological import (
     AGE_RANGE_YEARS,
+    DEFAULT_PEAK_SHIFT_AXIS,
     DEVIATIONS,
     FIELD_RANGE_DEG,
     physiological_observers,
@@ -136,6 +137,8 @@ def observer_population(
     wavelengths=None,
     extrapolate: bool = False,
     lens_components: xr.Dataset | None = None,
+    peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+    absorbance_interpolation: str = "linear",
 ) -> xr.Dataset:
     """A reproducible population of n individual CIE 170-1 observers.
 
@@ -152,8 +155,10 @@ def observer_population(
     sd_* : float
         Standard deviation of each deviation (% or nm), >= 0; defaults from memory of Asano,
         Fairchild & Blondé (2016).
-    wavelengths, extrapolate, lens_components
-        As in :func:`metasim.observers.physiological.physiological_observers`.
+    wavelengths, extrapolate, lens_components, peak_shift_axis, absorbance_interpolation
+        As in :func:`metasim.observers.physiological.physiological_observers` (``peak_shift_axis``:
+        ``"log_wavelength"``, the default, or ``"wavelength"``; ``absorbance_interpolation``:
+        ``"linear"``, the default, or ``"monotone_cubic"``).
 
     Returns
     -------
@@ -183,12 +188,15 @@ def observer_population(
     fields, field_spec = _draw("field_size_deg", field_size_deg, n, rng, FIELD_RANGE_DEG, extrapolate)
     deviations = {name: rng.normal(0.0, float(sds[name]), n) for name in DEVIATIONS}
     population = physiological_observers(ages, fields, wavelengths=wavelengths, extrapolate=extrapolate,
-                                         lens_components=lens_components, **deviations)
+                                         lens_components=lens_components, peak_shift_axis=peak_shift_axis,
+                                         absorbance_interpolation=absorbance_interpolation, **deviations)
     parameters = {
         "n": n, "age_years": age_spec, "field_size_deg": field_spec,
         **{f"sd_{k}": float(v) for k, v in sds.items()},
         "deviation_distribution": "normal, mean 0, independent",
         "lens_components": None if lens_components is None else lens_components.attrs.get("source", "user"),
+        "peak_shift_axis": peak_shift_axis,
+        "absorbance_interpolation": absorbance_interpolation,
     }
     population.attrs.update({
         **seed_attrs,
