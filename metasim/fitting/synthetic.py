@@ -1,0 +1,96 @@
+"""Synthetic matching data: the matches known observers would make, with setting noise.
+
+For tests, benchmarks, demos and for trying a session plan before running it. The matches are
+those of :mod:`metasim.fitting.model` (exact cone-excitation matches of each observer), plus
+independent normal setting noise following the fit's noise model (:mod:`metasim.fitting.fit`):
+for colour-matching functions σ times the size of the mean observer's match at that wavelength,
+for matching sessions σ in drive units, settings then clipped to 0..1 (the number clipped is
+recorded in the attribute ``clipped_settings``). The true parameters are kept as ``true_*``
+coordinates of ``observer``.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+
+from metasim.errors import FittingError
+from metasim.fitting.fit import match_weights
+from metasim.fitting.forms import CMF_FORM, OBSERVATION, check_matching_data
+from metasim.fitting.model import predict
+from metasim.observers.physiological import DEVIATIONS, PARAMETER_ATTRS
+from metasim.observers.pigments import DEFAULT_PEAK_SHIFT_AXIS, check_peak_shift_axis
+from metasim.observers.population import _generator
+
+
+def synthetic_matches(plan: xr.Dataset, observers, *, setting_noise: float, seed, repeats: int = 1,
+                      record_ages: bool = True, peak_shift_axis: str | None = None) -> xr.Dataset:
+    """Matching data of ``observers`` for the stimuli and primaries of ``plan`` (either form).
+
+    Parameters
+    ----------
+    plan : xarray.Dataset
+        Colour-matching functions or a matching session (:mod:`metasim.fitting.forms`); its
+        observations, if any, are replaced.
+    observers : Dataset or dict
+        A population (from :func:`metasim.observer_population`) or a dict of equal-length arrays,
+        with ``age_years``, ``field_size_deg`` and any of the eight deviations (missing ones 0).
+    setting_noise : float
+        σ of the noise model (module docstring), >= 0.
+    seed : int or numpy.random.Generator
+        Source of the noise.
+    repeats : int
+        Matches per stimulus and subject.
+    record_ages : bool
+        Write the true ages into the data (False: ages unknown, NaN).
+    peak_shift_axis : str, optional
+        Default: the population's recorded axis, else ``"log_wavelength"``.
+    """
+    md = check_matching_data(plan)
+    source = observers.coords if isinstance(observers, xr.Dataset) else observers
+    if not hasattr(source, "keys") or "age_years" not in source or "field_size_deg" not in source:
+        raise FittingError("observers must be a population Dataset or a dict with age_years, field_size_deg and deviations")
+    ages = np.atleast_1d(np.asarray(source["age_years"], dtype=float))
+    n = ages.size
+    fields = np.broadcast_to(np.asarray(source["field_size_deg"], dtype=float), (n,)).copy()
+    params = np.stack([np.broadcast_to(np.asarray(source[k], dtype=float) if k in source else 0.0, (n,))
+                       for k in DEVIATIONS], axis=1)
+    if peak_shift_axis is None:
+        peak_shift_axis = (observers.attrs.get("peak_shift_axis", DEFAULT_PEAK_SHIFT_AXIS)
+                           if isinstance(observers, xr.Dataset) else DEFAULT_PEAK_SHIFT_AXIS)
+    check_peak_shift_axis(peak_shift_axis)
+    if isinstance(repeats, bool) or not isinstance(repeats, (int, np.integer)) or repeats < 1:
+        raise FittingError(f"repeats={repeats!r}; give an integer >= 1")
+    if not np.isfinite(setting_noise) or setting_noise < 0:
+        raise FittingError(f"setting_noise={setting_noise!r}; give a number >= 0")
+    rng, seed_attrs = _generator(seed)
+    truth, _ = predict(md.geometry, params, ages, fields, peak_shift_axis=peak_shift_axis, jacobian=False)
+    scale = 1.0 / match_weights(md, ages, fields, peak_shift_axis)  # (n, S)
+    noise = rng.normal(size=(n, truth.shape[1], int(repeats), 3)) * (setting_noise * scale)[:, :, None, None]
+    values = truth[:, :, None, :] + noise
+    clipped = 0
+    if md.form != CMF_FORM:
+        clipped = int(((values < 0) | (values > 1)).sum())
+        values = np.clip(values, 0.0, 1.0)
+    ds = md.dataset.drop_vars([v for v in (OBSERVATION[md.form],) if v in md.dataset])
+    ds = ds.drop_dims([d for d in ("observer", "repeat") if d in ds.dims])
+    subjects = np.arange(n)
+    ds = ds.assign_coords(
+        observer=("observer", subjects, {"long_name": "subject"}),
+        repeat=("repeat", np.arange(int(repeats)), {"long_name": "repeated match"}),
+        field_size_deg=("observer", fields, {"units": "degree", "long_name": "visual field size of the matches"}),
+        age_years=("observer", ages if record_ages else np.full(n, np.nan),
+                   {"units": "year", "long_name": "subject age (NaN = unknown)"}),
+        **{f"true_{k}": ("observer", params[:, i], {**PARAMETER_ATTRS[k], "long_name": "true " + PARAMETER_ATTRS[k]["long_name"]})
+           for i, k in enumerate(DEVIATIONS)},
+        true_age_years=("observer", ages, {"units": "year", "long_name": "true age"}),
+    )
+    name = OBSERVATION[md.form]
+    ds[name] = (("observer", "stimulus", "repeat", "primary"), values, {
+        "units": "1", "long_name": "synthetic " + ("amount" if md.form == CMF_FORM else "linear drive setting")})
+    ds.attrs.update({**seed_attrs, "synthetic": f"matches of known observers with setting noise {setting_noise:g}",
+                     "peak_shift_axis": peak_shift_axis, "clipped_settings": clipped})
+    return ds
+
+
+__all__ = ["synthetic_matches"]
