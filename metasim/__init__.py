@@ -53,6 +53,11 @@ _ENTRY_POINTS = {
     "lab_gamut_volume": "metasim.gamut",
     "lab_coverage_volume": "metasim.gamut",
     "extra_primary_gain": "metasim.gamut",
+    # fitting
+    "fit_observer": "metasim.fitting",
+    "colour_matching_data": "metasim.fitting",
+    "matching_session_data": "metasim.fitting",
+    "expected_uncertainty": "metasim.fitting",
     # studies and sweeps
     "run_study": "metasim.study",
     "design_grid": "metasim.sweep",

@@ -11,6 +11,8 @@ Subcommands::
     metasim tables     the summary tables of any result file as CSV files and, optionally, a workbook
     metasim sweep      a grid of candidate designs (a sweep spec, :mod:`metasim.cli.sweep`) in chunks
                        written to a store folder as they finish; a re-run resumes
+    metasim estimate   individual observers from colour-matching data (CSV or netCDF), with
+                       uncertainties, to a result file and an HTML report
 
 Displays are described in TOML design spec files (full format: :mod:`metasim.cli.specs` and
 ``data/demo/README.md``), for example::
@@ -315,6 +317,53 @@ def cmd_sweep(args) -> int:
     return 0
 
 
+def cmd_estimate(args) -> int:
+    import numpy as np
+
+    from metasim.fitting import fit_observer, read_matching_csv
+    from metasim.io import load_dataset, save_dataset
+    from metasim.report import write_report
+
+    source = Path(args.data)
+    if source.suffix.lower() == ".nc":
+        data = load_dataset(source)
+    else:
+        display = args.display
+        if display and Path(display).suffix.lower() == ".toml":
+            from metasim.cli.specs import load_display
+
+            display, _ = load_display(display)
+        primaries = args.primaries
+        if primaries and not Path(primaries).is_file():
+            try:
+                primaries = [float(v) for v in primaries.split(",")]
+            except ValueError:
+                raise MetasimError(f"--primaries {args.primaries!r}: give three wavelengths in nm "
+                                   "(e.g. 645.16,526.32,444.44) or a spectra CSV file") from None
+        data = read_matching_csv(source, primaries=primaries, references=args.references, display=display,
+                                 field_size_deg=args.field_size, age_years=args.age)
+    categories = False if args.no_categories else (load_dataset(args.categories) if args.categories else None)
+    result = fit_observer(data, fit_age=args.fit_age, setting_noise=args.setting_noise,
+                          peak_shift_axis=args.peak_shift_axis, categories=categories)
+    out = Path(args.out)
+    out.mkdir(parents=True, exist_ok=True)
+    path = save_dataset(result, out / "fit.nc")
+    n = result.sizes["observer"]
+    flat = result["match_error"].values.reshape(n, -1), result["match_error_mean_observer"].values.reshape(n, -1)
+    after, before = (np.nanmedian(np.nanmedian(v, axis=1)) for v in flat)
+    missing = result["identified"].sum("observer")
+    weak = ", ".join(f"{name} ({n - int(missing.sel(parameter=name))})" for name in result["parameter"].values
+                     if int(missing.sel(parameter=name)) < n)
+    print(f"fitted {n} subjects ({int(result['converged'].sum())} converged): median setting noise "
+          f"{float(result['setting_noise'].median()):.3g}; median match error {before:.3g} (mean observer) -> "
+          f"{after:.3g} (fitted), {result.attrs['match_error'].split(',')[0]}")
+    print(f"not identified (subjects): {weak or 'none'}")
+    print(f"result:  {path}")
+    if not args.no_report:
+        print(f"report:  {write_report(result, out / 'report.html', source=path.name)}")
+    return 0
+
+
 def _print_headline(result) -> None:
     if "delta_e_2000_overall" not in result:
         return
@@ -344,6 +393,13 @@ EXAMPLES = {
     "compare": ("examples:\n  metasim compare data/demo/projector_four_laser.toml data/demo/projector_laser_phosphor.toml "
                 "--reference data/demo/grading_monitor.toml --out a-vs-b\n"
                 "  metasim compare old_monitor.toml new_monitor.toml --size 300 --out upgrade   # second against first"),
+    "estimate": ("examples:\n  metasim estimate matches.csv --primaries 645.16,526.32,444.44 --field-size 10 --out fit\n"
+                 "  metasim estimate sessions.csv --references references.csv --display my_monitor.toml --out lab-fit\n"
+                 "  metasim estimate matches.nc --fit-age --no-categories --out fit-with-age\n"
+                 "CSV layouts: 'subject,test_wavelength_nm,<3 primaries>[,field_size_deg][,age_years]' (colour-matching\n"
+                 "functions, amounts in primary-normalised energy units) or 'subject,stimulus,<3 primaries>,...' (drive\n"
+                 "settings 0..1 of a three-primary display); rows of one subject and stimulus are repeats.\n"
+                 "Writes OUT/fit.nc (one observer per subject, usable as --observers) and OUT/report.html."),
     "report": "examples:\n  metasim report a-vs-b/study.nc --out a-vs-b.html\n  metasim report audience.nc",
     "tables": ("examples:\n  metasim tables a-vs-b/study.nc --out a-vs-b-tables --xlsx a-vs-b.xlsx\n"
                "  metasim tables red-sweep            # the sweep store: red-sweep/sweep-tables/*.csv\n"
@@ -466,6 +522,26 @@ def build_parser() -> argparse.ArgumentParser:
     _population_options(p)
     _matching_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)
+
+    p = add("estimate", "estimate individual observers from colour-matching data, with uncertainties", cmd_estimate)
+    p.add_argument("data", help="matching data: CSV (either layout, see below) or netCDF (.nc)")
+    p.add_argument("--out", default="metasim-fit", help="output folder (default metasim-fit)")
+    p.add_argument("--primaries", help="colour-matching functions: three primary wavelengths in nm, comma-separated, "
+                   "or a spectra CSV (default: the file's '# primary_wavelengths_nm:' comment)")
+    p.add_argument("--references", metavar="SPECTRA.csv", help="matching sessions: reference spectra, one column per stimulus")
+    p.add_argument("--display", metavar="SPEC", help="matching sessions: the three-primary test display, a design spec "
+                   "(TOML) or a spectra CSV of its primaries")
+    p.add_argument("--field-size", type=float, default=2.0, help="field size in degrees for subjects without a "
+                   "field_size_deg column (default 2)")
+    p.add_argument("--age", type=float, help="age in years for subjects without an age_years column (default unknown)")
+    p.add_argument("--fit-age", action="store_true", help="also fit every subject's age (prior 50 ± 17.3 years)")
+    p.add_argument("--setting-noise", type=float, help="known setting noise (default: estimated per subject)")
+    p.add_argument("--peak-shift-axis", choices=("log_wavelength", "wavelength"), default="log_wavelength",
+                   help="axis of the peak-wavelength shifts (default log_wavelength)")
+    p.add_argument("--categories", metavar="FILE.nc", help="observer categories to name the nearest of "
+                   "(from 'metasim observers --categories'; default: 8 categories of the population model)")
+    p.add_argument("--no-categories", action="store_true", help="skip the nearest category")
+    p.add_argument("--no-report", action="store_true", help="write the result file only")
 
     p = add("report", "write an HTML report (figures embedded) from a metasim result file", cmd_report)
     p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc) or an observer file")

@@ -10,10 +10,13 @@
 * :mod:`metasim.fitting.synthetic` — matches of known observers with setting noise.
 """
 
+from metasim.fitting.advice import expected_uncertainty
+from metasim.fitting.files import read_matching_csv, read_matching_functions_csv, read_session_csv
 from metasim.fitting.fit import AGE_PRIOR, fit_observer, prior_model
 from metasim.fitting.forms import (CMF_FORM, SESSION_FORM, check_matching_data, colour_matching_data,
                                    matching_session_data)
 from metasim.fitting.synthetic import synthetic_matches
 
 __all__ = ["AGE_PRIOR", "CMF_FORM", "SESSION_FORM", "check_matching_data", "colour_matching_data",
-           "matching_session_data", "fit_observer", "prior_model", "synthetic_matches"]
+           "matching_session_data", "expected_uncertainty", "fit_observer", "prior_model", "synthetic_matches",
+           "read_matching_csv", "read_matching_functions_csv", "read_session_csv"]

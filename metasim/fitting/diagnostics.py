@@ -11,12 +11,14 @@ Identification (metasim's own rules, applied per subject and parameter):
   prior decides how it is split between them;
 * **at a limit** — a bounded parameter (age, 20-80 years) ended on its bound.
 
-A parameter is *identified* when none applies. Match errors: for colour-matching functions the
-distance in the rg chromaticity of the three primaries (r = amount_R / Σ amount, g likewise;
-Wyszecki & Stiles 1982) between the observed and the predicted match; for matching sessions the
-CIE 2000 colour difference (CIE 15:2004) between the reference and the subject's setting on the
-display as the fitted (or the mean) observer sees them, CIELAB relative to the display's white as
-that observer sees it.
+A parameter is *identified* when none applies. Match errors, each as the fitted (or the mean)
+observer sees it, through that observer's own XYZ functions (CIE 170-2 transformation):
+
+* colour-matching functions: the distance in the CIE 1976 u'v' chromaticity diagram (CIE 15:2004)
+  between the observed and the predicted mixture of the primaries (Σ_k amount_k · XYZ of primary
+  k). Unlike the rg chromaticity of the primaries, u'v' has no pole where the amounts sum to zero;
+* matching sessions: the CIE 2000 colour difference (CIE 15:2004) between the reference and the
+  subject's setting on the display, CIELAB relative to the display's white.
 """
 
 from __future__ import annotations
@@ -30,8 +32,6 @@ from metasim.fitting.forms import CMF_FORM, MatchData
 
 PRIOR_DOMINATED_RATIO = 0.9
 COLLINEARITY_LIMIT = 0.95
-#: rg chromaticity is undefined where Σ amount is this small a share of Σ |amount|.
-CHROMATICITY_FLOOR = 1e-3
 
 
 def correlation(matrix: np.ndarray) -> np.ndarray:
@@ -66,14 +66,15 @@ def identification(covariance: np.ndarray, data_information: np.ndarray, prior_s
     return share, cosine, identified, notes.astype(str)
 
 
-def chromaticity_errors(observed: np.ndarray, predicted: np.ndarray) -> np.ndarray:
-    """rg chromaticity distance (n, S, R) between observed (n, S, R, 3) and predicted (n, S, 3) amounts."""
-    def rg(amounts):
-        total = amounts.sum(axis=-1, keepdims=True)
-        size = np.abs(amounts).sum(axis=-1, keepdims=True)
+def chromaticity_errors(observed: np.ndarray, predicted: np.ndarray, primary_xyz: np.ndarray) -> np.ndarray:
+    """u'v' distance (n, S, R) between observed (n, S, R, 3) and predicted (n, S, 3) amounts of primaries
+    whose XYZ per unit amount are ``primary_xyz`` (n, 3 primaries, 3)."""
+    def uv(amounts):
+        xyz = amounts @ primary_xyz[:, None] if amounts.ndim == 4 else amounts @ primary_xyz
+        denominator = xyz[..., 0] + 15.0 * xyz[..., 1] + 3.0 * xyz[..., 2]
         with np.errstate(invalid="ignore", divide="ignore"):
-            return np.where(np.abs(total) > CHROMATICITY_FLOOR * size, amounts[..., :2] / total, np.nan)
-    difference = rg(observed) - rg(predicted)[:, :, None]
+            return np.stack([4.0 * xyz[..., 0], 9.0 * xyz[..., 1]], axis=-1) / denominator[..., None]
+    difference = uv(observed) - uv(predicted)[:, :, None]
     return np.sqrt((difference**2).sum(axis=-1))
 
 
@@ -99,10 +100,15 @@ def session_errors(data: MatchData, cmf: np.ndarray) -> np.ndarray:
     return np.where(np.isfinite(settings).all(axis=-1), errors, np.nan)
 
 
-def match_errors(data: MatchData, predicted: np.ndarray, cmf: np.ndarray | None) -> np.ndarray:
-    """Match errors (n, S, R) for one observer per subject (module docstring)."""
+def match_errors(data: MatchData, predicted: np.ndarray, cmf: np.ndarray) -> np.ndarray:
+    """Match errors (n, S, R) for one observer per subject (module docstring).
+
+    ``cmf``: the observers' XYZ functions (n, 3, wavelength), on the session's grid for sessions,
+    on the model's 1-nm base grid (390-830 nm) for colour-matching functions.
+    """
     if data.form == CMF_FORM:
-        return chromaticity_errors(data.observations, predicted)
+        primary_xyz = cmf[:, :, data.geometry.nodes] @ data.geometry.weights[-4:-1].T  # (n, xyz, primary)
+        return chromaticity_errors(data.observations, predicted, np.swapaxes(primary_xyz, 1, 2))
     return session_errors(data, cmf)
 
 

@@ -38,7 +38,8 @@ from metasim.fitting import diagnostics
 from metasim.fitting.forms import CMF_FORM, OBSERVATION, MatchData, check_matching_data
 from metasim.fitting.model import FIT_INTERPOLATION, PARAMETERS, predict
 from metasim.fitting.solve import solve_map
-from metasim.observers.physiological import AGE_RANGE_YEARS, DEVIATIONS, PARAMETER_ATTRS, physiological_observers
+from metasim.observers.physiological import (AGE_RANGE_YEARS, BASE_WAVELENGTHS, DEVIATIONS, PARAMETER_ATTRS,
+                                             physiological_observers)
 from metasim.observers.pigments import DEFAULT_PEAK_SHIFT_AXIS, check_peak_shift_axis
 from metasim.observers.population import DEFAULT_SD
 from metasim.spectra import default_grid
@@ -243,14 +244,12 @@ def fit_observer(data, *, prior=None, fit_age: bool = False, age_prior=AGE_PRIOR
     deviations = {name: theta[:, i] for i, name in enumerate(DEVIATIONS)}
     observers = _observers(fitted_ages, fields, deviations, grid, peak_shift_axis)
     mean_ages = mean_theta[:, -1] if fit_age else ages
-    fitted_cmf = mean_cmf = None
-    if md.form != CMF_FORM:
-        session_grid = md.dataset["wavelength"].values
-        fitted_cmf = (observers if np.array_equal(observers["wavelength"].values, session_grid) else
-                      _observers(fitted_ages, fields, deviations, session_grid, peak_shift_axis))["cmf"].values
-        mean_observers = _observers(mean_ages, fields, {k: mean_theta[:, i] for i, k in enumerate(DEVIATIONS)},
-                                    session_grid, peak_shift_axis)
-        mean_cmf = mean_observers["cmf"].values
+    mean_deviations = {k: mean_theta[:, i] for i, k in enumerate(DEVIATIONS)}
+    error_grid = md.dataset["wavelength"].values if md.form != CMF_FORM else BASE_WAVELENGTHS
+    same_grid = np.array_equal(observers["wavelength"].values, error_grid)
+    fitted_cmf = (observers if same_grid else _observers(fitted_ages, fields, deviations, error_grid,
+                                                         peak_shift_axis))["cmf"].values
+    mean_cmf = _observers(mean_ages, fields, mean_deviations, error_grid, peak_shift_axis)["cmf"].values
     errors_fit = diagnostics.match_errors(md, solution.prediction, fitted_cmf)
     errors_mean = diagnostics.match_errors(md, mean_prediction, mean_cmf)
     share, cosine, identified, notes = diagnostics.identification(solution.covariance, solution.data_information, sd,
@@ -281,7 +280,8 @@ def fit_observer(data, *, prior=None, fit_age: bool = False, age_prior=AGE_PRIOR
                                  f"(little information); |cosine| >= {diagnostics.COLLINEARITY_LIMIT:g} between the "
                                  "parameter's and another's noise-weighted effect on the matches (not separable); "
                                  "on a bound (age 20-80)"),
-        "match_error": ("rg chromaticity distance of the primaries' amounts" if md.form == CMF_FORM else
+        "match_error": ("CIE 1976 u'v' distance between the observed and the predicted mixture of the primaries, "
+                        "as each observer sees them" if md.form == CMF_FORM else
                         "CIE 2000 difference between reference and setting, CIELAB relative to the display white "
                         "as each observer sees it"),
         "seed": "none (deterministic)",

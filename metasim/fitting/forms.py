@@ -129,6 +129,13 @@ def _subject_coords(n: int, subjects, field_size_deg, age_years) -> dict:
     }
 
 
+def _plan_coords(field_size_deg, age_years) -> dict:
+    """Field size and age of the typical subject of a plan (scalar coordinates)."""
+    coords = _subject_coords(1, np.arange(1), np.ravel(field_size_deg)[:1], age_years if age_years is None
+                             else np.ravel(age_years)[:1])
+    return {k: ((), v[1][0], v[2]) for k, v in coords.items() if k != "observer"}
+
+
 def _primary_labels(labels, count: int) -> list[str]:
     labels = [f"P{i + 1}" for i in range(count)] if labels is None else [str(v) for v in labels]
     if len(labels) != count or len(set(labels)) != count:
@@ -190,6 +197,8 @@ def colour_matching_data(amounts=None, *, test_wavelengths, primaries, primary_l
         variables["amount"] = (("observer", "stimulus", "repeat", "primary"), array, {
             "units": "1", "long_name": "amount of each primary matching a unit-energy test light "
             "(primary-normalised energy units)"})
+    else:
+        coords.update(_plan_coords(field_size_deg, age_years))
     ds = xr.Dataset(variables, coords=coords, attrs={"matching_data": CMF_FORM, "metasim_version": __version__})
     check_matching_data(ds)
     return ds
@@ -264,6 +273,8 @@ def matching_session_data(settings=None, *, references, display, black=None, sub
         coords["repeat"] = ("repeat", np.arange(array.shape[2]), {"long_name": "repeated match"})
         variables["setting"] = xr.DataArray(array, dims=("observer", "stimulus", "repeat", "primary"),
                                             attrs={"units": "1", "long_name": "linear drive setting of each primary"})
+    else:
+        coords.update(_plan_coords(field_size_deg, age_years))
     ds = xr.Dataset(variables, coords=coords, attrs={"matching_data": SESSION_FORM, "metasim_version": __version__})
     check_matching_data(ds)
     return ds

@@ -10,6 +10,7 @@ from metasim.observers.physiological import (
     physiological_observers,
     read_lens_components,
 )
+from metasim.observers.pigments import ABSORBANCE_INTERPOLATIONS, PEAK_SHIFT_AXES
 from metasim.observers.population import DEFAULT_SD, observer_population
 from metasim.observers.standard import (
     CONES,
@@ -27,6 +28,8 @@ __all__ = [
     "cone_fundamentals",
     "DEVIATIONS",
     "DEFAULT_SD",
+    "PEAK_SHIFT_AXES",
+    "ABSORBANCE_INTERPOLATIONS",
     "cie2006_observer",
     "physiological_observers",
     "low_density_absorbance",

@@ -3,22 +3,37 @@
 The individual observer model moves each cone photopigment's absorbance so that its peak moves by
 a given number of nanometres. Two readings are in use, and a fitted or drawn shift means a
 different thing under each, so the axis is an explicit model option (``peak_shift_axis``), recorded
-in every observer Dataset:
+in every observer Dataset (attribute ``peak_shift_axis``):
 
 * ``"log_wavelength"`` (the default): ``a'(λ) = a(λ · λmax / (λmax + shift))``. The absorbance keeps
   its shape on a log-wavelength (equivalently log-wavenumber) axis, the template property of
-  photopigment spectra (Lamb 1995; the Stockman & Sharpe (2000) templates are likewise shifted on a
-  log axis, from memory). It is also what metasim has always done, so every earlier number stands.
-* ``"wavelength"``: ``a'(λ) = a(λ − shift)``, a constant shift in nanometres. This is how Asano,
-  Fairchild & Blondé (2016) describe their λmax shift (from memory, not checked against the
-  paper's text). The long-wavelength flank moves less and the short-wavelength flank more than on
-  the log axis (by the factor λ/λmax in the log reading), so observers differ somewhat more.
+  photopigment spectra (Lamb 1995). It is what metasim has always done, so every earlier number
+  stands; a change of default would change every population result and needs a source saying the
+  other reading is the intended one.
+* ``"wavelength"``: ``a'(λ) = a(λ − shift)``, every point of the curve moved by the same nm. This is
+  how Asano, Fairchild & Blondé (2016) describe their λmax shift (from memory, not checked against
+  the paper's text). Compared with the log reading, the long-wavelength flank moves less and the
+  short-wavelength flank more (the log reading moves the point at λ by shift · λ / λmax).
+
+Measured, not assumed: for 1,000 observers aged 20-70 (seed 7), a four-laser projector against a
+Gaussian-primary monitor, primaries and secondaries (the README example), the mean CIE 2000
+difference is 0.5 % lower with ``"wavelength"`` than with ``"log_wavelength"``; other displays
+can go the other way.
+
+The absorbance is tabulated at 1 nm, so a shifted reading position falls between nodes. It is
+read linearly (``absorbance_interpolation="linear"``, the default, as always) or by monotone cubic
+Hermite interpolation (``"monotone_cubic"``: PCHIP tangents, Fritsch & Carlson 1980, no overshoot,
+continuous first derivative). Linear reading makes an observer's functions piecewise linear in
+the shift, with a jump of the derivative whenever a reading position crosses a node; the observer
+fit (:mod:`metasim.fitting`) needs functions smooth in the parameters and uses the cubic reading.
+Observers with zero shifts are identical under both; in the example above the mean CIE 2000
+difference changes by 0.01 % and single observer × stimulus values by up to 0.03.
 
 References
 ----------
 Lamb, T. D. (1995) Vision Research 35, 3083-3091.
-Stockman, A. & Sharpe, L. T. (2000) Vision Research 40, 1711-1737.
 Asano, Y., Fairchild, M. D. & Blondé, L. (2016) PLoS ONE 11(2), e0145671.
+Fritsch, F. N. & Carlson, R. E. (1980) SIAM J. Numer. Anal. 17, 238-246.
 """
 
 from __future__ import annotations

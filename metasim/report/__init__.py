@@ -11,6 +11,9 @@ holds, section by section:
 * a mismatch Dataset straight from :func:`metasim.mismatch` (one design: :func:`metasim.study.as_study`);
 * an observer population or category file (:func:`metasim.observer_population`): ages, parameters
   and the spread of the colour-matching functions;
+* an observer fit (:func:`metasim.fit_observer`): estimates against the population spread, the
+  parameters the data did not identify, match errors before and after, subjects, categories
+  (:mod:`metasim.report.fitting`);
 * a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
   sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs, the stimuli hardest for
   the best design (sweeps with per-stimulus summaries) and the sweep spec (:mod:`metasim.report.sweep`).
@@ -31,6 +34,8 @@ from metasim.errors import MetasimError, OutputError
 from metasim.io import check_outputs, write_bytes, write_text
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
+from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
+                                    is_fit)
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
 from metasim.study import RESULT_KIND, as_study
 
@@ -42,6 +47,8 @@ def is_sweep(ds: xr.Dataset) -> bool:
 
 
 def _kind(ds: xr.Dataset) -> str:
+    if is_fit(ds):
+        return "fit"
     if is_sweep(ds):
         return "sweep"
     if ds.attrs.get("result_kind") == RESULT_KIND or "delta_e_2000" in ds or "gamut_polygon" in ds:
@@ -49,7 +56,7 @@ def _kind(ds: xr.Dataset) -> str:
     if "cmf" in ds and "observer" in ds.dims:
         return "population"
     raise MetasimError("the file holds no metasim results this report can show (need a study, a mismatch "
-                       "result, a sweep or an observer population)")
+                       "result, a sweep, an observer population or an observer fit)")
 
 
 # -- figures ---------------------------------------------------------------------------------------------
@@ -82,6 +89,12 @@ def report_figures(ds: xr.Dataset) -> dict:
             len(varied), "for every design, sorted (the best design starred)")
         figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
                             f"observer × stimulus pairs, per design, {what}.")
+        return figures
+    if _kind(ds) == "fit":
+        figures["fit_parameters"] = (plots.fit_parameters(ds), "Each parameter's estimates against the population "
+                                     "spread used as the prior; grey: not identified by the data.")
+        figures["fit_residuals"] = (plots.fit_residuals(ds), "Match errors of the mean observer (before) and of each "
+                                    "subject's fitted observer (after).")
         return figures
     if _kind(ds) == "population":
         figures["observers"] = (plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
@@ -266,7 +279,8 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     ds = as_study(ds)
     if kind == "sweep":
         title = title or str(plots.sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
-    title = title or str(ds.attrs.get("title", "metasim population" if kind == "population" else "metasim result"))
+    title = title or str(ds.attrs.get("title", {"population": "metasim population", "fit": "metasim observer fit"}.get(
+        kind, "metasim result")))
     figures = figure_pngs(ds) if figures is None else figures
     body = [f"<h1>{_e(title)}</h1>",
             f"<p class='sub'>metasim {__version__} {'sweep ' if kind == 'sweep' else ''}report"
@@ -274,6 +288,10 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     if kind == "sweep":
         body += [_sweep_headline(ds)] + [_image(png, caption) for png, caption in figures.values()]
         body += [_sweep_best(ds), _sweep_stimuli(ds), _sweep_models(ds)]
+    elif kind == "fit":
+        body += [fit_headline(ds), _image(*figures["fit_parameters"]), fit_parameter_table(ds),
+                 "<h2>Matches before and after</h2>", _image(*figures["fit_residuals"]), fit_subject_table(ds),
+                 fit_categories(ds), fit_models(ds)]
     elif kind == "population":
         body.append(_population(ds))
         body += [_image(png, caption) for png, caption in figures.values()]
@@ -290,7 +308,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         for key in ("chromaticity", "spectra", "extra_primary"):
             if key in figures:
                 body.append(_image(*figures[key]))
-    if kind != "sweep":
+    if kind not in ("sweep", "fit"):
         body.append(_models(ds))
     body.append("<h2>Cautions</h2>" + "".join(f"<p class='caution'>{_e(c)}</p>" for c in CAUTIONS))
     return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"

@@ -1,0 +1,123 @@
+"""The observer-fit page of a report (results of :func:`metasim.fit_observer`): headline, estimates
+against the population spread, parameters the data did not identify, match errors before and after,
+a table per subject, the categories and the models."""
+
+from __future__ import annotations
+
+from collections import Counter
+
+import numpy as np
+import xarray as xr
+
+from metasim.report.html import _attribute_list, _e, _num, _pct, _table
+
+MAX_SUBJECT_ROWS = 60
+FIT_CAUTION = ("Estimates describe the model observer (CIE 170-1:2006 with eight deviations) that best explains "
+               "the matches given the population prior, not a measurement of anyone's eye; parameters marked "
+               "not identified are mostly the prior, and a fitted peak shift means what the recorded "
+               "peak_shift_axis says.")
+
+
+def is_fit(ds: xr.Dataset) -> bool:
+    """Whether ``ds`` is an observer fit."""
+    return ds.attrs.get("result_kind") == "metasim observer fit" or ("standard_error" in ds and "setting_noise" in ds)
+
+
+def _typical(values: np.ndarray) -> np.ndarray:
+    """Median match error of each subject (over stimuli and repeats)."""
+    flat = values.reshape(values.shape[0], -1)
+    with np.errstate(all="ignore"):
+        return np.nanmedian(flat, axis=1)
+
+
+def _short(name: str) -> str:
+    return str(name).replace("_pct", " %").replace("_nm", " nm").replace("_years", " (years)").replace("_", " ")
+
+
+def _unit(ds) -> str:
+    return "CIE 2000 units" if ds.attrs.get("matching_data") == "matching session" else "Δu'v'"
+
+
+def fit_headline(ds: xr.Dataset) -> str:
+    n = ds.sizes["observer"]
+    noise = ds["setting_noise"].values
+    before = _typical(ds["match_error_mean_observer"].values)
+    after = _typical(ds["match_error"].values)
+    identified = ds["identified"].values.astype(bool)
+    converged = int(ds["converged"].values.sum())
+    rows = [
+        ["subjects", str(n)],
+        ["data", f"{ds.attrs.get('matching_data', '')}: {ds.sizes['matching_stimulus']} stimuli × "
+                 f"{ds.sizes['matching_repeat']} repeat(s), {int(np.median(ds['value_count']))} values per subject (median)"],
+        ["converged", f"{converged} of {n}"],
+        ["setting noise (median, range)", f"{noise.mean() if n == 1 else np.median(noise):.3g} "
+                                          f"({noise.min():.3g}–{noise.max():.3g}); {ds['setting_noise'].attrs.get('long_name', '')}"],
+        [f"match error: median over subjects of each subject's median ({_unit(ds)})",
+         f"mean observer {np.nanmedian(before):.3g} → fitted {np.nanmedian(after):.3g}"],
+        ["parameters identified", f"{100 * identified.mean():.0f} % of subject × parameter"],
+        ["peak-shift axis", str(ds.attrs.get("peak_shift_axis", ""))],
+    ]
+    return ("<h2>Headline</h2>" + _table(["quantity", "value"], rows)
+            + f"<p class='caution'>{_e(FIT_CAUTION)}</p>")
+
+
+def fit_parameter_table(ds: xr.Dataset) -> str:
+    rows = []
+    for name in ds["parameter"].values:
+        sel = ds.sel(parameter=name)
+        notes = Counter(part.split(" (")[0].split(":")[0] for note in sel["identification_note"].values
+                        for part in str(note).split("; ") if part)
+        common = "; ".join(f"{text} ({count})" for text, count in notes.most_common(2))
+        rows.append([_short(name), str(sel["parameter_units"].values), _num(sel["prior_sd"], 3),
+                     _num(np.median(sel["estimate"].values), 3), _num(np.median(sel["standard_error"].values), 3),
+                     _pct(np.median(sel["standard_error"].values) / float(sel["prior_sd"])),
+                     _pct(sel["identified"].values.astype(bool).mean()), common])
+    rule = _e(ds.attrs.get("identification_rules", ""))
+    return ("<h2>Parameters</h2><p>Standard errors are posterior standard deviations from the curvature at the "
+            f"estimate. Rule: {rule}.</p>"
+            + _table(["parameter", "units", "population SD", "median estimate", "median SE", "SE / population SD",
+                      "identified", "most common reasons (subjects)"], rows))
+
+
+def fit_subject_table(ds: xr.Dataset) -> str:
+    n = ds.sizes["observer"]
+    names = [str(v) for v in ds["parameter"].values]
+    before, after = _typical(ds["match_error_mean_observer"].values), _typical(ds["match_error"].values)
+    rows = []
+    for i in range(min(n, MAX_SUBJECT_ROWS)):
+        sub = ds.isel(observer=i)
+        missing = [names[j] for j, ok in enumerate(sub["identified"].values.astype(bool)) if not ok]
+        estimates = ", ".join(f"{_short(names[j])} "
+                              f"{float(sub['estimate'].values[j]):+.3g} ± {float(sub['standard_error'].values[j]):.2g}"
+                              for j in range(len(names)))
+        category = str(int(sub["nearest_category"])) if "nearest_category" in ds else "–"
+        rows.append([str(sub["observer"].values), _num(sub["age_years"], 1), _num(sub["field_size_deg"], 1),
+                     f"{float(sub['setting_noise']):.3g}", f"{before[i]:.3g} → {after[i]:.3g}", category,
+                     ", ".join(missing) or "–", estimates])
+    more = f" (first {MAX_SUBJECT_ROWS} of {n})" if n > MAX_SUBJECT_ROWS else ""
+    table = _table(["subject", "age", "field (°)", "setting noise", f"median match error ({_unit(ds)})",
+                    "nearest category", "not identified", "estimates ± SE"], rows)
+    return f"<details><summary>Subjects{more}</summary>{table}</details>"
+
+
+def fit_categories(ds: xr.Dataset) -> str:
+    record = ds.attrs.get("categories")
+    if not isinstance(record, dict) or "nearest_category" not in ds:
+        return ""
+    counts = np.bincount(ds["nearest_category"].values.astype(int), minlength=len(record["categories"]))
+    rows = []
+    for j, cat in enumerate(record["categories"]):
+        rows.append([str(j), _pct(cat["weight"]), _num(cat["age_years"], 0),
+                     ", ".join(f"{_short(k)} {v:+.2g}" for k, v in cat.items() if k not in ("weight", "age_years")),
+                     str(counts[j])])
+    return ("<h2>Nearest observer category</h2><p>" + _e(record.get("description", "")) + "; nearness: RMS difference "
+            "of the XYZ colour-matching functions, each category observer evaluated at the subject's field size.</p>"
+            + _table(["category", "share of population", "age", "deviations", "subjects nearest"], rows))
+
+
+def fit_models(ds: xr.Dataset) -> str:
+    attrs = {k: v for k, v in ds.attrs.items() if k != "categories"}
+    return "<h2>Models and parameters</h2>" + _attribute_list(attrs)
+
+
+__all__ = ["is_fit", "fit_headline", "fit_parameter_table", "fit_subject_table", "fit_categories", "fit_models"]
