@@ -54,7 +54,7 @@ from pathlib import Path
 
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
-from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE, check_command_files
+from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files
 from metasim.errors import MetasimError
 
 PROG = "metasim"
@@ -347,20 +347,21 @@ def cmd_estimate(args) -> int:
                           peak_shift_axis=args.peak_shift_axis, categories=categories)
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
-    path = save_dataset(result, out / "fit.nc")
+    path = save_dataset(result, out / FIT_FILE, replace=args.replace)
     n = result.sizes["observer"]
     flat = result["match_error"].values.reshape(n, -1), result["match_error_mean_observer"].values.reshape(n, -1)
     after, before = (np.nanmedian(np.nanmedian(v, axis=1)) for v in flat)
-    missing = result["identified"].sum("observer")
-    weak = ", ".join(f"{name} ({n - int(missing.sel(parameter=name))})" for name in result["parameter"].values
-                     if int(missing.sel(parameter=name)) < n)
+    identified = result["identified"].sum("observer")
+    weak = ", ".join(f"{name} ({n - int(identified.sel(parameter=name))})" for name in result["parameter"].values
+                     if int(identified.sel(parameter=name)) < n)
     print(f"fitted {n} subjects ({int(result['converged'].sum())} converged): median setting noise "
           f"{float(result['setting_noise'].median()):.3g}; median match error {before:.3g} (mean observer) -> "
           f"{after:.3g} (fitted), {result.attrs['match_error'].split(',')[0]}")
     print(f"not identified (subjects): {weak or 'none'}")
     print(f"result:  {path}")
     if not args.no_report:
-        print(f"report:  {write_report(result, out / 'report.html', source=path.name)}")
+        report = write_report(result, out / REPORT_FILE, source=path.name, replace=args.replace, inputs=args.inputs)
+        print(f"report:  {report}")
     return 0
 
 

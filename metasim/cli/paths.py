@@ -8,7 +8,8 @@ spec that is not UTF-8 TOML, an output that would replace an input, or an output
 Inputs of a command: its spec files (design, reference, sweep spec and the ``base`` / ``reference``
 specs a sweep spec names), every CSV file those specs name (``file = ...`` of measured primaries and
 backlights, relative to the spec), the ``--observers`` file, stimulus CSV files in ``--stimuli``
-(or a sweep spec's ``stimuli``) and the result file of ``report``.
+(or a sweep spec's ``stimuli``), the result file of ``report``, and the matching data, reference
+spectra, display spec (with its CSV files), primary spectra and category file of ``estimate``.
 """
 
 from __future__ import annotations
@@ -20,6 +21,7 @@ from metasim.errors import FileFormatError, MetasimError
 from metasim.io import check_outputs, read_text_file
 
 RESULT_FILE = "study.nc"
+FIT_FILE = "fit.nc"
 REPORT_FILE = "report.html"
 FIGURES_DIR = "figures"
 
@@ -125,6 +127,13 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
         inputs.append(Path(args.result))
     elif command == "tables":
         inputs.append(_table_source(args.result))
+    elif command == "estimate":
+        inputs.append(Path(args.data))
+        for option in (args.references, args.categories, args.display,
+                       args.primaries if args.primaries and Path(args.primaries).suffix.lower() == ".csv" else None):
+            if option:
+                check_inputs([option])
+                inputs += design_spec_inputs(option) if Path(option).suffix.lower() == ".toml" else [Path(option)]
     if command in ("evaluate", "compare", "sweep"):
         inputs += stimulus_files(args.stimuli)
         if args.observers:
@@ -139,6 +148,11 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
             outputs.append(out / REPORT_FILE)
     elif command == "observers":
         outputs += [Path(args.out), *([Path(args.report)] if args.report else [])]
+    elif command == "estimate":
+        out = Path(args.out)
+        if out.exists() and not out.is_dir():
+            raise FileFormatError(f"--out {out}: is a file; give a folder for the fit and its report")
+        outputs += [out / FIT_FILE, *([] if args.no_report else [out / REPORT_FILE])]
     elif command == "report":
         outputs.append(Path(args.out) if args.out else Path(args.result).with_suffix(".html"))
     elif command == "tables" and args.xlsx:  # the CSV names follow the file's tables: checked by the command
@@ -174,5 +188,5 @@ def check_command_files(args) -> None:
     check_outputs(outputs, inputs=inputs, replace=args.replace)
 
 
-__all__ = ["SpecError", "RESULT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
+__all__ = ["SpecError", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
            "design_spec_inputs", "stimulus_files", "check_inputs", "command_files", "check_command_files"]

@@ -321,6 +321,7 @@ FIGURE_NAMES = {
     "study": ("chromaticity", "spectra", "age_bands", "p95_by_stimulus", "extra_primary"),
     "population": ("observers",),
     "sweep": ("sweep",),
+    "fit": ("fit_parameters", "fit_residuals"),
 }
 
 
