@@ -40,6 +40,8 @@ def _information(plan, setting_noise, tau, mean, fit_age, age, field, repeats, a
         field = float(np.median(md.field_size_deg))
     ages, fields = np.array([age]), np.array([float(field)])
     theta = mean[None].copy()
+    if fit_age:
+        theta[0, -1] = age  # the typical subject's age, also when age is a fitted parameter
     _, jac = predict(md.geometry, theta, ages, fields, fit_age=fit_age, peak_shift_axis=axis)
     weights = match_weights(md, ages, fields, axis)[0]  # (S,)
     jz = jac[0] * tau[:, None, None]  # (p, S, 3)
@@ -87,8 +89,6 @@ def expected_uncertainty(plans, *, setting_noise: float, prior=None, fit_age: bo
     if not isinstance(plans, dict) or not plans:
         raise FittingError("plans must be a matching-data Dataset or a non-empty dict of them")
     names, mean, tau, record = prior_model(prior, fit_age=fit_age, age_prior=age_prior)
-    if fit_age:
-        mean = mean.copy()
     infos, forms = [], []
     for plan in plans.values():
         info, md = _information(plan, float(setting_noise), tau, mean, fit_age, float(age_years), field_size_deg,

@@ -36,7 +36,7 @@ from metasim._version import __version__
 from metasim.errors import FittingError
 from metasim.fitting import diagnostics
 from metasim.fitting.forms import CMF_FORM, OBSERVATION, MatchData, check_matching_data
-from metasim.fitting.model import FIT_INTERPOLATION, PARAMETERS, predict
+from metasim.fitting.model import FIT_INTERPOLATION, predict
 from metasim.fitting.solve import solve_map
 from metasim.observers.physiological import (AGE_RANGE_YEARS, BASE_WAVELENGTHS, DEVIATIONS, PARAMETER_ATTRS,
                                              physiological_observers)
