@@ -92,7 +92,8 @@ def report_figures(ds: xr.Dataset) -> dict:
         return figures
     if _kind(ds) == "fit":
         figures["fit_parameters"] = (plots.fit_parameters(ds), "Each parameter's estimates against the population "
-                                     "spread used as the prior; grey: not identified by the data.")
+                                     "spread used as the prior: up to 30 subjects one row each with ± 2 standard "
+                                     "errors (grey: not identified by the data), more as a histogram.")
         figures["fit_residuals"] = (plots.fit_residuals(ds), "Match errors of the mean observer (before) and of each "
                                     "subject's fitted observer (after).")
         return figures
