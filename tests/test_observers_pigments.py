@@ -6,7 +6,9 @@ import numpy as np
 import pytest
 
 import metasim
+from metasim import emitters
 from metasim.errors import ObserverError
+from metasim.metamerism import primaries_and_secondaries
 from metasim.observers import physiological_observers
 from metasim.observers.physiological import BASE_WAVELENGTHS, _absorbances, _peak
 from metasim.observers.pigments import shifted_absorbance
@@ -48,6 +50,10 @@ def test_defaults_are_unchanged_and_recorded():
     other = metasim.observer_population(5, seed=3, peak_shift_axis="wavelength")
     assert other.attrs["peak_shift_axis"] == "wavelength" and '"peak_shift_axis": "wavelength"' in other.attrs["parameters"]
     assert metasim.cie2006_observer(32, 2, l_shift_nm=1, peak_shift_axis="wavelength").attrs["peak_shift_axis"] == "wavelength"
+    monitor = metasim.make_display(emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"]))
+    lasers = metasim.make_display(emitters.laser_line([638, 532, 465], 1.0, name=["R", "G", "B"]))
+    result = metasim.mismatch(monitor, lasers, other, primaries_and_secondaries())
+    assert result.attrs["observer_peak_shift_axis"] == "wavelength"
     with pytest.raises(ObserverError, match="peak_shift_axis='log' is not known; allowed: log_wavelength, wavelength"):
         physiological_observers(peak_shift_axis="log")
     with pytest.raises(ObserverError, match="absorbance_interpolation='spline' is not known"):

@@ -363,6 +363,7 @@ def mismatch(
         "stimulus_kind": kind,
         "observer_model": str(obs.attrs.get("model", "standard observers")),
         "observer_seed": obs.attrs.get("seed", "none"),
+        "observer_peak_shift_axis": str(obs.attrs.get("peak_shift_axis", "none (no individual deviations)")),
         "thresholds_source": "1, 2, 3 CIE 2000 units: common practice, no source",
         "metasim_version": __version__,
     }

@@ -148,7 +148,8 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
     summary = xr.Dataset(out, coords=coords)
     summary.attrs = {key: result.attrs[key] for key in (
         "model", "reference", "reference_kind", "calibration_observer", "white_matched", "adapted_white",
-        "drive_strategy", "stimuli", "stimulus_kind", "observer_model", "observer_seed", "thresholds_source",
+        "drive_strategy", "stimuli", "stimulus_kind", "observer_model", "observer_seed", "observer_peak_shift_axis",
+        "thresholds_source",
         "metasim_version") if key in result.attrs}
     summary.attrs["observer_count"] = int(de.sizes["observer"])
     summary.attrs["stimulus_count"] = int(de.sizes["stimulus"])
