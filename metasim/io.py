@@ -39,9 +39,12 @@ import glob
 import json
 import os
 from pathlib import Path
-from typing import Iterable, Iterator
+from typing import TYPE_CHECKING, Iterable, Iterator
 
 from metasim.errors import FileFormatError, OutputError, OutputExistsError, OutputIsInputError
+
+if TYPE_CHECKING:  # annotations only; xarray is imported where it is used
+    import xarray as xr
 
 _JSON_LIST = "metasim_json_attrs"
 _DATAARRAY_FLAG = "metasim_dataarray_name"

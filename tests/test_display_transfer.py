@@ -16,7 +16,8 @@ RGB = xr.DataArray(np.random.default_rng(7).random((200, 3)), dims=("stimulus", 
 
 def test_srgb():
     np.testing.assert_allclose(eotf(V, "srgb", peak_luminance=1).values, models.eotf_sRGB(V.values), atol=1e-9)  # IEC 61966-2-1 (colour-science)
-    np.testing.assert_allclose(eotf_inverse(V, "srgb", peak_luminance=1).values, models.eotf_inverse_sRGB(V.values), atol=1e-9)  # IEC 61966-2-1 (colour-science)
+    ours = eotf_inverse(V, "srgb", peak_luminance=1).values
+    np.testing.assert_allclose(ours, models.eotf_inverse_sRGB(V.values), atol=1e-9)  # IEC 61966-2-1 (colour-science)
     assert eotf(V, "srgb", peak_luminance=80).attrs["units"] == "cd m-2"
 
 
@@ -32,7 +33,8 @@ def test_bt1886(black):
 def test_pq():
     np.testing.assert_allclose(eotf(V, "pq").values / 10000, models.eotf_ST2084(V.values) / 10000, atol=1e-9)  # SMPTE ST 2084 (colour-science)
     light = V * 10000
-    np.testing.assert_allclose(eotf_inverse(light, "pq").values, models.eotf_inverse_ST2084(light.values), atol=1e-9)  # SMPTE ST 2084 (colour-science)
+    ours = eotf_inverse(light, "pq").values
+    np.testing.assert_allclose(ours, models.eotf_inverse_ST2084(light.values), atol=1e-9)  # SMPTE ST 2084 (colour-science)
 
 
 @pytest.mark.parametrize("black, peak", [(0.0, 1000.0), (0.01, 1000.0), (0.005, 600.0)])

@@ -105,24 +105,24 @@ def test_driven_pairs_equal_apply_matrices_then_pair_differences():
     from metasim.colorimetry.integration import apply_matrices
 
     rng = np.random.default_rng(8)
-    G, O, S = 2, 5, 37
+    G, n_obs, S = 2, 5, 37
     ref_drive, test_drive = rng.uniform(0, 1, (1, S, 3)), rng.uniform(0, 1, (G, S, 4))
-    ref_m, ref_b = rng.uniform(0, 40, (1, O, 3, 3)), rng.uniform(0, 0.1, (1, O, 3))
-    test_m, test_b = rng.uniform(0, 40, (G, O, 3, 4)), rng.uniform(0, 0.1, (G, O, 3))
-    white = rng.uniform(80, 120, (G * O, 3))
+    ref_m, ref_b = rng.uniform(0, 40, (1, n_obs, 3, 3)), rng.uniform(0, 0.1, (1, n_obs, 3))
+    test_m, test_b = rng.uniform(0, 40, (G, n_obs, 3, 4)), rng.uniform(0, 0.1, (G, n_obs, 3))
+    white = rng.uniform(80, 120, (G * n_obs, 3))
     correction = np.where(rng.uniform(size=(G, S, 1)) < 0.3, rng.normal(0, 0.5, (G, S, 3)), 0.0)
     xyz_r, xyz_t, *rest = driven_pair_differences(ref_drive, ref_m, ref_b, test_drive, test_m, test_b, white,
                                                   correction)
     # the same pass done in two steps (the separate kernels; no outside reference needed)
     assert np.array_equal(xyz_r, apply_matrices(ref_drive, ref_m, ref_b)[0])
     assert np.array_equal(xyz_t, apply_matrices(test_drive, test_m, test_b))
-    two_steps = pair_differences(np.broadcast_to(xyz_r, xyz_t.shape).reshape(G * O, S, 3), xyz_t.reshape(G * O, S, 3),
+    two_steps = pair_differences(np.broadcast_to(xyz_r, xyz_t.shape).reshape(G * n_obs, S, 3), xyz_t.reshape(G * n_obs, S, 3),
                                  white, correction)
     for fused, separate in zip(rest, two_steps):
         assert np.array_equal(fused, separate)
     index, delta_e = rest[3], rest[2]
     untouched = (correction == 0).all(-1)  # (G, S)
-    assert np.array_equal(index.reshape(G, O, S)[:, :, untouched[0]][0], delta_e.reshape(G, O, S)[0][:, untouched[0]])
+    assert np.array_equal(index.reshape(G, n_obs, S)[:, :, untouched[0]][0], delta_e.reshape(G, n_obs, S)[0][:, untouched[0]])
 
 
 def test_series_equal_libm():

@@ -128,8 +128,8 @@ def test_absorbance_is_peak_normalised():
 
 def test_more_pigment_density_broadens_the_fundamental():
     def width(observer):
-        l = observer["lms"].sel(cone="L")
-        return float((l > 0.5).sum())
+        l_cone = observer["lms"].sel(cone="L")
+        return float((l_cone > 0.5).sum())
 
     assert width(cie2006_observer(32, 2, l_density_pct=30)) > width(cie2006_observer(32, 2))  # self-screening, CIE 170-1:2006
 

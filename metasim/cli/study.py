@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import time
 
-import numpy as np
 import xarray as xr
 
 from metasim.errors import MetasimError

@@ -167,16 +167,16 @@ def _population_objective(display, population, reference, reference_white, rgb_a
     white = _flat(ref_white.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
     m = _flat(m_pop, batch, ["observer", "xyz", "primary"])
     bk = _flat(black_pop.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
-    P, O, N = int(np.prod([m_pop.sizes[d] for d in batch], dtype=int)), pop.sizes["observer"], display.n_primaries
-    r = r.reshape(P, -1, O, 3)
-    m = m.reshape(P, O, 3, N)
-    white = white.reshape(P, O, 3)
-    bk = bk.reshape(P, O, 3)
-    jac = lab_jacobian(r, white[:, None])  # (P, S, O, 3, 3)
+    P, n_obs, N = int(np.prod([m_pop.sizes[d] for d in batch], dtype=int)), pop.sizes["observer"], display.n_primaries
+    r = r.reshape(P, -1, n_obs, 3)
+    m = m.reshape(P, n_obs, 3, N)
+    white = white.reshape(P, n_obs, 3)
+    bk = bk.reshape(P, n_obs, 3)
+    jac = lab_jacobian(r, white[:, None])  # (P, S, n_obs, 3, 3)
     g = np.einsum("psoij,pojn->psoin", jac, m)
     resid0 = np.einsum("psoij,psoj->psoi", jac, r - bk[:, None])
-    H = np.einsum("psoin,psoil->psnl", g, g) / O
-    f = -np.einsum("psoin,psoi->psn", g, resid0) / O
+    H = np.einsum("psoin,psoil->psnl", g, g) / n_obs
+    f = -np.einsum("psoin,psoi->psn", g, resid0) / n_obs
     return H, f
 
 

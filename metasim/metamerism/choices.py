@@ -91,7 +91,8 @@ def rank_calibration_observers(
     out = xr.Dataset(
         {
             "mean_delta_e": ("calibration_observer", mean, {"units": "1", "long_name": "mean CIE 2000 difference over observers, white and stimuli"}),
-            "p95_delta_e": ("calibration_observer", p95, {"units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli"}),
+            "p95_delta_e": ("calibration_observer", p95, {
+                "units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli"}),
             "mean_delta_e_white": ("calibration_observer", white, {"units": "1", "long_name": "mean CIE 2000 difference of the white"}),
             "mean_delta_e_stimuli": ("calibration_observer", stim, {"units": "1", "long_name": "mean CIE 2000 difference over the stimuli"}),
         },

@@ -266,4 +266,5 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     return out, xr.Coordinates(variables, indexes=indexes)
 
 
-__all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels", "weighted_quantile", "summarise", "summary_variables", "observer_weights"]
+__all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels",
+           "weighted_quantile", "summarise", "summary_variables", "observer_weights"]

@@ -175,7 +175,8 @@ def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = 
                 if not np.isfinite(values).all():
                     continue
                 label = str(primary_label.sel(display=name).values[i]) if primary_label is not None else str(block.primary.values[i])
-                xy = primary_xy.sel(display=name).transpose("primary", "chromaticity").values[i] if primary_xy is not None else np.array([np.nan, np.nan])
+                xy = (primary_xy.sel(display=name).transpose("primary", "chromaticity").values[i]
+                      if primary_xy is not None else np.array([np.nan, np.nan]))
                 peak = wl[int(np.argmax(values))]
                 colour = _primary_colour(xy)
                 style = "--" if colour in used else "-"  # two primaries of one hue: tell them apart
