@@ -337,6 +337,15 @@ def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, re
     An existing file is replaced unless ``replace=False``
     (:class:`~metasim.errors.OutputExistsError`). ``before_rename``, if given, is called with the
     complete temporary file just before the rename (e.g. to record its checksum).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> population = metasim.observer_population(3, seed=1)
+    >>> path = metasim.save_dataset(population, pathlib.Path(tempfile.mkdtemp()) / "audience.nc")
+    >>> metasim.load_dataset(path).attrs["seed"]
+    1
     """
     import xarray as xr
 
@@ -370,6 +379,15 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
     Returns a DataArray if a DataArray was saved, else a Dataset, fully loaded into memory.
     Raises :class:`~metasim.errors.FileFormatError` for a missing or unreadable file and for
     attributes metasim stores as JSON that do not hold JSON.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> from metasim.emitters import gaussian
+    >>> path = metasim.save_dataset(gaussian([450, 550], 30), pathlib.Path(tempfile.mkdtemp()) / "bands.nc")
+    >>> type(metasim.load_dataset(path)).__name__  # a DataArray comes back as a DataArray
+    'DataArray'
     """
     import xarray as xr
 

@@ -164,7 +164,13 @@ def _clean(array: xr.DataArray, keep=()) -> xr.DataArray:
 
 
 def unique_names(names: Sequence[str]) -> list[str]:
-    """``names`` with repeats numbered: ["A", "A"] → ["A", "A (2)"]."""
+    """``names`` with repeats numbered.
+
+    Examples
+    --------
+    >>> unique_names(["monitor", "projector", "monitor"])
+    ['monitor', 'projector', 'monitor (2)']
+    """
     out = []
     for name in names:
         label, i = name, 2
@@ -272,7 +278,15 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
 
 def overall_statistics(delta_e: xr.DataArray) -> xr.DataArray:
     """mean, median, p95, max of ``delta_e`` over all observer × stimulus pairs (observer weights
-    if present), dim ``statistic``."""
+    if present), dim ``statistic``.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> delta_e = xr.DataArray([[0.0, 1.0], [2.0, 3.0]], dims=("observer", "stimulus"))
+    >>> overall_statistics(delta_e).round(6).values.tolist()  # numpy's linear percentile
+    [1.5, 1.5, 2.85, 3.0]
+    """
     values = delta_e.transpose("observer", "stimulus").values
     weights = None
     if "weight" in delta_e.coords:
@@ -456,7 +470,15 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
 
 def as_study(ds: xr.Dataset) -> xr.Dataset:
     """A result in the study layout: a plain :func:`metasim.mismatch` Dataset gains a one-entry
-    ``design`` dim (named by its ``test`` attribute); a study is returned as it is."""
+    ``design`` dim (named by its ``test`` attribute); a study is returned as it is.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"delta_e_2000": (("observer", "stimulus"), [[0.5, 1.5]])}, attrs={"test": "lasers"})
+    >>> as_study(result)["delta_e_2000"].dims, list(as_study(result).design.values)
+    (('design', 'observer', 'stimulus'), ['lasers'])
+    """
     if "delta_e_2000" in ds and "design" not in ds["delta_e_2000"].dims:
         name = str(ds.attrs.get("test", "design"))
         ds = ds.copy()

@@ -42,6 +42,14 @@ def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
     """CIE 1931 xy chromaticity (dim ``chromaticity`` = x, y) from XYZ (CIE 15:2004 §7.3).
 
     Black (X + Y + Z = 0) gives NaN.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> d65 = xr.DataArray([95.047, 100.0, 108.883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> metasim.xyz_to_xy(d65).round(4).values.tolist()  # CIE 15:2004: D65 at x 0.3127, y 0.3290
+    [0.3127, 0.329]
     """
     _need(xyz, "xyz", "xyz")
     if xyz.sizes["xyz"] != 3:
@@ -53,7 +61,16 @@ def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
 
 
 def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
-    """CIE 1976 u'v' chromaticity (dim ``chromaticity`` = u', v') from XYZ (CIE 15:2004 §8.1)."""
+    """CIE 1976 u'v' chromaticity (dim ``chromaticity`` = u', v') from XYZ (CIE 15:2004 §8.1).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> d65 = xr.DataArray([95.047, 100.0, 108.883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> metasim.xyz_to_uv(d65).round(4).values.tolist()  # CIE 15:2004: D65 at u' 0.1978, v' 0.4683
+    [0.1978, 0.4683]
+    """
     _need(xyz, "xyz", "xyz")
     if xyz.sizes["xyz"] != 3:
         (x, y, z), _ = _split(xyz, "xyz")  # raises the unpacking error
@@ -65,7 +82,16 @@ def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
 
 
 def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.DataArray:
-    """XYZ with the given Y from xy chromaticity (dim ``chromaticity`` = x, y)."""
+    """XYZ with the given Y from xy chromaticity (dim ``chromaticity`` = x, y).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> xy = xr.DataArray([0.3127, 0.3290], dims="chromaticity", coords={"chromaticity": ["x", "y"]})
+    >>> metasim.xy_to_xyz(xy, luminance=100.0).round(2).values.tolist()
+    [95.05, 100.0, 108.91]
+    """
     _need(xy, "chromaticity", "xy")
     x = xy.sel(chromaticity="x", drop=True)
     y = xy.sel(chromaticity="y", drop=True)
@@ -131,6 +157,14 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     References
     ----------
     CIE 15:2004 §8.2.1; ISO/CIE 11664-4:2019 (exact ε = 216/24389, κ = 24389/27).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> white = xr.DataArray([95.047, 100.0, 108.883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> round(float(metasim.xyz_to_lab(white * 0.18, white).sel(lab="L*")), 3)  # CIE 15:2004: 116 * 0.18^(1/3) - 16
+    49.496
     """
     _need(xyz, "xyz", "xyz")
     _need(white, "xyz", "white")

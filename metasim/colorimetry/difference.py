@@ -72,6 +72,12 @@ def delta_e_2000(lab_1, lab_2, *, k_L: float = 1.0):
     References
     ----------
     CIE 142-2001 / ISO/CIE 11664-6:2014; Sharma, Wu & Dalal (2005) Color Res. Appl. 30(1) 21-30.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> metasim.delta_e_2000([50.0, 2.6772, -79.7751], [50.0, 0.0, -82.7485]).round(4)  # Sharma et al. (2005) pair 1
+    2.0425
     """
     if isinstance(lab_1, xr.DataArray) or isinstance(lab_2, xr.DataArray):
         if not (isinstance(lab_1, xr.DataArray) and isinstance(lab_2, xr.DataArray)):

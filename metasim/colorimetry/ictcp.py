@@ -51,6 +51,14 @@ def xyz_to_ictcp(xyz: xr.DataArray) -> xr.DataArray:
     References
     ----------
     ITU-R BT.2100-2 (2018), Tables 4, 6 and 7.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> white = xr.DataArray([95.047, 100.0, 108.883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> round(float(metasim.xyz_to_ictcp(white).sel(ictcp="I")), 4)  # SMPTE ST 2084: 100 cd/m2 encodes as 0.5081
+    0.5081
     """
     if not isinstance(xyz, xr.DataArray) or "xyz" not in xyz.dims:
         raise MetasimError("xyz_to_ictcp needs a DataArray with an 'xyz' dim (absolute XYZ in cd/m2)")
@@ -68,6 +76,15 @@ def delta_e_itp(ictcp_1: xr.DataArray, ictcp_2: xr.DataArray) -> xr.DataArray:
     """ΔE_ITP = 720·√(ΔI² + ΔT² + ΔP²), T = Ct/2, P = Cp (ITU-R BT.2124-0, 2019).
 
     A value of 1 is about one just-noticeable difference; broadcast by dim name over all but ``ictcp``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> white = xr.DataArray([95.047, 100.0, 108.883], dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> ictcp = metasim.xyz_to_ictcp(white)
+    >>> round(float(metasim.delta_e_itp(ictcp, metasim.xyz_to_ictcp(white * 1.05))), 2)  # 5 % brighter
+    3.53
     """
     for name, value in (("ictcp_1", ictcp_1), ("ictcp_2", ictcp_2)):
         if not isinstance(value, xr.DataArray) or "ictcp" not in value.dims:

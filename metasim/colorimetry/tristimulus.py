@@ -167,6 +167,15 @@ def tristimulus(
     References
     ----------
     CIE 15:2004 Colorimetry, §7 (tristimulus values); colour-science ``sd_to_XYZ`` method "Integration".
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import numpy as np
+    >>> equal_energy = metasim.make_spectra(np.ones(441), metasim.default_grid())
+    >>> xyz = metasim.tristimulus(equal_energy, metasim.standard_observer("cie1931_2"))
+    >>> metasim.xyz_to_xy(xyz).round(3).values.tolist()  # CIE illuminant E: x = y = 1/3
+    [0.333, 0.333]
     """
     if scale not in SCALES:
         raise MetasimError(f"scale={scale!r} is not known; allowed: {', '.join(SCALES)}")
@@ -210,7 +219,16 @@ def tristimulus(
 
 
 def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray:
-    """Cone excitations (``cone`` = L, M, S) of spectra; see :func:`tristimulus` for the options."""
+    """Cone excitations (``cone`` = L, M, S) of spectra; see :func:`tristimulus` for the options.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> lms = metasim.cone_excitations(gaussian(450, 20), metasim.standard_observer("cie2015_2"))
+    >>> lms.idxmax("cone").item()  # a blue band excites the S cones most
+    'S'
+    """
     return tristimulus(spectra, observers, quantity="lms", **kwargs)
 
 

@@ -109,6 +109,16 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     References
     ----------
     SMPTE RP 177-1993; see the module docstring for the N > 3 rule.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> display = metasim.make_display(gaussian([455, 535, 615], [25, 30, 35], name=["B", "G", "R"]))
+    >>> calibrated = metasim.calibrate_white(display, "cie1931_2", white="D65", luminance=100)
+    >>> white = calibrated.white_tristimulus("cie1931_2")
+    >>> metasim.xyz_to_xy(white).round(4).values.tolist(), round(float(white.sel(xyz="Y")), 6)
+    ([0.3127, 0.329], 100.0)
     """
     if not isinstance(display, Display):
         raise DisplayError(f"calibrate_white needs a Display, got {type(display).__name__}")

@@ -232,6 +232,18 @@ def solve_drive(
     References
     ----------
     See the module docstring.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import xarray as xr
+    >>> from metasim.emitters import gaussian
+    >>> display = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> rgb = xr.DataArray([[1.0, 1.0, 1.0], [0.5, 0.5, 0.5]], dims=("stimulus", "primary"),
+    ...                    coords={"stimulus": ["white", "grey"], "primary": ["R", "G", "B"]})
+    >>> metasim.solve_drive(display, rgb=rgb)["drive"].sel(stimulus="white").round(6).values.tolist()
+    [1.0, 1.0, 1.0]
     """
     return drive_solution(display, target, rgb=rgb, source=source, encoding=encoding, observer=observer,
                           strategy=strategy, population=population, reference=reference,

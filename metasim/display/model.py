@@ -108,6 +108,14 @@ class Display:
     """An additive display of N ≥ 3 primaries (see the module docstring for the layout).
 
     Build one with :func:`make_display`; convert with :meth:`to_dataset` / :meth:`from_dataset`.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> display = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> display.n_primaries, display.primaries
+    (3, ['B', 'G', 'R'])
     """
 
     def __init__(self, dataset: xr.Dataset):
@@ -415,6 +423,15 @@ def make_display(
     References
     ----------
     Berns (1996) Displays 16(4) 173-182 (additive display model).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> display = metasim.make_display(gaussian([455, 535, 615], [25, 30, 35], name=["B", "G", "R"]), transfer="gamma",
+    ...                                gamma=2.4, name="monitor")
+    >>> display.name, display.n_primaries
+    ('monitor', 3)
     """
     if name is None:
         name = str(spectra.name) if is_colour_object(spectra) else "display"
@@ -468,7 +485,17 @@ def make_display(
 
 
 def stack_designs(displays: Sequence[Display], design: Sequence | None = None) -> Display:
-    """Stack displays with the same primaries count, grid and transfer function along ``design``."""
+    """Stack displays with the same primaries count, grid and transfer function along ``design``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> a = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> b = metasim.make_display(laser_line([465, 532, 645], 1.0, name=["B", "G", "R"]))
+    >>> metasim.stack_designs([a, b], design=["638 nm", "645 nm"]).spectra.sizes["design"]
+    2
+    """
     displays = list(displays)
     if not displays:
         raise DisplayError("stack_designs: no displays given; pass at least one Display")

@@ -102,6 +102,13 @@ def chromaticity_gamut(primaries_xyz, space: str = "xy", observer=None) -> xr.Da
     ----------
     CIE 15:2004 Colorimetry §7.3, §8.1 (chromaticity diagrams); O'Rourke (1998) Computational
     Geometry in C (convex hull, shoelace area).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> gamut = metasim.chromaticity_gamut("bt709")
+    >>> round(float(gamut["area"]), 4)  # the BT.709 triangle in CIE 1931 xy (ITU-R BT.709-6 primaries)
+    0.1121
     """
     check_space(space)
     xyz = as_primaries_xyz(primaries_xyz, observer, allow_chromaticity=True)
@@ -185,6 +192,12 @@ def gamut_coverage(design, reference="bt709", space: str = "xy", observer=None) 
     ----------
     Intersection of convex polygons by Green's theorem with Cyrus & Beck (1978) edge clipping;
     reference primaries ITU-R BT.709-6, SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> float(metasim.gamut_coverage("bt2020", "bt709")), round(float(metasim.gamut_coverage("bt709", "bt2020")), 3)
+    (1.0, 0.529)
     """
     check_space(space)
     if not (isinstance(design, xr.Dataset) and "polygon" in design):

@@ -164,6 +164,15 @@ def lab_coverage_volume(design, reference="bt2020", observer=None, white=None, *
     Dataset
         ``coverage`` (0..1), ``intersection_volume``, ``reference_volume`` and ``design_volume``
         in CIELAB units³, over the leading dims.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> lasers = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> coverage = metasim.lab_coverage_volume(lasers, "bt709", metasim.standard_observer("cie1931_2"))["coverage"]
+    >>> round(float(coverage), 2)
+    0.93
     """
     if not 0 < rtol < 0.1:
         raise GamutError(f"rtol={rtol!r} is not allowed; need 0 < rtol < 0.1")

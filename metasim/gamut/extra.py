@@ -119,6 +119,15 @@ def extra_primary_gain(
         Over ``peak_wavelength`` (nm) and the base's leading dims: ``area_gain``,
         ``area_gain_share`` (of the base area), ``area``; with ``volume`` also ``volume_gain``,
         ``volume_gain_share`` and ``volume``; and the base values ``base_area``, ``base_volume``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> base = laser_line([465, 532, 638], 1.0, name=["B", "G", "R"])
+    >>> gain = metasim.extra_primary_gain(base, metasim.standard_observer("cie1931_2"), peak_nm=[500, 580])
+    >>> gain["area_gain_share"].round(3).values.tolist()  # a cyan line widens the gamut, a yellow one hardly
+    [0.263, 0.015]
     """
     check_space(space)
     if match not in MATCHES:

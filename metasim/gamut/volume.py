@@ -196,6 +196,15 @@ def lab_gamut_volume(display_or_primaries, observer=None, white=None, *, rtol: f
     CIE 15:2004 §8.2.1 (CIELAB); zonotope faces: McMullen (1971) On zonotopes, Trans. AMS 159, and
     Shephard (1974) Combinatorial properties of associated zonotopes, Canad. J. Math. 26; volume by
     the divergence theorem over a refined surface tessellation with Richardson extrapolation.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> display = metasim.make_display(gaussian([455, 535, 615], [25, 30, 35], name=["B", "G", "R"]))
+    >>> volume = metasim.lab_gamut_volume(display, metasim.standard_observer("cie1931_2"))
+    >>> bool(volume > 0), volume.attrs["units"]
+    (True, '(CIELAB unit)3')
     """
     if not 0 < rtol < 0.1:
         raise GamutError(f"rtol={rtol!r} is not allowed; need 0 < rtol < 0.1")

@@ -61,6 +61,19 @@ def rank_calibration_observers(
     Dataset
         ``mean_delta_e``, ``p95_delta_e``, ``mean_delta_e_white``, ``mean_delta_e_stimuli`` (dim
         ``calibration_observer``) and the attribute ``best_calibration_observer``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> lasers = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> viewers = metasim.observer_population(4, seed=1, age_years=(20, 70))
+    >>> ranking = metasim.rank_calibration_observers(monitor, lasers, viewers, neutral_ramp(3))
+    >>> ranking.sizes["calibration_observer"], ranking.attrs["best_calibration_observer"] in ranking.calibration_observer
+    (5, True)
     """
     if not candidates:
         raise MetasimError("candidates is empty; give at least one calibration observer")
@@ -136,6 +149,17 @@ def white_point_offsets(
     Dataset
         ``offset_xy`` (observer × chromaticity x, y), ``offset_uv_length`` (observer: Δu'v'),
         ``test_white_xy`` (observer × chromaticity), ``reference_white_xy`` (chromaticity).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> lasers = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> groups = metasim.observer_categories(metasim.observer_population(20, seed=1, age_years=(20, 70)), 2, seed=1)
+    >>> dict(metasim.white_point_offsets(monitor, lasers, groups)["offset_xy"].sizes)
+    {'observer': 2, 'chromaticity': 2}
     """
     if not isinstance(test, Display):
         raise MetasimError(f"test must be a Display, got {type(test).__name__}")

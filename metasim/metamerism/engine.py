@@ -257,6 +257,19 @@ def mismatch(
         ``metamerism_index``, ``delta_e_white`` (observer), ``delta_e_2000_calibration`` (stimulus),
         ``drive_test``, flags ``out_of_gamut_reference`` / ``out_of_gamut_test`` / ``out_of_gamut_both``
         and the summaries of :func:`~metasim.metamerism.summary.summarise`.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> lasers = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> viewers = metasim.observer_population(4, seed=1, age_years=(20, 70))
+    >>> result = metasim.mismatch(monitor, lasers, viewers, neutral_ramp(3))
+    >>> dict(result["delta_e_2000"].sizes), float(result["delta_e_2000_calibration"].max()) < 1e-6
+    ({'observer': 4, 'stimulus': 3}, True)
     """
     if not isinstance(test, Display):
         raise MetasimError(f"test must be a Display, got {type(test).__name__}")

@@ -201,6 +201,14 @@ def observer_categories(population: xr.Dataset, k: int, *, seed) -> xr.Dataset:
     References
     ----------
     Lloyd (1982); Arthur & Vassilvitskii (2007); CIE 13.3-1995; CIE 15:2004.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> population = metasim.observer_population(30, seed=1, age_years=(20, 70))
+    >>> categories = metasim.observer_categories(population, 3, seed=1)
+    >>> categories.sizes["observer"], round(float(categories["weight"].sum()), 6)
+    (3, 1.0)
     """
     n = _population_cmf(population).sizes["observer"]
     if isinstance(k, bool) or not isinstance(k, Integral) or not 1 <= k <= n:

@@ -396,6 +396,13 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
     References
     ----------
     CIE 170-1:2006; CIE 170-2:2015; Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> observers = metasim.physiological_observers(age_years=[25, 45, 65], field_size_deg=2)
+    >>> dict(observers["lms"].sizes), observers["age_years"].values.tolist()
+    ({'observer': 3, 'cone': 3, 'wavelength': 441}, [25.0, 45.0, 65.0])
     """
     params = _parameter_vectors(age_years, field_size_deg, deviations, extrapolate)
     check_peak_shift_axis(peak_shift_axis)
@@ -475,6 +482,13 @@ def cie2006_observer(
     References
     ----------
     CIE 170-1:2006; CIE 170-2:2015; CIE 203:2012; Asano, Fairchild & Blondé (2016).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> observer = metasim.cie2006_observer(age_years=60, field_size_deg=10)
+    >>> dict(observer["cmf"].sizes)
+    {'xyz': 3, 'wavelength': 441}
     """
     deviations = {name: value for name, value in locals().items() if name in DEVIATIONS}
     for name, value in {"age_years": age_years, "field_size_deg": field_size_deg, **deviations}.items():

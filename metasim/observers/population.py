@@ -170,6 +170,13 @@ def observer_population(
     References
     ----------
     Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671; CIE 170-1:2006; CIE 170-2:2015.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> population = metasim.observer_population(5, seed=1, age_years=(20, 70))
+    >>> population.sizes["observer"], bool(population["age_years"].min() >= 20), population.attrs["seed"]
+    (5, True, 1)
     """
     if isinstance(n, bool) or not isinstance(n, Integral) or n < 1:
         raise ObserverError(f"n={n!r} is not allowed; a population needs an integer number of observers >= 1")

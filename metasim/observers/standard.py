@@ -76,6 +76,13 @@ def standard_observer(name: str, wavelengths=None) -> xr.Dataset:
     References
     ----------
     CIE 15:2004 Colorimetry; CIE 170-1:2006; CIE 170-2:2015; Stockman & Sharpe (2000) Vision Research 40.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> cie1931 = metasim.standard_observer("cie1931_2")
+    >>> float(cie1931["cmf"].sel(xyz="Y", wavelength=555))  # CIE 15:2004 table: y-bar(555 nm) = 1
+    1.0
     """
     if name not in _TABLES:
         raise ObserverError(f"unknown standard observer {name!r}; allowed: {', '.join(STANDARD_OBSERVERS)}")
@@ -133,6 +140,13 @@ def cone_fundamentals(field_size_deg: int = 2, wavelengths=None) -> xr.DataArray
     """Stockman & Sharpe (2000) 2° or 10° cone fundamentals (``cone`` × ``wavelength``).
 
     Energy-based, peak-normalised; identical to CIE 170-1:2006 at age 32.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> lms = metasim.cone_fundamentals(2)
+    >>> [int(lms.sel(cone=cone).idxmax()) for cone in ("L", "M", "S")]  # peak wavelengths, nm
+    [570, 543, 442]
     """
     if field_size_deg not in (2, 10):
         raise ObserverError(

@@ -48,6 +48,16 @@ def read_spectra_csv(
         names the file and line.
     SpectrumError
         Unsorted, duplicate or non-finite wavelengths, NaN values, negative values; named likewise.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "filter.csv"
+    >>> _ = path.write_text("wavelength_nm,red filter\\n600,0.1\\n610,0.5\\n620,0.9\\n")
+    >>> spectra = metasim.read_spectra_csv(path, units="1", long_name="transmittance")
+    >>> spectra.sel(channel="red filter", wavelength=610).item()
+    0.5
     """
     path = Path(path)
     text = read_text_file(path, "CSV file")
@@ -158,6 +168,15 @@ def write_spectra_csv(
     ``wavelength_nm,<label>,...`` and one row per wavelength, values with 17 significant digits.
     Written through :func:`metasim.io.atomic_output`; an existing file is replaced unless
     ``replace=False``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> from metasim.emitters import gaussian
+    >>> path = metasim.write_spectra_csv(gaussian([450, 550], 30), pathlib.Path(tempfile.mkdtemp()) / "bands.csv")
+    >>> metasim.read_spectra_csv(path).sizes["channel"]
+    2
     """
     check_spectra(spectra, where=str(path), non_negative=False)
     lead = [d for d in spectra.dims if d != "wavelength"]

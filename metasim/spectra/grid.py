@@ -58,6 +58,13 @@ def wavelength_grid(
         lies on the grid.
     step_nm : float
         Spacing in nm, > 0.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> grid = metasim.wavelength_grid(400, 700, 5)
+    >>> grid.sizes["wavelength"], float(grid[0]), float(grid[-1])
+    (61, 400.0, 700.0)
     """
     for name, value in (("start_nm", start_nm), ("end_nm", end_nm), ("step_nm", step_nm)):
         if not isinstance(value, (int, float, np.number)) or not math.isfinite(float(value)):
@@ -77,7 +84,15 @@ def wavelength_grid(
 
 
 def default_grid() -> xr.DataArray:
-    """The default grid, 390-830 nm at 1 nm (CIE 170-1:2006 range)."""
+    """The default grid, 390-830 nm at 1 nm (CIE 170-1:2006 range).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> grid = metasim.default_grid()
+    >>> grid.sizes["wavelength"], float(grid[0]), float(grid[-1]), grid.attrs["units"]
+    (441, 390.0, 830.0, 'nm')
+    """
     return wavelength_grid()
 
 
@@ -214,6 +229,13 @@ def make_spectra(
     """Build a validated spectral DataArray (``dim`` × ``wavelength``, or ``wavelength`` only).
 
     ``values`` has shape (n_wavelength,) or (n_labels, n_wavelength).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> spectra = metasim.make_spectra([[0.0, 1.0, 0.0], [1.0, 0.0, 1.0]], [500, 550, 600], labels=["peak", "dip"])
+    >>> dict(spectra.sizes)
+    {'channel': 2, 'wavelength': 3}
     """
     wl = check_wavelengths(wavelengths, where=long_name)
     data = np.asarray(values, dtype=float)
@@ -268,6 +290,14 @@ def resample(
 
     Linear interpolation inside the measured range, zero outside; a :class:`SpectralEnergyWarning`
     when more than ``warn_share`` of any channel's energy falls outside the target grid.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> coarse = metasim.resample(gaussian(550, 40), metasim.wavelength_grid(390, 830, 5))
+    >>> coarse.sizes["wavelength"]
+    89
     """
     check_spectra(spectra, where=spectra.name or "spectra", non_negative=False)
     target = check_wavelengths(default_grid() if wavelengths is None else wavelengths, where="target grid")

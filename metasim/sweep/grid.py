@@ -106,6 +106,15 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
         ``design`` (0 … n−1) × ``primary`` × ``wavelength``; coordinates ``peak_nm_<label>`` and the
         width axes on ``design``; attributes ``units``, ``long_name``, ``model``, ``parameters`` and,
         with a Display base, ``display_settings``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> base = laser_line([465, 532, 638], 1.0, name=["B", "G", "R"])
+    >>> designs = metasim.design_grid("laser", {"R": [630, 640, 650]}, 1.0, base=base)
+    >>> dict(designs.sizes), designs["peak_nm_R"].values.tolist()
+    ({'design': 3, 'primary': 3, 'wavelength': 441}, [630.0, 640.0, 650.0])
     """
     if kind not in GRID_KINDS:
         raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")

@@ -192,6 +192,21 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         Per-design summaries over ``design`` (:mod:`metasim.sweep.summary`), with the attributes
         ``spec_hash``, ``spec``, ``observer_seed``, ``observer_model``, ``metasim_version``; also
         written to ``store/sweep.nc``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> designs = metasim.design_grid("laser", {"R": [630, 650]}, 1.0, base=laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> viewers = metasim.observer_population(3, seed=1, age_years=(20, 70))
+    >>> store = pathlib.Path(tempfile.mkdtemp()) / "red-sweep"
+    >>> sweep = metasim.run_sweep(designs, monitor, viewers, neutral_ramp(3), store=store, scheduler="serial")
+    >>> sweep["delta_e_2000_overall"].sizes["design"], (store / "sweep.nc").exists()
+    (2, True)
     """
     _check_designs(designs)
     _check_scheduler(scheduler)
