@@ -47,6 +47,13 @@ def to_colour(obj, *, name: str | None = None):
         DataArray (``wavelength`` and at most one other dim).
     name : str, optional
         Name of the colour-science object (default: the observer / display / array name).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> cmfs = metasim.to_colour(metasim.standard_observer("cie1931_2"))
+    >>> type(cmfs).__name__, cmfs.shape.interval
+    ('XYZ_ColourMatchingFunctions', 1.0)
     """
     if isinstance(obj, Display):
         if obj.batch_dims:
@@ -74,7 +81,16 @@ def from_colour(obj, wavelengths=None, *, dim: str | None = None):
     observer Dataset (a DataArray again if :func:`to_colour` made them from one); other spectral
     distributions → a labelled DataArray (``dim`` names the label
     dim of a multi-spectral object). ``wavelengths`` puts the result on a grid
-    (:func:`metasim.spectra.resample` policy); None keeps the object's own."""
+    (:func:`metasim.spectra.resample` policy); None keeps the object's own.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import colour
+    >>> observer = metasim.from_colour(colour.MSDS_CMFS["CIE 1931 2 Degree Standard Observer"])
+    >>> dict(observer["cmf"].sizes)  # colour-science's table: 360-830 nm
+    {'xyz': 3, 'wavelength': 471}
+    """
     metadata = getattr(obj, METADATA, None)
     made_from_array = isinstance(metadata, dict) and "dataset_attrs" not in metadata
     if is_colour_observer(obj) and not made_from_array:

@@ -177,6 +177,13 @@ def result_tables(ds, *, pairs: bool = False, attributes: bool = True) -> list[T
         Also tabulate the raw per observer × stimulus arrays (large: observers × stimuli rows).
     attributes : bool
         Add the ``attributes`` table of the file's attributes.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> tables = metasim.result_tables(metasim.observer_population(5, seed=1))
+    >>> [table.key for table in tables]
+    ['observer', 'attributes']
     """
     if isinstance(ds, xr.DataArray):
         ds = ds.to_dataset(name=str(ds.name or "values"))
@@ -286,6 +293,15 @@ def write_csv_tables(tables: list[Table], folder, *, contents: bool = True, repl
 
     Existing files are refused unless ``replace`` (nothing is written then), as is a file that is one
     of ``inputs``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> tables = metasim.result_tables(metasim.observer_population(5, seed=1))
+    >>> paths = metasim.write_csv_tables(tables, pathlib.Path(tempfile.mkdtemp()) / "tables")
+    >>> sorted(path.name for path in paths)
+    ['attributes.csv', 'contents.csv', 'observer.csv']
     """
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
@@ -340,6 +356,14 @@ def write_workbook(tables: list[Table], path, *, contents: bool = True, replace:
     """One ``.xlsx`` workbook: a ``contents`` sheet, then a sheet per table (header row frozen).
 
     Needs openpyxl (the ``spreadsheet`` extra); an existing file is refused unless ``replace``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> import pathlib, tempfile
+    >>> tables = metasim.result_tables(metasim.observer_population(5, seed=1))
+    >>> metasim.write_workbook(tables, pathlib.Path(tempfile.mkdtemp()) / "audience.xlsx").suffix
+    '.xlsx'
     """
     path = Path(path)
     require_workbook_writer(path)

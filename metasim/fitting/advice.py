@@ -74,6 +74,14 @@ def expected_uncertainty(plans, *, setting_noise: float, prior=None, fit_age: bo
         Over ``plan`` × ``parameter``: ``expected_standard_error``, ``prior_sd``, ``information_share``,
         ``identified``, ``identification_note``; ``posterior_correlation`` and ``effect_cosine``
         over ``plan`` × ``parameter`` × ``other_parameter``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> plan = metasim.colour_matching_data(test_wavelengths=range(420, 680, 20), primaries=[645.16, 526.32, 444.44])
+    >>> advice = metasim.expected_uncertainty(plan, setting_noise=0.01)
+    >>> list(advice.parameter.values)[:3], advice["expected_standard_error"].sizes["parameter"]
+    (['lens_density_pct', 'macular_density_pct', 'l_density_pct'], 8)
     """
     check_peak_shift_axis(peak_shift_axis)
     if not (isinstance(setting_noise, (int, float)) and np.isfinite(setting_noise) and setting_noise > 0):

@@ -198,6 +198,16 @@ def fit_observer(data, *, prior=None, fit_age: bool = False, age_prior=AGE_PRIOR
     References
     ----------
     CIE 170-1:2006; Asano, Fairchild & Blondé (2016); Levenberg (1944); Marquardt (1963).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.fitting.synthetic import synthetic_matches
+    >>> plan = metasim.colour_matching_data(test_wavelengths=range(420, 680, 20), primaries=[645.16, 526.32, 444.44])
+    >>> subjects = metasim.observer_population(2, seed=4, age_years=40)
+    >>> fit = metasim.fit_observer(synthetic_matches(plan, subjects, setting_noise=0.002, seed=4), categories=False)
+    >>> fit.sizes["observer"], "lms" in fit and "cmf" in fit
+    (2, True)
     """
     md = check_matching_data(data)
     check_peak_shift_axis(peak_shift_axis)

@@ -163,6 +163,13 @@ def colour_matching_data(amounts=None, *, test_wavelengths, primaries, primary_l
         1-10 degrees (default 2).
     age_years : float or per subject, optional
         20-80 years; NaN or None = unknown.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> plan = metasim.colour_matching_data(test_wavelengths=[450, 500, 550, 600], primaries=[645.16, 526.32, 444.44])
+    >>> dict(plan.sizes)  # a plan: the stimuli and primaries, no observations yet
+    {'primary': 3, 'stimulus': 4}
     """
     test = np.atleast_1d(np.asarray(test_wavelengths, dtype=float))
     monochromatic_weights(test)  # range check
@@ -221,6 +228,15 @@ def matching_session_data(settings=None, *, references, display, black=None, sub
         (``primary`` × ``wavelength``), on the references' grid.
     black : DataArray, optional
         Black-level spectral radiance when ``display`` is given as spectra (default 0).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> display = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> plan = metasim.matching_session_data(references=gaussian([480, 560, 600], 20), display=display)
+    >>> dict(plan.sizes)
+    {'wavelength': 441, 'stimulus': 3, 'primary': 3}
     """
     if not isinstance(references, xr.DataArray):
         raise FittingError(f"references must be a DataArray (stimulus x wavelength), got {type(references).__name__}")

@@ -68,7 +68,7 @@ import xarray as xr
 from metasim._paths import data_dir
 from metasim._version import __version__
 from metasim.errors import ObserverError
-from metasim.observers.pigments import (DEFAULT_ABSORBANCE_INTERPOLATION, DEFAULT_PEAK_SHIFT_AXIS,
+from metasim.observers.pigments import (DEFAULT_ABSORBANCE_INTERPOLATION, DEFAULT_PEAK_SHIFT_AXIS, PEAK_SHIFT_AXES,
                                         check_absorbance_interpolation, check_peak_shift_axis, shifted_absorbance)
 from metasim.observers.standard import CONES, XYZ
 from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv

@@ -179,7 +179,7 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
         plans.append((q, np.ascontiguousarray(targets), gamma, first_bin, last_bin))
     first_bins = np.array([p[3] for p in plans], dtype=np.int64)
     last_bins = np.array([p[4] for p in plans], dtype=np.int64)
-    sizes = [int(hist_count[f:l + 1].sum()) for f, l in zip(first_bins, last_bins)]
+    sizes = [int(hist_count[first:last + 1].sum()) for first, last in zip(first_bins, last_bins)]
     offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
     windows = np.empty(offsets[-1] + len(plans))  # one spare slot after each window
     owners = np.empty(offsets[-1] + len(plans), dtype=np.int64)
