@@ -93,6 +93,8 @@ from metasim.gamut import (
     locus_share,
 )
 from metasim.metamerism import mismatch
+from metasim.metamerism.engine import resolve_observers
+from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.choices import rank_calibration_observers, white_point_offsets
 from metasim.metamerism.summary import DECADES, STATISTICS, summarise, weighted_quantile
 from metasim.observers import observer_categories, standard_observer
@@ -361,9 +363,10 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         The candidate displays.
     observers : Dataset
         Observer population (:func:`metasim.observer_population` or
-        :func:`metasim.observer_categories`).
+        :func:`metasim.observer_categories`); or what :func:`metasim.mismatch` accepts (standard
+        observer names, colour-science colour-matching functions).
     stimuli : Dataset
-        A stimulus set (:mod:`metasim.metamerism.stimuli`).
+        A stimulus set (:mod:`metasim.metamerism.stimuli`), or colour-science reflectances.
     calibration_observer : str or Dataset
         The observer both sides are matched for (as for :func:`metasim.mismatch`).
     strategy : str
@@ -415,6 +418,11 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     progress = progress or _quiet
     cie1931 = standard_observer(GAMUT_OBSERVER, default_grid().values)
     designs = list(designs)
+    if designs and isinstance(designs[0], Display):  # colour-science inputs converted once, on the designs' grid
+        grid = designs[0].wavelengths.values
+        if not isinstance(observers, xr.Dataset):
+            observers = resolve_observers(observers, grid)
+        stimuli = as_stimuli(stimuli, grid)
     displays = ([reference] if isinstance(reference, Display) else []) + designs
     roles = (["reference"] if isinstance(reference, Display) else []) + ["design"] * len(designs)
     blocks = display_blocks(displays, roles, cie1931, progress)

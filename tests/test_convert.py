@@ -294,3 +294,33 @@ def test_round_trip_reflectances_and_illuminant():
     xr.testing.assert_identical(metasim.from_colour(sd), d65)
     with pytest.raises(SpectrumError, match=r"isel\(design=0\)"):
         metasim.to_colour(xr.concat([stimuli["reflectance"]] * 2, dim="design"))
+
+
+def test_study_takes_colour_objects():
+    reference = metasim.calibrate_white(metasim.make_display(
+        emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"]), name="monitor"), "cie1931_2",
+        white="D65", luminance=100)
+    design = metasim.make_display(emitters.gaussian([615, 535, 460], [30, 35, 25], name=["R", "G", "B"]),
+                                  name="candidate")
+    checker = colour.SDS_COLOURCHECKERS["ColorChecker N Ohta"]
+    reflectances = sds_and_msds_to_msds([checker[k] for k in ("dark skin", "blue sky", "foliage")])
+    audience = metasim.observer_population(6, seed=2, age_years=(20, 60))
+    with pytest.warns(SpectralEnergyWarning):  # the checker starts at 380 nm, the designs' grid at 390 nm
+        study = metasim.run_study(reference, [design], audience, reflectances, extra_peaks_nm=[500],
+                                  rank_calibration=False, white_categories=0)
+    with pytest.warns(SpectralEnergyWarning):
+        stimuli = reflectance_set(reflectances)
+    direct = mismatch(reference, design, audience, stimuli)
+    assert list(study.stimulus.values) == ["dark skin", "blue sky", "foliage"]
+    np.testing.assert_array_equal(study["delta_e_2000"].sel(design="candidate").values, direct["delta_e_2000"].values)
+
+
+def test_plain_array_as_observer_refused_with_labelling_example(crt):
+    display = metasim.make_display(crt)
+    functions = metasim.standard_observer("cie1931_2", crt.wavelengths)["cmf"].values
+    for call in (lambda: display.primary_tristimulus(functions),
+                 lambda: metasim.tristimulus(display.spectra, functions),
+                 lambda: chromaticity_gamut(display, observer=functions),
+                 lambda: mismatch(display, display, functions, metasim.metamerism.primaries_and_secondaries())):
+        with pytest.raises(MetasimError, match=r"dims=\('xyz', 'wavelength'\)"):
+            call()

@@ -187,7 +187,7 @@ def tristimulus(
         spectra = as_spectra(spectra, wavelengths=grid, where="spectra")
     spectra = as_spectra(spectra, where="spectra", dims_example=("stimulus", "wavelength"))
     check_spectra(spectra, where="spectra", non_negative=False)
-    if is_colour_object(observers):
+    if is_colour_object(observers) or isinstance(observers, np.ndarray):
         observers = as_observer(observers, _wavelengths(spectra))
     if white is not None:
         white = as_spectra(white, wavelengths=_wavelengths(spectra), where="white")

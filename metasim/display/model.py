@@ -358,7 +358,7 @@ def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:
 def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
     """An observer Dataset (with ``cmf``) from a Dataset, a ``cmf`` DataArray, a standard name or
     colour-science colour-matching functions (put on the display's grid)."""
-    if is_colour_object(observer):
+    if is_colour_object(observer) or isinstance(observer, np.ndarray):
         observer = as_observer(observer, display.wavelengths.values if display is not None else None)
     if isinstance(observer, str):
         if observer not in STANDARD_OBSERVERS:

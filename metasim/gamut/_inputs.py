@@ -152,7 +152,7 @@ def gamut_inputs(primaries, observer=None):
         primaries = as_spectra(primaries, dim="primary", wavelengths=_grid(observer), where="primaries")
     elif isinstance(primaries, (np.ndarray, list, tuple)):
         primaries = _plain_primaries(primaries)
-    if is_colour_object(observer):
+    if is_colour_object(observer) or isinstance(observer, np.ndarray):
         observer = as_observer(observer, _grid(_spectra_of(primaries)) if not is_reference(primaries) else None)
     return primaries, observer
 

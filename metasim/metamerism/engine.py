@@ -62,6 +62,8 @@ def resolve_observers(observers, wavelengths) -> xr.Dataset:
     functions (``XYZ_ColourMatchingFunctions``, put on the grid), or a list mixing names and
     colour-science objects (labelled by name).
     """
+    if isinstance(observers, np.ndarray):
+        as_observer(observers)  # refused, with how to label it
     if isinstance(observers, str) or is_colour_object(observers):
         observers = [observers]
     if isinstance(observers, (list, tuple)):
@@ -114,7 +116,7 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
                 f"{', '.join(STANDARD_OBSERVERS)}, population_mean, or an observer Dataset"
             )
         return standard_observer(calibration_observer, wavelengths), calibration_observer
-    if is_colour_object(calibration_observer):
+    if is_colour_object(calibration_observer) or isinstance(calibration_observer, np.ndarray):
         calibration_observer = as_observer(calibration_observer, wavelengths)
     if isinstance(calibration_observer, xr.Dataset) and "cmf" in calibration_observer:
         ds = calibration_observer

@@ -15,10 +15,11 @@ the Dataset's attributes travel with it, so converting that object back gives th
 
 from __future__ import annotations
 
+import numpy as np
 import xarray as xr
 
 from metasim.errors import ObserverError
-from metasim.spectra.convert import METADATA, from_colour, is_colour_spectrum, spectra_to_colour
+from metasim.spectra.convert import METADATA, from_colour, is_colour_spectrum, spectra_to_colour, unlabelled_message
 
 _ATTRS = {"cmf": {"units": "1", "long_name": "colour-matching functions"},
           "lms": {"units": "1", "long_name": "cone fundamentals (energy-based, peak-normalised)"}}
@@ -61,9 +62,13 @@ def observer_from_colour(obj, wavelengths=None) -> xr.Dataset:
 
 def as_observer(obj, wavelengths=None):
     """An observer argument at a public entry: colour-science objects become observer Datasets on
-    ``wavelengths`` (see :func:`observer_from_colour`); anything else is returned unchanged."""
+    ``wavelengths`` (see :func:`observer_from_colour`); a plain array is refused with how to label
+    it; anything else is returned unchanged."""
     if is_colour_observer(obj):
         return observer_from_colour(obj, wavelengths)
+    if isinstance(obj, np.ndarray):
+        raise ObserverError(unlabelled_message("observer", ("xyz", "wavelength")) +
+                            " and pass xarray.Dataset({'cmf': that_array}), or a standard observer name")
     if is_colour_spectrum(obj):
         raise ObserverError(
             f"a colour-science {type(obj).__name__} is not an observer; give XYZ_ColourMatchingFunctions "
