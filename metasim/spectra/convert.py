@@ -86,7 +86,7 @@ def _from_collection(obj, wavelengths, dim, units, long_name, where) -> xr.DataA
     labels = [str(key) for key, _ in items]
     if len(set(labels)) != len(labels):
         raise SpectrumError(f"{where}: names {labels} repeat; each spectral distribution needs a unique name")
-    first = from_colour(items[0][1], wavelengths, units=units, long_name=long_name, where=where)
+    first = from_colour(items[0][1], None, units=units, long_name=long_name, where=where)
     grid = first.coords["wavelength"]
     parts = [first] + [from_colour(sd, grid, units=units, long_name=long_name, where=where) for _, sd in items[1:]]
     label_dim = dim or "channel"
@@ -95,6 +95,10 @@ def _from_collection(obj, wavelengths, dim, units, long_name, where) -> xr.DataA
     array.attrs = {k: v for k, v in first.attrs.items() if k != "source"}
     array.attrs["source"] = f"colour-science spectral distributions {labels[0]!r} ... ({len(labels)})"
     array.name = label_dim
+    if wavelengths is not None and not same_grid(array, wavelengths):  # one resampling, one warning at most
+        source = _grid_text(grid.values)
+        array = resample(array, wavelengths)
+        array.attrs["resampled_from"] = source
     return array
 
 
