@@ -13,6 +13,12 @@ grid integral shows exactly what the grid keeps; the other shapes peak at 1). Di
 (:func:`metasim.display.calibrate_white`) rescales primaries afterwards, so the absolute level
 here only matters for uncalibrated designs.
 
+Energy outside the grid: every parametric emitter computes the share of its model's energy that
+falls outside the wavelength grid; more than 1 % is an error naming the primary, its peak and the
+share lost, unless ``allow_outside_grid=True`` (then a warning states the share) — the rule measured
+files follow too (:func:`metasim.spectra.check_energy_on_grid`). A 200 nm or 835 nm line on the
+390-830 nm grid is therefore refused instead of becoming a rescaled comb or an 830 nm line.
+
 Layer: imports only :mod:`metasim.spectra` and :mod:`metasim.errors`.
 """
 
@@ -24,12 +30,13 @@ from typing import Sequence
 
 import numpy as np
 import xarray as xr
-from scipy.special import erf
+from scipy.special import erf, ndtr
 
 from metasim.errors import SpectrumError
 from metasim.spectra import (
     RADIANCE_UNITS,
     WAVELENGTH_ATTRS,
+    check_energy_on_grid,
     check_spectra,
     check_wavelengths,
     default_grid,
@@ -93,10 +100,22 @@ def _labels(name, count: int, default: Sequence[str]) -> list[str]:
     return labels
 
 
+def _peak_details(peaks, widths, width_name: str) -> list[str]:
+    return [f" (peak {p:g} nm, {width_name} {w:g} nm)" for p, w in zip(np.atleast_1d(peaks), np.atleast_1d(widths))]
+
+
+def _gaussian_inside(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """Share of a unit normal distribution between the standard scores ``lo`` and ``hi``."""
+    return np.clip(ndtr(hi) - ndtr(lo), 0.0, 1.0)
+
+
 def _finish(values: np.ndarray, wl: np.ndarray, labels, *, radiance, normalise: str, long_name: str,
-            model: str, **attrs) -> xr.DataArray:
+            model: str, lost=None, details=None, allow_outside_grid: bool = False, where: str = "emitter",
+            **attrs) -> xr.DataArray:
     if normalise not in NORMALISATIONS:
         raise SpectrumError(f"normalise={normalise!r} is not known; allowed: {', '.join(NORMALISATIONS)}")
+    if lost is not None:  # share of each model spectrum's energy outside the grid: the one rule
+        check_energy_on_grid(lost, labels, wl, where=where, allow=allow_outside_grid, details=details)
     radiance = np.broadcast_to(np.asarray(radiance, dtype=float), (values.shape[0],))
     if not np.isfinite(radiance).all() or (radiance < 0).any():
         raise SpectrumError(f"radiance={radiance.tolist()} is not allowed; must be finite and >= 0")
@@ -148,6 +167,7 @@ def laser_line(
     radiance=1.0,
     normalise: str = "total",
     name=None,
+    allow_outside_grid: bool = False,
 ) -> xr.DataArray:
     """Laser line(s) of a given full width at half maximum, integrated over the grid.
 
@@ -169,6 +189,9 @@ def laser_line(
     profile : {"gaussian", "lorentzian"}
     radiance, normalise, name
         See the module docstring.
+    allow_outside_grid : bool
+        Accept, with a warning, a line that loses more than 1 % of its energy outside the grid
+        (an error otherwise): the share lost is 1 − the grid integral of the unit-area line.
 
     References
     ----------
@@ -191,11 +214,14 @@ def laser_line(
     values = np.clip(second / (step * step), 0.0, None)
     labels = _labels(name, count, [f"laser {c:g} nm" for c in p["peak_nm"]])
     return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+                   lost=1.0 - values.sum(axis=-1) * step, where="laser_line", allow_outside_grid=allow_outside_grid,
+                   details=_peak_details(p["peak_nm"], p["linewidth_nm"], "line width"),
                    model=f"laser line, {profile} profile integrated over the grid's hat functions",
                    peak_nm=p["peak_nm"].tolist(), linewidth_nm=p["linewidth_nm"].tolist())
 
 
-def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None) -> xr.DataArray:
+def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None,
+             allow_outside_grid: bool = False) -> xr.DataArray:
     """Gaussian band(s) in wavelength, sampled at the grid points.
 
     ``S(λ) ∝ exp(−(λ − peak)² / (2σ²))`` with ``σ = fwhm / (2√(2 ln 2))`` — the same shape as
@@ -212,7 +238,10 @@ def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str
     sigma = p["fwhm_nm"][:, None] * _FWHM_TO_SIGMA
     values = np.exp(-((wl[None, :] - p["peak_nm"][:, None]) ** 2) / (2.0 * sigma**2))
     labels = _labels(name, count, [f"gaussian {c:g} nm" for c in p["peak_nm"]])
+    inside = _gaussian_inside((wl[0] - p["peak_nm"]) / sigma[:, 0], (wl[-1] - p["peak_nm"]) / sigma[:, 0])
     return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+                   lost=1.0 - inside, where="gaussian", allow_outside_grid=allow_outside_grid,
+                   details=_peak_details(p["peak_nm"], p["fwhm_nm"], "FWHM"),
                    model="Gaussian band in wavelength", peak_nm=p["peak_nm"].tolist(), fwhm_nm=p["fwhm_nm"].tolist())
 
 
@@ -225,6 +254,7 @@ def ohno_led(
     radiance=1.0,
     normalise: str = "total",
     name=None,
+    allow_outside_grid: bool = False,
 ) -> xr.DataArray:
     """Single-colour LED spectrum of Ohno (2005).
 
@@ -252,10 +282,32 @@ def ohno_led(
     g = np.exp(-(((wl[None, :] - centre) / width) ** 2))
     values = (g + 2.0 * g**5) / 3.0
     labels = _labels(name, count, [f"LED {c:g} nm" for c in p["peak_nm"]])
+    lost = 1.0 - _ohno_inside(wl[0], wl[-1], p["peak_nm"], p["half_spectral_width_nm"],
+                              p["long_side_half_spectral_width_nm"])
     return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+                   lost=lost, where="ohno_led", allow_outside_grid=allow_outside_grid,
+                   details=_peak_details(p["peak_nm"], p["half_spectral_width_nm"], "half spectral width"),
                    model="Ohno (2005) LED", peak_nm=p["peak_nm"].tolist(),
                    half_spectral_width_nm=p["half_spectral_width_nm"].tolist(),
                    long_side_half_spectral_width_nm=p["long_side_half_spectral_width_nm"].tolist())
+
+
+def _ohno_inside(lo: float, hi: float, centre: np.ndarray, short: np.ndarray, long: np.ndarray) -> np.ndarray:
+    """Share of an Ohno (2005) LED's energy between ``lo`` and ``hi`` nm (analytic).
+
+    Each side of the peak is (g + 2 g⁵)/3 with g = exp(−(u/w)²): Gaussians of standard deviation
+    w/√2 and w/√10, weighted by their areas w√π·(1 and 2/√5)/3 per full line, halved per side.
+    """
+    def side(a, b, w):  # ∫_a^b (g + 2 g⁵)/3 du for one side's width w, a <= b
+        one = w * math.sqrt(math.pi) / 2 * (erf(b / w) - erf(a / w))
+        five = w / math.sqrt(5) * math.sqrt(math.pi) / 2 * (erf(b * math.sqrt(5) / w) - erf(a * math.sqrt(5) / w))
+        return (one + 2 * five) / 3
+
+    a, b = lo - centre, hi - centre
+    left = side(np.minimum(a, 0.0), np.minimum(b, 0.0), short)
+    right = side(np.maximum(a, 0.0), np.maximum(b, 0.0), long)
+    total = side(-np.inf, 0.0, short) + side(0.0, np.inf, long)
+    return np.clip((left + right) / total, 0.0, 1.0)
 
 
 def _energy_gaussian(wl: np.ndarray, peak_nm: np.ndarray, fwhm_nm: np.ndarray) -> np.ndarray:
@@ -267,7 +319,16 @@ def _energy_gaussian(wl: np.ndarray, peak_nm: np.ndarray, fwhm_nm: np.ndarray) -
     return np.exp(-((nu - nu_centre) ** 2) / (2.0 * sigma**2)) * nu**2
 
 
-def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None) -> xr.DataArray:
+def _energy_gaussian_inside(lo: float, hi: float, peak_nm: np.ndarray, fwhm_nm: np.ndarray) -> np.ndarray:
+    """Share of a :func:`quantum_dot` band's energy between ``lo`` and ``hi`` nm: a normal
+    distribution in wavenumber (∫ S dλ = ∫ exp(−(ν − ν_c)²/(2σ²)) dν)."""
+    sigma = (fwhm_nm / peak_nm**2) * _FWHM_TO_SIGMA
+    nu_centre = 1.0 / peak_nm - 2.0 * sigma**2 * peak_nm
+    return _gaussian_inside((1.0 / hi - nu_centre) / sigma, (1.0 / lo - nu_centre) / sigma)
+
+
+def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None,
+                allow_outside_grid: bool = False) -> xr.DataArray:
     """Quantum-dot emission peak(s): a Gaussian in photon energy, expressed per nm.
 
     The emission of a quantum-dot ensemble is broadened mainly by the spread of dot sizes, which
@@ -288,6 +349,8 @@ def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: 
     values = _energy_gaussian(wl, p["peak_nm"], p["fwhm_nm"])
     labels = _labels(name, count, [f"QD {c:g} nm" for c in p["peak_nm"]])
     return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+                   lost=1.0 - _energy_gaussian_inside(wl[0], wl[-1], p["peak_nm"], p["fwhm_nm"]), where="quantum_dot",
+                   allow_outside_grid=allow_outside_grid, details=_peak_details(p["peak_nm"], p["fwhm_nm"], "FWHM"),
                    model="quantum dot: Gaussian in photon energy", peak_nm=p["peak_nm"].tolist(),
                    fwhm_nm=p["fwhm_nm"].tolist())
 
@@ -303,6 +366,7 @@ def phosphor_white_led(
     radiance=1.0,
     normalise: str = "total",
     name: str = "white LED",
+    allow_outside_grid: bool = False,
 ) -> xr.DataArray:
     """Phosphor-converted white LED: a blue pump plus a broad phosphor band (one primary).
 
@@ -319,8 +383,10 @@ def phosphor_white_led(
     wl = _grid(wavelengths)
     if not (math.isfinite(phosphor_to_pump) and phosphor_to_pump >= 0):
         raise SpectrumError(f"phosphor_to_pump={phosphor_to_pump!r} is not allowed; must be finite and >= 0")
-    pump = ohno_led(pump_peak_nm, pump_half_spectral_width_nm, wl).values[0]
-    phosphor = quantum_dot(phosphor_peak_nm, phosphor_fwhm_nm, wl).values[0]  # each integrates to 1
+    pump = ohno_led(pump_peak_nm, pump_half_spectral_width_nm, wl, name=f"{name} pump",
+                    allow_outside_grid=allow_outside_grid).values[0]
+    phosphor = quantum_dot(phosphor_peak_nm, phosphor_fwhm_nm, wl, name=f"{name} phosphor",
+                           allow_outside_grid=allow_outside_grid).values[0]  # each integrates to 1
     values = (pump + phosphor_to_pump * phosphor)[None, :]
     return _finish(values, wl, [name], radiance=radiance, normalise=normalise, long_name="spectral radiance",
                    model="phosphor-converted white LED (Ohno pump + energy-Gaussian phosphor)",
@@ -438,6 +504,7 @@ def measured_spectra(
     *,
     units: str = RADIANCE_UNITS,
     long_name: str = "spectral radiance",
+    allow_outside_grid: bool = False,
 ) -> xr.DataArray:
     """Measured spectra (emission, or transmittance with ``units="1"``) from a CSV file.
 
@@ -445,7 +512,8 @@ def measured_spectra(
     column, one column per primary); the result has dims ``primary`` × ``wavelength`` and is
     resampled onto ``wavelengths`` when given (linear inside the measured range, zero outside).
     """
-    array = read_spectra_csv(path, wavelengths=wavelengths, units=units, long_name=long_name, dim="primary")
+    array = read_spectra_csv(path, wavelengths=wavelengths, units=units, long_name=long_name, dim="primary",
+                             allow_outside_grid=allow_outside_grid)
     array.name = "spectra"
     return array
 

@@ -24,6 +24,10 @@ class SpectrumError(MetasimError, ValueError):
     """A spectrum, a wavelength grid or a spectral file is not usable."""
 
 
+class EnergyOutsideGridError(SpectrumError):
+    """A spectrum loses more than the allowed share of its energy outside the wavelength grid."""
+
+
 class GridMismatchError(SpectrumError):
     """Two spectral quantities are sampled on different wavelength grids."""
 
@@ -68,6 +72,10 @@ class FittingError(MetasimError, ValueError):
     """Colour-matching data cannot be fitted: malformed, out of range, or too few values."""
 
 
+class NotEnoughMemoryError(MetasimError, MemoryError):
+    """A run would need more memory than the machine has available (estimated before it starts)."""
+
+
 class FileFormatError(MetasimError, ValueError):
     """A file cannot be read: missing, empty, or not in the expected layout."""
 
@@ -89,6 +97,7 @@ __all__ = [
     "MetasimWarning",
     "DuplicateStimulusWarning",
     "SpectrumError",
+    "EnergyOutsideGridError",
     "GridMismatchError",
     "ObserverError",
     "DisplayError",
@@ -100,6 +109,7 @@ __all__ = [
     "StoreIntegrityError",
     "ChunkSetAsideWarning",
     "FittingError",
+    "NotEnoughMemoryError",
     "FileFormatError",
     "OutputError",
     "OutputExistsError",

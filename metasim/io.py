@@ -398,7 +398,8 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
         with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False) as handle:
             ds = handle.load()
     except (OSError, ValueError, RuntimeError, KeyError, IndexError) as exc:
-        raise FileFormatError(f"{path}: not a readable netCDF4 file ({exc})") from None
+        reason = getattr(exc, "strerror", None) or str(exc).replace(f": {str(path.resolve())!r}", "")
+        raise FileFormatError(f"{path}: not a readable netCDF4 file ({reason})") from None
     ds.attrs = _decode_attrs(ds.attrs, str(path))
     for name in list(ds.variables):
         ds[name].attrs = _decode_attrs(ds[name].attrs, f"{path}: variable {name!r}")

@@ -72,7 +72,7 @@ def test_dataset_round_trip_and_designs(tmp_path):
 
 
 def test_render_is_additive_and_refuses_bad_drives():
-    display = make_display(emitters.gaussian([450, 540, 620], 25), black=emitters.gaussian(550, 200).isel(primary=0) * 1e-3)
+    display = make_display(emitters.gaussian([450, 540, 620], 25), black=emitters.gaussian(550, 150).isel(primary=0) * 1e-3)
     drive = xr.DataArray([[0.2, 0.5, 1.0]], dims=("stimulus", "primary"))
     out = display.render(drive)
     expected = display.black + (drive.isel(stimulus=0).values[:, None] * display.spectra.values).sum(0)
@@ -89,7 +89,7 @@ def test_observed_xyz_equals_colour_science_on_the_rendered_spectra():
     import metasim
 
     display = make_display(emitters.gaussian([450, 540, 620], 25),
-                           black=emitters.gaussian(550, 200).isel(primary=0) * 1e-3, name="three LEDs")
+                           black=emitters.gaussian(550, 150).isel(primary=0) * 1e-3, name="three LEDs")
     designs = stack_designs([display, make_display(emitters.laser_line([455, 532, 638], 2.0))], design=[0, 1])
     observers = metasim.observer_population(3, seed=7, age_years=(25, 70))
     rng = np.random.default_rng(2)

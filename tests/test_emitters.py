@@ -5,8 +5,8 @@ import pytest
 import xarray as xr
 
 from metasim import emitters
-from metasim.errors import SpectrumError
-from metasim.spectra import RADIANCE_UNITS, wavelength_grid, write_spectra_csv
+from metasim.errors import EnergyOutsideGridError, SpectrumError
+from metasim.spectra import RADIANCE_UNITS, SpectralEnergyWarning, wavelength_grid, write_spectra_csv
 
 
 def test_ohno_led_equals_colour_science():
@@ -89,3 +89,65 @@ def test_bad_emitter_input():
         emitters.gaussian([450, 550], [10, 20, 30])
     with pytest.raises(SpectrumError, match="transmittance"):
         emitters.band_pass_filter(500, 50, peak_transmittance=1.5)
+
+
+def _share_outside_by_quadrature(shape, kept=None, lo=390.0, hi=830.0, reach=(200.0, 2000.0)) -> float:
+    """Share of a continuous shape's area the grid [lo, hi] does not keep, by scipy's adaptive
+    quadrature; ``kept(x)`` weighs what the grid keeps of wavelength x (default 1 inside, 0 outside)."""
+    from scipy.integrate import quad
+
+    def integral(f, a, b):
+        return quad(f, a, b, limit=400, epsabs=0.0, epsrel=1e-10)[0]
+
+    edges = [reach[0], lo - 1.0, lo, hi, hi + 1.0, reach[1]]
+    total = sum(integral(shape, a, b) for a, b in zip(edges[:-1], edges[1:]))
+    weight = kept or (lambda x: 1.0 if lo <= x <= hi else 0.0)
+    inside = sum(integral(lambda x: shape(x) * weight(x), a, b) for a, b in zip(edges[1:-2], edges[2:-1]))
+    return 1.0 - inside / total
+
+
+def _hats(x, lo=390.0, hi=830.0, step=1.0):
+    """The sum of the grid's hat functions: 1 inside, falling to 0 one step beyond each end."""
+    return float(np.clip(1.0 - max(lo - x, x - hi, 0.0) / step, 0.0, 1.0))
+
+
+_SIGMA = 1 / 2.3548200450309493  # Gaussian sigma per nm of FWHM
+
+
+@pytest.mark.parametrize("make, shape, kept", [
+    (lambda **kw: emitters.gaussian(400, 20, **kw),
+     lambda x: np.exp(-((x - 400) ** 2) / (2 * (20 * _SIGMA) ** 2)), None),
+    (lambda **kw: emitters.ohno_led(398, 12, long_side_half_spectral_width_nm=20, **kw),
+     lambda x: (lambda g: (g + 2 * g ** 5) / 3)(np.exp(-(((x - 398) / (12 if x < 398 else 20)) ** 2))), None),
+    (lambda **kw: emitters.quantum_dot(395, 40, **kw),
+     lambda x: (lambda s, nc: np.exp(-((1 / x - nc) ** 2) / (2 * s ** 2)) / x ** 2)(
+         40 / 395 ** 2 * _SIGMA, 1 / 395 - 2 * (40 / 395 ** 2 * _SIGMA) ** 2 * 395), None),
+    (lambda **kw: emitters.laser_line(828.0, 3.0, **kw),
+     lambda x: np.exp(-((x - 828.0) ** 2) / (2 * (3.0 * _SIGMA) ** 2)), _hats),
+])
+def test_energy_outside_the_grid_is_refused_or_stated(make, shape, kept):
+    expected = _share_outside_by_quadrature(shape, kept)  # scipy.integrate.quad of the model's own formula
+    assert expected > 0.01
+    with pytest.raises(EnergyOutsideGridError, match=r"loses .* % of its energy outside .* allowed: at most 1 %"):
+        make()
+    with pytest.warns(SpectralEnergyWarning) as seen:
+        spectrum = make(allow_outside_grid=True)
+    share = float(str(seen[0].message).split(" loses ")[1].split(" %")[0]) / 100
+    assert share == pytest.approx(expected, abs=5e-5)  # the message rounds to 0.01 %
+    assert np.isclose(spectrum.values.sum(), 1.0)  # the part on the grid carries the stated radiance
+
+
+def test_lines_far_outside_the_grid_have_no_emission_even_when_allowed():
+    for peak in (200.0, 835.0, 1200.0):
+        with pytest.raises(EnergyOutsideGridError, match=f"peak {peak:g} nm.*no emission"):
+            emitters.laser_line(peak, 1.0, allow_outside_grid=True)  # not a comb rescaled to full power
+    assert emitters.laser_line(639.0, 1.0, profile="lorentzian").sizes["primary"] == 1  # 0.14 % lost: accepted
+
+
+def test_measured_primaries_follow_the_same_rule(tmp_path):
+    path = tmp_path / "uv.csv"
+    path.write_text("wavelength_nm,V\n350,1\n400,1\n450,0\n")
+    with pytest.raises(EnergyOutsideGridError, match="uv.csv.*V.*loses 53.33 %"):
+        emitters.measured_spectra(path, wavelength_grid())  # trapezoids: 40 of the 75 units of area (geometry)
+    with pytest.warns(SpectralEnergyWarning):
+        emitters.measured_spectra(path, wavelength_grid(), allow_outside_grid=True)

@@ -214,10 +214,12 @@ def test_summaries_by_age_band_and_weights(reference, laser, stimuli, population
     ages = population["age_years"].values
     counts = [((ages >= lo) & (ages < lo + 10)).sum() for lo in (20, 30, 40, 50)] + [((ages >= 60) & (ages <= 70)).sum()]
     assert result["observers_per_age_band"].values.tolist() == counts  # counted with numpy
-    given = mismatch(reference, laser, population, stimuli, age_bands=(20, 30, 40, 50, 60, 70, 80))
-    assert list(given.age_band.values) == ["20-29", "30-39", "40-49", "50-59", "60-69", "70-80"]
+    given = mismatch(reference, laser, population, stimuli, age_bands=(20, 30, 40, 50, 60, 65, 70))
+    assert list(given.age_band.values) == ["20-29", "30-39", "40-49", "50-59", "60-64", "65-70"]
     np.testing.assert_array_equal(given["delta_e_2000_by_age"].isel(age_band=slice(0, 4)).values,
                                   by_age.isel(age_band=slice(0, 4)).values)
+    with pytest.raises(MetasimError, match="age band 70-80 .* outside the observers' ages"):  # would hold no one
+        mismatch(reference, laser, population, stimuli, age_bands=(20, 40, 60, 70, 80))
     categories = metasim.observer_categories(population, 4, seed=2)
     weighted = mismatch(reference, laser, categories, stimuli)
     de = weighted["delta_e_2000"].values
@@ -298,3 +300,21 @@ def test_designs_are_evaluated_in_one_call(reference, population, stimuli):
         alone = mismatch(reference, design, population.isel(observer=slice(0, 50)), stimuli)
         np.testing.assert_allclose(together["delta_e_2000"].isel(design=i).values, alone["delta_e_2000"].values,
                                    atol=1e-9)  # the same computation, batched (no outside reference needed)
+
+
+@pytest.mark.parametrize("thresholds", [(), (float("nan"),), (-1.0,), ("two",)])
+def test_thresholds_must_be_finite_numbers(thresholds, reference, laser, population, stimuli):
+    with pytest.raises(MetasimError, match="thresholds=.* is not allowed"):
+        mismatch(reference, laser, population.isel(observer=slice(0, 5)), stimuli, thresholds=thresholds)
+
+
+@pytest.mark.parametrize("luminance, white, expected", [
+    (1e12, "D65", r"luminance=1000000000000.0 cd/m2 .* at most 100000 cd/m2"),
+    (1e300, "D65", r"luminance=1e\+300 cd/m2 .* at most 100000 cd/m2"),
+    (100.0, (0.3127, float("nan")), r"\(x, y\) = \(0.3127, nan\) is not allowed"),
+])
+def test_calibration_refuses_absurd_luminance_and_nan_whites(luminance, white, expected, laser):
+    from metasim.errors import DisplayError
+
+    with pytest.raises(DisplayError, match=expected):  # not "white cannot be reached"
+        metasim.calibrate_white(laser, "cie1931_2", white=white, luminance=luminance)

@@ -171,3 +171,28 @@ def test_k_equal_n_and_bad_k(mixed):
         observer_categories(small, 0, seed=0)
     with pytest.raises(ObserverError, match="cmf"):
         observer_categories(small["lms"], 2, seed=0)
+
+
+def test_observer_checks_accept_what_metasim_makes(large):
+    from metasim.observers import check_observers
+    from metasim.observers.files import X_BAR_NEGATIVE_SHARE
+
+    assert check_observers(large, wavelengths=COARSE) is large  # 20,000 observers aged 20-80, 1-10 degrees
+    x_bar = large["cmf"].sel(xyz="X")
+    dip = float((x_bar.min("wavelength") / x_bar.max("wavelength")).min())
+    assert -X_BAR_NEGATIVE_SHARE < dip < 0  # the CIE 170-2 transform dips below zero; the allowance covers it
+    check_observers(observer_categories(large.isel(observer=slice(0, 400)), 5, seed=1))
+    for name in metasim.observers.STANDARD_OBSERVERS:
+        check_observers(metasim.standard_observer(name).expand_dims(observer=[name]))
+
+
+def test_a_population_too_large_for_the_memory_is_refused_first(monkeypatch):
+    from metasim.errors import NotEnoughMemoryError
+    from metasim.metamerism.engine import check_mismatch_memory
+
+    monkeypatch.setattr("metasim._memory.available_memory", lambda: 2e9)
+    with pytest.raises(NotEnoughMemoryError, match=r"10,000,000 observers needs about 705.6 GB .* 2.0 GB available"):
+        observer_population(10_000_000, seed=1)  # 441 wavelengths x 160 bytes each (estimate, measured)
+    with pytest.raises(NotEnoughMemoryError, match="1,000 observers x 100,000 stimuli x 2 designs"):
+        check_mismatch_memory(1000, 100_000, 2)
+    check_mismatch_memory(1000, 100, 2)  # 32 MB: not even checked

@@ -121,7 +121,7 @@ def test_combining_checks_every_chunk(tmp_path, reference_sweep):
 
 @pytest.mark.parametrize("edit, expected", [
     (lambda m: m["chunks"].pop(), "2 chunks listed"),
-    (lambda m: m.update(chunk_size="1"), "chunk_size = '1' is not a int"),
+    (lambda m: m.update(chunk_size="1"), "chunk_size = '1' is not a whole number"),
     (lambda m: m["chunks"][1].update(start=0), "chunk entry 1"),
     (lambda m: m["chunks"][0].update(sha256="beef"), "not a SHA-256"),
     (lambda m: m.update(design_count=7), "chunks listed"),

@@ -47,6 +47,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import math
 import sys
 import warnings
 from collections.abc import Sequence
@@ -54,7 +55,7 @@ from pathlib import Path
 
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
-from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files
+from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range
 from metasim.errors import MetasimError
 
 PROG = "metasim"
@@ -93,7 +94,8 @@ CSV_KINDS = LibraryChoices("metasim.metamerism.stimuli", "KINDS")
 
 
 #: library keyword hints in messages, as the command-line option that does the same
-CLI_OPTIONS = {"replace=True": "--replace", "wait=True": "--wait"}
+CLI_OPTIONS = {"replace=True": "--replace", "wait=True": "--wait", "allow_outside_grid=True": "--allow-outside-grid",
+               "extrapolate=True": "--extrapolate"}
 
 
 def _for_cli(text) -> str:
@@ -131,7 +133,8 @@ def cmd_observers(args) -> int:
     out = Path(args.out)
     if out.suffix != ".nc":
         raise MetasimError(f"--out {out}: give a netCDF file name ending in .nc")
-    population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories)
+    population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories,
+                                  extrapolate=args.extrapolate)
     save_dataset(population, out, replace=args.replace)
     what = f"{args.categories} categories of {args.size} observers" if args.categories else f"{args.size} observers"
     print(f"wrote {out}: {what}, ages {args.ages}, field size {args.field_size} deg, seed {args.seed}")
@@ -142,17 +145,24 @@ def cmd_observers(args) -> int:
     return 0
 
 
-def _observers(args):
-    from metasim.cli.study import build_population
-    from metasim.io import load_dataset
+def _observer_file(args):
+    """The --observers file, read and checked in full before anything is computed (or None)."""
+    if not getattr(args, "observers", None):
+        return None
+    from metasim.observers import read_observers
+    from metasim.spectra import default_grid
 
-    if args.observers:
-        population = load_dataset(args.observers)
-        if not hasattr(population, "data_vars") or "cmf" not in population or "observer" not in population.dims:
-            raise MetasimError(f"{args.observers}: not an observer file (need 'cmf' with an 'observer' dim); "
-                               f"make one with '{PROG} observers'")
-        return population
-    return build_population(args.size, args.seed, args.ages, args.field_size)
+    return read_observers(args.observers, default_grid())
+
+
+def _observers(args):
+    """The observers of a study or sweep: the --observers file (checked first thing by the command,
+    :func:`_observer_file`), or a drawn population."""
+    from metasim.cli.study import build_population
+
+    if getattr(args, "observer_set", None) is not None:
+        return args.observer_set
+    return build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate)
 
 
 def _reference(args, specs: dict):
@@ -160,7 +170,7 @@ def _reference(args, specs: dict):
 
     if args.reference in (None, "objects"):
         return "objects"
-    display, spec = load_display(args.reference)
+    display, spec = load_display(args.reference, allow_outside_grid=args.allow_outside_grid)
     specs[display.name] = spec
     return display
 
@@ -169,12 +179,7 @@ def _age_bands(args):
     """The --age-bands edges, or the library's default policy ("decades") when not given."""
     from metasim.metamerism.summary import DECADES
 
-    if not args.age_bands:
-        return DECADES
-    try:
-        return [float(v) for v in args.age_bands.split(",")]
-    except ValueError:
-        raise MetasimError(f"--age-bands {args.age_bands!r}: give ascending ages in years, e.g. 20,40,60,80") from None
+    return args.age_bands or DECADES
 
 
 def _study(args, designs: list, reference, specs: dict) -> int:
@@ -192,6 +197,10 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     if reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
         raise MetasimError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
                            "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
+    from metasim.metamerism.engine import check_mismatch_memory
+
+    size = args.observer_set.sizes["observer"] if getattr(args, "observer_set", None) is not None else args.size
+    check_mismatch_memory(size, stimuli.sizes["stimulus"], 1)  # one design at a time; before drawing observers
     observers = _observers(args)
     steps = len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
     progress = Progress(steps, quiet=args.quiet)
@@ -216,8 +225,9 @@ def _study(args, designs: list, reference, specs: dict) -> int:
 def cmd_evaluate(args) -> int:
     from metasim.cli.specs import load_display
 
+    args.observer_set = _observer_file(args)  # before any computing
     specs = {}
-    design, spec = load_display(args.design)
+    design, spec = load_display(args.design, allow_outside_grid=args.allow_outside_grid)
     specs[design.name] = spec
     return _study(args, [design], _reference(args, specs), specs)
 
@@ -225,9 +235,10 @@ def cmd_evaluate(args) -> int:
 def cmd_compare(args) -> int:
     from metasim.cli.specs import load_display
 
+    args.observer_set = _observer_file(args)  # before any computing
     specs = {}
-    first, first_spec = load_display(args.first)
-    second, second_spec = load_display(args.second)
+    first, first_spec = load_display(args.first, allow_outside_grid=args.allow_outside_grid)
+    second, second_spec = load_display(args.second, allow_outside_grid=args.allow_outside_grid)
     specs[first.name], specs[second.name] = first_spec, second_spec
     if args.reference is None:  # the second judged against the first
         return _study(args, [second], first, specs)
@@ -236,11 +247,15 @@ def cmd_compare(args) -> int:
 
 def cmd_report(args) -> int:
     from metasim.io import load_dataset
-    from metasim.report import write_report
+    from metasim.report import report_kind, write_report
 
     data = load_dataset(args.result)
     if not hasattr(data, "data_vars"):
         raise MetasimError(f"{args.result}: holds a single array, not a metasim result Dataset")
+    try:
+        report_kind(data)
+    except MetasimError as exc:
+        raise MetasimError(f"{args.result}: {exc}") from None
     out = args.outputs[0]
     print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name, replace=args.replace, inputs=args.inputs)}")
     return 0
@@ -279,7 +294,8 @@ def cmd_sweep(args) -> int:
     from metasim.sweep import run_sweep
 
     spec = read_sweep_spec(args.spec)
-    designs, _ = sweep_designs(spec)
+    args.observer_set = _observer_file(args)  # before any computing
+    designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
     if args.reference is None and "reference" in spec:
         args.reference = spec["reference"] if spec["reference"] == "objects" else str(relative(spec, spec["reference"]))
     reference = _reference(args, {})
@@ -426,15 +442,56 @@ REPLACE_HELP = {
 }
 
 
+def _whole(minimum: int):
+    """argparse type: a whole number >= ``minimum``."""
+    def whole(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if value < minimum:
+            raise argparse.ArgumentTypeError(f"{value} is not allowed; need a whole number >= {minimum}")
+        return value
+
+    return whole
+
+
+def _range(what: str):
+    """argparse type: N or LO-HI (kept as text; the library checks the model's range)."""
+    def number_or_range(text: str) -> str:
+        try:
+            parse_range(text, what)
+        except MetasimError as exc:
+            raise argparse.ArgumentTypeError(str(exc)) from None
+        return text
+
+    return number_or_range
+
+
+def _edges(text: str) -> list[float]:
+    """argparse type: ascending, finite age band edges ``20,40,60``."""
+    try:
+        edges = [float(v) for v in text.split(",")]
+    except ValueError:
+        edges = []
+    if len(edges) < 2 or not all(math.isfinite(e) for e in edges) or any(b <= a for a, b in zip(edges, edges[1:])):
+        raise argparse.ArgumentTypeError(f"{text!r}: give at least two ascending ages in years, e.g. 20,40,60,80")
+    return edges
+
+
 def _population_options(parser, observers_file: bool = True) -> None:
     group = parser.add_argument_group("observers")
     if observers_file:
         group.add_argument("--observers", metavar="FILE.nc", help="observer file from 'metasim observers' "
                            "(default: draw a population with the options below)")
-    group.add_argument("--size", type=int, default=1000, help="number of observers (default 1000)")
-    group.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
-    group.add_argument("--ages", default="20-70", help="age in years, N or LO-HI uniform (default 20-70)")
-    group.add_argument("--field-size", default="2", help="field size in degrees, N or LO-HI (default 2)")
+    group.add_argument("--size", type=_whole(1), default=1000, help="number of observers (default 1000)")
+    group.add_argument("--seed", type=_whole(0), default=1, help="random seed (default 1)")
+    group.add_argument("--ages", type=_range("age range"), default="20-70",
+                       help="age in years, N or LO-HI uniform (default 20-70; CIE 170-1 covers 20-80)")
+    group.add_argument("--field-size", type=_range("field size"), default="2",
+                       help="field size in degrees, N or LO-HI (default 2; CIE 170-1 covers 1-10)")
+    group.add_argument("--extrapolate", action="store_true",
+                       help="allow ages and field sizes outside the CIE 170-1 range (the model is then extrapolated)")
 
 
 def _study_options(parser) -> None:
@@ -460,7 +517,10 @@ def _matching_options(parser):
                        help="observer both sides are matched for: %(choices)s (default cie1931_2)")
     group.add_argument("--strategy", choices=STRATEGIES, default="min_norm", metavar="NAME",
                        help="drive strategy for more than 3 primaries: %(choices)s (default min_norm)")
-    group.add_argument("--age-bands", help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
+    group.add_argument("--age-bands", type=_edges, help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
+    group.add_argument("--allow-outside-grid", action="store_true",
+                       help="accept primaries and measured spectra that lose more than 1 %% of their energy outside "
+                       "the 390-830 nm grid (a warning states the share lost; default: stop, naming the spectrum)")
     return group
 
 
@@ -483,13 +543,14 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = add("demo", "run the embedded demo study end to end (figures, result file, HTML report)", cmd_demo)
     p.add_argument("--out", default="metasim-demo", help="output folder (default metasim-demo)")
-    p.add_argument("--size", type=int, default=1000, help="audience size (default 1000)")
-    p.add_argument("--seed", type=int, default=2024, help="random seed of the audience (default 2024)")
+    p.add_argument("--size", type=_whole(1), default=1000, help="audience size (default 1000)")
+    p.add_argument("--seed", type=_whole(0), default=2024, help="random seed of the audience (default 2024)")
 
     p = add("observers", "build a seeded observer population (or its categories) to a netCDF file", cmd_observers)
     p.add_argument("--out", required=True, help="netCDF file to write (.nc)")
     _population_options(p, observers_file=False)
-    p.add_argument("--categories", type=int, metavar="K", help="write K representative observer categories instead")
+    p.add_argument("--categories", type=_whole(1), metavar="K",
+                   help="write K representative observer categories instead (K >= 1)")
     p.add_argument("--report", metavar="FILE.html", help="also write an HTML report of the observers")
 
     p = add("evaluate", "evaluate one display design: gamut, extra-primary gain, mismatch against a reference",
@@ -511,10 +572,12 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--out", required=True, metavar="STORE", help="store folder (chunk files, manifest, sweep.nc); "
                    "an existing store of the same sweep resumes")
     p.add_argument("--reference", help="reference display spec (TOML) or 'objects' (default: the spec's, else objects)")
-    p.add_argument("--chunk-size", type=int, metavar="N", help="designs per chunk (default: the spec's, else automatic)")
+    p.add_argument("--chunk-size", type=_whole(1), metavar="N",
+                   help="designs per chunk (default: the spec's, else automatic)")
     p.add_argument("--scheduler", default="threads", help="serial, threads (default), dask-threads, or a dask "
                    "scheduler address such as tcp://host:8786")
-    p.add_argument("--workers", type=int, metavar="N", help="threads for threads / dask-threads (default: CPU count)")
+    p.add_argument("--workers", type=_whole(1), metavar="N",
+                   help="threads for threads / dask-threads (default: CPU count)")
     p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
     p.add_argument("--per-stimulus", action="store_true", default=None,
                    help="also keep every stimulus's statistics over observers, per design")

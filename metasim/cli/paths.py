@@ -14,6 +14,7 @@ spectra, display spec (with its CSV files), primary spectra and category file of
 
 from __future__ import annotations
 
+import math
 import tomllib
 from pathlib import Path
 
@@ -28,6 +29,20 @@ FIGURES_DIR = "figures"
 
 class SpecError(MetasimError, ValueError):
     """A display design spec or sweep spec cannot be read or names something metasim does not know."""
+
+
+def parse_range(text: str, what: str):
+    """``"20-70"`` → (20.0, 70.0); ``"32"`` → 32.0 (finite numbers; LO <= HI)."""
+    parts = str(text).split("-")
+    try:
+        values = [float(p) for p in parts]
+    except ValueError:
+        values = []
+    if len(values) not in (1, 2) or not all(math.isfinite(v) for v in values):
+        raise MetasimError(f"{what} {text!r} is not a number or a LO-HI range of finite numbers, e.g. 20-70")
+    if len(values) == 2 and values[0] > values[1]:
+        raise MetasimError(f"{what} {text!r}: LO {values[0]:g} is above HI {values[1]:g}; give LO-HI")
+    return values[0] if len(values) == 1 else tuple(values)
 
 
 def read_toml(path, what: str = "design spec") -> dict:
@@ -188,5 +203,5 @@ def check_command_files(args) -> None:
     check_outputs(outputs, inputs=inputs, replace=args.replace)
 
 
-__all__ = ["SpecError", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
+__all__ = ["SpecError", "parse_range", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
            "design_spec_inputs", "stimulus_files", "check_inputs", "command_files", "check_command_files"]

@@ -45,6 +45,8 @@ The display is then white-calibrated (:func:`metasim.display.calibrate_white`) t
 
 from __future__ import annotations
 
+import math
+import warnings
 from pathlib import Path
 
 from metasim import emitters
@@ -85,9 +87,16 @@ def _unknown(where: str, table: dict, allowed) -> None:
         raise SpecError(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
 
 
+def _allowed(spec: dict) -> bool:
+    """Whether spectra may lose more than 1 % of their energy outside the grid (load_display's option)."""
+    return bool(spec.get("_allow_outside_grid", False))
+
+
 def _number(where: str, key: str, value, *, positive: bool = True) -> float:
     if isinstance(value, bool) or not isinstance(value, (int, float)):
         raise SpecError(f"{where}: {key} = {value!r} is not a number")
+    if not math.isfinite(value):
+        raise SpecError(f"{where}: {key} = {value!r} is not allowed; need a finite number")
     if positive and value <= 0:
         raise SpecError(f"{where}: {key} = {value!r} is not allowed; need a number > 0")
     return float(value)
@@ -101,7 +110,7 @@ def _backlight(spec: dict, where: str, grid):
     if kind == "phosphor_white_led":
         _unknown(f"{where} [backlight]", table, ("type", *BACKLIGHT_KEYS))
         params = {k: _number(f"{where} [backlight]", k, v) for k, v in table.items() if k != "type"}
-        return emitters.phosphor_white_led(grid, **params)
+        return emitters.phosphor_white_led(grid, **params, allow_outside_grid=_allowed(spec))
     if kind == "measured":
         _unknown(f"{where} [backlight]", table, ("type", "file", "column"))
         spectra = _measured(spec, f"{where} [backlight]", table, grid)
@@ -117,7 +126,7 @@ def _measured(spec: dict, where: str, table: dict, grid):
     path = Path(file)
     if not path.is_absolute():
         path = Path(spec["_path"]).parent / path
-    return emitters.measured_spectra(path, grid)
+    return emitters.measured_spectra(path, grid, allow_outside_grid=_allowed(spec))
 
 
 def _column(spectra, column, where: str):
@@ -159,12 +168,15 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
                     "quantum_dot": emitters.quantum_dot}[kind]
         numbers = {k: (v if k == "profile" else _number(where, k, v)) for k, v in params.items()}
         peak = numbers.pop("peak_nm")
+        allow = {"allow_outside_grid": _allowed(spec)}
         if kind == "laser":
-            out = function(peak, numbers.pop("linewidth_nm", 0.1), grid, radiance=radiance, name=label, **numbers)
+            out = function(peak, numbers.pop("linewidth_nm", 0.1), grid, radiance=radiance, name=label, **numbers,
+                           **allow)
         elif kind == "led":
-            out = function(peak, numbers.pop("half_spectral_width_nm"), grid, radiance=radiance, name=label, **numbers)
+            out = function(peak, numbers.pop("half_spectral_width_nm"), grid, radiance=radiance, name=label, **numbers,
+                           **allow)
         else:
-            out = function(peak, numbers.pop("fwhm_nm"), grid, radiance=radiance, name=label)
+            out = function(peak, numbers.pop("fwhm_nm"), grid, radiance=radiance, name=label, **allow)
         out = out.isel(primary=0)
     return out.drop_vars([c for c in out.coords if c != "wavelength"]).rename(label)
 
@@ -233,15 +245,22 @@ def display_from_spec(spec: dict) -> Display:
     return display.replace(attrs={"spec_file": Path(where).name, "description": settings["description"]})
 
 
-def load_display(path) -> tuple[Display, dict]:
+def load_display(path, *, allow_outside_grid: bool = False) -> tuple[Display, dict]:
     """Read a spec file and build its display; returns the display and the spec (with ``_text``).
 
     Any error from building a display out of user-written values is reported as a
-    :class:`SpecError` naming the file.
+    :class:`SpecError` naming the file. ``allow_outside_grid`` accepts, with a warning, primaries
+    that lose more than 1 % of their energy outside the wavelength grid (an error otherwise).
     """
     spec = read_spec(path)
+    spec["_allow_outside_grid"] = bool(allow_outside_grid)
     try:
-        return display_from_spec(spec), spec
+        with warnings.catch_warnings(record=True) as seen:
+            warnings.simplefilter("always")
+            display = display_from_spec(spec)
+        for warning in seen:  # each warning once more, naming the spec file
+            warnings.warn(f"{path}: {warning.message}", warning.category, stacklevel=2)
+        return display, spec
     except MetasimError as exc:
         if isinstance(exc, SpecError):
             raise

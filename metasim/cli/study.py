@@ -10,6 +10,7 @@ import time
 
 import xarray as xr
 
+from metasim.cli.paths import parse_range
 from metasim.errors import MetasimError
 from metasim.metamerism import (
     cie_13_3_samples,
@@ -45,25 +46,12 @@ class Progress:
 
 # -- inputs ----------------------------------------------------------------------------------------
 
-def parse_range(text: str, what: str):
-    """``"20-70"`` → (20.0, 70.0); ``"32"`` → 32.0."""
-    parts = str(text).split("-")
-    try:
-        values = [float(p) for p in parts]
-    except ValueError:
-        raise MetasimError(f"{what} {text!r} is not a number or a LO-HI range") from None
-    if len(values) == 1:
-        return values[0]
-    if len(values) == 2:
-        return tuple(values)
-    raise MetasimError(f"{what} {text!r} is not a number or a LO-HI range")
-
-
-def build_population(size: int, seed: int, ages: str, field_size: str, categories: int | None = None) -> xr.Dataset:
+def build_population(size: int, seed: int, ages: str, field_size: str, categories: int | None = None, *,
+                     extrapolate: bool = False) -> xr.Dataset:
     """A seeded observer population (or its ``categories`` representative observers)."""
     population = observer_population(size, seed=seed, age_years=parse_range(ages, "age range"),
-                                     field_size_deg=parse_range(field_size, "field size"))
-    if categories:
+                                     field_size_deg=parse_range(field_size, "field size"), extrapolate=extrapolate)
+    if categories is not None:
         population = observer_categories(population, categories, seed=seed)
     return population
 
@@ -78,14 +66,17 @@ def build_stimuli(tokens: str, *, source: str = "bt709", csv_kind: str = "rgb") 
                 n = int(count) if count else None
             except ValueError:
                 raise MetasimError(f"stimulus set {token!r}: {count!r} is not a whole number") from None
-            if name == "ramp":
-                sets.append(neutral_ramp(n or 6, source=source))
-            elif name == "primaries":
-                sets.append(primaries_and_secondaries(source=source))
-            elif name == "cube":
-                sets.append(rgb_cube_grid(n or 3, source=source))
-            else:
-                sets.append(cie_13_3_samples())
+            try:
+                if name == "ramp":
+                    sets.append(neutral_ramp(n or 6, source=source))
+                elif name == "primaries":
+                    sets.append(primaries_and_secondaries(source=source))
+                elif name == "cube":
+                    sets.append(rgb_cube_grid(n or 3, source=source))
+                else:
+                    sets.append(cie_13_3_samples())
+            except MetasimError as exc:
+                raise MetasimError(f"stimulus set {token!r}: {exc}") from None
         elif token.lower().endswith(".csv"):
             sets.append(read_stimuli_csv(token, csv_kind, source=source))
         else:

@@ -119,7 +119,7 @@ def relative(spec: dict, value: str) -> Path:
     return relative_to(spec["_path"], value)
 
 
-def sweep_designs(spec: dict):
+def sweep_designs(spec: dict, *, allow_outside_grid: bool = False):
     """The designs of a sweep spec (:func:`metasim.sweep.design_grid`) and the base design spec, if any."""
     where = str(spec["_path"])
     vary = spec["vary"]
@@ -131,13 +131,13 @@ def sweep_designs(spec: dict):
         width = value_list(f"{where} [vary] width_nm", width)
     base, base_spec = None, None
     if "base" in spec:
-        base, base_spec = load_display(relative(spec, spec["base"]))
+        base, base_spec = load_display(relative(spec, spec["base"]), allow_outside_grid=allow_outside_grid)
     radiance = vary.get("radiance", 1.0)
     if isinstance(radiance, bool) or not isinstance(radiance, (int, float)) or radiance <= 0:
         raise SpecError(f"{where} [vary]: radiance = {radiance!r} is not allowed; need a number > 0")
     try:
         designs = design_grid(vary.get("kind", "laser"), peaks, width, base=base, radiance=float(radiance),
-                              profile=vary.get("profile", "gaussian"))
+                              profile=vary.get("profile", "gaussian"), allow_outside_grid=allow_outside_grid)
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None
     if "display" in spec:

@@ -26,6 +26,7 @@ from metasim.errors import DisplayError
 from metasim.display.model import Display, observer_name, resolve_observer
 from metasim.display.optics import observer_optics
 from metasim.display.solvers import equality_box_qp
+from metasim.display.transfer import check_luminance
 from metasim.spectra.convert import as_spectra, is_colour_spectrum
 
 #: Named white points (CIE 1931 xy), IEC 61966-2-1 / CIE 15:2004 4-decimal values.
@@ -50,7 +51,7 @@ def white_xy(white) -> xr.DataArray:
         x, y = values
     if isinstance(white, xr.DataArray):
         x, y = np.asarray(_component(xy, "x").values), np.asarray(_component(xy, "y").values)
-    if (y <= 0).any() or (x < 0).any() or (x + y > 1).any():
+    if not (np.isfinite(x).all() and np.isfinite(y).all()) or (y <= 0).any() or (x < 0).any() or (x + y > 1).any():
         raise DisplayError(f"white chromaticity (x, y) = ({x}, {y}) is not allowed; need x >= 0, y > 0, x + y <= 1")
     xy.attrs = {"units": "1", "long_name": "CIE 1931 xy chromaticity of the target white"}
     return xy
@@ -133,8 +134,7 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     target_luminance = display.peak_luminance if luminance is None else luminance
     if not isinstance(target_luminance, xr.DataArray):
         target_luminance = xr.DataArray(float(target_luminance))
-    if not np.isfinite(target_luminance.values).all() or (target_luminance.values <= 0).any():
-        raise DisplayError(f"luminance={luminance!r} cd/m2 is not allowed; must be finite and > 0")
+    check_luminance(target_luminance if luminance is None else luminance, "luminance")
     xy = white_xy(_white_of_spectrum(white, display, obs) if _is_spectrum(white) else white)
     batch = display.batch_dims
     spectra = display.spectra

@@ -40,6 +40,10 @@ TRANSFER_FUNCTIONS = ("srgb", "gamma", "linear", "bt1886", "pq", "hlg")
 #: Default nominal peak (white) luminance L_W per transfer function, cd/m².
 DEFAULT_PEAK_LUMINANCE = {"srgb": 80.0, "gamma": 100.0, "linear": 100.0, "bt1886": 100.0,
                           "pq": 1000.0, "hlg": 1000.0}
+#: Largest white luminance metasim accepts, cd/m²: ten times the 10,000 cd/m² ceiling of SMPTE ST 2084
+#: (common practice, no source). Brighter sources are outside display colorimetry; whether any
+#: source is safe to look at is a question for IEC 62471 / IEC 60825-1, not for metasim.
+MAX_LUMINANCE = 1e5
 #: BT.2100 luminance weights of R, G, B for the HLG OOTF.
 BT2100_WEIGHTS = (0.2627, 0.6780, 0.0593)
 
@@ -56,6 +60,15 @@ _HLG_B = 1.0 - 4.0 * _HLG_A
 _HLG_C = 0.5 - _HLG_A * math.log(4.0 * _HLG_A)
 
 
+def check_luminance(value, name: str = "luminance") -> None:
+    """A white luminance in cd/m²: finite, > 0 and at most :data:`MAX_LUMINANCE`."""
+    values = np.asarray(getattr(value, "values", value), dtype=float)
+    if not np.isfinite(values).all() or (values <= 0).any() or (values > MAX_LUMINANCE).any():
+        shown = float(values) if np.ndim(values) == 0 else values.tolist()
+        raise DisplayError(f"{name}={shown!r} cd/m2 is not allowed; need a finite luminance > 0 and at most "
+                           f"{MAX_LUMINANCE:g} cd/m2 (metasim computes display colorimetry, not eye safety)")
+
+
 def check_transfer(transfer: str, *, gamma: float = 2.2, peak_luminance: float | None = None,
                    black_luminance: float = 0.0) -> float:
     """Validate a transfer-function name and its parameters; return the peak luminance to use."""
@@ -65,8 +78,7 @@ def check_transfer(transfer: str, *, gamma: float = 2.2, peak_luminance: float |
         raise DisplayError(f"gamma={gamma!r} is not allowed; must be a finite number > 0")
     peak = DEFAULT_PEAK_LUMINANCE[transfer] if peak_luminance is None else peak_luminance
     peak_values = np.asarray(peak, dtype=float)
-    if not np.isfinite(peak_values).all() or (peak_values <= 0).any():
-        raise DisplayError(f"peak_luminance={peak!r} cd/m2 is not allowed; must be finite and > 0")
+    check_luminance(peak, "peak_luminance")
     if not (math.isfinite(black_luminance) and 0 <= black_luminance) or (np.asarray(black_luminance) >= peak_values).any():
         raise DisplayError(
             f"black_luminance={black_luminance!r} cd/m2 is not allowed; need 0 <= black_luminance < peak_luminance"
@@ -265,5 +277,5 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
     return signal
 
 
-__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse",
+__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "MAX_LUMINANCE", "check_luminance", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse",
            "eotf_values", "eotf_inverse_values"]

@@ -33,6 +33,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from metasim._memory import largest_fitting, require_memory
 from metasim._threads import blas_single_threaded
 from metasim._version import __version__
 from metasim.colorimetry import tristimulus
@@ -53,6 +54,9 @@ from metasim.spectra import RADIANCE_UNITS, require_same_grid
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
 
 ADAPTED_WHITES = ("reference", "test")
+#: Peak memory of mismatch() per observer x stimulus x design pair: about 16 float64 measured
+#: (both sides' XYZ and CIELAB, differences, index, summaries), 20 allowed.
+MISMATCH_BYTES_PER_PAIR = 20 * 8
 
 
 def resolve_observers(observers, wavelengths) -> xr.Dataset:
@@ -197,6 +201,15 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
 
 
 @blas_single_threaded
+def check_mismatch_memory(observers: int, stimuli: int, designs: int = 1) -> None:
+    """Refuse, before anything is allocated, a :func:`mismatch` whose estimated memory
+    (:data:`MISMATCH_BYTES_PER_PAIR` per observer × stimulus × design) exceeds what the machine has
+    available (:class:`~metasim.errors.NotEnoughMemoryError`)."""
+    require_memory(MISMATCH_BYTES_PER_PAIR * observers * stimuli * designs,
+                   f"a mismatch of {observers:,} observers x {stimuli:,} stimuli x {designs:,} designs",
+                   f"use at most about {largest_fitting(MISMATCH_BYTES_PER_PAIR):,} observer x stimulus x design pairs")
+
+
 def mismatch(
     reference,
     test: Display,
@@ -284,6 +297,8 @@ def mismatch(
     if kind == "reflectance":
         require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
     obs = resolve_observers(observers, grid)
+    designs = int(np.prod([test.spectra.sizes[d] for d in test.batch_dims])) if test.batch_dims else 1
+    check_mismatch_memory(obs.sizes["observer"], stimuli.sizes.get("stimulus", 1), designs)
     calibration, calibration_name = resolve_calibration_observer(calibration_observer, obs, grid)
     white_spectrum, ref_kind = reference_white_spectrum(reference, stimuli, test, calibration, object_white_luminance)
 
@@ -502,5 +517,5 @@ def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
     return 720.0 * np.sqrt(diff[..., 0] ** 2 + (0.5 * diff[..., 1]) ** 2 + diff[..., 2] ** 2)
 
 
-__all__ = ["ADAPTED_WHITES", "mismatch", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
+__all__ = ["ADAPTED_WHITES", "mismatch", "check_mismatch_memory", "MISMATCH_BYTES_PER_PAIR", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
            "reference_white_spectrum"]

@@ -445,13 +445,15 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
     * ``kind="rgb"``: header ``name,R,G,B``, one stimulus per row, signals 0..1.
     * ``kind="xyz"``: header ``name,X,Y,Z``, relative to the reference white (white Y = 100).
     * ``kind="reflectance"``: the spectral layout of :func:`metasim.spectra.read_spectra_csv`
-      (``wavelength_nm,<sample>,...``), one column per stimulus, resampled onto ``wavelengths``.
+      (``wavelength_nm,<sample>,...``), one column per stimulus, resampled onto ``wavelengths``
+      (a part of a reflectance outside the grid gives a warning, not an error: it is not energy).
     """
     if kind not in KINDS:
         raise StimulusError(f"kind={kind!r} is not known; allowed: {', '.join(KINDS)}")
     path = Path(path)
     if kind == "reflectance":
         spectra = read_spectra_csv(path, units="1", long_name="spectral reflectance factor")
+        # a reflectance is not emitted energy: a part beyond the grid only warns (nothing on it is an error)
         spectra = resample(spectra, default_grid() if wavelengths is None else wavelengths)
         return reflectance_set(spectra.values, spectra.wavelength.values, list(spectra.channel.values),
                                illuminant=illuminant, description=f"reflectances from {path.name}")
@@ -485,9 +487,13 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
         raise StimulusError(f"{path}: header but no stimuli; the stimulus set is empty")
     if len(set(labels)) != len(labels):
         raise FileFormatError(f"{path}: stimulus names repeat; each row needs a unique name")
-    if kind == "rgb":
-        return rgb_set(np.array(rows), labels, source=source, encoding=encoding, description=f"RGB from {path.name}")
-    return xyz_set(np.array(rows), labels, description=f"XYZ from {path.name}")
+    try:
+        if kind == "rgb":
+            return rgb_set(np.array(rows), labels, source=source, encoding=encoding,
+                           description=f"RGB from {path.name}")
+        return xyz_set(np.array(rows), labels, description=f"XYZ from {path.name}")
+    except StimulusError as exc:  # a value out of range: name the file
+        raise StimulusError(f"{path}: {exc}") from None
 
 
 __all__ = [

@@ -138,7 +138,36 @@ def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
     if np.ndim(age_bands) != 1:
         raise MetasimError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band edges "
                            "in years")
-    return tuple(age_bands)
+    try:
+        edges = np.asarray(age_bands, dtype=float)
+    except (TypeError, ValueError):
+        edges = np.array([np.nan])
+    if edges.size < 2 or not np.isfinite(edges).all() or (np.diff(edges) <= 0).any():
+        raise MetasimError(f"age_bands={list(age_bands)!r} is not allowed; give at least two ascending, finite band "
+                           "edges in years")
+    years = np.asarray(getattr(ages, "values", ages), dtype=float)
+    years = years[np.isfinite(years)]
+    if years.size:
+        low, high = float(years.min()), float(years.max())
+        for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
+            last = i == edges.size - 2
+            if hi < low or lo > high or (hi == low and not last):
+                raise MetasimError(f"age band {_band_label(lo, hi, last)} (age_bands={[float(e) for e in edges]}) lies "
+                                   f"outside the observers' ages ({low:.4g}-{high:.4g} years) and would hold no "
+                                   "observer; give band edges within their ages")
+    return tuple(float(e) for e in edges)
+
+
+def check_thresholds(thresholds) -> tuple[float, ...]:
+    """CIE 2000 thresholds of the shares beyond: at least one, each finite and >= 0."""
+    try:
+        values = np.atleast_1d(np.asarray(thresholds, dtype=float))
+    except (TypeError, ValueError):
+        values = np.array([np.nan])
+    if values.ndim != 1 or values.size == 0 or not np.isfinite(values).all() or (values < 0).any():
+        raise MetasimError(f"thresholds={thresholds!r} is not allowed; give at least one finite CIE 2000 difference "
+                           f">= 0, e.g. {THRESHOLDS}")
+    return tuple(float(v) for v in values)
 
 
 def age_band_labels(edges) -> list[str]:
@@ -207,7 +236,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     (dims, values, attrs) and the Coordinates of the summary dims (statistic, age_band, threshold)."""
     statistic_attrs = {"units": "1"}
     out = {}
-    t = np.asarray(thresholds, dtype=float)
+    t = np.asarray(check_thresholds(thresholds), dtype=float)
     # the common case (equal weights, no NaN, observer × stimulus only) goes through one compiled
     # pass per summary; anything else through numpy
     fast = weights is None and values.size > 0 and not np.isnan(values).any()

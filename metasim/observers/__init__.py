@@ -1,6 +1,7 @@
 """Observers: standard CIE observers, the CIE 170-1 physiological model, individuals, populations."""
 
 from metasim.observers.categories import observer_categories, observer_features
+from metasim.observers.files import check_observers, read_observers
 from metasim.observers.physiological import (
     DEVIATIONS,
     cie2006_observer,
@@ -39,4 +40,6 @@ __all__ = [
     "observer_population",
     "observer_categories",
     "observer_features",
+    "check_observers",
+    "read_observers",
 ]

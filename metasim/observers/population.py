@@ -34,7 +34,9 @@ from numbers import Integral, Real
 import numpy as np
 import xarray as xr
 
+from metasim._memory import largest_fitting, require_memory
 from metasim.errors import ObserverError
+from metasim.spectra import as_wavelengths, default_grid
 from metasim.observers.physiological import (
     AGE_RANGE_YEARS,
     DEFAULT_PEAK_SHIFT_AXIS,
@@ -54,6 +56,9 @@ DEFAULT_SD = {
     "m_shift_nm": 1.5,
     "s_shift_nm": 1.3,
 }
+#: Peak memory of a population per observer and wavelength: about 16 float64 measured (lms, cmf and
+#: the model's intermediate arrays), 20 allowed.
+POPULATION_BYTES_PER_POINT = 20 * 8
 POPULATION_MODEL = (
     "CIE 170-1:2006 physiological observers with normally distributed individual deviations "
     "(Asano, Fairchild & Blondé 2016)"
@@ -191,6 +196,9 @@ def observer_population(
             raise ObserverError(f"sd_{name}={sd!r} is not allowed; a standard deviation must be a finite number >= 0")
     rng, seed_attrs = _generator(seed)
     n = int(n)
+    points = as_wavelengths(default_grid() if wavelengths is None else wavelengths).size
+    require_memory(POPULATION_BYTES_PER_POINT * n * points, f"a population of {n:,} observers",
+                   f"use at most about {largest_fitting(POPULATION_BYTES_PER_POINT * points):,} observers")
     ages, age_spec = _draw("age_years", age_years, n, rng, AGE_RANGE_YEARS, extrapolate)
     fields, field_spec = _draw("field_size_deg", field_size_deg, n, rng, FIELD_RANGE_DEG, extrapolate)
     deviations = {name: rng.normal(0.0, float(sds[name]), n) for name in DEVIATIONS}

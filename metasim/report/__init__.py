@@ -46,6 +46,11 @@ def is_sweep(ds: xr.Dataset) -> bool:
             and (ds.attrs.get("result_kind") == "metasim sweep" or "spec_hash" in ds.attrs))
 
 
+def report_kind(ds: xr.Dataset) -> str:
+    """What a result file holds for a report: "sweep", "study" or "population" (MetasimError if none)."""
+    return _kind(ds)
+
+
 def _kind(ds: xr.Dataset) -> str:
     if is_fit(ds):
         return "fit"
@@ -359,5 +364,5 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     return write_text(path, render_report(ds, title=title, source=source, figures=figures), replace=replace)
 
 
-__all__ = ["CAUTIONS", "FIGURE_NAMES", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report",
+__all__ = ["CAUTIONS", "FIGURE_NAMES", "report_kind", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report",
            "report_outputs", "write_report"]

@@ -25,6 +25,7 @@ def read_spectra_csv(
     long_name: str = "spectral radiance",
     non_negative: bool = True,
     dim: str = "channel",
+    allow_outside_grid: bool = False,
 ) -> xr.DataArray:
     """Read measured spectra from a CSV file into a DataArray (``channel`` × ``wavelength``).
 
@@ -40,6 +41,9 @@ def read_spectra_csv(
         The CSV file.
     wavelengths : optional
         Resample onto this grid (see :func:`resample`); the measured grid is kept when None.
+    allow_outside_grid : bool
+        Accept, with a warning, a spectrum that loses more than 1 % of its energy outside
+        ``wavelengths`` (an error otherwise; :func:`metasim.spectra.check_energy_on_grid`).
 
     Raises
     ------
@@ -147,7 +151,7 @@ def read_spectra_csv(
         array.attrs["source_notes"] = "\n".join(notes)
     array.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
     if wavelengths is not None:
-        array = resample(array, wavelengths)
+        array = resample(array, wavelengths, allow_outside_grid=allow_outside_grid)
     return array
 
 

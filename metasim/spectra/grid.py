@@ -17,6 +17,19 @@ Resampling policy (:func:`resample`)
 * Energy that falls outside the target grid is dropped; if it exceeds 0.1 % of the spectrum's total
   energy (trapezoidal integral over its own wavelengths) a :class:`SpectralEnergyWarning` names the
   channel and the share lost.
+
+Energy outside the grid (:func:`check_energy_on_grid`, for measured files and parametric emitters)
+-----------------------------------------------------------------------------------------------
+* A spectrum that loses more than 1 % of its energy outside the grid (:data:`OUTSIDE_GRID_SHARE`)
+  is an error (:class:`~metasim.errors.EnergyOutsideGridError`) naming it, the share lost and the
+  grid — a peak at 200 or 835 nm on the 390-830 nm grid would otherwise be cut, or rescaled from
+  its last few samples, into a different spectrum without a word.
+* Only when asked (``allow_outside_grid=True``; on the command line ``--allow-outside-grid``) is it
+  a :class:`SpectralEnergyWarning` stating the share lost, and the computation goes on.
+* A spectrum with (almost) nothing on the grid is an error either way.
+* This is the rule for display primaries (parametric emitters, measured primary files read by
+  :func:`~metasim.spectra.read_spectra_csv`); :func:`resample` on its own (illuminants,
+  reflectances) only warns unless told otherwise.
 """
 
 from __future__ import annotations
@@ -28,20 +41,55 @@ from typing import Sequence
 import numpy as np
 import xarray as xr
 
-from metasim.errors import GridMismatchError, SpectrumError
+from metasim.errors import EnergyOutsideGridError, GridMismatchError, SpectrumError
 
 DEFAULT_START_NM = 390.0
 DEFAULT_END_NM = 830.0
 DEFAULT_STEP_NM = 1.0
 #: Share of a spectrum's energy that resampling may drop silently (0.1 %).
 ENERGY_WARNING_SHARE = 1e-3
+#: Share of a spectrum's energy that may lie outside the grid; more is an error unless allowed (1 %).
+OUTSIDE_GRID_SHARE = 1e-2
+#: Share below which a spectrum counts as having nothing on the grid (an error, allowed or not).
+NOTHING_ON_GRID_SHARE = 1e-6
 
 RADIANCE_UNITS = "W sr-1 m-2 nm-1"
 WAVELENGTH_ATTRS = {"units": "nm", "long_name": "wavelength"}
 
 
 class SpectralEnergyWarning(UserWarning):
-    """Resampling dropped more than the allowed share of a spectrum's energy."""
+    """A spectrum lost part of its energy outside the wavelength grid (the warning states the share)."""
+
+
+def check_energy_on_grid(lost, labels, wavelengths, *, where: str, allow: bool = False, details=None) -> None:
+    """The one rule for the energy a spectrum loses outside the wavelength grid.
+
+    ``lost`` holds, per spectrum, the share (0..1) of its energy that falls outside ``wavelengths``;
+    ``labels`` (and optional ``details``, e.g. " (peak 835 nm, FWHM 1 nm)") name the spectra.
+    More than :data:`OUTSIDE_GRID_SHARE`: :class:`~metasim.errors.EnergyOutsideGridError`, or with
+    ``allow`` a :class:`SpectralEnergyWarning` stating the share lost. Less than
+    :data:`NOTHING_ON_GRID_SHARE` kept: an error either way.
+    """
+    lost = np.clip(np.atleast_1d(np.asarray(lost, dtype=float)), 0.0, 1.0)
+    details = list(details) if details is not None else [""] * lost.size
+    grid = _grid_text(np.asarray(wavelengths, dtype=float))
+    if not np.isfinite(lost).all():
+        i = int(np.argmax(~np.isfinite(lost)))
+        raise SpectrumError(f"{where}: {labels[i]}{details[i]}: its energy is not finite on the grid {grid}")
+    nothing = lost > 1.0 - NOTHING_ON_GRID_SHARE
+    if nothing.any():
+        i = int(np.argmax(nothing))
+        raise EnergyOutsideGridError(f"{where}: {labels[i]}{details[i]} has no emission on the wavelength grid {grid}; "
+                                     "move it inside the grid")
+    over = lost > OUTSIDE_GRID_SHARE
+    if over.any():
+        i = int(np.argmax(np.where(over, lost, -1.0)))
+        text = (f"{where}: {labels[i]}{details[i]} loses {100 * lost[i]:.2f} % of its energy outside the wavelength "
+                f"grid {grid}")
+        if not allow:
+            raise EnergyOutsideGridError(f"{text}; allowed: at most {100 * OUTSIDE_GRID_SHARE:g} %; move it inside the "
+                                         "grid, or give allow_outside_grid=True to accept the loss with a warning")
+        warnings.warn(f"{text}; going on with the part on the grid", SpectralEnergyWarning, stacklevel=3)
 
 
 def wavelength_grid(
@@ -285,11 +333,17 @@ def resample(
     wavelengths=None,
     *,
     warn_share: float = ENERGY_WARNING_SHARE,
+    allow_outside_grid: bool = True,
 ) -> xr.DataArray:
     """Resample spectra onto a wavelength grid following the module's documented policy.
 
     Linear interpolation inside the measured range, zero outside; a :class:`SpectralEnergyWarning`
-    when more than ``warn_share`` of any channel's energy falls outside the target grid.
+    when more than ``warn_share`` of any channel's energy falls outside the target grid. With
+    ``allow_outside_grid=False`` (how measured display primaries are read,
+    :func:`metasim.spectra.read_spectra_csv`) more than :data:`OUTSIDE_GRID_SHARE` is an error
+    (:func:`check_energy_on_grid`); nothing on the grid is an error either way. The default keeps
+    the warning for general resampling (illuminants, reflectances, colour-matching functions that
+    reach into the ultraviolet, where the part beyond the grid does not count).
 
     Examples
     --------
@@ -319,6 +373,11 @@ def resample(
         kept = np.zeros_like(total)
     with np.errstate(invalid="ignore", divide="ignore"):
         lost = np.where(total > 0, 1.0 - kept / total, 0.0)
+    if (lost > 1.0 - NOTHING_ON_GRID_SHARE).any() or ((lost > OUTSIDE_GRID_SHARE).any() and not allow_outside_grid):
+        labels = [_flat_label(moved, i) for i in range(flat.shape[0])]
+        where = str(spectra.attrs.get("source_file") or spectra.name or "spectra")
+        check_energy_on_grid(lost, labels, target, where=where, allow=False,
+                             details=[f" (measured {source[0]:g}-{source[-1]:g} nm)"] * len(labels))
     if (lost > warn_share).any():
         worst = int(np.argmax(lost))
         label = _flat_label(moved, worst)
@@ -366,9 +425,12 @@ __all__ = [
     "DEFAULT_END_NM",
     "DEFAULT_STEP_NM",
     "ENERGY_WARNING_SHARE",
+    "OUTSIDE_GRID_SHARE",
+    "NOTHING_ON_GRID_SHARE",
     "RADIANCE_UNITS",
     "WAVELENGTH_ATTRS",
     "SpectralEnergyWarning",
+    "check_energy_on_grid",
     "wavelength_grid",
     "default_grid",
     "as_wavelengths",

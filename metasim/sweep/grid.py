@@ -76,7 +76,8 @@ def _base_spectra(base) -> tuple[xr.DataArray | None, dict]:
 
 
 def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, width_nm=1.0, *,
-                base=None, radiance: float = 1.0, profile: str = "gaussian", wavelengths=None) -> xr.DataArray:
+                base=None, radiance: float = 1.0, profile: str = "gaussian", wavelengths=None,
+                allow_outside_grid: bool = False) -> xr.DataArray:
     """Every combination of primary peaks and widths, as one ``design × primary × wavelength`` array.
 
     Parameters
@@ -99,6 +100,9 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
         Line shape of laser primaries.
     wavelengths : optional
         The grid (default: the base's grid, else 390–830 nm at 1 nm).
+    allow_outside_grid : bool
+        Accept, with a warning, varied primaries that lose more than 1 % of their energy outside
+        the grid (an error otherwise, naming the peak; :func:`metasim.spectra.check_energy_on_grid`).
 
     Returns
     -------
@@ -149,9 +153,10 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     for label in labels:
         pairs = np.stack([column[f"peak_nm_{label}"], column[width_of[label]]], axis=1)
         unique, inverse = np.unique(pairs, axis=0, return_inverse=True)
-        arguments = {"radiance": radiance, **({"profile": profile} if kind == "laser" else {})}
+        arguments = {"radiance": radiance, "allow_outside_grid": allow_outside_grid,
+                     **({"profile": profile} if kind == "laser" else {})}
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}[kind]
-        spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"{label} {i}" for i in range(len(unique))],
+        spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"primary {label} #{i}" for i in range(len(unique))],
                            **arguments)
         varied[label] = spectra.transpose("primary", "wavelength").values[np.asarray(inverse).reshape(-1)]
     order = [str(p) for p in fixed.primary.values] if fixed is not None else []

@@ -36,10 +36,11 @@ from metasim._version import __version__
 from metasim.display import Display, calibrate_white, make_display
 from metasim.errors import MetasimError, SweepError
 from metasim.metamerism.engine import resolve_observers, resolve_reference
+from metasim.observers import check_observers
 from metasim.metamerism.stimuli import as_stimuli
 from metasim.observers.convert import as_observer
 from metasim.spectra.convert import is_colour_object
-from metasim.metamerism.summary import THRESHOLDS
+from metasim.metamerism.summary import THRESHOLDS, age_band_edges, check_thresholds
 from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 from metasim.sweep.store import (
     STORE_FORMAT,
@@ -65,7 +66,10 @@ _SERIAL_KERNELS = threading.Lock()
 def _settings(designs, display_settings) -> dict:
     given = designs.attrs.get("display_settings", {}) if isinstance(designs, xr.DataArray) else {}
     if isinstance(given, str):
-        given = json.loads(given)
+        try:
+            given = json.loads(given)
+        except ValueError:
+            raise SweepError(f"the designs' display_settings attribute {given[:60]!r} is not JSON; give a dict") from None
     settings = {**DEFAULT_DISPLAY_SETTINGS, **given, **(display_settings or {})}
     unknown = [k for k in settings if k not in DEFAULT_DISPLAY_SETTINGS]
     if unknown:
@@ -216,14 +220,17 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     settings = _settings(designs, display_settings) if not isinstance(designs, Display) else {}
     count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
     grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
-    observers = resolve_observers(observers, grid)
+    observers = check_observers(resolve_observers(observers, grid), where="observers", wavelengths=grid)
     # colour-science inputs converted once, before the spec hash (metasim.spectra.convert)
     stimuli, reference = as_stimuli(stimuli, grid), resolve_reference(reference, grid)
     if is_colour_object(calibration_observer):
         calibration_observer = as_observer(calibration_observer, grid)
     full = designs if isinstance(designs, Display) else chunk_display(designs, settings)  # checks every design now
-    mismatch_options = {"calibration_observer": calibration_observer, "strategy": strategy, "thresholds": tuple(thresholds)}
+    thresholds = check_thresholds(thresholds)
+    mismatch_options = {"calibration_observer": calibration_observer, "strategy": strategy, "thresholds": thresholds}
     if age_bands is not None:
+        if not isinstance(age_bands, str):  # checked against the observers' ages before the store is touched
+            age_band_edges(age_bands, observers.coords.get("age_years"))
         mismatch_options["age_bands"] = tuple(age_bands)
     if isinstance(reference, str) and reference == "objects":  # one object white for every chunk
         mismatch_options["object_white_luminance"] = float(full.peak_luminance.max())

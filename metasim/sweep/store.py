@@ -131,11 +131,11 @@ def check_manifest(manifest, path) -> dict:
     """The manifest, its keys, types and chunk ranges checked (:class:`StoreIntegrityError` if not)."""
     if not isinstance(manifest, dict) or manifest.get("format") != STORE_FORMAT:
         raise SweepError(f"{path}: not a metasim sweep manifest (format {STORE_FORMAT!r} expected)")
-    for key, kind in (("spec_hash", str), ("chunk_size", int), ("design_count", int), ("chunks", list),
-                      ("spec", dict)):
+    for key, kind, what in (("spec_hash", str, "text"), ("chunk_size", int, "a whole number"),
+                            ("design_count", int, "a whole number"), ("chunks", list, "a list"), ("spec", dict, "a table")):
         value = manifest.get(key)
         if not isinstance(value, kind) or isinstance(value, bool):
-            raise _damaged(path, f"{key} = {str(value)[:40]!r} is not a {kind.__name__}")
+            raise _damaged(path, f"{key} = {str(value)[:40]!r} is not {what}")
     if manifest["chunk_size"] < 1 or manifest["design_count"] < 1:
         raise _damaged(path, f"chunk_size {manifest['chunk_size']} and design_count {manifest['design_count']} "
                              "must be >= 1")
