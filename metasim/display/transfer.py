@@ -277,5 +277,5 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
     return signal
 
 
-__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "MAX_LUMINANCE", "check_luminance", "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse",
-           "eotf_values", "eotf_inverse_values"]
+__all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "MAX_LUMINANCE", "check_luminance",
+           "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse", "eotf_values", "eotf_inverse_values"]

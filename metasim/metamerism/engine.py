@@ -517,5 +517,6 @@ def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
     return 720.0 * np.sqrt(diff[..., 0] ** 2 + (0.5 * diff[..., 1]) ** 2 + diff[..., 2] ** 2)
 
 
-__all__ = ["ADAPTED_WHITES", "mismatch", "check_mismatch_memory", "MISMATCH_BYTES_PER_PAIR", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
+__all__ = ["ADAPTED_WHITES", "mismatch", "check_mismatch_memory", "MISMATCH_BYTES_PER_PAIR",
+           "resolve_observers", "resolve_calibration_observer", "resolve_reference",
            "reference_white_spectrum"]
