@@ -29,6 +29,7 @@ from pathlib import Path
 import colour
 import numpy as np
 
+from metasim.io import write_text
 from metasim.observers import low_density_absorbance
 
 DATA = Path(__file__).resolve().parents[1] / "data"
@@ -76,7 +77,7 @@ def main() -> None:
     lines += [f"{w:g},{a[0]:.8e},{a[1]:.8e},{a[2]:.8e}" for w, a in zip(wl, absorbance.T)]
     text = "\n".join(lines) + "\n"
     if args.output:
-        args.output.write_text(text)
+        write_text(args.output, text)
         print(f"wrote {args.output}", file=sys.stderr)
     else:
         sys.stdout.write(text)

@@ -17,6 +17,7 @@ import numpy as np
 
 import metasim
 from metasim.fitting.synthetic import synthetic_matches
+from metasim.io import write_text
 from metasim.observers.physiological import DEVIATIONS
 
 SEED = 1964
@@ -42,7 +43,7 @@ def main(out: Path) -> None:
         for j, wl in enumerate(TEST_NM):
             r, g, b = amounts[i, j]
             lines.append(f"v{i + 1:02d},{wl:g},{r:.6g},{g:.6g},{b:.6g},10,{age}")
-    out.write_text("\n".join(lines) + "\n", encoding="utf-8")
+    write_text(out, "\n".join(lines) + "\n")
 
 
 if __name__ == "__main__":

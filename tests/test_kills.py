@@ -163,7 +163,8 @@ def test_a_sweep_killed_while_writing_resumes_to_the_uninterrupted_result(kill_a
 
 @pytest.mark.parametrize("args", [["evaluate", "missing.toml"], ["report", "missing.nc"],
                                   ["sweep", "missing.toml", "--out", "store"],
-                                  ["evaluate", "spec.toml", "--observers", "missing.nc"]])
+                                  ["evaluate", "spec.toml", "--observers", "missing.nc"],
+                                  ["tables", "missing.nc"], ["estimate", "missing.csv"]])
 def test_a_missing_input_is_reported_before_the_numerical_modules_load(args, tmp_path):
     (tmp_path / "spec.toml").write_text((DEMO / "projector_four_laser.toml").read_text())
     done = subprocess.run([sys.executable, "-X", "importtime", "-m", "metasim.cli", *args], cwd=tmp_path,
