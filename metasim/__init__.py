@@ -47,6 +47,10 @@ _ENTRY_POINTS = {
     "mismatch": "metasim.metamerism",
     "rank_calibration_observers": "metasim.metamerism",
     "white_point_offsets": "metasim.metamerism",
+    # statistics
+    "population_statistics": "metasim.statistics",
+    "paired_comparison": "metasim.statistics.comparison",
+    "rank_designs": "metasim.statistics.comparison",
     # gamut
     "chromaticity_gamut": "metasim.gamut",
     "gamut_coverage": "metasim.gamut",

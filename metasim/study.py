@@ -49,13 +49,26 @@ Variables over ``design``:
 ``observers_per_age_band``, ``share_beyond``,   age bands by default the decades covering the
 ``share_beyond_overall``                        observers' ages
 ``out_of_gamut_test``, ``out_of_gamut_reference``, ``delta_e_2000_calibration``  as in the engine
-``delta_e_2000_overall`` (design, statistic)    over all observer × stimulus pairs (weighted)
+``delta_e_2000_overall`` (design, statistic)    over all observer × stimulus pairs (weighted), from
+                                                :func:`metasim.statistics.population_statistics`;
+                                                ``share_beyond_overall`` (design, threshold) likewise
+``delta_e_white_overall`` (design, statistic)   the white difference, statistics over observers
+``*_interval`` (design, bound, ...)             with ``intervals``: the percentile interval of each of
+                                                the three from resampling observers (bound = lower,
+                                                upper; none for the maximum)
+``observers_needed_p95`` (design)               observers for the ``target_half_width`` on p95
+``comparison_difference`` (statistic), ``comparison_share_second_closer`` (), with ``*_interval``
+                                                two designs with intervals: second minus first per
+                                                statistic, and the share of observers who see the
+                                                second closer to the reference (paired)
 ``metamerism_index_by_stimulus``                observer metamerism index, statistics per stimulus
 ``area_gain_share``, ``volume_gain_share``,     gain of one extra laser primary per candidate peak
 ``area_gain``, ``volume_gain`` (design, peak_wavelength)
 ``extra_base`` (design)                         the primaries the gain starts from
-``calibration_mean_delta_e``, ``calibration_p95_delta_e``, ``calibration_mean_delta_e_white``
-(design, calibration_observer), ``best_calibration_observer`` (design)   with the ranking
+``calibration_mean_delta_e``, ``calibration_p95_delta_e`` (white and stimuli pooled),
+``calibration_mean_delta_e_white``, ``calibration_mean_delta_e_stimuli`` (stimuli only: for the
+study's calibration observer the mean of ``delta_e_2000_overall``) (design, calibration_observer),
+``best_calibration_observer`` (design)          with the ranking
 ``white_offset_xy`` (design, category, chromaticity), ``white_offset_uv_length`` (design,
 category), coordinates ``category_weight``, ``category_age_years``   with the white trims
 ==============================================  =================================================
@@ -66,7 +79,11 @@ Every variable has ``units`` and ``long_name``. Attributes: ``result_kind`` = ``
 ``observer_model``, ``observer_parameters``, ``observer_seed``, ``observer_count``,
 ``observer_categories``, ``stimuli``, ``stimulus_kind``, ``stimulus_source``,
 ``thresholds_source``, ``gamut_observer``, ``gamut_references``, ``extra_primary_candidates``,
-``display_specs`` (display name → text of its spec file) and ``metasim_version``.
+``display_specs`` (display name → text of its spec file), ``pooled_stimuli`` (what the tables
+over pairs pool), with intervals ``interval_method``, ``interval_level``, ``interval_resamples``,
+``interval_seed`` and ``target_half_width``, and ``metasim_version``. Every summary variable says
+in its attributes what it pools (``pooled_over``, ``pooled_stimuli``, ``includes_white``,
+``observer_weights``).
 
 A plain :func:`metasim.mismatch` result takes this layout through :func:`as_study` (a one-entry
 ``design`` dim).
@@ -96,7 +113,12 @@ from metasim.metamerism import mismatch
 from metasim.metamerism.engine import resolve_observers
 from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.choices import rank_calibration_observers, white_point_offsets
-from metasim.metamerism.summary import DECADES, STATISTICS, summarise, weighted_quantile
+from metasim.metamerism.summary import DECADES, summarise
+from metasim.errors import StatisticsError
+from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES, population_statistics
+from metasim.statistics.resampling import check_interval_settings
+from metasim.statistics import headline as sentences
+from metasim.statistics.comparison import DEFAULT_HALF_WIDTH, half_width, observers_needed, paired_comparison
 from metasim.observers import observer_categories, standard_observer
 from metasim.spectra import default_grid
 
@@ -244,7 +266,16 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         Observer categories for the white trims (:func:`metasim.metamerism.white_point_offsets`);
         a population of categories is used as it is; 0 skips the trims.
     seed : int
-        Seed of the category clustering.
+        Seed of the category clustering and of the resampling of observers.
+    intervals : bool
+        Percentile intervals from resampling observers for the statistics over all pairs, the
+        white differences, the comparison of two designs and the population-size advice
+        (:mod:`metasim.statistics`); default on.
+    level, resamples : float, int
+        Interval level (default 0.95) and resamples (None: 400; at least 200).
+    target_half_width : float
+        The interval half-width on the 95th percentile the population-size advice aims at, CIE
+        2000 units (None: 0.1).
 
     Returns
     -------
@@ -259,6 +290,7 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         out["calibration_mean_delta_e"] = ranking["mean_delta_e"]
         out["calibration_p95_delta_e"] = ranking["p95_delta_e"]
         out["calibration_mean_delta_e_white"] = ranking["mean_delta_e_white"]
+        out["calibration_mean_delta_e_stimuli"] = ranking["mean_delta_e_stimuli"]
         out["best_calibration_observer"] = xr.DataArray(best)
     if categories:
         group = observers if "weight" in observers.coords else observer_categories(
@@ -278,27 +310,71 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
     return out
 
 
-def overall_statistics(delta_e: xr.DataArray) -> xr.DataArray:
-    """mean, median, p95, max of ``delta_e`` over all observer × stimulus pairs (observer weights
-    if present), dim ``statistic``.
+def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: float = DEFAULT_LEVEL,
+                       resamples: int = DEFAULT_RESAMPLES, seed: int = 0, pooled: str | None = None) -> xr.Dataset:
+    """mean, median, p95, max and shares beyond of ``delta_e`` over all observer × stimulus pairs
+    (observer weights if present), with intervals from resampling observers: the table of
+    :func:`metasim.statistics.population_statistics` (``pooled`` says which stimuli).
 
     Examples
     --------
     >>> import xarray as xr
     >>> delta_e = xr.DataArray([[0.0, 1.0], [2.0, 3.0]], dims=("observer", "stimulus"))
-    >>> overall_statistics(delta_e).round(6).values.tolist()  # numpy's linear percentile
+    >>> overall_statistics(delta_e, interval=False)["statistics"].round(6).values.tolist()  # numpy's linear
     [1.5, 1.5, 2.85, 3.0]
     """
-    values = delta_e.transpose("observer", "stimulus").values
-    weights = None
-    if "weight" in delta_e.coords:
-        weights = np.repeat(np.asarray(delta_e.coords["weight"].values, dtype=float), values.shape[1])
-    flat = values.reshape(-1)
-    mean = float(np.average(flat, weights=weights))
-    stats = [mean, float(weighted_quantile(flat, weights, 0.5, 0)), float(weighted_quantile(flat, weights, 0.95, 0)),
-             float(np.max(flat))]
-    return xr.DataArray(stats, dims="statistic", coords={"statistic": list(STATISTICS)},
-                        attrs={"units": "1", "long_name": "CIE 2000 difference over all observer x stimulus pairs"})
+    return population_statistics(delta_e, interval=interval, level=level, resamples=resamples, seed=seed,
+                                 pooled=pooled)
+
+
+def _comparison_variables(comparison: xr.Dataset) -> dict:
+    """The ``comparison_*`` variables of a study from a :func:`paired_comparison` result."""
+    out = {}
+    for name in ("difference", "difference_interval", "share_beyond_difference", "share_beyond_difference_interval",
+                 "share_second_closer", "share_second_closer_interval"):
+        value = comparison[name]
+        out[f"comparison_{name}"] = xr.DataArray(value.values, dims=value.dims, attrs={
+            **value.attrs, "first": comparison.attrs["first"], "second": comparison.attrs["second"]})
+    return out
+
+
+def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None) -> list[str]:
+    """One-sentence answers of a study result, with their intervals (for the command line and the
+    report): the comparison of two designs when there is one, each design against the reference,
+    and the observers a chosen half-width on the 95th percentile needs."""
+    if "delta_e_2000_overall" not in study or "design" not in study.dims:
+        return []
+    reference = str(study.attrs.get("reference", "the reference")) or "the reference"
+    overall = study["delta_e_2000_overall"]
+    interval = study.get("delta_e_2000_overall_interval")
+    lines = []
+    if "comparison_share_second_closer" in study:
+        first = study["comparison_share_second_closer"].attrs["first"]
+        second = study["comparison_share_second_closer"].attrs["second"]
+        paired = xr.Dataset({"statistics": overall, "share_second_closer": study["comparison_share_second_closer"],
+                             "share_second_closer_interval": study["comparison_share_second_closer_interval"]},
+                            attrs={"first": first, "second": second})
+        if interval is not None:
+            paired["statistics_interval"] = interval
+        lines.append(sentences.comparison_headline(paired, reference))
+    for name in study["design"].values:
+        table = xr.Dataset({"statistics": overall.sel(design=name)})
+        if interval is not None:
+            table["statistics_interval"] = interval.sel(design=name)
+        if "share_beyond_overall" in study:
+            table["share_beyond"] = study["share_beyond_overall"].sel(design=name)
+            if "share_beyond_overall_interval" in study:
+                table["share_beyond_interval"] = study["share_beyond_overall_interval"].sel(design=name)
+        lines.append(sentences.design_headline(table, str(name), reference))
+    if interval is not None:
+        target = target_half_width or float(study.attrs.get("target_half_width", DEFAULT_HALF_WIDTH))
+        for name in study["design"].values:
+            advice = sentences.population_advice(interval.sel(design=name, statistic="p95"),
+                                                 int(study.sizes.get("observer", study.attrs.get("observer_count", 0))),
+                                                 target)
+            if advice:
+                lines.append(f"{name}: {advice[0].lower()}{advice[1:]}")
+    return lines
 
 
 def study_attributes(engine: dict, observers: xr.Dataset, stimuli: xr.Dataset, spec_texts: dict | None, reference,
@@ -345,7 +421,9 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
               calibration_observer="cie1931_2", strategy: str = "min_norm", age_bands=DECADES,
               extra_bases: Sequence | None = None, spec_texts: dict | None = None,
               progress: Callable[[str], None] | None = None, extra_peaks_nm=EXTRA_PEAKS_NM,
-              rank_calibration: bool = True, white_categories: int = WHITE_CATEGORIES, seed: int = 0) -> xr.Dataset:
+              rank_calibration: bool = True, white_categories: int = WHITE_CATEGORIES, seed: int = 0,
+              intervals: bool = True, level: float = DEFAULT_LEVEL, resamples: int | None = None,
+              target_half_width: float | None = None) -> xr.Dataset:
     """Gamut of every display and the population mismatch of each design against ``reference``.
 
     For every display: chromaticity gamut, CIELAB volume and coverage of the reference gamuts
@@ -388,7 +466,16 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     white_categories : int
         Observer categories of the white trims (0: none).
     seed : int
-        Seed of the category clustering.
+        Seed of the category clustering and of the resampling of observers.
+    intervals : bool
+        Percentile intervals from resampling observers for the statistics over all pairs, the
+        white differences, the comparison of two designs and the population-size advice
+        (:mod:`metasim.statistics`); default on.
+    level, resamples : float, int
+        Interval level (default 0.95) and resamples (None: 400; at least 200).
+    target_half_width : float
+        The interval half-width on the 95th percentile the population-size advice aims at, CIE
+        2000 units (None: 0.1).
 
     Returns
     -------
@@ -416,6 +503,14 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     ('metasim study', ['monitor', 'candidate'], 4)
     """
     progress = progress or _quiet
+    resamples = DEFAULT_RESAMPLES if resamples is None else resamples
+    target_half_width = DEFAULT_HALF_WIDTH if target_half_width is None else target_half_width
+    if intervals:
+        check_interval_settings(level, resamples)
+        if not (isinstance(target_half_width, (int, float)) and np.isfinite(target_half_width) and target_half_width > 0):
+            raise StatisticsError(f"target half-width {target_half_width!r} is not allowed; give a number > 0 "
+                                  "(CIE 2000 units)")
+    pooled = f"{stimuli.sizes['stimulus']} stimuli ({stimuli.attrs.get('description', 'stimulus set')})"
     cie1931 = standard_observer(GAMUT_OBSERVER, default_grid().values)
     designs = list(designs)
     if designs and isinstance(designs[0], Display):  # colour-science inputs converted once, on the designs' grid
@@ -431,17 +526,36 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     for i, design in enumerate(designs):
         result = mismatch(reference, design, observers, stimuli, calibration_observer=calibration_observer,
                           strategy=strategy, age_bands=age_bands)
-        overall = overall_statistics(result["delta_e_2000"])
+        settings = {"interval": intervals, "level": level, "resamples": resamples, "seed": seed}
+        table = overall_statistics(result["delta_e_2000"], pooled=pooled, **settings)
+        white = population_statistics(result["delta_e_white"], over="observer", pooled="the white",
+                                      includes_white=True, **settings)
         keep = [v for v in MISMATCH_VARIABLES if v in result]
         part = result[keep]
         part = part.drop_vars([c for c in part.coords if c not in part.dims and "observer" not in part[c].dims])
-        part["delta_e_2000_overall"] = overall
+        part["delta_e_2000_overall"] = _plain(table["statistics"], "CIE 2000 difference over all observer x "
+                                              "stimulus pairs")
+        part["share_beyond_overall"] = _plain(table["share_beyond"], "share of observer x stimulus pairs beyond "
+                                              "each threshold")
+        part["delta_e_white_overall"] = _plain(white["statistics"], "CIE 2000 difference between the two whites, "
+                                               "statistics over observers")
+        if intervals:
+            for name, source in (("delta_e_2000_overall_interval", table["statistics_interval"]),
+                                 ("share_beyond_overall_interval", table["share_beyond_interval"]),
+                                 ("delta_e_white_overall_interval", white["statistics_interval"])):
+                part[name] = _plain(source, source.attrs["long_name"])
+            p95_interval = table["statistics_interval"].sel(statistic="p95")
+            part["observers_needed_p95"] = xr.DataArray(
+                observers_needed(float(half_width(p95_interval)), observers.sizes["observer"], target_half_width),
+                attrs={"units": "1", "long_name": "observers needed for the target interval half-width on the 95th "
+                       "percentile (half-widths shrink as 1/sqrt(n))", "target_half_width": float(target_half_width)})
         part["metamerism_index_by_stimulus"] = summarise(result["metamerism_index"], age_bands=(),
                                                          name="metamerism_index")["metamerism_index_by_stimulus"]
         results.append(part)
-        p95 = float(overall.sel(statistic="p95"))
+        p95 = sentences.with_interval(table["statistics"].sel(statistic="p95"),
+                                      table["statistics_interval"].sel(statistic="p95") if intervals else None)
         progress(f"mismatch of {design.name!r}: {observers.sizes['observer']} observers x "
-                 f"{stimuli.sizes['stimulus']} stimuli, 95th percentile {p95:.2f} CIE 2000 units")
+                 f"{stimuli.sizes['stimulus']} stimuli, 95th percentile {p95} CIE 2000 units")
         base = design.spectra
         labels = (extra_bases or [None] * len(designs))[i]
         if labels:
@@ -464,9 +578,19 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     parts = [blocks, mism, gain]
     if choices and len(choices) == len(designs):
         parts.append(xr.concat(choices, dim=design_dim, combine_attrs="drop"))
+    if intervals and len(designs) == 2:  # the two designs seen by the same observers
+        comparison = paired_comparison(mism["delta_e_2000"].isel(design=0, drop=True),
+                                       mism["delta_e_2000"].isel(design=1, drop=True), labels=design_names,
+                                       level=level, resamples=resamples, seed=seed, pooled=pooled)
+        parts.append(xr.Dataset(_comparison_variables(comparison)))
     out = xr.merge(parts, combine_attrs="override")
     out.attrs = study_attributes(engine, observers, stimuli, spec_texts, reference, design_names, strategy,
                                  calibration_observer)
+    if intervals:
+        out.attrs.update({key: table.attrs[key] for key in ("interval_method", "interval_level", "interval_resamples",
+                                                            "interval_seed")})
+        out.attrs["target_half_width"] = float(target_half_width)
+    out.attrs["pooled_stimuli"] = pooled
     for name, (units, long_name) in VARIABLE_ATTRS.items():
         if name in out:
             out[name].attrs.update({"units": units, "long_name": long_name})
@@ -474,6 +598,12 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         out[name].attrs.setdefault("long_name", name.replace("_", " "))
         out[name].attrs.setdefault("units", "1")
     return out
+
+
+def _plain(value: xr.DataArray, long_name: str) -> xr.DataArray:
+    """A table variable without its coordinates (the study supplies them), attributes kept."""
+    return xr.DataArray(value.values, dims=value.dims, coords={d: value[d].values for d in value.dims if d in value.coords},
+                        attrs={**value.attrs, "long_name": long_name})
 
 
 def as_study(ds: xr.Dataset) -> xr.Dataset:
@@ -496,5 +626,5 @@ def as_study(ds: xr.Dataset) -> xr.Dataset:
 
 
 __all__ = ["RESULT_KIND", "GAMUT_OBSERVER", "EXTRA_PEAKS_NM", "MISMATCH_VARIABLES", "WHITE_CATEGORIES",
-           "VARIABLE_ATTRS", "run_study", "display_blocks", "decision_block", "overall_statistics",
+           "VARIABLE_ATTRS", "run_study", "display_blocks", "decision_block", "overall_statistics", "study_headlines",
            "study_attributes", "unique_names", "as_study"]

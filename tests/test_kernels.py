@@ -7,7 +7,7 @@ from metasim._threads import _controller, single_threaded_blas
 from metasim.colorimetry.cielab import lab_of_ratio
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.integration import apply_matrices, spectral_products
-from metasim.metamerism._rowstats import observer_stimulus_stats, row_stats
+from metasim.statistics.sorted_rows import observer_stimulus_stats, row_stats
 
 
 def test_spectral_products_equal_numpy_and_do_not_depend_on_shape():

@@ -95,7 +95,7 @@ CSV_KINDS = LibraryChoices("metasim.metamerism.stimuli", "KINDS")
 
 #: library keyword hints in messages, as the command-line option that does the same
 CLI_OPTIONS = {"replace=True": "--replace", "wait=True": "--wait", "allow_outside_grid=True": "--allow-outside-grid",
-               "extrapolate=True": "--extrapolate"}
+               "extrapolate=True": "--extrapolate", "resamples=": "--resamples ", "target half-width": "--p95-half-width"}
 
 
 def _for_cli(text) -> str:
@@ -208,11 +208,12 @@ def _study(args, designs: list, reference, specs: dict) -> int:
                        strategy=args.strategy, age_bands=_age_bands(args), spec_texts=spec_texts(specs),
                        progress=progress, extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
                        rank_calibration=args.choices, white_categories=WHITE_CATEGORIES if args.choices else 0,
-                       seed=args.seed)
+                       seed=args.seed, intervals=args.intervals, resamples=args.resamples,
+                       target_half_width=args.p95_half_width)
     out.mkdir(parents=True, exist_ok=True)
     result_path = save_dataset(result, out / RESULT_FILE, replace=args.replace)
     progress.step(f"wrote {result_path}")
-    _print_headline(result)
+    _print_headline(result, args.p95_half_width)
     print(f"result:  {result_path}")
     if not args.no_report:
         report = write_report(result, out / REPORT_FILE, figures_dir=figures, source=result_path.name,
@@ -381,15 +382,11 @@ def cmd_estimate(args) -> int:
     return 0
 
 
-def _print_headline(result) -> None:
-    if "delta_e_2000_overall" not in result:
-        return
-    for name in result["design"].values:
-        stats = result["delta_e_2000_overall"].sel(design=name)
-        share = result["share_beyond_overall"].sel(design=name, threshold=2.0)
-        print(f"{name}: 95th percentile {float(stats.sel(statistic='p95')):.2f}, median "
-              f"{float(stats.sel(statistic='median')):.2f} CIE 2000 units; "
-              f"{100 * float(share):.0f} % of observer x stimulus pairs beyond 2")
+def _print_headline(result, target_half_width: float | None = None) -> None:
+    from metasim.study import study_headlines
+
+    for line in study_headlines(result, target_half_width=target_half_width):
+        print(line)
 
 
 # -- parser ------------------------------------------------------------------------------------------
@@ -501,6 +498,19 @@ def _study_options(parser) -> None:
     group.add_argument("--no-choices", dest="choices", action="store_false",
                        help="skip the calibration-observer ranking and white-point offsets")
     group.add_argument("--no-report", action="store_true", help="write the result file only")
+    _interval_options(parser)
+
+
+def _interval_options(parser) -> None:
+    # defaults None: the library's (metasim.statistics), so building the parser imports nothing heavy
+    group = parser.add_argument_group("intervals (95 %, from resampling observers)")
+    group.add_argument("--no-intervals", dest="intervals", action="store_false",
+                       help="skip the intervals, the comparison of two designs and the population-size advice")
+    group.add_argument("--resamples", type=int, default=None,
+                       help="resamples of the observers (at least 200; default 400)")
+    group.add_argument("--p95-half-width", type=float, default=None, metavar="DE",
+                       help="interval half-width on the 95th percentile the population-size advice aims at, CIE "
+                            "2000 units (default 0.1)")
 
 
 def _matching_options(parser):

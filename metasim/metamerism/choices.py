@@ -24,7 +24,8 @@ from metasim.metamerism.engine import (
     resolve_reference,
 )
 from metasim.metamerism.stimuli import as_stimuli
-from metasim.metamerism.summary import observer_weights, weighted_quantile
+from metasim.metamerism.summary import observer_weights
+from metasim.statistics import quantiles, weighted_mean
 from metasim.observers.standard import STANDARD_OBSERVERS
 
 #: Calibration observers: every standard observer and the population's mean observer.
@@ -87,27 +88,35 @@ def rank_calibration_observers(
         de = result["delta_e_2000"]
         if "design" in de.dims:
             raise MetasimError("rank_calibration_observers takes a single test design; select one with .isel(design=i)")
-        pooled = np.concatenate([result["delta_e_white"].values[:, None],
-                                 de.transpose("observer", "stimulus").values], axis=1)
+        stimuli_only = de.transpose("observer", "stimulus").values
+        pooled = np.concatenate([result["delta_e_white"].values[:, None], stimuli_only], axis=1)
         weights = observer_weights(de)
-        w = np.ones(pooled.shape[0]) if weights is None else weights
-        w = w / w.sum()
+        per_pair = None if weights is None else np.repeat(weights, pooled.shape[1])
         names.append(result.attrs["calibration_observer"])
-        mean.append(float(w @ pooled.mean(axis=1)))
-        flat_weights = None if weights is None else np.repeat(w, pooled.shape[1])
-        p95.append(float(weighted_quantile(pooled.reshape(-1), flat_weights, 0.95, 0)))
-        white.append(float(w @ result["delta_e_white"].values))
-        stim.append(float(w @ de.transpose("observer", "stimulus").values.mean(axis=1)))
+        mean.append(float(weighted_mean(pooled.ravel(), per_pair)))
+        p95.append(float(quantiles(pooled.ravel(), (0.95,), per_pair)[0]))
+        white.append(float(weighted_mean(result["delta_e_white"].values, weights)))
+        stim.append(float(weighted_mean(stimuli_only.ravel(), None if weights is None
+                                        else np.repeat(weights, stimuli_only.shape[1]))))
     if len(set(names)) != len(names):
         names = [f"{n} #{i}" for i, n in enumerate(names)]
     coords = {"calibration_observer": names}
+    with_white = {"pooled_over": "observer x (white + stimulus) pairs", "includes_white": "yes: the white pair pooled "
+                  "with the stimuli", "pooled_stimuli": f"the white and {stimuli.sizes['stimulus']} stimuli"}
+    without_white = {"pooled_over": "observer x stimulus pairs", "includes_white": "no",
+                     "pooled_stimuli": f"{stimuli.sizes['stimulus']} stimuli"}
     out = xr.Dataset(
         {
-            "mean_delta_e": ("calibration_observer", mean, {"units": "1", "long_name": "mean CIE 2000 difference over observers, white and stimuli"}),
+            "mean_delta_e": ("calibration_observer", mean, {
+                "units": "1", "long_name": "mean CIE 2000 difference over observers, white and stimuli", **with_white}),
             "p95_delta_e": ("calibration_observer", p95, {
-                "units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli"}),
-            "mean_delta_e_white": ("calibration_observer", white, {"units": "1", "long_name": "mean CIE 2000 difference of the white"}),
-            "mean_delta_e_stimuli": ("calibration_observer", stim, {"units": "1", "long_name": "mean CIE 2000 difference over the stimuli"}),
+                "units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli",
+                **with_white}),
+            "mean_delta_e_white": ("calibration_observer", white, {
+                "units": "1", "long_name": "mean CIE 2000 difference of the white", "pooled_over": "observers",
+                "includes_white": "only the white"}),
+            "mean_delta_e_stimuli": ("calibration_observer", stim, {
+                "units": "1", "long_name": "mean CIE 2000 difference over the stimuli", **without_white}),
         },
         coords=coords,
     )

@@ -1,10 +1,12 @@
-"""Summary statistics of mismatch results: per stimulus, per observer, by age band, shares beyond.
+"""The engine's summaries of mismatch results: per stimulus, per observer, by age band, shares beyond.
 
-Statistics over observers use the observers' ``weight`` coordinate when there is one (observer
-categories carry the share of the population each represents), otherwise equal weights.
-Weighted percentiles interpolate the weighted empirical distribution at the midpoints of each
-sample's weight (for equal weights this is the "hazen" plotting position); the unweighted case uses
-numpy's default linear method, so plain populations give the usual numpy numbers.
+Every number comes from the statistics layer (:mod:`metasim.statistics`, the only place
+summaries are computed), by its definitions: observers weighted by their ``weight`` coordinate
+when there is one (observer categories carry the share of the population each represents),
+otherwise equally; quantiles by numpy's linear method without weights and numpy's weighted
+``inverted_cdf`` with them. Plain populations take the fast path (one sort per summary and one
+compiled pass, :mod:`metasim.statistics.sorted_rows`). Each summary variable says in its
+attributes what it pools. This module keeps the age-band policy.
 """
 
 from __future__ import annotations
@@ -15,73 +17,21 @@ import numpy as np
 import xarray as xr
 
 from metasim._threads import blas_single_threaded
-from metasim.errors import MetasimError
 from metasim.colorimetry.tristimulus import _label_coordinate
-from metasim.metamerism._rowstats import observer_stimulus_stats, row_stats
+from metasim.errors import MetasimError
+from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_along
+from metasim.statistics import observer_weights as _statistics_weights
+from metasim.statistics.sorted_rows import observer_stimulus_stats
+from metasim.statistics.summaries import weights_note
 
-STATISTICS = ("mean", "median", "p95", "max")
-#: Common-practice thresholds of visibility for CIE 2000 differences (no source): 1 is about one
-#: just-noticeable difference, 2 noticeable side by side, 3 obvious.
-THRESHOLDS = (1.0, 2.0, 3.0)
 #: The default age-band policy: decade bands (edges at whole multiples of 10 years) that just cover
 #: the observers' ages, so no band is empty at either end (see :func:`decade_age_bands`).
 DECADES = "decades"
 
 
-def weighted_quantile(values: np.ndarray, weights: np.ndarray | None, q: float, axis: int) -> np.ndarray:
-    """Quantile ``q`` (0..1) along ``axis``; NaN entries are ignored."""
-    return _quantiles(values, weights, (q,), axis)[0]
-
-
-def _quantiles(values: np.ndarray, weights: np.ndarray | None, qs, axis: int, has_nan: bool | None = None) -> np.ndarray:
-    """Quantiles ``qs`` along ``axis`` in one pass (one partition or sort): shape (len(qs), ...)."""
-    if has_nan is None:
-        has_nan = bool(np.isnan(values).any())
-    if weights is None:
-        if has_nan:
-            return np.nanquantile(values, list(qs), axis=axis)
-        return np.quantile(values, list(qs), axis=axis)
-    moved = np.moveaxis(values, axis, -1)
-    w = np.broadcast_to(weights, moved.shape).astype(float)
-    w = np.where(np.isnan(moved), 0.0, w)
-    order = np.argsort(np.where(np.isnan(moved), np.inf, moved), axis=-1)
-    v = np.take_along_axis(moved, order, -1)
-    ws = np.take_along_axis(w, order, -1)
-    total = ws.sum(-1, keepdims=True)
-    position = (np.cumsum(ws, -1) - 0.5 * ws) / np.where(total > 0, total, 1.0)
-    flat_v = v.reshape(-1, v.shape[-1])
-    flat_p = position.reshape(-1, v.shape[-1])
-    flat_w = ws.reshape(-1, v.shape[-1])
-    qs = np.asarray(qs, dtype=float)
-    out = np.empty((qs.size, flat_v.shape[0]))
-    for i in range(flat_v.shape[0]):  # one interpolation per summary cell; cells are few
-        keep = flat_w[i] > 0
-        out[:, i] = np.interp(qs, flat_p[i][keep], flat_v[i][keep]) if keep.any() else np.nan
-    return out.reshape(qs.size, *v.shape[:-1])
-
-
-def _stats(values: np.ndarray, weights: np.ndarray | None, axis: int) -> np.ndarray:
-    has_nan = bool(np.isnan(values).any())
-    if weights is None and not has_nan and values.shape[axis] > 0:
-        moved = np.moveaxis(values, axis, -1)
-        return row_stats(moved.reshape(-1, moved.shape[-1])).reshape(len(STATISTICS), *moved.shape[:-1])
-    if weights is None:
-        mean = np.nanmean(values, axis=axis) if has_nan else np.mean(values, axis=axis)
-    else:
-        moved = np.moveaxis(values, axis, -1)
-        w = np.where(np.isnan(moved), 0.0, np.broadcast_to(weights, moved.shape))
-        mean = np.nansum(moved * w, -1) / np.where(w.sum(-1) > 0, w.sum(-1), np.nan)
-    median, p95 = _quantiles(values, weights, (0.5, 0.95), axis, has_nan)
-    return np.stack([mean, median, p95, np.nanmax(values, axis=axis) if has_nan else np.max(values, axis=axis)])
-
-
 def observer_weights(delta_e: xr.DataArray) -> np.ndarray | None:
-    if "weight" in delta_e.coords:
-        w = np.asarray(delta_e.coords["weight"].values, dtype=float)
-        if (w < 0).any() or not np.isfinite(w).all() or w.sum() <= 0:
-            raise MetasimError("observer weights must be finite, >= 0 and not all zero")
-        return w
-    return None
+    """The observers' ``weight`` coordinate (checked), or None for equal weights."""
+    return _statistics_weights(delta_e)
 
 
 def decade_age_bands(ages) -> list[int]:
@@ -250,12 +200,16 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
             np.stack([part[j] for part in parts], axis=-1).reshape(*parts[0][j].shape, *values.shape[2:])
             for j in range(4))
     else:
-        by_stimulus, share = _stats(values, weights, 0), None
-        by_observer = _stats(np.moveaxis(values, 1, 0), None, 0)
-    out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus,
-                                  {**statistic_attrs, "long_name": "statistics over observers, per stimulus"})
-    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer,
-                                  {**statistic_attrs, "long_name": "statistics over stimuli, per observer"})
+        by_stimulus = statistics_along(values, weights, 0)
+        share = share_beyond(values, t, weights, 0)
+        by_observer = statistics_along(values, None, 1)
+    pooled = {"includes_white": "no", "observer_weights": weights_note(weights)}
+    out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, {
+        **statistic_attrs, "long_name": "statistics over observers, per stimulus",
+        "pooled_over": "observers (per stimulus)", **pooled})
+    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer, {
+        **statistic_attrs, "long_name": "statistics over stimuli, per observer", "pooled_over": "stimuli (per observer)",
+        "includes_white": "no"})
     fixed = [_label_coordinate("statistic", STATISTICS)]
     if bands:
         band_labels, counts, members = bands
@@ -266,26 +220,25 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
                 continue
             block = values[inside].reshape(-1, *values.shape[2:])
             w = None if weights is None else np.repeat(weights[inside], values.shape[1])
-            blocks.append(_stats(block, w, 0))
+            blocks.append(statistics_along(block, w, 0))
         by_age = np.stack(blocks, axis=1)
         filled = [i for i, count in enumerate(counts) if count]
         if fast and filled:
             by_age[:, filled] = by_segment
         out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, {
-            **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band"})
+            **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band",
+            "pooled_over": "observer x stimulus pairs (per age band)", **pooled})
         out["observers_per_age_band"] = ("age_band", np.asarray(counts),
                                          {"units": "1", "long_name": "observers in each age band"})
         fixed.append(_label_coordinate("age_band", tuple(band_labels)))
-    if share is None:
-        w = np.ones(values.shape[0]) if weights is None else weights
-        w = w / w.sum()
-        above = values[None] > t.reshape(-1, *([1] * values.ndim))  # (threshold, observer, stimulus, ...)
-        share = np.tensordot(above.astype(float), w, axes=([1], [0]))
     out["share_beyond"] = (("threshold", "stimulus", *rest), share,
                            {"units": "1", "long_name": "share of observers beyond each threshold",
-                            "thresholds_source": "common practice, no source"})
+                            "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
+                            **pooled})
+    # every stimulus weighs the same, so the share of all pairs is the mean of the stimuli's shares
     out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1),
-                                   {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold"})
+                                   {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold",
+                                    "pooled_over": "observer x stimulus pairs", **pooled})
     threshold = _label_coordinate("threshold", tuple(t.tolist()))
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}
@@ -295,5 +248,5 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     return out, xr.Coordinates(variables, indexes=indexes)
 
 
-__all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels",
-           "weighted_quantile", "summarise", "summary_variables", "observer_weights"]
+__all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels", "summarise",
+           "summary_variables", "observer_weights"]

@@ -37,7 +37,9 @@ from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_li
 from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
                                     is_fit)
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
-from metasim.study import RESULT_KIND, as_study
+from metasim.statistics import population_statistics
+from metasim.statistics.headline import share_with_interval, with_interval
+from metasim.study import RESULT_KIND, as_study, study_headlines
 
 
 def is_sweep(ds: xr.Dataset) -> bool:
@@ -127,24 +129,47 @@ def report_figures(ds: xr.Dataset) -> dict:
 
 # -- sections --------------------------------------------------------------------------------------------
 
+def with_summaries(ds: xr.Dataset) -> xr.Dataset:
+    """A study-layout result with the tables over all pairs (and their intervals): a result that
+    lacks them (a plain :func:`metasim.mismatch` Dataset) gets them from the statistics layer."""
+    if "delta_e_2000" not in ds or "delta_e_2000_overall" in ds:
+        return ds
+    ds = ds.copy()
+    table = population_statistics(ds["delta_e_2000"], interval=True, pooled=str(ds.attrs.get("stimuli", "")) or None)
+    ds["delta_e_2000_overall"] = table["statistics"]
+    ds["delta_e_2000_overall_interval"] = table["statistics_interval"]
+    ds["share_beyond_overall"] = table["share_beyond"]
+    ds["share_beyond_overall_interval"] = table["share_beyond_interval"]
+    if "delta_e_white" in ds:
+        white = population_statistics(ds["delta_e_white"], over="observer", interval=True, pooled="the white",
+                                      includes_white=True)
+        ds["delta_e_white_overall"] = white["statistics"]
+        ds["delta_e_white_overall_interval"] = white["statistics_interval"]
+    ds.attrs.update({k: table.attrs[k] for k in ("interval_method", "interval_level", "interval_resamples",
+                                                  "interval_seed")})
+    return ds
+
+
+def _cell(ds: xr.Dataset, name: str, share: bool = False, **where) -> str:
+    """A table cell: the value with its interval in brackets when the result holds one."""
+    value = ds[name].sel(**where)
+    interval = ds[f"{name}_interval"].sel(**where) if f"{name}_interval" in ds else None
+    return share_with_interval(value, interval) if share else with_interval(value, interval)
+
+
 def _headline(ds: xr.Dataset) -> str:
-    if "delta_e_2000" not in ds:
+    if "delta_e_2000_overall" not in ds:
         return ""
     rows = []
     for name in ds["design"].values:
-        de = ds["delta_e_2000"].sel(design=name)
-        if "delta_e_2000_overall" in ds:
-            stats = ds["delta_e_2000_overall"].sel(design=name)
-            p95, median, mean = (float(stats.sel(statistic=s)) for s in ("p95", "median", "mean"))
-        else:
-            flat = de.values.ravel()
-            p95, median, mean = float(np.quantile(flat, 0.95)), float(np.median(flat)), float(flat.mean())
-        share = ds["share_beyond_overall"].sel(design=name) if "share_beyond_overall" in ds else None
-        row = [str(name), _num(mean), _num(median), _num(p95)]
+        row = [str(name)] + [_cell(ds, "delta_e_2000_overall", design=name, statistic=s) for s in ("mean", "median", "p95")]
         for t in (1.0, 2.0, 3.0):
-            row.append(_pct(share.sel(threshold=t)) if share is not None and t in share.threshold.values else "–")
-        white = ds["delta_e_white"].sel(design=name).values if "delta_e_white" in ds else np.array([np.nan])
-        row += [_num(np.median(white)), _num(np.quantile(white, 0.95))]
+            present = "share_beyond_overall" in ds and t in ds["threshold"].values
+            row.append(_cell(ds, "share_beyond_overall", True, design=name, threshold=t) if present else "–")
+        if "delta_e_white_overall" in ds:
+            row += [_cell(ds, "delta_e_white_overall", design=name, statistic=s) for s in ("median", "p95")]
+        else:
+            row += ["–", "–"]
         if "best_calibration_observer" in ds:
             row.append(str(ds["best_calibration_observer"].sel(design=name).values))
         rows.append(row)
@@ -152,11 +177,16 @@ def _headline(ds: xr.Dataset) -> str:
               "white ΔE00 median", "white ΔE00 95th pct"]
     if "best_calibration_observer" in ds:
         header.append("best calibration observer")
-    count = ds.sizes.get("observer", 0)
-    note = (f"<p>Over all {count} observers × {ds.sizes.get('stimulus', 0)} stimuli, against "
+    count = ds.sizes.get("observer", ds.attrs.get("observer_count", 0))
+    pooled = ds["delta_e_2000_overall"].attrs.get("pooled_stimuli") or f"{ds.sizes.get('stimulus', 0)} stimuli"
+    note = (f"<p>Over all {count} observers × {_e(pooled)} (the white not pooled: its own columns), against "
             f"{_e(ds.attrs.get('reference', 'the reference'))}, matched for "
-            f"{_e(ds.attrs.get('calibration_observer', ''))}.</p>")
-    return "<h2>Headline</h2>" + note + _table(header, rows)
+            f"{_e(ds.attrs.get('calibration_observer', ''))}.")
+    if "interval_level" in ds.attrs:
+        note += (f" In brackets: {100 * float(ds.attrs['interval_level']):g} % intervals from resampling observers "
+                 f"({ds.attrs.get('interval_resamples')} resamples, seed {ds.attrs.get('interval_seed')}).")
+    sentences = "".join(f"<p class='answer'>{_e(line)}</p>" for line in study_headlines(ds))
+    return "<h2>Headline</h2>" + sentences + note + "</p>" + _table(header, rows)
 
 
 def _gamut(ds: xr.Dataset) -> str:
@@ -219,9 +249,19 @@ def _choices(ds: xr.Dataset) -> str:
                 rows.append([str(name), str(cal), _num(ds["calibration_mean_delta_e"].sel(design=name, calibration_observer=cal)),
                              _num(ds["calibration_p95_delta_e"].sel(design=name, calibration_observer=cal)),
                              _num(ds["calibration_mean_delta_e_white"].sel(design=name, calibration_observer=cal))])
+        stimuli_only = "calibration_mean_delta_e_stimuli" in ds
+        if stimuli_only:
+            for row, (name, cal) in zip(rows, [(n, c) for n in ds["design"].values
+                                                for c in ds["calibration_observer"].values]):
+                row.append(_num(ds["calibration_mean_delta_e_stimuli"].sel(design=name, calibration_observer=cal)))
         parts.append("<h3>Calibration observer</h3><p>Each candidate observer used to match white and stimuli; "
-                     "CIE 2000 differences over the population, white and stimuli pooled.</p>"
-                     + _table(["design", "calibration observer", "mean ΔE00", "95th pct ΔE00", "mean white ΔE00"], rows))
+                     "CIE 2000 differences over the population. The mean and 95th percentile pool the white pair "
+                     "with the stimuli" + ("; the last column pools the stimuli only, as the headline does (for the "
+                                           "study's calibration observer it is the headline mean)" if stimuli_only
+                                           else "") + ".</p>"
+                     + _table(["design", "calibration observer", "mean ΔE00 (white + stimuli)",
+                               "95th pct ΔE00 (white + stimuli)", "mean white ΔE00"]
+                              + (["mean ΔE00 (stimuli only)"] if stimuli_only else []), rows))
     if "white_offset_xy" in ds:
         rows = []
         for name in ds["design"].values:
@@ -302,7 +342,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         body.append(_population(ds))
         body += [_image(png, caption) for png, caption in figures.values()]
     else:
-        body.append(_headline(ds))
+        body.append(_headline(with_summaries(ds)))
         if "age_bands" in figures:
             body.append(_image(*figures["age_bands"]))
         body.append(_by_age(ds))
@@ -364,5 +404,6 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     return write_text(path, render_report(ds, title=title, source=source, figures=figures), replace=replace)
 
 
-__all__ = ["CAUTIONS", "FIGURE_NAMES", "report_kind", "as_study", "is_sweep", "report_figures", "figure_pngs", "render_report",
+__all__ = ["with_summaries", "CAUTIONS", "FIGURE_NAMES", "report_kind", "as_study", "is_sweep", "report_figures",
+           "figure_pngs", "render_report",
            "report_outputs", "write_report"]

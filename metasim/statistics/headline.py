@@ -1,6 +1,7 @@
 """One-sentence answers with their intervals, for the command line and the reports.
 
-Numbers: values below 10 with two decimals, larger ones with one; shares as whole percentages;
+Numbers: values below 10 with two decimals, larger ones with one (a value and its interval share
+one precision); shares as whole percentages;
 each followed by its interval in brackets ("4.24 (3.90-4.61)", "87 % (84-90 %)").
 """
 
@@ -14,12 +15,16 @@ from metasim.statistics.comparison import half_width, observers_needed
 DASH = "\u2013"
 
 
-def number(value) -> str:
-    """A difference value as printed: two decimals below 10, one from 10 on."""
+def _decimals(*values) -> int:
+    return 2 if max(abs(float(v)) for v in values) < 10 else 1
+
+
+def number(value, decimals: int | None = None) -> str:
+    """A difference value as printed: two decimals below 10, one from 10 on (or ``decimals``)."""
     v = float(value)
     if not np.isfinite(v):
         return "n/a"
-    return f"{v:.2f}" if abs(v) < 10 else f"{v:.1f}"
+    return f"{v:.{_decimals(v) if decimals is None else decimals}f}"
 
 
 def _bounds(interval):
@@ -38,7 +43,8 @@ def with_interval(value, interval=None) -> str:
     bounds = _bounds(interval)
     if bounds is None:
         return number(value)
-    return f"{number(value)} ({number(bounds[0])}{DASH}{number(bounds[1])})"
+    digits = _decimals(value, *bounds)  # one precision for the value and its bounds
+    return f"{number(value, digits)} ({number(bounds[0], digits)}{DASH}{number(bounds[1], digits)})"
 
 
 def share_with_interval(value, interval=None) -> str:

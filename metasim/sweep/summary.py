@@ -35,8 +35,8 @@ from metasim.display import Display
 from metasim.errors import SweepError
 from metasim.gamut import chromaticity_gamut, gamut_coverage, lab_gamut_volume
 from metasim.metamerism import mismatch
-from metasim.metamerism._rowstats import row_stats
-from metasim.metamerism.summary import STATISTICS, observer_weights, weighted_quantile
+from metasim.metamerism.summary import STATISTICS, observer_weights
+from metasim.statistics import statistics_along
 from metasim.observers import standard_observer
 
 #: Reference gamuts of the coverage numbers.
@@ -44,20 +44,10 @@ COVERAGE_GAMUTS = ("bt709", "display_p3", "bt2020")
 
 
 def statistics_over(values: np.ndarray, weights: np.ndarray | None) -> np.ndarray:
-    """mean, median, p95, max along axis 0 (weights per row, NaN ignored): shape (4, ...)."""
-    values = np.asarray(values, dtype=float)
-    if weights is None and values.ndim >= 1 and values.shape[0] > 0 and not np.isnan(values).any():
-        # equal weights, no NaN: numpy's mean, linear quantiles and max, read off sorted columns
-        columns = np.ascontiguousarray(values.reshape(values.shape[0], -1).T)
-        return row_stats(columns).reshape(4, *values.shape[1:])
-    finite = ~np.isnan(values)
-    w = np.ones(values.shape[0]) if weights is None else np.asarray(weights, dtype=float)
-    w = np.where(finite, w.reshape(-1, *([1] * (values.ndim - 1))), 0.0)
-    total = w.sum(0)
-    mean = (np.where(finite, values, 0.0) * w).sum(0) / np.where(total > 0, total, np.nan)
-    median = weighted_quantile(values, weights, 0.5, 0)
-    p95 = weighted_quantile(values, weights, 0.95, 0)
-    return np.stack([mean, median, p95, np.nanmax(values, axis=0)])
+    """mean, median, p95, max along axis 0 (weights per row, NaN ignored): shape (4, ...), by the
+    statistics layer (:func:`metasim.statistics.statistics_along`; equal weights without NaN take
+    its sorted-row fast path)."""
+    return statistics_along(values, weights, 0)
 
 
 def _pairs_table(array: xr.DataArray, weights, long_name: str, units: str = "1") -> xr.DataArray:

@@ -4,4 +4,6 @@
             pass, window gathering, walks), and resample counts from raw random words (entry
             points first_pass, gather_windows, walk, resample_counts; used by
             :mod:`metasim.statistics.resampling`)
+``rowstats`` median, 95th percentile, maximum and shares beyond thresholds of sorted rows (entry
+            points sorted_rows, sorted_one; used by :mod:`metasim.statistics.sorted_rows`)
 """

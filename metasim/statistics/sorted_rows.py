@@ -1,4 +1,8 @@
-"""Compiled summary statistics of many rows: mean, median, 95th percentile and maximum.
+"""Unweighted statistics of many rows at once, read off rows sorted by numpy: the fast path.
+
+The statistics layer's definitions (:mod:`metasim.statistics.summaries`) for equal weights and no
+NaN, computed for many rows at once: mean, median, 95th percentile, maximum and shares beyond
+thresholds.
 
 Equal to numpy's ``mean``, ``quantile`` (default "linear" method: virtual index (n − 1)·q, the
 same interpolation formula) and ``max`` to rounding, for rows without NaN. The rows are sorted by
@@ -11,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from metasim.metamerism._kernels.rowstats import sorted_one, sorted_rows
+from metasim.statistics._kernels.rowstats import sorted_one, sorted_rows
 
 
 def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray | tuple[np.ndarray, np.ndarray]:
@@ -29,7 +33,6 @@ def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray |
     sorted_rows(ordered if axis == 1 else ordered.T, thresholds, out, shares)
     out[0] = rows.mean(axis=axis)
     return (out, shares) if thresholds.size else out
-
 
 
 def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
@@ -55,3 +58,6 @@ def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
         sorted_one(np.sort(pairs), thresholds[:0], by_segment, np.empty((0, len(segments))), g)
         by_segment[0, g] = pairs.mean()
     return by_stimulus, shares, by_observer, by_segment
+
+
+__all__ = ["row_stats", "observer_stimulus_stats"]

@@ -1,4 +1,4 @@
-"""Compiled pass behind :mod:`metasim.metamerism._rowstats`: quantiles, maximum and shares beyond
+"""Compiled pass behind :mod:`metasim.statistics.sorted_rows`: quantiles, maximum and shares beyond
 thresholds read off rows sorted by numpy (numpy's linear quantile: virtual index (n − 1)·q)."""
 
 from __future__ import annotations
