@@ -577,7 +577,7 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     gain = xr.concat(gains, dim=design_dim)
     parts = [blocks, mism, gain]
     if choices and len(choices) == len(designs):
-        parts.append(xr.concat(choices, dim=design_dim, combine_attrs="drop"))
+        parts.append(xr.concat(choices, dim=design_dim, combine_attrs="drop_conflicts"))
     if intervals and len(designs) == 2:  # the two designs seen by the same observers
         comparison = paired_comparison(mism["delta_e_2000"].isel(design=0, drop=True),
                                        mism["delta_e_2000"].isel(design=1, drop=True), labels=design_names,

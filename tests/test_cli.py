@@ -85,6 +85,11 @@ def test_evaluate_against_a_reference_display(evaluated):
     assert result.sizes["design"] == 1 and result.sizes["observer"] == 120
     assert {"delta_e_2000", "gamut_coverage", "lab_volume", "area_gain_share"} <= set(result.data_vars)
     assert not (out / "report.html").exists()
+    # the answer with its interval and the population-size advice (intervals on by default)
+    assert "95th percentile of" in done.stdout and "needs about" in done.stdout
+    lower, upper = result["delta_e_2000_overall_interval"].sel(statistic="p95").values.ravel()
+    assert lower < float(result["delta_e_2000_overall"].sel(statistic="p95", design=result["design"][0])) < upper
+    assert result.attrs["interval_resamples"] >= 200 and result.attrs["interval_level"] == 0.95
 
 
 def test_report_of_a_study_file(workdir, evaluated):
@@ -116,6 +121,20 @@ def test_compare_second_against_first(workdir, population_file):
     assert result.sizes["display"] == 2 and result.sizes["design"] == 1
     assert str(result["design"].values[0]) == "Four-laser projector (candidate A)"
     assert result.attrs["reference"] == "Grading monitor (reference)"
+
+
+def test_compare_two_designs_states_who_sees_which_closer(workdir, population_file):
+    out = workdir / "compare-two"
+    done = run("compare", FOUR_LASER, LASER_PHOSPHOR, "--reference", MONITOR, "--observers", population_file,
+               "--stimuli", "primaries", "--no-choices", "--no-report", "--out", out, "--quiet", "--resamples", 200)
+    result = metasim.load_dataset(out / "study.nc")
+    share = float(result["comparison_share_second_closer"])
+    assert 0.0 <= share <= 1.0 and "of viewers" in done.stdout.splitlines()[0]
+    assert result.attrs["interval_resamples"] == 200
+    bad = run("compare", FOUR_LASER, LASER_PHOSPHOR, "--reference", MONITOR, "--observers", population_file,
+              "--stimuli", "primaries", "--out", workdir / "bad-resamples", "--resamples", 50, check=False)
+    assert_one_line_error(bad)
+    assert "--resamples 50" in bad.stderr
 
 
 def test_demo_headline_numbers(workdir):

@@ -234,3 +234,38 @@ def test_small_engine_study_through_the_statistics_layer():
     low, high = table["statistics_interval"].sel(statistic="p95").values
     assert low < float(table["statistics"].sel(statistic="p95")) < high
     assert "95th percentile of" in design_headline(table, "lasers", "the monitor")
+
+
+def test_study_tables_say_what_they_pool_and_agree():
+    from metasim import emitters
+    from metasim.metamerism import combine, neutral_ramp, primaries_and_secondaries
+    from metasim.study import study_headlines
+
+    def display(name, peaks, widths):
+        spectra = emitters.gaussian(peaks, widths, name=["B", "G", "R"])
+        return metasim.calibrate_white(metasim.make_display(spectra, name=name), "cie1931_2")
+
+    monitor = display("monitor", [455, 535, 615], [25, 30, 35])
+    narrow, broad = display("narrow", [465, 530, 630], [5, 5, 5]), display("broad", [460, 532, 620], [20, 20, 20])
+    viewers = metasim.observer_population(80, seed=2, age_years=(20, 70))
+    stimuli = combine(neutral_ramp(3), primaries_and_secondaries())
+    study = metasim.run_study(monitor, [narrow, broad], viewers, stimuli, extra_peaks_nm=[500], white_categories=0,
+                              resamples=200, seed=4)
+    de = study["delta_e_2000"].sel(design="narrow").transpose("observer", "stimulus").values
+    overall = study["delta_e_2000_overall"].sel(design="narrow")
+    assert np.isclose(float(overall.sel(statistic="p95")), np.quantile(de, 0.95))  # numpy
+    # the headline pools the stimuli only; the calibration table's white-pooled mean differs, and its
+    # stimuli-only mean for the study's calibration observer is the headline mean (arithmetic)
+    stimuli_only = study["calibration_mean_delta_e_stimuli"].sel(design="narrow", calibration_observer="cie1931_2")
+    assert np.isclose(float(stimuli_only), float(overall.sel(statistic="mean")), rtol=1e-12)
+    white = study["delta_e_white"].sel(design="narrow").values
+    pooled = study["calibration_mean_delta_e"].sel(design="narrow", calibration_observer="cie1931_2")
+    assert np.isclose(float(pooled), np.mean(np.column_stack([white, de])))  # numpy, white pooled
+    assert study["delta_e_2000_overall"].attrs["includes_white"] == "no"
+    assert study["calibration_mean_delta_e"].attrs["includes_white"].startswith("yes")
+    assert "9 stimuli" in study["delta_e_2000_overall"].attrs["pooled_stimuli"]  # 3 + 7, white once
+    for name in ("delta_e_2000_by_stimulus", "delta_e_2000_by_age", "share_beyond", "share_beyond_overall"):
+        assert study[name].attrs["pooled_over"]
+    assert 0.0 <= float(study["comparison_share_second_closer"]) <= 1.0
+    lines = study_headlines(study)
+    assert "of viewers" in lines[0] and len(lines) == 5  # comparison, two designs, two advices
