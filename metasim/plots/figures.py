@@ -216,7 +216,10 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
     ``delta_e`` has dims ([``design``,] ``observer``, ``stimulus``) with an ``age_years``
     coordinate; ``age_bands`` are labels as in the engine's ``age_band`` coordinate (default: the
     engine's default bands, the decades covering the ages). Boxes span the quartiles, whiskers the 5th-95th percentiles; the diamond is the mean.
+    The box numbers come from :mod:`metasim.statistics` (observer weights when present).
     """
+    from metasim.statistics import observer_weights, quantiles, weighted_mean
+
     if "design" not in delta_e.dims:
         delta_e = delta_e.expand_dims(design=["design"])
     ages = np.asarray(delta_e.coords["age_years"].values, dtype=float)
@@ -232,17 +235,23 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
     with rc_context(STYLE):
         fig, axes = _figure(7.6, 4.6)
         ax = axes[0, 0]
+        weights = observer_weights(delta_e)
         for j, name in enumerate(designs):
             values = delta_e.sel(design=name).transpose("observer", "stimulus").values
-            data = [values[m].ravel() for m in masks]
             positions = np.arange(len(labels)) + (j - (len(designs) - 1) / 2) * width
-            keep = [k for k, d in enumerate(data) if d.size]
+            keep = [k for k, m in enumerate(masks) if m.any()]
             if not keep:
                 continue
-            box = ax.boxplot([data[k] for k in keep], positions=positions[keep], widths=width * 0.85,
-                             whis=(5, 95), showfliers=False, patch_artist=True, showmeans=True,
-                             meanprops={"marker": "D", "markerfacecolor": "white", "markeredgecolor": colours[name],
-                                        "markersize": 4})
+            stats = []
+            for k in keep:
+                pairs = values[masks[k]].ravel()
+                w = None if weights is None else np.repeat(weights[masks[k]], values.shape[1])
+                p5, q1, med, q3, p95 = quantiles(pairs, (0.05, 0.25, 0.5, 0.75, 0.95), w)
+                stats.append({"whislo": p5, "q1": q1, "med": med, "q3": q3, "whishi": p95,
+                              "mean": float(weighted_mean(pairs, w)), "fliers": []})
+            box = ax.bxp(stats, positions=positions[keep], widths=width * 0.85, showfliers=False, patch_artist=True,
+                         showmeans=True, meanprops={"marker": "D", "markerfacecolor": "white",
+                                                    "markeredgecolor": colours[name], "markersize": 4})
             for patch in box["boxes"]:
                 patch.set(facecolor=colours[name], alpha=0.55, edgecolor=colours[name])
             for part in ("whiskers", "caps", "medians"):
