@@ -29,7 +29,8 @@ th,td{border-bottom:1px solid #dcdad3;padding:5px 10px;text-align:right} th:firs
 th{background:#efece4} figure{margin:18px 0} figure img{max-width:100%;border:1px solid #e4e1d8;background:#fff}
 figcaption{color:#5b6270;font-size:.9em} pre{background:#f1efe8;padding:10px;overflow-x:auto;font-size:.85em}
 .caution{background:#fff4e5;border-left:4px solid #d9633b;padding:8px 14px;margin:8px 0}
-.headline{font-size:1.05em} .answer{font-size:1.05em;font-weight:600;color:#2b3a55;margin:6px 0} dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
+.headline{font-size:1.05em} .answer{font-size:1.05em;font-weight:600;color:#2b3a55;margin:6px 0}
+dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
 dt{font-weight:600;color:#3c4a66} dd{margin:0}
 """
 REFERENCE_NAMES = {"bt709": "BT.709", "display_p3": "Display P3", "dci_p3": "DCI-P3", "bt2020": "BT.2020"}

@@ -76,6 +76,14 @@ def paired_comparison(first: xr.DataArray, second: xr.DataArray, *, labels=("A",
         with its interval; ``share_second_closer`` — the weighted share of observers whose mean
         difference over the stimuli is smaller with B than with A (ties count half) — with
         ``share_second_closer_interval`` (bound).
+
+    Examples
+    --------
+    >>> import numpy as np, xarray as xr
+    >>> a = xr.DataArray(np.random.default_rng(1).gamma(2.0, 1.0, (60, 5)), dims=("observer", "stimulus"))
+    >>> result = paired_comparison(a, a - 0.5)  # B closer by 0.5 for every observer
+    >>> result["difference"].sel(statistic="mean").round(12).item(), result["share_second_closer"].item()
+    (-0.5, 1.0)
     """
     _same_observers(first, second)
     if len(labels) != 2 or labels[0] == labels[1]:
@@ -166,6 +174,15 @@ def rank_designs(replicates: xr.DataArray, point: xr.DataArray | None = None, *,
         ``indistinguishable_from_best`` (design): True where the interval of the paired difference
         to the best design reaches down to zero or below. Attributes ``best_design`` and
         ``best_set`` (the designs that cannot be told apart from the best, comma separated).
+
+    Examples
+    --------
+    >>> import numpy as np, xarray as xr
+    >>> replicates = xr.DataArray(np.array([[5.0, 4.0, 9.0], [4.5, 4.2, 9.1], [5.2, 3.9, 8.8]] * 100),
+    ...                           dims=("resample", "design"), coords={"design": ["a", "b", "c"]})
+    >>> ranking = rank_designs(replicates)
+    >>> ranking.attrs["best_design"], ranking.attrs["best_set"], ranking["best_probability"].values.round(2).tolist()
+    ('b', 'b', [0.0, 1.0, 0.0])
     """
     if "resample" not in replicates.dims or dim not in replicates.dims or replicates.ndim != 2:
         raise StatisticsError(f"rank_designs needs replicates with dims ('resample', '{dim}'), got {replicates.dims}")

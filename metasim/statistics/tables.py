@@ -108,6 +108,18 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
         of the maximum: NaN); with replicates ``statistics_replicates``,
         ``share_beyond_replicates`` (resample, …). Attributes say what is pooled, the weights,
         the quantile definition and the interval method, level, resamples and seed.
+
+    Examples
+    --------
+    >>> import numpy as np, xarray as xr
+    >>> values = xr.DataArray(np.arange(12.0).reshape(4, 3), dims=("observer", "stimulus"))
+    >>> table = population_statistics(values, thresholds=(5.0,))
+    >>> table["statistics"].values.tolist(), table["share_beyond"].values.tolist()  # numpy's linear quantiles
+    ([5.5, 5.5, 10.45, 11.0], [0.5])
+    >>> table.attrs["pooled_over"]
+    'observer x stimulus pairs'
+    >>> population_statistics(values, interval=True, seed=1)["statistics_interval"].dims
+    ('bound', 'statistic')
     """
     if not isinstance(values, xr.DataArray):
         raise StatisticsError(f"population statistics need a DataArray, got {type(values).__name__}")
