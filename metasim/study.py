@@ -510,7 +510,6 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         if not (isinstance(target_half_width, (int, float)) and np.isfinite(target_half_width) and target_half_width > 0):
             raise StatisticsError(f"target half-width {target_half_width!r} is not allowed; give a number > 0 "
                                   "(CIE 2000 units)")
-    pooled = f"{stimuli.sizes['stimulus']} stimuli ({stimuli.attrs.get('description', 'stimulus set')})"
     cie1931 = standard_observer(GAMUT_OBSERVER, default_grid().values)
     designs = list(designs)
     if designs and isinstance(designs[0], Display):  # colour-science inputs converted once, on the designs' grid
@@ -518,6 +517,7 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         if not isinstance(observers, xr.Dataset):
             observers = resolve_observers(observers, grid)
         stimuli = as_stimuli(stimuli, grid)
+    pooled = f"{stimuli.sizes['stimulus']} stimuli ({stimuli.attrs.get('description', 'stimulus set')})"
     displays = ([reference] if isinstance(reference, Display) else []) + designs
     roles = (["reference"] if isinstance(reference, Display) else []) + ["design"] * len(designs)
     blocks = display_blocks(displays, roles, cie1931, progress)
