@@ -3,6 +3,16 @@
 Every error raised on purpose by metasim derives from :class:`MetasimError`. Messages say what was
 wrong, the offending value and what is allowed, on one line, so the command-line interface can show
 them verbatim without a traceback.
+
+Code raises the subclass of its area, never :class:`MetasimError` itself: spectra
+(:class:`SpectrumError`, :class:`GridMismatchError`), observers (:class:`ObserverError`),
+colorimetry (:class:`ColorimetryError`), displays (:class:`DisplayError`), the mismatch engine and
+its summaries (:class:`MismatchError`, :class:`StimulusError`), gamut (:class:`GamutError`), sweeps
+(:class:`SweepError`), reports and tables (:class:`ReportError`), files read
+(:class:`FileFormatError`) and written (:class:`OutputError`), colour-science interchange
+(:class:`InteropError`), and the command line (:class:`OptionError`, :class:`SpecError`). Value
+checks shared by the areas live in :mod:`metasim.checks`; they take the subclass to raise as an
+argument.
 """
 
 from __future__ import annotations
@@ -36,8 +46,16 @@ class ObserverError(MetasimError, ValueError):
     """An observer name, parameter or population setting is outside what the model allows."""
 
 
+class ColorimetryError(MetasimError, ValueError):
+    """Tristimulus, CIELAB, ICtCp or colour-difference input has the wrong dims, shape or values."""
+
+
 class DisplayError(MetasimError, ValueError):
     """A display design, primary set, transfer function or drive request is not usable."""
+
+
+class MismatchError(MetasimError, ValueError):
+    """A mismatch study's reference, test display or options are not usable."""
 
 
 class GamutError(MetasimError, ValueError):
@@ -92,6 +110,22 @@ class OutputIsInputError(OutputError):
     """An output path names one of the command's input files (or two outputs name one file)."""
 
 
+class InteropError(MetasimError, ValueError):
+    """An object cannot be converted to or from colour-science (:mod:`metasim.interop`)."""
+
+
+class ReportError(MetasimError, ValueError):
+    """A report cannot be made: the result holds nothing this report can show."""
+
+
+class OptionError(MetasimError, ValueError):
+    """A command-line option's value cannot be read (an age range, age bands, an output name)."""
+
+
+class SpecError(MetasimError, ValueError):
+    """A display design spec or sweep spec cannot be read or names something metasim does not know."""
+
+
 __all__ = [
     "MetasimError",
     "MetasimWarning",
@@ -100,7 +134,9 @@ __all__ = [
     "EnergyOutsideGridError",
     "GridMismatchError",
     "ObserverError",
+    "ColorimetryError",
     "DisplayError",
+    "MismatchError",
     "GamutError",
     "StimulusError",
     "StatisticsError",
@@ -114,4 +150,8 @@ __all__ = [
     "OutputError",
     "OutputExistsError",
     "OutputIsInputError",
+    "InteropError",
+    "ReportError",
+    "OptionError",
+    "SpecError",
 ]

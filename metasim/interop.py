@@ -30,7 +30,7 @@ from __future__ import annotations
 import xarray as xr
 
 from metasim.display.model import Display
-from metasim.errors import MetasimError
+from metasim.errors import DisplayError, InteropError
 from metasim.observers.convert import is_colour_observer, observer_from_colour, observer_to_colour
 from metasim.spectra.convert import from_colour as spectra_from_colour
 from metasim.spectra.convert import METADATA, is_colour_collection, is_colour_spectrum, spectra_to_colour
@@ -57,7 +57,7 @@ def to_colour(obj, *, name: str | None = None):
     """
     if isinstance(obj, Display):
         if obj.batch_dims:
-            raise MetasimError(f"the display holds several designs ({obj.batch_dims}); select one with "
+            raise DisplayError(f"the display holds several designs ({obj.batch_dims}); select one with "
                                "Display.from_dataset(display.to_dataset().isel(design=i))")
         return spectra_to_colour(obj.spectra, name=name or obj.name)
     if isinstance(obj, xr.Dataset):
@@ -68,11 +68,11 @@ def to_colour(obj, *, name: str | None = None):
             return out
         if obj.attrs.get("kind") == "reflectance" and "reflectance" in obj:
             return spectra_to_colour(obj["reflectance"], name=name or str(obj.attrs.get("description", "reflectances")))
-        raise MetasimError("to_colour takes an observer Dataset (with 'cmf'), a reflectance stimulus set, a Display "
+        raise InteropError("to_colour takes an observer Dataset (with 'cmf'), a reflectance stimulus set, a Display "
                            f"or spectra; this Dataset has variables {sorted(map(str, obj.data_vars))}")
     if isinstance(obj, xr.DataArray):
         return spectra_to_colour(obj, name=name)
-    raise MetasimError(f"to_colour takes an observer Dataset, a Display, a reflectance stimulus set or a spectral "
+    raise InteropError(f"to_colour takes an observer Dataset, a Display, a reflectance stimulus set or a spectral "
                        f"DataArray, got {type(obj).__name__}")
 
 
@@ -97,7 +97,7 @@ def from_colour(obj, wavelengths=None, *, dim: str | None = None):
         return observer_from_colour(obj, wavelengths)
     if is_colour_spectrum(obj) or is_colour_collection(obj):
         return spectra_from_colour(obj, wavelengths, dim=dim)
-    raise MetasimError(f"from_colour takes colour-science spectral distributions or colour-matching functions, "
+    raise InteropError(f"from_colour takes colour-science spectral distributions or colour-matching functions, "
                        f"got {type(obj).__name__}")
 
 

@@ -44,7 +44,7 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
-from metasim.errors import FileFormatError, MetasimError, OutputError
+from metasim.errors import FileFormatError, OutputError, ReportError
 from metasim.io import atomic_output, check_outputs, write_text
 
 #: Dims whose variables are not summaries (spectra, functions of wavelength, polygon vertices).
@@ -188,7 +188,7 @@ def result_tables(ds, *, pairs: bool = False, attributes: bool = True) -> list[T
     if isinstance(ds, xr.DataArray):
         ds = ds.to_dataset(name=str(ds.name or "values"))
     if not isinstance(ds, xr.Dataset):
-        raise MetasimError(f"result_tables needs a result Dataset, got {type(ds).__name__}")
+        raise ReportError(f"result_tables needs a result Dataset, got {type(ds).__name__}")
     groups: dict[frozenset, list[str]] = {}
     order: dict[frozenset, tuple[str, ...]] = {}
     for name, variable in ds.data_vars.items():
@@ -225,8 +225,8 @@ def result_tables(ds, *, pairs: bool = False, attributes: bool = True) -> list[T
     if attributes and ds.attrs:
         tables.append(attributes_table(ds.attrs))
     if not tables:
-        raise MetasimError("the file holds no summary values to tabulate (only spectra, polygons or per observer x "
-                           "stimulus arrays; pairs=True tabulates the latter)")
+        raise ReportError("the file holds no summary values to tabulate (only spectra, polygons or per observer x "
+                          "stimulus arrays; pairs=True tabulates the latter)")
     return tables
 
 
@@ -338,9 +338,9 @@ def _openpyxl():
     try:
         import openpyxl
     except ImportError:
-        raise MetasimError("writing an .xlsx workbook needs the optional package openpyxl: "
-                           "pip install \"metasim[spreadsheet]\" (or pip install openpyxl); the CSV tables need "
-                           "nothing extra") from None
+        raise ReportError("writing an .xlsx workbook needs the optional package openpyxl: "
+                          "pip install \"metasim[spreadsheet]\" (or pip install openpyxl); the CSV tables need "
+                          "nothing extra") from None
     return openpyxl
 
 

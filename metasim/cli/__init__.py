@@ -56,7 +56,7 @@ from pathlib import Path
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range
-from metasim.errors import MetasimError
+from metasim.errors import FileFormatError, MetasimError, OptionError, ReportError, StimulusError
 
 PROG = "metasim"
 
@@ -132,7 +132,7 @@ def cmd_observers(args) -> int:
 
     out = Path(args.out)
     if out.suffix != ".nc":
-        raise MetasimError(f"--out {out}: give a netCDF file name ending in .nc")
+        raise OptionError(f"--out {out}: give a netCDF file name ending in .nc")
     population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories,
                                   extrapolate=args.extrapolate)
     save_dataset(population, out, replace=args.replace)
@@ -195,8 +195,8 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     stimuli_text = args.stimuli or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     if reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
-        raise MetasimError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
-                           "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
+        raise StimulusError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
+                            "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
     from metasim.metamerism.engine import check_mismatch_memory
 
     size = args.observer_set.sizes["observer"] if getattr(args, "observer_set", None) is not None else args.size
@@ -252,11 +252,11 @@ def cmd_report(args) -> int:
 
     data = load_dataset(args.result)
     if not hasattr(data, "data_vars"):
-        raise MetasimError(f"{args.result}: holds a single array, not a metasim result Dataset")
+        raise FileFormatError(f"{args.result}: holds a single array, not a metasim result Dataset")
     try:
         report_kind(data)
     except MetasimError as exc:
-        raise MetasimError(f"{args.result}: {exc}") from None
+        raise ReportError(f"{args.result}: {exc}") from None
     out = args.outputs[0]
     print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name, replace=args.replace, inputs=args.inputs)}")
     return 0
@@ -268,12 +268,12 @@ def cmd_tables(args) -> int:
 
     source = args.inputs[0]  # the result file, or sweep.nc of a store folder (metasim.cli.paths)
     if args.no_csv and not args.xlsx:
-        raise MetasimError("--no-csv without --xlsx writes nothing; give --xlsx FILE.xlsx or drop --no-csv")
+        raise OptionError("--no-csv without --xlsx writes nothing; give --xlsx FILE.xlsx or drop --no-csv")
     if args.xlsx:
         require_workbook_writer(args.xlsx)  # before anything is written
     data = load_dataset(source)
     if not hasattr(data, "data_vars"):
-        raise MetasimError(f"{source}: holds a single array, not a metasim result Dataset")
+        raise FileFormatError(f"{source}: holds a single array, not a metasim result Dataset")
     tables = result_tables(data, pairs=args.pairs)
     if not args.no_csv:
         out = Path(args.out) if args.out else source.parent / f"{source.stem}-tables"
@@ -355,8 +355,8 @@ def cmd_estimate(args) -> int:
             try:
                 primaries = [float(v) for v in primaries.split(",")]
             except ValueError:
-                raise MetasimError(f"--primaries {args.primaries!r}: give three wavelengths in nm "
-                                   "(e.g. 645.16,526.32,444.44) or a spectra CSV file") from None
+                raise OptionError(f"--primaries {args.primaries!r}: give three wavelengths in nm "
+                                  "(e.g. 645.16,526.32,444.44) or a spectra CSV file") from None
         data = read_matching_csv(source, primaries=primaries, references=args.references, display=display,
                                  field_size_deg=args.field_size, age_years=args.age)
     categories = False if args.no_categories else (load_dataset(args.categories) if args.categories else None)

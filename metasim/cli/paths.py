@@ -18,17 +18,13 @@ import math
 import tomllib
 from pathlib import Path
 
-from metasim.errors import FileFormatError, MetasimError
+from metasim.errors import FileFormatError, OptionError, SpecError
 from metasim.io import check_outputs, read_text_file
 
 RESULT_FILE = "study.nc"
 FIT_FILE = "fit.nc"
 REPORT_FILE = "report.html"
 FIGURES_DIR = "figures"
-
-
-class SpecError(MetasimError, ValueError):
-    """A display design spec or sweep spec cannot be read or names something metasim does not know."""
 
 
 def parse_range(text: str, what: str):
@@ -39,9 +35,9 @@ def parse_range(text: str, what: str):
     except ValueError:
         values = []
     if len(values) not in (1, 2) or not all(math.isfinite(v) for v in values):
-        raise MetasimError(f"{what} {text!r} is not a number or a LO-HI range of finite numbers, e.g. 20-70")
+        raise OptionError(f"{what} {text!r} is not a number or a LO-HI range of finite numbers, e.g. 20-70")
     if len(values) == 2 and values[0] > values[1]:
-        raise MetasimError(f"{what} {text!r}: LO {values[0]:g} is above HI {values[1]:g}; give LO-HI")
+        raise OptionError(f"{what} {text!r}: LO {values[0]:g} is above HI {values[1]:g}; give LO-HI")
     return values[0] if len(values) == 1 else tuple(values)
 
 

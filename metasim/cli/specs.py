@@ -45,15 +45,15 @@ The display is then white-calibrated (:func:`metasim.display.calibrate_white`) t
 
 from __future__ import annotations
 
-import math
 import warnings
 from pathlib import Path
 
 from metasim import emitters
-from metasim.cli.paths import SpecError, read_toml
+from metasim.checks import known_keys, number
+from metasim.cli.paths import read_toml
 from metasim.display import WHITE_POINTS, Display, calibrate_white, make_display
 from metasim.display.transfer import DEFAULT_PEAK_LUMINANCE, TRANSFER_FUNCTIONS
-from metasim.errors import MetasimError
+from metasim.errors import MetasimError, SpecError
 from metasim.observers import STANDARD_OBSERVERS
 from metasim.spectra import default_grid
 
@@ -81,25 +81,13 @@ def read_spec(path) -> dict:
     return read_toml(path, "design spec")
 
 
-def _unknown(where: str, table: dict, allowed) -> None:
-    extra = [k for k in table if k not in allowed and not k.startswith("_")]
-    if extra:
-        raise SpecError(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
-
-
 def _allowed(spec: dict) -> bool:
     """Whether spectra may lose more than 1 % of their energy outside the grid (load_display's option)."""
     return bool(spec.get("_allow_outside_grid", False))
 
 
 def _number(where: str, key: str, value, *, positive: bool = True) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise SpecError(f"{where}: {key} = {value!r} is not a number")
-    if not math.isfinite(value):
-        raise SpecError(f"{where}: {key} = {value!r} is not allowed; need a finite number")
-    if positive and value <= 0:
-        raise SpecError(f"{where}: {key} = {value!r} is not allowed; need a number > 0")
-    return float(value)
+    return number(value, f"{where}: {key}", error=SpecError, above=0.0 if positive else None, sep=" = ")
 
 
 def _backlight(spec: dict, where: str, grid):
@@ -108,11 +96,11 @@ def _backlight(spec: dict, where: str, grid):
         raise SpecError(f"{where}: primaries of type 'filter' need a [backlight] table")
     kind = table.get("type", "phosphor_white_led")
     if kind == "phosphor_white_led":
-        _unknown(f"{where} [backlight]", table, ("type", *BACKLIGHT_KEYS))
+        known_keys(table, ("type", *BACKLIGHT_KEYS), f"{where} [backlight]", error=SpecError)
         params = {k: _number(f"{where} [backlight]", k, v) for k, v in table.items() if k != "type"}
         return emitters.phosphor_white_led(grid, **params, allow_outside_grid=_allowed(spec))
     if kind == "measured":
-        _unknown(f"{where} [backlight]", table, ("type", "file", "column"))
+        known_keys(table, ("type", "file", "column"), f"{where} [backlight]", error=SpecError)
         spectra = _measured(spec, f"{where} [backlight]", table, grid)
         column = table.get("column", str(spectra.primary.values[0]))
         return _column(spectra, column, f"{where} [backlight]")
@@ -148,7 +136,7 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
     kind = table.get("type")
     if kind not in PRIMARY_TYPES:
         raise SpecError(f"{where}: type {kind!r} is not known; allowed: {', '.join(PRIMARY_TYPES)}")
-    _unknown(f"{where} ({kind})", table, (*COMMON_KEYS, *PRIMARY_TYPES[kind]))
+    known_keys(table, (*COMMON_KEYS, *PRIMARY_TYPES[kind]), f"{where} ({kind})", error=SpecError)
     missing = [k for k in REQUIRED[kind] if k not in table]
     if missing:
         raise SpecError(f"{where} ({kind}): missing key {missing[0]!r}")
@@ -184,7 +172,7 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
 def spec_settings(spec: dict) -> dict:
     """The display-level settings of a spec, checked, with defaults filled in."""
     where = str(spec["_path"])
-    _unknown(where, spec, TOP_KEYS)
+    known_keys(spec, TOP_KEYS, where, error=SpecError)
     transfer = spec.get("transfer", "bt1886")
     if transfer not in TRANSFER_FUNCTIONS:
         raise SpecError(f"{where}: transfer {transfer!r} is not known; allowed: {', '.join(TRANSFER_FUNCTIONS)}")

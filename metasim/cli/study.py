@@ -11,7 +11,7 @@ import time
 import xarray as xr
 
 from metasim.cli.paths import parse_range
-from metasim.errors import MetasimError
+from metasim.errors import MetasimError, StimulusError
 from metasim.metamerism import (
     cie_13_3_samples,
     combine,
@@ -65,7 +65,7 @@ def build_stimuli(tokens: str, *, source: str = "bt709", csv_kind: str = "rgb") 
             try:
                 n = int(count) if count else None
             except ValueError:
-                raise MetasimError(f"stimulus set {token!r}: {count!r} is not a whole number") from None
+                raise StimulusError(f"stimulus set {token!r}: {count!r} is not a whole number") from None
             try:
                 if name == "ramp":
                     sets.append(neutral_ramp(n or 6, source=source))
@@ -76,14 +76,14 @@ def build_stimuli(tokens: str, *, source: str = "bt709", csv_kind: str = "rgb") 
                 else:
                     sets.append(cie_13_3_samples())
             except MetasimError as exc:
-                raise MetasimError(f"stimulus set {token!r}: {exc}") from None
+                raise StimulusError(f"stimulus set {token!r}: {exc}") from None
         elif token.lower().endswith(".csv"):
             sets.append(read_stimuli_csv(token, csv_kind, source=source))
         else:
-            raise MetasimError(f"stimulus set {token!r} is not known; allowed: {', '.join(STIMULUS_SETS)} "
-                               "or a .csv file")
+            raise StimulusError(f"stimulus set {token!r} is not known; allowed: {', '.join(STIMULUS_SETS)} "
+                                "or a .csv file")
     if not sets:
-        raise MetasimError("no stimulus set given; allowed: " + ", ".join(STIMULUS_SETS) + " or a .csv file")
+        raise StimulusError("no stimulus set given; allowed: " + ", ".join(STIMULUS_SETS) + " or a .csv file")
     return combine(*sets)  # distinct colours: white in the ramp, the primaries and the cube is kept once
 
 

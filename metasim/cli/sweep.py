@@ -41,9 +41,10 @@ from pathlib import Path
 
 import numpy as np
 
-from metasim.cli.paths import SpecError, read_toml, relative_to
+from metasim.checks import known_keys, whole_number
+from metasim.cli.paths import read_toml, relative_to
 from metasim.cli.specs import load_display, spec_settings
-from metasim.errors import MetasimError
+from metasim.errors import MetasimError, SpecError
 from metasim.sweep import GRID_KINDS, design_grid
 
 TOP_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy",
@@ -54,16 +55,10 @@ DISPLAY_KEYS = ("transfer", "gamma", "peak_luminance", "black_luminance", "white
 MAX_RANGE_VALUES = 10_000
 
 
-def _unknown(where: str, table: dict, allowed) -> None:
-    extra = [k for k in table if k not in allowed and not str(k).startswith("_")]
-    if extra:
-        raise SpecError(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
-
-
 def value_list(where: str, value) -> list[float]:
     """A list of numbers from a number, a list, or a ``{start, stop, step}`` table (stop included)."""
     if isinstance(value, dict):
-        _unknown(where, value, ("start", "stop", "step"))
+        known_keys(value, ("start", "stop", "step"), where, error=SpecError)
         try:
             start, stop, step = (float(value[k]) for k in ("start", "stop", "step"))
         except KeyError as exc:
@@ -85,11 +80,11 @@ def read_sweep_spec(path) -> dict:
     """The parsed sweep spec (``_path``, ``_text`` added), its keys and value types checked."""
     spec = read_toml(path, "sweep spec")
     where = str(spec["_path"])
-    _unknown(where, spec, TOP_KEYS)
+    known_keys(spec, TOP_KEYS, where, error=SpecError)
     vary = spec.get("vary")
     if not isinstance(vary, dict):
         raise SpecError(f"{where}: a sweep spec needs a [vary] table with [vary.peaks_nm]")
-    _unknown(f"{where} [vary]", vary, VARY_KEYS)
+    known_keys(vary, VARY_KEYS, f"{where} [vary]", error=SpecError)
     kind = vary.get("kind", "laser")
     if kind not in GRID_KINDS:
         raise SpecError(f"{where} [vary]: kind {kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
@@ -99,9 +94,8 @@ def read_sweep_spec(path) -> dict:
     for key in ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy"):
         if key in spec and not isinstance(spec[key], str):
             raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
-    if "chunk_size" in spec and (isinstance(spec["chunk_size"], bool) or not isinstance(spec["chunk_size"], int)
-                                 or spec["chunk_size"] < 1):
-        raise SpecError(f"{where}: chunk_size = {spec['chunk_size']!r} is not allowed; need a whole number >= 1")
+    if "chunk_size" in spec:
+        whole_number(spec["chunk_size"], f"{where}: chunk_size", error=SpecError, minimum=1, sep=" = ")
     for key in ("lab_volume", "per_stimulus"):
         if key in spec and not isinstance(spec[key], bool):
             raise SpecError(f"{where}: {key} = {spec[key]!r} must be true or false")
@@ -110,7 +104,7 @@ def read_sweep_spec(path) -> dict:
             raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
         if not isinstance(spec["display"], dict):
             raise SpecError(f"{where}: display must be a table of display settings")
-        _unknown(f"{where} [display]", spec["display"], DISPLAY_KEYS)
+        known_keys(spec["display"], DISPLAY_KEYS, f"{where} [display]", error=SpecError)
     return spec
 
 

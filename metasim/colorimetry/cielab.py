@@ -9,7 +9,7 @@ from metasim.colorimetry._kernels.cielab import lab_of_ratios, lab_of_rows
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.colorimetry.tristimulus import labelled
-from metasim.errors import MetasimError
+from metasim.errors import ColorimetryError
 
 LAB = ("L*", "a*", "b*")
 
@@ -17,7 +17,7 @@ LAB = ("L*", "a*", "b*")
 def _need(array: xr.DataArray, dim: str, what: str) -> None:
     if not isinstance(array, xr.DataArray) or dim not in array.dims:
         got = tuple(array.dims) if isinstance(array, xr.DataArray) else type(array).__name__
-        raise MetasimError(f"{what} must be a DataArray with a '{dim}' dim, got {got}")
+        raise ColorimetryError(f"{what} must be a DataArray with a '{dim}' dim, got {got}")
 
 
 def _split(array: xr.DataArray, dim: str):
@@ -96,7 +96,7 @@ def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.Dat
     x = xy.sel(chromaticity="x", drop=True)
     y = xy.sel(chromaticity="y", drop=True)
     if (np.asarray(y) <= 0).any():
-        raise MetasimError("xy with y <= 0 has no XYZ; chromaticity y must be > 0")
+        raise ColorimetryError("xy with y <= 0 has no XYZ; chromaticity y must be > 0")
     big_y = x * 0 + luminance
     out = xr.concat([x * big_y / y, big_y, (1 - x - y) * big_y / y], dim="xyz").assign_coords(xyz=["X", "Y", "Z"])
     out = out.transpose(*[d for d in xy.dims if d != "chromaticity"], "xyz")
@@ -169,7 +169,7 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     _need(xyz, "xyz", "xyz")
     _need(white, "xyz", "white")
     if (np.asarray(white) <= 0).any():
-        raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+        raise ColorimetryError("the white must have X, Y, Z > 0 to define CIELAB")
     attrs = {"units": "1", "long_name": "CIELAB (CIE 1976 L*a*b*)"}
     if _aligned(xyz, white):
         # labels already agree: broadcast the bare variables by dim name, no alignment copies

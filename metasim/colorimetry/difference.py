@@ -19,7 +19,7 @@ import xarray as xr
 
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_pairs
 from metasim.colorimetry.tristimulus import labelled
-from metasim.errors import MetasimError
+from metasim.errors import ColorimetryError
 
 
 def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:
@@ -27,13 +27,13 @@ def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:
     a = np.asarray(lab_1, dtype=float)
     b = np.asarray(lab_2, dtype=float)
     if a.shape[-1:] != (3,) or b.shape[-1:] != (3,):
-        raise MetasimError(
+        raise ColorimetryError(
             f"CIELAB arrays need L*, a*, b* on the last axis (size 3); got shapes {a.shape} and {b.shape}"
         )
     try:
         a, b = np.broadcast_arrays(a, b)
     except ValueError:
-        raise MetasimError(f"CIELAB shapes {a.shape} and {b.shape} do not broadcast") from None
+        raise ColorimetryError(f"CIELAB shapes {a.shape} and {b.shape} do not broadcast") from None
     shape = a.shape[:-1]
     flat_a = np.ascontiguousarray(a).reshape(-1, 3)
     flat_b = np.ascontiguousarray(b).reshape(-1, 3)
@@ -81,10 +81,10 @@ def delta_e_2000(lab_1, lab_2, *, k_L: float = 1.0):
     """
     if isinstance(lab_1, xr.DataArray) or isinstance(lab_2, xr.DataArray):
         if not (isinstance(lab_1, xr.DataArray) and isinstance(lab_2, xr.DataArray)):
-            raise MetasimError("pass both CIELAB operands as DataArrays (dim 'lab') or both as arrays")
+            raise ColorimetryError("pass both CIELAB operands as DataArrays (dim 'lab') or both as arrays")
         for name, value in (("lab_1", lab_1), ("lab_2", lab_2)):
             if "lab" not in value.dims:
-                raise MetasimError(f"{name} has no 'lab' dim (dims {tuple(value.dims)})")
+                raise ColorimetryError(f"{name} has no 'lab' dim (dims {tuple(value.dims)})")
         attrs = {"units": "1", "long_name": "CIE 2000 colour difference", "k_L": float(k_L)}
         if _coordinates_agree(lab_1, lab_2):
             # no alignment needed: broadcast the bare variables by dim name (dims in order of

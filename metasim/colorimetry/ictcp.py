@@ -11,7 +11,7 @@ from functools import lru_cache
 import numpy as np
 import xarray as xr
 
-from metasim.errors import MetasimError
+from metasim.errors import ColorimetryError
 
 ICTCP = ("I", "Ct", "Cp")
 
@@ -61,7 +61,7 @@ def xyz_to_ictcp(xyz: xr.DataArray) -> xr.DataArray:
     0.5081
     """
     if not isinstance(xyz, xr.DataArray) or "xyz" not in xyz.dims:
-        raise MetasimError("xyz_to_ictcp needs a DataArray with an 'xyz' dim (absolute XYZ in cd/m2)")
+        raise ColorimetryError("xyz_to_ictcp needs a DataArray with an 'xyz' dim (absolute XYZ in cd/m2)")
     dims = [d for d in xyz.dims if d != "xyz"]
     values = xyz.transpose(*dims, "xyz").values
     rgb = values @ _xyz_to_bt2020().T
@@ -88,7 +88,7 @@ def delta_e_itp(ictcp_1: xr.DataArray, ictcp_2: xr.DataArray) -> xr.DataArray:
     """
     for name, value in (("ictcp_1", ictcp_1), ("ictcp_2", ictcp_2)):
         if not isinstance(value, xr.DataArray) or "ictcp" not in value.dims:
-            raise MetasimError(f"{name} must be a DataArray with an 'ictcp' dim")
+            raise ColorimetryError(f"{name} must be a DataArray with an 'ictcp' dim")
     diff = ictcp_1 - ictcp_2
     weights = xr.DataArray([1.0, 0.5, 1.0], dims="ictcp", coords={"ictcp": list(ICTCP)})
     out = 720.0 * np.sqrt(((diff * weights) ** 2).sum("ictcp"))

@@ -13,7 +13,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.colorimetry.integration import spectral_products
-from metasim.errors import MetasimError, SpectrumError
+from metasim.errors import ColorimetryError, SpectrumError
 from metasim.observers.convert import as_observer
 from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_step, require_same_grid
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
@@ -71,16 +71,16 @@ def observer_responses(observers, quantity: str = "xyz") -> xr.DataArray:
     if isinstance(observers, xr.Dataset):
         variable = "cmf" if quantity == "xyz" else "lms"
         if variable not in observers:
-            raise MetasimError(
+            raise ColorimetryError(
                 f"observers carry no '{variable}' variable (have {sorted(observers.data_vars)}); "
                 "cone excitations need an observer defined from cone fundamentals"
             )
         observers = observers[variable]
     if not isinstance(observers, xr.DataArray):
-        raise MetasimError(f"observers must be an xarray Dataset or DataArray, got {type(observers).__name__}")
+        raise ColorimetryError(f"observers must be an xarray Dataset or DataArray, got {type(observers).__name__}")
     channel = "xyz" if quantity == "xyz" else "cone"
     if channel not in observers.dims or "wavelength" not in observers.dims:
-        raise MetasimError(
+        raise ColorimetryError(
             f"observer functions need dims '{channel}' and 'wavelength', got {tuple(observers.dims)}"
         )
     return observers
@@ -107,7 +107,7 @@ def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
     r_dims = [d for d in responses.dims if d not in ("wavelength", channel_dim)]
     shared = set(s_dims) & set(r_dims)
     if shared:
-        raise MetasimError(
+        raise ColorimetryError(
             f"spectra and observer functions share dims {sorted(shared)}; rename one "
             "(only 'wavelength' may be shared)"
         )
@@ -178,10 +178,10 @@ def tristimulus(
     [0.333, 0.333]
     """
     if scale not in SCALES:
-        raise MetasimError(f"scale={scale!r} is not known; allowed: {', '.join(SCALES)}")
+        raise ColorimetryError(f"scale={scale!r} is not known; allowed: {', '.join(SCALES)}")
     channel = {"xyz": "xyz", "lms": "cone"}.get(quantity)
     if channel is None:
-        raise MetasimError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
+        raise ColorimetryError(f"quantity={quantity!r} is not known; allowed: xyz, lms")
     if is_colour_spectrum(spectra):  # colour-science input: on the observer's grid when it has one
         grid = observers if isinstance(observers, (xr.Dataset, xr.DataArray)) and "wavelength" in observers.dims else None
         spectra = as_spectra(spectra, wavelengths=grid, where="spectra")
@@ -198,7 +198,7 @@ def tristimulus(
     if scale == "relative":
         values = contract(spectra, responses, channel)
         if white is None:
-            raise MetasimError("scale='relative' needs a stated white spectrum (white=...)")
+            raise ColorimetryError("scale='relative' needs a stated white spectrum (white=...)")
         if set(white.dims) != {"wavelength"}:
             raise SpectrumError(f"white must have only a 'wavelength' dim, got {tuple(white.dims)}")
         white_values = contract(white, responses, channel)

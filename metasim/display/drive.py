@@ -44,7 +44,7 @@ from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.tristimulus import coordinates, labelled
-from metasim.errors import DisplayError, MetasimError
+from metasim.errors import DisplayError
 from metasim.spectra import integrate
 from metasim.display.model import Display, observer_name, resolve_observer
 from metasim.display.optics import observer_optics
@@ -446,7 +446,7 @@ class DriveSolution:
 
     def __init__(self, display, drive, achieved, t_abs, outside, white, batch, dims, sizes, base, strategy, observer):
         if (white <= 0).any():
-            raise MetasimError("the white must have X, Y, Z > 0 to define CIELAB")
+            raise DisplayError("the white must have X, Y, Z > 0 to define CIELAB")
         self.display, self.drive, self.reproduced, self.target = display, drive, achieved, t_abs
         self.out_of_gamut, self.white, self.batch, self.dims = outside, white, list(batch), tuple(dims)
         self.sizes, self.base, self.strategy, self.observer = list(sizes), base, strategy, observer

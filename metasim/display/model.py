@@ -34,7 +34,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
-from metasim.errors import DisplayError, MetasimError
+from metasim.errors import DisplayError
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_cmf, standard_observer
 from metasim.observers.convert import as_observer
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, check_spectra, grid_step, require_same_grid
@@ -234,7 +234,7 @@ class Display:
         observer_dims = [d for d in responses.dims if d not in ("xyz", "wavelength")]
         shared = set(observer_dims) & (set(batch) | set(drive.dims))
         if shared:
-            raise MetasimError(f"observer functions share dims {sorted(shared)} with the display or the drives; "
+            raise DisplayError(f"observer functions share dims {sorted(shared)} with the display or the drives; "
                                "rename one")
         spectra = self.spectra
         for d in set(batch) & set(drive.dims):

@@ -13,7 +13,7 @@ import xarray as xr
 
 from metasim.colorimetry.integration import spectral_products
 from metasim.colorimetry.tristimulus import K_M, grid_of, observer_responses
-from metasim.errors import DisplayError, MetasimError
+from metasim.errors import DisplayError
 
 
 def display_rows(display) -> np.ndarray:
@@ -69,7 +69,7 @@ def observer_optics(display, observer: xr.Dataset):
     extra = [d for d in responses.dims if d not in ("wavelength", "xyz")]
     shared = set(batch) & set(extra)
     if shared:
-        raise MetasimError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
+        raise DisplayError(f"spectra and observer functions share dims {sorted(shared)}; rename one "
                            "(only 'wavelength' may be shared)")
     if extra:
         raise DisplayError(f"the observer's functions vary along {extra}; give one observer (dims xyz, wavelength)")

@@ -14,13 +14,13 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from metasim.checks import number, seed_attributes, seed_generator, whole_number
 from metasim.errors import FittingError
 from metasim.fitting.fit import match_weights
 from metasim.fitting.forms import CMF_FORM, OBSERVATION, check_matching_data
 from metasim.fitting.model import predict
 from metasim.observers.physiological import DEVIATIONS, PARAMETER_ATTRS
 from metasim.observers.pigments import DEFAULT_PEAK_SHIFT_AXIS, check_peak_shift_axis
-from metasim.observers.population import _generator
 
 
 def synthetic_matches(plan: xr.Dataset, observers, *, setting_noise: float, seed, repeats: int = 1,
@@ -59,11 +59,10 @@ def synthetic_matches(plan: xr.Dataset, observers, *, setting_noise: float, seed
         peak_shift_axis = (observers.attrs.get("peak_shift_axis", DEFAULT_PEAK_SHIFT_AXIS)
                            if isinstance(observers, xr.Dataset) else DEFAULT_PEAK_SHIFT_AXIS)
     check_peak_shift_axis(peak_shift_axis)
-    if isinstance(repeats, bool) or not isinstance(repeats, (int, np.integer)) or repeats < 1:
-        raise FittingError(f"repeats={repeats!r}; give an integer >= 1")
-    if not np.isfinite(setting_noise) or setting_noise < 0:
-        raise FittingError(f"setting_noise={setting_noise!r}; give a number >= 0")
-    rng, seed_attrs = _generator(seed)
+    whole_number(repeats, "repeats", error=FittingError, minimum=1)
+    number(setting_noise, "setting_noise", error=FittingError, minimum=0.0)
+    rng, recorded_seed = seed_generator(seed, error=FittingError)
+    seed_attrs = seed_attributes(rng, recorded_seed)
     truth, _ = predict(md.geometry, params, ages, fields, peak_shift_axis=peak_shift_axis, jacobian=False)
     scale = 1.0 / match_weights(md, ages, fields, peak_shift_axis)  # (n, S)
     noise = rng.normal(size=(n, truth.shape[1], int(repeats), 3)) * (setting_noise * scale)[:, :, None, None]

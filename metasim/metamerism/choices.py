@@ -15,7 +15,7 @@ import xarray as xr
 from metasim._version import __version__
 from metasim.colorimetry import tristimulus, xyz_to_uv, xyz_to_xy
 from metasim.display import Display, calibrate_white
-from metasim.errors import MetasimError
+from metasim.errors import MismatchError
 from metasim.metamerism.engine import (
     mismatch,
     reference_white_spectrum,
@@ -77,7 +77,7 @@ def rank_calibration_observers(
     (5, True)
     """
     if not candidates:
-        raise MetasimError("candidates is empty; give at least one calibration observer")
+        raise MismatchError("candidates is empty; give at least one calibration observer")
     if isinstance(test, Display):  # colour-science inputs converted once, not once per candidate
         grid = test.wavelengths.values
         reference, stimuli = resolve_reference(reference, grid), as_stimuli(stimuli, grid)
@@ -87,7 +87,7 @@ def rank_calibration_observers(
         result = mismatch(reference, test, observers, stimuli, calibration_observer=candidate, **options)
         de = result["delta_e_2000"]
         if "design" in de.dims:
-            raise MetasimError("rank_calibration_observers takes a single test design; select one with .isel(design=i)")
+            raise MismatchError("rank_calibration_observers takes a single test design; select one with .isel(design=i)")
         stimuli_only = de.transpose("observer", "stimulus").values
         pooled = np.concatenate([result["delta_e_white"].values[:, None], stimuli_only], axis=1)
         weights = observer_weights(de)
@@ -171,7 +171,7 @@ def white_point_offsets(
     {'observer': 2, 'chromaticity': 2}
     """
     if not isinstance(test, Display):
-        raise MetasimError(f"test must be a Display, got {type(test).__name__}")
+        raise MismatchError(f"test must be a Display, got {type(test).__name__}")
     grid = test.wavelengths
     group = resolve_observers(categories, grid)
     if stimuli is not None:

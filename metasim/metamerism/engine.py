@@ -45,7 +45,7 @@ from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.display import Display, calibrate_white
 from metasim.display.drive import drive_solution
 from metasim.display.optics import display_matrices, observer_xyz
-from metasim.errors import MetasimError, StimulusError
+from metasim.errors import MismatchError, ObserverError, StimulusError
 from metasim.metamerism.stimuli import as_stimuli, check_stimuli, stimulus_illuminant
 from metasim.metamerism.summary import DECADES, THRESHOLDS, observer_weights, summary_variables
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
@@ -72,33 +72,33 @@ def resolve_observers(observers, wavelengths) -> xr.Dataset:
         observers = [observers]
     if isinstance(observers, (list, tuple)):
         if not observers:
-            raise MetasimError("the observer set is empty; give at least one observer")
+            raise ObserverError("the observer set is empty; give at least one observer")
         parts, labels = [], []
         for item in observers:
             if is_colour_observer(item):
                 converted = as_observer(item, wavelengths)
                 if "cmf" not in converted:
-                    raise MetasimError(f"observer {str(item.name)!r} holds cone fundamentals only; mismatch "
-                                       "needs XYZ colour-matching functions (XYZ_ColourMatchingFunctions)")
+                    raise ObserverError(f"observer {str(item.name)!r} holds cone fundamentals only; mismatch "
+                                        "needs XYZ colour-matching functions (XYZ_ColourMatchingFunctions)")
                 parts.append(converted[["cmf"]])
                 labels.append(str(item.name))
                 continue
             if not isinstance(item, str) or item not in STANDARD_OBSERVERS:
-                raise MetasimError(f"observer {item!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}, "
-                                   "colour-science XYZ_ColourMatchingFunctions, or an observer Dataset")
+                raise ObserverError(f"observer {item!r} is not a standard observer; allowed: {', '.join(STANDARD_OBSERVERS)}, "
+                                    "colour-science XYZ_ColourMatchingFunctions, or an observer Dataset")
             parts.append(standard_observer(item, wavelengths)[["cmf"]])
             labels.append(item)
         if len(set(labels)) != len(labels):
-            raise MetasimError(f"observer names {labels} repeat; each observer needs a unique name")
+            raise ObserverError(f"observer names {labels} repeat; each observer needs a unique name")
         ds = xr.concat(parts, dim="observer", combine_attrs="drop_conflicts")
         return ds.assign_coords(observer=labels)
     if not isinstance(observers, xr.Dataset) or "cmf" not in observers:
-        raise MetasimError("observers must be standard observer names, colour-science colour-matching functions "
-                           "or an observer Dataset with a 'cmf' variable")
+        raise ObserverError("observers must be standard observer names, colour-science colour-matching functions "
+                            "or an observer Dataset with a 'cmf' variable")
     if "observer" not in observers.dims:
         observers = observers.expand_dims(observer=[str(observers.attrs.get("observer", "observer"))])
     if observers.sizes["observer"] == 0:
-        raise MetasimError("the observer set is empty; give at least one observer")
+        raise ObserverError("the observer set is empty; give at least one observer")
     require_same_grid(observers, wavelengths, names=("observers", "displays"))
     return observers
 
@@ -115,7 +115,7 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
             ds = xr.Dataset({"cmf": cmf}, attrs={"observer": "population_mean"})
             return ds, "population_mean"
         if calibration_observer not in STANDARD_OBSERVERS:
-            raise MetasimError(
+            raise ObserverError(
                 f"calibration observer {calibration_observer!r} is not known; allowed: "
                 f"{', '.join(STANDARD_OBSERVERS)}, population_mean, or an observer Dataset"
             )
@@ -126,12 +126,12 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
         ds = calibration_observer
         if "observer" in ds.dims:
             if ds.sizes["observer"] != 1:
-                raise MetasimError("the calibration observer must be one observer; select it with .isel(observer=i)")
+                raise ObserverError("the calibration observer must be one observer; select it with .isel(observer=i)")
             ds = ds.isel(observer=0, drop=True)
         require_same_grid(ds, wavelengths, names=("calibration observer", "displays"))
         return ds, str(ds.attrs.get("observer", "custom"))
-    raise MetasimError("calibration_observer must be a standard observer name, 'population_mean', an observer Dataset "
-                       "or colour-science XYZ_ColourMatchingFunctions")
+    raise ObserverError("calibration_observer must be a standard observer name, 'population_mean', an observer Dataset "
+                        "or colour-science XYZ_ColourMatchingFunctions")
 
 
 def resolve_reference(reference, wavelengths):
@@ -151,7 +151,7 @@ def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Displa
     if isinstance(reference, Display):
         require_same_grid(reference.spectra, test.spectra, names=("reference display", "test display"))
         if reference.batch_dims:
-            raise MetasimError(f"the reference display must be a single design, got dims {reference.batch_dims}")
+            raise MismatchError(f"the reference display must be a single design, got dims {reference.batch_dims}")
         return reference.white_spectrum(), "display"
     if isinstance(reference, str) and reference == "objects":
         if stimuli is None or stimuli.attrs.get("kind") != "reflectance":
@@ -161,15 +161,15 @@ def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Displa
         illuminant = reference
         require_same_grid(illuminant, test.spectra, names=("reference illuminant", "test display"))
     else:
-        raise MetasimError("reference must be a Display, 'objects', or an illuminant spectrum (a wavelength-only "
-                           f"DataArray or a colour-science SpectralDistribution), got {type(reference).__name__}")
+        raise MismatchError("reference must be a Display, 'objects', or an illuminant spectrum (a wavelength-only "
+                            f"DataArray or a colour-science SpectralDistribution), got {type(reference).__name__}")
     if object_white_luminance is None:
         object_white_luminance = float(test.white_tristimulus(calibration).sel(xyz="Y").max())
     if not np.isfinite(object_white_luminance) or object_white_luminance <= 0:
-        raise MetasimError(f"object_white_luminance={object_white_luminance!r} cd/m2 is not allowed; must be > 0")
+        raise MismatchError(f"object_white_luminance={object_white_luminance!r} cd/m2 is not allowed; must be > 0")
     y = float(tristimulus(illuminant, calibration).sel(xyz="Y"))
     if y <= 0:
-        raise MetasimError("the reference illuminant has no luminance for the calibration observer")
+        raise MismatchError("the reference illuminant has no luminance for the calibration observer")
     white = illuminant * (object_white_luminance / y)
     white.attrs = {"units": RADIANCE_UNITS, "long_name": "radiance of a perfect white diffuser under the illuminant"}
     return white, "objects"
@@ -287,9 +287,9 @@ def mismatch(
     ({'observer': 4, 'stimulus': 3}, True)
     """
     if not isinstance(test, Display):
-        raise MetasimError(f"test must be a Display, got {type(test).__name__}")
+        raise MismatchError(f"test must be a Display, got {type(test).__name__}")
     if adapted_white not in ADAPTED_WHITES:
-        raise MetasimError(f"adapted_white={adapted_white!r} is not known; allowed: {', '.join(ADAPTED_WHITES)}")
+        raise MismatchError(f"adapted_white={adapted_white!r} is not known; allowed: {', '.join(ADAPTED_WHITES)}")
     grid = test.wavelengths
     stimuli = as_stimuli(stimuli, grid.values)
     reference = resolve_reference(reference, grid.values)

@@ -25,7 +25,7 @@ from __future__ import annotations
 import xarray as xr
 
 from metasim.colorimetry import delta_e_2000, xyz_to_lab
-from metasim.errors import MetasimError
+from metasim.errors import MismatchError
 
 CORRECTIONS = ("additive", "multiplicative")
 
@@ -65,7 +65,7 @@ def observer_metamerism_index(
     ISO 18314-4:2024; colour-science ``XYZ_to_metamerism_index`` / ``Lab_to_metamerism_index``.
     """
     if correction not in CORRECTIONS:
-        raise MetasimError(f"correction={correction!r} is not known; allowed: {', '.join(CORRECTIONS)}")
+        raise MismatchError(f"correction={correction!r} is not known; allowed: {', '.join(CORRECTIONS)}")
     if space == "xyz":
         if correction == "additive":
             corrected = xyz_sample_t - (xyz_sample_r - xyz_standard_r)
@@ -74,7 +74,7 @@ def observer_metamerism_index(
         out = delta_e_2000(xyz_to_lab(xyz_standard_t, white_t), xyz_to_lab(corrected, white_t))
     elif space == "lab":
         if white_r is None:
-            raise MetasimError("space='lab' needs white_r, the white of the reference condition")
+            raise MismatchError("space='lab' needs white_r, the white of the reference condition")
         lab_spl_t = xyz_to_lab(xyz_sample_t, white_t)
         lab_std_t = xyz_to_lab(xyz_standard_t, white_t)
         lab_spl_r = xyz_to_lab(xyz_sample_r, white_r)
@@ -85,7 +85,7 @@ def observer_metamerism_index(
             corrected = lab_spl_t * (lab_std_r / lab_spl_r)
         out = delta_e_2000(lab_std_t, corrected)
     else:
-        raise MetasimError(f"space={space!r} is not known; allowed: xyz, lab")
+        raise MismatchError(f"space={space!r} is not known; allowed: xyz, lab")
     out.attrs = {"units": "1", "long_name": f"metamerism index, {correction} correction in {space.upper()}"}
     return out.rename("metamerism_index")
 

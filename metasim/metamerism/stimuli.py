@@ -43,10 +43,12 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from metasim.checks import is_number
 from metasim.errors import DuplicateStimulusWarning, FileFormatError, StimulusError
 from metasim.io import read_text_file
-from metasim.spectra import WAVELENGTH_ATTRS, _is_number, check_wavelengths, default_grid, read_spectra_csv, resample
-from metasim.spectra.convert import as_spectra, is_colour_collection, is_colour_spectrum, unlabelled_message
+from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv, resample
+from metasim.spectra.convert import (as_spectra, from_colour, is_colour_collection, is_colour_spectrum,
+                                     unlabelled_message)
 
 KINDS = ("rgb", "xyz", "reflectance")
 RGB = ("R", "G", "B")
@@ -115,14 +117,9 @@ def cie_13_3_samples(*, wavelengths=None, illuminant="D65") -> xr.Dataset:
     """
     from colour.quality.datasets.tcs import SDS_TCS
 
-    samples = SDS_TCS["CIE 1995"]
     grid = check_wavelengths(default_grid() if wavelengths is None else wavelengths, where="stimulus grid")
-    names = list(samples)
-    values = []
-    for name in names:
-        sd = samples[name]
-        values.append(np.interp(grid, np.asarray(sd.wavelengths, float), np.asarray(sd.values, float)))
-    return reflectance_set(np.array(values), grid, names,
+    table = from_colour(SDS_TCS["CIE 1995"], dim="stimulus", units="1", long_name="spectral reflectance factor")
+    return reflectance_set(resample(table, grid, warn_share=None).values, grid, list(table["stimulus"].values),
                            illuminant=illuminant, description="CIE 13.3-1995 test colour samples")
 
 
@@ -372,9 +369,8 @@ def illuminant_spectrum(name, wavelengths) -> xr.DataArray:
     if not isinstance(name, str):
         return _illuminant_of_spectrum(name, check_wavelengths(wavelengths, where="illuminant grid"))
     _check_illuminant(name)
-    sd = colour.SDS_ILLUMINANTS[name]
     grid = check_wavelengths(wavelengths, where="illuminant grid")
-    values = np.interp(grid, np.asarray(sd.wavelengths, float), np.asarray(sd.values, float), left=0.0, right=0.0)
+    values = resample(from_colour(colour.SDS_ILLUMINANTS[name]), grid, warn_share=None).values
     return xr.DataArray(values, dims=("wavelength",), coords={"wavelength": ("wavelength", grid, dict(WAVELENGTH_ATTRS))},
                         attrs={"units": "1", "long_name": f"CIE illuminant {name} (relative)"}, name=name)
 
@@ -478,7 +474,7 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
         try:
             rows.append([float(c) for c in record[1:]])
         except ValueError:
-            bad = next(c for c in record[1:] if not _is_number(c))
+            bad = next(c for c in record[1:] if not is_number(c))
             raise FileFormatError(f"{path}:{line_no}: cell {bad.strip()!r} is not a number") from None
         labels.append(record[0].strip())
     if header is None:

@@ -18,7 +18,7 @@ import xarray as xr
 
 from metasim._threads import blas_single_threaded
 from metasim.colorimetry.tristimulus import _label_coordinate
-from metasim.errors import MetasimError
+from metasim.errors import MismatchError
 from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_along
 from metasim.statistics import observer_weights as _statistics_weights
 from metasim.statistics.sorted_rows import observer_stimulus_stats
@@ -65,7 +65,7 @@ def decade_age_bands(ages) -> list[int]:
     """
     ages = np.asarray(ages, dtype=float).ravel()
     if ages.size == 0 or not np.isfinite(ages).all():
-        raise MetasimError(f"age bands need finite ages in years, got {ages.tolist()[:5]}")
+        raise MismatchError(f"age bands need finite ages in years, got {ages.tolist()[:5]}")
     lo, hi = math.floor(ages.min() / 10) * 10, math.ceil(ages.max() / 10) * 10
     edges = list(range(int(lo), int(hi) + 1, 10))
     return edges if len(edges) >= 2 else [int(lo), int(lo) + 10]
@@ -82,19 +82,19 @@ def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
         return None
     if isinstance(age_bands, str):
         if age_bands != DECADES:
-            raise MetasimError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band "
-                               "edges in years")
+            raise MismatchError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band "
+                                "edges in years")
         return tuple(decade_age_bands(ages))
     if np.ndim(age_bands) != 1:
-        raise MetasimError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band edges "
-                           "in years")
+        raise MismatchError(f"age_bands={age_bands!r} is not allowed; give {DECADES!r} or ascending band edges "
+                            "in years")
     try:
         edges = np.asarray(age_bands, dtype=float)
     except (TypeError, ValueError):
         edges = np.array([np.nan])
     if edges.size < 2 or not np.isfinite(edges).all() or (np.diff(edges) <= 0).any():
-        raise MetasimError(f"age_bands={list(age_bands)!r} is not allowed; give at least two ascending, finite band "
-                           "edges in years")
+        raise MismatchError(f"age_bands={list(age_bands)!r} is not allowed; give at least two ascending, finite band "
+                            "edges in years")
     years = np.asarray(getattr(ages, "values", ages), dtype=float)
     years = years[np.isfinite(years)]
     if years.size:
@@ -102,9 +102,9 @@ def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
         for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):
             last = i == edges.size - 2
             if hi < low or lo > high or (hi == low and not last):
-                raise MetasimError(f"age band {_band_label(lo, hi, last)} (age_bands={[float(e) for e in edges]}) lies "
-                                   f"outside the observers' ages ({low:.4g}-{high:.4g} years) and would hold no "
-                                   "observer; give band edges within their ages")
+                raise MismatchError(f"age band {_band_label(lo, hi, last)} (age_bands={[float(e) for e in edges]}) lies "
+                                    f"outside the observers' ages ({low:.4g}-{high:.4g} years) and would hold no "
+                                    "observer; give band edges within their ages")
     return tuple(float(e) for e in edges)
 
 
@@ -115,8 +115,8 @@ def check_thresholds(thresholds) -> tuple[float, ...]:
     except (TypeError, ValueError):
         values = np.array([np.nan])
     if values.ndim != 1 or values.size == 0 or not np.isfinite(values).all() or (values < 0).any():
-        raise MetasimError(f"thresholds={thresholds!r} is not allowed; give at least one finite CIE 2000 difference "
-                           f">= 0, e.g. {THRESHOLDS}")
+        raise MismatchError(f"thresholds={thresholds!r} is not allowed; give at least one finite CIE 2000 difference "
+                            f">= 0, e.g. {THRESHOLDS}")
     return tuple(float(v) for v in values)
 
 
@@ -146,7 +146,7 @@ def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS
     """
     for dim in ("observer", "stimulus"):
         if dim not in delta_e.dims:
-            raise MetasimError(f"summaries need an '{dim}' dim, got {tuple(delta_e.dims)}")
+            raise MismatchError(f"summaries need an '{dim}' dim, got {tuple(delta_e.dims)}")
     rest = [d for d in delta_e.dims if d not in ("observer", "stimulus")]
     values = np.asarray(delta_e.variable.transpose("observer", "stimulus", *rest).values, dtype=float)
     coords_in = delta_e.coords
@@ -168,7 +168,7 @@ def _age_bands(ages, age_bands):
     """Labels, observer counts and membership masks of the age bands [lo, hi) (the last one closed)."""
     edges = np.asarray(age_bands, dtype=float)
     if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
-        raise MetasimError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
+        raise MismatchError(f"age_bands={list(age_bands)} is not allowed; give ascending band edges in years")
     ages = np.asarray(ages, dtype=float)
     labels, counts, members = [], [], []
     for i, (lo, hi) in enumerate(zip(edges[:-1], edges[1:])):

@@ -31,15 +31,14 @@ Proc. SODA 2007, 1027-1035.
 
 from __future__ import annotations
 
-from numbers import Integral
-
 import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
+from metasim.checks import seed_generator, whole_number
 from metasim.colorimetry.integration import spectral_products
 from metasim.errors import ObserverError
-from metasim.spectra import check_wavelengths
+from metasim.spectra import check_wavelengths, from_colour, resample
 
 NARROW_BAND_PEAKS_NM = tuple(range(450, 651, 25))
 NARROW_BAND_FWHM_NM = 20.0
@@ -58,7 +57,7 @@ def _stimuli(wl: np.ndarray) -> tuple[np.ndarray, np.ndarray, list[str]]:
     from colour.quality.datasets.tcs import SDS_TCS
 
     def sample(sd):
-        return np.interp(wl, np.asarray(sd.wavelengths, float), np.asarray(sd.values, float), left=0.0, right=0.0)
+        return resample(from_colour(sd), wl, warn_share=None).values
 
     white = sample(colour.SDS_ILLUMINANTS["D65"])
     samples = SDS_TCS["CIE 1995"]
@@ -211,14 +210,9 @@ def observer_categories(population: xr.Dataset, k: int, *, seed) -> xr.Dataset:
     (3, 1.0)
     """
     n = _population_cmf(population).sizes["observer"]
-    if isinstance(k, bool) or not isinstance(k, Integral) or not 1 <= k <= n:
-        raise ObserverError(f"k={k!r} is not allowed; need an integer number of categories 1-{n} (the population size)")
-    if isinstance(seed, np.random.Generator):
-        rng, seed_attr = seed, "numpy Generator"
-    elif isinstance(seed, Integral) and not isinstance(seed, bool) and seed >= 0:
-        rng, seed_attr = np.random.default_rng(int(seed)), int(seed)
-    else:
-        raise ObserverError(f"seed={seed!r} is not allowed; give an integer >= 0 or a numpy.random.Generator")
+    k = whole_number(k, "k", error=ObserverError, minimum=1, maximum=n,
+                     note="the number of categories, at most the population size")
+    rng, seed_attr = seed_generator(seed, error=ObserverError)
     features = observer_features(population)
     points = features.values.reshape(n, -1)
     points = points - points.mean(0)

@@ -67,17 +67,20 @@ import xarray as xr
 
 from metasim._paths import data_dir
 from metasim._version import __version__
+from metasim.checks import numbers
 from metasim.errors import ObserverError
 from metasim.observers.pigments import (DEFAULT_ABSORBANCE_INTERPOLATION, DEFAULT_PEAK_SHIFT_AXIS, PEAK_SHIFT_AXES,
                                         check_absorbance_interpolation, check_peak_shift_axis, shifted_absorbance)
 from metasim.observers.standard import CONES, XYZ
-from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv
+from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv, resample
 
 DATA_DIR = data_dir()
 #: Native grid of the model (nm): the sampling of the shipped tables and of the S&S fundamentals.
 BASE_WAVELENGTHS = np.arange(390.0, 831.0, 1.0)
 AGE_RANGE_YEARS = (20.0, 80.0)
 FIELD_RANGE_DEG = (1.0, 10.0)
+#: The ranges of the model's two observer parameters (CIE 170-1:2006): name -> (range, units).
+PARAMETER_RANGES = {"age_years": (AGE_RANGE_YEARS, "years"), "field_size_deg": (FIELD_RANGE_DEG, "degrees")}
 #: Last wavelength (nm) at which the S-cone is defined (CIE 170-1:2006).
 S_CONE_LIMIT_NM = 615.0
 #: Peak densities of the 2° inversion (CIE 170-1:2006): macula, and L, M, S photopigment.
@@ -118,7 +121,7 @@ BLOCK_OBSERVERS = 1024
 @lru_cache(maxsize=4)
 def _density_table(filename: str) -> np.ndarray:
     table = read_spectra_csv(DATA_DIR / filename, units="1", long_name="optical density")
-    return np.interp(BASE_WAVELENGTHS, table["wavelength"].values, table.values[0], left=0.0, right=0.0)
+    return resample(table, BASE_WAVELENGTHS, warn_share=None).values[0]
 
 
 def _peak(values: np.ndarray, wavelengths: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -190,14 +193,14 @@ def _cie170_age_factor(age: np.ndarray) -> np.ndarray:
     return np.where(age <= 60.0, 1.0 + 0.02 * (age - 32.0), 1.56 + 0.0667 * (age - 60.0))
 
 
-def _ocular_density(age: np.ndarray, lens_components: xr.Dataset | None) -> np.ndarray:
-    """D_ocul (n × base grid) for ages ``age`` (n,)."""
-    age = np.asarray(age, dtype=float)[:, None]
+def _ocular_density(age_years: np.ndarray, lens_components: xr.Dataset | None) -> np.ndarray:
+    """D_ocul (n × base grid) for ages ``age_years`` (n,)."""
+    age_years = np.asarray(age_years, dtype=float)[:, None]
     if lens_components is None:
-        density = _density_table("lens_density_32y_1nm.csv") + (age**2 - 32.0**2) * _ageing_terms(BASE_WAVELENGTHS)
+        density = _density_table("lens_density_32y_1nm.csv") + (age_years**2 - 32.0**2) * _ageing_terms(BASE_WAVELENGTHS)
     else:
         d1, d2 = (_to_base(lens_components[name]) for name in ("lens_density_1", "lens_density_2"))
-        density = d1 * _cie170_age_factor(age) + d2
+        density = d1 * _cie170_age_factor(age_years) + d2
     return np.maximum(density, 0.0)
 
 
@@ -247,13 +250,13 @@ def ocular_media_density(age_years=32, wavelengths=None, *, lens_components: xr.
     ----------
     CIE 170-1:2006; CIE 203:2012; van de Kraats & van Norren (2007) JOSA A 24, 1842.
     """
-    age = _check_range("age_years", age_years, AGE_RANGE_YEARS, "years", extrapolate)
+    age_years = check_parameter("age_years", age_years, extrapolate)
     wl = _grid(wavelengths)
     model = ("CIE 170-1:2006 two-component formula" if lens_components is not None
              else "van de Kraats & van Norren (2007) / CIE 203:2012 ageing of the age-32 table")
-    density = _to_grid(_ocular_density(age.reshape(1), lens_components)[0], wl)
+    density = _to_grid(_ocular_density(age_years.reshape(1), lens_components)[0], wl)
     return xr.DataArray(density, dims=("wavelength",), coords={"wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
-                        attrs={"units": "1", "long_name": "ocular media optical density", "age_years": float(age[0]),
+                        attrs={"units": "1", "long_name": "ocular media optical density", "age_years": float(age_years[0]),
                                "model": model})
 
 
@@ -264,7 +267,7 @@ def _grid(wavelengths) -> np.ndarray:
 
 
 def _to_base(array: xr.DataArray) -> np.ndarray:
-    return np.interp(BASE_WAVELENGTHS, array["wavelength"].values, array.values, left=0.0, right=0.0)
+    return resample(array, BASE_WAVELENGTHS, warn_share=None).values
 
 
 def _to_grid(values: np.ndarray, wl: np.ndarray) -> np.ndarray:
@@ -278,26 +281,31 @@ def _to_grid(values: np.ndarray, wl: np.ndarray) -> np.ndarray:
     return np.where((wl >= BASE_WAVELENGTHS[0]) & (wl <= BASE_WAVELENGTHS[-1]), out, 0.0)
 
 
-def _check_range(name: str, value, allowed: tuple[float, float], units: str, extrapolate: bool) -> np.ndarray:
-    values = np.atleast_1d(np.asarray(value, dtype=float))
-    bad = ~np.isfinite(values) | (values <= 0)
-    if not extrapolate:
-        bad |= (values < allowed[0]) | (values > allowed[1])
-    if bad.any():
-        offending = values[np.argmax(bad)]
-        rule = "a finite value > 0 (extrapolate=True)" if extrapolate else (
-            f"{allowed[0]:g}-{allowed[1]:g} {units} (or extrapolate=True)")
-        raise ObserverError(f"{name}={offending:g} is outside the CIE 170-1 model; allowed: {rule}")
-    return values
+def check_parameter(name: str, values, extrapolate: bool = False) -> np.ndarray:
+    """An age or field size (one number or a vector) checked against the model's range.
+
+    ``name`` is ``"age_years"`` or ``"field_size_deg"`` (:data:`PARAMETER_RANGES`); with
+    ``extrapolate`` any finite value > 0 is allowed. Returns the values as a float64 vector.
+
+    Raises
+    ------
+    ObserverError
+        Naming the first value outside the range and the range (CIE 170-1:2006).
+    """
+    if extrapolate:
+        return numbers(values, name, error=ObserverError, above=0.0, note="extrapolate=True")
+    (low, high), units = PARAMETER_RANGES[name]
+    return numbers(values, name, error=ObserverError, minimum=low, maximum=high, units=units,
+                   note="CIE 170-1 model; or extrapolate=True")
 
 
-def _xyz_matrices(field: np.ndarray) -> np.ndarray:
+def _xyz_matrices(field_size_deg: np.ndarray) -> np.ndarray:
     """CIE 170-2 LMS->XYZ matrix per observer (n × 3 × 3), linear in field size between 2° and 10°."""
-    weight = np.clip((field - 2.0) / 8.0, 0.0, 1.0)[:, None, None]
+    weight = np.clip((field_size_deg - 2.0) / 8.0, 0.0, 1.0)[:, None, None]
     return XYZ_MATRIX_2DEG * (1.0 - weight) + XYZ_MATRIX_10DEG * weight
 
 
-def _observer_functions(params: dict, wl: np.ndarray, lens_components=None,
+def _observer_functions(parameters: dict, wl: np.ndarray, lens_components=None,
                         peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
                         interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> tuple[np.ndarray, np.ndarray]:
     """LMS and XYZ functions (n × 3 × len(wl)) for parameter vectors of length n.
@@ -305,40 +313,40 @@ def _observer_functions(params: dict, wl: np.ndarray, lens_components=None,
     Each block of up to :data:`BLOCK_OBSERVERS` observers is one set of numpy array operations
     (no per-observer Python code); blocks keep the temporaries small enough to stay in cache.
     """
-    n = params["age_years"].size
+    n = parameters["age_years"].size
     lms = np.empty((n, 3, wl.size))
     xyz = np.empty((n, 3, wl.size))
     for start in range(0, n, BLOCK_OBSERVERS):
         part = slice(start, start + BLOCK_OBSERVERS)
-        block = {k: v[part] for k, v in params.items()}
-        block_lms, block_xyz = _block_functions(block["age_years"], block["field_size_deg"], block, lens_components,
+        block_lms, block_xyz = _block_functions({k: v[part] for k, v in parameters.items()}, lens_components,
                                                 peak_shift_axis, interpolation)
         lms[part], xyz[part] = _to_grid(block_lms, wl), _to_grid(block_xyz, wl)
     return lms, xyz
 
 
-def _block_functions(age, field, deviations: dict, lens_components=None,
+def _block_functions(parameters: dict, lens_components=None,
                      peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
                      interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> tuple[np.ndarray, np.ndarray]:
     """LMS and XYZ functions (n × 3 × base grid) for parameter vectors of length n, array-wise."""
     wl = BASE_WAVELENGTHS
     absorbance, peak_nm = _absorbances()
-    n = age.size
+    age_years, field_size_deg = parameters["age_years"], parameters["field_size_deg"]
+    n = age_years.size
 
     def factor(name):
-        return np.maximum(1.0 + deviations[name] / 100.0, 0.0)
+        return np.maximum(1.0 + parameters[name] / 100.0, 0.0)
 
-    macular_peak = 0.485 * np.exp(-field / 6.132) * factor("macular_density_pct")
+    macular_peak = 0.485 * np.exp(-field_size_deg / 6.132) * factor("macular_density_pct")
     density = np.outer(macular_peak / 0.35, _density_table("macular_density_2deg_1nm.csv"))
-    density += _ocular_density(age, lens_components) * factor("lens_density_pct")[:, None]
+    density += _ocular_density(age_years, lens_components) * factor("lens_density_pct")[:, None]
     transmittance = np.exp(density * -np.log(10.0))  # 10^(−D), exp being faster than pow
-    pigment = np.exp(-field / 1.333)
+    pigment = np.exp(-field_size_deg / 1.333)
     peak_density = np.stack([
         (0.38 + 0.54 * pigment) * factor("l_density_pct"),
         (0.38 + 0.54 * pigment) * factor("m_density_pct"),
         (0.30 + 0.45 * pigment) * factor("s_density_pct"),
     ], axis=1)
-    shift = np.stack([deviations[f"{c}_shift_nm"] for c in "lms"], axis=1)
+    shift = np.stack([parameters[f"{c}_shift_nm"] for c in "lms"], axis=1)
     if np.any(shift != 0):
         absorbance = shifted_absorbance(wl, absorbance, peak_nm, shift, peak_shift_axis, interpolation=interpolation)
     else:
@@ -348,22 +356,27 @@ def _block_functions(age, field, deviations: dict, lens_components=None,
     np.expm1(lms, out=lms)
     lms *= (-wl * transmittance)[:, None, :]
     lms /= _peak(lms, wl)[0][..., None]
-    xyz = np.einsum("nij,njw->niw", _xyz_matrices(field), lms)
+    xyz = np.einsum("nij,njw->niw", _xyz_matrices(field_size_deg), lms)
     return lms, xyz
 
 
-def _parameter_vectors(age_years, field_size_deg, deviations: dict, extrapolate: bool) -> dict:
-    age = _check_range("age_years", age_years, AGE_RANGE_YEARS, "years", extrapolate)
-    field = _check_range("field_size_deg", field_size_deg, FIELD_RANGE_DEG, "degrees", extrapolate)
+def observer_parameters(age_years, field_size_deg, deviations: dict, extrapolate: bool = False) -> dict:
+    """Checked parameter vectors of n observers: ``age_years``, ``field_size_deg`` and the eight
+    :data:`DEVIATIONS` (missing ones 0), each a float64 vector of length n (numbers broadcast).
+
+    Raises
+    ------
+    ObserverError
+        An age or field size outside the model (:func:`check_parameter`), an unknown or non-finite
+        deviation, or vectors of different lengths.
+    """
     unknown = set(deviations) - set(DEVIATIONS)
     if unknown:
         raise ObserverError(f"unknown deviation(s) {sorted(unknown)}; allowed: {', '.join(DEVIATIONS)}")
-    arrays = {"age_years": age, "field_size_deg": field}
+    arrays = {"age_years": check_parameter("age_years", age_years, extrapolate),
+              "field_size_deg": check_parameter("field_size_deg", field_size_deg, extrapolate)}
     for name in DEVIATIONS:
-        value = np.atleast_1d(np.asarray(deviations.get(name, 0.0), dtype=float))
-        if not np.isfinite(value).all():
-            raise ObserverError(f"{name}={value[~np.isfinite(value)][0]!r}; allowed: a finite number")
-        arrays[name] = value
+        arrays[name] = numbers(deviations.get(name, 0.0), name, error=ObserverError)
     try:
         shapes = np.broadcast_shapes(*(v.shape for v in arrays.values()))
     except ValueError:
@@ -404,18 +417,32 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
     >>> dict(observers["lms"].sizes), observers["age_years"].values.tolist()
     ({'observer': 3, 'cone': 3, 'wavelength': 441}, [25.0, 45.0, 65.0])
     """
-    params = _parameter_vectors(age_years, field_size_deg, deviations, extrapolate)
+    parameters = observer_parameters(age_years, field_size_deg, deviations, extrapolate)
     check_peak_shift_axis(peak_shift_axis)
     check_absorbance_interpolation(absorbance_interpolation)
+    return observers_dataset(parameters, wavelengths=wavelengths, extrapolate=extrapolate,
+                             lens_components=lens_components, peak_shift_axis=peak_shift_axis,
+                             absorbance_interpolation=absorbance_interpolation)
+
+
+def observers_dataset(parameters: dict, *, wavelengths=None, extrapolate: bool = False,
+                      lens_components: xr.Dataset | None = None,
+                      peak_shift_axis: str = DEFAULT_PEAK_SHIFT_AXIS,
+                      absorbance_interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> xr.Dataset:
+    """The observer Dataset of :func:`physiological_observers` for parameters already checked by
+    :func:`observer_parameters` (or drawn inside the checked ranges, as populations do) and a
+    checked ``peak_shift_axis`` and ``absorbance_interpolation``. ``extrapolate`` is only recorded
+    in the attributes here.
+    """
     wl = _grid(wavelengths)
-    lms, xyz = _observer_functions(params, wl, lens_components, peak_shift_axis, absorbance_interpolation)
-    n = params["age_years"].size
+    lms, xyz = _observer_functions(parameters, wl, lens_components, peak_shift_axis, absorbance_interpolation)
+    n = parameters["age_years"].size
     coords = {
         "observer": ("observer", np.arange(n), {"long_name": "observer index", "units": "1"}),
         "cone": ("cone", list(CONES), {"long_name": "cone class"}),
         "xyz": ("xyz", list(XYZ), {"long_name": "CIE tristimulus channel"}),
         "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS)),
-        **{k: ("observer", v, dict(PARAMETER_ATTRS[k])) for k, v in params.items()},
+        **{k: ("observer", v, dict(PARAMETER_ATTRS[k])) for k, v in parameters.items()},
     }
     return xr.Dataset(
         {
@@ -512,11 +539,15 @@ __all__ = [
     "PEAK_SHIFT_AXES",
     "DEFAULT_PEAK_SHIFT_AXIS",
     "FIELD_RANGE_DEG",
+    "PARAMETER_RANGES",
     "DEVIATIONS",
     "XYZ_MATRIX_2DEG",
     "XYZ_MATRIX_10DEG",
     "cie2006_observer",
     "physiological_observers",
+    "check_parameter",
+    "observer_parameters",
+    "observers_dataset",
     "low_density_absorbance",
     "ocular_media_density",
     "read_lens_components",

@@ -29,21 +29,17 @@ PLoS ONE 11(2), e0145671. CIE 170-1:2006; CIE 170-2:2015.
 from __future__ import annotations
 
 import json
-from numbers import Integral, Real
+from numbers import Real
 
 import numpy as np
 import xarray as xr
 
 from metasim._memory import largest_fitting, require_memory
+from metasim.checks import number, seed_attributes, seed_generator, whole_number
 from metasim.errors import ObserverError
 from metasim.spectra import as_wavelengths, default_grid
-from metasim.observers.physiological import (
-    AGE_RANGE_YEARS,
-    DEFAULT_PEAK_SHIFT_AXIS,
-    DEVIATIONS,
-    FIELD_RANGE_DEG,
-    physiological_observers,
-)
+from metasim.observers.physiological import DEFAULT_PEAK_SHIFT_AXIS, DEVIATIONS, check_parameter, observers_dataset
+from metasim.observers.pigments import check_absorbance_interpolation, check_peak_shift_axis
 
 #: Default standard deviations of the eight deviations (from memory of Asano et al. 2016).
 DEFAULT_SD = {
@@ -65,33 +61,20 @@ POPULATION_MODEL = (
 )
 
 
-def _generator(seed) -> tuple[np.random.Generator, dict]:
-    if isinstance(seed, np.random.Generator):
-        state = json.dumps(seed.bit_generator.state, default=int)
-        return seed, {"seed": "numpy Generator", "generator_state": state}
-    if isinstance(seed, bool) or not isinstance(seed, Integral) or seed < 0:
-        raise ObserverError(f"seed={seed!r} is not allowed; give an integer >= 0 or a numpy.random.Generator")
-    return np.random.default_rng(int(seed)), {"seed": int(seed)}
+def _draw(name: str, spec, n: int, rng: np.random.Generator, extrapolate: bool):
+    """Draw n values of an age or field size following ``spec``; return (values, description).
 
+    Every value the spec states is checked here (:func:`~metasim.observers.physiological.check_parameter`),
+    so every draw lies inside the model's range and is not checked again.
+    """
+    def checked(value) -> float:
+        return float(check_parameter(name, value, extrapolate)[0])
 
-def _check_value(name: str, value, allowed: tuple[float, float], extrapolate: bool) -> float:
-    if isinstance(value, bool) or not isinstance(value, Real) or not np.isfinite(value) or value <= 0:
-        raise ObserverError(f"{name} value {value!r} is not allowed; need a finite number > 0")
-    if not extrapolate and not allowed[0] <= value <= allowed[1]:
-        raise ObserverError(
-            f"{name}={value:g} is outside the CIE 170-1 model; allowed: {allowed[0]:g}-{allowed[1]:g} "
-            "(or extrapolate=True)"
-        )
-    return float(value)
-
-
-def _draw(name: str, spec, n: int, rng: np.random.Generator, allowed, extrapolate: bool):
-    """Draw n values of an age or field size following ``spec``; return (values, description)."""
     if isinstance(spec, Real) and not isinstance(spec, bool):
-        value = _check_value(name, spec, allowed, extrapolate)
+        value = checked(spec)
         return np.full(n, value), {"distribution": "fixed", "value": value}
     if isinstance(spec, (tuple, list)) and len(spec) == 2:
-        lo, hi = (_check_value(name, v, allowed, extrapolate) for v in spec)
+        lo, hi = (checked(v) for v in spec)
         if lo > hi:
             raise ObserverError(f"{name} range ({lo:g}, {hi:g}) is not allowed; need lo <= hi")
         return rng.uniform(lo, hi, n), {"distribution": "uniform", "low": lo, "high": hi}
@@ -107,11 +90,11 @@ def _draw(name: str, spec, n: int, rng: np.random.Generator, allowed, extrapolat
     bins, weights = [], []
     for key, weight in spec.items():
         if isinstance(key, (tuple, list)) and len(key) == 2:
-            lo, hi = (_check_value(name, v, allowed, extrapolate) for v in key)
+            lo, hi = (checked(v) for v in key)
             if lo > hi:
                 raise ObserverError(f"{name} histogram bin ({lo:g}, {hi:g}) is not allowed; need lo <= hi")
         else:
-            lo = hi = _check_value(name, key, allowed, extrapolate)
+            lo = hi = checked(key)
         if not isinstance(weight, Real) or not np.isfinite(weight) or weight < 0:
             raise ObserverError(f"{name} histogram weight {weight!r} for {key!r} is not allowed; need a number >= 0")
         bins.append((lo, hi))
@@ -183,30 +166,31 @@ def observer_population(
     >>> population.sizes["observer"], bool(population["age_years"].min() >= 20), population.attrs["seed"]
     (5, True, 1)
     """
-    if isinstance(n, bool) or not isinstance(n, Integral) or n < 1:
-        raise ObserverError(f"n={n!r} is not allowed; a population needs an integer number of observers >= 1")
+    n = whole_number(n, "n", error=ObserverError, minimum=1, note="the number of observers")
     sds = {
         "lens_density_pct": sd_lens_density_pct, "macular_density_pct": sd_macular_density_pct,
         "l_density_pct": sd_l_density_pct, "m_density_pct": sd_m_density_pct,
         "s_density_pct": sd_s_density_pct, "l_shift_nm": sd_l_shift_nm,
         "m_shift_nm": sd_m_shift_nm, "s_shift_nm": sd_s_shift_nm,
     }
-    for name, sd in sds.items():
-        if isinstance(sd, bool) or not isinstance(sd, Real) or not np.isfinite(sd) or sd < 0:
-            raise ObserverError(f"sd_{name}={sd!r} is not allowed; a standard deviation must be a finite number >= 0")
-    rng, seed_attrs = _generator(seed)
-    n = int(n)
+    sds = {name: number(sd, f"sd_{name}", error=ObserverError, minimum=0.0, note="a standard deviation")
+           for name, sd in sds.items()}
+    check_peak_shift_axis(peak_shift_axis)
+    check_absorbance_interpolation(absorbance_interpolation)
+    rng, recorded_seed = seed_generator(seed, error=ObserverError)
+    seed_attrs = seed_attributes(rng, recorded_seed)
     points = as_wavelengths(default_grid() if wavelengths is None else wavelengths).size
     require_memory(POPULATION_BYTES_PER_POINT * n * points, f"a population of {n:,} observers",
                    f"use at most about {largest_fitting(POPULATION_BYTES_PER_POINT * points):,} observers")
-    ages, age_spec = _draw("age_years", age_years, n, rng, AGE_RANGE_YEARS, extrapolate)
-    fields, field_spec = _draw("field_size_deg", field_size_deg, n, rng, FIELD_RANGE_DEG, extrapolate)
-    deviations = {name: rng.normal(0.0, float(sds[name]), n) for name in DEVIATIONS}
-    population = physiological_observers(ages, fields, wavelengths=wavelengths, extrapolate=extrapolate,
-                                         lens_components=lens_components, peak_shift_axis=peak_shift_axis,
-                                         absorbance_interpolation=absorbance_interpolation, **deviations)
+    drawn = {"age_years": _draw("age_years", age_years, n, rng, extrapolate),
+             "field_size_deg": _draw("field_size_deg", field_size_deg, n, rng, extrapolate)}
+    vectors = {name: values for name, (values, _) in drawn.items()}
+    vectors.update({name: rng.normal(0.0, sds[name], n) for name in DEVIATIONS})
+    population = observers_dataset(vectors, wavelengths=wavelengths, extrapolate=extrapolate,
+                                   lens_components=lens_components, peak_shift_axis=peak_shift_axis,
+                                   absorbance_interpolation=absorbance_interpolation)
     parameters = {
-        "n": n, "age_years": age_spec, "field_size_deg": field_spec,
+        "n": n, **{name: description for name, (_, description) in drawn.items()},
         **{f"sd_{k}": float(v) for k, v in sds.items()},
         "deviation_distribution": "normal, mean 0, independent",
         "lens_components": None if lens_components is None else lens_components.attrs.get("source", "user"),

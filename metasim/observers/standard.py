@@ -21,7 +21,7 @@ import xarray as xr
 
 from metasim._version import __version__
 from metasim.errors import ObserverError
-from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid
+from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, from_colour, resample
 
 CONES = ("L", "M", "S")
 XYZ = ("X", "Y", "Z")
@@ -43,17 +43,17 @@ STANDARD_OBSERVERS = tuple(_TABLES)
 
 
 @lru_cache(maxsize=16)
-def _table(colour_name: str) -> tuple[np.ndarray, np.ndarray]:
+def _table(colour_name: str) -> xr.DataArray:
+    """colour-science's table on its own grid (undefined entries 0, :func:`metasim.spectra.from_colour`)."""
     import colour  # imported lazily: colour-science takes a moment to import
 
-    msds = colour.MSDS_CMFS[colour_name]
-    return np.asarray(msds.wavelengths, dtype=float), np.nan_to_num(np.asarray(msds.values, dtype=float))
+    return from_colour(colour.MSDS_CMFS[colour_name], where=colour_name)
 
 
 def _sample(colour_name: str, wavelengths: np.ndarray) -> np.ndarray:
-    """Table values at ``wavelengths`` (3 × n), zero outside the table's range."""
-    wl, values = _table(colour_name)
-    return np.stack([np.interp(wavelengths, wl, values[:, i], left=0.0, right=0.0) for i in range(3)])
+    """Table values at ``wavelengths`` (3 × n), zero outside the table's range (:func:`metasim.spectra.resample`;
+    the tables are cut to the grid on purpose, so no energy warning)."""
+    return np.array(resample(_table(colour_name), wavelengths, warn_share=None).values)
 
 
 def standard_observer(name: str, wavelengths=None) -> xr.Dataset:

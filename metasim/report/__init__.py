@@ -30,7 +30,7 @@ import xarray as xr
 
 from metasim import plots
 from metasim._version import __version__
-from metasim.errors import MetasimError, OutputError
+from metasim.errors import OutputError, ReportError
 from metasim.io import check_outputs, write_bytes, write_text
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
@@ -62,8 +62,8 @@ def _kind(ds: xr.Dataset) -> str:
         return "study"
     if "cmf" in ds and "observer" in ds.dims:
         return "population"
-    raise MetasimError("the file holds no metasim results this report can show (need a study, a mismatch "
-                       "result, a sweep, an observer population or an observer fit)")
+    raise ReportError("the file holds no metasim results this report can show (need a study, a mismatch "
+                      "result, a sweep, an observer population or an observer fit)")
 
 
 # -- figures ---------------------------------------------------------------------------------------------
@@ -320,7 +320,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     ``figures`` may pass the output of :func:`figure_pngs` when it has been made already.
     """
     if not isinstance(ds, xr.Dataset):
-        raise MetasimError(f"a report needs a result Dataset, got {type(ds).__name__}")
+        raise ReportError(f"a report needs a result Dataset, got {type(ds).__name__}")
     kind = _kind(ds)
     ds = as_study(ds)
     if kind == "sweep":
@@ -391,7 +391,7 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     """
     path = Path(path)
     if not isinstance(ds, xr.Dataset):
-        raise MetasimError(f"a report needs a result Dataset, got {type(ds).__name__}")
+        raise ReportError(f"a report needs a result Dataset, got {type(ds).__name__}")
     if not path.parent.is_dir():
         raise OutputError(f"{path}: folder {path.parent} does not exist")
     check_outputs(report_outputs(_kind(ds), path, figures_dir), inputs=inputs, replace=replace)

@@ -12,6 +12,7 @@ from typing import Iterable
 import numpy as np
 import xarray as xr
 
+from metasim.checks import is_number
 from metasim.errors import FileFormatError, SpectrumError
 from metasim.io import atomic_output, read_text_file
 from metasim.spectra.grid import RADIANCE_UNITS, WAVELENGTH_ATTRS, as_wavelengths, check_spectra, resample
@@ -87,7 +88,7 @@ def read_spectra_csv(
                     f"{path}:{line_no}: header {record!r} names no channel; "
                     "expected 'wavelength_nm,<channel>,...'"
                 )
-            if _is_number(header[0]):
+            if is_number(header[0]):
                 raise FileFormatError(
                     f"{path}:{line_no}: first line {record!r} is numeric; a header line "
                     "'wavelength_nm,<channel>,...' must come first"
@@ -153,14 +154,6 @@ def read_spectra_csv(
     if wavelengths is not None:
         array = resample(array, wavelengths, allow_outside_grid=allow_outside_grid)
     return array
-
-
-def _is_number(text: str) -> bool:
-    try:
-        float(text)
-    except ValueError:
-        return False
-    return True
 
 
 def write_spectra_csv(

@@ -1,6 +1,7 @@
 """Wavelength grids, spectral validation, resampling and CSV exchange of measured spectra.
 
-This is the top layer of metasim: it imports nothing else from the package except the error family.
+This is the top layer of metasim: it imports nothing else from the package except the error family
+(:mod:`metasim.errors`) and the value checks (:mod:`metasim.checks`).
 
 Conventions
 -----------
@@ -29,7 +30,11 @@ Energy outside the grid (:func:`check_energy_on_grid`, for measured files and pa
 * A spectrum with (almost) nothing on the grid is an error either way.
 * This is the rule for display primaries (parametric emitters, measured primary files read by
   :func:`~metasim.spectra.read_spectra_csv`); :func:`resample` on its own (illuminants,
-  reflectances) only warns unless told otherwise.
+  reflectances) only warns unless told otherwise. Published tables that are cut to the working grid
+  on purpose (standard observers, illuminants, reflectance and density tables) are resampled
+  without any of this (``warn_share=None``).
+
+Every resampling in metasim goes through :func:`resample`.
 """
 
 from __future__ import annotations
@@ -332,7 +337,7 @@ def resample(
     spectra: xr.DataArray,
     wavelengths=None,
     *,
-    warn_share: float = ENERGY_WARNING_SHARE,
+    warn_share: float | None = ENERGY_WARNING_SHARE,
     allow_outside_grid: bool = True,
 ) -> xr.DataArray:
     """Resample spectra onto a wavelength grid following the module's documented policy.
@@ -343,7 +348,9 @@ def resample(
     :func:`metasim.spectra.read_spectra_csv`) more than :data:`OUTSIDE_GRID_SHARE` is an error
     (:func:`check_energy_on_grid`); nothing on the grid is an error either way. The default keeps
     the warning for general resampling (illuminants, reflectances, colour-matching functions that
-    reach into the ultraviolet, where the part beyond the grid does not count).
+    reach into the ultraviolet, where the part beyond the grid does not count). ``warn_share=None``
+    skips the energy accounting altogether: published tables cut to the working grid on purpose
+    (standard observers, CIE illuminants, CIE 13.3 reflectances, density tables).
 
     Examples
     --------
@@ -361,7 +368,26 @@ def resample(
     moved = spectra.transpose(..., "wavelength")
     values = np.asarray(moved.values, dtype=float)
     flat = values.reshape(-1, source.size)
+    if warn_share is not None:
+        _account_energy(spectra, moved, flat, source, target, warn_share, allow_outside_grid)
+    out = np.empty((flat.shape[0], target.size))
+    for row in range(flat.shape[0]):  # rows are channels of one measured file: few, not a hot path
+        out[row] = np.interp(target, source, flat[row], left=0.0, right=0.0)
+    result = xr.DataArray(
+        out.reshape(values.shape[:-1] + (target.size,)),
+        dims=moved.dims,
+        coords={k: v for k, v in moved.coords.items() if "wavelength" not in v.dims},
+        attrs=dict(spectra.attrs),
+        name=spectra.name,
+    )
+    result = result.assign_coords(wavelength=target)
+    result.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
+    return result.transpose(*spectra.dims)
 
+
+def _account_energy(spectra: xr.DataArray, moved: xr.DataArray, flat: np.ndarray, source: np.ndarray,
+                    target: np.ndarray, warn_share: float, allow_outside_grid: bool) -> None:
+    """The energy policy of :func:`resample` for rows ``flat`` (on ``source``) put on ``target``."""
     total = np.abs(np.trapezoid(flat, source, axis=-1))
     lo, hi = max(target[0], source[0]), min(target[-1], source[-1])
     if lo < hi:
@@ -385,21 +411,8 @@ def resample(
             f"resampling {label} onto {_grid_text(target)} drops {100 * lost[worst]:.2f} % of its "
             f"energy (measured {source[0]:g}-{source[-1]:g} nm); values outside the measured range are 0",
             SpectralEnergyWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
-    out = np.empty((flat.shape[0], target.size))
-    for row in range(flat.shape[0]):  # rows are channels of one measured file: few, not a hot path
-        out[row] = np.interp(target, source, flat[row], left=0.0, right=0.0)
-    result = xr.DataArray(
-        out.reshape(values.shape[:-1] + (target.size,)),
-        dims=moved.dims,
-        coords={k: v for k, v in moved.coords.items() if "wavelength" not in v.dims},
-        attrs=dict(spectra.attrs),
-        name=spectra.name,
-    )
-    result = result.assign_coords(wavelength=target)
-    result.coords["wavelength"].attrs.update(WAVELENGTH_ATTRS)
-    return result.transpose(*spectra.dims)
 
 
 def _flat_label(array: xr.DataArray, flat_index: int) -> str:
