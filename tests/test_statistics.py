@@ -269,3 +269,28 @@ def test_study_tables_say_what_they_pool_and_agree():
     assert 0.0 <= float(study["comparison_share_second_closer"]) <= 1.0
     lines = study_headlines(study)
     assert "of viewers" in lines[0] and len(lines) == 5  # comparison, two designs, two advices
+
+
+def test_sweep_ranks_designs_resampled_together(tmp_path):
+    from metasim.emitters import gaussian, laser_line
+    from metasim.metamerism import primaries_and_secondaries
+
+    monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+                                                                    name=["B", "G", "R"])), "cie1931_2")
+    designs = metasim.design_grid("laser", {"R": [615, 630, 645]}, 1.0,
+                                  base=laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    viewers = metasim.observer_population(40, seed=6, age_years=(20, 70))
+    options = {"scheduler": "serial", "intervals": True, "resamples": 200, "interval_seed": 3}
+    whole = metasim.run_sweep(designs, monitor, viewers, primaries_and_secondaries(), store=tmp_path / "a",
+                              chunk_size=3, **options)
+    split = metasim.run_sweep(designs, monitor, viewers, primaries_and_secondaries(), store=tmp_path / "b",
+                              chunk_size=1, **options)
+    # the same resamples in every chunk: a design's replicates do not depend on its chunk (paired)
+    assert np.array_equal(whole["delta_e_2000_p95_replicates"].values, split["delta_e_2000_p95_replicates"].values)
+    assert np.isclose(float(whole["best_probability"].sum()), 1.0)
+    best = int(np.flatnonzero(whole["rank"].values == 1)[0])
+    assert whole.attrs["best_design"] == str(whole["design"].values[best])
+    on_edge = best in (0, 2)
+    assert bool(whole.attrs["edge_warnings"]) == on_edge  # warned only at the ends of 615-645 nm
+    lower, upper = whole["delta_e_2000_overall_interval"].sel(statistic="p95").isel(design=best).values
+    assert lower <= float(whole["delta_e_2000_overall"].sel(statistic="p95").isel(design=best)) <= upper

@@ -287,8 +287,6 @@ def cmd_tables(args) -> int:
 
 
 def cmd_sweep(args) -> int:
-    import numpy as np
-
     from metasim.cli.study import Progress, build_stimuli
     from metasim.cli.sweep import read_sweep_spec, relative, sweep_designs
     from metasim.metamerism.summary import age_band_edges
@@ -321,17 +319,47 @@ def cmd_sweep(args) -> int:
                        per_stimulus=bool(args.per_stimulus if args.per_stimulus is not None
                                          else spec.get("per_stimulus", False)),
                        age_bands=age_band_edges(_age_bands(args), observers.coords.get("age_years")), progress=progress,
-                       replace=args.replace, wait=args.wait,
+                       replace=args.replace, wait=args.wait, intervals=args.intervals, resamples=args.resamples,
+                       interval_seed=args.seed,
                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
-    p95 = result["delta_e_2000_overall"].sel(statistic="p95")
-    parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
-    for rank, index in enumerate(np.argsort(p95.values)[:3], start=1):
-        values = ", ".join(f"{c} {float(result[c].values[index]):g}" for c in parameters)
-        print(f"#{rank}: design {int(result.design.values[index])} ({values}): 95th percentile "
-              f"{float(p95.values[index]):.2f} CIE 2000 units")
+    _print_sweep_answer(result, args.p95_half_width)
     print(f"result:  {Path(args.out) / 'sweep.nc'} ({result.sizes['design']} designs)")
     return 0
+
+
+def _print_sweep_answer(result, target_half_width: float | None) -> None:
+    """The three best designs with their intervals, then the one-sentence answer and the advice."""
+    import numpy as np
+
+    from metasim.statistics.comparison import DEFAULT_HALF_WIDTH
+    from metasim.statistics.headline import population_advice, sweep_headline, with_interval
+
+    p95 = result["delta_e_2000_overall"].sel(statistic="p95")
+    interval = result["delta_e_2000_overall_interval"].sel(statistic="p95") \
+        if "delta_e_2000_overall_interval" in result else None
+    parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
+
+    def describe(index: int) -> str:
+        values = ", ".join(f"{c} {float(result[c].values[index]):g}" for c in parameters)
+        return f"design {result.design.values[index]} ({values})" if values else f"design {result.design.values[index]}"
+
+    for rank, index in enumerate(np.argsort(p95.values, kind="stable")[:3], start=1):
+        text = with_interval(p95.values[index], None if interval is None else interval.isel(design=index))
+        line = f"#{rank}: {describe(int(index))}: 95th percentile {text} CIE 2000 units"
+        if "best_probability" in result:
+            low, high = result["rank_interval"].isel(design=index).values
+            line += (f"; best in {100 * float(result['best_probability'].values[index]):.0f} % of resamples, "
+                     f"rank {low}-{high}")
+        print(line)
+    if "best_probability" in result:
+        edges = [m for m in str(result.attrs.get("edge_warnings", "")).split(" | ") if m]
+        print(sweep_headline(result, p95, interval, describe=describe, edges=edges))
+        best = int(np.flatnonzero(result["rank"].values == 1)[0])
+        advice = population_advice(interval.isel(design=best), int(result.attrs.get("observer_count", 0)),
+                                   target_half_width or DEFAULT_HALF_WIDTH)
+        if advice:
+            print(f"{describe(best)}: {advice[0].lower()}{advice[1:]}")
 
 
 def cmd_estimate(args) -> int:
@@ -506,7 +534,7 @@ def _interval_options(parser) -> None:
     group = parser.add_argument_group("intervals (95 %, from resampling observers)")
     group.add_argument("--no-intervals", dest="intervals", action="store_false",
                        help="skip the intervals, the comparison of two designs and the population-size advice")
-    group.add_argument("--resamples", type=int, default=None,
+    group.add_argument("--resamples", type=_whole(200), default=None, metavar="N",
                        help="resamples of the observers (at least 200; default 400)")
     group.add_argument("--p95-half-width", type=float, default=None, metavar="DE",
                        help="interval half-width on the 95th percentile the population-size advice aims at, CIE "
@@ -595,6 +623,7 @@ def build_parser() -> argparse.ArgumentParser:
                    "finish and then resume (default: stop, naming that run's process and host)")
     _population_options(p)
     _matching_options(p)
+    _interval_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)
 
     p = add("estimate", "estimate individual observers from colour-matching data, with uncertainties", cmd_estimate)

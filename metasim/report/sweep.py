@@ -10,6 +10,8 @@ import xarray as xr
 
 from metasim import plots
 from metasim.report.html import _attribute_list, _e, _num, _pct, _table
+from metasim.statistics.comparison import DEFAULT_HALF_WIDTH
+from metasim.statistics.headline import population_advice, sweep_headline, with_interval
 
 def _sweep_numbers(ds: xr.Dataset) -> dict:
     """Per-design p95, median, share beyond 2 and BT.2020 coverage (NaN where the file lacks them)."""
@@ -61,6 +63,7 @@ def _sweep_headline(ds: xr.Dataset) -> str:
                  f"{', ' + _pct(share) + ' of observer × stimulus pairs beyond 2' if np.isfinite(share) else ''}"
                  f"{', BT.2020 coverage ' + _pct(numbers['bt2020'][best]) if np.isfinite(numbers['bt2020'][best]) else ''}."
                  "</p>")
+    parts += _sweep_answer(ds, varied)
     if count > 1 and np.isfinite(numbers["p95"]).any():
         worst = int(numbers["order"][-1]) if np.isfinite(numbers["p95"][numbers["order"][-1]]) else best
         parts.append(f"<p>95th percentiles over the sweep: {_num(numbers['p95'][best])} to {_num(numbers['p95'][worst])} "
@@ -78,17 +81,55 @@ def _sweep_headline(ds: xr.Dataset) -> str:
     return "<h2>Headline</h2>" + "".join(parts)
 
 
+def _sweep_answer(ds: xr.Dataset, varied) -> list[str]:
+    """The one-sentence answer with intervals, the edge warning and the population-size advice
+    (sweeps run with intervals: :mod:`metasim.sweep.ranking`)."""
+    if "best_probability" not in ds:
+        return []
+    p95 = ds["delta_e_2000_overall"].sel(statistic="p95")
+    interval = ds["delta_e_2000_overall_interval"].sel(statistic="p95")
+
+    def describe(index: int) -> str:
+        described = _parameters_of(ds, varied, index)
+        return _design_name(ds, index) + (f" ({described})" if described else "")
+
+    edges = [m for m in str(ds.attrs.get("edge_warnings", "")).split(" | ") if m]
+    parts = [f"<p class='answer'>{_e(sweep_headline(ds, p95, interval, describe=describe))}</p>"]
+    parts += [f"<p class='caution'>{_e(m[0].upper() + m[1:])}.</p>" for m in edges]
+    best = int(np.flatnonzero(ds["rank"].values == 1)[0])
+    advice = population_advice(interval.isel(design=best), int(ds.attrs.get("observer_count", 0)),
+                               float(ds.attrs.get("target_half_width", DEFAULT_HALF_WIDTH)))
+    level = 100 * float(ds.attrs.get("interval_level", 0.95))
+    parts.append(f"<p>In brackets: {level:g} % intervals from resampling observers "
+                 f"({ds.attrs.get('interval_resamples')} resamples, the same for every design, so designs are "
+                 f"compared observer by observer). {_e(advice)}</p>")
+    return parts
+
+
 def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
     numbers = _sweep_numbers(ds)
     varied = plots.sweep_parameters(ds)[0]
     header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
     header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
+    ranked = "best_probability" in ds
+    if ranked:
+        header += ["best in (share of resamples)", "rank interval"]
+    interval = ds["delta_e_2000_overall_interval"] if "delta_e_2000_overall_interval" in ds else None
     rows = []
     for rank, index in enumerate(numbers["order"][:shown], start=1):
         index = int(index)
-        rows.append([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
-                    + [_num(numbers["p95"][index]), _num(numbers["median"][index]), _pct(numbers["share2"][index]),
-                       _pct(numbers["bt2020"][index])])
+        p95, median = numbers["p95"][index], numbers["median"][index]
+        if interval is not None:
+            p95 = with_interval(p95, interval.isel(design=index).sel(statistic="p95"))
+            median = with_interval(median, interval.isel(design=index).sel(statistic="median"))
+        else:
+            p95, median = _num(p95), _num(median)
+        row = ([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
+               + [p95, median, _pct(numbers["share2"][index]), _pct(numbers["bt2020"][index])])
+        if ranked:
+            low, high = ds["rank_interval"].isel(design=index).values
+            row += [_pct(ds["best_probability"].values[index]), f"{low}–{high}"]
+        rows.append(row)
     count = ds.sizes["design"]
     what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
     return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "

@@ -13,6 +13,9 @@
   or an explicit list of spectra (``design_list``); parameters become ``design`` coordinates.
 * :mod:`metasim.sweep.summary` — one mismatch call and the gamut numbers of a block of designs,
   reduced to per-design summaries (``design_summaries``).
+* :mod:`metasim.sweep.ranking` — with ``intervals=True``: each design's intervals and paired
+  replicates, and on the combined sweep its probability of being the best, rank interval, the set
+  that cannot be told apart from the best, the edge warning and the observers needed.
 * :mod:`metasim.sweep.store` — the store folder: ``manifest.json`` (spec hash, chunk ranges, seed,
   model, version), one ``chunk-NNNNN.nc`` per finished chunk, the combined ``sweep.nc``.
 * :mod:`metasim.sweep.run` — ``run_sweep``: chunks along ``design`` on a scheduler ("serial",

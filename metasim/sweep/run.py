@@ -41,6 +41,8 @@ from metasim.metamerism.stimuli import as_stimuli
 from metasim.observers.convert import as_observer
 from metasim.spectra.convert import is_colour_object
 from metasim.metamerism.summary import THRESHOLDS, age_band_edges, check_thresholds
+from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES
+from metasim.statistics.resampling import check_interval_settings
 from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 from metasim.sweep.store import (
     STORE_FORMAT,
@@ -111,7 +113,8 @@ def evaluate_chunk(designs, reference, observers, stimuli, options: dict) -> xr.
         lock.acquire()
     try:
         return design_summaries(display, reference, observers, stimuli, lab_volume=options["lab_volume"],
-                                per_stimulus=options.get("per_stimulus", False), **options["mismatch"])
+                                per_stimulus=options.get("per_stimulus", False), intervals=options.get("intervals"),
+                                **options["mismatch"])
     finally:
         if lock is not None:
             lock.release()
@@ -141,7 +144,8 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
               scheduler="threads", workers: int | None = None, calibration_observer="cie1931_2",
               strategy: str = "min_norm", display_settings: dict | None = None, lab_volume: bool = False,
               per_stimulus: bool = False, age_bands=None, thresholds=THRESHOLDS, progress=None, attrs: dict | None = None,
-              replace: bool = False, wait: bool = False) -> xr.Dataset:
+              replace: bool = False, wait: bool = False, intervals: bool = False, level: float = DEFAULT_LEVEL,
+              resamples: int | None = None, interval_seed: int = 0) -> xr.Dataset:
     """Evaluate every design against ``reference`` in chunks, writing each chunk to ``store``; resume.
 
     Parameters
@@ -189,6 +193,16 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         Only one run writes a store at a time (:func:`metasim.sweep.store.store_lock`): another
         run's store is refused (:class:`~metasim.errors.StoreLockedError`) unless ``wait``; then
         this run waits for it and resumes (a "waiting" progress event says so).
+    intervals : bool
+        Intervals from resampling observers for each design's statistics over all pairs, paired
+        replicates of its 95th percentile, and on the combined sweep each design's probability of
+        being the best, its rank interval, the set that cannot be told apart from the best, the
+        edge warning and the observers needed (:mod:`metasim.sweep.ranking`). Off by default in
+        the library (it costs about as much again as the summaries of a chunk); on in ``metasim
+        sweep``.
+    level, resamples, interval_seed
+        Interval level (0.95), resamples (None: 400, at least 200) and the seed of the resamples
+        (one for the whole sweep: the designs are resampled together).
 
     Returns
     -------
@@ -239,11 +253,17 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     if isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer)) or chunk_size < 1:
         raise SweepError(f"chunk_size={chunk_size!r} is not allowed; need a whole number >= 1")
     chunk_size = int(chunk_size)
+    interval_options = None
+    if intervals:
+        resamples = DEFAULT_RESAMPLES if resamples is None else resamples
+        check_interval_settings(level, resamples)
+        interval_options = {"level": float(level), "resamples": int(resamples), "seed": int(interval_seed)}
     options = {"display_settings": settings, "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus),
-               "mismatch": mismatch_options}
+               "mismatch": mismatch_options, "intervals": interval_options}
     digest = spec_hash(designs, reference, observers, stimuli, settings, bool(lab_volume),
                        {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer,
-                       *(["per stimulus"] if per_stimulus else []))  # stores without it keep their hash
+                       *(["per stimulus"] if per_stimulus else []),  # stores without it keep their hash
+                       *([f"intervals {json.dumps(interval_options, sort_keys=True)}"] if interval_options else []))
     ranges = chunk_ranges(count, chunk_size)
     coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
               if v.dims == ("design",) and c != "design"]
@@ -255,7 +275,8 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
                  "design_parameters": getattr(designs, "attrs", {}).get("parameters", ""),
                  "display_settings": settings, "reference": _describe(reference),
                  "calibration_observer": _describe(calibration_observer), "strategy": strategy,
-                 "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus), "observer_count": int(observers.sizes["observer"]),
+                 "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus),
+                 "intervals": interval_options or False, "observer_count": int(observers.sizes["observer"]),
                  "stimulus_count": int(stimuli.sizes.get("stimulus", 0)),
                  "stimuli": str(stimuli.attrs.get("description", "")), "thresholds": list(thresholds),
                  "age_bands": None if age_bands is None else list(age_bands), **(attrs or {})},

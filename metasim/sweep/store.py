@@ -46,6 +46,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._version import __version__
+from metasim.sweep.ranking import ranking_variables
 from metasim.display import Display
 from metasim.errors import (
     ChunkSetAsideWarning,
@@ -413,6 +414,9 @@ def write_chunk(store, manifest: dict, index: int, summary: xr.Dataset) -> Path:
 def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     """Gather every chunk of a finished store into one Dataset over ``design`` (saved as ``sweep.nc``).
 
+    A sweep run with intervals also gets its designs' ranks, probabilities of being the best, the
+    best set and the edge warning (:func:`metasim.sweep.ranking.ranking_variables`).
+
     Every chunk's checksum and design range are checked first; a chunk that fails is set aside and
     :class:`~metasim.errors.StoreIntegrityError` asks for the sweep to be run again.
     """
@@ -457,6 +461,10 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
         "metasim_version": __version__,
         "store_metasim_version": manifest.get("metasim_version", ""),
     })
+    ranked, ranking_attrs = ranking_variables(combined)
+    for name, value in ranked.items():
+        combined[name] = value
+    combined.attrs.update(ranking_attrs)
     if write:
         save_dataset(combined, folder / COMBINED)
     return combined

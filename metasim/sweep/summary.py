@@ -23,6 +23,8 @@ variable (dims)                          holds
                                          stimulus (optional, ``per_stimulus=True``: grows with the set)
 ``share_beyond`` (design, threshold, stimulus)   share of observers beyond each threshold, per
                                          stimulus (optional, with ``per_stimulus``)
+``*_interval``, ``delta_e_2000_p95_replicates``  intervals and paired replicates (optional,
+                                         ``intervals``; :mod:`metasim.sweep.ranking`)
 =======================================  ==============================================================
 """
 
@@ -37,6 +39,7 @@ from metasim.gamut import chromaticity_gamut, gamut_coverage, lab_gamut_volume
 from metasim.metamerism import mismatch
 from metasim.metamerism.summary import STATISTICS, observer_weights
 from metasim.statistics import statistics_along
+from metasim.sweep.ranking import interval_variables
 from metasim.observers import standard_observer
 
 #: Reference gamuts of the coverage numbers.
@@ -60,7 +63,7 @@ def _pairs_table(array: xr.DataArray, weights, long_name: str, units: str = "1")
 
 
 def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume: bool = False,
-                     per_stimulus: bool = False, **mismatch_options) -> xr.Dataset:
+                     per_stimulus: bool = False, intervals: dict | None = None, **mismatch_options) -> xr.Dataset:
     """Mismatch and gamut summaries of every design of ``test`` (a Display with a ``design`` dim).
 
     Parameters
@@ -75,6 +78,10 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
     per_stimulus : bool
         Also keep the statistics over observers and the shares beyond the thresholds of every
         stimulus (design × stimulus numbers: which colours a design gets wrong).
+    intervals : dict, optional
+        ``level``, ``resamples`` and ``seed`` of intervals from resampling observers: adds the
+        interval and replicate variables of :mod:`metasim.sweep.ranking` (the same resamples in
+        every chunk, so the designs' replicates are paired).
 
     Returns
     -------
@@ -135,6 +142,12 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
         coords["age_band"] = result["age_band"].variable
     if per_stimulus:
         coords.update({k: v.variable for k, v in result.coords.items() if v.dims == ("stimulus",)})
+    interval_attrs = {}
+    if intervals is not None:
+        extra, interval_attrs = interval_variables(de, pooled=f"{de.sizes['stimulus']} stimuli "
+                                                   f"({result.attrs.get('stimuli', 'stimulus set')})", **intervals)
+        out.update(extra)
+        coords["bound"] = ["lower", "upper"]
     summary = xr.Dataset(out, coords=coords)
     summary.attrs = {key: result.attrs[key] for key in (
         "model", "reference", "reference_kind", "calibration_observer", "white_matched", "adapted_white",
@@ -143,6 +156,7 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
         "metasim_version") if key in result.attrs}
     summary.attrs["observer_count"] = int(de.sizes["observer"])
     summary.attrs["stimulus_count"] = int(de.sizes["stimulus"])
+    summary.attrs.update(interval_attrs)
     return summary
 
 
