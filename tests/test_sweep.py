@@ -4,7 +4,6 @@ Kept small (30 observers, 7 stimuli, 8 designs) so the file runs in well under a
 """
 
 import os
-import subprocess
 import sys
 import time
 from pathlib import Path
@@ -18,6 +17,7 @@ from metasim import emitters
 from metasim.errors import SweepError
 from metasim.metamerism import primaries_and_secondaries
 from metasim.sweep import chunk_display, design_grid, design_list, read_manifest, run_sweep
+from test_cli import run
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO_SWEEP = ROOT / "data" / "demo" / "sweep_red_laser.toml"
@@ -210,9 +210,8 @@ def test_scheduler_address_with_worker_processes_equals_serial(tmp_path, swept, 
 
 
 def run_cli(*args):
-    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    return subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
-                          env=env, timeout=300)
+    """The sweep command through metasim.cli.main in this process (test_cli.run)."""
+    return run(*args, check=False)
 
 
 def test_cli_sweep_writes_the_store(tmp_path):

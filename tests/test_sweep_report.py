@@ -5,10 +5,7 @@ Kept tiny (20 observers, 4 stimuli, 5 and 2×2 designs) so the file runs in a fe
 
 import base64
 import html
-import os
 import re
-import subprocess
-import sys
 
 import numpy as np
 import pytest
@@ -19,6 +16,7 @@ from metasim.errors import MetasimError
 from metasim.metamerism import primaries_and_secondaries
 from metasim.report import CAUTIONS, is_sweep, render_report, report_figures, write_report
 from metasim.sweep import design_grid, run_sweep
+from test_cli import run
 
 IMAGE = re.compile(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"')
 
@@ -129,9 +127,7 @@ def test_existing_reports_still_refuse_unrelated_data():
 def test_cli_report_of_a_sweep_store(tmp_path, red_sweep):
     store, result = red_sweep
     out = tmp_path / "sweep.html"
-    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    done = subprocess.run([sys.executable, "-m", "metasim.cli", "report", str(store / "sweep.nc"), "--out", str(out),
-                           "--figures", str(tmp_path / "figures")], capture_output=True, text=True, env=env, timeout=300)
+    done = run("report", store / "sweep.nc", "--out", out, "--figures", tmp_path / "figures", check=False)
     assert done.returncode == 0, done.stderr
     assert "report:" in done.stdout and "Traceback" not in done.stderr
     text = out.read_text(encoding="utf-8")

@@ -2,8 +2,6 @@
 
 import csv
 import math
-import os
-import subprocess
 import sys
 
 import numpy as np
@@ -15,6 +13,7 @@ from metasim.errors import MetasimError, OutputExistsError
 from metasim.metamerism import mismatch, primaries_and_secondaries
 from metasim.tables import result_tables, write_csv_tables, write_workbook
 from metasim.sweep import design_grid, run_sweep
+from test_cli import run
 
 
 @pytest.fixture(scope="module")
@@ -164,9 +163,8 @@ def test_workbook_without_openpyxl_is_a_clear_error(monkeypatch, tmp_path, resul
 
 
 def _run(*args):
-    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-    return subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
-                          env=env, timeout=300)
+    """The tables command through metasim.cli.main in this process (test_cli.run)."""
+    return run(*args, check=False)
 
 
 def test_cli_tables_of_a_sweep_store(tmp_path, sweep_file):
