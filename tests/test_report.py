@@ -32,9 +32,14 @@ def small_study():
     return result, monitor, laser, observers, stimuli
 
 
-def test_report_embeds_figures_and_states_models(small_study):
-    result = small_study[0]
-    text = render_report(result)
+@pytest.fixture(scope="module")
+def study_report(small_study):
+    """The HTML report of the small study, rendered once for the tests that read it."""
+    return render_report(small_study[0])
+
+
+def test_report_embeds_figures_and_states_models(study_report):
+    text = study_report
     images = IMAGE.findall(text)
     assert len(images) == 5
     assert all(base64.b64decode(data).startswith(b"\x89PNG\r\n\x1a\n") for data in images)  # PNG signature (ISO/IEC 15948)
@@ -47,8 +52,8 @@ def test_report_embeds_figures_and_states_models(small_study):
         assert caution in plain
 
 
-def test_report_needs_no_network(small_study):
-    text = render_report(small_study[0])
+def test_report_needs_no_network(study_report):
+    text = study_report
     assert "<script" not in text and "<link" not in text
     assert not re.search(r'(src|href)="(https?:)?//', text)
 
