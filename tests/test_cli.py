@@ -1,7 +1,7 @@
 """The metasim command, run as a user runs it, on small cases.
 
-A population run, ``--help`` and the bad-input checks (exit status, one error line, no traceback)
-start a new interpreter as a user does (``run(..., process=True)``); the other subcommands run
+A population run and the bad-input checks (exit status, one error line, no traceback) start a new
+interpreter as a user does (``run(..., process=True)``); the other subcommands run
 through :func:`metasim.cli.main` in this process: the console script's code path and output
 streams, without paying for a new interpreter's imports each time. Populations are kept small
 (120-150 observers); the demo's headline numbers are checked with ranges only a working pipeline
@@ -192,7 +192,7 @@ def test_demo_headline_numbers(workdir):
 
 def test_help_shows_worked_examples():
     for command in ("demo", "observers", "evaluate", "compare", "report"):
-        done = run(command, "--help", process=True)
+        done = run(command, "--help")
         assert "example" in done.stdout and f"metasim {command}" in done.stdout
 
 
