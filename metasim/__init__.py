@@ -66,6 +66,10 @@ _ENTRY_POINTS = {
     "run_study": "metasim.study",
     "design_grid": "metasim.sweep",
     "run_sweep": "metasim.sweep",
+    "pareto_front": "metasim.sweep",
+    "run_search": "metasim.sweep",
+    "search_space": "metasim.sweep",
+    "luminous_efficacy": "metasim.colorimetry.efficacy",
     # colour-science objects, both ways
     "to_colour": "metasim.interop",
     "from_colour": "metasim.interop",

@@ -52,7 +52,7 @@ def best_of(result):
 
 def assert_sweep_page(text, result):
     images = IMAGE.findall(text)
-    assert len(images) == 1
+    assert len(images) == 2  # the sweep figure and the Pareto front
     assert base64.b64decode(images[0]).startswith(b"\x89PNG\r\n\x1a\n")  # PNG signature (ISO/IEC 15948)
     index, p95 = best_of(result)
     assert f"Best design: design {result['design'].values[index]}" in text
@@ -82,7 +82,8 @@ def test_one_parameter_sweep_report(red_sweep):
     peak = float(result["peak_nm_R"].values[index])
     assert f"(red laser peak {peak:g} nm)" in text
     assert "<th>red laser peak (nm)</th>" in text and "BT.2020 covered" in text
-    assert text.count("<tr><td>") == 5  # every design in the best-designs table (five of them)
+    best_table = text.split("<h2>Best designs</h2>", 1)[1].split("<h2>", 1)[0]
+    assert best_table.count("<tr><td>") == 5  # every design in the best-designs table (five of them)
     figure = report_figures(result)["sweep"][0]
     axes = figure.axes
     assert len(axes) == 2 and axes[-1].get_xlabel() == "red laser peak (nm)"

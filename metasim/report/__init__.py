@@ -15,8 +15,10 @@ holds, section by section:
   parameters the data did not identify, match errors before and after, subjects, categories
   (:mod:`metasim.report.fitting`);
 * a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
-  sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs, the stimuli hardest for
-  the best design (sweeps with per-stimulus summaries) and the sweep spec (:mod:`metasim.report.sweep`).
+  sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs, the Pareto front over
+  the result's objectives with a table of its designs (:mod:`metasim.report.pareto`), the stimuli
+  hardest for the best design (sweeps with per-stimulus summaries) and the sweep spec
+  (:mod:`metasim.report.sweep`).
 
 Every report lists the models and parameters recorded in the file's attributes and the cautions.
 """
@@ -36,6 +38,8 @@ from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_li
                                  _table)
 from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
                                     is_fit)
+from metasim.report.pareto import pareto_caption, pareto_section, with_pareto_ranks
+from metasim.report.search import is_search, search_section
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
 from metasim.statistics import population_statistics
 from metasim.statistics.headline import share_with_interval, with_interval
@@ -96,6 +100,12 @@ def report_figures(ds: xr.Dataset) -> dict:
             len(varied), "for every design, sorted (the best design starred)")
         figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
                             f"observer × stimulus pairs, per design, {what}.")
+        if is_search(ds):
+            figures["search"] = (plots.search_convergence(ds), "Value the search minimises, for every design of "
+                                 "each generation, and the best found so far.")
+        ds = with_pareto_ranks(ds)
+        if "pareto_rank" in ds:
+            figures["pareto"] = (plots.result_pareto_figure(ds), pareto_caption(ds))
         return figures
     if _kind(ds) == "fit":
         figures["fit_parameters"] = (plots.fit_parameters(ds), "Each parameter's estimates against the population "
@@ -332,8 +342,10 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
             f"<p class='sub'>metasim {__version__} {'sweep ' if kind == 'sweep' else ''}report"
             f"{(' of ' + _e(source)) if source else ''}.</p>"]
     if kind == "sweep":
-        body += [_sweep_headline(ds)] + [_image(png, caption) for png, caption in figures.values()]
-        body += [_sweep_best(ds), _sweep_stimuli(ds), _sweep_models(ds)]
+        ds = with_pareto_ranks(ds)
+        body += [_sweep_headline(ds), search_section(ds, figures.get("search"))]
+        body += [_image(png, caption) for name, (png, caption) in figures.items() if name not in ("pareto", "search")]
+        body += [_sweep_best(ds), pareto_section(ds, figures.get("pareto")), _sweep_stimuli(ds), _sweep_models(ds)]
     elif kind == "fit":
         body += [fit_headline(ds), _image(*figures["fit_parameters"]), fit_parameter_table(ds),
                  "<h2>Matches before and after</h2>", _image(*figures["fit_residuals"]), fit_subject_table(ds),
@@ -366,7 +378,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
 FIGURE_NAMES = {
     "study": ("chromaticity", "spectra", "age_bands", "p95_by_stimulus", "extra_primary"),
     "population": ("observers",),
-    "sweep": ("sweep",),
+    "sweep": ("sweep", "pareto", "search"),
     "fit": ("fit_parameters", "fit_residuals"),
 }
 

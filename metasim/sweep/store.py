@@ -56,6 +56,7 @@ from metasim.errors import (
     SweepError,
 )
 from metasim.io import load_dataset, process_alive, remove_stale_partials, save_dataset, write_text
+from metasim.sweep.pareto import pareto_front
 
 try:
     import fcntl
@@ -465,6 +466,7 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     for name, value in ranked.items():
         combined[name] = value
     combined.attrs.update(ranking_attrs)
+    combined = pareto_front(combined)  # pareto_rank over the default objectives (metasim.sweep.pareto)
     if write:
         save_dataset(combined, folder / COMBINED)
     return combined

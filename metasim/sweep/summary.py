@@ -19,6 +19,7 @@ variable (dims)                          holds
 ``gamut_coverage`` (design, reference_gamut)   share of BT.709, Display P3, BT.2020 xy area covered
 ``primary_xy`` (design, primary, chromaticity) CIE 1931 xy of each primary
 ``lab_volume`` (design)                  CIELAB volume of the colour solid (optional: slower)
+``white_efficacy`` (design)              luminous efficacy of radiation of the white, lm/W (CIE 1931 ȳ)
 ``delta_e_2000_by_stimulus`` (design, statistic, stimulus)   statistics over observers for each
                                          stimulus (optional, ``per_stimulus=True``: grows with the set)
 ``share_beyond`` (design, threshold, stimulus)   share of observers beyond each threshold, per
@@ -35,6 +36,7 @@ import xarray as xr
 
 from metasim.display import Display
 from metasim.errors import SweepError
+from metasim.colorimetry.efficacy import luminous_efficacy
 from metasim.gamut import chromaticity_gamut, gamut_coverage, lab_gamut_volume
 from metasim.metamerism import mismatch
 from metasim.metamerism.summary import STATISTICS, observer_weights
@@ -124,13 +126,14 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
     out["gamut_coverage"] = xr.DataArray(coverage, dims=("design", "reference_gamut"), attrs={
         "units": "1", "long_name": "share of each reference gamut's CIE 1931 xy area covered"})
     out["primary_xy"] = gamut["chromaticity_of_primary"].transpose("design", "primary", "chromaticity")
+    out["white_efficacy"] = luminous_efficacy(test.white_spectrum(), cie1931).transpose("design")
     if lab_volume:
         out["lab_volume"] = lab_gamut_volume(test, cie1931).transpose("design")
     if per_stimulus:
         out["delta_e_2000_by_stimulus"] = result["delta_e_2000_by_stimulus"].transpose("design", "statistic", "stimulus")
         out["share_beyond"] = result["share_beyond"].transpose("design", "threshold", "stimulus")
     for name in ("gamut_area_xy", "primary_xy", "share_beyond_overall", "delta_e_2000_by_age", "observers_per_age_band",
-                 "lab_volume", "delta_e_2000_by_stimulus", "share_beyond"):
+                 "lab_volume", "white_efficacy", "delta_e_2000_by_stimulus", "share_beyond"):
         if name in out:
             value = out[name]
             out[name] = xr.DataArray(value.values, dims=value.dims, attrs=dict(value.attrs))

@@ -1,0 +1,88 @@
+"""The Pareto-front figure of a sweep or search result: every design, the front highlighted."""
+
+from __future__ import annotations
+
+import numpy as np
+import xarray as xr
+from matplotlib import rc_context
+from matplotlib.figure import Figure
+
+from metasim.plots.figures import DESIGN_COLOURS, OUTLINE_COLOUR, REFERENCE_COLOUR, STYLE, _figure
+from metasim.sweep.pareto import objective_values, pareto_objectives
+
+#: Axis words of the named objectives (metasim.sweep.pareto.OBJECTIVES); a share is shown in %.
+OBJECTIVE_AXES = {
+    "p95_mismatch": ("95th percentile ΔE00\n(all observer × stimulus pairs)", 1.0),
+    "median_mismatch": ("median ΔE00\n(all observer × stimulus pairs)", 1.0),
+    "white_p95": ("95th percentile ΔE00 of the white", 1.0),
+    "bt2020_coverage": ("BT.2020 xy area covered (%)", 100.0),
+    "p3_coverage": ("Display P3 xy area covered (%)", 100.0),
+    "bt709_coverage": ("BT.709 xy area covered (%)", 100.0),
+    "gamut_area": ("CIE 1931 xy gamut area", 1.0),
+    "lab_volume": ("CIELAB volume (CIELAB units³)", 1.0),
+    "white_efficacy": ("luminous efficacy of the white (lm/W)", 1.0),
+}
+
+
+def objective_axis(name: str, sense: str, long_name: str = "") -> tuple[str, float]:
+    """Axis label (with which way is better) and display scale of an objective."""
+    text, scale = OBJECTIVE_AXES.get(name, (long_name or name.replace("_", " "), 1.0))
+    return f"{text}\n{'lower' if sense == 'min' else 'higher'} is better", scale
+
+
+def pareto_figure(values: np.ndarray, ranks: np.ndarray, objectives: list[dict], labels=None) -> Figure:
+    """Every design in the plane of the first objective against each other one, the front highlighted.
+
+    Parameters
+    ----------
+    values : ndarray (design × objective)
+    ranks : ndarray of int (design): 1 = front, 0 = not ranked
+    objectives : list of {"name", "sense", "long_name"} (as recorded with ``pareto_rank``)
+    labels : sequence of str, optional
+        A short label per design; front designs are annotated with it when the front is small.
+    """
+    k = values.shape[1]
+    panels = max(1, k - 1)
+    front = ranks == 1
+    other = (ranks > 1)
+    with rc_context(STYLE):
+        fig, axes = _figure(min(5.2 * panels, 14.0), 4.8, 1, panels)
+        y_label, y_scale = objective_axis(objectives[0]["name"], objectives[0]["sense"], objectives[0].get("long_name"))
+        for p in range(panels):
+            ax = axes[0, p]
+            j = p + 1 if k > 1 else 0
+            x_label, x_scale = objective_axis(objectives[j]["name"], objectives[j]["sense"],
+                                              objectives[j].get("long_name"))
+            x, y = values[:, j] * x_scale, values[:, 0] * y_scale
+            ax.scatter(x[other], y[other], s=14, color=OUTLINE_COLOUR, alpha=0.45, lw=0,
+                       label=f"other designs ({int(other.sum())})")
+            ax.scatter(x[front], y[front], s=46, color=DESIGN_COLOURS[0], edgecolor=REFERENCE_COLOUR, lw=0.8,
+                       zorder=5, label=f"Pareto front ({int(front.sum())} designs)")
+            if k == 2 and front.sum() > 1:  # two objectives: the front is a staircase
+                order = np.argsort(x[front])
+                ax.step(x[front][order], y[front][order], where="post" if objectives[j]["sense"] == "max" else "pre",
+                        color=DESIGN_COLOURS[0], lw=1.0, alpha=0.7, zorder=4)
+            if labels is not None and 0 < front.sum() <= 12:
+                for i in np.flatnonzero(front):
+                    ax.annotate(str(labels[i]), (x[i], y[i]), xytext=(4, 4), textcoords="offset points",
+                                fontsize=7.5, color=REFERENCE_COLOUR)
+            ax.set_xlabel(x_label)
+            if p == 0:
+                ax.set_ylabel(y_label)
+            if objectives[j]["sense"] == "max":
+                ax.annotate("better →", (0.98, 0.02), xycoords="axes fraction", ha="right", fontsize=8,
+                            color="#7a7a7a")
+        axes[0, 0].legend(loc="upper left", frameon=False)
+        fig.suptitle("Designs no other design beats on every objective (Pareto front)", fontsize=12)
+    return fig
+
+
+def result_pareto_figure(ds: xr.Dataset) -> Figure:
+    """:func:`pareto_figure` of a result that carries ``pareto_rank`` (metasim.sweep.pareto)."""
+    objectives = pareto_objectives(ds)
+    values = objective_values(ds, {o["name"]: o["sense"] for o in objectives})[0]
+    labels = [str(v) for v in ds["design"].values]
+    return pareto_figure(values, np.asarray(ds["pareto_rank"].values), objectives, labels)
+
+
+__all__ = ["OBJECTIVE_AXES", "objective_axis", "pareto_figure", "result_pareto_figure"]
