@@ -64,6 +64,25 @@ G = [532]
 B = [465]
 """
 
+SEARCH = """name = "Red line searched"
+reference = "monitor.toml"
+stimuli = "primaries"
+
+[search]
+kind = "laser"
+generations = 1
+population = 5
+
+[search.primaries.R]
+peak_nm = [630, 640]
+
+[search.primaries.G]
+peak_nm = 532
+
+[search.primaries.B]
+peak_nm = 465
+"""
+
 
 def manifest_text(edit) -> str:
     """A manifest of a two-design store in chunks of one, changed by ``edit(manifest)``."""
@@ -420,6 +439,18 @@ CASES = [
     case("sweep spec: objects with RGB stimuli", sw(sweep_text=SWEEP.replace('reference = "monitor.toml"', 'reference = "objects"')),
          ["reflectance stimuli"]),
     case("sweep spec: age bands outside", sw("--age-bands", "80,90"), ["age band 80-90", "outside the observers' ages"]),
+    Case("search: missing spec", ["search", "none.toml", "--out", "store"], ["none.toml", "no such"]),
+    Case("search: store is a file", ["search", "search.toml", "--out", "store.txt"], ["store.txt", "is a file"],
+         {"search.toml": SEARCH, "monitor.toml": SPEC, "store.txt": "mine"}),
+    Case("search: unknown key", ["search", "search.toml", "--out", "store"], ["search.toml", "unknown key 'vary'"],
+         {"search.toml": SEARCH + "\n[vary]\nkind = 'laser'\n", "monitor.toml": SPEC}),
+    Case("search: peak range off the grid", ["search", "search.toml", "--out", "store", "--size", "4"],
+         ["search.toml", "peak_nm", "within"],
+         {"search.toml": SEARCH.replace("[630, 640]", "[630, 940]"), "monitor.toml": SPEC}),
+    Case("search: unknown objective", ["search", "search.toml", "--out", "store", "--size", "4"],
+         ["objective 'beauty' is not known"],
+         {"search.toml": SEARCH.replace("population = 5", "population = 5\nobjective = 'beauty'"),
+          "monitor.toml": SPEC}),
 ]
 
 

@@ -16,7 +16,7 @@ import pytest
 
 import metasim
 from metasim import emitters
-from metasim.errors import SweepError
+from metasim.errors import MetasimWarning, SweepError
 from metasim.metamerism import primaries_and_secondaries
 from metasim.report import render_report
 from metasim.sweep import best_design, pareto_front, run_search, search_space
@@ -137,8 +137,29 @@ def test_killed_search_resumes_to_the_same_result(found, tmp_path):
     child.wait()
     assert child.returncode == -signal.SIGKILL  # killed mid-run, not finished
     assert not (store / "search.nc").exists()
-    resumed = run_search(space(), *inputs(), store=store, generations=10, population=10, seed=3, tolerance=0.0,
-                         scheduler="serial", chunk_size=5)
+    with pytest.warns(MetasimWarning, match="taking over the lock"):  # the killed run's lock
+        resumed = run_search(space(), *inputs(), store=store, generations=10, population=10, seed=3, tolerance=0.0,
+                             scheduler="serial", chunk_size=5)
     for name in ("peak_nm_R", "peak_nm_G", "search_objective"):
         np.testing.assert_array_equal(resumed[name].values, found[1][name].values)
     assert json.loads((store / "search.json").read_text())["seed"] == 3
+
+
+def test_search_command_writes_a_store_and_resumes(tmp_path):
+    from metasim.cli import main
+
+    spec = tmp_path / "search.toml"
+    spec.write_text(
+        'name = "Red line searched"\nstimuli = "primaries"\nreference = "objects"\n'
+        '[display]\ntransfer = "gamma"\n'
+        '[search]\nkind = "laser"\ngenerations = 1\npopulation = 5\nseed = 2\n'
+        '[search.primaries.R]\npeak_nm = [620, 650]\n[search.primaries.G]\npeak_nm = 532\n'
+        '[search.primaries.B]\npeak_nm = 465\n', encoding="utf-8")
+    args = ["search", str(spec), "--out", str(tmp_path / "store"), "--size", "3", "--stimuli", "cie13.3",
+            "--scheduler", "serial", "--quiet"]
+    assert main(args) == 0
+    first = metasim.load_dataset(tmp_path / "store" / "search.nc")
+    assert first.attrs["generation_count"] == 2 and first.sizes["design"] == 10
+    assert main(args) == 0  # again: read back from the store, same result
+    np.testing.assert_array_equal(metasim.load_dataset(tmp_path / "store" / "search.nc")["search_objective"].values,
+                                  first["search_objective"].values)

@@ -9,6 +9,7 @@ Subcommands::
                        against the first)
     metasim report     an HTML report (figures embedded) from any metasim result file
     metasim tables     the summary tables of any result file as CSV files and, optionally, a workbook
+    metasim search     a design search (a search spec, :mod:`metasim.cli.search`) by differential evolution
     metasim sweep      a grid of candidate designs (a sweep spec, :mod:`metasim.cli.sweep`) in chunks
                        written to a store folder as they finish; a re-run resumes
     metasim estimate   individual observers from colour-matching data (CSV or netCDF), with
@@ -362,6 +363,46 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
             print(f"{describe(best)}: {advice[0].lower()}{advice[1:]}")
 
 
+def cmd_search(args) -> int:
+    from metasim.cli.search import read_search_spec, spec_search_space
+    from metasim.cli.study import Progress, build_stimuli
+    from metasim.cli.sweep import relative
+    from metasim.metamerism.summary import age_band_edges
+    from metasim.sweep import best_design, run_search
+
+    spec = read_search_spec(args.spec)
+    space, settings = spec_search_space(spec)
+    search = spec["search"]
+    if args.reference is None and "reference" in spec:
+        args.reference = spec["reference"] if spec["reference"] == "objects" else str(relative(spec, spec["reference"]))
+    reference = _reference(args, {})
+    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+    observers = _observers(args)
+    generations = args.generations if args.generations is not None else search.get("generations", 20)
+    line = Progress(generations + 1, quiet=args.quiet)
+    result = run_search(space, reference, observers, stimuli, store=args.out, objective=search.get("objective", "p95_mismatch"),
+                        constraints=search.get("constraints"), generations=generations,
+                        population=search.get("population"), seed=args.search_seed if args.search_seed is not None
+                        else search.get("seed", 0), tolerance=search.get("tolerance", 0.01),
+                        chunk_size=args.chunk_size or spec.get("chunk_size"), scheduler=args.scheduler,
+                        workers=args.workers, calibration_observer=args.calibration_observer or spec.get(
+                            "calibration_observer", "cie1931_2"), strategy=args.strategy or spec.get("strategy", "min_norm"),
+                        display_settings=settings,
+                        lab_volume=bool(args.lab_volume if args.lab_volume is not None else spec.get("lab_volume", False)),
+                        age_bands=age_band_edges(_age_bands(args), observers.coords.get("age_years")),
+                        progress=lambda event: line.step(event["message"]), replace=args.replace, wait=args.wait,
+                        attrs={"sweep_name": spec.get("name", Path(args.spec).stem),
+                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
+    best = best_design(result)
+    values = ", ".join(f"{k} {v:.4g}" for k, v in best.items() if k not in ("design", "value", "feasible"))
+    print(f"best: design {best['design']} ({values}): value {best['value']:.4g}"
+          f"{'' if best['feasible'] else ' (no design found meets every constraint)'}")
+    print(f"result:  {Path(args.out) / 'search.nc'} ({result.sizes['design']} designs in "
+          f"{result.attrs['generation_count']} generations)")
+    return 0
+
+
 def cmd_estimate(args) -> int:
     import numpy as np
 
@@ -448,6 +489,11 @@ EXAMPLES = {
                "  metasim tables audience.nc --xlsx audience.xlsx --no-csv\n"
                "one CSV file per table (one row per combination of its dims, a column per dim, coordinate and value;\n"
                "headers 'key [units]'); contents.csv lists every column with its long name and units"),
+    "search": ("examples:\n  metasim search data/demo/search_red_green.toml --out rg-search --size 100 --seed 7\n"
+               "  metasim search data/demo/search_red_green.toml --out rg-search --size 100 --seed 7  # again: resumes\n"
+               "  metasim report rg-search/search.nc --out rg-search.html\n\n"
+               "Each generation is one batched evaluation of all its designs, stored as a sweep store\n"
+               "(STORE/generation-NNNNN); a re-run replays the finished generations from the store and continues."),
     "sweep": ("examples:\n  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7\n"
               "  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
               "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
@@ -464,6 +510,8 @@ REPLACE_HELP = {
           "an output is never allowed to be one of the input files",
     "sweep": "if the store folder holds a different sweep, remove its metasim files (manifest, chunks, sweep.nc) "
              "and start afresh (default: stop, naming the folder); a store of the same sweep always resumes",
+    "search": "if the store folder holds a different search, remove its generation folders, search.json and "
+              "search.nc and start afresh (default: stop, naming the folder); a store of the same search resumes",
 }
 
 
@@ -624,6 +672,25 @@ def build_parser() -> argparse.ArgumentParser:
     _population_options(p)
     _matching_options(p)
     _interval_options(p)
+    p.set_defaults(calibration_observer=None, strategy=None)
+
+    p = add("search", "search for the best design (a search spec) by differential evolution; resumable", cmd_search)
+    p.add_argument("spec", help="search spec (TOML): the primaries' ranges, objective, constraints; optionally "
+                   "reference and stimuli")
+    p.add_argument("--out", required=True, metavar="STORE", help="store folder (one sweep store per generation, "
+                   "search.json, search.nc); an existing store of the same search resumes")
+    p.add_argument("--reference", help="reference display spec (TOML) or 'objects' (default: the spec's, else objects)")
+    p.add_argument("--generations", type=int, metavar="N", help="generations after the first (default: the spec's, "
+                   "else 20); more than a finished search had continues it")
+    p.add_argument("--search-seed", type=int, metavar="N", help="seed of the search (default: the spec's, else 0)")
+    p.add_argument("--chunk-size", type=int, metavar="N", help="designs per chunk (default: automatic)")
+    p.add_argument("--scheduler", default="threads", help="serial, threads (default), dask-threads, or a dask "
+                   "scheduler address such as tcp://host:8786")
+    p.add_argument("--workers", type=int, metavar="N", help="threads for threads / dask-threads (default: CPU count)")
+    p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
+    p.add_argument("--wait", action="store_true", help="if another run is writing the same store, wait for it")
+    _population_options(p)
+    _matching_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)
 
     p = add("estimate", "estimate individual observers from colour-matching data, with uncertainties", cmd_estimate)

@@ -102,7 +102,7 @@ def check_inputs(paths) -> None:
 
 
 def _sweep_inputs(args) -> list[Path]:
-    spec = read_toml(args.spec, "sweep spec")
+    spec = read_toml(args.spec, f"{args.command} spec")
     inputs = [Path(args.spec)]
     for key in ("base", "reference"):
         value = spec.get(key)
@@ -128,7 +128,7 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
         check_inputs(specs)
         for spec in specs:
             inputs += design_spec_inputs(spec)
-    elif command == "sweep":
+    elif command in ("sweep", "search"):
         check_inputs([args.spec])
         inputs += _sweep_inputs(args)
         if args.reference not in (None, "objects"):
@@ -145,7 +145,7 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
             if option:
                 check_inputs([option])
                 inputs += design_spec_inputs(option) if Path(option).suffix.lower() == ".toml" else [Path(option)]
-    if command in ("evaluate", "compare", "sweep"):
+    if command in ("evaluate", "compare", "sweep", "search"):
         inputs += stimulus_files(args.stimuli)
         if args.observers:
             inputs.append(Path(args.observers))
@@ -195,6 +195,12 @@ def check_command_files(args) -> None:
         if store.exists() and not store.is_dir():
             raise FileFormatError(f"--out {store}: is a file; the sweep store must be a folder")
         check_outputs([store / "sweep.nc", store / "manifest.json"], inputs=inputs, replace=True)
+        return
+    if args.command == "search":
+        store = Path(args.out)
+        if store.exists() and not store.is_dir():
+            raise FileFormatError(f"--out {store}: is a file; the search store must be a folder")
+        check_outputs([store / "search.nc", store / "search.json"], inputs=inputs, replace=True)
         return
     check_outputs(outputs, inputs=inputs, replace=args.replace)
 

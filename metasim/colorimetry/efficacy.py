@@ -36,9 +36,10 @@ def luminous_efficacy(spectra: xr.DataArray, observer) -> xr.DataArray:
     --------
     >>> import metasim
     >>> from metasim.colorimetry.efficacy import luminous_efficacy
-    >>> line = metasim.emitters.laser_line([555.0], 1.0, name=["G"])
+    >>> from metasim.emitters import laser_line
+    >>> line = laser_line([555.0], 1.0, name=["G"])
     >>> round(float(luminous_efficacy(line, metasim.standard_observer("cie1931_2")).squeeze()), 1)
-    682.6
+    683.0
     """
     if "wavelength" not in spectra.dims:
         raise SpectrumError(f"luminous_efficacy needs spectra with a 'wavelength' dim, got {tuple(spectra.dims)}")

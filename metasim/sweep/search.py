@@ -474,11 +474,25 @@ def run_search(space: SearchSpace, reference, observers, stimuli: xr.Dataset, *,
                                  f"{'computed' if fresh else 'read from the store'}; best value so far {best:.4g}"})
         return value
 
+    failures: list[BaseException] = []
+
+    def guarded(x: np.ndarray) -> np.ndarray:
+        try:
+            return evaluate(x)
+        except BaseException as exc:  # scipy wraps errors of the function; ours are raised as they are
+            failures.append(exc)
+            raise
+
     with store_lock(store, wait=wait):
         _open_search_store(store, manifest, replace)
-        differential_evolution(evaluate, bounds, maxiter=int(generations), popsize=popsize, tol=float(tolerance),
-                               mutation=mutation, recombination=recombination, rng=int(seed), polish=False,
-                               init="latinhypercube", updating="deferred", vectorized=True)
+        try:
+            differential_evolution(guarded, bounds, maxiter=int(generations), popsize=popsize, tol=float(tolerance),
+                                   mutation=mutation, recombination=recombination, rng=int(seed), polish=False,
+                                   init="latinhypercube", updating="deferred", vectorized=True)
+        except Exception:
+            if failures:
+                raise failures[0] from None
+            raise
         return combine_search(store, manifest, parts, objective, constraints)
 
 

@@ -1,0 +1,96 @@
+"""Search specs: a TOML file that describes a design search, for ``metasim search``.
+
+The top-level keys are those of a sweep spec (:mod:`metasim.cli.sweep`: name, description, base,
+reference, stimuli, calibration_observer, strategy, chunk_size, lab_volume, [display]); instead of
+``[vary]`` a ``[search]`` table says what to search::
+
+    [search]
+    kind = "laser"                         # laser | gaussian | quantum_dot
+    profile = "gaussian"                   # laser line shape: gaussian | lorentzian
+    seed = 7                               # the search's seed                  (default 0)
+    generations = 20                       # after the initial population       (default 20)
+    population = 20                        # designs per generation             (default 10 per parameter)
+    tolerance = 0.01                       # stop early when the values agree this closely (0: never)
+    objective = "p95_mismatch"             # a name, or a table of weights:
+                                           # objective = {p95_mismatch = 1.0, bt2020_coverage = 5.0}
+
+    [search.primaries.R]                   # one table per searched primary (3 to 6 primaries in all,
+    peak_nm = [615, 660]                   # base primaries included); a number is fixed,
+    width_nm = 1.0                         # [lowest, highest] is searched
+    power = [0.5, 2.0]                     # relative power before white calibration (N > 3)
+
+    [search.constraints]                   # optional: bounds on named objectives or design variables
+    bt2020_coverage = {min = 0.9}
+    white_efficacy = {min = 250}
+
+Objective and constraint names: p95_mismatch, median_mismatch, white_p95, bt2020_coverage,
+p3_coverage, bt709_coverage, gamut_area, lab_volume (with lab_volume = true), white_efficacy.
+"""
+
+from __future__ import annotations
+
+from metasim.cli.paths import SpecError, read_toml
+from metasim.cli.specs import load_display, spec_settings
+from metasim.cli.sweep import DISPLAY_KEYS, TOP_KEYS, _unknown, relative
+from metasim.errors import MetasimError
+from metasim.sweep import GRID_KINDS, search_space
+
+SEARCH_TOP_KEYS = tuple(k for k in TOP_KEYS if k not in ("vary", "per_stimulus")) + ("search",)
+SEARCH_KEYS = ("kind", "profile", "seed", "generations", "population", "tolerance", "objective", "primaries",
+               "constraints")
+
+
+def read_search_spec(path) -> dict:
+    """The parsed search spec (``_path``, ``_text`` added), its keys and value types checked."""
+    spec = read_toml(path, "search spec")
+    where = str(spec["_path"])
+    _unknown(where, spec, SEARCH_TOP_KEYS)
+    search = spec.get("search")
+    if not isinstance(search, dict):
+        raise SpecError(f"{where}: a search spec needs a [search] table with [search.primaries.<label>] tables")
+    _unknown(f"{where} [search]", search, SEARCH_KEYS)
+    if search.get("kind", "laser") not in GRID_KINDS:
+        raise SpecError(f"{where} [search]: kind {search.get('kind')!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    if not isinstance(search.get("primaries"), dict) or not search["primaries"]:
+        raise SpecError(f"{where}: [search.primaries.<label>] must name at least one primary, e.g. "
+                        "[search.primaries.R] peak_nm = [615, 660]")
+    for key in ("seed", "generations", "population"):
+        if key in search and (isinstance(search[key], bool) or not isinstance(search[key], int) or search[key] < 0):
+            raise SpecError(f"{where} [search]: {key} = {search[key]!r} is not allowed; need a whole number >= 0")
+    if "tolerance" in search and (isinstance(search["tolerance"], bool)
+                                  or not isinstance(search["tolerance"], (int, float)) or search["tolerance"] < 0):
+        raise SpecError(f"{where} [search]: tolerance = {search['tolerance']!r} is not allowed; need a number >= 0")
+    if "objective" in search and not isinstance(search["objective"], (str, dict)):
+        raise SpecError(f"{where} [search]: objective = {search['objective']!r}; give a name or a table of weights")
+    if "constraints" in search and not isinstance(search["constraints"], dict):
+        raise SpecError(f"{where} [search]: constraints must be a table, e.g. bt2020_coverage = {{min = 0.9}}")
+    for key in ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy"):
+        if key in spec and not isinstance(spec[key], str):
+            raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
+    if "display" in spec:
+        if "base" in spec:
+            raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
+        if not isinstance(spec["display"], dict):
+            raise SpecError(f"{where}: display must be a table of display settings")
+        _unknown(f"{where} [display]", spec["display"], DISPLAY_KEYS)
+    return spec
+
+
+def spec_search_space(spec: dict):
+    """The :class:`metasim.sweep.SearchSpace` of a search spec, and its display settings (or None)."""
+    where = str(spec["_path"])
+    search = spec["search"]
+    base = load_display(relative(spec, spec["base"]))[0] if "base" in spec else None
+    try:
+        space = search_space(search.get("kind", "laser"), search["primaries"], base=base,
+                             profile=search.get("profile", "gaussian"))
+    except MetasimError as exc:
+        raise SpecError(f"{where}: {exc}") from None
+    settings = None
+    if "display" in spec:
+        settings = spec_settings({**spec["display"], "_path": spec["_path"]})
+        settings = {k: settings[k] for k in DISPLAY_KEYS}
+    return space, settings
+
+
+__all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "read_search_spec", "spec_search_space"]
