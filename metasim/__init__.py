@@ -67,6 +67,7 @@ _ENTRY_POINTS = {
     "design_grid": "metasim.sweep",
     "run_sweep": "metasim.sweep",
     "pareto_front": "metasim.sweep",
+    "extra_primary_value": "metasim.sweep",
     "run_search": "metasim.sweep",
     "search_space": "metasim.sweep",
     "luminous_efficacy": "metasim.colorimetry.efficacy",

@@ -13,9 +13,11 @@ from metasim.plots.fitting import *  # noqa: F401,F403
 from metasim.plots.fitting import __all__ as _fitting_all
 from metasim.plots.pareto import *  # noqa: F401,F403
 from metasim.plots.pareto import __all__ as _pareto_all
+from metasim.plots.extra import *  # noqa: F401,F403
+from metasim.plots.extra import __all__ as _extra_all
 from metasim.plots.search import *  # noqa: F401,F403
 from metasim.plots.search import __all__ as _search_all
 from metasim.plots.sweep import *  # noqa: F401,F403
 from metasim.plots.sweep import __all__ as _sweep_all
 
-__all__ = [*_figures_all, *_fitting_all, *_sweep_all, *_pareto_all, *_search_all]
+__all__ = [*_figures_all, *_fitting_all, *_sweep_all, *_pareto_all, *_search_all, *_extra_all]

@@ -14,6 +14,8 @@ holds, section by section:
 * an observer fit (:func:`metasim.fit_observer`): estimates against the population spread, the
   parameters the data did not identify, match errors before and after, subjects, categories
   (:mod:`metasim.report.fitting`);
+* what an extra primary buys (:func:`metasim.sweep.extra_primary_value`): gamut and population
+  mismatch gain per candidate wavelength, two panels side by side (:mod:`metasim.report.extra`);
 * a combined sweep (``STORE/sweep.nc`` of :func:`metasim.sweep.run_sweep`): the best design, the
   sweep figure (:func:`metasim.plots.sweep_figure`), the ten best designs, the Pareto front over
   the result's objectives with a table of its designs (:mod:`metasim.report.pareto`), the stimuli
@@ -38,6 +40,7 @@ from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_li
                                  _table)
 from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
                                     is_fit)
+from metasim.report.extra import extra_value_page, is_extra_value
 from metasim.report.pareto import pareto_caption, pareto_section, with_pareto_ranks
 from metasim.report.search import is_search, search_section
 from metasim.report.sweep import _sweep_best, _sweep_headline, _sweep_models, _sweep_stimuli
@@ -58,6 +61,8 @@ def report_kind(ds: xr.Dataset) -> str:
 
 
 def _kind(ds: xr.Dataset) -> str:
+    if is_extra_value(ds):
+        return "extra"
     if is_fit(ds):
         return "fit"
     if is_sweep(ds):
@@ -91,6 +96,10 @@ def _primary_peaks(ds: xr.Dataset) -> dict:
 
 def report_figures(ds: xr.Dataset) -> dict:
     """The figures a result supports, by file stem: {name: (Figure, caption)}."""
+    if _kind(ds) == "extra":
+        return {"extra_primary_value": (plots.extra_primary_value_figure(ds), "Left: gamut added by one more primary "
+                                        "at each candidate peak wavelength; right: the population's 95th percentile "
+                                        "CIE 2000 difference saved when the extra primary serves the population.")}
     ds = as_study(ds)
     figures = {}
     if _kind(ds) == "sweep":
@@ -332,10 +341,11 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     if not isinstance(ds, xr.Dataset):
         raise ReportError(f"a report needs a result Dataset, got {type(ds).__name__}")
     kind = _kind(ds)
-    ds = as_study(ds)
+    ds = ds if kind == "extra" else as_study(ds)
     if kind == "sweep":
         title = title or str(plots.sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
-    title = title or str(ds.attrs.get("title", {"population": "metasim population", "fit": "metasim observer fit"}.get(
+    title = title or str(ds.attrs.get("title", {"population": "metasim population", "fit": "metasim observer fit",
+                                                "extra": "metasim: what an extra primary buys"}.get(
         kind, "metasim result")))
     figures = figure_pngs(ds) if figures is None else figures
     body = [f"<h1>{_e(title)}</h1>",
@@ -346,6 +356,8 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         body += [_sweep_headline(ds), search_section(ds, figures.get("search"))]
         body += [_image(png, caption) for name, (png, caption) in figures.items() if name not in ("pareto", "search")]
         body += [_sweep_best(ds), pareto_section(ds, figures.get("pareto")), _sweep_stimuli(ds), _sweep_models(ds)]
+    elif kind == "extra":
+        body.append(extra_value_page(ds, figures.get("extra_primary_value")))
     elif kind == "fit":
         body += [fit_headline(ds), _image(*figures["fit_parameters"]), fit_parameter_table(ds),
                  "<h2>Matches before and after</h2>", _image(*figures["fit_residuals"]), fit_subject_table(ds),
@@ -366,7 +378,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
         for key in ("chromaticity", "spectra", "extra_primary"):
             if key in figures:
                 body.append(_image(*figures[key]))
-    if kind not in ("sweep", "fit"):
+    if kind not in ("sweep", "fit", "extra"):
         body.append(_models(ds))
     body.append("<h2>Cautions</h2>" + "".join(f"<p class='caution'>{_e(c)}</p>" for c in CAUTIONS))
     return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
@@ -380,6 +392,7 @@ FIGURE_NAMES = {
     "population": ("observers",),
     "sweep": ("sweep", "pareto", "search"),
     "fit": ("fit_parameters", "fit_residuals"),
+    "extra": ("extra_primary_value",),
 }
 
 

@@ -22,6 +22,8 @@
   (``pareto_front``: variable ``pareto_rank``, 1 = on the front).
 * :mod:`metasim.sweep.search` — a design search instead of a grid (``search_space``, ``run_search``):
   differential evolution, one batched evaluation per generation, each generation stored, resumable.
+* :mod:`metasim.sweep.extra` — what an extra primary buys: gamut and population-mismatch gain per
+  candidate wavelength (``extra_primary_value``).
 * :mod:`metasim.sweep.run` — ``run_sweep``: chunks along ``design`` on a scheduler ("serial",
   "threads", "dask-threads", or a dask.distributed address), each chunk written as it completes;
   a re-run with the same store resumes.
@@ -30,6 +32,7 @@ Layer: sweep (imports every library layer above it; never the report or the CLI)
 """
 
 from metasim.sweep.pareto import OBJECTIVES, pareto_front, pareto_ranks
+from metasim.sweep.extra import extra_primary_value
 from metasim.sweep.search import SearchSpace, best_design, run_search, search_space
 from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS, GRID_KINDS, design_grid, design_list, display_settings_of
 from metasim.sweep.run import SCHEDULERS, chunk_display, evaluate_chunk, run_sweep
@@ -39,4 +42,4 @@ from metasim.sweep.summary import COVERAGE_GAMUTS, design_summaries
 __all__ = ["DEFAULT_DISPLAY_SETTINGS", "GRID_KINDS", "SCHEDULERS", "COVERAGE_GAMUTS", "design_grid", "design_list",
            "display_settings_of", "run_sweep", "chunk_display", "evaluate_chunk", "combine_sweep", "read_manifest",
            "spec_hash", "design_summaries", "OBJECTIVES", "pareto_front", "pareto_ranks",
-           "SearchSpace", "search_space", "run_search", "best_design"]
+           "SearchSpace", "search_space", "run_search", "best_design", "extra_primary_value"]
