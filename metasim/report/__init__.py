@@ -107,9 +107,10 @@ def report_figures(ds: xr.Dataset) -> dict:
         what = {1: "against the varied parameter, with the BT.2020 coverage of each design",
                 2: "over the two varied parameters (the best design outlined)"}.get(
             len(varied), "for every design, sorted (the best design starred)")
-        figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
-                            f"observer × stimulus pairs, per design, {what}.")
-        if is_search(ds):
+        if not is_search(ds):  # a search's designs scatter over continuous ranges: no grid to draw
+            figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
+                                f"observer × stimulus pairs, per design, {what}.")
+        else:
             figures["search"] = (plots.search_convergence(ds), "Value the search minimises, for every design of "
                                  "each generation, and the best found so far.")
         ds = with_pareto_ranks(ds)
