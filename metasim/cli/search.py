@@ -29,10 +29,11 @@ p3_coverage, bt709_coverage, gamut_area, lab_volume (with lab_volume = true), wh
 
 from __future__ import annotations
 
-from metasim.cli.paths import SpecError, read_toml
+from metasim.checks import known_keys
+from metasim.cli.paths import read_toml
 from metasim.cli.specs import load_display, spec_settings
-from metasim.cli.sweep import DISPLAY_KEYS, TOP_KEYS, _unknown, relative
-from metasim.errors import MetasimError
+from metasim.cli.sweep import DISPLAY_KEYS, TOP_KEYS, relative
+from metasim.errors import MetasimError, SpecError
 from metasim.sweep import GRID_KINDS, search_space
 
 SEARCH_TOP_KEYS = tuple(k for k in TOP_KEYS if k not in ("vary", "per_stimulus")) + ("search",)
@@ -44,11 +45,11 @@ def read_search_spec(path) -> dict:
     """The parsed search spec (``_path``, ``_text`` added), its keys and value types checked."""
     spec = read_toml(path, "search spec")
     where = str(spec["_path"])
-    _unknown(where, spec, SEARCH_TOP_KEYS)
+    known_keys(spec, SEARCH_TOP_KEYS, where, error=SpecError)
     search = spec.get("search")
     if not isinstance(search, dict):
         raise SpecError(f"{where}: a search spec needs a [search] table with [search.primaries.<label>] tables")
-    _unknown(f"{where} [search]", search, SEARCH_KEYS)
+    known_keys(search, SEARCH_KEYS, f"{where} [search]", error=SpecError)
     if search.get("kind", "laser") not in GRID_KINDS:
         raise SpecError(f"{where} [search]: kind {search.get('kind')!r} is not known; allowed: {', '.join(GRID_KINDS)}")
     if not isinstance(search.get("primaries"), dict) or not search["primaries"]:
@@ -72,7 +73,7 @@ def read_search_spec(path) -> dict:
             raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
         if not isinstance(spec["display"], dict):
             raise SpecError(f"{where}: display must be a table of display settings")
-        _unknown(f"{where} [display]", spec["display"], DISPLAY_KEYS)
+        known_keys(spec["display"], DISPLAY_KEYS, f"{where} [display]", error=SpecError)
     return spec
 
 

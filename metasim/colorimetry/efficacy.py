@@ -13,7 +13,7 @@ from __future__ import annotations
 import xarray as xr
 
 from metasim.colorimetry.tristimulus import K_M, tristimulus
-from metasim.errors import SpectrumError
+from metasim.errors import ColorimetryError
 from metasim.spectra import grid_step
 
 
@@ -42,7 +42,7 @@ def luminous_efficacy(spectra: xr.DataArray, observer) -> xr.DataArray:
     683.0
     """
     if "wavelength" not in spectra.dims:
-        raise SpectrumError(f"luminous_efficacy needs spectra with a 'wavelength' dim, got {tuple(spectra.dims)}")
+        raise ColorimetryError(f"luminous_efficacy needs spectra with a 'wavelength' dim, got {tuple(spectra.dims)}")
     luminance = tristimulus(spectra, observer, scale="absolute").sel(xyz="Y", drop=True)
     power = spectra.sum("wavelength") * grid_step(spectra["wavelength"].values)
     out = luminance / power.where(power > 0)
