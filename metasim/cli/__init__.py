@@ -58,6 +58,7 @@ from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range
 from metasim.errors import FileFormatError, MetasimError, OptionError, ReportError, StimulusError
+from metasim.progress import Progress
 
 PROG = "metasim"
 
@@ -119,7 +120,7 @@ def _warning(message, category, filename, lineno, file=None, line=None) -> None:
 def cmd_demo(args) -> int:
     from metasim.cli.demo import run_demo
 
-    paths = run_demo(args.out, size=args.size, seed=args.seed, quiet=args.quiet, replace=args.replace)
+    paths = run_demo(args.out, size=args.size, seed=args.seed, replace=args.replace, progress=args.progress)
     _print_headline(paths["result"])
     print(f"result:  {paths['result_path']}")
     print(f"report:  {paths['report_path']}")
@@ -134,15 +135,25 @@ def cmd_observers(args) -> int:
     out = Path(args.out)
     if out.suffix != ".nc":
         raise OptionError(f"--out {out}: give a netCDF file name ending in .nc")
-    population = build_population(args.size, args.seed, args.ages, args.field_size, args.categories,
-                                  extrapolate=args.extrapolate)
+    progress = args.progress
+    progress.steps = 1 + int(args.categories is not None) + 1 + int(bool(args.report))
+    population = build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate,
+                                  progress=progress)
+    if args.categories is not None:
+        from metasim.observers import observer_categories
+
+        population = observer_categories(population, args.categories, seed=args.seed)
+        progress.step(f"{args.categories} observer categories")
     save_dataset(population, out, replace=args.replace)
+    progress.step(f"wrote {out}")
     what = f"{args.categories} categories of {args.size} observers" if args.categories else f"{args.size} observers"
     print(f"wrote {out}: {what}, ages {args.ages}, field size {args.field_size} deg, seed {args.seed}")
     if args.report:
         from metasim.report import write_report
 
-        print(f"report: {write_report(population, args.report, source=out.name, replace=args.replace, inputs=args.inputs)}")
+        report = write_report(population, args.report, source=out.name, replace=args.replace, inputs=args.inputs)
+        progress.step(f"wrote {report}")
+        print(f"report: {report}")
     return 0
 
 
@@ -163,7 +174,8 @@ def _observers(args):
 
     if getattr(args, "observer_set", None) is not None:
         return args.observer_set
-    return build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate)
+    return build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate,
+                            progress=args.progress)
 
 
 def _reference(args, specs: dict):
@@ -184,7 +196,7 @@ def _age_bands(args):
 
 
 def _study(args, designs: list, reference, specs: dict) -> int:
-    from metasim.cli.study import Progress, build_stimuli, spec_texts
+    from metasim.cli.study import build_stimuli, spec_texts
     from metasim.io import check_outputs, save_dataset
     from metasim.report import report_outputs, write_report
     from metasim.study import WHITE_CATEGORIES, run_study
@@ -203,8 +215,9 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     size = args.observer_set.sizes["observer"] if getattr(args, "observer_set", None) is not None else args.size
     check_mismatch_memory(size, stimuli.sizes["stimulus"], 1)  # one design at a time; before drawing observers
     observers = _observers(args)
-    steps = len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
-    progress = Progress(steps, quiet=args.quiet)
+    progress = args.progress
+    progress.steps = (1 + len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
+                      + int(not args.no_report))
     result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
                        strategy=args.strategy, age_bands=_age_bands(args), spec_texts=spec_texts(specs),
                        progress=progress, extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
@@ -219,6 +232,7 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     if not args.no_report:
         report = write_report(result, out / REPORT_FILE, figures_dir=figures, source=result_path.name,
                               replace=args.replace, inputs=args.inputs)
+        progress.step(f"wrote {report}")
         print(f"report:  {report}")
         print(f"figures: {figures}")
     return 0
@@ -258,8 +272,12 @@ def cmd_report(args) -> int:
         report_kind(data)
     except MetasimError as exc:
         raise ReportError(f"{args.result}: {exc}") from None
+    args.progress.say(f"read {args.result}")
     out = args.outputs[0]
-    print(f"report: {write_report(data, out, figures_dir=args.figures, source=Path(args.result).name, replace=args.replace, inputs=args.inputs)}")
+    report = write_report(data, out, figures_dir=args.figures, source=Path(args.result).name, replace=args.replace,
+                          inputs=args.inputs)
+    args.progress.say(f"wrote {report}")
+    print(f"report: {report}")
     return 0
 
 
@@ -275,7 +293,9 @@ def cmd_tables(args) -> int:
     data = load_dataset(source)
     if not hasattr(data, "data_vars"):
         raise FileFormatError(f"{source}: holds a single array, not a metasim result Dataset")
+    args.progress.say(f"read {source}")
     tables = result_tables(data, pairs=args.pairs)
+    args.progress.say(f"{len(tables)} tables gathered")
     if not args.no_csv:
         out = Path(args.out) if args.out else source.parent / f"{source.stem}-tables"
         paths = write_csv_tables(tables, out, replace=args.replace, inputs=args.inputs)
@@ -288,7 +308,7 @@ def cmd_tables(args) -> int:
 
 
 def cmd_sweep(args) -> int:
-    from metasim.cli.study import Progress, build_stimuli
+    from metasim.cli.study import build_stimuli
     from metasim.cli.sweep import read_sweep_spec, relative, sweep_designs
     from metasim.metamerism.summary import age_band_edges
     from metasim.sweep import run_sweep
@@ -302,15 +322,24 @@ def cmd_sweep(args) -> int:
     stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     observers = _observers(args)
-    line = Progress(0, quiet=args.quiet)
+    line = args.progress
+    line.say(f"{len(designs)} designs from {args.spec}; computing them in chunks")
+    timing = {"computed": 0, "start": None}
 
     def progress(event):
         if event["kind"] == "waiting":
-            if not args.quiet:
-                print(f"{PROG}: {event['message']}", file=sys.stderr, flush=True)
+            line.say(event["message"])
             return
-        line.steps = event["total"] + 1  # the chunks and the combine step
-        line.step(event["message"])
+        if timing["start"] is None:  # the first event of this run: chunks finished since then are timed
+            timing["start"] = line.clock() - event["seconds"]
+        message = event["message"]
+        if event["kind"] == "computed":
+            timing["computed"] += 1
+            left = event["total"] - event["done"]
+            if left:  # chunks computed in this run, not those found in the store, give the pace
+                message += "; " + line.time_left(timing["computed"], timing["computed"] + left,
+                                                 line.clock() - timing["start"])
+        line.say(f"[{event['done']}/{event['total']}] {message}" if event["kind"] != "combined" else message)
 
     result = run_sweep(designs, reference, observers, stimuli, store=args.out,
                        chunk_size=args.chunk_size or spec.get("chunk_size"), scheduler=args.scheduler,
@@ -411,6 +440,7 @@ def cmd_estimate(args) -> int:
     from metasim.report import write_report
 
     source = Path(args.data)
+    progress = args.progress
     if source.suffix.lower() == ".nc":
         data = load_dataset(source)
     else:
@@ -429,11 +459,13 @@ def cmd_estimate(args) -> int:
         data = read_matching_csv(source, primaries=primaries, references=args.references, display=display,
                                  field_size_deg=args.field_size, age_years=args.age)
     categories = False if args.no_categories else (load_dataset(args.categories) if args.categories else None)
+    progress.say(f"read {source}; fitting the subjects' observers")
     result = fit_observer(data, fit_age=args.fit_age, setting_noise=args.setting_noise,
                           peak_shift_axis=args.peak_shift_axis, categories=categories)
     out = Path(args.out)
     out.mkdir(parents=True, exist_ok=True)
     path = save_dataset(result, out / FIT_FILE, replace=args.replace)
+    progress.say(f"wrote {path}")
     n = result.sizes["observer"]
     flat = result["match_error"].values.reshape(n, -1), result["match_error_mean_observer"].values.reshape(n, -1)
     after, before = (np.nanmedian(np.nanmedian(v, axis=1)) for v in flat)
@@ -447,6 +479,7 @@ def cmd_estimate(args) -> int:
     print(f"result:  {path}")
     if not args.no_report:
         report = write_report(result, out / REPORT_FILE, source=path.name, replace=args.replace, inputs=args.inputs)
+        progress.say(f"wrote {report}")
         print(f"report:  {report}")
     return 0
 
@@ -736,6 +769,7 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     args.quiet = bool(getattr(args, "quiet", False))
+    args.progress = Progress(quiet=args.quiet)  # progress lines on stderr (metasim.progress); --quiet silences
     keep_freed_memory()  # many studies in one process: reuse freed memory (metasim._memory)
     try:
         with warnings.catch_warnings():  # restored on return: main() may run many times in one process
@@ -743,7 +777,9 @@ def main(argv=None) -> int:
             warnings.filterwarnings("ignore", module="colour")
             warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
             check_command_files(args)  # inputs and outputs, before the numerical modules load
-            return int(args.run(args) or 0)
+            args.progress.say(f"{args.command}: inputs checked; loading the numerical modules")
+            with args.progress:  # the active reporter (metasim.progress.current) and its heartbeat
+                return int(args.run(args) or 0)
     except MetasimError as exc:
         _error(exc)
     except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError) as exc:

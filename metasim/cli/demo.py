@@ -14,9 +14,10 @@ from pathlib import Path
 
 from metasim._paths import data_dir
 from metasim.cli.specs import load_display
-from metasim.cli.study import Progress, build_population, build_stimuli, spec_texts
+from metasim.cli.study import build_population, build_stimuli, spec_texts
 from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE
 from metasim.io import check_outputs, save_dataset
+from metasim.progress import Progress
 from metasim.report import report_outputs, write_report
 from metasim.study import run_study
 
@@ -27,17 +28,20 @@ AUDIENCE_AGES = "20-70"
 STIMULI = "ramp:6,primaries,{csv}"
 
 
-def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, replace: bool = False) -> dict:
+def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, replace: bool = False,
+             progress: Progress | None = None) -> dict:
     """Run the demo study into the folder ``out``; returns the paths written and the result.
 
     Existing outputs (``study.nc``, ``report.html``, the figures) are replaced only with ``replace``;
-    otherwise the demo stops before computing (:func:`metasim.io.check_outputs`).
+    otherwise the demo stops before computing (:func:`metasim.io.check_outputs`). Progress lines go
+    to ``progress`` (default: a new :class:`metasim.progress.Progress`, silent with ``quiet``).
     """
     out = Path(out)
     figures = out / FIGURES_DIR
     check_outputs([out / RESULT_FILE, *report_outputs("study", out / REPORT_FILE, figures)], replace=replace)
     out.mkdir(parents=True, exist_ok=True)
-    progress = Progress(12, quiet=quiet)
+    progress = progress if progress is not None else Progress(quiet=quiet)
+    progress.steps = 13
     reference, ref_spec = load_display(DEMO_DIR / REFERENCE_SPEC)
     designs, specs = [], {reference.name: ref_spec}
     for name in DESIGN_SPECS:
@@ -54,8 +58,9 @@ def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, re
     result.attrs["scenario"] = ("invented demo: a post-production house weighs two projector designs against its "
                                 "broadband grading monitor for audiences aged 20-70")
     result_path = save_dataset(result, out / RESULT_FILE, replace=replace)
+    progress.step(f"wrote {result_path}")
     report_path = write_report(result, out / REPORT_FILE, figures_dir=figures, source=RESULT_FILE, replace=replace)
-    progress.step(f"wrote {result_path}, {report_path} and {figures}")
+    progress.step(f"wrote {report_path} and {figures}")
     return {"result": result, "result_path": result_path, "report_path": report_path, "figures_dir": figures}
 
 

@@ -1,12 +1,10 @@
-"""The command line's study inputs: progress lines, LO-HI ranges, populations and stimulus lists.
+"""The command line's study inputs: LO-HI ranges, populations and stimulus lists.
 
 The study itself is the library function :func:`metasim.study.run_study` (its result layout is
 described in :mod:`metasim.study`); this module only turns command-line text into its inputs.
 """
 
 from __future__ import annotations
-
-import time
 
 import xarray as xr
 
@@ -21,36 +19,22 @@ from metasim.metamerism import (
     rgb_cube_grid,
 )
 from metasim.observers import observer_categories, observer_population
+from metasim.progress import Progress  # noqa: F401  (the reporter lived here before metasim.progress)
 
 #: Stimulus set names of ``--stimuli`` (each followed by ``:N`` where it takes a size).
 STIMULUS_SETS = ("ramp", "primaries", "cube", "cie13.3")
 
 
-class Progress:
-    """Progress lines on stderr: ``metasim: [2/5] step ... (1.2 s)``."""
-
-    def __init__(self, steps: int, stream=None, quiet: bool = False):
-        import sys
-
-        self.steps, self.done, self.stream, self.quiet = steps, 0, stream or sys.stderr, quiet
-        self.start = time.perf_counter()
-
-    def step(self, text: str) -> None:
-        self.done += 1
-        if not self.quiet:
-            elapsed = time.perf_counter() - self.start
-            print(f"metasim: [{self.done}/{self.steps}] {text} ({elapsed:.1f} s)", file=self.stream, flush=True)
-
-    __call__ = step  # a progress callback of the library (metasim.study.run_study)
-
-
 # -- inputs ----------------------------------------------------------------------------------------
 
 def build_population(size: int, seed: int, ages: str, field_size: str, categories: int | None = None, *,
-                     extrapolate: bool = False) -> xr.Dataset:
-    """A seeded observer population (or its ``categories`` representative observers)."""
+                     extrapolate: bool = False, progress=None) -> xr.Dataset:
+    """A seeded observer population (or its ``categories`` representative observers); ``progress``
+    (a :class:`metasim.progress.Progress`) is told when it is drawn."""
     population = observer_population(size, seed=seed, age_years=parse_range(ages, "age range"),
                                      field_size_deg=parse_range(field_size, "field size"), extrapolate=extrapolate)
+    if progress is not None:
+        progress.step(f"{size} observers drawn, ages {ages}, field size {field_size} deg, seed {seed}")
     if categories is not None:
         population = observer_categories(population, categories, seed=seed)
     return population

@@ -36,6 +36,7 @@ from metasim import plots
 from metasim._version import __version__
 from metasim.errors import OutputError, ReportError
 from metasim.io import check_outputs, write_bytes, write_text
+from metasim.progress import current
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
 from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
@@ -94,12 +95,14 @@ def _primary_peaks(ds: xr.Dataset) -> dict:
     return out
 
 
-def report_figures(ds: xr.Dataset) -> dict:
-    """The figures a result supports, by file stem: {name: (Figure, caption)}."""
+def figure_builders(ds: xr.Dataset) -> dict:
+    """The figures a result supports, by file stem, not drawn yet: {name: (function, caption)};
+    calling the function draws the Figure."""
     if _kind(ds) == "extra":
-        return {"extra_primary_value": (plots.extra_primary_value_figure(ds), "Left: gamut added by one more primary "
-                                        "at each candidate peak wavelength; right: the population's 95th percentile "
-                                        "CIE 2000 difference saved when the extra primary serves the population.")}
+        return {"extra_primary_value": (lambda: plots.extra_primary_value_figure(ds), "Left: gamut added by one more "
+                                        "primary at each candidate peak wavelength; right: the population's 95th "
+                                        "percentile CIE 2000 difference saved when the extra primary serves the "
+                                        "population.")}
     ds = as_study(ds)
     figures = {}
     if _kind(ds) == "sweep":
@@ -108,43 +111,49 @@ def report_figures(ds: xr.Dataset) -> dict:
                 2: "over the two varied parameters (the best design outlined)"}.get(
             len(varied), "for every design, sorted (the best design starred)")
         if not is_search(ds):  # a search's designs scatter over continuous ranges: no grid to draw
-            figures["sweep"] = (plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference over all "
-                                f"observer × stimulus pairs, per design, {what}.")
+            figures["sweep"] = (lambda: plots.sweep_figure(ds), "95th percentile (and median) CIE 2000 difference "
+                                f"over all observer × stimulus pairs, per design, {what}.")
         else:
-            figures["search"] = (plots.search_convergence(ds), "Value the search minimises, for every design of "
-                                 "each generation, and the best found so far.")
-        ds = with_pareto_ranks(ds)
-        if "pareto_rank" in ds:
-            figures["pareto"] = (plots.result_pareto_figure(ds), pareto_caption(ds))
+            figures["search"] = (lambda: plots.search_convergence(ds), "Value the search minimises, for every design "
+                                 "of each generation, and the best found so far.")
+        ranked = with_pareto_ranks(ds)
+        if "pareto_rank" in ranked:
+            figures["pareto"] = (lambda: plots.result_pareto_figure(ranked), pareto_caption(ranked))
         return figures
     if _kind(ds) == "fit":
-        figures["fit_parameters"] = (plots.fit_parameters(ds), "Each parameter's estimates against the population "
-                                     "spread used as the prior: up to 30 subjects one row each with ± 2 standard "
-                                     "errors (grey: not identified by the data), more as a histogram.")
-        figures["fit_residuals"] = (plots.fit_residuals(ds), "Match errors of the mean observer (before) and of each "
-                                    "subject's fitted observer (after).")
+        figures["fit_parameters"] = (lambda: plots.fit_parameters(ds), "Each parameter's estimates against the "
+                                     "population spread used as the prior: up to 30 subjects one row each with ± 2 "
+                                     "standard errors (grey: not identified by the data), more as a histogram.")
+        figures["fit_residuals"] = (lambda: plots.fit_residuals(ds), "Match errors of the mean observer (before) and of "
+                                    "each subject's fitted observer (after).")
         return figures
     if _kind(ds) == "population":
-        figures["observers"] = (plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
+        figures["observers"] = (lambda: plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
         return figures
     if "gamut_polygon" in ds:
-        figures["chromaticity"] = (plots.chromaticity_diagram(ds["gamut_polygon"], ds.get("primary_xy"), ds.get("white_xy")),
+        figures["chromaticity"] = (lambda: plots.chromaticity_diagram(ds["gamut_polygon"], ds.get("primary_xy"),
+                                                                      ds.get("white_xy")),
                                    "Gamut of each display in the CIE 1931 xy diagram, with the BT.709 and BT.2020 outlines.")
     if "spectra" in ds and "display" in ds["spectra"].dims:
-        figures["spectra"] = (plots.primary_spectra(ds["spectra"], ds.get("primary_label"), ds.get("primary_xy")),
+        figures["spectra"] = (lambda: plots.primary_spectra(ds["spectra"], ds.get("primary_label"), ds.get("primary_xy")),
                               "Spectral radiance of every primary at full drive after white calibration.")
     if "delta_e_2000" in ds and "age_years" in ds["delta_e_2000"].coords:
         bands = list(ds["age_band"].values) if "age_band" in ds.coords else None
-        figures["age_bands"] = (plots.delta_e_by_age(ds["delta_e_2000"], bands),
+        figures["age_bands"] = (lambda: plots.delta_e_by_age(ds["delta_e_2000"], bands),
                                 "CIE 2000 differences between reference and design, all stimuli pooled, by viewer age band.")
     if "delta_e_2000_by_stimulus" in ds:
-        figures["p95_by_stimulus"] = (plots.p95_by_stimulus(ds["delta_e_2000_by_stimulus"]),
+        figures["p95_by_stimulus"] = (lambda: plots.p95_by_stimulus(ds["delta_e_2000_by_stimulus"]),
                                       "95th percentile of the population's CIE 2000 difference, per stimulus.")
     if "area_gain_share" in ds:
-        figures["extra_primary"] = (plots.extra_primary_gain(ds["area_gain_share"], ds.get("volume_gain_share"),
-                                                             _primary_peaks(ds)),
+        figures["extra_primary"] = (lambda: plots.extra_primary_gain(ds["area_gain_share"], ds.get("volume_gain_share"),
+                                                                     _primary_peaks(ds)),
                                     "Gamut area and CIELAB volume gained by one more laser primary, per candidate wavelength.")
     return figures
+
+
+def report_figures(ds: xr.Dataset) -> dict:
+    """The figures a result supports, by file stem: {name: (Figure, caption)}."""
+    return {name: (build(), caption) for name, (build, caption) in figure_builders(ds).items()}
 
 
 # -- sections --------------------------------------------------------------------------------------------
@@ -329,8 +338,14 @@ def _models(ds: xr.Dataset) -> str:
 
 # -- sweeps ----------------------------------------------------------------------------------------------
 def figure_pngs(ds: xr.Dataset) -> dict:
-    """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}."""
-    return {name: (plots.png_bytes(fig), caption) for name, (fig, caption) in report_figures(ds).items()}
+    """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}, one at a time
+    with progress lines (:func:`metasim.progress.current`)."""
+    out = {}
+    builders = figure_builders(ds)
+    for name in current().loop(list(builders), "report figures"):
+        build, caption = builders[name]
+        out[name] = (plots.png_bytes(build()), caption)
+    return out
 
 
 def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | None = None,
@@ -430,6 +445,7 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     return write_text(path, render_report(ds, title=title, source=source, figures=figures), replace=replace)
 
 
-__all__ = ["with_summaries", "CAUTIONS", "FIGURE_NAMES", "report_kind", "as_study", "is_sweep", "report_figures",
+__all__ = ["with_summaries", "CAUTIONS", "FIGURE_NAMES", "report_kind", "as_study", "is_sweep", "figure_builders",
+           "report_figures",
            "figure_pngs", "render_report",
            "report_outputs", "write_report"]
