@@ -47,8 +47,9 @@ def test_estimate_writes_a_fit_and_a_report(cmf_fit):
     assert (np.abs(z) < 3).mean() > 0.95  # Gaussian posterior (common practice, no source)
     html = (folder / "fit" / "report.html").read_text()
     for text in ("Headline", "against the population spread", "Matches before and after",
-                 "not separable from", "data:image/png;base64,", "IEC 60825-1"):
+                 "not separable from", "data:image/png;base64,", "Cautions", "not a measurement of anyone"):
         assert text in html
+    assert "IEC 60825-1" not in html  # observer-only reports carry only the cautions that apply to them
 
 
 def test_fit_file_serves_as_observers_of_a_study(cmf_fit, capsys):

@@ -44,7 +44,7 @@ def test_report_embeds_figures_and_states_models(study_report):
     assert len(images) == 5
     assert all(base64.b64decode(data).startswith(b"\x89PNG\r\n\x1a\n") for data in images)  # PNG signature (ISO/IEC 15948)
     assert "CIE 170-1:2006" in text  # observer model from the file's attributes
-    assert "cie1931_2" in text and "min_norm" in text  # calibration observer, drive strategy
+    assert "CIE 1931 2°" in text and "minimum-norm drive" in text  # calibration observer, drive strategy
     assert "Four-laser projector (candidate A)" in text
     plain = html.unescape(text)
     assert 'type = "laser"' in plain  # the design spec is reproduced
@@ -70,7 +70,7 @@ def test_report_of_a_plain_mismatch_result(small_study):
     result = metasim.mismatch(monitor, laser, observers, stimuli)
     text = render_report(result)
     assert len(IMAGE.findall(text)) == 2  # age bands and per-stimulus chart; no gamut in a plain result
-    assert "Headline" in text and laser.name in text
+    assert "Answer" in text and "Numbers per design" in text and laser.name in text
 
 
 def test_report_of_an_observer_population(small_study):

@@ -39,6 +39,9 @@ from metasim.io import check_outputs, write_bytes, write_text
 from metasim.progress import current
 from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_list, _e, _image, _num, _pct,
                                  _table)
+from metasim.report.answer import (answer_box, cautions_section, extra_sentences, fit_sentences, population_sentences,
+                                   study_sentences, sweep_sentences)
+from metasim.report.labels import label, parsed
 from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
                                     is_fit)
 from metasim.report.extra import extra_value_page, is_extra_value
@@ -200,7 +203,7 @@ def _headline(ds: xr.Dataset) -> str:
         else:
             row += ["–", "–"]
         if "best_calibration_observer" in ds:
-            row.append(str(ds["best_calibration_observer"].sel(design=name).values))
+            row.append(label(ds["best_calibration_observer"].sel(design=name).values))
         rows.append(row)
     header = ["design", "mean ΔE00", "median ΔE00", "95th pct ΔE00", "share > 1", "share > 2", "share > 3",
               "white ΔE00 median", "white ΔE00 95th pct"]
@@ -208,14 +211,16 @@ def _headline(ds: xr.Dataset) -> str:
         header.append("best calibration observer")
     count = ds.sizes.get("observer", ds.attrs.get("observer_count", 0))
     pooled = ds["delta_e_2000_overall"].attrs.get("pooled_stimuli") or f"{ds.sizes.get('stimulus', 0)} stimuli"
-    note = (f"<p>Over all {count} observers × {_e(pooled)} (the white not pooled: its own columns), against "
-            f"{_e(ds.attrs.get('reference', 'the reference'))}, matched for "
-            f"{_e(ds.attrs.get('calibration_observer', ''))}.")
+    note = (f"<p>CIE 2000 differences (CIE 2000 units) over all {count} observers × {_e(pooled)} (the white not "
+            f"pooled: its own columns), against {_e(label(ds.attrs.get('reference', 'the reference')))}, both sides "
+            f"matched for the {_e(label(ds.attrs.get('calibration_observer', '')))} observer; shares are of observer × "
+            "stimulus pairs beyond 1, 2 and 3 CIE 2000 units.")
     if "interval_level" in ds.attrs:
         note += (f" In brackets: {100 * float(ds.attrs['interval_level']):g} % intervals from resampling observers "
                  f"({ds.attrs.get('interval_resamples')} resamples, seed {ds.attrs.get('interval_seed')}).")
-    sentences = "".join(f"<p class='answer'>{_e(line)}</p>" for line in study_headlines(ds))
-    return "<h2>Headline</h2>" + sentences + note + "</p>" + _table(header, rows)
+    answer = set(study_sentences(ds))  # the lines the answer box shows already
+    sentences = "".join(f"<p class='headline'>{_e(line)}</p>" for line in study_headlines(ds) if line not in answer)
+    return "<h2>Numbers per design</h2>" + note + "</p>" + sentences + _table(header, rows)
 
 
 def _gamut(ds: xr.Dataset) -> str:
@@ -223,18 +228,27 @@ def _gamut(ds: xr.Dataset) -> str:
         return ""
     refs = [str(r) for r in ds["reference_gamut"].values] if "reference_gamut" in ds.coords else []
     header = ["display", "role", "xy area", "u'v' area"] + [f"covers {REFERENCE_NAMES.get(r, r)}" for r in refs]
-    header += ["locus share", "CIELAB volume", "CIELAB volume of BT.2020 covered"]
+    header += ["share of the spectrum locus", "CIELAB volume (CIELAB units³)", "CIELAB volume of BT.2020 covered"]
     rows = []
     for name in ds["display"].values:
         sel = ds.sel(display=name)
         role = str(sel["display_role"].values) if "display_role" in sel.coords else ""
         row = [str(name), role, _num(sel["gamut_area_xy"], 4), _num(sel["gamut_area_uv"], 4)]
         row += [_pct(sel["gamut_coverage"].sel(reference_gamut=r)) for r in refs]
-        row += [_pct(sel["locus_share"]), _num(sel["lab_volume"], 0)]
+        row += [_pct(sel["locus_share"]), _volume(sel["lab_volume"])]
         row.append(_pct(sel["lab_coverage_volume"].sel(reference_gamut="bt2020")) if "bt2020" in refs else "–")
         rows.append(row)
-    return ("<h2>Gamut</h2><p>Areas in chromaticity units², CIELAB volumes in CIELAB units³ relative to each "
-            "display's own white (CIE 1931 2° observer).</p>" + _table(header, rows))
+    return ("<h2>Gamut</h2><p>Chromaticity areas in the CIE 1931 xy and CIE 1976 u'v' diagrams (unitless); "
+            "CIELAB volumes in CIELAB units³, relative to each display's own white; all for the CIE 1931 2° "
+            "observer.</p>" + _table(header, rows))
+
+
+def _volume(value) -> str:
+    """A CIELAB volume as a reader reads it: ``1 110 000`` → ``"1.11 million"``."""
+    value = float(value)
+    if not np.isfinite(value):
+        return "–"
+    return f"{value / 1e6:.2f} million" if abs(value) >= 1e6 else f"{value:,.0f}".replace(",", " ")
 
 
 def _by_age(ds: xr.Dataset) -> str:
@@ -248,7 +262,8 @@ def _by_age(ds: xr.Dataset) -> str:
         for band, n in zip(bands, counts):
             cell = by.sel(age_band=band)
             rows.append([str(name), band, str(n)] + [_num(cell.sel(statistic=s)) for s in ("mean", "median", "p95", "max")])
-    return "<h3>By age band</h3>" + _table(["design", "age band (years)", "observers", "mean", "median", "95th pct", "max"], rows)
+    return ("<h3>By age band</h3><p>CIE 2000 differences (CIE 2000 units) of all observer × stimulus pairs in each "
+            "age band.</p>" + _table(["design", "age band (years)", "observers", "mean", "median", "95th pct", "max"], rows))
 
 
 def _by_stimulus(ds: xr.Dataset) -> str:
@@ -263,9 +278,10 @@ def _by_stimulus(ds: xr.Dataset) -> str:
             cell = by.sel(stimulus=stim)
             row = [str(name), str(stim)] + [_num(cell.sel(statistic=s)) for s in ("mean", "median", "p95", "max")]
             row.append(_pct(share.sel(stimulus=stim, threshold=2.0)) if share is not None and 2.0 in share.threshold.values else "–")
-            row.append("clipped" if flags is not None and bool(flags.sel(stimulus=stim)) else "")
+            row.append("yes (clipped)" if flags is not None and bool(flags.sel(stimulus=stim)) else "no")
             rows.append(row)
-    table = _table(["design", "stimulus", "mean", "median", "95th pct", "max", "share > 2", "test gamut"], rows)
+    table = _table(["design", "stimulus", "mean ΔE00", "median ΔE00", "95th pct ΔE00", "max ΔE00", "share of observers > 2",
+                    "outside the design's gamut"], rows)
     return f"<details><summary>Per-stimulus table ({len(rows)} rows)</summary>{table}</details>"
 
 
@@ -275,7 +291,7 @@ def _choices(ds: xr.Dataset) -> str:
         rows = []
         for name in ds["design"].values:
             for cal in ds["calibration_observer"].values:
-                rows.append([str(name), str(cal), _num(ds["calibration_mean_delta_e"].sel(design=name, calibration_observer=cal)),
+                rows.append([str(name), label(cal), _num(ds["calibration_mean_delta_e"].sel(design=name, calibration_observer=cal)),
                              _num(ds["calibration_p95_delta_e"].sel(design=name, calibration_observer=cal)),
                              _num(ds["calibration_mean_delta_e_white"].sel(design=name, calibration_observer=cal))])
         stimuli_only = "calibration_mean_delta_e_stimuli" in ds
@@ -303,7 +319,8 @@ def _choices(ds: xr.Dataset) -> str:
                 rows.append([str(name), str(c), _pct(weight), _num(age, 0), f"{float(cell.sel(chromaticity='x')):+.4f}",
                              f"{float(cell.sel(chromaticity='y')):+.4f}", _num(uv, 4)])
         parts.append("<h3>White-point offsets per observer category</h3><p>The white trim (in the calibration "
-                     "observer's xy) that makes the design's white match the reference white for each category.</p>"
+                     "observer's xy) that makes the design's white match the reference white for each category; "
+                     "Δu'v' is the length of the offset in the CIE 1976 u'v' diagram (unitless).</p>"
                      + _table(["design", "category", "share of viewers", "age", "Δx", "Δy", "Δu'v'"], rows))
     return "".join(parts)
 
@@ -314,29 +331,70 @@ def _population(ds: xr.Dataset) -> str:
             ["median age (years)", _num(np.nanmedian(ages), 1)]]
     if "field_size_deg" in ds.coords:
         rows.append(["field size (degrees)", _num(np.median(ds.coords["field_size_deg"].values), 1)])
+    out = "<h2>Observers</h2>" + _table(["quantity", "value"], rows)
     if "weight" in ds.coords:
-        rows.append(["categories", "yes: each observer stands for a share of a larger population"])
-    return "<h2>Observers</h2>" + _table(["quantity", "value"], rows)
+        weights = np.asarray(ds.coords["weight"].values, dtype=float)
+        shares = weights / weights.sum() if weights.sum() > 0 else weights
+        cat_rows = []
+        for i in np.argsort(-shares, kind="stable"):
+            row = [str(ds["observer"].values[i]), _pct(shares[i])]
+            row.append(_num(ages[i], 0) if ages.size == shares.size else "–")
+            if "field_size_deg" in ds.coords:
+                row.append(_num(ds.coords["field_size_deg"].values[i], 1))
+            cat_rows.append(row)
+        header = ["category", "share of the population", "age (years)"]
+        header += ["field size (°)"] if "field_size_deg" in ds.coords else []
+        out += ("<h3>Observer categories</h3><p>Each category is the representative observer of a cluster of the "
+                "population; its share is the part of the population it stands for.</p>" + _table(header, cat_rows))
+    return out
 
 
 def _models(ds: xr.Dataset) -> str:
     attrs = dict(ds.attrs)
     specs = attrs.pop("display_specs", {}) or {}
     out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
-    if "spectra" in ds:
+    if ds.sizes.get("display") and "spectra" in ds:
         rows = []
         for name in ds["display"].values if "display" in ds.dims else []:
             labels = [str(v) for v in ds["primary_label"].sel(display=name).values if str(v)] if "primary_label" in ds else []
             rows.append([str(name), str(len(labels)), ", ".join(labels)])
         if rows:
             out += _table(["display", "primaries", "labels"], rows)
+    specs = parsed(specs)
     for name, text in (specs.items() if isinstance(specs, dict) else []):
         if text:
-            out += f"<h3>Design spec: {_e(name)}</h3><pre>{_e(text)}</pre>"
+            out += (f"<details><summary>Design spec file of {_e(name)}</summary>"
+                    f"<pre class='spec-file'>{_e(text)}</pre></details>")
     return out
 
 
 # -- sweeps ----------------------------------------------------------------------------------------------
+def default_title(ds: xr.Dataset, kind: str) -> str:
+    """The title of a result without one: what it holds, e.g. "1000 observers aged 20-70"."""
+    if kind == "population":
+        n = ds.sizes.get("observer", 0)
+        what = f"{n} observer categories" if "weight" in ds.coords else f"{n} model observers"
+        ages = np.asarray(ds.coords["age_years"].values, dtype=float) if "age_years" in ds.coords else np.array([])
+        if ages.size and np.isfinite(ages).any():
+            what += f" aged {np.nanmin(ages):.0f} to {np.nanmax(ages):.0f} years"
+        return what
+    return {"fit": "Observers fitted to colour matches", "sweep": "Sweep of display designs",
+            "extra": "What one more primary buys"}.get(kind, "metasim result")
+
+
+def report_answer(ds: xr.Dataset, kind: str) -> list[str]:
+    """The sentences of the answer box of a result of ``kind`` (:mod:`metasim.report.answer`)."""
+    if kind == "sweep":
+        return sweep_sentences(ds)
+    if kind == "fit":
+        return fit_sentences(ds)
+    if kind == "population":
+        return population_sentences(ds)
+    if kind == "extra":
+        return extra_sentences(ds)
+    return study_sentences(ds)
+
+
 def figure_pngs(ds: xr.Dataset) -> dict:
     """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}, one at a time
     with progress lines (:func:`metasim.progress.current`)."""
@@ -360,13 +418,11 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     ds = ds if kind == "extra" else as_study(ds)
     if kind == "sweep":
         title = title or str(plots.sweep_spec(ds).get("sweep_name") or ds.attrs.get("title") or "metasim sweep")
-    title = title or str(ds.attrs.get("title", {"population": "metasim population", "fit": "metasim observer fit",
-                                                "extra": "metasim: what an extra primary buys"}.get(
-        kind, "metasim result")))
+    title = title or str(ds.attrs.get("title") or default_title(ds, kind))
     figures = figure_pngs(ds) if figures is None else figures
     body = [f"<h1>{_e(title)}</h1>",
             f"<p class='sub'>metasim {__version__} {'sweep ' if kind == 'sweep' else ''}report"
-            f"{(' of ' + _e(source)) if source else ''}.</p>"]
+            f"{(' of ' + _e(source)) if source else ''}.</p>", answer_box(report_answer(ds, kind), kind)]
     if kind == "sweep":
         ds = with_pareto_ranks(ds)
         body += [_sweep_headline(ds), search_section(ds, figures.get("search"))]
@@ -396,7 +452,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
                 body.append(_image(*figures[key]))
     if kind not in ("sweep", "fit", "extra"):
         body.append(_models(ds))
-    body.append("<h2>Cautions</h2>" + "".join(f"<p class='caution'>{_e(c)}</p>" for c in CAUTIONS))
+    body.append(cautions_section(kind))
     return ("<!DOCTYPE html><html lang='en'><head><meta charset='utf-8'>"
             f"<meta name='viewport' content='width=device-width, initial-scale=1'><title>{_e(title)}</title>"
             f"<style>{STYLE}</style></head><body><main>{''.join(body)}</main></body></html>")

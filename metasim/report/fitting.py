@@ -10,12 +10,13 @@ import numpy as np
 import xarray as xr
 
 from metasim.report.html import _attribute_list, _e, _num, _pct, _table
+from metasim.report.labels import label
 
 MAX_SUBJECT_ROWS = 60
 FIT_CAUTION = ("Estimates describe the model observer (CIE 170-1:2006 with eight deviations) that best explains "
                "the matches given the population prior, not a measurement of anyone's eye; parameters marked "
-               "not identified are mostly the prior, and a fitted peak shift means what the recorded "
-               "peak_shift_axis says.")
+               "not identified are mostly the prior, and a fitted peak shift is a shift along the recorded "
+               "axis of the peak shifts.")
 
 
 def is_fit(ds: xr.Dataset) -> bool:
@@ -55,10 +56,9 @@ def fit_headline(ds: xr.Dataset) -> str:
         [f"match error: median over subjects of each subject's median ({_unit(ds)})",
          f"mean observer {np.nanmedian(before):.3g} → fitted {np.nanmedian(after):.3g}"],
         ["parameters identified", f"{100 * identified.mean():.0f} % of subject × parameter"],
-        ["peak-shift axis", str(ds.attrs.get("peak_shift_axis", ""))],
+        ["axis of the peak shifts", label(ds.attrs.get("peak_shift_axis", ""))],
     ]
-    return ("<h2>Headline</h2>" + _table(["quantity", "value"], rows)
-            + f"<p class='caution'>{_e(FIT_CAUTION)}</p>")
+    return "<h2>Headline</h2>" + _table(["quantity", "value"], rows)
 
 
 def fit_parameter_table(ds: xr.Dataset) -> str:

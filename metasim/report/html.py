@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import base64
 import html
-import json
-
 import numpy as np
 
 CAUTIONS = (
@@ -29,9 +27,11 @@ th,td{border-bottom:1px solid #dcdad3;padding:5px 10px;text-align:right} th:firs
 th{background:#efece4} figure{margin:18px 0} figure img{max-width:100%;border:1px solid #e4e1d8;background:#fff}
 figcaption{color:#5b6270;font-size:.9em} pre{background:#f1efe8;padding:10px;overflow-x:auto;font-size:.85em}
 .caution{background:#fff4e5;border-left:4px solid #d9633b;padding:8px 14px;margin:8px 0}
-.headline{font-size:1.05em} .answer{font-size:1.05em;font-weight:600;color:#2b3a55;margin:6px 0}
-dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
-dt{font-weight:600;color:#3c4a66} dd{margin:0}
+.answer{background:#fff;border:2px solid #2b3a55;border-radius:6px;padding:4px 20px 10px;margin:12px 0 24px}
+.answer h2{margin-top:.6em;border:none;padding:0} .answer p{margin:.5em 0;font-size:1.05em}
+.answer .short-caution{font-size:.9em;color:#7a3b1f;border-top:1px solid #dcdad3;padding-top:8px}
+.headline{font-size:1.05em;color:#2b3a55;margin:6px 0} dl{display:grid;grid-template-columns:max-content auto;gap:4px 16px}
+dt{font-weight:600;color:#3c4a66} dd{margin:0} table.settings td{text-align:left}
 """
 REFERENCE_NAMES = {"bt709": "BT.709", "display_p3": "Display P3", "dci_p3": "DCI-P3", "bt2020": "BT.2020"}
 
@@ -54,10 +54,10 @@ def _pct(value) -> str:
     return "–" if not np.isfinite(value) else f"{100 * value:.1f} %"
 
 
-def _table(header: list[str], rows: list[list[str]]) -> str:
+def _table(header: list[str], rows: list[list[str]], cls: str | None = None) -> str:
     head = "".join(f"<th>{_e(h)}</th>" for h in header)
     body = "".join("<tr>" + "".join(f"<td>{_e(c)}</td>" for c in row) + "</tr>" for row in rows)
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+    return f"<table{f' class={cls!r}' if cls else ''}><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
 def _image(png: bytes, caption: str) -> str:
@@ -66,20 +66,17 @@ def _image(png: bytes, caption: str) -> str:
             f"<figcaption>{_e(caption)}</figcaption></figure>")
 
 
-def _value(value) -> str:
-    if isinstance(value, str):
-        try:
-            parsed = json.loads(value)
-        except ValueError:
-            return _e(value)
-        if isinstance(parsed, (dict, list)):
-            value = parsed
-        else:
-            return _e(value)
-    if isinstance(value, (dict, list)):
-        return f"<code>{_e(json.dumps(value, default=str))}</code>"
-    return _e(value)
-
-
 def _attribute_list(attrs: dict) -> str:
-    return "<dl>" + "".join(f"<dt>{_e(k.replace('_', ' '))}</dt><dd>{_value(v)}</dd>" for k, v in attrs.items()) + "</dl>"
+    """The attributes of a result as a table of settings with readable names and values
+    (:mod:`metasim.report.labels`); a nested group of settings (stored as JSON) gets a table of its own."""
+    from metasim.report.labels import HIDDEN, key_label, parameter_rows, parsed
+
+    flat, groups = {}, []
+    for key, value in attrs.items():
+        value = parsed(value)
+        if isinstance(value, dict) and value and key not in HIDDEN:
+            groups.append(f"<h3>{_e(key_label(key)[:1].upper() + key_label(key)[1:])}</h3>"
+                          + _table(["parameter", "value"], parameter_rows(value), "settings"))
+        else:
+            flat[key] = value
+    return _table(["setting", "value"], parameter_rows(flat), "settings") + "".join(groups)

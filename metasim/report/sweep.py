@@ -10,6 +10,7 @@ import xarray as xr
 
 from metasim import plots
 from metasim.report.html import _attribute_list, _e, _num, _pct, _table
+from metasim.report.labels import label
 from metasim.statistics.comparison import DEFAULT_HALF_WIDTH
 from metasim.statistics.headline import population_advice, sweep_headline, with_interval
 
@@ -51,23 +52,12 @@ def _sweep_headline(ds: xr.Dataset) -> str:
     count = ds.sizes["design"]
     reference = spec.get("reference") or ds.attrs.get("reference", "the reference")
     parts = [f"<p>{count} design{'s' if count != 1 else ''}, each judged by {_e(observers)} observers × {_e(stimuli)} "
-             f"stimuli against {_e(reference)}, matched for {_e(ds.attrs.get('calibration_observer', ''))}."]
+             f"stimuli against {_e(label(reference))}, matched for the "
+             f"{_e(label(ds.attrs.get('calibration_observer', '')))} observer."]
     if spec.get("sweep_description"):
         parts.append(f" {_e(str(spec['sweep_description']).rstrip('.'))}.")
     parts.append("</p>")
-    described = _parameters_of(ds, varied, best)
-    share = numbers["share2"][best]
-    parts.append(f"<p class='headline'><strong>Best design: {_e(_design_name(ds, best))}</strong>"
-                 f"{' (' + _e(described) + ')' if described else ''} — 95th percentile "
-                 f"<strong>{_num(numbers['p95'][best])}</strong>, median {_num(numbers['median'][best])} CIE 2000 units"
-                 f"{', ' + _pct(share) + ' of observer × stimulus pairs beyond 2' if np.isfinite(share) else ''}"
-                 f"{', BT.2020 coverage ' + _pct(numbers['bt2020'][best]) if np.isfinite(numbers['bt2020'][best]) else ''}."
-                 "</p>")
-    parts += _sweep_answer(ds, varied)
-    if count > 1 and np.isfinite(numbers["p95"]).any():
-        worst = int(numbers["order"][-1]) if np.isfinite(numbers["p95"][numbers["order"][-1]]) else best
-        parts.append(f"<p>95th percentiles over the sweep: {_num(numbers['p95'][best])} to {_num(numbers['p95'][worst])} "
-                     f"CIE 2000 units (worst: {_e(_design_name(ds, worst))}).</p>")
+    parts += _sweep_interval_note(ds)
     if varied:
         parts.append(f"<p>Varied: {_e(', '.join(plots.parameter_label(ds, c) for c in varied))}.</p>")
     try:
@@ -78,14 +68,15 @@ def _sweep_headline(ds: xr.Dataset) -> str:
     held += [f"the base primaries {', '.join(map(str, kept))}"] if kept else []
     if held:
         parts.append(f"<p>Held fixed: {_e('; '.join(held))}.</p>")
-    return "<h2>Headline</h2>" + "".join(parts)
+    return "<h2>The sweep</h2>" + "".join(parts)
 
 
-def _sweep_answer(ds: xr.Dataset, varied) -> list[str]:
-    """The one-sentence answer with intervals, the edge warning and the population-size advice
-    (sweeps run with intervals: :mod:`metasim.sweep.ranking`)."""
+def sweep_answer_sentences(ds: xr.Dataset) -> list[str]:
+    """The one-sentence answer with intervals, the edge warnings and the population-size advice, for the
+    answer box (sweeps run with intervals: :mod:`metasim.sweep.ranking`; empty without them)."""
     if "best_probability" not in ds:
         return []
+    varied = plots.sweep_parameters(ds)[0]
     p95 = ds["delta_e_2000_overall"].sel(statistic="p95")
     interval = ds["delta_e_2000_overall_interval"].sel(statistic="p95")
 
@@ -94,16 +85,22 @@ def _sweep_answer(ds: xr.Dataset, varied) -> list[str]:
         return _design_name(ds, index) + (f" ({described})" if described else "")
 
     edges = [m for m in str(ds.attrs.get("edge_warnings", "")).split(" | ") if m]
-    parts = [f"<p class='answer'>{_e(sweep_headline(ds, p95, interval, describe=describe))}</p>"]
-    parts += [f"<p class='caution'>{_e(m[0].upper() + m[1:])}.</p>" for m in edges]
+    sentences = [sweep_headline(ds, p95, interval, describe=describe)]
+    sentences += [f"{m[0].upper() + m[1:]}." for m in edges]
     best = int(np.flatnonzero(ds["rank"].values == 1)[0])
     advice = population_advice(interval.isel(design=best), int(ds.attrs.get("observer_count", 0)),
                                float(ds.attrs.get("target_half_width", DEFAULT_HALF_WIDTH)))
+    return sentences + ([advice] if advice else [])
+
+
+def _sweep_interval_note(ds: xr.Dataset) -> list[str]:
+    """What the numbers in brackets are (sweeps run with intervals)."""
+    if "best_probability" not in ds:
+        return []
     level = 100 * float(ds.attrs.get("interval_level", 0.95))
-    parts.append(f"<p>In brackets: {level:g} % intervals from resampling observers "
-                 f"({ds.attrs.get('interval_resamples')} resamples, the same for every design, so designs are "
-                 f"compared observer by observer). {_e(advice)}</p>")
-    return parts
+    return [f"<p>In brackets: {level:g} % intervals from resampling observers "
+            f"({_e(ds.attrs.get('interval_resamples'))} resamples, the same for every design, so designs are "
+            "compared observer by observer).</p>"]
 
 
 def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
