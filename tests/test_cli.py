@@ -124,7 +124,7 @@ def test_report_of_a_study_file(workdir, evaluated):
     run("report", out / "study.nc", "--out", html, "--figures", figures, "--quiet")
     text = html.read_text()
     assert text.count("data:image/png;base64,") >= 5
-    assert "CIE 170-1" in text and "cie1931_2" in text  # the models used are stated
+    assert "CIE 170-1" in text and "CIE 1931 2°" in text  # the models used are stated
     assert {p.name for p in figures.glob("*.png")} >= {
         "chromaticity.png", "spectra.png", "age_bands.png", "p95_by_stimulus.png", "extra_primary.png"}
 

@@ -4,6 +4,7 @@ Kept small (30 observers, 7 stimuli, 8 designs) so the file runs in well under a
 """
 
 import os
+import re
 import sys
 import time
 from pathlib import Path
@@ -231,5 +232,6 @@ def test_cli_bad_sweep_spec_is_one_line(tmp_path):
     spec.write_text('[vary]\nkind = "laser"\n[vary.peaks_nm]\nR = {start = 650, stop = 610, step = 5}\n')
     done = run_cli("sweep", spec, "--out", tmp_path / "bad", "--size", 10)
     assert done.returncode != 0 and "Traceback" not in done.stderr
-    lines = [line for line in done.stderr.splitlines() if line.strip()]
+    progress = re.compile(r"^metasim: (?!error:).* \(\d+\.\d s\)$")  # progress lines come before the error
+    lines = [line for line in done.stderr.splitlines() if line.strip() and not progress.match(line)]
     assert len(lines) == 1 and lines[0].startswith("metasim: error:") and "stop >= start" in lines[0]

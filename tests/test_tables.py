@@ -174,7 +174,8 @@ def test_cli_tables_of_a_sweep_store(tmp_path, sweep_file):
     assert (tmp_path / "csv" / "per_design.csv").is_file() and "per_design.csv" in done.stdout
     again = _run("tables", store, "--out", tmp_path / "csv")
     assert again.returncode == 1 and "Traceback" not in again.stderr
-    assert again.stderr.startswith("metasim: error:") and "--replace" in again.stderr
+    errors = [line for line in again.stderr.splitlines() if line.startswith("metasim: error:")]
+    assert len(errors) == 1 and "--replace" in errors[0] and again.stderr.splitlines()[-1] == errors[0]
     assert _run("tables", store, "--out", tmp_path / "csv", "--replace").returncode == 0
     bad = _run("tables", tmp_path / "missing.nc")
     assert bad.returncode == 1 and "no such file" in bad.stderr

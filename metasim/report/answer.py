@@ -160,7 +160,7 @@ def sweep_sentences(ds: xr.Dataset) -> list[str]:
         text = f"Its median is {numbers['median'][best]:.2f} CIE 2000 units over all observer × colour pairs"
     else:
         described = _parameters_of(ds, plots.sweep_parameters(ds)[0], best)
-        text = (f"Best: {_design_name(ds, best)}{' (' + described + ')' if described else ''}, 95th percentile "
+        text = (f"Best design: {_design_name(ds, best)}{' (' + described + ')' if described else ''}, 95th percentile "
                 f"{numbers['p95'][best]:.2f} and median {numbers['median'][best]:.2f} CIE 2000 units over all "
                 "observer × colour pairs")
     if np.isfinite(numbers["share2"][best]):
