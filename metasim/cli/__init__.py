@@ -394,7 +394,7 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
 
 def cmd_search(args) -> int:
     from metasim.cli.search import read_search_spec, spec_search_space
-    from metasim.cli.study import Progress, build_stimuli
+    from metasim.cli.study import build_stimuli
     from metasim.cli.sweep import relative
     from metasim.metamerism.summary import age_band_edges
     from metasim.sweep import best_design, run_search
@@ -409,7 +409,9 @@ def cmd_search(args) -> int:
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     observers = _observers(args)
     generations = args.generations if args.generations is not None else search.get("generations", 20)
-    line = Progress(generations + 1, quiet=args.quiet)
+    line = args.progress
+    line.steps = line.done + generations + 1  # the generations and the combine step
+    line.say(f"searching {len(space.parameters)} parameters over at most {generations} generations")
     result = run_search(space, reference, observers, stimuli, store=args.out, objective=search.get("objective", "p95_mismatch"),
                         constraints=search.get("constraints"), generations=generations,
                         population=search.get("population"), seed=args.search_seed if args.search_seed is not None

@@ -17,13 +17,12 @@ def extra_value_page(ds: xr.Dataset, figure: tuple | None) -> str:
     gain, area = ds["mismatch_gain"].values, ds["area_gain_share"].values
     best_m, best_a = int(np.nanargmax(gain)), int(np.nanargmax(area))
     base = float(ds["base_delta_e_2000_p95"])
-    text = (f"<h2>Headline</h2><p>Base design {_e(ds.attrs.get('base_design', ''))} "
+    text = (f"<h2>The base design</h2><p>Base design {_e(ds.attrs.get('base_design', ''))} "
             f"({_e(', '.join(map(str, ds.attrs.get('base_primaries', []))))}): 95th percentile {_num(base)} CIE 2000 "
             f"units over {_e(ds.attrs.get('observer_count', '?'))} observers × {_e(ds.attrs.get('stimulus_count', '?'))} "
-            f"stimuli, BT.2020 coverage {_pct(float(ds['base_coverage']))}.</p>"
-            f"<p class='headline'>Most gamut: an extra primary at <strong>{peaks[best_a]:g} nm</strong> "
-            f"(+{_pct(area[best_a])} xy area). Least viewer disagreement: at <strong>{peaks[best_m]:g} nm</strong> "
-            f"(95th percentile {_num(base)} → {_num(base - gain[best_m])}).</p>"
+            f"stimuli, BT.2020 coverage {_pct(float(ds['base_coverage']))}. The answer box above names the candidate "
+            f"adding the most gamut ({peaks[best_a]:g} nm) and the one saving the most viewer disagreement "
+            f"({peaks[best_m]:g} nm).</p>"
             "<p>The extended design uses its extra degree of freedom for the population: every colour is still "
             "matched for the calibration observer, and among the drives that do so the one with the least "
             "(linearised) mismatch over the population is shown. That strategy minimises the mean squared "
