@@ -11,7 +11,8 @@ A :class:`Progress` reporter prints one line per event to stderr::
 and says nothing with ``quiet=True`` (the ``--quiet`` option). Elapsed times count from the moment
 the reporter was made (the command's start, in the CLI).
 
-* :meth:`Progress.say` — one line;
+* :meth:`Progress.say` — one line (``activity=`` names what runs until the next line, for the
+  heartbeat: ``still loading the numerical modules``);
 * :meth:`Progress.step` (also the reporter called as a function) — a numbered step ``[i/N]``; it is
   the ``progress`` callback of :func:`metasim.study.run_study`;
 * :meth:`Progress.loop` — iterate over a long loop with a line at most every second giving the count
@@ -81,6 +82,7 @@ class Progress:
         self._status = False  # a "still working" status is shown in place on a terminal
         self._stop: threading.Event | None = None
         self._thread: threading.Thread | None = None
+        self.activity: str | None = None  # what the heartbeat says is going on ("still <activity>")
 
     # -- output --------------------------------------------------------------------------------------------
     @property
@@ -109,15 +111,19 @@ class Progress:
             stream.flush()
             self.last = self.clock()
 
-    def say(self, text: str) -> None:
-        """One line: ``metasim: text (elapsed)``."""
-        self._write(text)
+    def say(self, text: str, *, activity: str | None = None) -> None:
+        """One line: ``metasim: text (elapsed)``. ``activity`` names what runs until the next line
+        (the heartbeat then says ``still <activity>``)."""
+        with self._lock:
+            self.activity = activity
+            self._write(text)
 
     def step(self, text: str) -> None:
         """A numbered step: ``metasim: [i/N] text (elapsed)``."""
         with self._lock:
             self.done += 1
             self.steps = max(self.steps, self.done)
+            self.activity = None
             self._write(f"[{self.done}/{self.steps}] {text}")
 
     __call__ = step  # the progress callback of the library (metasim.study.run_study)
@@ -159,6 +165,9 @@ class Progress:
         while not stop.wait(min(0.25, self.heartbeat / 4)):
             with self._lock:
                 if self.clock() - self.last < self.heartbeat:
+                    continue
+                if self.activity:
+                    self._write(f"still {self.activity}", in_place=True)
                     continue
                 doing = f" on step {self.done + 1} of {self.steps}" if self.steps > self.done else ""
                 self._write(f"still working{doing}", in_place=True)

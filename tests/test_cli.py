@@ -13,6 +13,8 @@ import io
 import os
 import subprocess
 import sys
+import threading
+import time
 import warnings
 from pathlib import Path
 
@@ -33,13 +35,31 @@ def run(*args, cwd=None, check=True, process=False) -> subprocess.CompletedProce
     ignored as ``PYTHONWARNINGS=ignore`` does), or with ``process`` in a new interpreter. ``check``:
     fail on a non-zero exit status."""
     if process:
-        env = {**os.environ, "PYTHONWARNINGS": "ignore"}
-        done = subprocess.run([sys.executable, "-m", "metasim.cli", *map(str, args)], capture_output=True, text=True,
-                              cwd=cwd, env=env, timeout=300)
+        done = timed_run([sys.executable, "-m", "metasim.cli", *map(str, args)], cwd=cwd)
     else:
         done = _in_process([str(a) for a in args], cwd)
     if check and done.returncode != 0:
         raise AssertionError(f"metasim {' '.join(map(str, args))} failed ({done.returncode}):\n{done.stderr}")
+    return done
+
+
+def timed_run(argv, cwd=None, timeout: float = 300) -> subprocess.CompletedProcess:
+    """Run ``argv`` in a new process; the result also holds ``line_times``: the seconds from the start
+    at which each stderr line arrived, and ``seconds``: when the process ended."""
+    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
+    start = time.monotonic()
+    with subprocess.Popen(argv, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=cwd, env=env) as child:
+        out = []
+        reader = threading.Thread(target=lambda: out.append(child.stdout.read()), daemon=True)
+        reader.start()
+        err, times = [], []
+        for line in child.stderr:
+            times.append(time.monotonic() - start)
+            err.append(line)
+        code = child.wait(timeout=timeout)
+        reader.join(timeout)
+    done = subprocess.CompletedProcess(argv, code, "".join(out), "".join(err))
+    done.line_times, done.seconds = times, time.monotonic() - start
     return done
 
 
@@ -72,10 +92,25 @@ def workdir(tmp_path_factory):
 
 
 @pytest.fixture(scope="module")
-def population_file(workdir):
+def population_run(workdir):
     path = workdir / "audience.nc"
-    run("observers", "--out", path, "--size", 120, "--seed", 3, "--ages", "20-70", "--quiet", process=True)
-    return path
+    return path, run("observers", "--out", path, "--size", 120, "--seed", 3, "--ages", "20-70", process=True)
+
+
+@pytest.fixture(scope="module")
+def population_file(population_run):
+    return population_run[0]
+
+
+def test_a_command_is_never_silent_for_long(population_run):
+    # the first line before the numerical modules load, then a line at least every 2 s (the heartbeat,
+    # metasim.progress.HEARTBEAT_S) until the end; the bounds leave room for a busy machine
+    done = population_run[1]
+    times = done.line_times
+    assert times and times[0] < 2.0, done.stderr
+    gaps = [b - a for a, b in zip(times, times[1:] + [done.seconds])]
+    assert max(gaps) < 3.5, (gaps, done.stderr)
+    assert done.stderr.splitlines()[0] == "metasim: observers: inputs checked; loading the numerical modules (0.0 s)"
 
 
 def test_observers_writes_a_population(population_file):

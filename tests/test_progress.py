@@ -7,14 +7,13 @@ with --quiet.
 """
 
 import io
-import os
-import subprocess
 import sys
 import textwrap
 import time
 from pathlib import Path
 
 import pytest
+from test_cli import timed_run
 
 from metasim.progress import Progress, activate, current, format_duration
 
@@ -103,6 +102,23 @@ def test_heartbeat_breaks_a_silence_and_stops_with_the_block():
     assert out.getvalue() == text  # nothing after the block ended
 
 
+def test_heartbeat_names_the_activity_until_the_next_step():
+    out = io.StringIO()
+    progress = Progress(2, stream=out, heartbeat=0.05)
+    with progress:
+        progress.say("inputs checked", activity="loading the numerical modules")
+        deadline = time.monotonic() + 10
+        while "still loading" not in out.getvalue() and time.monotonic() < deadline:
+            time.sleep(0.02)
+        progress.step("observers drawn")  # a step ends the activity
+        while "still working" not in out.getvalue() and time.monotonic() < deadline:
+            time.sleep(0.02)
+    lines = out.getvalue().splitlines()
+    assert any(line.startswith("metasim: still loading the numerical modules (") for line in lines)
+    after = lines[[i for i, line in enumerate(lines) if "observers drawn" in line][0] + 1:]
+    assert after and all("still working on step 2 of 2" in line for line in after)
+
+
 def test_current_is_the_active_reporter_or_a_silent_one():
     assert current().quiet
     progress = Progress(stream=io.StringIO(), heartbeat=None)
@@ -144,24 +160,26 @@ def _commands(tmp: Path) -> dict:
         "report": ["report", tmp / "result.nc", "--out", tmp / "result.html"],
         "tables": ["tables", tmp / "result.nc", "--out", tmp / "tables"],
         "sweep": ["sweep", DEMO / "sweep_red_laser.toml", "--out", tmp / "store"],
+        "search": ["search", DEMO / "search_red_green.toml", "--out", tmp / "search"],
         "estimate": ["estimate", tmp / "matches.csv", "--primaries", "645,526,444", "--out", tmp / "fit"],
     }
 
 
 def _probe(args, quiet=False):
-    env = {**os.environ, "PYTHONWARNINGS": "ignore"}
     argv = [sys.executable, "-c", PROBE, *map(str, args)] + (["--quiet"] if quiet else [])
-    return subprocess.run(argv, capture_output=True, text=True, env=env, timeout=120, cwd=ROOT)
+    return timed_run(argv, cwd=ROOT, timeout=120)
 
 
 @pytest.mark.parametrize("command", ["demo", "observers", "evaluate", "compare", "report", "tables", "sweep",
-                                     "estimate"])
+                                     "search", "estimate"])
 def test_every_command_speaks_before_loading_the_numerical_modules(tmp_path, command):
     done = _probe(_commands(tmp_path)[command])
     lines = done.stderr.splitlines()
     assert "HEAVY IMPORT" in lines, done.stderr  # the command did reach its heavy work
     first = lines.index("HEAVY IMPORT")
     assert first >= 1 and lines[0].startswith(f"metasim: {command}: "), done.stderr
+    # within 2 s of the start (a second or two of loading follows: the heartbeat covers it)
+    assert done.line_times[0] < 2.0, done.line_times
 
 
 def test_quiet_command_prints_no_progress(tmp_path):

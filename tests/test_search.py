@@ -160,6 +160,7 @@ def test_search_command_writes_a_store_and_resumes(tmp_path):
     assert main(args) == 0
     first = metasim.load_dataset(tmp_path / "store" / "search.nc")
     assert first.attrs["generation_count"] == 2 and first.sizes["design"] == 10
+    assert "search" in (tmp_path / "store" / "report.html").read_text(encoding="utf-8")  # beside search.nc
     assert main(args) == 0  # again: read back from the store, same result
     np.testing.assert_array_equal(metasim.load_dataset(tmp_path / "store" / "search.nc")["search_objective"].values,
                                   first["search_objective"].values)

@@ -225,6 +225,11 @@ def test_cli_sweep_writes_the_store(tmp_path):
     np.testing.assert_allclose(result["peak_nm_R"].values, np.arange(610, 651, 5))
     assert sorted(p.name for p in (tmp_path / "red").glob("chunk-*.nc")) == [f"chunk-0000{i}.nc" for i in range(3)]
     assert "sweep_spec_text" in result.attrs["spec"]
+    # the report beside sweep.nc, as evaluate writes one beside study.nc
+    page = (tmp_path / "red" / "report.html").read_text(encoding="utf-8")
+    assert "data:image/png;base64," in page and "Best designs" in page
+    assert (tmp_path / "red" / "figures" / "sweep.png").is_file()
+    assert f"report:  {tmp_path / 'red' / 'report.html'}" in done.stdout
 
 
 def test_cli_bad_sweep_spec_is_one_line(tmp_path):

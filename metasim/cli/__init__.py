@@ -167,15 +167,15 @@ def _observer_file(args):
     return read_observers(args.observers, default_grid())
 
 
-def _observers(args):
+def _observers(args, numbered: bool = True):
     """The observers of a study or sweep: the --observers file (checked first thing by the command,
-    :func:`_observer_file`), or a drawn population."""
+    :func:`_observer_file`), or a drawn population (a numbered progress step, or a plain line)."""
     from metasim.cli.study import build_population
 
     if getattr(args, "observer_set", None) is not None:
         return args.observer_set
     return build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate,
-                            progress=args.progress)
+                            progress=args.progress if numbered else args.progress.say)
 
 
 def _reference(args, specs: dict):
@@ -214,10 +214,10 @@ def _study(args, designs: list, reference, specs: dict) -> int:
 
     size = args.observer_set.sizes["observer"] if getattr(args, "observer_set", None) is not None else args.size
     check_mismatch_memory(size, stimuli.sizes["stimulus"], 1)  # one design at a time; before drawing observers
-    observers = _observers(args)
     progress = args.progress
-    progress.steps = (1 + len(designs) * (2 + int(args.choices)) + len(designs) + int(reference != "objects") + 1
-                      + int(not args.no_report))
+    progress.steps = (int(getattr(args, "observer_set", None) is None) + len(designs) * (2 + int(args.choices))
+                      + len(designs) + int(reference != "objects") + 1 + int(not args.no_report))
+    observers = _observers(args)
     result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
                        strategy=args.strategy, age_bands=_age_bands(args), spec_texts=spec_texts(specs),
                        progress=progress, extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
@@ -321,9 +321,10 @@ def cmd_sweep(args) -> int:
     reference = _reference(args, {})
     stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
-    observers = _observers(args)
+    observers = _observers(args, numbered=False)  # the chunks are numbered
     line = args.progress
-    line.say(f"{len(designs)} designs from {args.spec}; computing them in chunks")
+    line.say(f"{len(designs)} designs from {args.spec}; computing them in chunks",
+             activity=f"computing the first chunk of {len(designs)} designs")
     timing = {"computed": 0, "start": None}
 
     def progress(event):
@@ -339,7 +340,7 @@ def cmd_sweep(args) -> int:
             if left:  # chunks computed in this run, not those found in the store, give the pace
                 message += "; " + line.time_left(timing["computed"], timing["computed"] + left,
                                                  line.clock() - timing["start"])
-        line.say(f"[{event['done']}/{event['total']}] {message}" if event["kind"] != "combined" else message)
+        line.say(message)  # "chunk 2/5 ...": numbered by the sweep
 
     result = run_sweep(designs, reference, observers, stimuli, store=args.out,
                        chunk_size=args.chunk_size or spec.get("chunk_size"), scheduler=args.scheduler,
@@ -355,7 +356,23 @@ def cmd_sweep(args) -> int:
                               "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
     _print_sweep_answer(result, args.p95_half_width)
     print(f"result:  {Path(args.out) / 'sweep.nc'} ({result.sizes['design']} designs)")
+    _store_report(args, result, "sweep.nc")
     return 0
+
+
+def _store_report(args, result, name: str) -> None:
+    """The report of a sweep or search beside its result in the store folder (STORE/report.html and
+    STORE/figures/): files of the store, rewritten when the run resumes, as the result is."""
+    if args.no_report:
+        return
+    from metasim.report import write_report
+
+    store = Path(args.out)
+    report = write_report(result, store / REPORT_FILE, figures_dir=store / FIGURES_DIR, source=name, replace=True,
+                          inputs=args.inputs)
+    args.progress.say(f"wrote {report}")
+    print(f"report:  {report}")
+    print(f"figures: {store / FIGURES_DIR}")
 
 
 def _print_sweep_answer(result, target_half_width: float | None) -> None:
@@ -407,10 +424,11 @@ def cmd_search(args) -> int:
     reference = _reference(args, {})
     stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
-    observers = _observers(args)
     generations = args.generations if args.generations is not None else search.get("generations", 20)
     line = args.progress
-    line.steps = line.done + generations + 1  # the generations and the combine step
+    # the observers, the first generation and those after it, the report
+    line.steps = int(getattr(args, "observer_set", None) is None) + generations + 1 + int(not args.no_report)
+    observers = _observers(args)
     line.say(f"searching {len(space.parameters)} parameters over at most {generations} generations")
     result = run_search(space, reference, observers, stimuli, store=args.out, objective=search.get("objective", "p95_mismatch"),
                         constraints=search.get("constraints"), generations=generations,
@@ -431,6 +449,7 @@ def cmd_search(args) -> int:
           f"{'' if best['feasible'] else ' (no design found meets every constraint)'}")
     print(f"result:  {Path(args.out) / 'search.nc'} ({result.sizes['design']} designs in "
           f"{result.attrs['generation_count']} generations)")
+    _store_report(args, result, "search.nc")
     return 0
 
 
@@ -534,8 +553,9 @@ EXAMPLES = {
               "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
               "--scheduler tcp://10.0.0.5:8786\n"
               "the store folder holds manifest.json (with a checksum of every finished chunk), one chunk-NNNNN.nc per\n"
-              "finished chunk and the combined sweep.nc; a chunk file that does not match its checksum is renamed\n"
-              "to chunk-NNNNN.nc.set-aside and computed again; writer.lock names the run writing the store;\n"
+              "finished chunk, the combined sweep.nc and its report (report.html, figures/); a chunk file that does\n"
+              "not match its checksum is renamed to chunk-NNNNN.nc.set-aside and computed again; writer.lock names\n"
+              "the run writing the store;\n"
               "the spec format is described in data/demo/README.md"),
 }
 
@@ -704,6 +724,8 @@ def build_parser() -> argparse.ArgumentParser:
                    help="also keep every stimulus's statistics over observers, per design")
     p.add_argument("--wait", action="store_true", help="if another run is writing the same store, wait for it to "
                    "finish and then resume (default: stop, naming that run's process and host)")
+    p.add_argument("--no-report", action="store_true", help="write the store only (default: also STORE/report.html "
+                   "and STORE/figures/)")
     _population_options(p)
     _matching_options(p)
     _interval_options(p)
@@ -724,6 +746,8 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--workers", type=int, metavar="N", help="threads for threads / dask-threads (default: CPU count)")
     p.add_argument("--lab-volume", action="store_true", default=None, help="also the CIELAB volume of every design")
     p.add_argument("--wait", action="store_true", help="if another run is writing the same store, wait for it")
+    p.add_argument("--no-report", action="store_true", help="write the store only (default: also STORE/report.html "
+                   "and STORE/figures/)")
     _population_options(p)
     _matching_options(p)
     p.set_defaults(calibration_observer=None, strategy=None)
@@ -779,7 +803,8 @@ def main(argv=None) -> int:
             warnings.filterwarnings("ignore", module="colour")
             warnings.filterwarnings("ignore", category=RuntimeWarning, module="numpy")
             check_command_files(args)  # inputs and outputs, before the numerical modules load
-            args.progress.say(f"{args.command}: inputs checked; loading the numerical modules")
+            args.progress.say(f"{args.command}: inputs checked; loading the numerical modules",
+                              activity="loading the numerical modules and reading the inputs")
             with args.progress:  # the active reporter (metasim.progress.current) and its heartbeat
                 return int(args.run(args) or 0)
     except MetasimError as exc:

@@ -30,11 +30,12 @@ STIMULUS_SETS = ("ramp", "primaries", "cube", "cie13.3")
 def build_population(size: int, seed: int, ages: str, field_size: str, categories: int | None = None, *,
                      extrapolate: bool = False, progress=None) -> xr.Dataset:
     """A seeded observer population (or its ``categories`` representative observers); ``progress``
-    (a :class:`metasim.progress.Progress`) is told when it is drawn."""
+    (a :class:`metasim.progress.Progress`, a numbered step, or any callable taking a line) is told
+    when it is drawn."""
     population = observer_population(size, seed=seed, age_years=parse_range(ages, "age range"),
                                      field_size_deg=parse_range(field_size, "field size"), extrapolate=extrapolate)
     if progress is not None:
-        progress.step(f"{size} observers drawn, ages {ages}, field size {field_size} deg, seed {seed}")
+        progress(f"{size} observers drawn, ages {ages}, field size {field_size} deg, seed {seed}")
     if categories is not None:
         population = observer_categories(population, categories, seed=seed)
     return population
