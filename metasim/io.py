@@ -35,7 +35,9 @@ as a JSON string, and the names of those attributes are listed in the attribute
 from __future__ import annotations
 
 import contextlib
+import csv
 import glob
+import io
 import json
 import os
 from pathlib import Path
@@ -235,6 +237,30 @@ def read_text_file(path: str | os.PathLike, what: str = "text file") -> str:
     return text
 
 
+def read_csv_rows(path: str | os.PathLike, what: str = "CSV file") -> tuple[list[str], list[tuple[int, list[str]]]]:
+    """The notes and rows of a UTF-8 CSV input (:func:`read_text_file`), for every CSV reader.
+
+    Rows whose cells are all blank are skipped; a row whose first cell starts with ``#`` is a note
+    (its text, ``#`` and surrounding blanks removed); every other row is returned with its line
+    number, cells as written (the reader strips and checks them). Text the csv module cannot split
+    is a :class:`~metasim.errors.FileFormatError` naming the file.
+    """
+    text = read_text_file(path, what)
+    try:
+        records = list(csv.reader(io.StringIO(text, newline="")))
+    except csv.Error as exc:
+        raise FileFormatError(f"{path}: not a readable CSV file ({exc})") from None
+    notes, rows = [], []
+    for line, record in enumerate(records, start=1):
+        if not record or all(not cell.strip() for cell in record):
+            continue
+        if record[0].strip().startswith("#"):
+            notes.append(",".join(record).lstrip("#").strip())
+            continue
+        rows.append((line, record))
+    return notes, rows
+
+
 # -- netCDF ---------------------------------------------------------------------------------------
 
 def _plain(value) -> bool:
@@ -415,4 +441,5 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
 
 
 __all__ = ["PARTIAL_SUFFIX", "partial_path", "process_alive", "remove_stale_partials", "same_file", "check_outputs",
-           "atomic_output", "write_bytes", "write_text", "read_text_file", "save_dataset", "load_dataset"]
+           "atomic_output", "write_bytes", "write_text", "read_text_file", "read_csv_rows", "save_dataset",
+           "load_dataset"]

@@ -11,42 +11,60 @@ from functools import lru_cache
 import numpy as np
 import xarray as xr
 
+from metasim.colorimetry.rgb_spaces import xyz_to_rgb_matrix
 from metasim.errors import ColorimetryError
 
 ICTCP = ("I", "Ct", "Cp")
+#: Weights of ΔI, ΔCt, ΔCp in ΔE_ITP (T = Ct / 2; ITU-R BT.2124-0).
+ITP_WEIGHTS = (1.0, 0.5, 1.0)
+#: ΔE_ITP scale: 720 makes 1 about one just-noticeable difference (ITU-R BT.2124-0).
+ITP_SCALE = 720.0
 
-# ITU-R BT.2100-2, Table 6 (PQ system reference non-linear transfer function) and Table 7 (ICtCp)
-_M1 = 2610.0 / 16384.0
-_M2 = 2523.0 / 4096.0 * 128.0
-_C1 = 3424.0 / 4096.0
-_C2 = 2413.0 / 4096.0 * 32.0
-_C3 = 2392.0 / 4096.0 * 32.0
-_RGB_TO_LMS = np.array([[1688, 2146, 262], [683, 2951, 462], [99, 309, 3688]], dtype=float) / 4096.0
-_LMS_TO_ICTCP = np.array([[2048, 2048, 0], [6610, -13613, 7003], [17933, -17390, -543]], dtype=float) / 4096.0
-_PQ_PEAK = 10000.0  # cd/m2
+
+def xyz_to_ictcp_values(xyz: np.ndarray) -> np.ndarray:
+    """ICtCp of absolute XYZ in cd/m² on the last axis (numpy; :func:`xyz_to_ictcp` labels it).
+
+    XYZ → linear BT.2020 RGB (:func:`metasim.colorimetry.rgb_spaces.xyz_to_rgb_matrix`) → LMS →
+    SMPTE ST 2084 inverse EOTF (10,000 cd/m² peak) → ICtCp, with colour-science's published BT.2100
+    matrices (``MATRIX_ICTCP_RGB_TO_LMS``, ``MATRIX_ICTCP_LMS_P_TO_ICTCP``) and ST 2084 curve
+    (``eotf_inverse_ST2084``). Negative LMS (light outside what the PQ curve encodes) is clipped to 0.
+
+    References
+    ----------
+    ITU-R BT.2100-2 (2018), Tables 4, 6 and 7; SMPTE ST 2084:2014.
+    """
+    from colour.models import eotf_inverse_ST2084
+    from colour.models.rgb.ictcp import MATRIX_ICTCP_LMS_P_TO_ICTCP
+
+    lms = np.asarray(xyz, dtype=float) @ _xyz_to_lms().T
+    return np.asarray(eotf_inverse_ST2084(np.maximum(lms, 0.0), 10000.0)) @ MATRIX_ICTCP_LMS_P_TO_ICTCP.T
 
 
 @lru_cache(maxsize=1)
-def _xyz_to_bt2020() -> np.ndarray:
-    """XYZ → linear BT.2020 RGB (ITU-R BT.2020 primaries, D65), from the chromaticities."""
-    xy = np.array([[0.708, 0.292], [0.170, 0.797], [0.131, 0.046]])  # ITU-R BT.2020 Table 3
-    white = np.array([0.3127, 0.3290])  # D65, ITU-R BT.2020
-    primaries = np.column_stack([xy[:, 0] / xy[:, 1], np.ones(3), (1 - xy.sum(1)) / xy[:, 1]]).T
-    white_xyz = np.array([white[0] / white[1], 1.0, (1 - white.sum()) / white[1]])
-    scale = np.linalg.solve(primaries, white_xyz)
-    return np.linalg.inv(primaries * scale)
+def _xyz_to_lms() -> np.ndarray:
+    """XYZ → BT.2100 LMS: colour-science's ``MATRIX_ICTCP_RGB_TO_LMS`` after XYZ → BT.2020 RGB."""
+    from colour.models.rgb.ictcp import MATRIX_ICTCP_RGB_TO_LMS
+
+    return MATRIX_ICTCP_RGB_TO_LMS @ xyz_to_rgb_matrix("bt2020")
 
 
-def _pq_inverse_eotf(luminance: np.ndarray) -> np.ndarray:
-    y = np.clip(luminance / _PQ_PEAK, 0.0, None) ** _M1
-    return ((_C1 + _C2 * y) / (1.0 + _C3 * y)) ** _M2
+def delta_e_itp_values(ictcp_1: np.ndarray, ictcp_2: np.ndarray) -> np.ndarray:
+    """ΔE_ITP of ICtCp on the last axis (numpy; :func:`delta_e_itp` broadcasts by dim name).
+
+    References
+    ----------
+    ITU-R BT.2124-0 (2019).
+    """
+    diff = np.asarray(ictcp_1, dtype=float) - np.asarray(ictcp_2, dtype=float)
+    w_i, w_t, w_p = ITP_WEIGHTS
+    return ITP_SCALE * np.sqrt((w_i * diff[..., 0]) ** 2 + (w_t * diff[..., 1]) ** 2 + (w_p * diff[..., 2]) ** 2)
 
 
 def xyz_to_ictcp(xyz: xr.DataArray) -> xr.DataArray:
     """ICtCp (dim ``ictcp`` = I, Ct, Cp) of absolute XYZ in cd/m² (ITU-R BT.2100-2, PQ).
 
-    Negative BT.2020 RGB (outside the BT.2020 gamut) is clipped to 0 before the PQ curve, as the
-    curve is undefined for negative light.
+    Negative LMS (far outside the BT.2020 gamut) is clipped to 0 before the PQ curve, as the curve
+    is undefined for negative light (:func:`xyz_to_ictcp_values`).
 
     References
     ----------
@@ -64,9 +82,7 @@ def xyz_to_ictcp(xyz: xr.DataArray) -> xr.DataArray:
         raise ColorimetryError("xyz_to_ictcp needs a DataArray with an 'xyz' dim (absolute XYZ in cd/m2)")
     dims = [d for d in xyz.dims if d != "xyz"]
     values = xyz.transpose(*dims, "xyz").values
-    rgb = values @ _xyz_to_bt2020().T
-    lms = rgb @ _RGB_TO_LMS.T
-    ictcp = _pq_inverse_eotf(lms) @ _LMS_TO_ICTCP.T
+    ictcp = xyz_to_ictcp_values(values)
     coords = {k: v for k, v in xyz.coords.items() if "xyz" not in v.dims}
     return xr.DataArray(ictcp, dims=(*dims, "ictcp"), coords={**coords, "ictcp": list(ICTCP)},
                         attrs={"units": "1", "long_name": "ICtCp (ITU-R BT.2100 PQ)"})
@@ -89,11 +105,11 @@ def delta_e_itp(ictcp_1: xr.DataArray, ictcp_2: xr.DataArray) -> xr.DataArray:
     for name, value in (("ictcp_1", ictcp_1), ("ictcp_2", ictcp_2)):
         if not isinstance(value, xr.DataArray) or "ictcp" not in value.dims:
             raise ColorimetryError(f"{name} must be a DataArray with an 'ictcp' dim")
-    diff = ictcp_1 - ictcp_2
-    weights = xr.DataArray([1.0, 0.5, 1.0], dims="ictcp", coords={"ictcp": list(ICTCP)})
-    out = 720.0 * np.sqrt(((diff * weights) ** 2).sum("ictcp"))
+    ordered = [value.sel(ictcp=list(ICTCP)) if "ictcp" in value.indexes else value for value in (ictcp_1, ictcp_2)]
+    out = xr.apply_ufunc(delta_e_itp_values, *ordered, input_core_dims=[["ictcp"], ["ictcp"]])
     out.attrs = {"units": "1", "long_name": "ITU-R BT.2124 colour difference ΔE_ITP"}
     return out.rename("delta_e_itp")
 
 
-__all__ = ["ICTCP", "xyz_to_ictcp", "delta_e_itp"]
+__all__ = ["ICTCP", "ITP_WEIGHTS", "ITP_SCALE", "xyz_to_ictcp", "xyz_to_ictcp_values", "delta_e_itp",
+           "delta_e_itp_values"]

@@ -29,8 +29,9 @@ from metasim.display.solvers import equality_box_qp
 from metasim.display.transfer import check_luminance
 from metasim.spectra.convert import as_spectra, is_colour_spectrum
 
-#: Named white points (CIE 1931 xy), IEC 61966-2-1 / CIE 15:2004 4-decimal values.
-WHITE_POINTS = {"D65": (0.3127, 0.3290), "D50": (0.3457, 0.3585), "DCI": (0.3140, 0.3510), "E": (1 / 3, 1 / 3)}
+#: Named white points: name -> colour-science's name of its CIE 1931 xy in ``colour.CCS_ILLUMINANTS``
+#: (CIE 15:2004 / IEC 61966-2-1 four-decimal values; DCI: SMPTE RP 431-2; E: equal energy).
+WHITE_POINTS = {"D65": "D65", "D50": "D50", "DCI": "DCI-P3", "E": "E"}
 
 
 def white_xy(white) -> xr.DataArray:
@@ -38,7 +39,9 @@ def white_xy(white) -> xr.DataArray:
     if isinstance(white, str):
         if white not in WHITE_POINTS:
             raise DisplayError(f"white point {white!r} is not known; allowed: {', '.join(WHITE_POINTS)} or an (x, y) pair")
-        white = WHITE_POINTS[white]
+        import colour  # lazily: colour-science takes a moment to import
+
+        white = colour.CCS_ILLUMINANTS["CIE 1931 2 Degree Standard Observer"][WHITE_POINTS[white]]
     if isinstance(white, xr.DataArray):
         if "chromaticity" not in white.dims:
             raise DisplayError(f"white chromaticity needs a 'chromaticity' dim, got {tuple(white.dims)}")

@@ -1,8 +1,9 @@
 """Source RGB colour spaces (BT.709 / sRGB, Display P3, BT.2020) and their decoding to XYZ.
 
-Each space is defined by its primaries' and white's CIE 1931 xy chromaticities; the RGB→XYZ
-matrix is the normalised primary matrix of SMPTE RP 177 (white Y = 1). Decoding applies the
-space's encoding (an EOTF from :mod:`metasim.display.transfer`) and scales to cd/m²:
+Each space is defined by its primaries' and white's CIE 1931 xy chromaticities, as colour-science
+publishes them; the RGB→XYZ matrix is the normalised primary matrix of SMPTE RP 177 (white Y = 1),
+both from :mod:`metasim.colorimetry.rgb_spaces`. Decoding applies the space's encoding (an EOTF
+from :mod:`metasim.display.transfer`) and scales to cd/m²:
 
 * SDR encodings (``srgb``, ``bt1886``, ``gamma``, ``linear``) are relative: RGB = 1 maps to the
   white luminance given (the display's white, so white is shown as white).
@@ -22,42 +23,29 @@ RP 177-1993 (normalised primary matrix).
 
 from __future__ import annotations
 
-from functools import lru_cache
-
 import numpy as np
 import xarray as xr
 
+from metasim.colorimetry.rgb_spaces import rgb_to_xyz_matrix
 from metasim.errors import DisplayError
 from metasim.display.transfer import BT2100_WEIGHTS, check_transfer, eotf, eotf_values
 
-_D65 = (0.3127, 0.3290)
-#: name -> (R, G, B chromaticities, white chromaticity, default encoding)
+#: name -> default encoding of the signal (a transfer function of :mod:`metasim.display.transfer`);
+#: primaries, white and matrix of each space come from :mod:`metasim.colorimetry.rgb_spaces`.
 SOURCE_SPACES = {
-    "bt709": (((0.640, 0.330), (0.300, 0.600), (0.150, 0.060)), _D65, "bt1886"),
-    "srgb": (((0.640, 0.330), (0.300, 0.600), (0.150, 0.060)), _D65, "srgb"),
-    "display_p3": (((0.680, 0.320), (0.265, 0.690), (0.150, 0.060)), _D65, "srgb"),
-    "bt2020": (((0.708, 0.292), (0.170, 0.797), (0.131, 0.046)), _D65, "bt1886"),
+    "bt709": "bt1886",
+    "srgb": "srgb",
+    "display_p3": "srgb",
+    "bt2020": "bt1886",
 }
 RGB = ("R", "G", "B")
 
 
-def _space(source: str):
+def _space(source: str) -> str:
+    """The default encoding of a known source space; DisplayError naming the allowed ones otherwise."""
     if not isinstance(source, str) or source not in SOURCE_SPACES:
         raise DisplayError(f"source colour space {source!r} is not known; allowed: {', '.join(SOURCE_SPACES)}")
     return SOURCE_SPACES[source]
-
-
-@lru_cache(maxsize=None)
-def _matrix_values(source: str) -> np.ndarray:
-    primaries, white, _ = _space(source)
-    xy = np.asarray(primaries, dtype=float)
-    columns = np.stack([xy[:, 0] / xy[:, 1], np.ones(3), (1 - xy[:, 0] - xy[:, 1]) / xy[:, 1]])
-    wx, wy = white
-    white_xyz = np.array([wx / wy, 1.0, (1 - wx - wy) / wy])
-    gains = np.linalg.solve(columns, white_xyz)
-    matrix = columns * gains[None, :]
-    matrix.flags.writeable = False
-    return matrix
 
 
 def source_matrix(source: str) -> xr.DataArray:
@@ -68,7 +56,7 @@ def source_matrix(source: str) -> xr.DataArray:
     SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities).
     """
     _space(source)
-    return xr.DataArray(_matrix_values(source).copy(), dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
+    return xr.DataArray(rgb_to_xyz_matrix(source).copy(), dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
                         attrs={"units": "1", "long_name": f"{source} RGB to XYZ matrix (white Y = 1)"})
 
 
@@ -96,8 +84,7 @@ def rgb_to_xyz(rgb: xr.DataArray, source: str = "bt709", *, encoding: str | None
     ----------
     See the module docstring.
     """
-    _, _, default = _space(source)
-    encoding = default if encoding is None else encoding
+    encoding = _space(source) if encoding is None else encoding
     check_transfer(encoding, gamma=gamma)
     if not isinstance(rgb, xr.DataArray) or "primary" not in rgb.dims or rgb.sizes["primary"] != 3:
         raise DisplayError("source RGB must be a DataArray with a 'primary' dim of size 3 (R, G, B)")
@@ -124,8 +111,7 @@ def source_light(rgb, source: str, encoding: str | None, *, peak_luminance: floa
     encodings, cd/m² for ``pq`` and ``hlg``), whether it is relative, the RGB→XYZ matrix (3 × 3)
     and the dims of the light without ``primary``. Raises the errors of :func:`rgb_to_xyz`.
     """
-    _, _, default = _space(source)
-    encoding = default if encoding is None else encoding
+    encoding = _space(source) if encoding is None else encoding
     check_transfer(encoding, gamma=gamma)
     if not isinstance(rgb, xr.DataArray) or "primary" not in rgb.dims or rgb.sizes["primary"] != 3:
         raise DisplayError("source RGB must be a DataArray with a 'primary' dim of size 3 (R, G, B)")
@@ -141,7 +127,7 @@ def source_light(rgb, source: str, encoding: str | None, *, peak_luminance: floa
         raise DisplayError("signal contains non-finite values; values must be finite numbers")
     weights = np.asarray(BT2100_WEIGHTS) if encoding == "hlg" else None
     light = eotf_values(values, encoding, peak, 0.0, gamma, weights)
-    return light, relative, _matrix_values(source), dims
+    return light, relative, rgb_to_xyz_matrix(source), dims
 
 
 __all__ = ["SOURCE_SPACES", "RGB", "source_matrix", "rgb_to_xyz"]

@@ -21,6 +21,11 @@ display of N primaries metasim uses each primary's share of the white luminance 
 generalisation; it equals BT.2100 for a BT.2020 display). A signal without a ``primary`` dim is
 treated as achromatic (R = G = B), as colour-science does for a single component.
 
+BT.1886 and PQ are colour-science's ``eotf_BT1886`` / ``eotf_ST2084`` and their inverses (the
+ST 2084 constants live there). sRGB, gamma and linear are one line each. HLG is written here: its
+OOTF takes a weight per primary for N-primary displays, and its b and c follow from a by the
+defining formulas of BT.2100 (colour-science stores them rounded to eight digits).
+
 References
 ----------
 IEC 61966-2-1:1999 (sRGB); ITU-R BT.1886 (2011) Annex 1; SMPTE ST 2084:2014; ITU-R BT.2100-2
@@ -47,13 +52,9 @@ MAX_LUMINANCE = 1e5
 #: BT.2100 luminance weights of R, G, B for the HLG OOTF.
 BT2100_WEIGHTS = (0.2627, 0.6780, 0.0593)
 
-# SMPTE ST 2084 constants (exact fractions of the standard).
-_M1 = 2610.0 / 16384.0
-_M2 = 2523.0 / 4096.0 * 128.0
-_C1 = 3424.0 / 4096.0
-_C2 = 2413.0 / 4096.0 * 32.0
-_C3 = 2392.0 / 4096.0 * 32.0
-_PQ_PEAK = 10000.0
+#: SMPTE ST 2084 peak luminance, cd/m² (the curve and its constants are colour-science's
+#: ``eotf_ST2084`` / ``eotf_inverse_ST2084``).
+PQ_PEAK_LUMINANCE = 10000.0
 # ITU-R BT.2100 HLG constants: a as published, b = 1 - 4a, c = 0.5 - a ln(4a) (the defining formulas).
 _HLG_A = 0.17883277
 _HLG_B = 1.0 - 4.0 * _HLG_A
@@ -153,11 +154,13 @@ def eotf_values(v: np.ndarray, transfer: str, peak: float, black_luminance: floa
     if transfer == "linear":
         return peak * v
     if transfer == "bt1886":
-        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
-        return n**2.4 * np.maximum(v + black_luminance ** (1 / 2.4) / n, 0.0) ** 2.4
+        from colour.models import eotf_BT1886
+
+        return np.asarray(eotf_BT1886(v, L_B=black_luminance, L_W=peak))
     if transfer == "pq":
-        vp = _spow(v, 1.0 / _M2)
-        return _PQ_PEAK * _spow(np.maximum(vp - _C1, 0.0) / (_C2 - _C3 * vp), 1.0 / _M1)
+        from colour.models import eotf_ST2084
+
+        return np.asarray(eotf_ST2084(v, L_p=PQ_PEAK_LUMINANCE))
     system_gamma = _hlg_gamma(peak)
     beta = _hlg_beta(peak, black_luminance, system_gamma)
     scene = _hlg_oetf_inverse(np.maximum((1 - beta) * v + beta, 0.0))
@@ -176,11 +179,13 @@ def eotf_inverse_values(light: np.ndarray, transfer: str, peak: float, black_lum
     if transfer == "linear":
         return light / peak
     if transfer == "bt1886":
-        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
-        return _spow(light / n**2.4, 1 / 2.4) - black_luminance ** (1 / 2.4) / n
+        from colour.models import eotf_inverse_BT1886
+
+        return np.asarray(eotf_inverse_BT1886(light, L_B=black_luminance, L_W=peak))
     if transfer == "pq":
-        y = _spow(light / _PQ_PEAK, _M1)
-        return _spow((_C1 + _C2 * y) / (1 + _C3 * y), _M2)
+        from colour.models import eotf_inverse_ST2084
+
+        return np.asarray(eotf_inverse_ST2084(light, L_p=PQ_PEAK_LUMINANCE))
     system_gamma = _hlg_gamma(peak)
     beta = _hlg_beta(peak, black_luminance, system_gamma)
     y_d = light if weights is None else np.nansum(light * weights, axis=-1, keepdims=True)
@@ -217,18 +222,8 @@ def eotf(signal, transfer: str, *, peak_luminance: float | None = None, black_lu
     """
     peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
     v = _as_array(signal, "signal")
-    if transfer == "srgb":
-        light = peak * xr.where(v <= 0.04045, v / 12.92, _spow((v + 0.055) / 1.055, 2.4))
-    elif transfer == "gamma":
-        light = peak * _spow(v, gamma)
-    elif transfer == "linear":
-        light = peak * v
-    elif transfer == "bt1886":
-        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
-        light = n**2.4 * np.maximum(v + black_luminance ** (1 / 2.4) / n, 0.0) ** 2.4
-    elif transfer == "pq":
-        vp = _spow(v, 1.0 / _M2)
-        light = _PQ_PEAK * _spow(np.maximum(vp - _C1, 0.0) / (_C2 - _C3 * vp), 1.0 / _M1)
+    if transfer != "hlg":
+        light = xr.apply_ufunc(lambda values, p: eotf_values(values, transfer, p, black_luminance, gamma), v, peak)
     else:
         system_gamma = _hlg_gamma(peak)
         beta = _hlg_beta(peak, black_luminance, system_gamma)
@@ -251,19 +246,9 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
     """
     peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
     lum = _as_array(light, "light")
-    if transfer == "srgb":
-        rel = lum / peak
-        signal = xr.where(rel <= 0.0031308, rel * 12.92, 1.055 * _spow(rel, 1 / 2.4) - 0.055)
-    elif transfer == "gamma":
-        signal = _spow(lum / peak, 1.0 / gamma)
-    elif transfer == "linear":
-        signal = lum / peak
-    elif transfer == "bt1886":
-        n = peak ** (1 / 2.4) - black_luminance ** (1 / 2.4)
-        signal = _spow(lum / n**2.4, 1 / 2.4) - black_luminance ** (1 / 2.4) / n
-    elif transfer == "pq":
-        y = _spow(lum / _PQ_PEAK, _M1)
-        signal = _spow((_C1 + _C2 * y) / (1 + _C3 * y), _M2)
+    if transfer != "hlg":
+        signal = xr.apply_ufunc(lambda values, p: eotf_inverse_values(values, transfer, p, black_luminance, gamma),
+                                lum, peak)
     else:
         system_gamma = _hlg_gamma(peak)
         beta = _hlg_beta(peak, black_luminance, system_gamma)
@@ -278,4 +263,4 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
 
 
 __all__ = ["TRANSFER_FUNCTIONS", "DEFAULT_PEAK_LUMINANCE", "MAX_LUMINANCE", "check_luminance",
-           "BT2100_WEIGHTS", "check_transfer", "eotf", "eotf_inverse", "eotf_values", "eotf_inverse_values"]
+           "BT2100_WEIGHTS", "PQ_PEAK_LUMINANCE", "check_transfer", "eotf", "eotf_inverse", "eotf_values", "eotf_inverse_values"]

@@ -24,7 +24,6 @@ unknown). Without those columns the keyword arguments apply to every subject.
 
 from __future__ import annotations
 
-import csv
 import math
 import os
 from pathlib import Path
@@ -34,6 +33,7 @@ import xarray as xr
 
 from metasim.errors import FileFormatError, FittingError
 from metasim.fitting.forms import colour_matching_data, matching_session_data
+from metasim.io import read_csv_rows
 from metasim.spectra import read_spectra_csv
 
 SUBJECT_COLUMNS = ("field_size_deg", "age_years")
@@ -55,28 +55,21 @@ def _number(text: str, where: str) -> float:
 
 def _read_rows(path: Path, key: str):
     """Header, notes and data rows (line number, cells) of a matching CSV file."""
-    if not path.is_file():
-        raise FileFormatError(f"{path}: no such file")
-    notes, header, rows = [], None, []
-    with path.open(newline="", encoding="utf-8-sig") as handle:
-        for line, record in enumerate(csv.reader(handle), start=1):
-            if not record or all(not c.strip() for c in record):
-                continue
-            if record[0].strip().startswith("#"):
-                notes.append(",".join(record).lstrip("#").strip())
-                continue
-            if header is None:
-                header = [c.strip() for c in record]
-                if header[:2] != ["subject", key]:
-                    raise FileFormatError(f"{path}:{line}: header {header!r}; the first columns must be 'subject,{key}'")
-                primaries = [c for c in header[2:] if c not in SUBJECT_COLUMNS]
-                if len(primaries) != 3 or len(set(header)) != len(header):
-                    raise FileFormatError(f"{path}:{line}: header names primaries {primaries!r}; need exactly three "
-                                          f"distinct primary columns after 'subject,{key}'")
-                continue
-            if len(record) != len(header):
-                raise FileFormatError(f"{path}:{line}: {len(record)} cells, the header has {len(header)}")
-            rows.append((line, [c.strip() for c in record]))
+    notes, records = read_csv_rows(path, "matching CSV file")
+    header, rows = None, []
+    for line, record in records:
+        if header is None:
+            header = [c.strip() for c in record]
+            if header[:2] != ["subject", key]:
+                raise FileFormatError(f"{path}:{line}: header {header!r}; the first columns must be 'subject,{key}'")
+            primaries = [c for c in header[2:] if c not in SUBJECT_COLUMNS]
+            if len(primaries) != 3 or len(set(header)) != len(header):
+                raise FileFormatError(f"{path}:{line}: header names primaries {primaries!r}; need exactly three "
+                                      f"distinct primary columns after 'subject,{key}'")
+            continue
+        if len(record) != len(header):
+            raise FileFormatError(f"{path}:{line}: {len(record)} cells, the header has {len(header)}")
+        rows.append((line, [c.strip() for c in record]))
     if header is None or not rows:
         raise FileFormatError(f"{path}: no data rows (expected a header 'subject,{key},...' and one row per match)")
     return header, notes, rows
@@ -202,11 +195,8 @@ def read_matching_csv(path: str | os.PathLike, *, primaries=None, references=Non
                       field_size_deg=2.0, age_years=None) -> xr.Dataset:
     """Either CSV form, told apart by the header's second column (``test_wavelength_nm`` or ``stimulus``)."""
     path = Path(path)
-    if not path.is_file():
-        raise FileFormatError(f"{path}: no such file")
-    with path.open(newline="", encoding="utf-8-sig") as handle:
-        header = next((row for row in csv.reader(handle) if row and not row[0].strip().startswith("#")
-                       and any(c.strip() for c in row)), [])
+    _, records = read_csv_rows(path, "matching CSV file")
+    header = records[0][1] if records else []
     key = header[1].strip() if len(header) > 1 else ""
     if key == "test_wavelength_nm":
         return read_matching_functions_csv(path, primaries=primaries, field_size_deg=field_size_deg, age_years=age_years)

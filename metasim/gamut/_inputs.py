@@ -19,7 +19,7 @@ Accepted primaries (every gamut function goes through :func:`primaries_xyz`):
 
 Reference colour spaces take their primaries and white point from colour-science's
 ``colour.RGB_COLOURSPACES`` (ITU-R BT.709, SMPTE EG 432-1 Display P3, SMPTE RP 431-2 DCI-P3,
-ITU-R BT.2020).
+ITU-R BT.2020), through :mod:`metasim.colorimetry.rgb_spaces`.
 """
 
 from __future__ import annotations
@@ -28,17 +28,13 @@ import numpy as np
 import xarray as xr
 
 from metasim.colorimetry import tristimulus, xy_to_xyz
+from metasim.colorimetry.rgb_spaces import RGB_SPACES, is_rgb_space, rgb_space
 from metasim.errors import GamutError
 from metasim.observers.convert import as_observer
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum, unlabelled_message
 
-#: Reference gamut name -> colour-science colour-space name.
-REFERENCE_GAMUTS = {
-    "bt709": "ITU-R BT.709",
-    "display_p3": "Display P3",
-    "dci_p3": "DCI-P3",
-    "bt2020": "ITU-R BT.2020",
-}
+#: Reference gamut name -> colour-science colour-space name (:data:`metasim.colorimetry.rgb_spaces.RGB_SPACES`).
+REFERENCE_GAMUTS = {name: RGB_SPACES[name] for name in ("bt709", "display_p3", "dci_p3", "bt2020")}
 
 SPACES = ("xy", "uv")
 
@@ -49,9 +45,7 @@ def check_space(space: str) -> str:
     return space
 
 
-def is_colour_space(value) -> bool:
-    """True for a colour-science ``RGB_Colourspace`` (e.g. ``colour.RGB_COLOURSPACES["ITU-R BT.709"]``)."""
-    return is_colour_object(value) and type(value).__name__ == "RGB_Colourspace"
+is_colour_space = is_rgb_space
 
 
 def is_reference(value) -> bool:
@@ -65,13 +59,9 @@ def reference_name(value) -> str:
 
 
 def _colour_space(name):
-    if is_colour_space(name):
-        return name
-    if name not in REFERENCE_GAMUTS:
+    if not is_colour_space(name) and name not in REFERENCE_GAMUTS:
         raise GamutError(f"reference gamut {name!r} is not known; allowed: {', '.join(REFERENCE_GAMUTS)}")
-    import colour  # imported lazily: colour-science takes a moment to import
-
-    return colour.RGB_COLOURSPACES[REFERENCE_GAMUTS[name]]
+    return rgb_space(name)
 
 
 def reference_xy(name) -> xr.DataArray:
@@ -94,8 +84,8 @@ def reference_xyz(name, white_luminance: float = 1.0) -> xr.DataArray:
     """XYZ of a named reference gamut's (or an ``RGB_Colourspace``'s) primaries, scaled so that its
     own white has Y = ``white_luminance``.
 
-    The columns of the colour space's normalised primary matrix (SMPTE RP 177), as computed by
-    colour-science (``matrix_RGB_to_XYZ``).
+    The columns of the colour space's normalised primary matrix (SMPTE RP 177) as colour-science
+    stores it (``matrix_RGB_to_XYZ``; see :mod:`metasim.colorimetry.rgb_spaces`).
     """
     space = _colour_space(name)
     matrix = np.asarray(space.matrix_RGB_to_XYZ, dtype=float) * float(white_luminance)

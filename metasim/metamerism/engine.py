@@ -40,6 +40,7 @@ from metasim.colorimetry import tristimulus
 from metasim.colorimetry.cielab import LAB, lab_of_ratio, xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
+from metasim.colorimetry.ictcp import delta_e_itp_values, xyz_to_ictcp_values
 from metasim.colorimetry.integration import apply_matrices
 from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.display import Display, calibrate_white
@@ -510,11 +511,8 @@ def _delta_e_variable(lab_1: xr.Variable, lab_2: xr.Variable) -> xr.Variable:
 
 
 def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
-    from metasim.colorimetry.ictcp import _LMS_TO_ICTCP, _RGB_TO_LMS, _pq_inverse_eotf, _xyz_to_bt2020
-
-    to_lms = _RGB_TO_LMS @ _xyz_to_bt2020()
-    diff = _pq_inverse_eotf(xyz_1 @ to_lms.T) @ _LMS_TO_ICTCP.T - _pq_inverse_eotf(xyz_2 @ to_lms.T) @ _LMS_TO_ICTCP.T
-    return 720.0 * np.sqrt(diff[..., 0] ** 2 + (0.5 * diff[..., 1]) ** 2 + diff[..., 2] ** 2)
+    """ΔE_ITP of two absolute XYZ arrays (last axis X, Y, Z), as :mod:`metasim.colorimetry.ictcp` defines it."""
+    return delta_e_itp_values(xyz_to_ictcp_values(xyz_1), xyz_to_ictcp_values(xyz_2))
 
 
 __all__ = ["ADAPTED_WHITES", "mismatch", "check_mismatch_memory", "MISMATCH_BYTES_PER_PAIR",

@@ -33,8 +33,6 @@ illuminant. They are converted by :mod:`metasim.spectra.convert` onto the set's 
 
 from __future__ import annotations
 
-import csv
-import io
 import itertools
 import os
 import warnings
@@ -45,7 +43,7 @@ import xarray as xr
 
 from metasim.checks import is_number
 from metasim.errors import DuplicateStimulusWarning, FileFormatError, StimulusError
-from metasim.io import read_text_file
+from metasim.io import read_csv_rows
 from metasim.spectra import WAVELENGTH_ATTRS, check_wavelengths, default_grid, read_spectra_csv, resample
 from metasim.spectra.convert import (as_spectra, from_colour, is_colour_collection, is_colour_spectrum,
                                      unlabelled_message)
@@ -454,16 +452,10 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
         return reflectance_set(spectra.values, spectra.wavelength.values, list(spectra.channel.values),
                                illuminant=illuminant, description=f"reflectances from {path.name}")
     expected = ["R", "G", "B"] if kind == "rgb" else ["X", "Y", "Z"]
-    text = read_text_file(path, "CSV file")
+    _, records = read_csv_rows(path)
     labels, rows = [], []
     header = None
-    try:
-        records = list(csv.reader(io.StringIO(text, newline="")))
-    except csv.Error as exc:
-        raise FileFormatError(f"{path}: not a readable CSV file ({exc})") from None
-    for line_no, record in enumerate(records, start=1):
-        if not record or record[0].strip().startswith("#") or all(not c.strip() for c in record):
-            continue
+    for line_no, record in records:
         if header is None:
             header = [c.strip() for c in record]
             if [h.upper() for h in header[1:]] != expected or len(header) != 4:

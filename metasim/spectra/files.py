@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import csv
-import io
 import math
 import os
 from pathlib import Path
@@ -14,7 +13,7 @@ import xarray as xr
 
 from metasim.checks import is_number
 from metasim.errors import FileFormatError, SpectrumError
-from metasim.io import atomic_output, read_text_file
+from metasim.io import atomic_output, read_csv_rows
 from metasim.spectra.grid import RADIANCE_UNITS, WAVELENGTH_ATTRS, as_wavelengths, check_spectra, resample
 
 
@@ -65,22 +64,11 @@ def read_spectra_csv(
     0.5
     """
     path = Path(path)
-    text = read_text_file(path, "CSV file")
-    notes: list[str] = []
+    notes, records = read_csv_rows(path)
     header: list[str] | None = None
     rows: list[list[float]] = []
     lines: list[int] = []
-    try:
-        records = list(csv.reader(io.StringIO(text, newline="")))
-    except csv.Error as exc:
-        raise FileFormatError(f"{path}: not a readable CSV file ({exc})") from None
-    for line_no, record in enumerate(records, start=1):
-        if not record or all(not cell.strip() for cell in record):
-            continue
-        first = record[0].strip()
-        if first.startswith("#"):
-            notes.append(",".join(record).lstrip("#").strip())
-            continue
+    for line_no, record in records:
         if header is None:
             header = [cell.strip() for cell in record]
             if len(header) < 2:
