@@ -25,7 +25,6 @@ _ENTRY_POINTS = {
     "cone_fundamentals": "metasim.observers.standard",
     "cie2006_observer": "metasim.observers.physiological",
     "observer_population": "metasim.observers.population",
-    "observer_categories": "metasim.observers.categories",
     "physiological_observers": "metasim.observers.physiological",
     # colorimetry
     "tristimulus": "metasim.colorimetry",
@@ -45,6 +44,7 @@ _ENTRY_POINTS = {
     "stack_designs": "metasim.display",
     # metamerism
     "mismatch": "metasim.metamerism",
+    "observer_categories": "metasim.metamerism.categories",
     "rank_calibration_observers": "metasim.metamerism",
     "white_point_offsets": "metasim.metamerism",
     # statistics

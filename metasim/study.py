@@ -119,7 +119,8 @@ from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES, population_stat
 from metasim.statistics.resampling import check_interval_settings
 from metasim.statistics import headline as sentences
 from metasim.statistics.comparison import DEFAULT_HALF_WIDTH, half_width, observers_needed, paired_comparison
-from metasim.observers import observer_categories, standard_observer
+from metasim.metamerism.categories import observer_categories
+from metasim.observers import standard_observer
 from metasim.spectra import default_grid
 
 RESULT_KIND = "metasim study"

@@ -10,7 +10,8 @@ import xarray as xr
 
 import metasim
 from metasim.errors import ObserverError
-from metasim.observers import DEFAULT_SD, DEVIATIONS, cie2006_observer, observer_categories, observer_population
+from metasim.metamerism.categories import observer_categories
+from metasim.observers import DEFAULT_SD, DEVIATIONS, cie2006_observer, observer_population
 from metasim.spectra import wavelength_grid
 
 COARSE = wavelength_grid(390, 830, 5)

@@ -18,7 +18,8 @@ from metasim.metamerism import (
     read_stimuli_csv,
     rgb_cube_grid,
 )
-from metasim.observers import observer_categories, observer_population
+from metasim.metamerism.categories import observer_categories
+from metasim.observers import observer_population
 from metasim.progress import Progress  # noqa: F401  (the reporter lived here before metasim.progress)
 
 #: Stimulus set names of ``--stimuli`` (each followed by ``:N`` where it takes a size).

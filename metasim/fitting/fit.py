@@ -114,7 +114,8 @@ def match_weights(data: MatchData, ages: np.ndarray, fields: np.ndarray, peak_sh
 
 @lru_cache(maxsize=2)
 def _default_categories(peak_shift_axis: str):
-    from metasim.observers import observer_categories, observer_population
+    from metasim.metamerism.categories import observer_categories
+    from metasim.observers import observer_population
 
     spec = DEFAULT_CATEGORIES
     population = observer_population(spec["size"], seed=spec["seed"], age_years=spec["age_years"],

@@ -2,10 +2,11 @@
 
 See :mod:`metasim.metamerism.engine` (the procedure), :mod:`~metasim.metamerism.stimuli`
 (stimulus sets), :mod:`~metasim.metamerism.summary` (statistics), :mod:`~metasim.metamerism.index`
-(observer metamerism index) and :mod:`~metasim.metamerism.choices` (calibration-observer ranking
-and white-point offsets).
+(observer metamerism index), :mod:`~metasim.metamerism.choices` (calibration-observer ranking
+and white-point offsets) and :mod:`~metasim.metamerism.categories` (representative observers).
 """
 
+from metasim.metamerism.categories import observer_categories, observer_features
 from metasim.metamerism.engine import ADAPTED_WHITES, mismatch, resolve_calibration_observer, resolve_observers
 from metasim.metamerism.choices import CANDIDATES, rank_calibration_observers, white_point_offsets
 from metasim.metamerism.index import observer_metamerism_index
@@ -31,6 +32,8 @@ __all__ = [
     "resolve_calibration_observer",
     "ADAPTED_WHITES",
     "observer_metamerism_index",
+    "observer_categories",
+    "observer_features",
     "rank_calibration_observers",
     "white_point_offsets",
     "CANDIDATES",

@@ -1,6 +1,9 @@
-"""Observers: standard CIE observers, the CIE 170-1 physiological model, individuals, populations."""
+"""Observers: standard CIE observers, the CIE 170-1 physiological model, individuals, populations.
 
-from metasim.observers.categories import observer_categories, observer_features
+``observer_categories`` and ``observer_features`` live in :mod:`metasim.metamerism.categories`;
+the names here stay for old imports and are looked up there on first use.
+"""
+
 from metasim.observers.files import check_observers, read_observers
 from metasim.observers.physiological import (
     DEVIATIONS,
@@ -21,6 +24,16 @@ from metasim.observers.standard import (
     standard_observer,
 )
 
+
+
+def __getattr__(name: str):
+    if name in ("observer_categories", "observer_features"):  # moved to the metamerism layer
+        from metasim.metamerism import categories
+
+        return getattr(categories, name)
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
+
+
 __all__ = [
     "CONES",
     "XYZ",
@@ -38,8 +51,6 @@ __all__ = [
     "read_lens_components",
     "lens_components_dataset",
     "observer_population",
-    "observer_categories",
-    "observer_features",
     "check_observers",
     "read_observers",
 ]
