@@ -18,7 +18,7 @@ from metasim.observers import (
     physiological_observers,
     read_lens_components,
 )
-from metasim.observers.physiological import _density_table, _peak
+from metasim.observers.physiological import optical_density_table, _peak
 from metasim.spectra import wavelength_grid
 
 SS = {2: "Stockman & Sharpe 2 Degree Cone Fundamentals", 10: "Stockman & Sharpe 10 Degree Cone Fundamentals"}
@@ -52,7 +52,7 @@ def test_zero_deviations_give_the_cie_170_1_formula_exactly():
     xr.testing.assert_identical(observer, cie2006_observer(age, field))
     # the CIE 170-1:2006 formula written out (DESIGN.md constants; vdK&vN 2007 ageing)
     a = low_density_absorbance().values
-    d_mac = 0.485 * np.exp(-field / 6.132) / 0.35 * _density_table("macular_density_2deg_1nm.csv")
+    d_mac = 0.485 * np.exp(-field / 6.132) / 0.35 * optical_density_table("macular_density_2deg_1nm.csv")
     d_ocul = ocular_media_density(age).values
     d_peak = np.array([0.38 + 0.54 * np.exp(-field / 1.333)] * 2 + [0.30 + 0.45 * np.exp(-field / 1.333)])
     reference = WL * (1 - 10 ** (-d_peak[:, None] * a)) * 10 ** (-d_mac - d_ocul)
@@ -87,7 +87,7 @@ def test_short_wave_sensitivity_falls_with_age():
 
 
 def test_ocular_media_at_32_is_the_table_and_ageing_follows_the_published_terms():
-    np.testing.assert_array_equal(ocular_media_density(32).values, _density_table("lens_density_32y_1nm.csv"))
+    np.testing.assert_array_equal(ocular_media_density(32).values, optical_density_table("lens_density_32y_1nm.csv"))
     lam, age = 400.0, 70.0  # CIE 203:2012 / van de Kraats & van Norren (2007) age terms, evaluated by hand
     terms = (3.1e-5 * (400 / lam) ** 4 - 6.3e-5 * 2.13 * np.exp(-(0.029 * (lam - 370)) ** 2)
              + 1.86e-4 * 11.95 * np.exp(-(0.021 * (lam - 325)) ** 2) + 1.32e-4 * 1.43 * np.exp(-(0.008 * (lam - 325)) ** 2))
@@ -200,7 +200,7 @@ def test_vector_errors():
 
 
 def test_two_component_lens_table_gives_the_cie_170_1_age_formula(tmp_path):
-    lens = _density_table("lens_density_32y_1nm.csv")
+    lens = optical_density_table("lens_density_32y_1nm.csv")
     path = tmp_path / "lens.csv"
     rows = "\n".join(f"{w:g},{0.7 * d!r},{0.3 * d!r}" for w, d in zip(WL, lens))
     path.write_text("# test table: D1 = 0.7 D, D2 = 0.3 D\nwavelength_nm,d1,d2\n" + rows + "\n")

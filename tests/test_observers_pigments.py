@@ -10,14 +10,14 @@ from metasim import emitters
 from metasim.errors import ObserverError
 from metasim.metamerism import primaries_and_secondaries
 from metasim.observers import physiological_observers
-from metasim.observers.physiological import BASE_WAVELENGTHS, _absorbances, _peak
+from metasim.observers.physiological import BASE_WAVELENGTHS, absorbance_table, _peak
 from metasim.observers.pigments import shifted_absorbance
 
 
 @pytest.mark.parametrize("axis", ["log_wavelength", "wavelength"])
 @pytest.mark.parametrize("interpolation", ["linear", "monotone_cubic"])
 def test_shifted_absorbance_peak_moves_by_the_shift(axis, interpolation):
-    table, peak_nm = _absorbances()
+    table, peak_nm = absorbance_table()
     shift = np.array([[2.0, -1.5, 1.3], [-3.0, 2.5, -0.7]])
     fine = np.arange(400.0, 700.0, 0.01)
     curves = shifted_absorbance(BASE_WAVELENGTHS, table, peak_nm, shift, axis, fine, interpolation=interpolation)
@@ -27,7 +27,7 @@ def test_shifted_absorbance_peak_moves_by_the_shift(axis, interpolation):
 
 
 def test_the_two_axes_move_the_flanks_differently():
-    table, peak_nm = _absorbances()
+    table, peak_nm = absorbance_table()
     shift = np.array([[3.0, 0.0, 0.0]])
     wl = np.array([450.0, 650.0])
     log = shifted_absorbance(BASE_WAVELENGTHS, table, peak_nm, shift, "log_wavelength", wl, interpolation="monotone_cubic")
@@ -61,7 +61,7 @@ def test_defaults_are_unchanged_and_recorded():
 
 
 def test_monotone_cubic_reading_agrees_at_nodes_and_is_smooth_in_the_shift():
-    table, peak_nm = _absorbances()
+    table, peak_nm = absorbance_table()
     zero = np.zeros((1, 3))
     cubic = shifted_absorbance(BASE_WAVELENGTHS, table, peak_nm, zero, interpolation="monotone_cubic")
     assert np.array_equal(cubic[0], table)  # no shift: the table itself (CIE 170-1:2006 observer unchanged)

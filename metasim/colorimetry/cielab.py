@@ -8,7 +8,7 @@ import xarray as xr
 from metasim.colorimetry._kernels.cielab import lab_of_ratios, lab_of_rows
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
-from metasim.colorimetry.tristimulus import labelled
+from metasim.labelling import labelled
 from metasim.errors import ColorimetryError
 
 LAB = ("L*", "a*", "b*")

@@ -18,7 +18,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_pairs
-from metasim.colorimetry.tristimulus import labelled
+from metasim.labelling import labelled
 from metasim.errors import ColorimetryError
 
 

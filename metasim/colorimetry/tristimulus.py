@@ -6,14 +6,12 @@ method of colour-science's ``sd_to_XYZ`` (ASTM E308 weighting tables are not use
 
 from __future__ import annotations
 
-from functools import lru_cache
-from typing import Mapping, Sequence
-
 import numpy as np
 import xarray as xr
 
 from metasim.colorimetry.integration import spectral_products
 from metasim.errors import ColorimetryError, SpectrumError
+from metasim.labelling import coordinates, labelled  # noqa: F401  (coordinates: kept importable from here)
 from metasim.observers.convert import as_observer
 from metasim.spectra import RADIANCE_UNITS, as_wavelengths, check_spectra, grid_step, require_same_grid
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
@@ -22,48 +20,6 @@ from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spec
 K_M = 683.0
 
 SCALES = ("absolute", "relative", "none")
-
-
-@lru_cache(maxsize=64)
-def _label_coordinate(dim: str, labels: tuple) -> xr.Coordinates:
-    return xr.Coordinates({dim: list(labels)})
-
-
-def coordinates(dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None) -> xr.Coordinates:
-    """The coordinates of ``sources`` that lie along ``dims`` only, with their existing indexes.
-
-    Sources are DataArrays, Datasets or Coordinates; the first one holding a name wins. ``labels``
-    adds dimension coordinates of fixed labels (for example ``{"xyz": ("X", "Y", "Z")}``), which
-    take precedence over a source coordinate of the same name. Nothing is realigned or re-indexed.
-    """
-    allowed = set(dims)
-    labels = labels or {}
-    variables, indexes = {}, {}
-    for source in sources:
-        coords = source if isinstance(source, xr.Coordinates) else source.coords
-        xindexes = coords.xindexes
-        for key, variable in coords.variables.items():
-            if key in variables or key in labels or not set(variable.dims) <= allowed:
-                continue
-            variables[key] = variable
-            if key in xindexes:
-                indexes[key] = xindexes[key]
-    for dim, values_of_dim in labels.items():
-        fixed = _label_coordinate(dim, tuple(values_of_dim))
-        variables[dim] = fixed.variables[dim]
-        indexes[dim] = fixed.xindexes[dim]
-    return xr.Coordinates(variables, indexes=indexes)
-
-
-def labelled(values, dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None,
-             attrs: dict | None = None, name=None) -> xr.DataArray:
-    """A DataArray of numpy ``values`` over ``dims``, labelled by :func:`coordinates` of ``sources``."""
-    dims = tuple(dims)
-    # a one-variable Dataset takes the coordinates as they are (the DataArray constructor deep-copies them)
-    ds = xr.Dataset({"__labelled__": (dims, values, attrs)}, coords=coordinates(dims, sources, labels=labels))
-    out = ds["__labelled__"]
-    out.name = name
-    return out
 
 
 def observer_responses(observers, quantity: str = "xyz") -> xr.DataArray:

@@ -43,7 +43,7 @@ from metasim.colorimetry import tristimulus
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.colorimetry.difference import delta_e_2000_array
-from metasim.colorimetry.tristimulus import coordinates, labelled
+from metasim.labelling import coordinates, labelled
 from metasim.errors import DisplayError
 from metasim.spectra import integrate
 from metasim.display.model import Display, observer_name, resolve_observer

@@ -42,7 +42,8 @@ from metasim.spectra.convert import as_spectra, is_colour_object
 from metasim.colorimetry import tristimulus
 from metasim.colorimetry.integration import apply_matrices, spectral_products
 from metasim.display.optics import display_matrices
-from metasim.colorimetry.tristimulus import grid_of, labelled, observer_responses
+from metasim.colorimetry.tristimulus import grid_of, observer_responses
+from metasim.labelling import labelled
 from metasim.display.transfer import TRANSFER_FUNCTIONS, check_transfer, eotf, eotf_inverse
 
 ASSUMPTION = ("channel additivity: emitted radiance = black + sum over primaries of drive x full-drive "

@@ -44,9 +44,12 @@ from metasim.errors import FittingError
 from metasim.observers.physiological import (
     BASE_WAVELENGTHS,
     DEVIATIONS,
-    _absorbances,
-    _density_table,
-    _ocular_density,
+    MACULAR_TABLE,
+    absorbance_table,
+    macular_peak_density,
+    ocular_density_values,
+    optical_density_table,
+    photopigment_peak_density,
 )
 from metasim.observers.pigments import DEFAULT_PEAK_SHIFT_AXIS, shifted_absorbance
 
@@ -127,7 +130,7 @@ def match_geometry(stimuli: np.ndarray, primaries: np.ndarray, black: np.ndarray
 def _cone_terms(params: np.ndarray, age: np.ndarray, field: np.ndarray, wl: np.ndarray, nodes: np.ndarray,
                 axis: str, interpolation: str, lens_components, fit_age: bool, jacobian: bool):
     """Cone fundamentals (n, 3, B) at the nodes and, with ``jacobian``, their derivatives (n, p, 3, B)."""
-    absorbance_table, peak_nm = _absorbances()
+    absorbances, peak_nm = absorbance_table()
     n = params.shape[0]
     dev = {name: params[:, i] for i, name in enumerate(DEVIATIONS)}
     if fit_age:
@@ -139,20 +142,19 @@ def _cone_terms(params: np.ndarray, age: np.ndarray, field: np.ndarray, wl: np.n
 
     f_lens, df_lens = factor("lens_density_pct")
     f_mac, df_mac = factor("macular_density_pct")
-    ocular = _ocular_density(age, lens_components)[:, nodes]
-    macular = np.outer(0.485 * np.exp(-field / 6.132) / 0.35, _density_table("macular_density_2deg_1nm.csv")[nodes])
+    ocular = ocular_density_values(age, lens_components)[:, nodes]
+    macular = np.outer(macular_peak_density(field) / 0.35, optical_density_table(MACULAR_TABLE)[nodes])
     log_t = -LN10 * (f_lens[:, None] * ocular + f_mac[:, None] * macular)  # ln of the media transmittance
     quantal = wl * np.exp(log_t)  # (n, B)
-    pigment = np.exp(-field / 1.333)
-    base_density = np.stack([0.38 + 0.54 * pigment, 0.38 + 0.54 * pigment, 0.30 + 0.45 * pigment], axis=1)
+    base_density = photopigment_peak_density(field)  # (n, 3)
     scale = [factor(f"{c}_density_pct") for c in "lms"]
     density = base_density * np.stack([s[0] for s in scale], axis=1)  # (n, 3)
     shift = np.stack([dev[f"{c}_shift_nm"] for c in "lms"], axis=1)
     if jacobian:
-        a, da = shifted_absorbance(BASE_WAVELENGTHS, absorbance_table, peak_nm, shift, axis, wl,
+        a, da = shifted_absorbance(BASE_WAVELENGTHS, absorbances, peak_nm, shift, axis, wl,
                                    interpolation=interpolation, derivative=True)
     else:
-        a = shifted_absorbance(BASE_WAVELENGTHS, absorbance_table, peak_nm, shift, axis, wl, interpolation=interpolation)
+        a = shifted_absorbance(BASE_WAVELENGTHS, absorbances, peak_nm, shift, axis, wl, interpolation=interpolation)
     remaining = np.exp(-LN10 * density[..., None] * a)  # 10^(−D·a)
     lms = (1.0 - remaining) * quantal[:, None, :]
     if not jacobian:
@@ -166,8 +168,8 @@ def _cone_terms(params: np.ndarray, age: np.ndarray, field: np.ndarray, wl: np.n
         d[:, 2 + c, c] = quantal * d_alpha_d_density * (base_density[:, c] * scale[c][1])[:, None]
         d[:, 5 + c, c] = quantal * (LN10 * density[:, c, None] * remaining[:, c]) * da[:, c]
     if fit_age:
-        up = _ocular_density(age + AGE_STEP_YEARS, lens_components)[:, nodes]
-        down = _ocular_density(age - AGE_STEP_YEARS, lens_components)[:, nodes]
+        up = ocular_density_values(age + AGE_STEP_YEARS, lens_components)[:, nodes]
+        down = ocular_density_values(age - AGE_STEP_YEARS, lens_components)[:, nodes]
         d_ocular = (up - down) / (2.0 * AGE_STEP_YEARS)
         d[:, 8] = lms * (-LN10 * f_lens[:, None] * d_ocular)[:, None, :]
     return lms, d

@@ -17,7 +17,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._threads import blas_single_threaded
-from metasim.colorimetry.tristimulus import _label_coordinate
+from metasim.labelling import label_coordinate as _label_coordinate
 from metasim.errors import MismatchError
 from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_along
 from metasim.statistics import observer_weights as _statistics_weights

@@ -118,8 +118,20 @@ BLOCK_OBSERVERS = 1024
 
 # -- tables and the derived absorbances ---------------------------------------------------------
 
+#: The shipped optical-density tables (``data/``, with their sources in the file headers).
+LENS_TABLE = "lens_density_32y_1nm.csv"
+MACULAR_TABLE = "macular_density_2deg_1nm.csv"
+
+
 @lru_cache(maxsize=4)
-def _density_table(filename: str) -> np.ndarray:
+def optical_density_table(filename: str) -> np.ndarray:
+    """A shipped optical-density table (:data:`LENS_TABLE`, :data:`MACULAR_TABLE`) on the base grid
+    (:data:`BASE_WAVELENGTHS`); cached, so callers do not modify it.
+
+    References
+    ----------
+    CIE 170-1:2006 (macular pigment at 2°, ocular media at age 32), as the files' headers say.
+    """
     table = read_spectra_csv(DATA_DIR / filename, units="1", long_name="optical density")
     return resample(table, BASE_WAVELENGTHS, warn_share=None).values[0]
 
@@ -136,7 +148,7 @@ def _peak(values: np.ndarray, wavelengths: np.ndarray) -> tuple[np.ndarray, np.n
 
 
 @lru_cache(maxsize=1)
-def _absorbances() -> tuple[np.ndarray, np.ndarray]:
+def absorbance_table() -> tuple[np.ndarray, np.ndarray]:
     """Low-density absorbances (3 × base grid, peak 1) and their peak wavelengths (nm).
 
     Inversion of the CIE 170-1 formula at 2° for the Stockman & Sharpe (2000) 2° fundamentals.
@@ -145,7 +157,7 @@ def _absorbances() -> tuple[np.ndarray, np.ndarray]:
 
     wl = BASE_WAVELENGTHS
     fundamentals = _sample("Stockman & Sharpe 2 Degree Cone Fundamentals", wl)
-    media = _density_table("lens_density_32y_1nm.csv") + _density_table("macular_density_2deg_1nm.csv")
+    media = optical_density_table(LENS_TABLE) + optical_density_table(MACULAR_TABLE)
     quantal = fundamentals / wl * 10.0**media  # absorptance up to a factor per cone
     absorptance = quantal / quantal.max(axis=1, keepdims=True) * (1.0 - 10.0**-INVERSION_PEAK_DENSITY)[:, None]
     absorbance = -np.log10(1.0 - absorptance) / INVERSION_PEAK_DENSITY[:, None]
@@ -164,7 +176,7 @@ def low_density_absorbance(wavelengths=None) -> xr.DataArray:
     ----------
     CIE 170-1:2006; Stockman & Sharpe (2000) Vision Research 40, 1711-1737.
     """
-    absorbance, peaks = _absorbances()
+    absorbance, peaks = absorbance_table()
     wl = _grid(wavelengths)
     return xr.DataArray(
         _to_grid(absorbance, wl),
@@ -177,6 +189,18 @@ def low_density_absorbance(wavelengths=None) -> xr.DataArray:
 
 
 # -- ocular media and ageing ---------------------------------------------------------------------
+
+def macular_peak_density(field_size_deg) -> np.ndarray:
+    """Peak optical density of the macular pigment, D_mac,max = 0.485·exp(−f/6.132) (CIE 170-1:2006)."""
+    return 0.485 * np.exp(-np.asarray(field_size_deg, dtype=float) / 6.132)
+
+
+def photopigment_peak_density(field_size_deg) -> np.ndarray:
+    """Peak optical densities of the L, M, S photopigments (n × 3): L, M 0.38 + 0.54·exp(−f/1.333),
+    S 0.30 + 0.45·exp(−f/1.333) (CIE 170-1:2006)."""
+    pigment = np.exp(-np.asarray(field_size_deg, dtype=float) / 1.333)
+    return np.stack([0.38 + 0.54 * pigment, 0.38 + 0.54 * pigment, 0.30 + 0.45 * pigment], axis=-1)
+
 
 def _ageing_terms(wl: np.ndarray) -> np.ndarray:
     """Age terms of van de Kraats & van Norren (2007) / CIE 203:2012: ΔD = (A² − 32²) · this."""
@@ -193,11 +217,18 @@ def _cie170_age_factor(age: np.ndarray) -> np.ndarray:
     return np.where(age <= 60.0, 1.0 + 0.02 * (age - 32.0), 1.56 + 0.0667 * (age - 60.0))
 
 
-def _ocular_density(age_years: np.ndarray, lens_components: xr.Dataset | None) -> np.ndarray:
-    """D_ocul (n × base grid) for ages ``age_years`` (n,)."""
+def ocular_density_values(age_years: np.ndarray, lens_components: xr.Dataset | None = None) -> np.ndarray:
+    """D_ocul (n × base grid) for ages ``age_years`` (n,): the age-32 table plus the van de Kraats &
+    van Norren (2007) / CIE 203:2012 age terms, or CIE 170-1's formula with ``lens_components``
+    (numpy form of :func:`ocular_media_density`).
+
+    References
+    ----------
+    CIE 170-1:2006; van de Kraats & van Norren (2007) J. Opt. Soc. Am. A 24, 1842-1857; CIE 203:2012.
+    """
     age_years = np.asarray(age_years, dtype=float)[:, None]
     if lens_components is None:
-        density = _density_table("lens_density_32y_1nm.csv") + (age_years**2 - 32.0**2) * _ageing_terms(BASE_WAVELENGTHS)
+        density = optical_density_table(LENS_TABLE) + (age_years**2 - 32.0**2) * _ageing_terms(BASE_WAVELENGTHS)
     else:
         d1, d2 = (_to_base(lens_components[name]) for name in ("lens_density_1", "lens_density_2"))
         density = d1 * _cie170_age_factor(age_years) + d2
@@ -254,7 +285,7 @@ def ocular_media_density(age_years=32, wavelengths=None, *, lens_components: xr.
     wl = _grid(wavelengths)
     model = ("CIE 170-1:2006 two-component formula" if lens_components is not None
              else "van de Kraats & van Norren (2007) / CIE 203:2012 ageing of the age-32 table")
-    density = _to_grid(_ocular_density(age_years.reshape(1), lens_components)[0], wl)
+    density = _to_grid(ocular_density_values(age_years.reshape(1), lens_components)[0], wl)
     return xr.DataArray(density, dims=("wavelength",), coords={"wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))},
                         attrs={"units": "1", "long_name": "ocular media optical density", "age_years": float(age_years[0]),
                                "model": model})
@@ -329,23 +360,19 @@ def _block_functions(parameters: dict, lens_components=None,
                      interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION) -> tuple[np.ndarray, np.ndarray]:
     """LMS and XYZ functions (n × 3 × base grid) for parameter vectors of length n, array-wise."""
     wl = BASE_WAVELENGTHS
-    absorbance, peak_nm = _absorbances()
+    absorbance, peak_nm = absorbance_table()
     age_years, field_size_deg = parameters["age_years"], parameters["field_size_deg"]
     n = age_years.size
 
     def factor(name):
         return np.maximum(1.0 + parameters[name] / 100.0, 0.0)
 
-    macular_peak = 0.485 * np.exp(-field_size_deg / 6.132) * factor("macular_density_pct")
-    density = np.outer(macular_peak / 0.35, _density_table("macular_density_2deg_1nm.csv"))
-    density += _ocular_density(age_years, lens_components) * factor("lens_density_pct")[:, None]
+    macular_peak = macular_peak_density(field_size_deg) * factor("macular_density_pct")
+    density = np.outer(macular_peak / 0.35, optical_density_table(MACULAR_TABLE))
+    density += ocular_density_values(age_years, lens_components) * factor("lens_density_pct")[:, None]
     transmittance = np.exp(density * -np.log(10.0))  # 10^(−D), exp being faster than pow
-    pigment = np.exp(-field_size_deg / 1.333)
-    peak_density = np.stack([
-        (0.38 + 0.54 * pigment) * factor("l_density_pct"),
-        (0.38 + 0.54 * pigment) * factor("m_density_pct"),
-        (0.30 + 0.45 * pigment) * factor("s_density_pct"),
-    ], axis=1)
+    peak_density = photopigment_peak_density(field_size_deg) * np.stack(
+        [factor("l_density_pct"), factor("m_density_pct"), factor("s_density_pct")], axis=1)
     shift = np.stack([parameters[f"{c}_shift_nm"] for c in "lms"], axis=1)
     if np.any(shift != 0):
         absorbance = shifted_absorbance(wl, absorbance, peak_nm, shift, peak_shift_axis, interpolation=interpolation)
@@ -549,7 +576,14 @@ __all__ = [
     "observer_parameters",
     "observers_dataset",
     "low_density_absorbance",
+    "absorbance_table",
     "ocular_media_density",
+    "ocular_density_values",
+    "optical_density_table",
+    "LENS_TABLE",
+    "MACULAR_TABLE",
+    "macular_peak_density",
+    "photopigment_peak_density",
     "read_lens_components",
     "lens_components_dataset",
 ]
