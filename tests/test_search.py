@@ -5,6 +5,7 @@ Kept tiny (3 observers, 4 stimuli, 2 searched parameters, 8 designs per generati
 
 import json
 import os
+import re
 import signal
 import subprocess
 import sys
@@ -72,6 +73,12 @@ def test_constraints_are_respected(tmp_path):
     infeasible = result["constraint_violation"].values > 0
     assert (result["search_objective"].values[infeasible] > PENALTY).all()
     assert (result["search_objective"].values[~infeasible] < PENALTY).all()
+    # the report's headline and best-designs table rank only designs that meet the constraints first
+    page = render_report(result)
+    assert f"(of the designs that meet every constraint): design {result['design'].values[index]} " in page
+    table = page.split("<h2>Best designs</h2>", 1)[1].split("</table>", 1)[0]
+    meets = re.findall(r"<td>(yes|no)</td></tr>", table)
+    assert len(meets) == min(10, result.sizes["design"]) and meets == sorted(meets, reverse=True)
 
 
 def test_same_seed_same_result(found, tmp_path):

@@ -160,7 +160,12 @@ def sweep_sentences(ds: xr.Dataset) -> list[str]:
         text = f"Its median is {numbers['median'][best]:.2f} CIE 2000 units over all observer × colour pairs"
     else:
         described = _parameters_of(ds, plots.sweep_parameters(ds)[0], best)
-        text = (f"Best design: {_design_name(ds, best)}{' (' + described + ')' if described else ''}, 95th percentile "
+        among = ""
+        if numbers["constrained"]:
+            among = (" (of the designs that meet every constraint)" if not numbers["breaks"][best]
+                     else " (no design meets every constraint; this one breaks them least)")
+        text = (f"Best design{among}: {_design_name(ds, best)}{' (' + described + ')' if described else ''}, "
+                "95th percentile "
                 f"{numbers['p95'][best]:.2f} and median {numbers['median'][best]:.2f} CIE 2000 units over all "
                 "observer × colour pairs")
     if np.isfinite(numbers["share2"][best]):
@@ -170,7 +175,7 @@ def sweep_sentences(ds: xr.Dataset) -> list[str]:
     sentences = ranked[:1] + [text + "."] + ranked[1:]
     finite = numbers["p95"][np.isfinite(numbers["p95"])]
     if finite.size > 1:
-        worst = int(numbers["order"][finite.size - 1])
+        worst = int(np.nanargmax(numbers["p95"]))
         sentences.append(f"Over the {ds.sizes['design']} designs the 95th percentile runs from {finite.min():.2f} to "
                          f"{finite.max():.2f} CIE 2000 units (worst: {_design_name(ds, worst)}).")
     return sentences

@@ -25,9 +25,13 @@ def _sweep_numbers(ds: xr.Dataset) -> dict:
     if "gamut_coverage" in ds and "bt2020" in ds["gamut_coverage"]["reference_gamut"].values:
         coverage = ds["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
     p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
+    # a search result: designs that break a constraint rank after every design that meets them all
+    breaks = (ds["constraint_violation"].transpose("design").values > 0 if "constraint_violation" in ds
+              else np.zeros(ds.sizes["design"], dtype=bool))
+    order = np.lexsort((np.where(np.isfinite(p95), p95, np.inf), breaks))
     return {"p95": p95, "median": np.asarray(stats.sel(statistic="median").values, dtype=float),
             "share2": np.asarray(share, dtype=float), "bt2020": np.asarray(coverage, dtype=float),
-            "order": np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")}
+            "breaks": breaks, "constrained": "constraint_violation" in ds, "order": order}
 
 
 def _cell(value) -> str:
@@ -111,6 +115,8 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
     ranked = "best_probability" in ds
     if ranked:
         header += ["best in (share of resamples)", "rank interval"]
+    if numbers["constrained"]:
+        header += ["meets the constraints"]
     interval = ds["delta_e_2000_overall_interval"] if "delta_e_2000_overall_interval" in ds else None
     rows = []
     for rank, index in enumerate(numbers["order"][:shown], start=1):
@@ -126,12 +132,15 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
         if ranked:
             low, high = ds["rank_interval"].isel(design=index).values
             row += [_pct(ds["best_probability"].values[index]), f"{low}–{high}"]
+        if numbers["constrained"]:
+            row += ["no" if numbers["breaks"][index] else "yes"]
         rows.append(row)
     count = ds.sizes["design"]
     what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
     return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "
             "stimulus pairs; the share is of pairs beyond 2 CIE 2000 units; BT.2020 coverage is of its CIE 1931 xy "
-            "area.</p>" + _table(header, rows))
+            "area." + (" Designs that break a constraint of the search are listed after every design that meets "
+                       "them all." if numbers["constrained"] else "") + "</p>" + _table(header, rows))
 
 
 def _sweep_models(ds: xr.Dataset) -> str:
