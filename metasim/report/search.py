@@ -7,6 +7,12 @@ import xarray as xr
 
 from metasim import plots
 from metasim.report.html import _e, _image, _num, _table
+from metasim.sweep.pareto import OBJECTIVES
+
+
+def _objective_text(name: str) -> str:
+    """The reader's words for a named objective or a design variable (the key itself when unknown)."""
+    return OBJECTIVES[name][3] if name in OBJECTIVES else name
 
 
 def is_search(ds: xr.Dataset) -> bool:
@@ -21,11 +27,12 @@ def search_section(ds: xr.Dataset, figure: tuple | None = None) -> str:
     settings = spec.get("search", {}) if isinstance(spec.get("search"), dict) else {}
     index = int(ds.attrs.get("best_design", int(np.argmin(ds["search_objective"].values))))
     feasible = bool(ds["constraint_violation"].values[index] == 0)
-    objective = " + ".join(f"{w:g} × {n}" if w != 1 else n for n, w in settings.get("objective", {}).items())
+    objective = " + ".join(f"{w:g} × {_objective_text(n)}" if w != 1 else _objective_text(n)
+                           for n, w in settings.get("objective", {}).items())
     limits = []
     for name, bound in (settings.get("constraints") or {}).items():
-        limits += [f"{name} ≥ {bound['min']:g}"] if bound.get("min") is not None else []
-        limits += [f"{name} ≤ {bound['max']:g}"] if bound.get("max") is not None else []
+        limits += [f"{_objective_text(name)} ≥ {bound['min']:g}"] if bound.get("min") is not None else []
+        limits += [f"{_objective_text(name)} ≤ {bound['max']:g}"] if bound.get("max") is not None else []
     text = (f"<p>Differential evolution (seed {_e(ds.attrs.get('search_seed', '?'))}) over "
             f"{_e(', '.join(plots.parameter_label(ds, c) for c in spec.get('parameters', []) if c in ds.coords))}: "
             f"{ds.sizes['design']} designs evaluated in {_e(ds.attrs.get('generation_count', '?'))} generations of "
