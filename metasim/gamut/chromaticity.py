@@ -15,6 +15,8 @@ areas are single array expressions (see :mod:`metasim.gamut.polygon`); only the 
 
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 import xarray as xr
 
@@ -222,6 +224,72 @@ def gamut_coverage(design, reference="bt709", space: str = "xy", observer=None) 
         "reference": ref_name,
         "space": space,
     }, name="coverage")
+
+
+def _polygon_edges(polygon: np.ndarray):
+    """Edges (M, K, 2, 2) and mask (M, K) of NaN-padded counter-clockwise polygons (M, K, 2)."""
+    valid = np.isfinite(polygon).all(axis=-1)
+    count = valid.sum(axis=1)[:, None]
+    index = np.arange(polygon.shape[1])[None, :]
+    following = np.where(index + 1 < count, index + 1, 0)
+    end = np.take_along_axis(polygon, following[..., None], axis=1)
+    return np.nan_to_num(np.stack([polygon, end], axis=2)), valid
+
+
+def xy_gamut_numbers(xyz: np.ndarray, references=("bt709",), *, labels=None):
+    """CIE 1931 xy gamut area, coverage of reference gamuts and primary chromaticities on numpy values.
+
+    The numbers of :func:`chromaticity_gamut` (``space="xy"``) and :func:`gamut_coverage` for many
+    items at once, without labelled arrays (the same arithmetic, so the same values): a sweep's
+    per-chunk gamut figures.
+
+    Parameters
+    ----------
+    xyz : (M, N, 3) array
+        Tristimulus values of each item's N primaries (any scale: chromaticities are scale-free).
+    references : sequence of str
+        Reference gamut names (:data:`metasim.gamut.REFERENCE_GAMUTS`).
+    labels : sequence, optional
+        A label per item for error messages (default: the item index).
+
+    Returns
+    -------
+    area (M,), coverage (M, len(references)), xy (M, N, 2)
+
+    Raises
+    ------
+    GamutError
+        A black primary, or primaries on one line (as :func:`chromaticity_gamut`).
+    """
+    xyz = np.asarray(xyz, dtype=float)
+    x, y, z = xyz[..., 0], xyz[..., 1], xyz[..., 2]
+    total = x + y + z
+    with np.errstate(invalid="ignore", divide="ignore"):
+        points = np.stack([x / total, y / total], axis=-1)
+    count = points.shape[0]
+    names = np.arange(count) if labels is None else np.asarray(labels)
+    coords = {"design": xr.Variable("design", names)}
+    next_vertex, on_hull, area = _hull(points, ["design"], (count,), coords, "xy")
+    order = geometry.ordered_vertices(next_vertex, on_hull)
+    polygon = np.take_along_axis(points, np.maximum(order, 0)[..., None], axis=1)
+    polygon = np.where(order[..., None] >= 0, polygon, np.nan)
+    ea, ma = _polygon_edges(polygon)
+    coverage = np.empty((count, len(references)))
+    for j, name in enumerate(references):
+        eb, mb, reference_area = _reference_edges(name)
+        inter = geometry.intersection_area(ea, ma, np.broadcast_to(eb, (count, *eb.shape[1:])),
+                                           np.broadcast_to(mb, (count, mb.shape[1])))
+        coverage[:, j] = np.clip(inter / reference_area, 0.0, 1.0)
+    return area, coverage, points
+
+
+@functools.lru_cache(maxsize=None)
+def _reference_edges(name: str):
+    """Edges, mask and area of a named reference gamut in CIE 1931 xy (made once per process)."""
+    reference = chromaticity_gamut(name, "xy")
+    edges, valid = _polygon_edges(np.asarray(reference["polygon"].values, dtype=float)[None])
+    edges.flags.writeable = valid.flags.writeable = False
+    return edges, valid, float(reference["area"].values)
 
 
 def spectrum_locus(observer, space: str = "xy") -> xr.Dataset:

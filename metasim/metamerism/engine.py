@@ -201,7 +201,70 @@ def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, w
     return targets.transpose("stimulus", "xyz"), solution
 
 
-@blas_single_threaded
+class ReferenceSide:
+    """The half of a mismatch that does not depend on the test display: the observers, the
+    calibration observer, the reference white and the reference rendering of every stimulus.
+
+    :func:`mismatch` makes one per call; a sweep makes one for all its designs
+    (:func:`reference_side`) and evaluates each block of designs against it, so the reference is
+    rendered once. ``matched`` and ``test_drives`` are the test display's white match and colour
+    match exactly as :func:`mismatch` does them.
+    """
+
+    def __init__(self, reference, kind, ref_kind, observers, calibration, calibration_name, white_spectrum,
+                 white_cal, targets, rendering, reference_cal):
+        self.reference, self.kind, self.ref_kind = reference, kind, ref_kind
+        self.observers, self.calibration, self.calibration_name = observers, calibration, calibration_name
+        self.white_spectrum, self.white_cal = white_spectrum, white_cal
+        self.targets, self.rendering, self.reference_cal = targets, rendering, reference_cal
+
+    def matched(self, test: Display) -> Display:
+        """The test display white-calibrated to the reference white as the calibration observer sees it."""
+        X, Y, Z = self.white_cal.transpose("xyz").values  # one white: xy as xyz_to_xy computes it
+        total = X + Y + Z
+        return calibrate_white(test, self.calibration, white=(X / total, Y / total), luminance=float(Y))
+
+    def test_drives(self, test: Display, strategy: str = "min_norm", strategy_population=None):
+        """The test display's drive solution for every target (:func:`metasim.display.drive.drive_solution`)."""
+        strategy_args = {}
+        if strategy == "population":
+            population = self.observers if strategy_population is None else strategy_population
+            display = self.ref_kind == "display"
+            strategy_args = {"population": population, "reference": self.reference if display else self.rendering,
+                             "reference_white": None if display else self.white_spectrum}
+        return drive_solution(test, target=self.targets, observer=self.calibration, strategy=strategy, **strategy_args)
+
+
+def reference_side(reference, test: Display, observers, stimuli: xr.Dataset, *, calibration_observer="cie1931_2",
+                   object_white_luminance: float | None = None, designs: int | None = None) -> ReferenceSide:
+    """The test-independent half of :func:`mismatch` (see :class:`ReferenceSide`); ``test`` gives the
+    wavelength grid (and, for object references without ``object_white_luminance``, the luminance).
+    With ``designs``, the memory of a mismatch of that many designs is checked
+    (:func:`check_mismatch_memory`) as soon as the observers and stimuli are known, before the
+    reference is rendered."""
+    if not isinstance(test, Display):
+        raise MismatchError(f"test must be a Display, got {type(test).__name__}")
+    grid = test.wavelengths
+    stimuli = as_stimuli(stimuli, grid.values)
+    reference = resolve_reference(reference, grid.values)
+    kind = check_stimuli(stimuli)
+    if kind == "reflectance":
+        require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
+    obs = resolve_observers(observers, grid)
+    if designs is not None:
+        check_mismatch_memory(obs.sizes["observer"], stimuli.sizes.get("stimulus", 1), designs)
+    calibration, calibration_name = resolve_calibration_observer(calibration_observer, obs, grid)
+    white_spectrum, ref_kind = reference_white_spectrum(reference, stimuli, test, calibration, object_white_luminance)
+    white_cal = tristimulus(white_spectrum, calibration)
+    targets, rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
+    # what the reference shows to the calibration observer (the standard under the reference condition)
+    reference_cal = rendering.variable("reproduced") if ref_kind == "display" else targets.variable
+    side = ReferenceSide(reference if ref_kind == "display" else None, kind, ref_kind, obs, calibration,
+                         calibration_name, white_spectrum, white_cal, targets, rendering, reference_cal)
+    side.given_reference, side.stimuli = reference, stimuli
+    return side
+
+
 def check_mismatch_memory(observers: int, stimuli: int, designs: int = 1) -> None:
     """Refuse, before anything is allocated, a :func:`mismatch` whose estimated memory
     (:data:`MISMATCH_BYTES_PER_PAIR` per observer × stimulus × design) exceeds what the machine has
@@ -211,6 +274,7 @@ def check_mismatch_memory(observers: int, stimuli: int, designs: int = 1) -> Non
                    f"use at most about {largest_fitting(MISMATCH_BYTES_PER_PAIR):,} observer x stimulus x design pairs")
 
 
+@blas_single_threaded
 def mismatch(
     reference,
     test: Display,
@@ -291,37 +355,21 @@ def mismatch(
         raise MismatchError(f"test must be a Display, got {type(test).__name__}")
     if adapted_white not in ADAPTED_WHITES:
         raise MismatchError(f"adapted_white={adapted_white!r} is not known; allowed: {', '.join(ADAPTED_WHITES)}")
-    grid = test.wavelengths
-    stimuli = as_stimuli(stimuli, grid.values)
-    reference = resolve_reference(reference, grid.values)
-    kind = check_stimuli(stimuli)
-    if kind == "reflectance":
-        require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
-    obs = resolve_observers(observers, grid)
     designs = int(np.prod([test.spectra.sizes[d] for d in test.batch_dims])) if test.batch_dims else 1
-    check_mismatch_memory(obs.sizes["observer"], stimuli.sizes.get("stimulus", 1), designs)
-    calibration, calibration_name = resolve_calibration_observer(calibration_observer, obs, grid)
-    white_spectrum, ref_kind = reference_white_spectrum(reference, stimuli, test, calibration, object_white_luminance)
+    side = reference_side(reference, test, observers, stimuli, calibration_observer=calibration_observer,
+                          object_white_luminance=object_white_luminance, designs=designs)
+    reference, stimuli = side.given_reference, side.stimuli  # colour-science inputs converted
+    obs, calibration, ref_kind = side.observers, side.calibration, side.ref_kind
+    white_spectrum, ref_rendering, targets, reference_cal = (side.white_spectrum, side.rendering, side.targets,
+                                                             side.reference_cal)
+    ref_white_cal = side.white_cal
 
     if include_itp is None:
         transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
         include_itp = bool(transfers & {"pq", "hlg"})
-    ref_white_cal = tristimulus(white_spectrum, calibration)
     if match_white:
-        X, Y, Z = ref_white_cal.transpose("xyz").values  # one white: xy as xyz_to_xy computes it
-        total = X + Y + Z
-        test = calibrate_white(test, calibration, white=(X / total, Y / total), luminance=float(Y))
-
-    targets, ref_rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
-    # what the reference shows to the calibration observer (the standard under the reference condition)
-    reference_cal = ref_rendering.variable("reproduced") if ref_kind == "display" else targets.variable
-    population = obs if strategy_population is None else strategy_population
-    strategy_args = {}
-    if strategy == "population":
-        strategy_args = {"population": population,
-                         "reference": reference if ref_kind == "display" else ref_rendering,
-                         "reference_white": None if ref_kind == "display" else white_spectrum}
-    test_solution = drive_solution(test, target=targets, observer=calibration, strategy=strategy, **strategy_args)
+        test = side.matched(test)
+    test_solution = side.test_drives(test, strategy, strategy_population)
 
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
     core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
@@ -379,26 +427,32 @@ def mismatch(
     dims = {d for value in data.values() for d in value[0]}
     coords = coordinates(dims, [*sources, summary_coords], labels={"xyz": ("X", "Y", "Z"), "lab": LAB})
     out = xr.Dataset(data, coords=coords)
-    out.attrs = {
+    out.attrs = result_attrs(side, test.name, match_white, adapted_white, strategy)
+    return out
+
+
+def result_attrs(side: ReferenceSide, test_name: str, match_white: bool, adapted_white: str, strategy: str) -> dict:
+    """The attributes of a mismatch result (what was compared, how, with which observers)."""
+    reference, stimuli, obs = side.given_reference, side.stimuli, side.observers
+    return {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
-        "reference": reference.name if ref_kind == "display" else "objects under " + (
+        "reference": reference.name if side.ref_kind == "display" else "objects under " + (
             str(reference.name or "the given illuminant") if isinstance(reference, xr.DataArray)
             else str(stimuli.attrs.get("illuminant", "illuminant"))),
-        "reference_kind": ref_kind,
-        "test": test.name,
-        "calibration_observer": calibration_name,
+        "reference_kind": side.ref_kind,
+        "test": test_name,
+        "calibration_observer": side.calibration_name,
         "white_matched": bool(match_white),
         "adapted_white": f"{adapted_white} white as each observer sees it",
         "drive_strategy": strategy,
-        "stimuli": stimuli.attrs.get("description", kind),
-        "stimulus_kind": kind,
+        "stimuli": stimuli.attrs.get("description", side.kind),
+        "stimulus_kind": side.kind,
         "observer_model": str(obs.attrs.get("model", "standard observers")),
         "observer_seed": obs.attrs.get("seed", "none"),
         "observer_peak_shift_axis": str(obs.attrs.get("peak_shift_axis", "none (no individual deviations)")),
         "thresholds_source": "1, 2, 3 CIE 2000 units: common practice, no source",
         "metasim_version": __version__,
     }
-    return out
 
 
 def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
@@ -515,6 +569,6 @@ def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
     return delta_e_itp_values(xyz_to_ictcp_values(xyz_1), xyz_to_ictcp_values(xyz_2))
 
 
-__all__ = ["ADAPTED_WHITES", "mismatch", "check_mismatch_memory", "MISMATCH_BYTES_PER_PAIR",
-           "resolve_observers", "resolve_calibration_observer", "resolve_reference",
-           "reference_white_spectrum"]
+__all__ = ["ADAPTED_WHITES", "MISMATCH_BYTES_PER_PAIR", "ReferenceSide", "check_mismatch_memory", "mismatch",
+           "reference_side", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
+           "reference_white_spectrum", "result_attrs"]

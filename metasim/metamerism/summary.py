@@ -180,11 +180,32 @@ def _age_bands(ages, age_bands):
     return labels, counts, members
 
 
+def summary_attrs(weights: np.ndarray | None) -> dict[str, dict]:
+    """The attributes of the summary variables of :func:`summary_variables` (what each pools, with
+    which observer weights), by kind: ``by_stimulus``, ``by_observer``, ``by_age``,
+    ``observers_per_age_band``, ``share_beyond``, ``share_beyond_overall``. A sweep's summaries
+    carry the same (:mod:`metasim.sweep.summary`)."""
+    pooled = {"includes_white": "no", "observer_weights": weights_note(weights)}
+    return {
+        "by_stimulus": {"units": "1", "long_name": "statistics over observers, per stimulus",
+                        "pooled_over": "observers (per stimulus)", **pooled},
+        "by_observer": {"units": "1", "long_name": "statistics over stimuli, per observer",
+                        "pooled_over": "stimuli (per observer)", "includes_white": "no"},
+        "by_age": {"units": "1", "long_name": "statistics over all observer x stimulus pairs in each age band",
+                   "pooled_over": "observer x stimulus pairs (per age band)", **pooled},
+        "observers_per_age_band": {"units": "1", "long_name": "observers in each age band"},
+        "share_beyond": {"units": "1", "long_name": "share of observers beyond each threshold",
+                         "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
+                         **pooled},
+        "share_beyond_overall": {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold",
+                                 "pooled_over": "observer x stimulus pairs", **pooled},
+    }
+
+
 def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=DECADES,
                       thresholds=THRESHOLDS, name: str = "delta_e") -> tuple[dict, xr.Coordinates]:
     """The summaries of :func:`summarise` from numpy values (observer, stimulus, *rest): a dict of
     (dims, values, attrs) and the Coordinates of the summary dims (statistic, age_band, threshold)."""
-    statistic_attrs = {"units": "1"}
     out = {}
     t = np.asarray(check_thresholds(thresholds), dtype=float)
     # the common case (equal weights, no NaN, observer × stimulus only) goes through one compiled
@@ -203,13 +224,9 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
         by_stimulus = statistics_along(values, weights, 0)
         share = share_beyond(values, t, weights, 0)
         by_observer = statistics_along(values, None, 1)
-    pooled = {"includes_white": "no", "observer_weights": weights_note(weights)}
-    out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, {
-        **statistic_attrs, "long_name": "statistics over observers, per stimulus",
-        "pooled_over": "observers (per stimulus)", **pooled})
-    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer, {
-        **statistic_attrs, "long_name": "statistics over stimuli, per observer", "pooled_over": "stimuli (per observer)",
-        "includes_white": "no"})
+    attrs = summary_attrs(weights)
+    out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, attrs["by_stimulus"])
+    out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer, attrs["by_observer"])
     fixed = [_label_coordinate("statistic", STATISTICS)]
     if bands:
         band_labels, counts, members = bands
@@ -225,20 +242,12 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
         filled = [i for i, count in enumerate(counts) if count]
         if fast and filled:
             by_age[:, filled] = by_segment
-        out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, {
-            **statistic_attrs, "long_name": "statistics over all observer x stimulus pairs in each age band",
-            "pooled_over": "observer x stimulus pairs (per age band)", **pooled})
-        out["observers_per_age_band"] = ("age_band", np.asarray(counts),
-                                         {"units": "1", "long_name": "observers in each age band"})
+        out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, attrs["by_age"])
+        out["observers_per_age_band"] = ("age_band", np.asarray(counts), attrs["observers_per_age_band"])
         fixed.append(_label_coordinate("age_band", tuple(band_labels)))
-    out["share_beyond"] = (("threshold", "stimulus", *rest), share,
-                           {"units": "1", "long_name": "share of observers beyond each threshold",
-                            "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
-                            **pooled})
+    out["share_beyond"] = (("threshold", "stimulus", *rest), share, attrs["share_beyond"])
     # every stimulus weighs the same, so the share of all pairs is the mean of the stimuli's shares
-    out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1),
-                                   {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold",
-                                    "pooled_over": "observer x stimulus pairs", **pooled})
+    out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1), attrs["share_beyond_overall"])
     threshold = _label_coordinate("threshold", tuple(t.tolist()))
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}
@@ -249,4 +258,4 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
 
 
 __all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels", "summarise",
-           "summary_variables", "observer_weights"]
+           "summary_attrs", "summary_variables", "observer_weights"]

@@ -11,7 +11,6 @@ Layer: sweep (imports spectra, emitters, display).
 
 from __future__ import annotations
 
-import itertools
 import json
 import math
 from typing import Mapping, Sequence
@@ -77,7 +76,7 @@ def _base_spectra(base) -> tuple[xr.DataArray | None, dict]:
 
 def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, width_nm=1.0, *,
                 base=None, radiance: float = 1.0, profile: str = "gaussian", wavelengths=None,
-                allow_outside_grid: bool = False) -> xr.DataArray:
+                allow_outside_grid: bool = False, lazy: bool = False) -> "xr.DataArray | DesignGrid":
     """Every combination of primary peaks and widths, as one ``design × primary × wavelength`` array.
 
     Parameters
@@ -103,13 +102,19 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     allow_outside_grid : bool
         Accept, with a warning, varied primaries that lose more than 1 % of their energy outside
         the grid (an error otherwise, naming the peak; :func:`metasim.spectra.check_energy_on_grid`).
+    lazy : bool
+        Return the grid as its spec (:class:`DesignGrid`): each varied primary's distinct spectra
+        once, and any block of designs made on demand (:meth:`DesignGrid.block`). Sweeps take it
+        like the array and make one chunk of designs at a time, so a grid of a million designs
+        never exists in memory at once.
 
     Returns
     -------
-    DataArray
+    DataArray or DesignGrid
         ``design`` (0 … n−1) × ``primary`` × ``wavelength``; coordinates ``peak_nm_<label>`` and the
         width axes on ``design``; attributes ``units``, ``long_name``, ``model``, ``parameters`` and,
-        with a Display base, ``display_settings``.
+        with a Display base, ``display_settings``. With ``lazy=True`` the same as a
+        :class:`DesignGrid` (``grid.block(0, n)`` is that array).
 
     Examples
     --------
@@ -119,71 +124,164 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     >>> designs = metasim.design_grid("laser", {"R": [630, 640, 650]}, 1.0, base=base)
     >>> dict(designs.sizes), designs["peak_nm_R"].values.tolist()
     ({'design': 3, 'primary': 3, 'wavelength': 441}, [630.0, 640.0, 650.0])
+    >>> lazy = metasim.design_grid("laser", {"R": [630, 640, 650]}, 1.0, base=base, lazy=True)
+    >>> lazy.sizes["design"], lazy.block(1, 3)["peak_nm_R"].values.tolist()
+    (3, [640.0, 650.0])
     """
-    if kind not in GRID_KINDS:
-        raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
-    if not isinstance(peaks_nm, Mapping) or not peaks_nm:
-        raise SweepError("peaks_nm must map at least one primary label to peak wavelengths, e.g. {'R': [620, 640]}")
-    labels = [str(k) for k in peaks_nm]
-    axes = [(f"peak_nm_{label}", _values(f"peaks_nm[{label!r}]", peaks_nm[label])) for label in labels]
-    if isinstance(width_nm, Mapping):
-        missing = [label for label in labels if label not in width_nm]
-        extra = [str(k) for k in width_nm if str(k) not in labels]
-        if missing or extra:
-            raise SweepError(f"width_nm has labels {list(map(str, width_nm))}; give exactly the varied primaries {labels}")
-        axes += [(f"width_nm_{label}", _values(f"width_nm[{label!r}]", width_nm[label])) for label in labels]
-        width_of = {label: f"width_nm_{label}" for label in labels}
-    else:
-        axes.append(("width_nm", _values("width_nm", width_nm)))
-        width_of = {label: "width_nm" for label in labels}
-    count = math.prod(len(values) for _, values in axes)
-    if count > MAX_DESIGNS:
-        raise SweepError(f"the grid has {count} designs; allowed: at most {MAX_DESIGNS} per sweep")
-    rows = np.array(list(itertools.product(*[values for _, values in axes])), dtype=float).reshape(count, len(axes))
-    column = {name: rows[:, i] for i, (name, _) in enumerate(axes)}
+    grid = DesignGrid(kind, peaks_nm, width_nm, base=base, radiance=radiance, profile=profile,
+                      wavelengths=wavelengths, allow_outside_grid=allow_outside_grid)
+    return grid if lazy else grid.block(0, grid.count)
 
-    fixed, settings = _base_spectra(base)
-    if wavelengths is None:
-        wavelengths = fixed.wavelength.values if fixed is not None else default_grid().values
-    wl = np.asarray(wavelengths, dtype=float)
-    if fixed is not None and (fixed.sizes["wavelength"] != wl.size or not np.allclose(fixed.wavelength.values, wl)):
-        raise SweepError("wavelengths differ from the base design's grid; give the base's grid or none")
-    width_key = GRID_KINDS[kind]
-    varied = {}
-    for label in labels:
-        pairs = np.stack([column[f"peak_nm_{label}"], column[width_of[label]]], axis=1)
-        unique, inverse = np.unique(pairs, axis=0, return_inverse=True)
+
+class DesignGrid:
+    """A Cartesian design grid kept as its spec: the axes, and each varied primary's distinct spectra.
+
+    Made by :func:`design_grid` with ``lazy=True``. Memory does not grow with the number of
+    designs: :meth:`block` makes the ``design × primary × wavelength`` array of any range of
+    designs (design ``i`` is the ``i``-th combination of :func:`itertools.product` over the axes,
+    the last axis fastest), with the same values and coordinates as the matching slice of the full
+    array. ``sizes``, ``dims``, ``attrs`` (mutable: ``display_settings`` may be set),
+    ``coordinate_names`` describe the grid without making it.
+    """
+
+    dims = ("design", "primary", "wavelength")
+
+    def __init__(self, kind: str, peaks_nm, width_nm=1.0, *, base=None, radiance: float = 1.0,
+                 profile: str = "gaussian", wavelengths=None, allow_outside_grid: bool = False):
+        if kind not in GRID_KINDS:
+            raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+        if not isinstance(peaks_nm, Mapping) or not peaks_nm:
+            raise SweepError("peaks_nm must map at least one primary label to peak wavelengths, e.g. {'R': [620, 640]}")
+        labels = [str(k) for k in peaks_nm]
+        axes = [(f"peak_nm_{label}", _values(f"peaks_nm[{label!r}]", peaks_nm[label])) for label in labels]
+        if isinstance(width_nm, Mapping):
+            missing = [label for label in labels if label not in width_nm]
+            extra = [str(k) for k in width_nm if str(k) not in labels]
+            if missing or extra:
+                raise SweepError(f"width_nm has labels {list(map(str, width_nm))}; give exactly the varied primaries {labels}")
+            axes += [(f"width_nm_{label}", _values(f"width_nm[{label!r}]", width_nm[label])) for label in labels]
+            width_of = {label: f"width_nm_{label}" for label in labels}
+        else:
+            axes.append(("width_nm", _values("width_nm", width_nm)))
+            width_of = {label: "width_nm" for label in labels}
+        count = math.prod(len(values) for _, values in axes)
+        if count > MAX_DESIGNS:
+            raise SweepError(f"the grid has {count} designs; allowed: at most {MAX_DESIGNS} per sweep")
+        fixed, settings = _base_spectra(base)
+        if wavelengths is None:
+            wavelengths = fixed.wavelength.values if fixed is not None else default_grid().values
+        wl = np.asarray(wavelengths, dtype=float)
+        if fixed is not None and (fixed.sizes["wavelength"] != wl.size or not np.allclose(fixed.wavelength.values, wl)):
+            raise SweepError("wavelengths differ from the base design's grid; give the base's grid or none")
+        width_key = GRID_KINDS[kind]
+        self.count, self.axes = count, [(name, np.asarray(values, dtype=float)) for name, values in axes]
+        self.labels, self.width_of, self.wavelengths = labels, width_of, wl
+        # each varied primary's distinct (peak, width) pairs, sorted, made in one emitter call
+        self._tables = {}
         arguments = {"radiance": radiance, "allow_outside_grid": allow_outside_grid,
                      **({"profile": profile} if kind == "laser" else {})}
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}[kind]
-        spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"primary {label} #{i}" for i in range(len(unique))],
-                           **arguments)
-        varied[label] = spectra.transpose("primary", "wavelength").values[np.asarray(inverse).reshape(-1)]
-    order = [str(p) for p in fixed.primary.values] if fixed is not None else []
-    order += [label for label in labels if label not in order]
-    values = np.empty((count, len(order), wl.size))
-    for j, label in enumerate(order):
-        values[:, j] = varied[label] if label in varied else fixed.sel(primary=label).values[None, :]
-    coords = {"design": ("design", np.arange(count), {"units": "1", "long_name": "design index"}),
-              "primary": order, "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))}
-    for name, _ in axes:
-        what = "peak wavelength of primary " + name.rsplit("_", 1)[1] if name.startswith("peak") else (
-            f"{width_key.replace('_nm', '').replace('fwhm', 'FWHM')} of "
-            + ("the varied primaries" if name == "width_nm" else "primary " + name.rsplit("_", 1)[1]))
-        coords[name] = ("design", column[name], {"units": "nm", "long_name": what})
-    parameters = {"kind": kind, "peaks_nm": {k: _values(k, v) for k, v in peaks_nm.items()},
-                  "width_nm": ({str(k): _values(k, v) for k, v in width_nm.items()} if isinstance(width_nm, Mapping)
-                               else _values("width_nm", width_nm)),
-                  "radiance": float(radiance), "profile": profile,
-                  "fixed_primaries": [p for p in order if p not in labels]}
-    attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
-             "model": f"design grid: {kind} primaries {', '.join(labels)} varied (Cartesian product)",
-             "parameters": json.dumps(parameters)}
-    if settings:
-        attrs["display_settings"] = settings
-    if isinstance(base, Display):
-        attrs["base_design"] = base.name
-    return xr.DataArray(values, dims=("design", "primary", "wavelength"), coords=coords, attrs=attrs, name="spectra")
+        axis = dict(self.axes)
+        for label in labels:
+            peaks, widths = np.unique(axis[f"peak_nm_{label}"]), np.unique(axis[width_of[label]])
+            unique = np.stack([np.repeat(peaks, widths.size), np.tile(widths, peaks.size)], axis=1)
+            spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"primary {label} #{i}" for i in range(len(unique))],
+                               **arguments)
+            self._tables[label] = (peaks, widths, np.ascontiguousarray(spectra.transpose("primary", "wavelength").values))
+        order = [str(p) for p in fixed.primary.values] if fixed is not None else []
+        order += [label for label in labels if label not in order]
+        self.primaries = order
+        self._fixed = {label: fixed.sel(primary=label).values for label in order if label not in labels}
+        self._coord_attrs = {}
+        for name, _ in axes:
+            what = "peak wavelength of primary " + name.rsplit("_", 1)[1] if name.startswith("peak") else (
+                f"{width_key.replace('_nm', '').replace('fwhm', 'FWHM')} of "
+                + ("the varied primaries" if name == "width_nm" else "primary " + name.rsplit("_", 1)[1]))
+            self._coord_attrs[name] = {"units": "nm", "long_name": what}
+        parameters = {"kind": kind, "peaks_nm": {k: _values(k, v) for k, v in peaks_nm.items()},
+                      "width_nm": ({str(k): _values(k, v) for k, v in width_nm.items()} if isinstance(width_nm, Mapping)
+                                   else _values("width_nm", width_nm)),
+                      "radiance": float(radiance), "profile": profile,
+                      "fixed_primaries": [p for p in order if p not in labels]}
+        self.attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
+                      "model": f"design grid: {kind} primaries {', '.join(labels)} varied (Cartesian product)",
+                      "parameters": json.dumps(parameters)}
+        if settings:
+            self.attrs["display_settings"] = settings
+        if isinstance(base, Display):
+            self.attrs["base_design"] = base.name
+
+    @property
+    def sizes(self) -> dict:
+        return {"design": self.count, "primary": len(self.primaries), "wavelength": self.wavelengths.size}
+
+    @property
+    def coordinate_names(self) -> list[str]:
+        """The grid axes: the ``design`` coordinates of every block."""
+        return [name for name, _ in self.axes]
+
+    def parameters(self, start: int, stop: int) -> dict[str, np.ndarray]:
+        """Each axis's value for designs ``start … stop − 1`` (mixed radix, the last axis fastest)."""
+        index = np.arange(start, stop, dtype=np.int64)
+        out = {}
+        for name, values in reversed(self.axes):
+            out[name] = values[index % values.size]
+            index = index // values.size
+        return {name: out[name] for name, _ in self.axes}
+
+    def spectra(self, start: int, stop: int) -> np.ndarray:
+        """The spectra of designs ``start … stop − 1``: (designs, primary, wavelength), W·sr⁻¹·m⁻²·nm⁻¹."""
+        self._check_range(start, stop)
+        columns = self.parameters(start, stop)
+        values = np.empty((stop - start, len(self.primaries), self.wavelengths.size))
+        for j, label in enumerate(self.primaries):
+            if label in self._fixed:
+                values[:, j] = self._fixed[label][None, :]
+                continue
+            peaks, widths, table = self._tables[label]
+            row = np.searchsorted(peaks, columns[f"peak_nm_{label}"]) * widths.size + \
+                np.searchsorted(widths, columns[self.width_of[label]])
+            values[:, j] = table[row]
+        return values
+
+    def block(self, start: int, stop: int) -> xr.DataArray:
+        """Designs ``start … stop − 1`` as the ``design × primary × wavelength`` DataArray of
+        :func:`design_grid` (equal to the slice of the full array)."""
+        values = self.spectra(start, stop)
+        coords = {"design": ("design", np.arange(start, stop), {"units": "1", "long_name": "design index"}),
+                  "primary": self.primaries, "wavelength": ("wavelength", self.wavelengths, dict(WAVELENGTH_ATTRS))}
+        for name, column in self.parameters(start, stop).items():
+            coords[name] = ("design", column, dict(self._coord_attrs[name]))
+        return xr.DataArray(values, dims=self.dims, coords=coords, attrs=dict(self.attrs), name="spectra")
+
+    def _check_range(self, start: int, stop: int) -> None:
+        if not (0 <= start <= stop <= self.count):
+            raise SweepError(f"designs {start}-{stop} are outside the grid; allowed: 0 <= start <= stop <= {self.count}")
+
+    def hash_parts(self, block_size: int = 256):
+        """What :func:`metasim.sweep.store.spec_hash` reads of the full array, without making it:
+        (name, dims, shape, blocks of values, attributes) per variable, in name order, then the
+        Dataset attributes (none). The spectra come ``block_size`` designs at a time."""
+        n, n_p, n_w = self.count, len(self.primaries), self.wavelengths.size
+        full = self.block(0, min(1, n))  # the coordinates' attributes and dims as the array has them
+        ranges = [(a, min(a + block_size, n)) for a in range(0, n, block_size)]
+        parts = {
+            "design": (("design",), (n,), (np.arange(a, b) for a, b in ranges), full["design"].attrs),
+            "primary": (("primary",), (n_p,), iter([np.asarray(self.primaries)]), full["primary"].attrs),
+            "spectra": (self.dims, (n, n_p, n_w), (self.spectra(a, b) for a, b in ranges), dict(self.attrs)),
+            "wavelength": (("wavelength",), (n_w,), iter([self.wavelengths]), full["wavelength"].attrs),
+        }
+        def column(name):
+            return (self.parameters(a, b)[name] for a, b in ranges)
+
+        for name in self.coordinate_names:
+            parts[name] = (("design",), (n,), column(name), dict(self._coord_attrs[name]))
+        variables = [(name, *parts[name]) for name in sorted(parts)]
+        return variables, {}
+
+    def __repr__(self) -> str:
+        return (f"DesignGrid({self.count} designs, primaries={self.primaries}, "
+                f"axes={[f'{name} ({values.size})' for name, values in self.axes]})")
 
 
 def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
@@ -210,4 +308,4 @@ def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
     return out.rename("spectra")
 
 
-__all__ = ["GRID_KINDS", "MAX_DESIGNS", "DEFAULT_DISPLAY_SETTINGS", "design_grid", "design_list", "display_settings_of"]
+__all__ = ["GRID_KINDS", "MAX_DESIGNS", "DEFAULT_DISPLAY_SETTINGS", "DesignGrid", "design_grid", "design_list", "display_settings_of"]

@@ -1,15 +1,18 @@
 """Running a sweep: designs in chunks along ``design``, each chunk written to the store as it completes.
 
-Each chunk is one :func:`metasim.sweep.summary.design_summaries` call (one :func:`metasim.mismatch`
-call on the chunk's designs stacked along ``design``, plus their gamut numbers), reduced to
-per-design summaries, so memory is bounded by the chunk size, not the sweep size. Only the process
-that called :func:`run_sweep` writes files: workers return the (small) summaries.
+A chunk (the unit written, resumed and reported) is evaluated in blocks of designs (the unit a
+worker computes at once): each block is one pass of :func:`metasim.sweep.summary.summary_parts`
+(the mismatch procedure of :func:`metasim.mismatch` against a reference prepared once per sweep,
+plus the gamut numbers), reduced at once to per-design summaries, so memory is bounded by the
+block size, not the sweep size. Designs of a lazy grid (:class:`~metasim.sweep.grid.DesignGrid`)
+are made block by block where the block runs. Only the process that called :func:`run_sweep`
+writes files: workers return the (small) summaries, joined into one Dataset per chunk.
 
 Schedulers
 ----------
-``"serial"``            one chunk after another in this process.
+``"serial"``            one block after another in this process.
 ``"threads"`` (default) a thread pool in this process (numpy and the compiled kernels release the
-                        GIL); the first pending chunk runs alone first, so compilation and input
+                        GIL); the first pending block runs alone first, so compilation and input
                         errors surface before the pool starts.
 ``"dask-threads"``      an in-process ``dask.distributed`` cluster of threads (mainly for trying
                         the distributed path on one machine).
@@ -43,7 +46,8 @@ from metasim.spectra.convert import is_colour_object
 from metasim.metamerism.summary import THRESHOLDS, age_band_edges, check_thresholds
 from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES
 from metasim.statistics.resampling import check_interval_settings
-from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
+from metasim.sweep.evaluate import prepare
+from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS, DesignGrid
 from metasim.sweep.store import (
     STORE_FORMAT,
     STORE_FORMAT_VERSION,
@@ -51,22 +55,26 @@ from metasim.sweep.store import (
     chunk_ranges,
     combine_sweep,
     open_store,
+    read_manifest,
     spec_hash,
     store_lock,
     verified_chunks,
     write_chunk,
 )
-from metasim.sweep.summary import design_summaries
+from metasim.sweep.summary import summary_dataset, summary_parts
 
 SCHEDULERS = ("serial", "threads", "dask-threads")
-#: observer × stimulus × design triples per chunk when no chunk size is given (bounds a chunk's memory)
-PAIRS_PER_CHUNK = 2_000_000
-MAX_AUTO_CHUNK = 64
+#: observer × stimulus × design triples per chunk file when no chunk size is given
+PAIRS_PER_CHUNK = 32_000_000
+#: at most this many designs per chunk file when no chunk size is given
+MAX_AUTO_CHUNK = 1024
+#: observer × stimulus × design triples per block, the unit a worker evaluates at once (bounds memory)
+PAIRS_PER_BLOCK = 4_000_000
 _SERIAL_KERNELS = threading.Lock()
 
 
 def _settings(designs, display_settings) -> dict:
-    given = designs.attrs.get("display_settings", {}) if isinstance(designs, xr.DataArray) else {}
+    given = designs.attrs.get("display_settings", {}) if isinstance(designs, (xr.DataArray, DesignGrid)) else {}
     if isinstance(given, str):
         try:
             given = json.loads(given)
@@ -80,6 +88,8 @@ def _settings(designs, display_settings) -> dict:
 
 
 def _check_designs(designs) -> None:
+    if isinstance(designs, DesignGrid):
+        return
     if isinstance(designs, Display):
         if designs.batch_dims != ["design"]:
             raise SweepError(f"a Display of designs needs exactly one 'design' dim, got {designs.batch_dims}")
@@ -105,19 +115,46 @@ def chunk_display(designs, settings: dict) -> Display:
                            luminance=settings["peak_luminance"])
 
 
-def evaluate_chunk(designs, reference, observers, stimuli, options: dict) -> xr.Dataset:
-    """Per-design summaries of one chunk (runs on workers; pure: writes nothing)."""
+def evaluate_chunk(designs, reference, observers, stimuli, options: dict, context=None) -> xr.Dataset:
+    """Per-design summaries of one block of designs as a Dataset (pure: writes nothing).
+
+    ``designs``: a ``design × primary × wavelength`` array, a Display Dataset, or
+    ``(grid, start, stop)`` for a :class:`~metasim.sweep.grid.DesignGrid` (made here);
+    ``context``: the reference prepared once (:func:`metasim.sweep.evaluate.prepare`), made here if
+    not given.
+    """
+    if context is None:
+        display = _block_display(designs, options)
+        context = prepare(reference, display, observers, stimuli, **options["mismatch"])
+    return summary_dataset(context, [evaluate_block(designs, options, context)])
+
+
+def evaluate_block(designs, options: dict, context) -> dict:
+    """:func:`metasim.sweep.summary.summary_parts` of one block of designs (runs on workers)."""
+    if isinstance(designs, tuple):
+        grid, start, stop = designs
+        designs = grid.block(start, stop)
     display = chunk_display(designs, options["display_settings"])
+    raw = None  # spectra before calibration: their distinct primaries are integrated once
+    if isinstance(designs, xr.DataArray):
+        raw = designs.transpose("design", "primary", "wavelength").values
     lock = _SERIAL_KERNELS if options.get("serialise_kernels") else None
     if lock is not None:
         lock.acquire()
     try:
-        return design_summaries(display, reference, observers, stimuli, lab_volume=options["lab_volume"],
-                                per_stimulus=options.get("per_stimulus", False), intervals=options.get("intervals"),
-                                **options["mismatch"])
+        return summary_parts(context, display, lab_volume=options["lab_volume"],
+                             per_stimulus=options.get("per_stimulus", False), intervals=options.get("intervals"),
+                             raw=raw)
     finally:
         if lock is not None:
             lock.release()
+
+
+def _block_display(designs, options: dict) -> Display:
+    if isinstance(designs, tuple):
+        grid, start, stop = designs
+        designs = grid.block(start, stop)
+    return chunk_display(designs, options["display_settings"])
 
 
 def _kernels_need_serialising() -> bool:
@@ -132,6 +169,21 @@ def _kernels_need_serialising() -> bool:
 
 def _auto_chunk_size(count: int, pairs: int) -> int:
     return int(max(1, min(MAX_AUTO_CHUNK, count, PAIRS_PER_CHUNK // max(pairs, 1))))
+
+
+def _block_size(chunk_size: int, pairs: int) -> int:
+    return int(max(1, min(chunk_size, PAIRS_PER_BLOCK // max(pairs, 1))))
+
+
+def _stored_chunk_size(store, digest: str):
+    """The chunk size of an existing store of the same sweep (so that a re-run resumes), else None."""
+    try:
+        manifest = read_manifest(store)
+    except SweepError:
+        return None
+    if manifest is not None and manifest.get("spec_hash") == digest:
+        return manifest.get("chunk_size")
+    return None
 
 
 def _describe(item) -> str:
@@ -164,7 +216,9 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         Folder of the chunk files, ``manifest.json`` and the combined ``sweep.nc``. A store of the
         same spec resumes (finished chunks are skipped); one of another spec is refused.
     chunk_size : int, optional
-        Designs per chunk (default: about 2 million observer × stimulus × design triples, at most 64).
+        Designs per chunk file, the unit written and resumed (default: the chunk size of an
+        existing store of the same sweep, else about 32 million observer × stimulus × design triples,
+        at most 1,024 designs). Workers evaluate a chunk in blocks of about 2 million triples.
     scheduler : str or distributed.Client
         ``"serial"``, ``"threads"`` (default), ``"dask-threads"``, a ``scheme://host:port`` dask
         scheduler address, or a ``distributed.Client`` (see the module docstring).
@@ -233,13 +287,15 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
                          f"these stimuli are {stimuli.attrs.get('kind', 'unknown')!r}")
     settings = _settings(designs, display_settings) if not isinstance(designs, Display) else {}
     count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
-    grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
+    if isinstance(designs, DesignGrid):
+        grid = designs.wavelengths
+    else:
+        grid = designs.wavelengths.values if isinstance(designs, Display) else designs.wavelength.values
     observers = check_observers(resolve_observers(observers, grid), where="observers", wavelengths=grid)
     # colour-science inputs converted once, before the spec hash (metasim.spectra.convert)
     stimuli, reference = as_stimuli(stimuli, grid), resolve_reference(reference, grid)
     if is_colour_object(calibration_observer):
         calibration_observer = as_observer(calibration_observer, grid)
-    full = designs if isinstance(designs, Display) else chunk_display(designs, settings)  # checks every design now
     thresholds = check_thresholds(thresholds)
     mismatch_options = {"calibration_observer": calibration_observer, "strategy": strategy, "thresholds": thresholds}
     if age_bands is not None:
@@ -247,12 +303,12 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
             age_band_edges(age_bands, observers.coords.get("age_years"))
         mismatch_options["age_bands"] = tuple(age_bands)
     if isinstance(reference, str) and reference == "objects":  # one object white for every chunk
-        mismatch_options["object_white_luminance"] = float(full.peak_luminance.max())
-    if chunk_size is None:
-        chunk_size = _auto_chunk_size(count, observers.sizes["observer"] * stimuli.sizes.get("stimulus", 1))
-    if isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer)) or chunk_size < 1:
+        # every design's white is calibrated to the stated peak luminance
+        peak = designs.peak_luminance.max() if isinstance(designs, Display) else settings["peak_luminance"]
+        mismatch_options["object_white_luminance"] = float(peak)
+    if chunk_size is not None and (isinstance(chunk_size, bool) or not isinstance(chunk_size, (int, np.integer))
+                                   or chunk_size < 1):
         raise SweepError(f"chunk_size={chunk_size!r} is not allowed; need a whole number >= 1")
-    chunk_size = int(chunk_size)
     interval_options = None
     if intervals:
         resamples = DEFAULT_RESAMPLES if resamples is None else resamples
@@ -264,9 +320,16 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
                        {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer,
                        *(["per stimulus"] if per_stimulus else []),  # stores without it keep their hash
                        *([f"intervals {json.dumps(interval_options, sort_keys=True)}"] if interval_options else []))
+    pairs = observers.sizes["observer"] * stimuli.sizes.get("stimulus", 1)
+    if chunk_size is None:  # an existing store of this sweep keeps its chunks; else about 1,000 designs a chunk
+        chunk_size = (0 if replace else _stored_chunk_size(store, digest)) or _auto_chunk_size(count, pairs)
+    chunk_size = int(chunk_size)
     ranges = chunk_ranges(count, chunk_size)
-    coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
-              if v.dims == ("design",) and c != "design"]
+    if isinstance(designs, DesignGrid):
+        coords = designs.coordinate_names
+    else:
+        coords = [c for c, v in (designs.spectra if isinstance(designs, Display) else designs).coords.items()
+                  if v.dims == ("design",) and c != "design"]
     manifest = {
         "format": STORE_FORMAT, "format_version": STORE_FORMAT_VERSION, "spec_hash": digest, "chunk_size": chunk_size,
         "design_count": count,
@@ -301,12 +364,13 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
 
     with store_lock(store, wait=wait, on_wait=waiting):  # one writer at a time
         return _fill_store(store, manifest, replace, ranges, count, report, designs, scheduler, reference, observers,
-                           stimuli, options, workers)
+                           stimuli, options, workers, _block_size(chunk_size, pairs))
 
 
 def _fill_store(store, manifest, replace, ranges, count, report, designs, scheduler, reference, observers, stimuli,
-                options, workers) -> xr.Dataset:
-    """Under the store's lock: open or resume it, compute the pending chunks, verify, combine."""
+                options, workers, size) -> xr.Dataset:
+    """Under the store's lock: open or resume it, compute the pending chunks in blocks of ``size``
+    designs, verify, combine."""
     manifest = open_store(store, manifest, replace=replace)
     done = verified_chunks(store, manifest)
     for index in sorted(done):
@@ -314,66 +378,87 @@ def _fill_store(store, manifest, replace, ranges, count, report, designs, schedu
         report("skipped", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) already in the store")
     pending = [i for i in range(len(ranges)) if i not in done]
 
-    def block(index: int):
-        a, b = ranges[index]
+    def designs_of(a: int, b: int):
+        if isinstance(designs, DesignGrid):
+            return designs, a, b  # made where the block runs
         if isinstance(designs, Display):
             return designs.to_dataset().isel(design=slice(a, b))
         return designs.isel(design=slice(a, b))
 
-    def finish(index: int, summary: xr.Dataset) -> None:
+    waiting = {}
+
+    def finish(block: tuple, parts: dict) -> None:
+        index = block[0]
+        waiting[index][1].append((block[1], parts))
+        if len(waiting[index][1]) < waiting[index][0]:
+            return
+        summary = summary_dataset(context, [part for _, part in sorted(waiting.pop(index)[1], key=lambda item: item[0])])
         path = write_chunk(store, manifest, index, summary)
         a, b = ranges[index]
         p95 = summary["delta_e_2000_overall"].sel(statistic="p95").values
         report("computed", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) written to {Path(path).name}; "
                f"95th percentile {np.nanmin(p95):.2f}-{np.nanmax(p95):.2f} CIE 2000 units")
 
-    _execute(scheduler, pending, block, finish, reference, observers, stimuli, options, workers)
-    again = sorted(set(range(len(ranges))) - verified_chunks(store, manifest))  # checked again before combining
-    _execute(scheduler, again, block, finish, reference, observers, stimuli, options, workers)
+    context = None
+
+    def compute(chunks) -> None:
+        nonlocal context
+        blocks = [(index, a, min(a + size, ranges[index][1])) for index in chunks
+                  for a in range(ranges[index][0], ranges[index][1], size)]
+        for index in chunks:
+            waiting[index] = (-(-(ranges[index][1] - ranges[index][0]) // size), [])
+        if not blocks:
+            return
+        if context is None:  # the reference side, rendered once for every block (the grid checked on one design)
+            a = blocks[0][1]
+            context = prepare(reference, _block_display(designs_of(a, a + 1), options), observers, stimuli,
+                              **options["mismatch"])
+        _execute(scheduler, blocks, designs_of, finish, options, workers, context)
+
+    compute(pending)
+    compute(sorted(set(range(len(ranges))) - verified_chunks(store, manifest)))  # checked again before combining
     combined = combine_sweep(store)
     report("combined", None, f"combined {count} designs into {Path(store) / 'sweep.nc'}")
     return combined
 
 
-def _run_chunk(index, block, reference, observers, stimuli, options):
+def _run_block(block, designs_of, options, context):
+    index, a, b = block
     try:
-        return evaluate_chunk(block(index), reference, observers, stimuli, options)
+        return evaluate_block(designs_of(a, b), options, context)
     except SweepError:
         raise
     except MetasimError as exc:
-        raise SweepError(f"chunk {index}: {exc}") from exc
+        raise SweepError(f"chunk {index} (designs {a}-{b - 1}): {exc}") from exc
 
 
-def _execute(scheduler, pending, block, finish, reference, observers, stimuli, options, workers) -> None:
-    if not pending:
-        return
+def _execute(scheduler, blocks, designs_of, finish, options, workers, context) -> None:
     if isinstance(scheduler, str) and scheduler in ("serial", "threads"):
-        first, rest = pending[0], pending[1:]
-        finish(first, _run_chunk(first, block, reference, observers, stimuli, options))
+        first, rest = blocks[0], blocks[1:]
+        finish(first, _run_block(first, designs_of, options, context))
         if scheduler == "serial" or not rest:
-            for index in rest:
-                finish(index, _run_chunk(index, block, reference, observers, stimuli, options))
+            for block in rest:
+                finish(block, _run_block(block, designs_of, options, context))
             return
         options = {**options, "serialise_kernels": _kernels_need_serialising()}
-        _threads(rest, block, finish, reference, observers, stimuli, options, workers)
+        _threads(rest, designs_of, finish, options, workers, context)
         return
-    _distributed(scheduler, pending, block, finish, reference, observers, stimuli, options, workers)
+    _distributed(scheduler, blocks, designs_of, finish, options, workers, context)
 
 
-def _threads(pending, block, finish, reference, observers, stimuli, options, workers) -> None:
+def _threads(blocks, designs_of, finish, options, workers, context) -> None:
     size = max(1, int(workers or os.cpu_count() or 1))
     pool = ThreadPoolExecutor(max_workers=size, thread_name_prefix="metasim-sweep")
-    queue = list(pending)
+    queue = list(blocks)
     running = {}
     try:
         while queue or running:
-            while queue and len(running) < size:  # submit lazily: at most `size` chunks in memory at once
-                index = queue.pop(0)
-                running[pool.submit(_run_chunk, index, block, reference, observers, stimuli, options)] = index
+            while queue and len(running) < size:  # submit lazily: at most `size` blocks in memory at once
+                block = queue.pop(0)
+                running[pool.submit(_run_block, block, designs_of, options, context)] = block
             finished, _ = wait(list(running), return_when=FIRST_COMPLETED)
             for future in finished:
-                index = running.pop(future)
-                finish(index, future.result())
+                finish(running.pop(future), future.result())
     finally:
         pool.shutdown(wait=True, cancel_futures=True)
 
@@ -409,20 +494,37 @@ def _client(scheduler, workers):
         raise SweepError(f"scheduler {scheduler!r}: cannot connect ({exc}); start one with 'dask scheduler'") from None
 
 
-def _distributed(scheduler, pending, block, finish, reference, observers, stimuli, options, workers) -> None:
+def _distributed(scheduler, blocks, designs_of, finish, options, workers, context) -> None:
     client, close = _client(scheduler, workers)
     try:
         from distributed import as_completed
 
-        shared = client.scatter([reference, observers, stimuli], broadcast=True)
-        futures = {client.submit(evaluate_chunk, block(i), *shared, options, pure=False): i for i in pending}
-        for future in as_completed(list(futures)):
-            index = futures[future]
+        shared = client.scatter(context, broadcast=True)
+        # submit lazily: a few blocks per worker thread in flight, so the designs are never all made at once
+        threads = sum(client.nthreads().values()) if hasattr(client, "nthreads") else 1
+        limit = max(2, 2 * int(threads or 1))
+        queue = list(blocks)
+
+        def submit(block):
+            return client.submit(evaluate_block, designs_of(block[1], block[2]), options, shared, pure=False)
+
+        futures = {}
+        while queue and len(futures) < limit:
+            block = queue.pop(0)
+            futures[submit(block)] = block
+        running = as_completed(list(futures))
+        for future in running:
+            block = futures.pop(future)
             try:
-                summary = future.result()
+                parts = future.result()
             except MetasimError as exc:
-                raise SweepError(f"chunk {index}: {exc}") from exc
-            finish(index, summary)
+                raise SweepError(f"chunk {block[0]} (designs {block[1]}-{block[2] - 1}): {exc}") from exc
+            finish(block, parts)
+            if queue:
+                block = queue.pop(0)
+                following = submit(block)
+                futures[following] = block
+                running.add(following)
     finally:
         if close:
             cluster = getattr(client, "cluster", None)
@@ -431,4 +533,5 @@ def _distributed(scheduler, pending, block, finish, reference, observers, stimul
                 cluster.close()
 
 
-__all__ = ["SCHEDULERS", "PAIRS_PER_CHUNK", "run_sweep", "evaluate_chunk", "chunk_display"]
+__all__ = ["SCHEDULERS", "PAIRS_PER_CHUNK", "PAIRS_PER_BLOCK", "run_sweep", "evaluate_chunk", "evaluate_block",
+           "chunk_display"]

@@ -37,12 +37,16 @@ import xarray as xr
 from metasim.display import Display
 from metasim.errors import SweepError
 from metasim.colorimetry.efficacy import luminous_efficacy
-from metasim.gamut import chromaticity_gamut, gamut_coverage, lab_gamut_volume
-from metasim.metamerism import mismatch
-from metasim.metamerism.summary import STATISTICS, observer_weights
-from metasim.statistics import statistics_along
-from metasim.sweep.ranking import interval_variables
+from metasim.gamut import lab_gamut_volume
+from metasim.gamut.chromaticity import xy_gamut_numbers
+from metasim.metamerism.summary import STATISTICS, summary_attrs
 from metasim.observers import standard_observer
+from metasim.observers.standard import standard_cmf
+from metasim.spectra import grid_step
+from metasim.colorimetry.integration import spectral_products
+from metasim.statistics import statistics_along
+from metasim.sweep.evaluate import SweepContext, design_statistics, prepare
+from metasim.sweep.ranking import interval_variables
 
 #: Reference gamuts of the coverage numbers.
 COVERAGE_GAMUTS = ("bt709", "display_p3", "bt2020")
@@ -55,17 +59,9 @@ def statistics_over(values: np.ndarray, weights: np.ndarray | None) -> np.ndarra
     return statistics_along(values, weights, 0)
 
 
-def _pairs_table(array: xr.DataArray, weights, long_name: str, units: str = "1") -> xr.DataArray:
-    """Statistics over all observer × stimulus pairs, per design: (design, statistic)."""
-    values = array.transpose("observer", "stimulus", "design").values
-    flat = values.reshape(-1, values.shape[-1])
-    w = None if weights is None else np.repeat(weights, values.shape[1])
-    return xr.DataArray(statistics_over(flat, w).T, dims=("design", "statistic"),
-                        attrs={"units": units, "long_name": long_name})
-
-
 def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume: bool = False,
-                     per_stimulus: bool = False, intervals: dict | None = None, **mismatch_options) -> xr.Dataset:
+                     per_stimulus: bool = False, intervals: dict | None = None,
+                     context: SweepContext | None = None, **mismatch_options) -> xr.Dataset:
     """Mismatch and gamut summaries of every design of ``test`` (a Display with a ``design`` dim).
 
     Parameters
@@ -74,7 +70,7 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
         The candidate designs, stacked along ``design`` (:func:`metasim.display.stack_designs`, or
         :func:`metasim.make_display` of a ``design × primary × wavelength`` array).
     reference, observers, stimuli, mismatch_options
-        As for :func:`metasim.mismatch` (all designs are evaluated in one call).
+        As for :func:`metasim.mismatch` (all designs are evaluated at once, with the same numbers).
     lab_volume : bool
         Also compute the CIELAB volume of each design's colour solid (slower).
     per_stimulus : bool
@@ -84,83 +80,133 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
         ``level``, ``resamples`` and ``seed`` of intervals from resampling observers: adds the
         interval and replicate variables of :mod:`metasim.sweep.ranking` (the same resamples in
         every chunk, so the designs' replicates are paired).
+    context : SweepContext, optional
+        The reference side prepared once for many blocks of designs (:func:`metasim.sweep.evaluate.prepare`
+        with the same inputs); ``reference``, ``observers``, ``stimuli`` and the options are then
+        taken from it.
 
     Returns
     -------
     Dataset
         The variables of the module docstring over ``design`` (the designs' coordinates kept).
     """
+    if context is None:
+        context = prepare(reference, test, observers, stimuli, **mismatch_options)
+    return summary_dataset(context, [summary_parts(context, test, lab_volume=lab_volume, per_stimulus=per_stimulus,
+                                                   intervals=intervals)])
+
+
+def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = False,
+                  per_stimulus: bool = False, intervals: dict | None = None, raw: np.ndarray | None = None) -> dict:
+    """The summaries of one block of designs as plain values: ``{"variables": {name: (dims, values,
+    attrs)}, "coords": {name: Variable}}``, every variable with a leading ``design`` dim except
+    ``observers_per_age_band``. Blocks of one sweep join with :func:`summary_dataset`. ``raw``: the
+    designs' spectra before white calibration, if ``test`` was made from them (see
+    :func:`metasim.sweep.evaluate.design_statistics`). ``intervals``: as for :func:`design_summaries`
+    (the block's differences are then kept until its intervals are made)."""
     if not isinstance(test, Display) or test.batch_dims != ["design"]:
         dims = test.batch_dims if isinstance(test, Display) else type(test).__name__
         raise SweepError(f"design_summaries needs a Display with one 'design' dim, got {dims}")
-    result = mismatch(reference, test, observers, stimuli, **mismatch_options)
-    de = result["delta_e_2000"]
-    weights = observer_weights(de)
+    numbers = design_statistics(context, test, per_stimulus, raw, differences=intervals is not None)
+    statistic_attrs = {"units": "1"}
+    pooled = summary_attrs(context.weights)  # what each summary pools, as the engine's summaries say
+    design_dims = ("design", "statistic")
     out = {
-        "delta_e_2000_overall": _pairs_table(de, weights, "CIE 2000 difference over all observer x stimulus pairs"),
-        "metamerism_index_overall": _pairs_table(result["metamerism_index"], weights,
-                                                 "observer-change metamerism index over all observer x stimulus pairs"),
+        "delta_e_2000_overall": (design_dims, numbers["delta_e_2000_overall"], {
+            **statistic_attrs, "long_name": "CIE 2000 difference over all observer x stimulus pairs"}),
+        "metamerism_index_overall": (design_dims, numbers["metamerism_index_overall"], {
+            **statistic_attrs, "long_name": "observer-change metamerism index over all observer x stimulus pairs"}),
     }
-    if "delta_e_itp" in result:
-        out["delta_e_itp_overall"] = _pairs_table(result["delta_e_itp"], weights,
-                                                  "ITU-R BT.2124 difference over all observer x stimulus pairs")
-    white = result["delta_e_white"].transpose("observer", "design").values
-    out["delta_e_white"] = xr.DataArray(statistics_over(white, weights).T, dims=("design", "statistic"), attrs={
+    if "delta_e_itp_overall" in numbers:
+        out["delta_e_itp_overall"] = (design_dims, numbers["delta_e_itp_overall"], {
+            **statistic_attrs, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
+    out["delta_e_white"] = (design_dims, numbers["delta_e_white"], {
         "units": "1", "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
-    out["share_beyond_overall"] = result["share_beyond_overall"].transpose("design", "threshold")
-    if "delta_e_2000_by_age" in result:
-        out["delta_e_2000_by_age"] = result["delta_e_2000_by_age"].transpose("design", "statistic", "age_band")
-        out["observers_per_age_band"] = result["observers_per_age_band"]
-    flags = result["out_of_gamut_test"].transpose("design", "stimulus")
-    out["out_of_gamut_count"] = xr.DataArray(flags.values.sum(-1).astype(np.int64), dims="design", attrs={
+    out["share_beyond_overall"] = (("design", "threshold"), numbers["share_beyond_overall"],
+                                   pooled["share_beyond_overall"])
+    if "delta_e_2000_by_age" in numbers:
+        out["delta_e_2000_by_age"] = (("design", "statistic", "age_band"), numbers["delta_e_2000_by_age"],
+                                      pooled["by_age"])
+    out["out_of_gamut_count"] = ("design", numbers["out_of_gamut_count"], {
         "units": "1", "long_name": "stimuli outside the design's gamut (clipped)"})
-    residual = result["delta_e_2000_calibration"].transpose("design", ...).values
-    out["delta_e_2000_calibration_max"] = xr.DataArray(
-        np.nanmax(residual.reshape(residual.shape[0], -1), axis=1), dims="design",
-        attrs={"units": "1", "long_name": "largest CIE 2000 difference for the calibration observer"})
+    out["delta_e_2000_calibration_max"] = ("design", numbers["delta_e_2000_calibration_max"], {
+        "units": "1", "long_name": "largest CIE 2000 difference for the calibration observer"})
 
-    cie1931 = standard_observer("cie1931_2", test.wavelengths.values)
-    gamut = chromaticity_gamut(test, observer=cie1931)
-    out["gamut_area_xy"] = gamut["area"].transpose("design")
-    coverage = np.stack([gamut_coverage(gamut, ref).transpose("design").values for ref in COVERAGE_GAMUTS], axis=1)
-    out["gamut_coverage"] = xr.DataArray(coverage, dims=("design", "reference_gamut"), attrs={
+    spectra = test.spectra.variable.transpose("design", "primary", "wavelength").values
+    wavelengths = test.wavelengths.values
+    n_designs, n_primaries, n_w = spectra.shape
+    xyz = (spectral_products(spectra.reshape(-1, n_w), standard_cmf("cie1931_2", wavelengths))
+           * grid_step(wavelengths)).reshape(n_designs, n_primaries, 3)  # as tristimulus(scale="none")
+    design_labels = test.spectra.coords.variables["design"].values if "design" in test.spectra.coords else None
+    area, coverage, xy = xy_gamut_numbers(xyz, COVERAGE_GAMUTS, labels=design_labels)
+    out["gamut_area_xy"] = ("design", area, {"units": "1", "long_name": "CIE 1931 xy gamut area (convex hull of the primaries)"})
+    out["gamut_coverage"] = (("design", "reference_gamut"), coverage, {
         "units": "1", "long_name": "share of each reference gamut's CIE 1931 xy area covered"})
-    out["primary_xy"] = gamut["chromaticity_of_primary"].transpose("design", "primary", "chromaticity")
-    out["white_efficacy"] = luminous_efficacy(test.white_spectrum(), cie1931).transpose("design")
+    out["primary_xy"] = (("design", "primary", "chromaticity"), xy, {
+        "units": "1", "long_name": "CIE 1931 xy chromaticity of each primary"})
+    cie1931 = standard_observer("cie1931_2", wavelengths)
+    efficacy = luminous_efficacy(test.white_spectrum(), cie1931).transpose("design")
+    out["white_efficacy"] = ("design", efficacy.values, dict(efficacy.attrs))
     if lab_volume:
-        out["lab_volume"] = lab_gamut_volume(test, cie1931).transpose("design")
+        volume = lab_gamut_volume(test, cie1931).transpose("design")
+        out["lab_volume"] = ("design", volume.values, dict(volume.attrs))
     if per_stimulus:
-        out["delta_e_2000_by_stimulus"] = result["delta_e_2000_by_stimulus"].transpose("design", "statistic", "stimulus")
-        out["share_beyond"] = result["share_beyond"].transpose("design", "threshold", "stimulus")
-    for name in ("gamut_area_xy", "primary_xy", "share_beyond_overall", "delta_e_2000_by_age", "observers_per_age_band",
-                 "lab_volume", "white_efficacy", "delta_e_2000_by_stimulus", "share_beyond"):
-        if name in out:
-            value = out[name]
-            out[name] = xr.DataArray(value.values, dims=value.dims, attrs=dict(value.attrs))
-    design_coords = {k: v.variable for k, v in test.spectra.coords.items() if v.dims == ("design",)}
-    coords = {**design_coords, "statistic": list(STATISTICS), "reference_gamut": list(COVERAGE_GAMUTS),
-              "primary": test.primaries, "chromaticity": ["x", "y"],
-              "threshold": result["threshold"].variable}
-    if "age_band" in result.coords:
-        coords["age_band"] = result["age_band"].variable
-    if per_stimulus:
-        coords.update({k: v.variable for k, v in result.coords.items() if v.dims == ("stimulus",)})
+        out["delta_e_2000_by_stimulus"] = (("design", "statistic", "stimulus"), numbers["delta_e_2000_by_stimulus"],
+                                           pooled["by_stimulus"])
+        out["share_beyond"] = (("design", "threshold", "stimulus"), numbers["share_beyond"], pooled["share_beyond"])
     interval_attrs = {}
     if intervals is not None:
-        extra, interval_attrs = interval_variables(de, pooled=f"{de.sizes['stimulus']} stimuli "
-                                                   f"({result.attrs.get('stimuli', 'stimulus set')})", **intervals)
-        out.update(extra)
+        stimuli = int(context.xyz_reference.shape[1])
+        extra, interval_attrs = interval_variables(_differences(context, numbers["differences"]),
+                                                   pooled=f"{stimuli} stimuli ({context.attrs.get('stimuli', 'stimulus set')})",
+                                                   **intervals)
+        out.update({name: (value.dims, value.values, dict(value.attrs)) for name, value in extra.items()})
+    coords = {k: v.variable for k, v in test.spectra.coords.items() if v.dims == ("design",)}
+    return {"variables": out, "coords": coords, "primaries": test.primaries, "attrs": interval_attrs}
+
+
+def _differences(context: SweepContext, values: np.ndarray) -> xr.DataArray:
+    """A block's CIE 2000 differences (design, observer, stimulus) labelled for the statistics
+    layer: the observers' weights as the ``weight`` coordinate when they have them."""
+    coords = {}
+    if context.weights is not None:
+        coords["weight"] = ("observer", context.weights)
+    return xr.DataArray(values, dims=("design", "observer", "stimulus"), coords=coords)
+
+
+def summary_dataset(context: SweepContext, parts: list[dict]) -> xr.Dataset:
+    """One Dataset over ``design`` from the :func:`summary_parts` of consecutive blocks of designs."""
+    first = parts[0]
+    variables = {}
+    for name, (dims, values, attrs) in first["variables"].items():
+        if len(parts) > 1:
+            values = np.concatenate([part["variables"][name][1] for part in parts])
+        variables[name] = (dims, values, attrs)
+    if context.bands is not None:
+        variables["observers_per_age_band"] = ("age_band", np.asarray(context.bands[1]),
+                                               summary_attrs(context.weights)["observers_per_age_band"])
+    coords = {}
+    for name, variable in first["coords"].items():
+        if len(parts) > 1:
+            variable = xr.Variable(variable.dims, np.concatenate([part["coords"][name].values for part in parts]),
+                                   variable.attrs)
+        coords[name] = variable
+    coords.update({"statistic": list(STATISTICS), "reference_gamut": list(COVERAGE_GAMUTS),
+                   "primary": first["primaries"], "chromaticity": ["x", "y"],
+                   "threshold": xr.Variable("threshold", context.thresholds,
+                                            {"units": "1", "long_name": "CIE 2000 difference threshold"})})
+    if context.bands is not None:
+        coords["age_band"] = list(context.bands[0])
+    if first["attrs"]:
         coords["bound"] = ["lower", "upper"]
-    summary = xr.Dataset(out, coords=coords)
-    summary.attrs = {key: result.attrs[key] for key in (
-        "model", "reference", "reference_kind", "calibration_observer", "white_matched", "adapted_white",
-        "drive_strategy", "stimuli", "stimulus_kind", "observer_model", "observer_seed", "observer_peak_shift_axis",
-        "thresholds_source",
-        "metasim_version") if key in result.attrs}
-    summary.attrs["observer_count"] = int(de.sizes["observer"])
-    summary.attrs["stimulus_count"] = int(de.sizes["stimulus"])
-    summary.attrs.update(interval_attrs)
+    if "delta_e_2000_by_stimulus" in variables:
+        coords.update({k: v.variable for k, v in context.side.targets.coords.items() if v.dims == ("stimulus",)})
+    summary = xr.Dataset(variables, coords=coords)
+    summary.attrs = dict(context.attrs)
+    summary.attrs["observer_count"] = int(context.cmf.shape[0])
+    summary.attrs["stimulus_count"] = int(context.xyz_reference.shape[1])
+    summary.attrs.update(first["attrs"])
     return summary
 
 
-__all__ = ["COVERAGE_GAMUTS", "design_summaries", "statistics_over"]
+__all__ = ["COVERAGE_GAMUTS", "design_summaries", "statistics_over", "summary_dataset", "summary_parts"]

@@ -193,7 +193,7 @@ def padded(m):
     return (m + PAD - 1) // PAD * PAD
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def _blocks(lab1, lab2, k_L, out):
     """Parallel over blocks: transpose each block to padded columns, run the vector loop, mend flagged pairs."""
     n = out.shape[0]

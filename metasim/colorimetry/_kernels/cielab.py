@@ -61,7 +61,7 @@ def _lab_of_row(xyz, white, out, r):
 _CHUNK = 1024
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def _lab_chunks(flat, out):
     """CIELAB of ratios flat (n, 3) (white 1, 1, 1) in chunks of _CHUNK rows, chunks in parallel."""
     n = flat.shape[0]
@@ -69,21 +69,21 @@ def _lab_chunks(flat, out):
         _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _lab_chunks_serial(flat, out):
     n = flat.shape[0]
     for c in range((n + _CHUNK - 1) // _CHUNK):
         _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def _lab_rows(xyz, white, out):
     """CIELAB of xyz (rows, columns, 3) against one white per row (rows, 3), rows in parallel."""
     for r in numba.prange(xyz.shape[0]):
         _lab_of_row(xyz, white, out, r)
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _lab_rows_serial(xyz, white, out):
     """As :func:`_lab_rows` on one thread (small inputs: no thread start-up)."""
     for r in range(xyz.shape[0]):

@@ -16,7 +16,8 @@ from metasim.colorimetry._kernels.sums import xyz_of_drives
 
 
 @numba.njit(cache=True, error_model="numpy")
-def _mend(lab_1, lab_2, out, special):
+def mend(lab_1, lab_2, out, special):
+    """The pairs the vector loop flagged (``special``) again on the scalar CIE 2000 path."""
     for j in range(out.shape[0]):
         if special[j]:
             out[j] = delta_e_2000_scalar(lab_1[0, j], lab_1[1, j], lab_1[2, j], lab_2[0, j], lab_2[1, j], lab_2[2, j], 1.0)
@@ -36,7 +37,7 @@ def _pairs_of_columns(buf, c, wx, wy, wz, columns, r, lab_ref, lab_test, delta_e
     special = np.empty(width, dtype=np.bool_)
     values = np.empty(width)
     delta_e_2000_columns(lab[0], lab[1], lab[2], lab[3], lab[4], lab[5], 1.0, values, special)
-    _mend(lab[0:3], lab[3:6], values, special)
+    mend(lab[0:3], lab[3:6], values, special)
     for s in range(columns):
         delta_e[r, s] = values[s]
         index[r, s] = values[s]  # no correction: the index is the difference itself
@@ -45,30 +46,43 @@ def _pairs_of_columns(buf, c, wx, wy, wz, columns, r, lab_ref, lab_test, delta_e
             lab_test[r, s, k] = lab[3 + k, s]
     if corrected == 0:
         return
-    # the stimuli with a correction, gathered into columns of their own
+    corrected_differences(buf[3:6], lab[0:3], c, columns, corrected, wx, wy, wz, index[r])
+
+
+@numba.njit(cache=True, error_model="numpy")
+def corrected_differences(xyz_test, lab_ref, c, columns, corrected, wx, wy, wz, out):
+    """out[s] = CIE 2000 between the reference CIELAB (columns of lab_ref) and the test XYZ (columns
+    of xyz_test) minus the correction c[s] (clipped at 0), for the ``corrected`` stimuli whose
+    correction is not zero; the others are left as they are."""
     part = padded(corrected)
-    where = np.empty(corrected, dtype=np.int64)
-    cbuf = np.ones((3, part))
-    cref = np.ones((3, part))
-    clab = np.empty((3, part))
+    corrected_differences_into(xyz_test, lab_ref, c, columns, corrected, wx, wy, wz, out,
+                               np.empty(corrected, dtype=np.int64), np.ones((3, part)), np.ones((3, part)),
+                               np.empty((3, part)), np.empty(part, dtype=np.bool_), np.empty(part))
+
+
+@numba.njit(cache=True, error_model="numpy")
+def corrected_differences_into(xyz_test, lab_ref, c, columns, corrected, wx, wy, wz, out, where, cbuf, cref, clab,
+                               cspecial, cvalues):
+    """:func:`corrected_differences` with its work arrays given (reused from row to row): where
+    (corrected,), cbuf and cref (3, padded(corrected)) filled with 1 beyond ``corrected`` columns,
+    clab (3, padded), cspecial and cvalues (padded,)."""
+    # the stimuli with a correction, gathered into columns of their own
     j = 0
     for s in range(columns):
         if (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0):
             where[j] = s
             for k in range(3):
-                cbuf[k, j] = max(buf[3 + k, s] - c[s, k], 0.0)
-                cref[k, j] = lab[k, s]
+                cbuf[k, j] = max(xyz_test[k, s] - c[s, k], 0.0)
+                cref[k, j] = lab_ref[k, s]
             j += 1
     lab_columns(cbuf[0], cbuf[1], cbuf[2], wx, wy, wz, clab[0], clab[1], clab[2])
-    cspecial = np.empty(part, dtype=np.bool_)
-    cvalues = np.empty(part)
     delta_e_2000_columns(cref[0], cref[1], cref[2], clab[0], clab[1], clab[2], 1.0, cvalues, cspecial)
-    _mend(cref, clab, cvalues, cspecial)
+    mend(cref, clab, cvalues, cspecial)
     for j in range(corrected):
-        index[r, where[j]] = cvalues[j]
+        out[where[j]] = cvalues[j]
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index):
     rows, columns = xyz_test.shape[0], xyz_test.shape[1]
     width = padded(columns)  # full vectors only: results do not depend on the row length
@@ -82,7 +96,7 @@ def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test
                           lab_ref, lab_test, delta_e, index)
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white, correction,
                       xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index):
     groups, observers = test_matrices.shape[0], test_matrices.shape[1]

@@ -28,7 +28,7 @@ def _dot(ai, bj):
     return total
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def _products_parallel(a, b, out):
     wide_vectors()
     for i in numba.prange(a.shape[0]):
@@ -37,7 +37,7 @@ def _products_parallel(a, b, out):
             out[i, j] = _dot(ai, b[j])
 
 
-@numba.njit(cache=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _products_serial(a, b, out):
     wide_vectors()
     for i in range(a.shape[0]):
@@ -67,7 +67,7 @@ def xyz_of_drives(drive_t, g, matrices, offset, o, out, first):
                 row[s] += drive_t[g, p, s] * weight
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def _apply(drive_t, matrices, offset, out):
     """out[g, o, s, k] from :func:`xyz_of_drives`, every group and observer in parallel."""
     groups, observers = matrices.shape[0], matrices.shape[1]

@@ -100,7 +100,7 @@ def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_ite
     box_qp_row(H_c, f_c, lo, hi, out, max_iter, 1e-12)
 
 
-@numba.njit(cache=True, parallel=True)
+@numba.njit(cache=True, nogil=True, parallel=True)
 def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out):
     """Gauss-Newton in CIELAB with box constraints, per row (see ``metasim.display.drive``)."""
     R, _, n = A.shape

@@ -113,14 +113,14 @@ def box_qp_row(H, f, lo, hi, x, max_iter, tol):
         x[i] = min(max(x[i], lo[i]), hi[i])
 
 
-@numba.njit(cache=True, parallel=True)
+@numba.njit(cache=True, nogil=True, parallel=True)
 def box_qp_rows(H, f, lo, hi, x, max_iter, tol):
     """All rows of a batched box QP (H (R, N, N), f (R, N), x (R, N) start and result)."""
     for r in numba.prange(f.shape[0]):
         box_qp_row(H[r], f[r], lo, hi, x[r], max_iter, tol)
 
 
-@numba.njit(cache=True, parallel=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
 def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, tol, best_d, feasible):
     """The shared-H case of :func:`metasim.display.solvers.equality_box_qp`, row by row.
 

@@ -43,12 +43,12 @@ def _summarise_sorted(row, thresholds, out, shares, g):
         shares[t, g] = _count_above(row, n, thresholds[t]) / n
 
 
-@numba.njit(cache=True, parallel=True)
+@numba.njit(cache=True, nogil=True, parallel=True)
 def sorted_rows(rows, thresholds, out, shares):
     for g in numba.prange(rows.shape[0]):
         _summarise_sorted(rows[g], thresholds, out, shares, g)
 
 
-@numba.njit(cache=True)
+@numba.njit(cache=True, nogil=True)
 def sorted_one(row, thresholds, out, shares, g):
     _summarise_sorted(row, thresholds, out, shares, g)

@@ -1,0 +1,231 @@
+"""Compiled summaries of unsorted rows: numpy's mean, linear quantiles and maximum, without a sort.
+
+The statistics layer's definitions for equal weights and no NaN (:mod:`metasim.statistics.summaries`),
+the compiled pass behind :mod:`metasim.statistics.selection`; :func:`summarise` is also called, per
+design, by the sweep's compiled pass (:mod:`metasim.sweep._kernels.designs`), so a sweep's
+statistics are this layer's.
+
+* :func:`numpy_sum` adds in numpy's own order (pairwise: blocks of at most 128 values summed in
+  eight lanes, halves split on multiples of eight), so a mean here equals ``numpy.mean`` of the
+  same contiguous values bit for bit.
+* :func:`order_statistics` finds exact order statistics (the k-th smallest values) by bucket
+  selection: one pass counts the values per bucket of [min, max] (the bucket of a value never
+  decreases with the value), the buckets holding the wanted ranks are gathered and only they are
+  sorted. For non-negative differences this is several times faster than sorting the row; the
+  values found are the sorted row's, so the quantiles equal numpy's "linear" method (virtual index
+  (n − 1)·q, the same interpolation formula as :mod:`metasim.statistics._kernels.rowstats`).
+
+Rows must not hold NaN (callers check and take numpy's route otherwise).
+"""
+
+from __future__ import annotations
+
+import math
+
+import numba
+import numpy as np
+
+_BUCKETS = 2048
+_SORT_BELOW = 256  # rows shorter than this are simply sorted
+_QUANTILES = (0.5, 0.95)
+
+
+@numba.njit(cache=True, inline="always")
+def _block_sum(x, start, n):
+    """numpy's pairwise_sum for n <= 128 values x[start:start + n]."""
+    if n < 8:
+        total = 0.0
+        for i in range(n):
+            total += x[start + i]
+        return total
+    r0, r1, r2, r3 = x[start], x[start + 1], x[start + 2], x[start + 3]
+    r4, r5, r6, r7 = x[start + 4], x[start + 5], x[start + 6], x[start + 7]
+    i = 8
+    stop = n - n % 8
+    while i < stop:
+        r0 += x[start + i]
+        r1 += x[start + i + 1]
+        r2 += x[start + i + 2]
+        r3 += x[start + i + 3]
+        r4 += x[start + i + 4]
+        r5 += x[start + i + 5]
+        r6 += x[start + i + 6]
+        r7 += x[start + i + 7]
+        i += 8
+    total = ((r0 + r1) + (r2 + r3)) + ((r4 + r5) + (r6 + r7))
+    while i < n:
+        total += x[start + i]
+        i += 1
+    return total
+
+
+@numba.njit(cache=True)
+def numpy_sum(x, start, n):
+    """Σ x[start:start + n] in numpy's pairwise order (``numpy.add.reduce`` of contiguous float64).
+
+    numpy halves a span longer than 128 at a multiple of 8 and adds the two sums; the same tree is
+    walked here with an explicit stack (numba's cached code does not link self-recursion)."""
+    if n <= 128:
+        return _block_sum(x, start, n)
+    spans = np.empty((64, 3), dtype=np.int64)  # start, length, stage (0: new, 1: left pushed, 2: both)
+    sums = np.empty(64)
+    top, held = 0, 0
+    spans[0, 0], spans[0, 1], spans[0, 2] = start, n, 0
+    while top >= 0:
+        first, length, stage = spans[top, 0], spans[top, 1], spans[top, 2]
+        if length <= 128:
+            sums[held] = _block_sum(x, first, length)
+            held += 1
+            top -= 1
+            continue
+        half = length // 2
+        half -= half % 8  # numpy splits on a multiple of its unroll factor
+        if stage == 0:
+            spans[top, 2] = 1
+            top += 1
+            spans[top, 0], spans[top, 1], spans[top, 2] = first, half, 0
+        elif stage == 1:
+            spans[top, 2] = 2
+            top += 1
+            spans[top, 0], spans[top, 1], spans[top, 2] = first + half, length - half, 0
+        else:
+            held -= 1
+            sums[held - 1] = sums[held - 1] + sums[held]
+            top -= 1
+    return sums[0]
+
+
+@numba.njit(cache=True)
+def _sort_select(x, start, n, ranks, out):
+    values = np.sort(x[start:start + n])
+    for j in range(ranks.shape[0]):
+        out[j] = values[ranks[j]]
+
+
+@numba.njit(cache=True, fastmath={"nnan", "ninf"})
+def _extremes(x, start, n):
+    """min and max of x[start:start + n] (no NaN), in eight lanes so the compares pipeline."""
+    low = np.full(8, x[start])
+    high = np.full(8, x[start])
+    stop = start + n - n % 8
+    for i in range(start, stop, 8):
+        for k in range(8):
+            v = x[i + k]
+            low[k] = v if v < low[k] else low[k]
+            high[k] = v if v > high[k] else high[k]
+    lo, hi = low.min(), high.max()
+    for i in range(stop, start + n):
+        v = x[i]
+        lo = v if v < lo else lo
+        hi = v if v > hi else hi
+    return lo, hi
+
+
+@numba.njit(cache=True, inline="always")
+def _bucket(v, lo, scale):
+    b = int((v - lo) * scale)
+    return b if b < _BUCKETS - 1 else _BUCKETS - 1
+
+
+@numba.njit(cache=True)
+def order_statistics(x, start, n, ranks, out):
+    """out[j] = the ranks[j]-th smallest of x[start:start + n] (0-based; ranks ascending, < n; no NaN)."""
+    if n < _SORT_BELOW:
+        _sort_select(x, start, n, ranks, out)
+        return
+    lo, hi = _extremes(x, start, n)
+    if not hi > lo:  # all equal
+        for j in range(ranks.shape[0]):
+            out[j] = lo
+        return
+    scale = _BUCKETS / (hi - lo)
+    if not math.isfinite(scale):
+        _sort_select(x, start, n, ranks, out)
+        return
+    # counts per bucket, in four interleaved tables (a run of equal buckets does not wait on itself);
+    # the bucket never decreases with the value
+    tables = np.zeros((4, _BUCKETS), dtype=np.int64)
+    quarter = n // 4
+    for i in range(quarter):
+        k = start + 4 * i
+        tables[0, _bucket(x[k], lo, scale)] += 1
+        tables[1, _bucket(x[k + 1], lo, scale)] += 1
+        tables[2, _bucket(x[k + 2], lo, scale)] += 1
+        tables[3, _bucket(x[k + 3], lo, scale)] += 1
+    for i in range(start + 4 * quarter, start + n):
+        tables[0, _bucket(x[i], lo, scale)] += 1
+    # the bucket of each wanted rank and how many values lie below that bucket
+    m = ranks.shape[0]
+    bucket_of = np.empty(m, dtype=np.int64)
+    before = np.empty(m, dtype=np.int64)
+    below, b, j = 0, 0, 0
+    count = tables[0, 0] + tables[1, 0] + tables[2, 0] + tables[3, 0]
+    while j < m:
+        if ranks[j] < below + count:
+            bucket_of[j], before[j] = b, below
+            j += 1
+        else:
+            below += count
+            b += 1
+            count = tables[0, b] + tables[1, b] + tables[2, b] + tables[3, b]
+    # the distinct wanted buckets (ranks ascending: equal buckets are neighbours), gathered and sorted
+    wanted = np.full(_BUCKETS, -1, dtype=np.int64)  # bucket -> slot
+    offsets = np.zeros(m + 1, dtype=np.int64)
+    slot_of = np.empty(m, dtype=np.int64)
+    slots = 0
+    for j in range(m):
+        b = bucket_of[j]
+        if wanted[b] < 0:
+            wanted[b] = slots
+            offsets[slots + 1] = offsets[slots] + tables[0, b] + tables[1, b] + tables[2, b] + tables[3, b]
+            slots += 1
+        slot_of[j] = wanted[b]
+    gathered = np.empty(offsets[slots])
+    fill = offsets[:slots].copy()
+    for i in range(start, start + n):
+        v = x[i]
+        k = wanted[_bucket(v, lo, scale)]
+        if k >= 0:
+            gathered[fill[k]] = v
+            fill[k] += 1
+    for k in range(slots):
+        gathered[offsets[k]:offsets[k + 1]].sort()
+    for j in range(m):
+        k = slot_of[j]
+        out[j] = gathered[offsets[k] + ranks[j] - before[j]]
+
+
+@numba.njit(cache=True, inline="always")
+def _linear(a, b, virtual, previous):
+    """numpy's linear interpolation between the order statistics a (at previous) and b."""
+    gamma = virtual - previous
+    diff = b - a
+    return b - diff * (1.0 - gamma) if gamma >= 0.5 else a + diff * gamma
+
+
+@numba.njit(cache=True)
+def summarise(x, start, n, out):
+    """out[0:4] = mean, median, 95th percentile (numpy's linear method) and maximum of x[start:start + n]."""
+    ranks = np.empty(5, dtype=np.int64)
+    virtual = np.empty(2)
+    for q in range(2):
+        virtual[q] = (n - 1) * _QUANTILES[q]
+        previous = min(max(int(math.floor(virtual[q])), 0), n - 1)
+        ranks[2 * q] = previous
+        ranks[2 * q + 1] = min(previous + 1, n - 1)
+    ranks[4] = n - 1
+    found = np.empty(5)
+    order_statistics(x, start, n, ranks, found)
+    out[0] = numpy_sum(x, start, n) / n
+    for q in range(2):
+        out[1 + q] = _linear(found[2 * q], found[2 * q + 1], virtual[q], ranks[2 * q])
+    out[3] = found[4]
+
+
+@numba.njit(cache=True, parallel=True, nogil=True)
+def summarise_rows(rows, out):
+    """out[r] = mean, median, p95, max of rows[r] (a C-contiguous (R, n) float array)."""
+    n = rows.shape[1]
+    flat = rows.reshape(-1)
+    for r in numba.prange(rows.shape[0]):
+        summarise(flat, r * n, n, out[r])

@@ -1,0 +1,222 @@
+"""Benchmark: design sweeps, metasim's run_sweep vs the straightforward colour-science loop.
+
+Run:  python scripts/bench_sweep.py [--sizes 1000 10000 100000] [--repeats 3] [--observers 500]
+
+Case: a lazy ``design_grid`` of three laser primaries (R 615-660 nm, G 515-550 nm, B 440-470 nm,
+1 nm line width) judged against a broadband three-primary reference monitor by ``--observers``
+CIE 170-1 observers aged 20-70 (seeded), on ``rgb_cube_grid(4)`` (64 BT.709 colours), scheduler
+``--scheduler`` (default "threads"), the default chunk size.
+
+Each sweep size runs in a fresh Python process (so the peak resident memory is that size's): the
+process builds the inputs, runs one 8-design sweep (numba's compiled code loaded, xarray's netCDF
+writer imported), then times ``run_sweep`` of the whole grid into a new store. Printed per size:
+seconds, designs/s, observer × stimulus pairs/s and the process's peak resident memory (median
+over ``--repeats`` runs, each in its own process), and the machine's load average around the
+runs (the machine is shared: figures are noisy, ratios in the same run are what to compare).
+
+colour-science loop (``--loop-designs`` designs, default 10): per design and per observer, build
+its colour-matching functions, ``sd_to_XYZ`` (method "Integration") of every primary of both
+displays, of their blacks and of the reference white, the XYZ of every stimulus from the drives
+metasim solved (white matching and drive solving are the same work on both sides and are taken
+from metasim), ``XYZ_to_Lab`` against the observer's reference white and ``delta_E`` (CIE 2000),
+then numpy's mean, median, 95th percentile and maximum over the design's pairs. With
+``--loop-observers`` < ``--observers`` the loop is timed on that many observers and scaled. The
+ratio is the loop's time per design over the sweep's; the largest difference of the four
+statistics between the loop and metasim's sweep of the same designs is printed too.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import resource
+import shutil
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+import warnings
+
+import numpy as np
+
+warnings.filterwarnings("ignore")
+
+PER_AXIS = {1000: (10, 10, 10), 10000: (25, 20, 20), 100000: (50, 50, 40), 1000000: (100, 100, 100)}
+
+
+def build_inputs(n_observers: int, seed: int):
+    import metasim
+    from metasim import emitters
+    from metasim.metamerism import rgb_cube_grid
+
+    reference = metasim.calibrate_white(metasim.make_display(
+        emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"]), name="reference monitor"),
+        "cie1931_2", white="D65", luminance=100)
+    observers = metasim.observer_population(n_observers, seed=seed, age_years=(20, 70))
+    return reference, observers, rgb_cube_grid(4)
+
+
+def grid(size: int, lazy: bool = True):
+    from metasim.sweep import design_grid
+
+    if size in PER_AXIS:
+        r, g, b = PER_AXIS[size]
+    else:
+        r = g = b = max(1, round(size ** (1 / 3)))
+    peaks = {"R": np.linspace(615, 660, r), "G": np.linspace(515, 550, g), "B": np.linspace(440, 470, b)}
+    try:
+        return design_grid("laser", peaks_nm=peaks, width_nm=1.0, lazy=lazy)
+    except TypeError:  # a metasim without lazy grids (for before/after figures with PYTHONPATH)
+        return design_grid("laser", peaks_nm=peaks, width_nm=1.0)
+
+
+def one_size(args) -> dict:
+    """Time one sweep in this (fresh) process; returns the figures as a dict."""
+    from metasim.sweep import run_sweep
+
+    reference, observers, stimuli = build_inputs(args.observers, args.seed)
+    designs = grid(args.one)
+    folder = tempfile.mkdtemp(prefix="bench-sweep-")
+    try:
+        warm = grid(8)  # loads the compiled kernels and the netCDF writer once
+        run_sweep(warm, reference, observers, stimuli, store=os.path.join(folder, "warm"), scheduler=args.scheduler)
+        rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        load = os.getloadavg()[0]
+        start = time.perf_counter()
+        cpu = time.process_time()
+        run_sweep(designs, reference, observers, stimuli, store=os.path.join(folder, "sweep"), scheduler=args.scheduler,
+                  chunk_size=args.chunk_size)
+        seconds = time.perf_counter() - start
+        cpu = time.process_time() - cpu
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+    count = designs.sizes["design"]
+    pairs = count * observers.sizes["observer"] * stimuli.sizes["stimulus"]
+    return {"designs": count, "seconds": seconds, "cpu_seconds": cpu, "designs_per_s": count / seconds,
+            "pairs_per_s": pairs / seconds, "peak_rss_mb": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024,
+            "rss_before_mb": rss_before, "load_before": load, "load_after": os.getloadavg()[0]}
+
+
+def colour_loop(args) -> dict:
+    """The colour-science loop on a few designs, and metasim's sweep of the same designs."""
+    import colour
+
+    import metasim
+    from metasim.sweep import chunk_display, run_sweep
+    from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
+
+    reference, observers, stimuli = build_inputs(args.observers, args.seed)
+    full = grid(1000, lazy=False)
+    picks = np.linspace(0, full.sizes["design"] - 1, args.loop_designs).round().astype(int)
+    designs = full.isel(design=picks)
+    folder = tempfile.mkdtemp(prefix="bench-sweep-")
+    try:
+        swept = run_sweep(designs, reference, observers, stimuli, store=os.path.join(folder, "s"), scheduler="serial")
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+    display = chunk_display(designs, DEFAULT_DISPLAY_SETTINGS)
+    result = metasim.mismatch(reference, display, observers, stimuli)  # the drives the loop takes
+    matched = metasim.calibrate_white(display, "cie1931_2", white=tuple(
+        colour.XYZ_to_xy(metasim.tristimulus(reference.white_spectrum(), metasim.standard_observer("cie1931_2")).values)),
+        luminance=float(metasim.tristimulus(reference.white_spectrum(), metasim.standard_observer("cie1931_2")).sel(xyz="Y")))
+    wl = observers.wavelength.values
+    shape = colour.SpectralShape(wl[0], wl[-1], wl[1] - wl[0])
+    cmf_all = observers["cmf"].transpose("observer", "wavelength", "xyz").values
+    count = min(args.loop_observers or args.observers, args.observers)
+    drive_ref = result["drive_reference"].transpose("stimulus", "reference_primary").values
+    ref_primaries = reference.spectra.transpose("primary", "wavelength").values
+    ref_black, ref_white = reference.black.values, reference.white_spectrum().values
+    stats = np.empty((len(picks), 4))
+    start = time.perf_counter()
+    for d in range(len(picks)):
+        test = matched.spectra.isel(design=d).transpose("primary", "wavelength").values
+        test_black = matched.black.isel(design=d).values if "design" in matched.black.dims else matched.black.values
+        drive_test = result["drive_test"].isel(design=d).transpose("stimulus", "primary").values
+        de = np.empty((count, drive_ref.shape[0]))
+        for o in range(count):
+            cmfs = colour.MultiSpectralDistributions(cmf_all[o], wl, name=f"observer {o}")
+
+            def xyz(values):
+                return colour.sd_to_XYZ(colour.SpectralDistribution(values, wl), cmfs, method="Integration",
+                                        k=683.0, shape=shape)
+
+            m_ref = np.column_stack([xyz(p) for p in ref_primaries])
+            m_test = np.column_stack([xyz(p) for p in test])
+            white = xyz(ref_white)
+            xyz_ref = drive_ref @ m_ref.T + xyz(ref_black)
+            xyz_test = drive_test @ m_test.T + xyz(test_black)
+            white_xy = colour.XYZ_to_xy(white)
+            de[o] = colour.delta_E(colour.XYZ_to_Lab(xyz_ref / white[1], white_xy),
+                                   colour.XYZ_to_Lab(xyz_test / white[1], white_xy), method="CIE 2000")
+        flat = de.ravel()
+        stats[d] = [flat.mean(), np.median(flat), np.quantile(flat, 0.95), flat.max()]
+    seconds = (time.perf_counter() - start) * args.observers / count
+    ours = swept["delta_e_2000_overall"].values
+    difference = float(np.max(np.abs(ours - stats))) if count == args.observers else None
+    return {"designs": len(picks), "observers_timed": count, "seconds": seconds,
+            "seconds_per_design": seconds / len(picks), "largest_difference": difference}
+
+
+def run_child(args, extra) -> dict:
+    command = [sys.executable, os.path.abspath(__file__), *extra, "--observers", str(args.observers),
+               "--seed", str(args.seed), "--scheduler", args.scheduler]
+    if args.chunk_size:
+        command += ["--chunk-size", str(args.chunk_size)]
+    if args.loop_observers:
+        command += ["--loop-observers", str(args.loop_observers)]
+    done = subprocess.run(command + ["--loop-designs", str(args.loop_designs)], capture_output=True, text=True)
+    if done.returncode != 0:
+        raise SystemExit(f"benchmark child failed:\n{done.stderr[-3000:]}")
+    return json.loads(done.stdout.strip().splitlines()[-1])
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000, 100000])
+    parser.add_argument("--repeats", type=int, default=3, help="runs per size (each in a fresh process)")
+    parser.add_argument("--repeats-large", type=int, default=1, help="runs per size above 10,000 designs")
+    parser.add_argument("--observers", type=int, default=500)
+    parser.add_argument("--seed", type=int, default=11)
+    parser.add_argument("--scheduler", default="threads")
+    parser.add_argument("--chunk-size", type=int, default=None)
+    parser.add_argument("--loop-designs", type=int, default=10)
+    parser.add_argument("--loop-observers", type=int, default=None,
+                        help="observers timed in the colour-science loop (default: all; then scaled)")
+    parser.add_argument("--one", type=int, default=None, help=argparse.SUPPRESS)
+    parser.add_argument("--loop", action="store_true", help=argparse.SUPPRESS)
+    args = parser.parse_args()
+    if args.one is not None:
+        print(json.dumps(one_size(args)))
+        return
+    if args.loop:
+        print(json.dumps(colour_loop(args)))
+        return
+
+    print(f"case: lazy laser design grid x {args.observers} observers x 64 stimuli (rgb_cube_grid(4)), "
+          f"scheduler {args.scheduler!r}, {os.cpu_count()} CPUs; load average now {os.getloadavg()[0]:.1f}")
+    loop = run_child(args, ["--loop"])
+    scaled = "" if loop["observers_timed"] == args.observers else f", timed on {loop['observers_timed']} observers, scaled"
+    print(f"colour-science loop: {loop['seconds_per_design'] * 1e3:.0f} ms per design "
+          f"({loop['designs']} designs{scaled})")
+    if loop["largest_difference"] is not None:
+        print(f"largest |difference| of mean, median, p95, max (CIE 2000), loop vs sweep: {loop['largest_difference']:.2e}")
+    print(f"{'designs':>9} {'runs':>4} {'seconds':>9} {'designs/s':>10} {'pairs/s':>10} {'peak RSS':>9} "
+          f"{'load':>10} {'ratio vs loop':>14}")
+    for size in args.sizes:
+        repeats = args.repeats if size <= 10000 else args.repeats_large
+        runs = [run_child(args, ["--one", str(size)]) for _ in range(repeats)]
+        seconds = statistics.median(r["seconds"] for r in runs)
+        rss = statistics.median(r["peak_rss_mb"] for r in runs)
+        loads = [r["load_before"] for r in runs] + [r["load_after"] for r in runs]
+        count = runs[0]["designs"]
+        pairs = count * args.observers * 64
+        ratio = loop["seconds_per_design"] / (seconds / count)
+        print(f"{count:>9,} {repeats:>4} {seconds:>9.2f} {count / seconds:>10.0f} {pairs / seconds / 1e6:>9.1f}M "
+              f"{rss:>7.0f}MB {min(loads):>4.1f}-{max(loads):<4.1f} {ratio:>13.0f}x")
+        sys.stdout.flush()
+
+
+if __name__ == "__main__":
+    main()
