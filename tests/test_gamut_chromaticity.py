@@ -5,6 +5,7 @@ import pytest
 import xarray as xr
 
 import metasim
+from metasim import emitters
 from metasim.gamut import (
     candidate_spectra,
     chromaticity_gamut,
@@ -164,3 +165,17 @@ def test_gamut_round_trips_through_netcdf(tmp_path):
     path = metasim.save_dataset(gamut, tmp_path / "gamut.nc")
     back = metasim.load_dataset(path)
     xr.testing.assert_identical(back, gamut)
+
+
+def test_batched_gamut_numbers_equal_the_labelled_functions():
+    from metasim.gamut.chromaticity import xy_gamut_numbers
+
+    spectra = xr.concat([emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]) for red in (620, 640, 660)],
+                        dim="design")
+    xyz = metasim.tristimulus(spectra, metasim.standard_observer("cie1931_2"), scale="none")
+    area, coverage, xy = xy_gamut_numbers(xyz.transpose("design", "primary", "xyz").values, ("bt709", "bt2020"))
+    gamut = metasim.chromaticity_gamut(xyz)
+    np.testing.assert_array_equal(area, gamut["area"].values)  # the labelled functions, same arithmetic
+    np.testing.assert_array_equal(coverage[:, 1], metasim.gamut_coverage(gamut, "bt2020").values)
+    np.testing.assert_array_equal(xy, gamut["chromaticity_of_primary"].transpose("design", "primary", "chromaticity").values)
+    assert coverage[0, 0] == 1.0  # laser primaries enclose BT.709 (ITU-R BT.709-6 primaries)

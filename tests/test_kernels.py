@@ -151,3 +151,22 @@ def test_compiled_code_lives_in_kernel_packages():
                if "_kernels" not in path.parts
                and any(mark in path.read_text() for mark in ("@numba.", "numba.njit", "@intrinsic", "@njit"))]
     assert outside == []
+
+
+@pytest.mark.parametrize("n", [1, 7, 8, 129, 255, 256, 300, 4097, 32000])
+def test_unsorted_row_summaries_equal_numpy_bit_for_bit(n):
+    from metasim.metamerism._kernels.order import numpy_sum
+    from metasim.sweep.statistics import row_statistics
+
+    rng = np.random.default_rng(n)
+    rows = rng.gamma(1.5, 2.0, (6, n))
+    rows[1] = np.round(rows[1], 1)  # many ties
+    rows[2, : n // 2] = 0.0  # a block of zeros (black stimuli)
+    rows[3] = 2.5  # all equal
+    rows[4] *= 1e-12  # tiny values
+    rows[5, 0] = 1e6  # one outlier stretching the range
+    stats = row_statistics(rows)
+    # numpy's mean, linear quantile and max as reference
+    expected = np.stack([rows.mean(1), np.quantile(rows, 0.5, axis=1), np.quantile(rows, 0.95, axis=1), rows.max(1)], 1)
+    np.testing.assert_array_equal(stats, expected)
+    assert all(numpy_sum(row, 0, n) == np.add.reduce(row) for row in rows)  # numpy's pairwise sum, same order

@@ -240,3 +240,68 @@ def test_cli_bad_sweep_spec_is_one_line(tmp_path):
     progress = re.compile(r"^metasim: (?!error:).* \(\d+\.\d s\)$")  # progress lines come before the error
     lines = [line for line in done.stderr.splitlines() if line.strip() and not progress.match(line)]
     assert len(lines) == 1 and lines[0].startswith("metasim: error:") and "stop >= start" in lines[0]
+
+
+def test_a_lazy_grid_is_the_array_made_block_by_block(designs):
+    from metasim.sweep import spec_hash
+
+    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0], lazy=True)
+    assert lazy.sizes == dict(designs.sizes) and lazy.coordinate_names == ["peak_nm_R", "peak_nm_G", "peak_nm_B", "width_nm"]
+    xr.testing.assert_identical(lazy.block(0, 8), designs)  # the array design_grid makes at once
+    xr.testing.assert_identical(lazy.block(3, 7), designs.isel(design=slice(3, 7)))
+    assert spec_hash(lazy, "options") == spec_hash(designs, "options")  # one sweep, one store, however given
+    with pytest.raises(SweepError, match="outside the grid"):
+        lazy.block(5, 9)
+
+
+def test_lazy_grid_sweep_and_blocks_inside_chunks_give_the_same_numbers(tmp_path, monkeypatch, swept, monitor,
+                                                                         viewers, stimuli):
+    import metasim.sweep.run as run
+
+    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0], lazy=True)
+    monkeypatch.setattr(run, "PAIRS_PER_BLOCK", 2 * viewers.sizes["observer"] * stimuli.sizes["stimulus"])
+    result = run_sweep(lazy, monitor, viewers, stimuli, store=tmp_path / "lazy", chunk_size=3, scheduler="threads",
+                       workers=2)  # chunks of 3 designs computed in blocks of 2 and 1
+    for name in swept[1].data_vars:
+        np.testing.assert_array_equal(result[name].values, swept[1][name].values)
+    assert result.attrs["spec_hash"] == swept[1].attrs["spec_hash"]
+
+
+def test_a_million_design_grid_runs_its_first_chunk_without_making_the_grid(monkeypatch, monitor, viewers, stimuli):
+    from metasim.sweep import DesignGrid, evaluate_chunk
+    from metasim.sweep.store import chunk_ranges
+
+    peaks = {"R": np.linspace(600, 660, 100), "G": np.linspace(500, 560, 100), "B": np.linspace(430, 480, 100)}
+    made = []
+    original = DesignGrid.spectra
+
+    def recorded(self, start, stop):
+        values = original(self, start, stop)
+        made.append(values.shape)
+        return values
+
+    monkeypatch.setattr(DesignGrid, "spectra", recorded)
+    lazy = design_grid("laser", peaks_nm=peaks, width_nm=1.0, lazy=True)
+    count, primaries, wavelengths = lazy.sizes["design"], lazy.sizes["primary"], lazy.sizes["wavelength"]
+    assert count == 1_000_000
+    held = sum(table.nbytes for _, _, table in lazy._tables.values()) + sum(v.nbytes for _, v in lazy.axes)
+    assert held < 2e6 < count * primaries * wavelengths * 8  # 300 spectra kept, not 10.6 GB of designs
+    ranges = chunk_ranges(count, 64)
+    assert len(ranges) == 15_625 and ranges[0] == (0, 64) and ranges[-1] == (999_936, 1_000_000)
+    settings = {"transfer": "bt1886", "gamma": 2.2, "peak_luminance": 100.0, "black_luminance": 0.0, "white": "D65",
+                "calibration_observer": "cie1931_2"}
+    options = {"display_settings": settings, "lab_volume": False, "mismatch": {}}
+    first = evaluate_chunk((lazy, *ranges[0]), monitor, viewers, stimuli, options)
+    assert first.sizes["design"] == 64 and np.isfinite(first["delta_e_2000_overall"].values).all()
+    np.testing.assert_array_equal(first["peak_nm_B"].values[:3], peaks["B"][:3])  # the last axis runs fastest
+    assert made and max(shape[0] for shape in made) <= 64  # only the chunk's designs were made
+    assert all(shape[1:] == (primaries, wavelengths) for shape in made)
+
+
+def test_a_rerun_keeps_the_chunk_size_of_its_store(tmp_path, monitor, viewers, stimuli, designs):
+    store = tmp_path / "store"
+    run_sweep(designs, monitor, viewers, stimuli, store=store, chunk_size=5, scheduler="serial")
+    events = []
+    run_sweep(designs, monitor, viewers, stimuli, store=store, scheduler="serial", progress=events.append)
+    assert [e["kind"] for e in events] == ["skipped", "skipped", "combined"]  # resumed, not refused
+    assert read_manifest(store)["chunk_size"] == 5
