@@ -155,8 +155,8 @@ def test_compiled_code_lives_in_kernel_packages():
 
 @pytest.mark.parametrize("n", [1, 7, 8, 129, 255, 256, 300, 4097, 32000])
 def test_unsorted_row_summaries_equal_numpy_bit_for_bit(n):
-    from metasim.metamerism._kernels.order import numpy_sum
-    from metasim.sweep.statistics import row_statistics
+    from metasim.statistics._kernels.order import numpy_sum
+    from metasim.statistics.selection import row_statistics
 
     rng = np.random.default_rng(n)
     rows = rng.gamma(1.5, 2.0, (6, n))
