@@ -375,8 +375,8 @@ def mismatch(
     core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
                           white_spectrum, obs, adapted_white, reference_cal, include_itp)
     cal_white = ref_white_cal if adapted_white == "reference" else test.white_tristimulus(calibration)
-    de_cal = _delta_e_variable(_lab_variable(reference_cal, cal_white.variable),
-                               _lab_variable(test_solution.variable("reproduced"), cal_white.variable))
+    de_cal = delta_e_variable(lab_variable(reference_cal, cal_white.variable),
+                               lab_variable(test_solution.variable("reproduced"), cal_white.variable))
 
     test_flag = test_solution.variable("out_of_gamut").astype(bool)
     ref_flag = (ref_rendering.variable("out_of_gamut").astype(bool) if ref_kind == "display"
@@ -455,15 +455,11 @@ def result_attrs(side: ReferenceSide, test_name: str, match_white: bool, adapted
     }
 
 
-def _flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
+def flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
     """Observer functions as (observer, xyz, wavelength) float64 and the grid step."""
     cmf = obs.variables["cmf"].transpose("observer", "xyz", "wavelength")
     wl = obs.variables["wavelength"].values
     return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
-
-
-def _labels(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
-    return xyz_to_lab_array(xyz, white)
 
 
 def _observer_core(reference, ref_rendering, test: Display, test_solution, white_spectrum, obs, adapted_white,
@@ -473,7 +469,7 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
     numpy on (design, observer, stimulus, 3) blocks: one matrix product per display for the
     observer × primary matrices, then einsum, CIELAB and the compiled CIE 2000 kernel.
     """
-    cmf, step = _flat_observers(obs)
+    cmf, step = flat_observers(obs)
     batch = test.batch_dims
     batch_shape = [test.spectra.sizes[d] for d in batch]
     matrices = display_matrices([test] if reference is None else [test, reference], cmf, step)
@@ -513,10 +509,11 @@ def _observer_core(reference, ref_rendering, test: Display, test_solution, white
         n_stim = xyz_t.shape[2]
         lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
                                                    adapted.reshape(rows, 3), correction)
-    de_white = delta_e_2000_array(_labels(np.broadcast_to(white_ref, white_test.shape), adapted), _labels(white_test, adapted))
+    de_white = delta_e_2000_array(xyz_to_lab_array(np.broadcast_to(white_ref, white_test.shape), adapted),
+                                  xyz_to_lab_array(white_test, adapted))
     itp = None
     if include_itp:
-        itp = _itp(xyz_r_b, xyz_t)
+        itp = itp_difference(xyz_r_b, xyz_t)
 
     sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0],
              **dict(zip(test_solution.dims, test_solution.sizes))}
@@ -549,14 +546,14 @@ def _renamed_primaries(display: Display) -> xr.Coordinates:
     return xr.Coordinates(variables)
 
 
-def _lab_variable(xyz: xr.Variable, white: xr.Variable) -> xr.Variable:
+def lab_variable(xyz: xr.Variable, white: xr.Variable) -> xr.Variable:
     """CIELAB of XYZ against a white, broadcast by dim name (as :func:`metasim.colorimetry.xyz_to_lab`)."""
     ratio = xyz / white
     dims = [d for d in ratio.dims if d != "xyz"]
     return xr.Variable((*dims, "lab"), lab_of_ratio(ratio.transpose(*dims, "xyz").values))
 
 
-def _delta_e_variable(lab_1: xr.Variable, lab_2: xr.Variable) -> xr.Variable:
+def delta_e_variable(lab_1: xr.Variable, lab_2: xr.Variable) -> xr.Variable:
     """CIE 2000 difference of two CIELAB Variables broadcast by dim name (dims in order of appearance)."""
     sizes = {**dict(zip(lab_1.dims, lab_1.shape)), **dict(zip(lab_2.dims, lab_2.shape))}
     full = {d: sizes[d] for d in [*[d for d in sizes if d != "lab"], "lab"]}
@@ -564,11 +561,12 @@ def _delta_e_variable(lab_1: xr.Variable, lab_2: xr.Variable) -> xr.Variable:
     return xr.Variable(tuple(full)[:-1], values)
 
 
-def _itp(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
+def itp_difference(xyz_1: np.ndarray, xyz_2: np.ndarray) -> np.ndarray:
     """ΔE_ITP of two absolute XYZ arrays (last axis X, Y, Z), as :mod:`metasim.colorimetry.ictcp` defines it."""
     return delta_e_itp_values(xyz_to_ictcp_values(xyz_1), xyz_to_ictcp_values(xyz_2))
 
 
 __all__ = ["ADAPTED_WHITES", "MISMATCH_BYTES_PER_PAIR", "ReferenceSide", "check_mismatch_memory", "mismatch",
            "reference_side", "resolve_observers", "resolve_calibration_observer", "resolve_reference",
-           "reference_white_spectrum", "result_attrs"]
+           "reference_white_spectrum", "result_attrs", "flat_observers", "lab_variable", "delta_e_variable",
+           "itp_difference"]

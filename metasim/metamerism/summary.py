@@ -164,7 +164,7 @@ def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS
     return xr.Dataset(out, coords=coords)
 
 
-def _age_bands(ages, age_bands):
+def age_band_members(ages, age_bands):
     """Labels, observer counts and membership masks of the age bands [lo, hi) (the last one closed)."""
     edges = np.asarray(age_bands, dtype=float)
     if edges.ndim != 1 or edges.size < 2 or (np.diff(edges) <= 0).any():
@@ -212,7 +212,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     # pass per summary; anything else through numpy
     fast = weights is None and values.size > 0 and not np.isnan(values).any()
     edges = age_band_edges(age_bands, ages)
-    bands = _age_bands(ages, edges) if edges else None
+    bands = age_band_members(ages, edges) if edges else None
     if fast:  # one sort per summary, then one compiled pass over it; other dims one slice at a time
         segments = [np.flatnonzero(inside) for inside in (bands[2] if bands else []) if inside.any()]
         flat = values.reshape(*values.shape[:2], -1)
@@ -258,4 +258,4 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
 
 
 __all__ = ["STATISTICS", "THRESHOLDS", "DECADES", "decade_age_bands", "age_band_edges", "age_band_labels", "summarise",
-           "summary_attrs", "summary_variables", "observer_weights"]
+           "summary_attrs", "summary_variables", "age_band_members", "observer_weights"]

@@ -28,6 +28,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._threads import blas_single_threaded
+from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
 from metasim.colorimetry._kernels.sums import padded_drives
@@ -37,11 +38,10 @@ from metasim.display.optics import display_matrices, display_rows, observer_xyz
 from metasim.errors import MismatchError
 from metasim.metamerism.engine import (
     ADAPTED_WHITES,
-    _delta_e_variable,
-    _flat_observers,
-    _itp,
-    _lab_variable,
-    _labels,
+    delta_e_variable,
+    flat_observers,
+    itp_difference,
+    lab_variable,
     reference_side,
     result_attrs,
 )
@@ -49,7 +49,7 @@ from metasim.metamerism.summary import (
     DECADES,
     STATISTICS,
     THRESHOLDS,
-    _age_bands,
+    age_band_members,
     age_band_edges,
     observer_weights,
     summary_variables,
@@ -119,7 +119,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
         transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
         include_itp = bool(transfers & {"pq", "hlg"})
     obs = side.observers
-    cmf, step = _flat_observers(obs)
+    cmf, step = flat_observers(obs)
     reference_matrices = None
     if side.ref_kind == "display":
         (m_ref, b_ref), = display_matrices([side.reference], cmf, step)
@@ -142,7 +142,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
     weights = observer_weights(obs["cmf"])
     ages = obs.coords.variables["age_years"].values if "age_years" in obs.coords else None
     edges = age_band_edges(age_bands, ages)
-    bands = _age_bands(ages, edges) if edges else None
+    bands = age_band_members(ages, edges) if edges else None
     attrs = {key: value for key, value in result_attrs(side, "", match_white, adapted_white, strategy).items()
              if key != "test"}
     return SweepContext(side=side, cmf=cmf, step=step, white_reference=white_ref, xyz_reference=xyz_ref,
@@ -208,11 +208,11 @@ class _TestSide:
         side, solution = context.side, self.solution
         shape = (self.designs, self.observers)
         out = {"delta_e_white": delta_e_2000_array(
-            _labels(np.broadcast_to(context.white_reference, self.white.shape), self.adapted),
-            _labels(self.white, self.adapted)).reshape(shape)}
+            xyz_to_lab_array(np.broadcast_to(context.white_reference, self.white.shape), self.adapted),
+            xyz_to_lab_array(self.white, self.adapted)).reshape(shape)}
         cal_white = side.white_cal if context.adapted_white == "reference" else self.test.white_tristimulus(side.calibration)
-        de_cal = _delta_e_variable(_lab_variable(side.reference_cal, cal_white.variable),
-                                   _lab_variable(solution.variable("reproduced"), cal_white.variable))
+        de_cal = delta_e_variable(lab_variable(side.reference_cal, cal_white.variable),
+                                   lab_variable(solution.variable("reproduced"), cal_white.variable))
         out["delta_e_2000_calibration"] = de_cal.transpose(*solution.dims).values.reshape(self.designs, self.stimuli)
         out["out_of_gamut"] = solution.out_of_gamut.astype(bool).reshape(self.designs, self.stimuli)
         return out
@@ -240,7 +240,7 @@ class _TestSide:
         if context.include_itp:
             if xyz_t is None:
                 xyz_t = apply_matrices(drive, matrices, black)
-            out["delta_e_itp"] = _itp(np.broadcast_to(context.xyz_reference, xyz_t.shape), xyz_t)
+            out["delta_e_itp"] = itp_difference(np.broadcast_to(context.xyz_reference, xyz_t.shape), xyz_t)
         return out
 
 
