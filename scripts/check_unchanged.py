@@ -80,7 +80,7 @@ def demo_sweep(size: int) -> dict:
         store = Path(folder) / "store"
         with contextlib.redirect_stdout(io.StringIO()):
             code = main(["sweep", str(DEMO_DIR / "sweep_red_laser.toml"), "--out", str(store), "--size", str(size),
-                         "--scheduler", "serial", "--resamples", "200", "--quiet"])
+                         "--scheduler", "serial", "--resamples", "200", "--no-report", "--quiet"])
         if code:
             raise SystemExit(f"metasim sweep exited with {code}")
         with xr.open_dataset(store / "sweep.nc") as ds:
