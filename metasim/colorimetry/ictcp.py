@@ -12,6 +12,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.colorimetry.rgb_spaces import xyz_to_rgb_matrix
+from metasim.colorimetry.st2084 import pq_inverse_eotf_values
 from metasim.errors import ColorimetryError
 
 ICTCP = ("I", "Ct", "Cp")
@@ -25,19 +26,19 @@ def xyz_to_ictcp_values(xyz: np.ndarray) -> np.ndarray:
     """ICtCp of absolute XYZ in cd/m² on the last axis (numpy; :func:`xyz_to_ictcp` labels it).
 
     XYZ → linear BT.2020 RGB (:func:`metasim.colorimetry.rgb_spaces.xyz_to_rgb_matrix`) → LMS →
-    SMPTE ST 2084 inverse EOTF (10,000 cd/m² peak) → ICtCp, with colour-science's published BT.2100
-    matrices (``MATRIX_ICTCP_RGB_TO_LMS``, ``MATRIX_ICTCP_LMS_P_TO_ICTCP``) and ST 2084 curve
-    (``eotf_inverse_ST2084``). Negative LMS (light outside what the PQ curve encodes) is clipped to 0.
+    SMPTE ST 2084 inverse EOTF (10,000 cd/m² peak, :mod:`metasim.colorimetry.st2084`) → ICtCp, with
+    colour-science's published BT.2100 matrices (``MATRIX_ICTCP_RGB_TO_LMS``,
+    ``MATRIX_ICTCP_LMS_P_TO_ICTCP``). Negative LMS (light outside what the PQ curve encodes) is
+    clipped to 0.
 
     References
     ----------
     ITU-R BT.2100-2 (2018), Tables 4, 6 and 7; SMPTE ST 2084:2014.
     """
-    from colour.models import eotf_inverse_ST2084
     from colour.models.rgb.ictcp import MATRIX_ICTCP_LMS_P_TO_ICTCP
 
     lms = np.asarray(xyz, dtype=float) @ _xyz_to_lms().T
-    return np.asarray(eotf_inverse_ST2084(np.maximum(lms, 0.0), 10000.0)) @ MATRIX_ICTCP_LMS_P_TO_ICTCP.T
+    return pq_inverse_eotf_values(lms, clip_negative=True) @ MATRIX_ICTCP_LMS_P_TO_ICTCP.T
 
 
 @lru_cache(maxsize=1)
