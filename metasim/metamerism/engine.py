@@ -42,11 +42,11 @@ from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
 from metasim.colorimetry.ictcp import delta_e_itp_values, xyz_to_ictcp_values
 from metasim.colorimetry.integration import apply_matrices
-from metasim.colorimetry.tristimulus import coordinates, labelled
 from metasim.display import Display, calibrate_white
 from metasim.display.drive import drive_solution
 from metasim.display.optics import display_matrices, observer_xyz
 from metasim.errors import MismatchError, ObserverError, StimulusError
+from metasim.labelling import coordinates, labelled
 from metasim.metamerism.stimuli import as_stimuli, check_stimuli, stimulus_illuminant
 from metasim.metamerism.summary import DECADES, THRESHOLDS, observer_weights, summary_variables
 from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
@@ -176,9 +176,9 @@ def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Displa
     return white, "objects"
 
 
-def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, white_spectrum, ref_kind: str):
+def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, white_spectrum, reference_kind: str):
     """Reference rendering for the calibration observer: (target XYZ, drive solution or spectra)."""
-    if ref_kind == "objects":
+    if reference_kind == "objects":
         spectra = (stimuli["reflectance"] * white_spectrum).transpose("stimulus", "wavelength")
         spectra.attrs = {"units": RADIANCE_UNITS, "long_name": "reflected spectral radiance"}
         return tristimulus(spectra, calibration), spectra
@@ -211,16 +211,16 @@ class ReferenceSide:
     match exactly as :func:`mismatch` does them.
     """
 
-    def __init__(self, reference, kind, ref_kind, observers, calibration, calibration_name, white_spectrum,
-                 white_cal, targets, rendering, reference_cal):
-        self.reference, self.kind, self.ref_kind = reference, kind, ref_kind
+    def __init__(self, reference, kind, reference_kind, observers, calibration, calibration_name, white_spectrum,
+                 white_calibration, targets, rendering, reference_calibration):
+        self.reference, self.kind, self.reference_kind = reference, kind, reference_kind
         self.observers, self.calibration, self.calibration_name = observers, calibration, calibration_name
-        self.white_spectrum, self.white_cal = white_spectrum, white_cal
-        self.targets, self.rendering, self.reference_cal = targets, rendering, reference_cal
+        self.white_spectrum, self.white_calibration = white_spectrum, white_calibration
+        self.targets, self.rendering, self.reference_calibration = targets, rendering, reference_calibration
 
     def matched(self, test: Display) -> Display:
         """The test display white-calibrated to the reference white as the calibration observer sees it."""
-        X, Y, Z = self.white_cal.transpose("xyz").values  # one white: xy as xyz_to_xy computes it
+        X, Y, Z = self.white_calibration.transpose("xyz").values  # one white: xy as xyz_to_xy computes it
         total = X + Y + Z
         return calibrate_white(test, self.calibration, white=(X / total, Y / total), luminance=float(Y))
 
@@ -229,7 +229,7 @@ class ReferenceSide:
         strategy_args = {}
         if strategy == "population":
             population = self.observers if strategy_population is None else strategy_population
-            display = self.ref_kind == "display"
+            display = self.reference_kind == "display"
             strategy_args = {"population": population, "reference": self.reference if display else self.rendering,
                              "reference_white": None if display else self.white_spectrum}
         return drive_solution(test, target=self.targets, observer=self.calibration, strategy=strategy, **strategy_args)
@@ -250,17 +250,19 @@ def reference_side(reference, test: Display, observers, stimuli: xr.Dataset, *, 
     kind = check_stimuli(stimuli)
     if kind == "reflectance":
         require_same_grid(stimuli["reflectance"], grid, names=("reflectance stimuli", "test display"))
-    obs = resolve_observers(observers, grid)
+    population = resolve_observers(observers, grid)
     if designs is not None:
-        check_mismatch_memory(obs.sizes["observer"], stimuli.sizes.get("stimulus", 1), designs)
-    calibration, calibration_name = resolve_calibration_observer(calibration_observer, obs, grid)
-    white_spectrum, ref_kind = reference_white_spectrum(reference, stimuli, test, calibration, object_white_luminance)
-    white_cal = tristimulus(white_spectrum, calibration)
-    targets, rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, ref_kind)
+        check_mismatch_memory(population.sizes["observer"], stimuli.sizes.get("stimulus", 1), designs)
+    calibration, calibration_name = resolve_calibration_observer(calibration_observer, population, grid)
+    white_spectrum, reference_kind = reference_white_spectrum(reference, stimuli, test, calibration,
+                                                              object_white_luminance)
+    white_calibration = tristimulus(white_spectrum, calibration)
+    targets, rendering = _reference_targets(reference, kind, stimuli, calibration, white_spectrum, reference_kind)
     # what the reference shows to the calibration observer (the standard under the reference condition)
-    reference_cal = rendering.variable("reproduced") if ref_kind == "display" else targets.variable
-    side = ReferenceSide(reference if ref_kind == "display" else None, kind, ref_kind, obs, calibration,
-                         calibration_name, white_spectrum, white_cal, targets, rendering, reference_cal)
+    reference_calibration = rendering.variable("reproduced") if reference_kind == "display" else targets.variable
+    side = ReferenceSide(reference if reference_kind == "display" else None, kind, reference_kind, population,
+                         calibration, calibration_name, white_spectrum, white_calibration, targets, rendering,
+                         reference_calibration)
     side.given_reference, side.stimuli = reference, stimuli
     return side
 
@@ -358,29 +360,31 @@ def mismatch(
     designs = int(np.prod([test.spectra.sizes[d] for d in test.batch_dims])) if test.batch_dims else 1
     side = reference_side(reference, test, observers, stimuli, calibration_observer=calibration_observer,
                           object_white_luminance=object_white_luminance, designs=designs)
-    reference, stimuli = side.given_reference, side.stimuli  # colour-science inputs converted
-    obs, calibration, ref_kind = side.observers, side.calibration, side.ref_kind
-    white_spectrum, ref_rendering, targets, reference_cal = (side.white_spectrum, side.rendering, side.targets,
-                                                             side.reference_cal)
-    ref_white_cal = side.white_cal
-
     if include_itp is None:
-        transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
+        transfers = {test.transfer} | ({side.reference.transfer} if side.reference is not None else set())
         include_itp = bool(transfers & {"pq", "hlg"})
     if match_white:
         test = side.matched(test)
-    test_solution = side.test_drives(test, strategy, strategy_population)
-
+    solution = side.test_drives(test, strategy, strategy_population)
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
-    core = _observer_core(reference if ref_kind == "display" else None, ref_rendering, test, test_solution,
-                          white_spectrum, obs, adapted_white, reference_cal, include_itp)
-    cal_white = ref_white_cal if adapted_white == "reference" else test.white_tristimulus(calibration)
-    de_cal = delta_e_variable(lab_variable(reference_cal, cal_white.variable),
-                               lab_variable(test_solution.variable("reproduced"), cal_white.variable))
+    core = _observer_core(side.reference, side.rendering, test, solution, side.white_spectrum, side.observers,
+                          adapted_white, side.reference_calibration, include_itp)
+    out = _mismatch_dataset(side, test, solution, core, adapted_white, age_bands=age_bands, thresholds=thresholds)
+    out.attrs = result_attrs(side, test.name, match_white, adapted_white, strategy)
+    return out
 
-    test_flag = test_solution.variable("out_of_gamut").astype(bool)
-    ref_flag = (ref_rendering.variable("out_of_gamut").astype(bool) if ref_kind == "display"
-                else xr.zeros_like(test_flag))
+
+def _mismatch_dataset(side: ReferenceSide, test: Display, solution, core: dict, adapted_white: str, *,
+                      age_bands, thresholds) -> xr.Dataset:
+    """The result Dataset of :func:`mismatch`: every observer's view (``core``), the calibration
+    observer's view, drives, gamut flags and summaries, with one set of coordinates."""
+    calibration_white = (side.white_calibration if adapted_white == "reference"
+                         else test.white_tristimulus(side.calibration))
+    delta_e_calibration = delta_e_variable(lab_variable(side.reference_calibration, calibration_white.variable),
+                                           lab_variable(solution.variable("reproduced"), calibration_white.variable))
+    test_clipped = solution.variable("out_of_gamut").astype(bool)
+    reference_clipped = (side.rendering.variable("out_of_gamut").astype(bool) if side.reference_kind == "display"
+                         else xr.zeros_like(test_clipped))
     described = [
         ("xyz_reference", "tristimulus values of the reference rendering, per observer", "cd m-2"),
         ("xyz_test", "tristimulus values of the test rendering, per observer", "cd m-2"),
@@ -395,51 +399,52 @@ def mismatch(
     data = {name: (*core[name], {"units": units, "long_name": long_name})
             for name, long_name, units in described if name in core}
     given = [
-        ("delta_e_2000_calibration", de_cal, "CIE 2000 difference for the calibration observer", "1"),
-        ("drive_test", test_solution.variable("drive"), "linear drive values of the test display", "1"),
-        ("target_xyz", targets.variable, "reference XYZ for the calibration observer (targets of the test display)",
-         "cd m-2"),
-        ("out_of_gamut_test", test_flag, "stimulus outside the test gamut (clipped)", "1"),
-        ("out_of_gamut_reference", ref_flag, "stimulus outside the reference gamut (clipped)", "1"),
-        ("out_of_gamut_both", test_flag & ref_flag, "stimulus outside both gamuts", "1"),
-        ("residual_delta_e_test", test_solution.variable("residual_delta_e"),
+        ("delta_e_2000_calibration", delta_e_calibration, "CIE 2000 difference for the calibration observer", "1"),
+        ("drive_test", solution.variable("drive"), "linear drive values of the test display", "1"),
+        ("target_xyz", side.targets.variable,
+         "reference XYZ for the calibration observer (targets of the test display)", "cd m-2"),
+        ("out_of_gamut_test", test_clipped, "stimulus outside the test gamut (clipped)", "1"),
+        ("out_of_gamut_reference", reference_clipped, "stimulus outside the reference gamut (clipped)", "1"),
+        ("out_of_gamut_both", test_clipped & reference_clipped, "stimulus outside both gamuts", "1"),
+        ("residual_delta_e_test", solution.variable("residual_delta_e"),
          "CIE 2000 residual of the test display vs its target", "1"),
     ]
-    sources = [test.spectra, obs, test_solution.coords()]
-    if ref_kind == "display":
-        ref_drive = ref_rendering.variable("drive")
-        given.append(("residual_delta_e_reference", ref_rendering.variable("residual_delta_e"),
+    sources = [test.spectra, side.observers, solution.coords()]
+    if side.reference_kind == "display":
+        reference_drive = side.rendering.variable("drive")
+        given.append(("residual_delta_e_reference", side.rendering.variable("residual_delta_e"),
                       "CIE 2000 residual of the reference display vs the source colour", "1"))
-        given.append(("drive_reference", xr.Variable((*ref_drive.dims[:-1], "reference_primary"), ref_drive.data),
+        given.append(("drive_reference", xr.Variable((*reference_drive.dims[:-1], "reference_primary"),
+                                                     reference_drive.data),
                       "linear drive values of the reference display", "1"))
-        sources.append(_renamed_primaries(reference))
+        sources.append(_renamed_primaries(side.reference))
     else:
-        sources.append(targets)
+        sources.append(side.targets)
     for name, variable, long_name, units in given:
         data[name] = (variable.dims, variable.data, {"units": units, "long_name": long_name})
-    de_dims, de_values = core["delta_e_2000"]
-    rest = [d for d in de_dims if d not in ("observer", "stimulus")]
+    pair_dims, delta_e = core["delta_e_2000"]
+    rest = [d for d in pair_dims if d not in ("observer", "stimulus")]
+    observers = side.observers
     summaries, summary_coords = summary_variables(
-        np.moveaxis(de_values, [de_dims.index("observer"), de_dims.index("stimulus")], [0, 1]), rest,
-        observer_weights(obs), obs.coords.variables["age_years"].values if "age_years" in obs.coords else None,
+        np.moveaxis(delta_e, [pair_dims.index("observer"), pair_dims.index("stimulus")], [0, 1]), rest,
+        observer_weights(observers),
+        observers.coords.variables["age_years"].values if "age_years" in observers.coords else None,
         age_bands=age_bands, thresholds=thresholds, name="delta_e_2000")
     data.update(summaries)
     dims = {d for value in data.values() for d in value[0]}
     coords = coordinates(dims, [*sources, summary_coords], labels={"xyz": ("X", "Y", "Z"), "lab": LAB})
-    out = xr.Dataset(data, coords=coords)
-    out.attrs = result_attrs(side, test.name, match_white, adapted_white, strategy)
-    return out
+    return xr.Dataset(data, coords=coords)
 
 
 def result_attrs(side: ReferenceSide, test_name: str, match_white: bool, adapted_white: str, strategy: str) -> dict:
     """The attributes of a mismatch result (what was compared, how, with which observers)."""
-    reference, stimuli, obs = side.given_reference, side.stimuli, side.observers
+    reference, stimuli, observers = side.given_reference, side.stimuli, side.observers
     return {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
-        "reference": reference.name if side.ref_kind == "display" else "objects under " + (
+        "reference": reference.name if side.reference_kind == "display" else "objects under " + (
             str(reference.name or "the given illuminant") if isinstance(reference, xr.DataArray)
             else str(stimuli.attrs.get("illuminant", "illuminant"))),
-        "reference_kind": side.ref_kind,
+        "reference_kind": side.reference_kind,
         "test": test_name,
         "calibration_observer": side.calibration_name,
         "white_matched": bool(match_white),
@@ -447,94 +452,94 @@ def result_attrs(side: ReferenceSide, test_name: str, match_white: bool, adapted
         "drive_strategy": strategy,
         "stimuli": stimuli.attrs.get("description", side.kind),
         "stimulus_kind": side.kind,
-        "observer_model": str(obs.attrs.get("model", "standard observers")),
-        "observer_seed": obs.attrs.get("seed", "none"),
-        "observer_peak_shift_axis": str(obs.attrs.get("peak_shift_axis", "none (no individual deviations)")),
+        "observer_model": str(observers.attrs.get("model", "standard observers")),
+        "observer_seed": observers.attrs.get("seed", "none"),
+        "observer_peak_shift_axis": str(observers.attrs.get("peak_shift_axis", "none (no individual deviations)")),
         "thresholds_source": "1, 2, 3 CIE 2000 units: common practice, no source",
         "metasim_version": __version__,
     }
 
 
-def flat_observers(obs: xr.Dataset) -> tuple[np.ndarray, float]:
+def flat_observers(observers: xr.Dataset) -> tuple[np.ndarray, float]:
     """Observer functions as (observer, xyz, wavelength) float64 and the grid step."""
-    cmf = obs.variables["cmf"].transpose("observer", "xyz", "wavelength")
-    wl = obs.variables["wavelength"].values
+    cmf = observers.variables["cmf"].transpose("observer", "xyz", "wavelength")
+    wl = observers.variables["wavelength"].values
     return np.ascontiguousarray(cmf.values, dtype=float), float(wl[1] - wl[0])
 
 
-def _observer_core(reference, ref_rendering, test: Display, test_solution, white_spectrum, obs, adapted_white,
-                   targets, include_itp):
+def _observer_core(reference, reference_rendering, test: Display, solution, white_spectrum, observers,
+                   adapted_white, targets, include_itp):
     """Every observer's XYZ, CIELAB and differences of both sides, as labelled arrays.
 
     numpy on (design, observer, stimulus, 3) blocks: one matrix product per display for the
     observer × primary matrices, then einsum, CIELAB and the compiled CIE 2000 kernel.
     """
-    cmf, step = flat_observers(obs)
+    cmf, step = flat_observers(observers)
     batch = test.batch_dims
     batch_shape = [test.spectra.sizes[d] for d in batch]
     matrices = display_matrices([test] if reference is None else [test, reference], cmf, step)
-    m_test, b_test = matrices[0]  # (B, O, 3, N), (B, O, 3)
-    stim = list(test_solution.dims[len(batch):])
-    white_test = m_test.sum(-1) + b_test  # (B, O, 3)
+    test_matrices, test_black = matrices[0]  # (B, O, 3, N), (B, O, 3)
+    stimulus_dims = list(solution.dims[len(batch):])
+    test_white = test_matrices.sum(-1) + test_black  # (B, O, 3)
     if reference is not None:
-        m_ref, b_ref = matrices[1]
-        white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed like the test white so equal displays agree exactly
+        reference_matrices, reference_black = matrices[1]
+        # (O, 3), summed like the test white so equal displays agree exactly
+        reference_white = reference_matrices[0].sum(-1) + reference_black[0]
     else:
         # the white and every object's reflected light in one integration: (O, 3, 1 + S)
-        n_w = cmf.shape[-1]
-        light = np.concatenate([white_spectrum.values.reshape(1, n_w),
-                                ref_rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)])
+        n_wavelengths = cmf.shape[-1]
+        light = np.concatenate([white_spectrum.values.reshape(1, n_wavelengths),
+                                reference_rendering.transpose(*stimulus_dims, "wavelength").values.reshape(-1, n_wavelengths)])
         seen = observer_xyz(cmf, step, light).reshape(cmf.shape[0], 3, -1)
-        white_ref = seen[..., 0]  # (O, 3)
-    adapted = np.broadcast_to(white_ref, white_test.shape) if adapted_white == "reference" else white_test
+        reference_white = seen[..., 0]  # (O, 3)
+    adapted = np.broadcast_to(reference_white, test_white.shape) if adapted_white == "reference" else test_white
     # observer-change metamerism index, additive correction in XYZ (reference condition: calibration
     # observer): the test side minus (test − reference as the calibration observer sees them). A
     # stimulus inside the test gamut is matched for the calibration observer by construction
     # (A·d = target); its residual is the solver's rounding (~1e-13 cd/m²), so its correction is
     # zero and its index is its ΔE00. Clipped stimuli carry their real residual.
-    tgt = targets.transpose(*[d for d in batch if d in targets.dims], *stim, "xyz").values
-    rep = test_solution.reproduced
-    tgt = np.broadcast_to(tgt.reshape(-1 if tgt.ndim > 2 and batch else 1, rep.shape[1], 3), rep.shape)
-    correction = np.where(test_solution.out_of_gamut[..., None], rep - tgt, 0.0)
-    rows = m_test.shape[0] * cmf.shape[0]
+    target_xyz = targets.transpose(*[d for d in batch if d in targets.dims], *stimulus_dims, "xyz").values
+    reproduced = solution.reproduced
+    target_xyz = np.broadcast_to(target_xyz.reshape(-1 if target_xyz.ndim > 2 and batch else 1, reproduced.shape[1], 3),
+                                 reproduced.shape)
+    correction = np.where(solution.out_of_gamut[..., None], reproduced - target_xyz, 0.0)
+    rows = test_matrices.shape[0] * cmf.shape[0]
     if reference is not None:  # both sides' XYZ from the drives, in the same pass as CIELAB and CIE 2000
-        xyz_r, xyz_t, lab_r, lab_t, de, index = driven_pair_differences(
-            ref_rendering.drive, m_ref[:1], b_ref[:1], test_solution.drive, m_test, b_test, adapted.reshape(rows, 3),
-            correction)
-        xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
+        xyz_reference, xyz_test, lab_reference, lab_test, delta_e, index = driven_pair_differences(
+            reference_rendering.drive, reference_matrices[:1], reference_black[:1], solution.drive, test_matrices,
+            test_black, adapted.reshape(rows, 3), correction)
+        xyz_reference_per_design = np.broadcast_to(xyz_reference, xyz_test.shape)
     else:
-        xyz_r = np.ascontiguousarray(np.swapaxes(seen[..., 1:], -1, -2))  # (O, S, 3)
-        xyz_t = apply_matrices(test_solution.drive, m_test, b_test)  # (B, O, S, 3)
-        xyz_r_b = np.broadcast_to(xyz_r, xyz_t.shape)
-        n_stim = xyz_t.shape[2]
-        lab_r, lab_t, de, index = pair_differences(xyz_r_b.reshape(rows, n_stim, 3), xyz_t.reshape(rows, n_stim, 3),
-                                                   adapted.reshape(rows, 3), correction)
-    de_white = delta_e_2000_array(xyz_to_lab_array(np.broadcast_to(white_ref, white_test.shape), adapted),
-                                  xyz_to_lab_array(white_test, adapted))
-    itp = None
-    if include_itp:
-        itp = itp_difference(xyz_r_b, xyz_t)
+        xyz_reference = np.ascontiguousarray(np.swapaxes(seen[..., 1:], -1, -2))  # (O, S, 3)
+        xyz_test = apply_matrices(solution.drive, test_matrices, test_black)  # (B, O, S, 3)
+        xyz_reference_per_design = np.broadcast_to(xyz_reference, xyz_test.shape)
+        n_stimuli = xyz_test.shape[2]
+        lab_reference, lab_test, delta_e, index = pair_differences(
+            xyz_reference_per_design.reshape(rows, n_stimuli, 3), xyz_test.reshape(rows, n_stimuli, 3),
+            adapted.reshape(rows, 3), correction)
+    delta_e_white = delta_e_2000_array(xyz_to_lab_array(np.broadcast_to(reference_white, test_white.shape), adapted),
+                                       xyz_to_lab_array(test_white, adapted))
+    delta_e_itp = itp_difference(xyz_reference_per_design, xyz_test) if include_itp else None
 
-    sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0],
-             **dict(zip(test_solution.dims, test_solution.sizes))}
-    pair_dims = (*batch, "observer", *stim)
+    sizes = {**dict(zip(batch, batch_shape)), "observer": cmf.shape[0], **dict(zip(solution.dims, solution.sizes))}
+    pair_dims = (*batch, "observer", *stimulus_dims)
     observer_dims = (*batch, "observer")
 
     def shaped(values, dims, tail=()):
         return (*dims, *tail), np.reshape(values, [sizes[d] for d in dims] + [3] * len(tail))
 
     out = {
-        "xyz_reference": shaped(xyz_r_b if batch else xyz_r, pair_dims, ("xyz",)),
-        "xyz_test": shaped(xyz_t, pair_dims, ("xyz",)),
+        "xyz_reference": shaped(xyz_reference_per_design if batch else xyz_reference, pair_dims, ("xyz",)),
+        "xyz_test": shaped(xyz_test, pair_dims, ("xyz",)),
         "adapted_white_xyz": shaped(adapted, observer_dims, ("xyz",)),
-        "lab_reference": shaped(lab_r, pair_dims, ("lab",)),
-        "lab_test": shaped(lab_t, pair_dims, ("lab",)),
-        "delta_e_2000": shaped(de, pair_dims),
-        "delta_e_white": shaped(de_white, observer_dims),
+        "lab_reference": shaped(lab_reference, pair_dims, ("lab",)),
+        "lab_test": shaped(lab_test, pair_dims, ("lab",)),
+        "delta_e_2000": shaped(delta_e, pair_dims),
+        "delta_e_white": shaped(delta_e_white, observer_dims),
         "metamerism_index": shaped(index, pair_dims),
     }
-    if itp is not None:
-        out["delta_e_itp"] = shaped(itp, pair_dims)
+    if delta_e_itp is not None:
+        out["delta_e_itp"] = shaped(delta_e_itp, pair_dims)
     return out
 
 

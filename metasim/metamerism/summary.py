@@ -17,7 +17,7 @@ import numpy as np
 import xarray as xr
 
 from metasim._threads import blas_single_threaded
-from metasim.labelling import label_coordinate as _label_coordinate
+from metasim.labelling import label_coordinate
 from metasim.errors import MismatchError
 from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_along
 from metasim.statistics import observer_weights as _statistics_weights
@@ -227,7 +227,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     attrs = summary_attrs(weights)
     out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, attrs["by_stimulus"])
     out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer, attrs["by_observer"])
-    fixed = [_label_coordinate("statistic", STATISTICS)]
+    fixed = [label_coordinate("statistic", STATISTICS)]
     if bands:
         band_labels, counts, members = bands
         blocks = []
@@ -244,11 +244,11 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
             by_age[:, filled] = by_segment
         out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, attrs["by_age"])
         out["observers_per_age_band"] = ("age_band", np.asarray(counts), attrs["observers_per_age_band"])
-        fixed.append(_label_coordinate("age_band", tuple(band_labels)))
+        fixed.append(label_coordinate("age_band", tuple(band_labels)))
     out["share_beyond"] = (("threshold", "stimulus", *rest), share, attrs["share_beyond"])
     # every stimulus weighs the same, so the share of all pairs is the mean of the stimuli's shares
     out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1), attrs["share_beyond_overall"])
-    threshold = _label_coordinate("threshold", tuple(t.tolist()))
+    threshold = label_coordinate("threshold", tuple(t.tolist()))
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}
     # a fresh variable for the attributes (the cached coordinate is shared), its index reused

@@ -121,7 +121,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
     obs = side.observers
     cmf, step = flat_observers(obs)
     reference_matrices = None
-    if side.ref_kind == "display":
+    if side.reference_kind == "display":
         (m_ref, b_ref), = display_matrices([side.reference], cmf, step)
         reference_matrices = (m_ref[:1], b_ref[:1])
         white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed as the engine sums the test white
@@ -197,9 +197,9 @@ class _TestSide:
         # observer-change metamerism index: the test display's residual for the calibration observer
         # (zero inside the test gamut, where the match is exact by construction), as in the engine
         stim = [d for d in solution.dims if d not in solution.batch]
-        standard = side.reference_cal.transpose(*stim, "xyz").values  # the reference as the calibration observer sees it
-        tgt = np.broadcast_to(standard.reshape(1, -1, 3), solution.reproduced.shape)
-        self.correction = np.where(solution.out_of_gamut[..., None], solution.reproduced - tgt, 0.0)
+        standard = side.reference_calibration.transpose(*stim, "xyz").values  # the reference as the calibration observer sees it
+        target_xyz = np.broadcast_to(standard.reshape(1, -1, 3), solution.reproduced.shape)
+        self.correction = np.where(solution.out_of_gamut[..., None], solution.reproduced - target_xyz, 0.0)
         self.designs, self.observers = self.matrices.shape[0], self.matrices.shape[1]
         self.stimuli = solution.drive.shape[1]
 
@@ -210,10 +210,11 @@ class _TestSide:
         out = {"delta_e_white": delta_e_2000_array(
             xyz_to_lab_array(np.broadcast_to(context.white_reference, self.white.shape), self.adapted),
             xyz_to_lab_array(self.white, self.adapted)).reshape(shape)}
-        cal_white = side.white_cal if context.adapted_white == "reference" else self.test.white_tristimulus(side.calibration)
-        de_cal = delta_e_variable(lab_variable(side.reference_cal, cal_white.variable),
-                                   lab_variable(solution.variable("reproduced"), cal_white.variable))
-        out["delta_e_2000_calibration"] = de_cal.transpose(*solution.dims).values.reshape(self.designs, self.stimuli)
+        calibration_white = (side.white_calibration if context.adapted_white == "reference"
+                             else self.test.white_tristimulus(side.calibration))
+        delta_e_calibration = delta_e_variable(lab_variable(side.reference_calibration, calibration_white.variable),
+                                               lab_variable(solution.variable("reproduced"), calibration_white.variable))
+        out["delta_e_2000_calibration"] = delta_e_calibration.transpose(*solution.dims).values.reshape(self.designs, self.stimuli)
         out["out_of_gamut"] = solution.out_of_gamut.astype(bool).reshape(self.designs, self.stimuli)
         return out
 
