@@ -61,3 +61,55 @@ def blas_single_threaded(function):
             return function(*args, **kwargs)
 
     return wrapper
+
+
+# -- metasim's own kernel threads ------------------------------------------------------------------
+# The compiled kernels are serial loops over rows that release the GIL (``nogil=True``); work is
+# spread over cores by running disjoint row ranges of one kernel on a shared thread pool. Compared
+# with numba's ``parallel=True`` this compiles each kernel once (no parallel variant of its loop
+# body, no separate small-input variant) and leaves no spinning worker threads behind. Every row is
+# computed by the same machine code whatever range it falls in, so results do not depend on the
+# number of threads or parts.
+
+_pool = None
+_pool_lock = threading.Lock()
+
+
+def kernel_threads() -> int:
+    """Threads the kernels use: ``NUMBA_NUM_THREADS`` if set, else the CPUs this process may use."""
+    import os
+
+    value = os.environ.get("NUMBA_NUM_THREADS", "")
+    if value.strip().isdigit() and int(value) > 0:
+        return int(value)
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def _executor():
+    global _pool
+    if _pool is None:
+        with _pool_lock:
+            if _pool is None:
+                from concurrent.futures import ThreadPoolExecutor
+
+                _pool = ThreadPoolExecutor(max_workers=kernel_threads(), thread_name_prefix="metasim-kernel")
+    return _pool
+
+
+def run_in_parts(kernel, count: int, *args, min_part: int = 1) -> None:
+    """``kernel(*args, start, stop)`` over ``[0, count)``: in one call for small counts, else in
+    contiguous parts of at least ``min_part`` rows run on the kernel thread pool (a few parts per
+    thread, so uneven rows even out). Returns when every part is done; re-raises a part's error."""
+    threads = kernel_threads()
+    parts = min(4 * threads, count // max(min_part, 1)) if threads > 1 else 1
+    if parts <= 1:
+        kernel(*args, 0, count)
+        return
+    bounds = [count * i // parts for i in range(parts + 1)]
+    pool = _executor()
+    futures = [pool.submit(kernel, *args, bounds[i], bounds[i + 1]) for i in range(parts)]
+    for future in futures:
+        future.result()

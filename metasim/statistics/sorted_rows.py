@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from metasim.statistics._kernels.rowstats import sorted_one, sorted_rows
+from metasim.statistics._kernels.rowstats import sorted_rows
 
 
 def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray | tuple[np.ndarray, np.ndarray]:
@@ -30,7 +30,7 @@ def row_stats(rows: np.ndarray, thresholds=(), *, axis: int = 1) -> np.ndarray |
     ordered = np.sort(rows, axis=axis)
     out = np.empty((4, count))
     shares = np.empty((thresholds.size, count))
-    sorted_rows(ordered if axis == 1 else ordered.T, thresholds, out, shares)
+    sorted_rows(ordered, thresholds, out, shares, by_column=axis == 0)
     out[0] = rows.mean(axis=axis)
     return (out, shares) if thresholds.size else out
 
@@ -47,7 +47,7 @@ def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
     thresholds = np.asarray(thresholds, dtype=float).ravel()
     by_stimulus = np.empty((4, values.shape[1]))
     shares = np.empty((thresholds.size, values.shape[1]))
-    sorted_rows(np.sort(values, axis=0).T, thresholds, by_stimulus, shares)
+    sorted_rows(np.sort(values, axis=0), thresholds, by_stimulus, shares, by_column=True)
     by_stimulus[0] = values.mean(axis=0)
     by_observer = np.empty((4, values.shape[0]))
     sorted_rows(np.sort(values, axis=1), thresholds[:0], by_observer, np.empty((0, values.shape[0])))
@@ -55,7 +55,9 @@ def observer_stimulus_stats(values: np.ndarray, thresholds, segments):
     by_segment = np.empty((4, len(segments)))
     for g, members in enumerate(segments):
         pairs = values[members].ravel()
-        sorted_one(np.sort(pairs), thresholds[:0], by_segment, np.empty((0, len(segments))), g)
+        one = np.empty((4, 1))
+        sorted_rows(np.sort(pairs)[None, :], thresholds[:0], one, np.empty((0, 1)))
+        by_segment[1:, g] = one[1:, 0]
         by_segment[0, g] = pairs.mean()
     return by_stimulus, shares, by_observer, by_segment
 

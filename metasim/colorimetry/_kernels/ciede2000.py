@@ -15,8 +15,10 @@ import math
 import numba
 import numpy as np
 
+from metasim._threads import run_in_parts
 from metasim.colorimetry._kernels.series import atan2, exp_negative, sin_reduced
 from metasim.colorimetry._kernels.simd import wide_vectors as _wide_vectors
+from metasim.colorimetry._kernels.types import writable
 
 _25_POW_7 = 25.0**7
 _DEG = math.pi / 180.0
@@ -193,12 +195,11 @@ def padded(m):
     return (m + PAD - 1) // PAD * PAD
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def _blocks(lab1, lab2, k_L, out):
-    """Parallel over blocks: transpose each block to padded columns, run the vector loop, mend flagged pairs."""
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _blocks(lab1, lab2, k_L, out, first, last):
+    """Blocks first:last: transpose each block to padded columns, run the vector loop, mend flagged pairs."""
     n = out.shape[0]
-    blocks = (n + _BLOCK - 1) // _BLOCK
-    for block in numba.prange(blocks):
+    for block in range(first, last):
         start = block * _BLOCK
         stop = min(start + _BLOCK, n)
         m = stop - start
@@ -223,5 +224,6 @@ def _blocks(lab1, lab2, k_L, out):
 
 
 def delta_e_2000_pairs(lab_1: np.ndarray, lab_2: np.ndarray, k_L: float, out: np.ndarray) -> None:
-    """out[i] = ΔE00 between rows i of the C-contiguous float arrays lab_1 and lab_2 (n, 3)."""
-    _blocks(lab_1, lab_2, k_L, out)
+    """out[i] = ΔE00 between rows i of the float arrays lab_1 and lab_2 (n, 3); blocks of pairs on
+    the kernel threads."""
+    run_in_parts(_blocks, (out.shape[0] + _BLOCK - 1) // _BLOCK, writable(lab_1), writable(lab_2), float(k_L), out)

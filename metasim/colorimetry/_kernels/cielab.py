@@ -10,8 +10,10 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from metasim._threads import run_in_parts
 from metasim.colorimetry._kernels.series import cbrt_folded
 from metasim.colorimetry._kernels.simd import wide_vectors as _wide_vectors
+from metasim.colorimetry._kernels.types import writable
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 
@@ -61,40 +63,29 @@ def _lab_of_row(xyz, white, out, r):
 _CHUNK = 1024
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def _lab_chunks(flat, out):
-    """CIELAB of ratios flat (n, 3) (white 1, 1, 1) in chunks of _CHUNK rows, chunks in parallel."""
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _lab_chunks(flat, out, start, stop):
+    """CIELAB of ratios flat (n, 3) (white 1, 1, 1), chunks start:stop of _CHUNK rows."""
     n = flat.shape[0]
-    for c in numba.prange((n + _CHUNK - 1) // _CHUNK):
+    for c in range(start, stop):
         _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _lab_chunks_serial(flat, out):
-    n = flat.shape[0]
-    for c in range((n + _CHUNK - 1) // _CHUNK):
-        _lab_span(flat, c * _CHUNK, min(c * _CHUNK + _CHUNK, n), 1.0, 1.0, 1.0, out)
-
-
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def _lab_rows(xyz, white, out):
-    """CIELAB of xyz (rows, columns, 3) against one white per row (rows, 3), rows in parallel."""
-    for r in numba.prange(xyz.shape[0]):
-        _lab_of_row(xyz, white, out, r)
-
-
-@numba.njit(cache=True, nogil=True, error_model="numpy")
-def _lab_rows_serial(xyz, white, out):
-    """As :func:`_lab_rows` on one thread (small inputs: no thread start-up)."""
-    for r in range(xyz.shape[0]):
+def _lab_rows(xyz, white, out, start, stop):
+    """CIELAB of xyz (rows, columns, 3) against one white per row (rows, 3), rows start:stop."""
+    for r in range(start, stop):
         _lab_of_row(xyz, white, out, r)
 
 
 def lab_of_ratios(flat: np.ndarray, out: np.ndarray) -> None:
-    """CIELAB of ratios XYZ / XYZ_white (n, 3) into out (n, 3); parallel from 4096 rows."""
-    (_lab_chunks if flat.shape[0] >= 4096 else _lab_chunks_serial)(flat, out)
+    """CIELAB of ratios XYZ / XYZ_white (n, 3) into out (n, 3); on the kernel threads from 4096 rows."""
+    chunks = (flat.shape[0] + _CHUNK - 1) // _CHUNK
+    run_in_parts(_lab_chunks, chunks, writable(flat), out, min_part=1 if flat.shape[0] >= 4096 else chunks)
 
 
 def lab_of_rows(xyz: np.ndarray, white: np.ndarray, out: np.ndarray) -> None:
     """CIELAB of xyz (rows, columns, 3) against one white per row (rows, 3) into out."""
-    (_lab_rows if xyz.shape[0] * xyz.shape[1] >= 4096 else _lab_rows_serial)(xyz, white, out)
+    rows = xyz.shape[0]
+    run_in_parts(_lab_rows, rows, writable(xyz), writable(white), out,
+                 min_part=1 if rows * xyz.shape[1] >= 4096 else rows)

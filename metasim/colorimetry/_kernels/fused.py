@@ -10,9 +10,11 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from metasim._threads import run_in_parts
 from metasim.colorimetry._kernels.cielab import lab_columns
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_columns, delta_e_2000_scalar, padded
 from metasim.colorimetry._kernels.sums import xyz_of_drives
+from metasim.colorimetry._kernels.types import writable
 
 
 @numba.njit(cache=True, error_model="numpy")
@@ -82,11 +84,11 @@ def corrected_differences_into(xyz_test, lab_ref, c, columns, corrected, wx, wy,
         out[where[j]] = cvalues[j]
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index):
-    rows, columns = xyz_test.shape[0], xyz_test.shape[1]
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index, start, stop):
+    columns = xyz_test.shape[1]
     width = padded(columns)  # full vectors only: results do not depend on the row length
-    for r in numba.prange(rows):
+    for r in range(start, stop):
         buf = np.ones((6, width))  # xyz_ref, xyz_test (as columns)
         for s in range(columns):
             for k in range(3):
@@ -96,13 +98,13 @@ def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test
                           lab_ref, lab_test, delta_e, index)
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white, correction,
-                      xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index):
-    groups, observers = test_matrices.shape[0], test_matrices.shape[1]
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white, correction,
+                      xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index, start, stop):
+    observers = test_matrices.shape[1]
     columns = xyz_test.shape[2]
     width = test_t.shape[2]
-    for r in numba.prange(groups * observers):
+    for r in range(start, stop):
         g = r // observers
         o = r % observers
         buf = np.empty((6, width))
@@ -117,3 +119,21 @@ def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test
                     xyz_ref[o, s, k] = buf[k, s]
         _pairs_of_columns(buf, correction[g], white[r, 0], white[r, 1], white[r, 2], columns, r,
                           lab_ref, lab_test, delta_e, index)
+
+
+def pair_rows(xyz_ref, xyz_test, white, correction, observers, lab_ref, lab_test, delta_e, index) -> None:
+    """Every row (observer of a group) of :func:`metasim.colorimetry.fused.pair_differences`, rows
+    on the kernel threads: inputs xyz_ref, xyz_test (rows, S, 3), white (rows, 3), correction
+    (groups, S, 3); outputs lab_ref, lab_test (rows, S, 3), delta_e, index (rows, S)."""
+    run_in_parts(_pair_rows, xyz_test.shape[0], writable(xyz_ref), writable(xyz_test), writable(white),
+                 writable(correction), int(observers), lab_ref, lab_test, delta_e, index)
+
+
+def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white, correction,
+                     xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index) -> None:
+    """Every row of :func:`metasim.colorimetry.fused.driven_pair_differences` (one observer of one
+    design), rows on the kernel threads."""
+    inputs = [writable(a) for a in (ref_t, ref_matrices, ref_black, test_t, test_matrices, test_black, white,
+                                    correction)]
+    run_in_parts(_pair_rows_driven, test_matrices.shape[0] * test_matrices.shape[1], *inputs,
+                 xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index)

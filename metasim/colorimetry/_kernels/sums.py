@@ -12,7 +12,9 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from metasim._threads import run_in_parts
 from metasim.colorimetry._kernels.simd import wide_vectors
+from metasim.colorimetry._kernels.types import writable
 
 _FAST = {"contract"}  # fused multiply-add only
 _SUM = {"contract", "reassoc"}  # the wavelength sum may be split into vector lanes
@@ -28,19 +30,11 @@ def _dot(ai, bj):
     return total
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def _products_parallel(a, b, out):
-    wide_vectors()
-    for i in numba.prange(a.shape[0]):
-        ai = a[i]
-        for j in range(b.shape[0]):
-            out[i, j] = _dot(ai, b[j])
-
-
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _products_serial(a, b, out):
+def _products(a, b, out, start, stop):
+    """Rows start:stop of out = a @ b.T, each element by :func:`_dot`."""
     wide_vectors()
-    for i in range(a.shape[0]):
+    for i in range(start, stop):
         ai = a[i]
         for j in range(b.shape[0]):
             out[i, j] = _dot(ai, b[j])
@@ -67,13 +61,13 @@ def xyz_of_drives(drive_t, g, matrices, offset, o, out, first):
                 row[s] += drive_t[g, p, s] * weight
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def _apply(drive_t, matrices, offset, out):
-    """out[g, o, s, k] from :func:`xyz_of_drives`, every group and observer in parallel."""
-    groups, observers = matrices.shape[0], matrices.shape[1]
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _apply(drive_t, matrices, offset, out, start, stop):
+    """out[g, o, s, k] from :func:`xyz_of_drives` for the (group, observer) tasks start:stop."""
+    observers = matrices.shape[1]
     width = drive_t.shape[2]
     stimuli = out.shape[2]
-    for task in numba.prange(groups * observers):
+    for task in range(start, stop):
         g = task // observers
         o = task % observers
         acc = np.empty((3, width))
@@ -84,9 +78,10 @@ def _apply(drive_t, matrices, offset, out):
 
 
 def products(a: np.ndarray, b: np.ndarray, out: np.ndarray) -> None:
-    """out[i, j] = Σ_w a[i, w]·b[j, w] for C-contiguous float a (M, W), b (K, W); rows of a in
-    parallel from 2048 elements."""
-    (_products_parallel if out.size >= 2048 else _products_serial)(a, b, out)
+    """out[i, j] = Σ_w a[i, w]·b[j, w] for float a (M, W), b (K, W); rows of a on the kernel threads
+    from 2048 elements."""
+    run_in_parts(_products, a.shape[0], writable(a), writable(b), out,
+                 min_part=a.shape[0] if out.size < 2048 else 1)
 
 
 def padded_drives(drive: np.ndarray) -> np.ndarray:
@@ -100,4 +95,5 @@ def padded_drives(drive: np.ndarray) -> np.ndarray:
 
 def apply(drive_t: np.ndarray, matrices: np.ndarray, offset: np.ndarray, out: np.ndarray) -> None:
     """out (G, O, S, 3) from the padded drives (G, N, S_padded), matrices (G, O, 3, N) and offset (G, O, 3)."""
-    _apply(drive_t, matrices, offset, out)
+    run_in_parts(_apply, matrices.shape[0] * matrices.shape[1], writable(drive_t), writable(matrices),
+                 writable(offset), out)

@@ -1,5 +1,5 @@
 """Compiled CIELAB clipping behind :func:`metasim.display.drive.solve_drive`: Gauss-Newton in CIELAB
-with box constraints on the drives, row by row (rows in parallel).
+with box constraints on the drives, row by row (rows on the kernel threads).
 
 CIELAB here uses libm's cube root (CIE 15:2004 §8.2.1) and its Jacobian; each step is a box QP
 (:func:`metasim.display._kernels.qp.box_qp_row`).
@@ -10,6 +10,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from metasim._threads import run_in_parts
+from metasim.colorimetry._kernels.types import writable
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
 from metasim.display._kernels.qp import box_qp_row
@@ -100,13 +102,13 @@ def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_ite
     box_qp_row(H_c, f_c, lo, hi, out, max_iter, 1e-12)
 
 
-@numba.njit(cache=True, nogil=True, parallel=True)
-def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out):
-    """Gauss-Newton in CIELAB with box constraints, per row (see ``metasim.display.drive``)."""
-    R, _, n = A.shape
+@numba.njit(cache=True, nogil=True)
+def _clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out, start, stop):
+    """Gauss-Newton in CIELAB with box constraints, rows start:stop (see ``metasim.display.drive``)."""
+    n = A.shape[2]
     lo = np.zeros(n)
     hi = np.ones(n)
-    for r in numba.prange(R):
+    for r in range(start, stop):
         lab_target = np.empty(3)
         _lab3(target[r, 0], target[r, 1], target[r, 2], white[r, 0], white[r, 1], white[r, 2], lab_target)
         jac = np.empty((3, 3))
@@ -120,7 +122,8 @@ def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterati
         d = np.zeros(n)
         proposal = np.empty(n)
         _step(jac, residual, d, A[r], H_s[r], f_s[r], q_scale[r], weight_factor, lo, hi, max_iter, proposal)
-        d[:] = proposal
+        for k in range(n):  # element loops: whole-array assignment compiles a shape check with messages
+            d[k] = proposal[k]
         xyz = np.empty(3)
         lab = np.empty(3)
         cost = _cost(A[r], black[r], d, white[r], lab_target, xyz, lab)
@@ -134,6 +137,15 @@ def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterati
             new_cost = _cost(A[r], black[r], proposal, white[r], lab_target, xyz, lab)
             if not new_cost < cost * (1 - 1e-12):
                 break
-            d[:] = proposal
+            for k in range(n):
+                d[k] = proposal[k]
             cost = new_cost
-        out[r] = d
+        for k in range(n):
+            out[r, k] = d[k]
+
+
+def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out) -> None:
+    """Clipped drives of every row into out (R, N), rows on the kernel threads: A (R, 3, N) primary
+    XYZ, black / target / white (R, 3), strategy objective H_s (R, N, N), f_s (R, N), q_scale (R,)."""
+    arrays = [writable(a) for a in (A, black, target, white, H_s, f_s, q_scale)]
+    run_in_parts(_clip_rows, out.shape[0], *arrays, float(weight_factor), int(iterations), int(max_iter), out)

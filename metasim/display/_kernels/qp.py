@@ -1,7 +1,7 @@
 """Compiled row-by-row quadratic programmes behind :mod:`metasim.display.solvers`.
 
 One row (one stimulus of one design) at a time with N ≤ a few primaries, where numpy's per-call
-overhead dominated; rows run in parallel. Same algorithms as documented in the solvers module:
+overhead dominated; rows run on the kernel threads. Same algorithms as documented in the solvers module:
 the primal active-set method for the box QP (Nocedal & Wright 2006, Algorithm 16.3) and active-set
 enumeration for the equality-constrained box QP with a shared objective.
 """
@@ -10,6 +10,9 @@ from __future__ import annotations
 
 import numba
 import numpy as np
+
+from metasim._threads import run_in_parts
+from metasim.colorimetry._kernels.types import writable
 
 
 @numba.njit(cache=True)
@@ -113,15 +116,15 @@ def box_qp_row(H, f, lo, hi, x, max_iter, tol):
         x[i] = min(max(x[i], lo[i]), hi[i])
 
 
-@numba.njit(cache=True, nogil=True, parallel=True)
-def box_qp_rows(H, f, lo, hi, x, max_iter, tol):
-    """All rows of a batched box QP (H (R, N, N), f (R, N), x (R, N) start and result)."""
-    for r in numba.prange(f.shape[0]):
+@numba.njit(cache=True, nogil=True)
+def _box_qp_rows(H, f, lo, hi, x, max_iter, tol, start, stop):
+    """Rows start:stop of a batched box QP (H (R, N, N), f (R, N), x (R, N) start and result)."""
+    for r in range(start, stop):
         box_qp_row(H[r], f[r], lo, hi, x[r], max_iter, tol)
 
 
-@numba.njit(cache=True, nogil=True, parallel=True, error_model="numpy")
-def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, tol, best_d, feasible):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, tol, best_d, feasible, first, last):
     """The shared-H case of :func:`metasim.display.solvers.equality_box_qp`, row by row.
 
     inverse (P, C, N + k, K): the inverted KKT matrix of every candidate (drive and bound-multiplier
@@ -134,7 +137,7 @@ def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, t
     m = A.shape[1]
     k = values.shape[1]
     groups = starts.shape[0] - 1
-    for task in numba.prange(P * S):
+    for task in range(first, last):
         p = task // S
         s = task % S
         d = np.empty(N)
@@ -205,3 +208,18 @@ def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, t
                 feasible[p, s] = True
             if closed:
                 break
+
+
+def box_qp_rows(H, f, lo, hi, x, max_iter, tol) -> None:
+    """Every row of a batched box QP, solved in place in x (R, N) (start and result)."""
+    run_in_parts(_box_qp_rows, f.shape[0], writable(H), writable(f), writable(lo), writable(hi), x,
+                 int(max_iter), float(tol))
+
+
+def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, tol, best_d, feasible) -> None:
+    """Every (design, stimulus) row of the shared-H equality-constrained box QP (see
+    :func:`_equality_qp_rows`), rows on the kernel threads; results in best_d and feasible."""
+    P, S = f.shape[0], f.shape[1]
+    run_in_parts(_equality_qp_rows, P * S, writable(inverse), writable(H), writable(f), writable(A), writable(b),
+                 writable(lo), writable(hi), writable(values), writable(used, bool), writable(upper, bool),
+                 writable(starts, np.int64), float(tol), best_d, feasible)

@@ -5,7 +5,7 @@
             points first_pass, gather_windows, walk, resample_counts; used by
             :mod:`metasim.statistics.resampling`)
 ``rowstats`` median, 95th percentile, maximum and shares beyond thresholds of sorted rows (entry
-            points sorted_rows, sorted_one; used by :mod:`metasim.statistics.sorted_rows`)
+            point sorted_rows; used by :mod:`metasim.statistics.sorted_rows`)
 ``order``   mean (in numpy's pairwise order), linear quantiles and maximum of unsorted rows by
             bucket selection, no sort (entry points summarise_rows, summarise, numpy_sum; used by
             :mod:`metasim.statistics.selection` and, per design, by the sweep's compiled pass

@@ -6,6 +6,10 @@ from __future__ import annotations
 import math
 
 import numba
+import numpy as np
+
+from metasim._threads import run_in_parts
+from metasim.colorimetry._kernels.types import writable
 
 
 @numba.njit(cache=True, inline="always")
@@ -43,12 +47,18 @@ def _summarise_sorted(row, thresholds, out, shares, g):
         shares[t, g] = _count_above(row, n, thresholds[t]) / n
 
 
-@numba.njit(cache=True, nogil=True, parallel=True)
-def sorted_rows(rows, thresholds, out, shares):
-    for g in numba.prange(rows.shape[0]):
-        _summarise_sorted(rows[g], thresholds, out, shares, g)
-
-
 @numba.njit(cache=True, nogil=True)
-def sorted_one(row, thresholds, out, shares, g):
-    _summarise_sorted(row, thresholds, out, shares, g)
+def _sorted_rows(ordered, by_column, thresholds, out, shares, start, stop):
+    for g in range(start, stop):
+        row = ordered[:, g] if by_column else ordered[g]
+        _summarise_sorted(row, thresholds, out, shares, g)
+
+
+def sorted_rows(ordered: np.ndarray, thresholds: np.ndarray, out: np.ndarray, shares: np.ndarray, *,
+                by_column: bool = False) -> None:
+    """out[1:4, g] (median, p95, max) and shares[t, g] beyond thresholds[t] of every sorted row g of
+    ``ordered`` (2-D; with ``by_column`` its columns), rows on the kernel threads."""
+    if ordered.flags.f_contiguous and not ordered.flags.c_contiguous:  # read its transpose: no copy
+        ordered, by_column = ordered.T, not by_column
+    count = ordered.shape[1] if by_column else ordered.shape[0]
+    run_in_parts(_sorted_rows, count, writable(ordered), bool(by_column), writable(thresholds), out, shares)
