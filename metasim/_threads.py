@@ -17,6 +17,8 @@ import threading
 
 from threadpoolctl import ThreadpoolController
 
+from metasim import _warmup
+
 
 _lock = threading.Lock()
 _depth = 0
@@ -103,6 +105,7 @@ def run_in_parts(kernel, count: int, *args, min_part: int = 1) -> None:
     """``kernel(*args, start, stop)`` over ``[0, count)``: in one call for small counts, else in
     contiguous parts of at least ``min_part`` rows run on the kernel thread pool (a few parts per
     thread, so uneven rows even out). Returns when every part is done; re-raises a part's error."""
+    _warmup.wait(kernel)  # compiled ahead in a helper process: wait for it, then load it from the cache
     threads = kernel_threads()
     parts = min(4 * threads, count // max(min_part, 1)) if threads > 1 else 1
     if parts <= 1:

@@ -1,5 +1,9 @@
 """Compiled helper kernels against numpy (reference library) and position independence."""
 
+import os
+import subprocess
+import sys
+
 import numpy as np
 import pytest
 
@@ -170,3 +174,51 @@ def test_unsorted_row_summaries_equal_numpy_bit_for_bit(n):
     expected = np.stack([rows.mean(1), np.quantile(rows, 0.5, axis=1), np.quantile(rows, 0.95, axis=1), rows.max(1)], 1)
     np.testing.assert_array_equal(stats, expected)
     assert all(numpy_sum(row, 0, n) == np.add.reduce(row) for row in rows)  # numpy's pairwise sum, same order
+
+
+def test_a_study_calls_each_kernel_with_its_declared_types():
+    # common practice, no source: the helper processes compile the declared types, so a study must
+    # call exactly those (else it would compile a second version itself)
+    from metasim import _warmup, mismatch, observer_population
+    from metasim._paths import data_dir
+    from metasim.cli.specs import load_display
+    from metasim.metamerism.stimuli import combine, neutral_ramp, primaries_and_secondaries
+
+    demo = data_dir() / "demo"
+    reference, _ = load_display(demo / "grading_monitor.toml")
+    test, _ = load_display(demo / "projector_four_laser.toml")
+    observers = observer_population(4, seed=3, wavelengths=test.wavelengths.values)
+    stimuli = combine(neutral_ramp(3, source="bt2020"), primaries_and_secondaries(source="bt2020"))  # some clipped
+    result = mismatch(reference, test, observers, stimuli)
+    assert bool(result["out_of_gamut_test"].any())  # the clipping kernel ran
+    for name in (name for group in _warmup.STUDY for name in group):
+        dispatcher, signature = _warmup._kernel(name)
+        assert list(dispatcher.overloads) == [_warmup._argument_types(signature)], name
+
+
+def test_helper_processes_fill_an_empty_kernel_cache(tmp_path):
+    # common practice, no source: a helper compiles into NUMBA_CACHE_DIR and the run then finds it
+    name = "metasim.statistics._kernels.rowstats:_sorted_rows"
+    script = ("import sys\nfrom metasim import _warmup\nbefore = _warmup.is_cached(sys.argv[1])\n"
+              "started = _warmup.start([[sys.argv[1]]])\ncompiled = []\n_warmup.on_compile(lambda: compiled.append(1))\n"
+              "import numpy as np\nfrom metasim.statistics.sorted_rows import row_stats\n"
+              "row_stats(np.arange(12.0).reshape(3, 4))\n"
+              "print(before, started, _warmup.is_cached(sys.argv[1]), len(compiled))\n")
+    env = dict(os.environ, NUMBA_CACHE_DIR=str(tmp_path / "cache"), NUMBA_NUM_THREADS="2")
+    done = subprocess.run([sys.executable, "-c", script, name], env=env, capture_output=True, text=True, timeout=600)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.split() == ["False", "True", "True", "0"]  # compiled by the helper only
+    assert any((tmp_path / "cache").rglob("*sorted_rows*.nbi"))
+
+
+def test_the_command_says_when_it_compiles(monkeypatch, capsys):
+    # common practice, no source: the note appears when compiling happens, and only then
+    from metasim import _warmup
+    from metasim.cli import COMPILING, _after_command, _kernels_ahead
+
+    for started in (True, False):
+        monkeypatch.setattr(_warmup, "start", lambda plan=None, started=started: started)
+        _kernels_ahead(quiet=False)
+        while _after_command:
+            _after_command.pop()()
+        assert (COMPILING in capsys.readouterr().err) == started

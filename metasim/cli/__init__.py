@@ -117,7 +117,30 @@ def _warning(message, category, filename, lineno, file=None, line=None) -> None:
 
 # -- subcommands -------------------------------------------------------------------------------------
 
+COMPILING = "compiling kernels (first run only)"
+_after_command: list = []  # clean-ups main() runs when a command ends
+
+
+def _kernels_ahead(quiet: bool) -> None:
+    """Compile a study's kernels in helper processes if numba's cache lacks them (metasim._warmup),
+    and say so once when compiling happens, here or in the helpers."""
+    from metasim import _warmup
+
+    said = []
+
+    def note():
+        if not said and not quiet:
+            said.append(True)
+            print(f"{PROG}: {COMPILING}", file=sys.stderr, flush=True)
+
+    if _warmup.start():
+        note()
+    _after_command.append(_warmup.on_compile(note))
+    _after_command.append(_warmup.stop)
+
+
 def cmd_demo(args) -> int:
+    _kernels_ahead(args.quiet)  # first: the helpers start before the rest of the library is imported
     from metasim.cli.demo import run_demo
 
     paths = run_demo(args.out, size=args.size, seed=args.seed, replace=args.replace, progress=args.progress)
@@ -239,6 +262,7 @@ def _study(args, designs: list, reference, specs: dict) -> int:
 
 
 def cmd_evaluate(args) -> int:
+    _kernels_ahead(args.quiet)
     from metasim.cli.specs import load_display
 
     args.observer_set = _observer_file(args)  # before any computing
@@ -249,6 +273,7 @@ def cmd_evaluate(args) -> int:
 
 
 def cmd_compare(args) -> int:
+    _kernels_ahead(args.quiet)
     from metasim.cli.specs import load_display
 
     args.observer_set = _observer_file(args)  # before any computing
@@ -314,6 +339,7 @@ def cmd_sweep(args) -> int:
     from metasim.sweep import run_sweep
 
     spec = read_sweep_spec(args.spec)
+    _kernels_ahead(args.quiet)
     args.observer_set = _observer_file(args)  # before any computing
     designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
     if args.reference is None and "reference" in spec:
@@ -816,6 +842,9 @@ def main(argv=None) -> int:
     except KeyboardInterrupt:
         _error("interrupted")
         return 130
+    finally:
+        while _after_command:
+            _after_command.pop()()
     return 1
 
 

@@ -22,6 +22,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from metasim import _warmup
+from metasim.colorimetry._kernels.types import writable
 from metasim.errors import StatisticsError
 from metasim.statistics._kernels import pooled as _pooled
 
@@ -66,6 +68,7 @@ def resample_counts(n_observers: int, resamples: int = DEFAULT_RESAMPLES, seed: 
     while True:  # more words only if the rare rejections used up the spare ones
         raw = np.random.PCG64(seed).random_raw(words)
         counts = np.zeros((n_resamples, n_observers))
+        _warmup.wait(_pooled.resample_counts)  # compiled ahead in a helper process (metasim._warmup)
         if _pooled.resample_counts(raw, counts) >= 0:
             return counts
         words *= 2
@@ -124,12 +127,12 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
         ``mean`` (1 + R), ``quantiles`` (Q, 1 + R), ``share_beyond`` (T, 1 + R), ``max`` (float):
         column 0 is the full sample, columns 1.. the resamples.
     """
-    values = np.ascontiguousarray(values, dtype=float)
+    values = writable(values)  # one argument type per kernel parameter (metasim._warmup)
     n_observers, n_stimuli = values.shape
     weighted = weights is not None
-    w = np.ones(n_observers) if weights is None else np.ascontiguousarray(weights, dtype=float)
-    members = np.arange(n_observers) if members is None else np.asarray(members, dtype=np.int64)
-    thresholds = np.asarray(thresholds, dtype=float).ravel()
+    w = np.ones(n_observers) if weights is None else writable(weights)
+    members = np.arange(n_observers) if members is None else writable(members, np.int64)
+    thresholds = writable(np.asarray(thresholds, dtype=float).ravel())
     n_columns = 1 + (0 if counts is None else counts.shape[0])
     if members.size == 0 or n_stimuli == 0:
         nan = np.full(n_columns, np.nan)
@@ -141,6 +144,7 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
     hist, hist_count = np.zeros(_pooled.FINE), np.zeros(_pooled.FINE, dtype=np.int64)
     coarse = np.zeros((members.size, _pooled.COARSE))
     sums, above = np.zeros(members.size), np.zeros((members.size, thresholds.size))
+    _warmup.wait(_pooled.first_pass, _pooled.gather_windows, _pooled.walk)
     _pooled.first_pass(values, members, w, low, scale, thresholds, hist, hist_count, coarse, sums, above)
     member_w = w[members]
     if counts is None:

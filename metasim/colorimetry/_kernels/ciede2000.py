@@ -227,3 +227,10 @@ def delta_e_2000_pairs(lab_1: np.ndarray, lab_2: np.ndarray, k_L: float, out: np
     """out[i] = ΔE00 between rows i of the float arrays lab_1 and lab_2 (n, 3); blocks of pairs on
     the kernel threads."""
     run_in_parts(_blocks, (out.shape[0] + _BLOCK - 1) // _BLOCK, writable(lab_1), writable(lab_2), float(k_L), out)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_blocks": ("float64[:, ::1]", "float64[:, ::1]", "float64", "float64[::1]", "int64", "int64"),
+}

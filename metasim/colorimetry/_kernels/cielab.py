@@ -89,3 +89,11 @@ def lab_of_rows(xyz: np.ndarray, white: np.ndarray, out: np.ndarray) -> None:
     rows = xyz.shape[0]
     run_in_parts(_lab_rows, rows, writable(xyz), writable(white), out,
                  min_part=1 if rows * xyz.shape[1] >= 4096 else rows)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_lab_chunks": ("float64[:, ::1]", "float64[:, ::1]", "int64", "int64"),
+    "_lab_rows": ("float64[:, :, ::1]", "float64[:, ::1]", "float64[:, :, ::1]", "int64", "int64"),
+}

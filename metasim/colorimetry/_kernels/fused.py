@@ -137,3 +137,17 @@ def pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, test
                                     correction)]
     run_in_parts(_pair_rows_driven, test_matrices.shape[0] * test_matrices.shape[1], *inputs,
                  xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_pair_rows": ("float64[:, :, ::1]", "float64[:, :, ::1]", "float64[:, ::1]", "float64[:, :, ::1]",
+                   "int64", "float64[:, :, ::1]", "float64[:, :, ::1]", "float64[:, ::1]", "float64[:, ::1]",
+                   "int64", "int64"),
+    "_pair_rows_driven": ("float64[:, :, ::1]", "float64[:, :, :, ::1]", "float64[:, :, ::1]",
+                          "float64[:, :, ::1]", "float64[:, :, :, ::1]", "float64[:, :, ::1]",
+                          "float64[:, ::1]", "float64[:, :, ::1]", "float64[:, :, ::1]",
+                          "float64[:, :, :, ::1]", "float64[:, :, ::1]", "float64[:, :, ::1]",
+                          "float64[:, ::1]", "float64[:, ::1]", "int64", "int64"),
+}

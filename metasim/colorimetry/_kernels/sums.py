@@ -97,3 +97,12 @@ def apply(drive_t: np.ndarray, matrices: np.ndarray, offset: np.ndarray, out: np
     """out (G, O, S, 3) from the padded drives (G, N, S_padded), matrices (G, O, 3, N) and offset (G, O, 3)."""
     run_in_parts(_apply, matrices.shape[0] * matrices.shape[1], writable(drive_t), writable(matrices),
                  writable(offset), out)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_products": ("float64[:, ::1]", "float64[:, ::1]", "float64[:, ::1]", "int64", "int64"),
+    "_apply": ("float64[:, :, ::1]", "float64[:, :, :, ::1]", "float64[:, :, ::1]", "float64[:, :, :, ::1]",
+               "int64", "int64"),
+}

@@ -2,7 +2,9 @@
 with box constraints on the drives, row by row (rows on the kernel threads).
 
 CIELAB here uses libm's cube root (CIE 15:2004 §8.2.1) and its Jacobian; each step is a box QP
-(:func:`metasim.display._kernels.qp.box_qp_row`).
+(:func:`metasim.display._kernels.qp.box_qp_row`). Compiled for size
+(:func:`~metasim.colorimetry._kernels.simd.small_code`): loops over a few primaries gain nothing
+from vector code.
 """
 
 from __future__ import annotations
@@ -11,6 +13,7 @@ import numba
 import numpy as np
 
 from metasim._threads import run_in_parts
+from metasim.colorimetry._kernels.simd import small_code
 from metasim.colorimetry._kernels.types import writable
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
@@ -24,6 +27,7 @@ def _f(t):
 
 @numba.njit(cache=True)
 def _lab3(x, y, z, wx, wy, wz, out):
+    small_code()
     fx, fy, fz = _f(x / wx), _f(y / wy), _f(z / wz)
     out[0] = 116.0 * fy - 16.0
     out[1] = 500.0 * (fx - fy)
@@ -33,6 +37,7 @@ def _lab3(x, y, z, wx, wy, wz, out):
 @numba.njit(cache=True)
 def _jacobian(xyz, white, jac):
     """∂(L*, a*, b*)/∂(X, Y, Z) (CIE 15:2004 §8.2.1)."""
+    small_code()
     g = np.empty(3)
     for k in range(3):
         t = xyz[k] / white[k]
@@ -48,6 +53,7 @@ def _jacobian(xyz, white, jac):
 
 @numba.njit(cache=True)
 def _colour(A, black, d, out):
+    small_code()
     for m in range(3):
         total = black[m]
         for k in range(d.shape[0]):
@@ -57,6 +63,7 @@ def _colour(A, black, d, out):
 
 @numba.njit(cache=True)
 def _cost(A, black, d, white, lab_target, xyz, lab):
+    small_code()
     _colour(A, black, d, xyz)
     _lab3(xyz[0], xyz[1], xyz[2], white[0], white[1], white[2], lab)
     return (lab[0] - lab_target[0]) ** 2 + (lab[1] - lab_target[1]) ** 2 + (lab[2] - lab_target[2]) ** 2
@@ -64,6 +71,7 @@ def _cost(A, black, d, white, lab_target, xyz, lab):
 
 @numba.njit(cache=True)
 def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_iter, out):
+    small_code()
     n = d.shape[0]
     g = np.zeros((3, n))
     for i in range(3):
@@ -105,6 +113,7 @@ def _step(jac, residual, d, A, H_s, f_s, q_scale, weight_factor, lo, hi, max_ite
 @numba.njit(cache=True, nogil=True)
 def _clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out, start, stop):
     """Gauss-Newton in CIELAB with box constraints, rows start:stop (see ``metasim.display.drive``)."""
+    small_code()
     n = A.shape[2]
     lo = np.zeros(n)
     hi = np.ones(n)
@@ -149,3 +158,12 @@ def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterati
     XYZ, black / target / white (R, 3), strategy objective H_s (R, N, N), f_s (R, N), q_scale (R,)."""
     arrays = [writable(a) for a in (A, black, target, white, H_s, f_s, q_scale)]
     run_in_parts(_clip_rows, out.shape[0], *arrays, float(weight_factor), int(iterations), int(max_iter), out)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_clip_rows": ("float64[:, :, ::1]", "float64[:, ::1]", "float64[:, ::1]", "float64[:, ::1]",
+                   "float64[:, :, ::1]", "float64[:, ::1]", "float64[::1]", "float64", "int64", "int64",
+                   "float64[:, ::1]", "int64", "int64"),
+}

@@ -223,3 +223,15 @@ def equality_qp_rows(inverse, H, f, A, b, lo, hi, values, used, upper, starts, t
     run_in_parts(_equality_qp_rows, P * S, writable(inverse), writable(H), writable(f), writable(A), writable(b),
                  writable(lo), writable(hi), writable(values), writable(used, bool), writable(upper, bool),
                  writable(starts, np.int64), float(tol), best_d, feasible)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_box_qp_rows": ("float64[:, :, ::1]", "float64[:, ::1]", "float64[::1]", "float64[::1]",
+                     "float64[:, ::1]", "int64", "float64", "int64", "int64"),
+    "_equality_qp_rows": ("float64[:, :, :, ::1]", "float64[:, :, ::1]", "float64[:, :, ::1]",
+                          "float64[:, :, ::1]", "float64[:, :, ::1]", "float64[::1]", "float64[::1]",
+                          "float64[:, ::1]", "boolean[:, ::1]", "boolean[:, ::1]", "int64[::1]", "float64",
+                          "float64[:, :, ::1]", "boolean[:, ::1]", "int64", "int64"),
+}

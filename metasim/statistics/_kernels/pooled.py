@@ -153,3 +153,15 @@ def resample_counts(raw, counts):
             counts[r, np.int64(product >> np.uint64(32))] += 1.0
             drawn += 1
     return used
+
+
+#: Argument types of the kernels as :mod:`metasim.statistics.resampling` calls them (compiled ahead
+#: of need by :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "first_pass": ("float64[:, ::1]", "int64[::1]", "float64[::1]", "float64", "float64", "float64[::1]",
+                   "float64[::1]", "int64[::1]", "float64[:, ::1]", "float64[::1]", "float64[:, ::1]"),
+    "gather_windows": ("float64[:, ::1]", "int64[::1]", "float64", "float64", "int64[::1]", "int64[::1]",
+                       "int64[::1]", "float64[::1]", "int64[::1]", "float64[:, ::1]"),
+    "walk": ("int64[::1]", "float64[:, ::1]", "float64[::1]", "int64", "float64[:, ::1]", "int64[:, ::1]"),
+    "resample_counts": ("uint64[::1]", "float64[:, ::1]"),
+}

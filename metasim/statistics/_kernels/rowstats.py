@@ -62,3 +62,11 @@ def sorted_rows(ordered: np.ndarray, thresholds: np.ndarray, out: np.ndarray, sh
         ordered, by_column = ordered.T, not by_column
     count = ordered.shape[1] if by_column else ordered.shape[0]
     run_in_parts(_sorted_rows, count, writable(ordered), bool(by_column), writable(thresholds), out, shares)
+
+
+#: Argument types of the kernels as the entry points above call them (compiled ahead of need by
+#: :mod:`metasim._warmup`; ``tests/test_kernels.py`` checks a study calls exactly these).
+SIGNATURES = {
+    "_sorted_rows": ("float64[:, ::1]", "boolean", "float64[::1]", "float64[:, ::1]", "float64[:, ::1]",
+                     "int64", "int64"),
+}
