@@ -47,6 +47,12 @@ STUDY = (
      "metasim.statistics._kernels.pooled:walk"),
 )
 
+#: Every kernel with declared types: the study's, then the others (the test suite's session warm-up).
+EVERY = (
+    STUDY[0] + ("metasim.colorimetry._kernels.sums:_apply", "metasim.display._kernels.qp:_box_qp_rows"),
+    STUDY[1] + ("metasim.colorimetry._kernels.fused:_pair_rows", "metasim.colorimetry._kernels.cielab:_lab_rows"),
+)
+
 _ROOT = Path(__file__).resolve().parent
 _pending: dict[str, threading.Event] = {}  # "module:function" -> set when its helper has compiled it
 _helpers: list[subprocess.Popen] = []
@@ -170,6 +176,13 @@ def on_compile(callback):
     listener = _Listener()
     numba_events.register("numba:compile", listener)
     return lambda: numba_events.unregister("numba:compile", listener)
+
+
+def finish() -> None:
+    """Wait until every helper this process started has ended (its kernels are in the cache)."""
+    for helper in list(_helpers):
+        helper.wait()
+    stop()
 
 
 def stop() -> None:

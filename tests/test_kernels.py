@@ -183,6 +183,7 @@ def test_a_study_calls_each_kernel_with_its_declared_types():
     from metasim._paths import data_dir
     from metasim.cli.specs import load_display
     from metasim.metamerism.stimuli import combine, neutral_ramp, primaries_and_secondaries
+    from metasim.statistics import population_statistics
 
     demo = data_dir() / "demo"
     reference, _ = load_display(demo / "grading_monitor.toml")
@@ -191,6 +192,7 @@ def test_a_study_calls_each_kernel_with_its_declared_types():
     stimuli = combine(neutral_ramp(3, source="bt2020"), primaries_and_secondaries(source="bt2020"))  # some clipped
     result = mismatch(reference, test, observers, stimuli)
     assert bool(result["out_of_gamut_test"].any())  # the clipping kernel ran
+    population_statistics(result["delta_e_2000"], interval=True, resamples=200)  # the interval kernels
     for name in (name for group in _warmup.STUDY for name in group):
         dispatcher, signature = _warmup._kernel(name)
         assert list(dispatcher.overloads) == [_warmup._argument_types(signature)], name
@@ -211,14 +213,55 @@ def test_helper_processes_fill_an_empty_kernel_cache(tmp_path):
     assert any((tmp_path / "cache").rglob("*sorted_rows*.nbi"))
 
 
-def test_the_command_says_when_it_compiles(monkeypatch, capsys):
+def test_the_command_says_when_it_compiles(monkeypatch):
     # common practice, no source: the note appears when compiling happens, and only then
+    import io
+
     from metasim import _warmup
     from metasim.cli import COMPILING, _after_command, _kernels_ahead
+    from metasim.progress import Progress
 
     for started in (True, False):
         monkeypatch.setattr(_warmup, "start", lambda plan=None, started=started: started)
-        _kernels_ahead(quiet=False)
+        stream = io.StringIO()
+        _kernels_ahead(Progress(stream=stream, heartbeat=None))
         while _after_command:
             _after_command.pop()()
-        assert (COMPILING in capsys.readouterr().err) == started
+        assert (COMPILING in stream.getvalue()) == started
+
+
+def test_the_cache_look_up_finds_what_numba_finds():
+    # common practice, no source: the look-up without importing a kernel's module asks numba's cache
+    # for the same index file and key as the kernel's own dispatcher does
+    from numba.core.caching import FunctionCache
+    from numba.core.registry import cpu_target
+
+    from metasim import _warmup
+
+    codegen = cpu_target.target_context.codegen()
+    for name in (name for group in _warmup.STUDY for name in group):
+        dispatcher, spelled = _warmup._kernel(name)
+        types = _warmup._argument_types(spelled)
+        stand_in = FunctionCache(_warmup._stand_in(name))
+        assert stand_in._cache_file._index_path == dispatcher._cache._cache_file._index_path, name
+        assert stand_in._index_key(types, codegen) == dispatcher._cache._index_key(types, dispatcher.targetctx.codegen())
+
+
+def test_every_declared_kernel_is_compiled_ahead_once():
+    # common practice, no source: the warm-up plans list each kernel with declared types exactly once
+    import ast
+    import pathlib
+
+    import metasim
+    from metasim import _warmup
+
+    root = pathlib.Path(metasim.__file__).parent
+    declared = set()
+    for path in root.rglob("_kernels/*.py"):
+        for node in ast.parse(path.read_text()).body:
+            if isinstance(node, ast.Assign) and any(getattr(t, "id", None) == "SIGNATURES" for t in node.targets):
+                module = ".".join(path.relative_to(root.parent).with_suffix("").parts)
+                declared |= {f"{module}:{function}" for function in ast.literal_eval(node.value)}
+    planned = [name for group in _warmup.EVERY for name in group]
+    assert sorted(planned) == sorted(declared)
+    assert set(_warmup.STUDY[0]) <= set(_warmup.EVERY[0]) and set(_warmup.STUDY[1]) <= set(_warmup.EVERY[1])

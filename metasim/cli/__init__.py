@@ -121,17 +121,17 @@ COMPILING = "compiling kernels (first run only)"
 _after_command: list = []  # clean-ups main() runs when a command ends
 
 
-def _kernels_ahead(quiet: bool) -> None:
+def _kernels_ahead(progress) -> None:
     """Compile a study's kernels in helper processes if numba's cache lacks them (metasim._warmup),
-    and say so once when compiling happens, here or in the helpers."""
+    and say so once on the command's progress reporter when compiling happens, here or in the helpers."""
     from metasim import _warmup
 
     said = []
 
     def note():
-        if not said and not quiet:
+        if not said:
             said.append(True)
-            print(f"{PROG}: {COMPILING}", file=sys.stderr, flush=True)
+            progress.say(COMPILING)
 
     if _warmup.start():
         note()
@@ -140,7 +140,7 @@ def _kernels_ahead(quiet: bool) -> None:
 
 
 def cmd_demo(args) -> int:
-    _kernels_ahead(args.quiet)  # first: the helpers start before the rest of the library is imported
+    _kernels_ahead(args.progress)  # first: the helpers start before the rest of the library is imported
     from metasim.cli.demo import run_demo
 
     paths = run_demo(args.out, size=args.size, seed=args.seed, replace=args.replace, progress=args.progress)
@@ -262,7 +262,7 @@ def _study(args, designs: list, reference, specs: dict) -> int:
 
 
 def cmd_evaluate(args) -> int:
-    _kernels_ahead(args.quiet)
+    _kernels_ahead(args.progress)
     from metasim.cli.specs import load_display
 
     args.observer_set = _observer_file(args)  # before any computing
@@ -273,7 +273,7 @@ def cmd_evaluate(args) -> int:
 
 
 def cmd_compare(args) -> int:
-    _kernels_ahead(args.quiet)
+    _kernels_ahead(args.progress)
     from metasim.cli.specs import load_display
 
     args.observer_set = _observer_file(args)  # before any computing
@@ -339,7 +339,7 @@ def cmd_sweep(args) -> int:
     from metasim.sweep import run_sweep
 
     spec = read_sweep_spec(args.spec)
-    _kernels_ahead(args.quiet)
+    _kernels_ahead(args.progress)
     args.observer_set = _observer_file(args)  # before any computing
     designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
     if args.reference is None and "reference" in spec:
@@ -443,6 +443,7 @@ def cmd_search(args) -> int:
     from metasim.sweep import best_design, run_search
 
     spec = read_search_spec(args.spec)
+    _kernels_ahead(args.progress)
     space, settings = spec_search_space(spec)
     search = spec["search"]
     if args.reference is None and "reference" in spec:
