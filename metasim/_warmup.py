@@ -122,12 +122,17 @@ def start(plan=STUDY) -> bool:
     """Start helper processes for the kernels of ``plan`` that are not cached (one per group of the
     plan, with two or more cores); True if any kernel of the plan is to be compiled. The helpers'
     kernels are marked pending until a helper reports them compiled."""
+    from numba import config
+
     from metasim._threads import kernel_threads
 
-    groups = [[name for name in group if not is_cached(name)] for group in plan]
+    if config.DISABLE_JIT:
+        return False  # nothing is compiled
+    groups = [[name for name in group if not is_cached(name) and name not in _pending] for group in plan]
     groups = [group for group in groups if group]
+    compiling = bool(groups) or any(not event.is_set() for event in _pending.values())
     if not groups or kernel_threads() < 2:  # one core: helpers would only take turns with the run
-        return bool(groups)
+        return compiling
     for group in groups:
         events = {name: threading.Event() for name in group}
         _pending.update(events)
@@ -135,7 +140,7 @@ def start(plan=STUDY) -> bool:
                                   stderr=subprocess.DEVNULL, text=True, env=dict(os.environ))
         _helpers.append(helper)
         threading.Thread(target=_follow, args=(helper, events), daemon=True).start()
-    return True
+    return compiling
 
 
 def _follow(helper: subprocess.Popen, events: dict) -> None:
@@ -154,7 +159,8 @@ def wait(*kernels) -> None:
     if not _pending:
         return
     for kernel in kernels:
-        name = f"{kernel.py_func.__module__}:{kernel.py_func.__name__}"
+        function = getattr(kernel, "py_func", kernel)  # a plain function when numba's JIT is off
+        name = f"{function.__module__}:{function.__name__}"
         event = _pending.get(name)
         if event is not None:
             event.wait()

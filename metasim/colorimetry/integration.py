@@ -8,7 +8,7 @@ edge tiles differently), so the same display seen by the same observer could dif
 bits between a single study and a sweep chunk of another size. Here each element is summed in its
 own compiled loop (:mod:`metasim.colorimetry._kernels.sums`) whose order depends only on the
 grid length (or the number of primaries), whatever else is in the product, so results are
-reproducible across batch and chunk sizes. Rows run in parallel for large inputs; as fast as BLAS
+reproducible across batch and chunk sizes. Rows run on the kernel threads for large inputs; as fast as BLAS
 for these thin products.
 """
 

@@ -6,7 +6,7 @@ thresholds.
 
 Equal to numpy's ``mean``, ``quantile`` (default "linear" method: virtual index (n − 1)·q, the
 same interpolation formula) and ``max`` to rounding, for rows without NaN. The rows are sorted by
-numpy (its vectorised sort is several times faster here than a compiled quickselect); one parallel
+numpy (its vectorised sort is several times faster here than a compiled quickselect); one
 compiled pass then reads the quantiles, the maximum and the shares beyond the thresholds off the
 sorted rows. The means are numpy's own.
 """
