@@ -265,3 +265,27 @@ def test_every_declared_kernel_is_compiled_ahead_once():
     planned = [name for group in _warmup.EVERY for name in group]
     assert sorted(planned) == sorted(declared)
     assert set(_warmup.STUDY[0]) <= set(_warmup.EVERY[0]) and set(_warmup.STUDY[1]) <= set(_warmup.EVERY[1])
+
+
+def test_kernel_results_do_not_depend_on_the_number_of_threads(monkeypatch):
+    # common practice, no source: every row is computed by the same machine code whatever part of
+    # the row range (and thread) it falls in, so one thread and several give the same bits
+    from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_pairs
+    from metasim.colorimetry._kernels.cielab import lab_of_ratios
+    from metasim.colorimetry._kernels.sums import products
+
+    rng = np.random.default_rng(7)
+    a, b = rng.random((3000, 441)), rng.random((3, 441))
+    ratios = rng.random((9000, 3))
+    lab_1, lab_2 = rng.random((9000, 3)) * [100, 80, 80], rng.random((9000, 3)) * [100, 80, 80]
+    results = []
+    for threads in ("1", "2", "3"):
+        monkeypatch.setenv("NUMBA_NUM_THREADS", threads)
+        xyz, lab, de = np.empty((3000, 3)), np.empty((9000, 3)), np.empty(9000)
+        products(a, b, xyz)
+        lab_of_ratios(ratios, lab)
+        delta_e_2000_pairs(lab_1, lab_2, 1.0, de)
+        results.append((xyz, lab, de))
+    for other in results[1:]:
+        for first, second in zip(results[0], other):
+            np.testing.assert_array_equal(first, second)
