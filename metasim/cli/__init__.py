@@ -121,9 +121,10 @@ COMPILING = "compiling kernels (first run only)"
 _after_command: list = []  # clean-ups main() runs when a command ends
 
 
-def _kernels_ahead(progress) -> None:
-    """Compile a study's kernels in helper processes if numba's cache lacks them (metasim._warmup),
-    and say so once on the command's progress reporter when compiling happens, here or in the helpers."""
+def _kernels_ahead(progress, study: bool = True) -> None:
+    """Compile a study's kernels in helper processes if numba's cache lacks them (metasim._warmup;
+    not for sweeps and searches, whose own compiled pass is in metasim.sweep._kernels), and say so
+    once on the command's progress reporter when compiling happens, here or in the helpers."""
     from metasim import _warmup
 
     said = []
@@ -133,7 +134,7 @@ def _kernels_ahead(progress) -> None:
             said.append(True)
             progress.say(COMPILING)
 
-    if _warmup.start():
+    if study and _warmup.start():
         note()
     _after_command.append(_warmup.on_compile(note))
     _after_command.append(_warmup.stop)
@@ -339,7 +340,7 @@ def cmd_sweep(args) -> int:
     from metasim.sweep import run_sweep
 
     spec = read_sweep_spec(args.spec)
-    _kernels_ahead(args.progress)
+    _kernels_ahead(args.progress, study=False)
     args.observer_set = _observer_file(args)  # before any computing
     designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
     if args.reference is None and "reference" in spec:
@@ -443,7 +444,7 @@ def cmd_search(args) -> int:
     from metasim.sweep import best_design, run_search
 
     spec = read_search_spec(args.spec)
-    _kernels_ahead(args.progress)
+    _kernels_ahead(args.progress, study=False)
     space, settings = spec_search_space(spec)
     search = spec["search"]
     if args.reference is None and "reference" in spec:
