@@ -122,6 +122,7 @@ from metasim.statistics.comparison import DEFAULT_HALF_WIDTH, half_width, observ
 from metasim.metamerism.categories import observer_categories
 from metasim.observers import standard_observer
 from metasim.spectra import default_grid
+from metasim.units import LAB_VOLUME, format_volume
 
 RESULT_KIND = "metasim study"
 #: The observer of every gamut number of a study.
@@ -145,7 +146,7 @@ VARIABLE_ATTRS = {
     "gamut_polygon": ("1", "chromaticity gamut polygon in CIE 1931 xy (NaN padded)"),
     "gamut_coverage": ("1", "share of each reference gamut's xy area covered"),
     "locus_share": ("1", "share of the CIE 1931 spectrum-locus area covered"),
-    "lab_volume": ("1", "CIELAB volume of the colour solid (own white), CIELAB units cubed"),
+    "lab_volume": (LAB_VOLUME, "CIELAB volume of the colour solid (own white)"),
     "lab_coverage_volume": ("1", "share of each reference colour solid's CIELAB volume covered"),
     "area_gain_share": ("1", "chromaticity area gained by one extra laser primary, share of the base area"),
     "volume_gain_share": ("1", "CIELAB volume gained by one extra laser primary, share of the base volume"),
@@ -240,7 +241,7 @@ def display_blocks(displays: Sequence[Display], roles: Sequence[str], observer: 
         block["white_xy"] = _clean(xyz_to_xy(display.white_tristimulus(observer)))
         parts.append(xr.Dataset(block))
         progress(f"gamut of {display.name!r}: {float(block['gamut_area_xy']):.4f} xy area, "
-                 f"{float(block['lab_volume']):.3g} CIELAB volume")
+                 f"CIELAB volume {format_volume(float(block['lab_volume']))}")
     max_vertex = max(p.sizes["vertex"] for p in parts)
     parts = [p.reindex(vertex=np.arange(max_vertex)) for p in parts]
     names = unique_names([d.name for d in displays])

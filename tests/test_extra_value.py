@@ -2,6 +2,8 @@
 
 import numpy as np
 import pytest
+from figure_checks import assert_axes_labelled
+from test_report_reading import check_page
 
 import metasim
 from metasim.emitters import gaussian, laser_line
@@ -54,8 +56,10 @@ def test_gamut_gain_equals_the_gamut_layer(varied, displays):
 
 def test_report_shows_both_curves(varied):
     assert list(report_figures(varied)) == ["extra_primary_value"]
+    assert_axes_labelled(report_figures(varied)["extra_primary_value"][0])
     page = render_report(varied)
     answer = page.split("aria-label='answer'>", 1)[1].split("</section>", 1)[0]
     assert "Most gamut: an extra primary at 500 nm" in answer
     candidates = page.split("<h2>Every candidate</h2>", 1)[1].split("<h2", 1)[0]
     assert candidates.count("<tr><td>") == 3
+    check_page(page)

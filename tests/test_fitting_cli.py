@@ -6,7 +6,9 @@ import numpy as np
 import pytest
 import xarray as xr
 from colour.quality.datasets.tcs import SDS_TCS
+from figure_checks import assert_axes_labelled
 from test_cli import DEMO, MONITOR, assert_one_line_error, run
+from test_report_reading import check_page
 
 import metasim
 from metasim.cli.specs import load_display
@@ -50,6 +52,15 @@ def test_estimate_writes_a_fit_and_a_report(cmf_fit):
                  "not separable from", "data:image/png;base64,", "Cautions", "not a measurement of anyone"):
         assert text in html
     assert "IEC 60825-1" not in html  # observer-only reports carry only the cautions that apply to them
+    page = check_page(html)  # parses, every image and table whole, no stored key or JSON text
+    prior = next(t for t in page.tables if t["head"][0] == ["parameter", "population mean",
+                                                            "population standard deviation"])
+    assert ["lens density (%)", "0.000", "18.700"] in prior["rows"]  # the prior as a table, not JSON text
+    assert "Blondé" in " ".join(page.text) and "\\u00e9" not in html
+    from metasim.report import report_figures
+
+    for fig, _ in report_figures(result).values():
+        assert_axes_labelled(fig)
 
 
 def test_fit_file_serves_as_observers_of_a_study(cmf_fit, capsys):

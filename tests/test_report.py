@@ -8,6 +8,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 import xarray as xr
+from figure_checks import assert_axes_labelled
 
 import metasim
 from metasim import plots
@@ -92,3 +93,78 @@ def test_age_band_membership_follows_the_engine(small_study):
     masks = plots.band_members(ages, result["age_band"].values)
     counts = result["observers_per_age_band"].isel(design=0).values
     assert [int(m.sum()) for m in masks] == list(counts)  # same bands as metasim.metamerism.summarise
+
+
+# -- the figures, read off the matplotlib objects --------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def study_figures(small_study):
+    from metasim.report import report_figures
+
+    return {name: fig for name, (fig, _) in report_figures(small_study[0]).items()}
+
+
+def test_every_study_figure_labels_its_axes_with_units(study_figures):
+    assert sorted(study_figures) == ["age_bands", "chromaticity", "extra_primary", "p95_by_stimulus", "spectra"]
+    for fig in study_figures.values():
+        assert_axes_labelled(fig)
+
+
+def test_stimulus_chart_says_what_it_plots(study_figures, small_study):
+    ax = study_figures["p95_by_stimulus"].axes[0]
+    assert ax.get_title().startswith("95th percentile") and "Worst" not in ax.get_title()
+    assert ax.get_ylabel().startswith("Stimulus") and "(ΔE00)" in ax.get_xlabel()
+    p95 = small_study[0]["delta_e_2000_by_stimulus"].sel(statistic="p95").isel(design=0)
+    shown = [t.get_text() for t in ax.get_yticklabels()]
+    assert len(shown) == int((p95 > 1e-9).sum())  # no empty row for a stimulus nobody sees differ
+    assert shown[-1] == str(p95["stimulus"].values[int(np.argmax(p95.values))])  # the largest at the top
+
+
+def test_chromaticity_diagram_draws_every_listed_gamut(study_figures, small_study):
+    ax = study_figures["chromaticity"].axes[0]
+    listed = list(small_study[0]["reference_gamut"].values)
+    assert {"display_p3", "dci_p3"} <= set(listed)
+    names = [t.get_text() for t in ax.get_legend().get_texts()]
+    # Display P3 and DCI-P3 share their primaries (SMPTE EG 432-1; from memory): one outline, both names
+    assert "Display P3 and DCI-P3 (same primaries)" in names and "ITU-R BT.709" in names and "ITU-R BT.2020" in names
+    fig = study_figures["chromaticity"]
+    fig.canvas.draw()
+    box = fig.bbox
+    for text in ax.texts:  # every locus label inside the picture, none cut at its edge
+        extent = text.get_window_extent()
+        assert box.x0 <= extent.x0 and extent.x1 <= box.x1 and box.y0 <= extent.y0 and extent.y1 <= box.y1, text.get_text()
+    assert "460" in [t.get_text() for t in ax.texts]
+
+
+def test_spectra_keep_broadband_curves_readable_beside_laser_lines(small_study):
+    from metasim.report import figure_builders
+
+    monitor, _ = load_display(DEMO / "grading_monitor.toml")
+    hybrid, hybrid_spec = load_display(DEMO / "projector_laser_phosphor.toml")
+    observers = small_study[3].isel(observer=slice(0, 5))
+    study = metasim.run_study(monitor, [hybrid], observers, build_stimuli("primaries"), rank_calibration=False,
+                              white_categories=0, intervals=False, spec_texts=spec_texts({hybrid.name: hybrid_spec}),
+                              extra_peaks_nm=np.arange(450.0, 651.0, 50.0))
+    fig = figure_builders(study)["spectra"][0]()
+    ax = fig.axes[1]  # the laser-phosphor projector: two laser lines and two filtered phosphor bands
+    top = ax.get_ylim()[1]
+    broad = max(float(np.max(line.get_ydata())) for line in ax.get_lines()
+                if "filter" in line.get_label())
+    assert broad > 0.5 * top  # the broadband curves fill their panel
+    labels = [" ".join(t.get_text().split()) for t in ax.get_legend().get_texts()]  # wrapped lines joined
+    # the red filter is centred at 660 nm and 100 nm wide (the spec): the label names its band, then the peak
+    assert any(label.startswith("R: backlight through a 610-710 nm") for label in labels), labels
+    assert ax.get_legend().get_bbox_to_anchor().x0 >= ax.get_window_extent().x1 - 1  # beside the panel
+    assert_axes_labelled(fig)
+
+
+def test_extra_primary_figure_marks_the_designs_own_extra_primary(study_figures):
+    ax = study_figures["extra_primary"].axes[0]
+    assert "C 500 nm" in [t.get_text() for t in ax.texts]  # candidate A's cyan line is beyond its base (B, G, R)
+
+
+def test_age_band_figure_explains_its_marks(study_figures):
+    ax = study_figures["age_bands"].axes[0]
+    names = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert "mean" in names and "median" in names and "thresholds 1, 2, 3 ΔE00" in names
+    assert "last band includes" in ax.get_xlabel()

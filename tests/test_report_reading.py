@@ -91,8 +91,11 @@ def check_page(page: str) -> Page:
     text = " ".join(parsed.text)
     for raw in RAW:
         assert raw not in text.split() and raw not in text.replace("(", " ").split(), raw
-    assert '{"' not in text and "_" not in " ".join(w for w in text.split() if not w.endswith((".nc", ".csv"))), (
-        [w for w in text.split() if "_" in w])
+    assert '{"' not in text and "\\u00" not in text
+    # file names and the library functions a model text points to (metasim.x.y, scipy.x.y) are names to look up
+    words = [w for w in text.split() if "_" in w and not w.endswith((".nc", ".csv"))
+             and not any(lib in w for lib in ("metasim.", "scipy."))]
+    assert not words, words
     assert parsed.order[0] == "answer", parsed.order[:3]  # the answer box opens the page
     return parsed
 
@@ -132,7 +135,17 @@ def test_population_report_carries_only_its_cautions(study):
 
 
 def test_category_report_tabulates_the_shares(study):
+    from figure_checks import assert_axes_labelled
+    from metasim.report import report_figures
+
     categories = metasim.observer_categories(study[1], 4, seed=1)
+    for population in (study[1], categories):
+        fig = report_figures(population)["observers"][0]
+        assert_axes_labelled(fig)
+        fig.canvas.draw()
+        ticks = [float(t.get_text().replace("−", "-")) for t in fig.axes[0].get_yticklabels() if t.get_text()]
+        assert all(t == int(t) for t in ticks) or population is categories  # whole observers, never 1.25 of one
+    assert fig.axes[0].get_ylabel() == "Share of the population (%)"  # categories: their shares, not a count
     parsed = check_page(render_report(categories))
     table = next(t for t in parsed.tables if t["head"][0][:2] == ["category", "share of the population"])
     shares = [float(row[1].rstrip(" %")) for row in table["rows"]]

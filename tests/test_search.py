@@ -14,12 +14,14 @@ import time
 
 import numpy as np
 import pytest
+from figure_checks import assert_axes_labelled
+from test_report_reading import check_page
 
 import metasim
 from metasim import emitters
 from metasim.errors import MetasimWarning, SweepError
 from metasim.metamerism import primaries_and_secondaries
-from metasim.report import render_report
+from metasim.report import render_report, report_figures
 from metasim.sweep import best_design, pareto_front, run_search, search_space
 from metasim.sweep.search import PENALTY
 
@@ -99,6 +101,9 @@ def test_result_opens_in_report_and_pareto(found):
     np.testing.assert_array_equal(ranks.values, result["pareto_rank"].values)
     page = render_report(result)
     assert "<h2>Pareto front</h2>" in page and "<h2>Search</h2>" in page
+    check_page(page)
+    for fig, _ in report_figures(result).values():
+        assert_axes_labelled(fig)
 
 
 def test_resume_replays_from_store(found):

@@ -16,7 +16,9 @@ from metasim.errors import MetasimError
 from metasim.metamerism import primaries_and_secondaries
 from metasim.report import CAUTIONS, is_sweep, render_report, report_figures, write_report
 from metasim.sweep import design_grid, run_sweep
+from figure_checks import assert_axes_labelled
 from test_cli import run
+from test_report_reading import check_page
 
 IMAGE = re.compile(r'src="data:image/png;base64,([A-Za-z0-9+/=]+)"')
 
@@ -78,6 +80,7 @@ def test_one_parameter_sweep_report(red_sweep):
     result = red_sweep[1]
     text = render_report(result)
     assert_sweep_page(text, result)
+    check_page(text)  # parses, every image and table whole, no stored key, the answer box first
     index, _ = best_of(result)
     peak = float(result["peak_nm_R"].values[index])
     assert f"(red laser peak {peak:g} nm)" in text
@@ -90,6 +93,13 @@ def test_one_parameter_sweep_report(red_sweep):
     assert "BT.2020" in axes[1].get_ylabel() and "ΔE00" in axes[0].get_ylabel()
     labels = [t.get_text() for t in axes[0].get_legend().get_texts()]
     assert labels[:2] == ["95th percentile", "median"] and labels[2].startswith(f"best: design {index}")
+    assert labels[3].startswith("2 ΔE00")  # the threshold line is in the legend, not a label at the plot's edge
+    assert_axes_labelled(figure)
+    figure.canvas.draw()
+    legend = axes[0].get_legend().get_window_extent()
+    assert legend.x0 >= axes[0].get_window_extent().x1 - 1 and legend.x1 <= figure.bbox.x1  # beside the data, whole
+    if "pareto" in report_figures(result):
+        assert_axes_labelled(report_figures(result)["pareto"][0])
 
 
 def test_two_parameter_sweep_report_is_a_heat_map(pair_sweep):
@@ -99,7 +109,8 @@ def test_two_parameter_sweep_report_is_a_heat_map(pair_sweep):
     figure = report_figures(result)["sweep"][0]
     heat, bar = figure.axes
     assert heat.get_xlabel() == "red laser peak (nm)" and heat.get_ylabel() == "green laser peak (nm)"
-    assert "CIELAB units" in bar.get_ylabel()
+    assert "(ΔE00)" in bar.get_ylabel() and "CIELAB" not in bar.get_ylabel()  # a CIE 2000 difference, named so
+    assert_axes_labelled(figure)
     grid = heat.images[0].get_array()
     assert grid.shape == (2, 2)
     p95 = result["delta_e_2000_overall"].sel(statistic="p95")
@@ -113,6 +124,7 @@ def test_more_parameters_give_a_rank_plot(pair_sweep):
     result = pair_sweep[1].assign_coords(width_nm=("design", [1.0, 2.0, 3.0, 4.0], {"units": "nm"}))
     figure = plots.sweep_figure(result)
     ax = figure.axes[0]
+    assert_axes_labelled(figure)
     assert ax.get_xlabel().startswith("Rank of the design")
     line = ax.get_lines()[0].get_ydata()
     assert list(line) == sorted(line)

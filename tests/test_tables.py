@@ -75,7 +75,7 @@ def test_mismatch_result_tables_round_trip_and_agree_with_numpy(tmp_path, result
     _check_round_trip(tables, write_csv_tables(tables, tmp_path / "csv"))
 
     header, rows = _read(tmp_path / "csv" / "delta_e_2000_by_observer.csv")
-    assert header[:2] == ["statistic", "observer"] and header[-1] == "delta_e_2000_by_observer [1]"
+    assert header[:2] == ["statistic", "observer"] and header[-1] == "delta_e_2000_by_observer [ΔE00]"
     assert len(rows) == 4 * 25  # tidy: one row per statistic x observer
     for row in rows:
         seen = result["delta_e_2000"].sel(observer=int(row[1])).values
@@ -87,7 +87,7 @@ def test_mismatch_result_tables_round_trip_and_agree_with_numpy(tmp_path, result
     # tidy: one row per stimulus x statistic, stimulus labels as written by the result
     table = next(t for t in tables if "delta_e_2000_by_stimulus" in [c.key for c in t.columns])
     header, rows = _read(tmp_path / "csv" / f"{table.key}.csv")
-    col = header.index("delta_e_2000_by_stimulus [1]")
+    col = header.index("delta_e_2000_by_stimulus [ΔE00]")
     for row in rows:
         if row[header.index("statistic")] == "median":
             per_observer = result["delta_e_2000"].sel(stimulus=row[header.index("stimulus")]).values
@@ -99,7 +99,7 @@ def test_mismatch_result_tables_round_trip_and_agree_with_numpy(tmp_path, result
     # contents: one row per column, long names and units
     header, rows = _read(tmp_path / "csv" / "contents.csv")
     assert header[:5] == ["table", "column", "key", "long_name", "units"]
-    assert ["delta_e_2000_by_observer", "delta_e_2000_by_observer [1]"] in [r[:2] for r in rows]
+    assert ["delta_e_2000_by_observer", "delta_e_2000_by_observer [ΔE00]"] in [r[:2] for r in rows]
     assert len(rows) == sum(len(t.columns) for t in tables)
 
 

@@ -20,6 +20,7 @@ import xarray as xr
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_pairs
 from metasim.labelling import labelled
 from metasim.errors import ColorimetryError
+from metasim.units import DELTA_E00
 
 
 def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:
@@ -85,7 +86,7 @@ def delta_e_2000(lab_1, lab_2, *, k_L: float = 1.0):
         for name, value in (("lab_1", lab_1), ("lab_2", lab_2)):
             if "lab" not in value.dims:
                 raise ColorimetryError(f"{name} has no 'lab' dim (dims {tuple(value.dims)})")
-        attrs = {"units": "1", "long_name": "CIE 2000 colour difference", "k_L": float(k_L)}
+        attrs = {"units": DELTA_E00, "long_name": "CIE 2000 colour difference", "k_L": float(k_L)}
         if _coordinates_agree(lab_1, lab_2):
             # no alignment needed: broadcast the bare variables by dim name (dims in order of
             # appearance, as xarray.broadcast orders them)

@@ -14,6 +14,7 @@ import xarray as xr
 from metasim.colorimetry.rgb_spaces import xyz_to_rgb_matrix
 from metasim.colorimetry.st2084 import pq_inverse_eotf_values
 from metasim.errors import ColorimetryError
+from metasim.units import DELTA_E_ITP
 
 ICTCP = ("I", "Ct", "Cp")
 #: Weights of ΔI, ΔCt, ΔCp in ΔE_ITP (T = Ct / 2; ITU-R BT.2124-0).
@@ -108,7 +109,7 @@ def delta_e_itp(ictcp_1: xr.DataArray, ictcp_2: xr.DataArray) -> xr.DataArray:
             raise ColorimetryError(f"{name} must be a DataArray with an 'ictcp' dim")
     ordered = [value.sel(ictcp=list(ICTCP)) if "ictcp" in value.indexes else value for value in (ictcp_1, ictcp_2)]
     out = xr.apply_ufunc(delta_e_itp_values, *ordered, input_core_dims=[["ictcp"], ["ictcp"]])
-    out.attrs = {"units": "1", "long_name": "ITU-R BT.2124 colour difference ΔE_ITP"}
+    out.attrs = {"units": DELTA_E_ITP, "long_name": "ITU-R BT.2124 colour difference ΔE_ITP"}
     return out.rename("delta_e_itp")
 
 

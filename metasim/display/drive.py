@@ -52,6 +52,7 @@ from metasim.display._kernels.clip import clip_rows
 from metasim.display.solvers import equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light
 from metasim.display.transfer import check_transfer, eotf_inverse_values
+from metasim.units import DELTA_E00
 
 STRATEGIES = ("min_norm", "max_efficiency", "population")
 _TIE_BREAK = 1e-6
@@ -500,7 +501,7 @@ class DriveSolution:
                 "residual_xyz": ((*dims, "xyz"), (achieved - t_abs).reshape(sizes + [3]),
                                  {**xyz_attrs, "long_name": "reproduced minus target tristimulus values"}),
                 "residual_delta_e": (dims, self.residual_delta_e.reshape(sizes), {
-                    "units": "1", "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}),
+                    "units": DELTA_E00, "long_name": "CIE 2000 colour difference, reproduced vs target (display white)"}),
                 "out_of_gamut": (dims, self.out_of_gamut.reshape(sizes),
                                  {"long_name": "target outside the display gamut (clipped)", "units": "1"}),
             },

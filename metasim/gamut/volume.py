@@ -30,8 +30,9 @@ import xarray as xr
 from metasim.colorimetry import xyz_to_lab
 from metasim.errors import GamutError
 from metasim.gamut._inputs import describe_item, flatten, gamut_inputs, lead_array, primaries_xyz, white_xyz
+from metasim.units import LAB_VOLUME
 
-VOLUME_UNITS = "(CIELAB unit)3"
+VOLUME_UNITS = LAB_VOLUME
 #: Largest node count (designs × faces × nodes) mapped to CIELAB in one block.
 BLOCK_NODES = 2_000_000
 START_CELLS = 16
@@ -204,7 +205,7 @@ def lab_gamut_volume(display_or_primaries, observer=None, white=None, *, rtol: f
     >>> display = metasim.make_display(gaussian([455, 535, 615], [25, 30, 35], name=["B", "G", "R"]))
     >>> volume = metasim.lab_gamut_volume(display, metasim.standard_observer("cie1931_2"))
     >>> bool(volume > 0), volume.attrs["units"]
-    (True, '(CIELAB unit)3')
+    (True, 'CIELAB units³')
     """
     if not 0 < rtol < 0.1:
         raise GamutError(f"rtol={rtol!r} is not allowed; need 0 < rtol < 0.1")

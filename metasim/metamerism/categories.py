@@ -44,6 +44,7 @@ from metasim.emitters import gaussian
 from metasim.errors import ObserverError
 from metasim.metamerism.stimuli import cie_13_3_samples, illuminant_spectrum
 from metasim.spectra import check_wavelengths
+from metasim.units import DELTA_E_AB
 
 NARROW_BAND_PEAKS_NM = tuple(range(450, 651, 25))
 NARROW_BAND_FWHM_NM = 20.0
@@ -215,7 +216,7 @@ def observer_categories(population: xr.Dataset, k: int, *, seed) -> xr.Dataset:
     chosen = chosen.assign_coords(
         weight=("observer", counts[order] / n, {"units": "1", "long_name": "share of the population in the category"}),
         category_rms_delta_e=("observer", spread[order], {
-            "units": "1", "long_name": "mean RMS CIELAB ΔE*ab of category members to their representative"}),
+            "units": DELTA_E_AB, "long_name": "mean RMS CIELAB ΔE*ab of category members to their representative"}),
     )
     chosen.attrs.update({
         "categories": int(k),

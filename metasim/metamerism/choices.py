@@ -27,6 +27,7 @@ from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.summary import observer_weights
 from metasim.statistics import quantiles, weighted_mean
 from metasim.observers.standard import STANDARD_OBSERVERS
+from metasim.units import DELTA_E00
 
 #: Calibration observers: every standard observer and the population's mean observer.
 CANDIDATES = (*STANDARD_OBSERVERS, "population_mean")
@@ -108,15 +109,15 @@ def rank_calibration_observers(
     out = xr.Dataset(
         {
             "mean_delta_e": ("calibration_observer", mean, {
-                "units": "1", "long_name": "mean CIE 2000 difference over observers, white and stimuli", **with_white}),
+                "units": DELTA_E00, "long_name": "mean CIE 2000 difference over observers, white and stimuli", **with_white}),
             "p95_delta_e": ("calibration_observer", p95, {
-                "units": "1", "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli",
+                "units": DELTA_E00, "long_name": "95th percentile of CIE 2000 differences over observers, white and stimuli",
                 **with_white}),
             "mean_delta_e_white": ("calibration_observer", white, {
-                "units": "1", "long_name": "mean CIE 2000 difference of the white", "pooled_over": "observers",
+                "units": DELTA_E00, "long_name": "mean CIE 2000 difference of the white", "pooled_over": "observers",
                 "includes_white": "only the white"}),
             "mean_delta_e_stimuli": ("calibration_observer", stim, {
-                "units": "1", "long_name": "mean CIE 2000 difference over the stimuli", **without_white}),
+                "units": DELTA_E00, "long_name": "mean CIE 2000 difference over the stimuli", **without_white}),
         },
         coords=coords,
     )

@@ -53,6 +53,7 @@ from metasim.observers.standard import STANDARD_OBSERVERS, standard_observer
 from metasim.observers.convert import as_observer, is_colour_observer
 from metasim.spectra import RADIANCE_UNITS, require_same_grid
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
+from metasim.units import DELTA_E00, DELTA_E_ITP
 
 ADAPTED_WHITES = ("reference", "test")
 #: Peak memory of mismatch() per observer x stimulus x design pair: about 16 float64 measured
@@ -391,15 +392,15 @@ def _mismatch_dataset(side: ReferenceSide, test: Display, solution, core: dict, 
         ("lab_reference", "CIELAB of the reference rendering (observer's adapted white)", "1"),
         ("lab_test", "CIELAB of the test rendering (observer's adapted white)", "1"),
         ("adapted_white_xyz", f"white each observer is adapted to ({adapted_white} white as they see it)", "cd m-2"),
-        ("delta_e_2000", "CIE 2000 colour difference, reference vs test, per observer", "1"),
-        ("metamerism_index", "observer-change metamerism index, additive correction (ISO 18314-4 style)", "1"),
-        ("delta_e_white", "CIE 2000 difference between the two whites, per observer", "1"),
-        ("delta_e_itp", "ITU-R BT.2124 difference, reference vs test, per observer", "1"),
+        ("delta_e_2000", "CIE 2000 colour difference, reference vs test, per observer", DELTA_E00),
+        ("metamerism_index", "observer-change metamerism index, additive correction (ISO 18314-4 style)", DELTA_E00),
+        ("delta_e_white", "CIE 2000 difference between the two whites, per observer", DELTA_E00),
+        ("delta_e_itp", "ITU-R BT.2124 difference, reference vs test, per observer", DELTA_E_ITP),
     ]
     data = {name: (*core[name], {"units": units, "long_name": long_name})
             for name, long_name, units in described if name in core}
     given = [
-        ("delta_e_2000_calibration", delta_e_calibration, "CIE 2000 difference for the calibration observer", "1"),
+        ("delta_e_2000_calibration", delta_e_calibration, "CIE 2000 difference for the calibration observer", DELTA_E00),
         ("drive_test", solution.variable("drive"), "linear drive values of the test display", "1"),
         ("target_xyz", side.targets.variable,
          "reference XYZ for the calibration observer (targets of the test display)", "cd m-2"),
@@ -407,13 +408,13 @@ def _mismatch_dataset(side: ReferenceSide, test: Display, solution, core: dict, 
         ("out_of_gamut_reference", reference_clipped, "stimulus outside the reference gamut (clipped)", "1"),
         ("out_of_gamut_both", test_clipped & reference_clipped, "stimulus outside both gamuts", "1"),
         ("residual_delta_e_test", solution.variable("residual_delta_e"),
-         "CIE 2000 residual of the test display vs its target", "1"),
+         "CIE 2000 residual of the test display vs its target", DELTA_E00),
     ]
     sources = [test.spectra, side.observers, solution.coords()]
     if side.reference_kind == "display":
         reference_drive = side.rendering.variable("drive")
         given.append(("residual_delta_e_reference", side.rendering.variable("residual_delta_e"),
-                      "CIE 2000 residual of the reference display vs the source colour", "1"))
+                      "CIE 2000 residual of the reference display vs the source colour", DELTA_E00))
         given.append(("drive_reference", xr.Variable((*reference_drive.dims[:-1], "reference_primary"),
                                                      reference_drive.data),
                       "linear drive values of the reference display", "1"))

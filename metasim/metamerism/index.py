@@ -26,6 +26,7 @@ import xarray as xr
 
 from metasim.colorimetry import delta_e_2000, xyz_to_lab
 from metasim.errors import MismatchError
+from metasim.units import DELTA_E00
 
 CORRECTIONS = ("additive", "multiplicative")
 
@@ -86,7 +87,7 @@ def observer_metamerism_index(
         out = delta_e_2000(lab_std_t, corrected)
     else:
         raise MismatchError(f"space={space!r} is not known; allowed: xyz, lab")
-    out.attrs = {"units": "1", "long_name": f"metamerism index, {correction} correction in {space.upper()}"}
+    out.attrs = {"units": DELTA_E00, "long_name": f"metamerism index, {correction} correction in {space.upper()}"}
     return out.rename("metamerism_index")
 
 

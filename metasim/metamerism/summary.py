@@ -23,6 +23,7 @@ from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_
 from metasim.statistics import observer_weights as _statistics_weights
 from metasim.statistics.sorted_rows import observer_stimulus_stats
 from metasim.statistics.summaries import weights_note
+from metasim.units import DELTA_E00
 
 #: The default age-band policy: decade bands (edges at whole multiples of 10 years) that just cover
 #: the observers' ages, so no band is empty at either end (see :func:`decade_age_bands`).
@@ -154,7 +155,7 @@ def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS
     given = {d: coords_in.variables[d] for d in labelled_dims}  # KeyError for unlabelled stimuli or observers
     ages = coords_in.variables["age_years"].values if "age_years" in coords_in else None
     out, fixed = summary_variables(values, rest, observer_weights(delta_e), ages, age_bands=age_bands,
-                                   thresholds=thresholds, name=name)
+                                   thresholds=thresholds, name=name, units=delta_e.attrs.get("units", DELTA_E00))
     # one Dataset from (dims, values, attrs) and the dimension coordinates only (as before: the
     # observers' other coordinates are not summarised), the given ones with their indexes
     variables = {**fixed.variables, **given}
@@ -180,30 +181,40 @@ def age_band_members(ages, age_bands):
     return labels, counts, members
 
 
-def summary_attrs(weights: np.ndarray | None) -> dict[str, dict]:
+#: what a summarised array holds, by the name its summaries are called after
+QUANTITIES = {"delta_e_2000": "CIE 2000 difference", "delta_e": "colour difference",
+              "metamerism_index": "observer-change metamerism index (ISO 18314-4 construction)"}
+
+
+def summary_attrs(weights: np.ndarray | None, units: str = DELTA_E00, name: str = "delta_e_2000") -> dict[str, dict]:
     """The attributes of the summary variables of :func:`summary_variables` (what each pools, with
-    which observer weights), by kind: ``by_stimulus``, ``by_observer``, ``by_age``,
-    ``observers_per_age_band``, ``share_beyond``, ``share_beyond_overall``. A sweep's summaries
-    carry the same (:mod:`metasim.sweep.summary`)."""
+    which observer weights, in which unit), by kind: ``by_stimulus``, ``by_observer``, ``by_age``,
+    ``observers_per_age_band``, ``share_beyond``, ``share_beyond_overall``. ``units`` are those of
+    the values summarised (metasim.units); every long name says what they are (``name`` →
+    :data:`QUANTITIES`). A sweep's summaries carry the same (:mod:`metasim.sweep.summary`)."""
     pooled = {"includes_white": "no", "observer_weights": weights_note(weights)}
+    what = QUANTITIES.get(name, name.replace("_", " "))
     return {
-        "by_stimulus": {"units": "1", "long_name": "statistics over observers, per stimulus",
+        "by_stimulus": {"units": units, "long_name": f"{what}, statistics over observers, per stimulus",
                         "pooled_over": "observers (per stimulus)", **pooled},
-        "by_observer": {"units": "1", "long_name": "statistics over stimuli, per observer",
+        "by_observer": {"units": units, "long_name": f"{what}, statistics over stimuli, per observer",
                         "pooled_over": "stimuli (per observer)", "includes_white": "no"},
-        "by_age": {"units": "1", "long_name": "statistics over all observer x stimulus pairs in each age band",
+        "by_age": {"units": units, "long_name": f"{what}, statistics over all observer x stimulus pairs in each age band",
                    "pooled_over": "observer x stimulus pairs (per age band)", **pooled},
         "observers_per_age_band": {"units": "1", "long_name": "observers in each age band"},
-        "share_beyond": {"units": "1", "long_name": "share of observers beyond each threshold",
+        "share_beyond": {"units": "1", "long_name": f"share of observers whose {what} is beyond each threshold",
                          "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
                          **pooled},
-        "share_beyond_overall": {"units": "1", "long_name": "share of observer x stimulus pairs beyond each threshold",
+        "share_beyond_overall": {"units": "1", "long_name": f"share of observer x stimulus pairs whose {what} is "
+                                                            "beyond each threshold",
                                  "pooled_over": "observer x stimulus pairs", **pooled},
+        "threshold": {"units": units, "long_name": f"{what} threshold"},
     }
 
 
 def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages, *, age_bands=DECADES,
-                      thresholds=THRESHOLDS, name: str = "delta_e") -> tuple[dict, xr.Coordinates]:
+                      thresholds=THRESHOLDS, name: str = "delta_e",
+                      units: str = DELTA_E00) -> tuple[dict, xr.Coordinates]:
     """The summaries of :func:`summarise` from numpy values (observer, stimulus, *rest): a dict of
     (dims, values, attrs) and the Coordinates of the summary dims (statistic, age_band, threshold)."""
     out = {}
@@ -224,7 +235,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
         by_stimulus = statistics_along(values, weights, 0)
         share = share_beyond(values, t, weights, 0)
         by_observer = statistics_along(values, None, 1)
-    attrs = summary_attrs(weights)
+    attrs = summary_attrs(weights, units, name)
     out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, attrs["by_stimulus"])
     out[f"{name}_by_observer"] = (("statistic", "observer", *rest), by_observer, attrs["by_observer"])
     fixed = [label_coordinate("statistic", STATISTICS)]
@@ -252,7 +263,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}
     # a fresh variable for the attributes (the cached coordinate is shared), its index reused
-    variables["threshold"] = xr.Variable("threshold", t, {"units": "1", "long_name": "CIE 2000 difference threshold"})
+    variables["threshold"] = xr.Variable("threshold", t, attrs["threshold"])
     indexes["threshold"] = threshold.xindexes["threshold"]
     return out, xr.Coordinates(variables, indexes=indexes)
 

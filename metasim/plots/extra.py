@@ -8,6 +8,7 @@ from matplotlib import rc_context
 from matplotlib.figure import Figure
 
 from metasim.plots.figures import DESIGN_COLOURS, REFERENCE_COLOUR, STYLE, _figure
+from metasim.units import DELTA_E00
 
 
 def extra_primary_value_figure(value: xr.Dataset) -> Figure:
@@ -24,14 +25,14 @@ def extra_primary_value_figure(value: xr.Dataset) -> Figure:
                       marker="s", ms=3.5, label="CIELAB volume added")
         left.plot(peaks, 100 * value["coverage_gain"].values, color=DESIGN_COLOURS[2], lw=1.4, ls=":", marker="^",
                   ms=3.5, label="BT.2020 coverage added (points)")
-        left.set_ylabel("Gamut gained (% of the base)")
+        left.set_ylabel("Gamut gained (% of the base;\ncoverage: percentage points)")
         left.set_title("Gamut")
         left.legend(loc="best", frameon=False)
         gain = value["mismatch_gain"].values
         right.axhline(0.0, color="#9a9a9a", lw=0.8)
         right.bar(peaks, gain, width=0.7 * (np.min(np.diff(peaks)) if peaks.size > 1 else 5.0),
                   color=np.where(gain >= 0, DESIGN_COLOURS[1], DESIGN_COLOURS[0]), edgecolor=REFERENCE_COLOUR, lw=0.4)
-        right.set_ylabel("95th percentile ΔE00 saved\n(CIE 2000 units; below 0: worse)")
+        right.set_ylabel(f"95th percentile CIE 2000 difference saved\n({DELTA_E00}; below 0: worse)")
         base = float(value["base_delta_e_2000_p95"])
         right.set_title(f"Viewer disagreement (base: {base:.2f})")
         for ax in (left, right):

@@ -18,6 +18,7 @@ spectra are drawn in the approximate sRGB colour of each primary.
 from __future__ import annotations
 
 import io
+import textwrap
 from pathlib import Path
 
 import numpy as np
@@ -25,8 +26,10 @@ import xarray as xr
 from matplotlib import rc_context
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
 
 from metasim.io import write_bytes
+from metasim.units import DELTA_E00, unit_text
 
 REFERENCE_COLOUR = "#2b3a55"
 DESIGN_COLOURS = ("#d9633b", "#2a9d8f", "#8e5ea2", "#b8a31f", "#5b7fbf", "#a34f4f")
@@ -37,7 +40,13 @@ STYLE = {
     "grid.linewidth": 0.6, "axes.axisbelow": True, "figure.dpi": 110, "savefig.dpi": 110,
 }
 LOCUS_TICKS_NM = (460, 480, 490, 500, 510, 520, 540, 560, 580, 600, 620)
-DELTA_E_LABEL = "CIE 2000 colour difference ΔE00 (CIELAB units)"
+#: the CIE 2000 difference on an axis, its unit in brackets (metasim.units)
+DELTA_E_LABEL = f"CIE 2000 colour difference ({DELTA_E00})"
+#: CIE 1931 xy of the D65 white: the centre the locus labels point away from (CIE 15:2004)
+D65_XY = (0.3127, 0.3290)
+#: names and line styles of the reference gamut outlines
+REFERENCE_OUTLINES = {"bt709": ("--", "ITU-R BT.709"), "bt2020": (":", "ITU-R BT.2020"),
+                      "display_p3": ("-.", "Display P3"), "dci_p3": ((0, (5, 1, 1, 1)), "DCI-P3")}
 
 
 def _figure(width: float, height: float, nrows: int = 1, ncols: int = 1, **kwargs):
@@ -91,7 +100,10 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
     """CIE 1931 xy diagram: spectrum locus, reference outlines and each display's gamut polygon.
 
     ``gamut_polygon`` has dims (``display``, ``vertex``, ``chromaticity``), NaN padded, as in a
-    study result; ``primary_xy`` (display, primary, chromaticity) marks the primaries.
+    study result; ``primary_xy`` (display, primary, chromaticity) marks the primaries;
+    ``references`` names the reference gamuts outlined (a study's ``reference_gamut`` values: every
+    gamut its coverage table lists). Outlines with the same primaries (Display P3 and DCI-P3, which
+    differ only in their white) are drawn once and named together.
     """
     from metasim.gamut import reference_xy, spectrum_locus
     from metasim.observers import standard_observer
@@ -109,14 +121,24 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
             xyz = cmf.sel(wavelength=float(nm)).values
             x, y = xyz[0] / xyz.sum(), xyz[1] / xyz.sum()
             ax.plot([x], [y], marker="o", ms=2.5, color="#4a4a4a")
-            ax.annotate(f"{nm}", (x, y), textcoords="offset points", xytext=(-16 if x < 0.2 else 5, 2),
-                        fontsize=7.5, color="#4a4a4a")
-        styles = {"bt709": ("--", "ITU-R BT.709"), "bt2020": (":", "ITU-R BT.2020"),
-                  "display_p3": ("-.", "Display P3"), "dci_p3": ((0, (5, 1, 1, 1)), "DCI-P3")}
+            # the label sits outside the locus, along the line from the white point through the tick
+            dx, dy = x - D65_XY[0], y - D65_XY[1]
+            norm = float(np.hypot(dx, dy)) or 1.0
+            dx, dy = dx / norm, dy / norm
+            ax.annotate(f"{nm}", (x, y), textcoords="offset points", xytext=(9 * dx, 9 * dy), fontsize=8,
+                        color="#4a4a4a", ha="left" if dx > 0.3 else "right" if dx < -0.3 else "center",
+                        va="bottom" if dy > 0.3 else "top" if dy < -0.3 else "center", annotation_clip=False)
+        drawn = []  # outlines with the same primaries are drawn once, with both names
         for name in references:
             xy = _closed(reference_xy(name).transpose("primary", "chromaticity").values)
-            style, label = styles.get(name, ("--", name))
-            ax.plot(xy[:, 0], xy[:, 1], ls=style, color=OUTLINE_COLOUR, lw=1.1, label=label)
+            style, label = REFERENCE_OUTLINES.get(name, ("--", name))
+            for other in drawn:
+                if other["xy"].shape == xy.shape and np.allclose(other["xy"], xy, atol=1e-4):
+                    other["line"].set_label(f"{other['line'].get_label()} and {label} (same primaries)")
+                    break
+            else:
+                line, = ax.plot(xy[:, 0], xy[:, 1], ls=style, color=OUTLINE_COLOUR, lw=1.1, label=label)
+                drawn.append({"xy": xy, "line": line})
         names = [str(v) for v in gamut_polygon["display"].values]
         colours = colours_for(names, _roles(gamut_polygon))
         for name in names:
@@ -130,12 +152,12 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
         if white_xy is not None:
             w = white_xy.transpose("display", "chromaticity").values
             ax.scatter(w[:, 0], w[:, 1], marker="+", s=60, color="#222222", zorder=6, label="white points")
-        ax.set_xlim(-0.02, 0.78)
-        ax.set_ylim(-0.02, 0.88)
+        ax.set_xlim(-0.06, 0.8)
+        ax.set_ylim(-0.05, 0.9)
         ax.set_aspect("equal")
         ax.set_xlabel("x (CIE 1931 chromaticity, unitless)")
         ax.set_ylabel("y (CIE 1931 chromaticity, unitless)")
-        ax.set_title("Chromaticity gamuts")
+        ax.set_title("Chromaticity gamuts (CIE 1931 xy; locus labels in nm)")
         ax.legend(loc="upper left", bbox_to_anchor=(1.0, 1.0), frameon=False, fontsize="small")
     return fig
 
@@ -154,22 +176,46 @@ def _primary_colour(xy: np.ndarray) -> str:
     return "#" + "".join(f"{int(round(c * 255)):02x}" for c in rgb)
 
 
+#: a primary narrower than this (full width at half maximum, nm) counts as a line
+NARROW_FWHM_NM = 5.0
+#: lines taller than this many times the broadband curves of their panel are cut at the top
+CLIP_RATIO = 4.0
+
+
+def _fwhm(wl: np.ndarray, values: np.ndarray) -> float:
+    """Full width at half maximum of a sampled curve, in nm (samples at or above half the peak)."""
+    peak = float(np.max(values))
+    if peak <= 0:
+        return 0.0
+    step = float(np.median(np.diff(wl))) if wl.size > 1 else 1.0
+    return float(np.count_nonzero(values >= 0.5 * peak)) * step
+
+
 def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = None,
-                    primary_xy: xr.DataArray | None = None) -> Figure:
+                    primary_xy: xr.DataArray | None = None, descriptions: dict | None = None) -> Figure:
     """Spectral radiance of each display's primaries, one panel per display.
 
     ``spectra`` has dims ([``display``,] ``primary``, ``wavelength``); NaN rows (padding) are skipped.
+    ``descriptions`` (display name → {primary label → text}, e.g. "laser line 639 nm",
+    "backlight through a 610-710 nm filter") name what each primary is; the legend adds the peak
+    wavelength read off the curve. Where narrow lines (FWHM < 5 nm) stand more than four times
+    taller than the broadband curves of the same panel, the axis is scaled to the broadband curves
+    and the lines are cut at the top with their peak radiance written beside them, so that both stay
+    readable. Legends sit beside the panels, never over a curve.
     """
     if "display" not in spectra.dims:
         spectra = spectra.expand_dims(display=[str(spectra.attrs.get("name", "display"))])
     names = [str(v) for v in spectra["display"].values]
-    units = spectra.attrs.get("units", "W sr-1 m-2 nm-1").replace("sr-1", "sr⁻¹").replace("m-2", "m⁻²").replace("nm-1", "nm⁻¹")
+    units = unit_text(spectra.attrs.get("units", "W sr-1 m-2 nm-1"))
     with rc_context(STYLE):
-        fig, axes = _figure(7.2, 1.2 + 2.1 * len(names), len(names), 1, sharex=True)
+        fig, axes = _figure(9.4, 1.3 + 2.2 * len(names), len(names), 1, sharex=True)
         wl = spectra["wavelength"].values
+        shown = wl <= 780.0
+        clipped_any = False
         for ax, name in zip(axes[:, 0], names):
             block = spectra.sel(display=name).transpose("primary", "wavelength")
-            used = []
+            said = (descriptions or {}).get(name, {})
+            curves = []
             for i in range(block.sizes["primary"]):
                 values = block.values[i]
                 if not np.isfinite(values).all():
@@ -177,18 +223,38 @@ def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = 
                 label = str(primary_label.sel(display=name).values[i]) if primary_label is not None else str(block.primary.values[i])
                 xy = (primary_xy.sel(display=name).transpose("primary", "chromaticity").values[i]
                       if primary_xy is not None else np.array([np.nan, np.nan]))
-                peak = wl[int(np.argmax(values))]
+                curves.append((label, values, xy, _fwhm(wl, values) < NARROW_FWHM_NM))
+            broad = [float(np.max(v)) for _, v, _, narrow in curves if not narrow]
+            tall = [float(np.max(v)) for _, v, _, narrow in curves if narrow]
+            top = None
+            if broad and tall and max(tall) > CLIP_RATIO * max(broad):
+                top = 1.6 * max(broad)
+            used = []
+            for label, values, xy, narrow in curves:
+                peak_nm = float(wl[int(np.argmax(values))])
                 colour = _primary_colour(xy)
                 style = "--" if colour in used else "-"  # two primaries of one hue: tell them apart
                 used.append(colour)
-                ax.plot(wl, values, color=colour, ls=style, lw=1.5, label=f"{label} (peak {peak:.0f} nm)")
+                what = said.get(label)
+                text = f"{label}: {what}" if what else f"{label}"
+                if not (what and what.startswith("laser line")):
+                    text += f", peak {peak_nm:.0f} nm" if what else f" (peak {peak_nm:.0f} nm)"
+                ax.plot(wl, values, color=colour, ls=style, lw=1.5, label=textwrap.fill(text, 30, subsequent_indent="   "))
+                if top is not None and float(np.max(values)) > top:
+                    clipped_any = True
+                    ax.annotate(f"{float(np.max(values)):.3g}", (peak_nm, top), xytext=(4, -2),
+                                textcoords="offset points", ha="left", va="top", fontsize=8, color=colour)
+                    ax.plot([peak_nm], [top], marker="^", ms=5, color=colour, clip_on=False)
             ax.set_title(name, loc="left")
             ax.set_ylabel(f"Radiance\n({units})")
-            ax.set_ylim(bottom=0)
-            ax.legend(loc="upper right", frameon=False, ncols=2)
+            ax.set_ylim(0, top) if top is not None else ax.set_ylim(bottom=0)
+            ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False, fontsize=8.5)
         axes[-1, 0].set_xlabel("Wavelength (nm)")
-        axes[-1, 0].set_xlim(wl[0], min(wl[-1], 780.0))
-        fig.suptitle("Primary spectra after white calibration")
+        axes[-1, 0].set_xlim(wl[0], wl[shown][-1] if shown.any() else wl[-1])
+        title = "Primary spectra after white calibration"
+        if clipped_any:
+            title += "\n(narrow laser lines cut at the top of their panel, ▲; their peak radiance beside them)"
+        fig.suptitle(title)
     return fig
 
 
@@ -233,7 +299,7 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
     colours = colours_for(designs)
     width = 0.8 / len(designs)
     with rc_context(STYLE):
-        fig, axes = _figure(7.6, 4.6)
+        fig, axes = _figure(9.6, 4.8)
         ax = axes[0, 0]
         weights = observer_weights(delta_e)
         for j, name in enumerate(designs):
@@ -258,17 +324,21 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
                 for line in box[part]:
                     line.set(color=colours[name] if part != "medians" else "#1a1a1a", lw=1.2)
             ax.plot([], [], color=colours[name], lw=8, alpha=0.55, label=name)
-        for t in thresholds:
-            ax.axhline(t, color="#9a9a9a", lw=0.8, ls=(0, (2, 3)), zorder=0)
-            ax.annotate(f"{t:g}", (1.0, t), xycoords=("axes fraction", "data"), xytext=(3, -3),
-                        textcoords="offset points", fontsize=7.5, color="#7a7a7a")
+        ax.plot([], [], ls="none", marker="D", markerfacecolor="white", markeredgecolor="#1a1a1a", markersize=4,
+                 label="mean")
+        ax.plot([], [], color="#1a1a1a", lw=1.2, label="median")
+        for k, t in enumerate(thresholds):
+            ax.axhline(t, color="#8a8a8a", lw=0.9, ls=(0, (2, 3)), zorder=0,
+                       label=f"thresholds {', '.join(f'{v:g}' for v in thresholds)} {DELTA_E00}" if k == 0 else None)
+            ax.annotate(f"{t:g}", (0.0, t), xycoords=("axes fraction", "data"), xytext=(3, 2),
+                        textcoords="offset points", fontsize=8.5, color="#6a6a6a", va="bottom")
         counts = [int(m.sum()) for m in masks]
         ax.set_xticks(np.arange(len(labels)), [f"{lab}\n(n={c})" for lab, c in zip(labels, counts)])
-        ax.set_xlabel("Viewer age band (years)")
+        ax.set_xlabel("Viewer age band (years, whole years; the last band includes its upper end; n: observers)")
         ax.set_ylabel(DELTA_E_LABEL)
         ax.set_ylim(bottom=0)
-        ax.set_title("Mismatch by viewer age (box: quartiles, whiskers: 5th-95th percentile)")
-        ax.legend(loc="upper left", frameon=False)
+        ax.set_title("Mismatch by viewer age, all stimuli pooled\n(box: quartiles, whiskers: 5th-95th percentile)")
+        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
     return fig
 
 
@@ -278,51 +348,66 @@ def p95_by_stimulus(by_stimulus: xr.DataArray, max_stimuli: int = 40) -> Figure:
     """Horizontal bars: the population's 95th-percentile CIE 2000 difference for each stimulus.
 
     ``by_stimulus`` has dims ([``design``,] ``statistic``, ``stimulus``), as the engine's
-    ``delta_e_2000_by_stimulus``. With more than ``max_stimuli`` stimuli the worst ones are shown.
+    ``delta_e_2000_by_stimulus``. Stimuli are sorted, largest at the top; with more than
+    ``max_stimuli`` the largest are shown. Stimuli at zero for every design (black: nothing to
+    see) get no empty row; the title says how many were left out. Within each stimulus the
+    designs stand in legend order, top to bottom.
     """
     if "design" not in by_stimulus.dims:
         by_stimulus = by_stimulus.expand_dims(design=["design"])
     p95 = by_stimulus.sel(statistic="p95").transpose("design", "stimulus")
-    worst = p95.max("design").values
-    order = np.argsort(worst)
-    shown = order[-max_stimuli:]
+    worst = np.nan_to_num(p95.max("design").values, nan=0.0)
     stimuli = [str(v) for v in p95["stimulus"].values]
+    seen = np.flatnonzero(worst > 1e-9)
+    zero = len(stimuli) - seen.size
+    order = seen[np.argsort(worst[seen], kind="stable")]
+    shown = order[-max_stimuli:]
     designs = [str(v) for v in p95["design"].values]
     colours = colours_for(designs)
     height = 0.8 / len(designs)
     with rc_context(STYLE):
-        fig, axes = _figure(7.2, 1.4 + 0.24 * len(shown) * max(1, len(designs) * 0.7))
+        fig, axes = _figure(7.6, 1.6 + 0.24 * max(len(shown), 1) * max(1, len(designs) * 0.7))
         ax = axes[0, 0]
         y = np.arange(len(shown))
-        for j, name in enumerate(designs):
-            ax.barh(y + (j - (len(designs) - 1) / 2) * height, p95.sel(design=name).values[shown], height=height * 0.9,
+        for j, name in enumerate(designs):  # the first design on top within each stimulus, as in the legend
+            ax.barh(y + ((len(designs) - 1) / 2 - j) * height, p95.sel(design=name).values[shown], height=height * 0.9,
                     color=colours[name], label=name)
         ax.set_yticks(y, [stimuli[i] for i in shown], fontsize=8.5)
+        ax.set_ylim(-0.6, len(shown) - 0.4)
+        ax.set_ylabel("Stimulus (sorted, largest at the top)")
         ax.set_xlabel(f"95th percentile over observers, {DELTA_E_LABEL}")
-        title = "Worst-case viewers per stimulus"
-        if len(shown) < len(stimuli):
-            title += f" (the {len(shown)} worst of {len(stimuli)} stimuli)"
+        title = "95th percentile of the CIE 2000 difference over observers, per stimulus"
+        left_out = []
+        if len(shown) < seen.size:
+            left_out.append(f"the {len(shown)} largest of {len(stimuli)} stimuli")
+        if zero:
+            left_out.append(f"{zero} stimul{'us' if zero == 1 else 'i'} at 0 for every design not shown")
+        if left_out:
+            title += "\n(" + "; ".join(left_out) + ")"
         ax.set_title(title)
         ax.grid(axis="y", visible=False)
-        ax.legend(loc="lower right", frameon=False)
+        ax.legend(loc="lower right", frameon=True, framealpha=0.9, edgecolor="none")
     return fig
 
 
 # -- extra-primary gain --------------------------------------------------------------------------------
 
 def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.DataArray | None = None,
-                       primary_peaks_nm: dict | None = None) -> Figure:
+                       primary_peaks_nm: dict | None = None, own_extra_nm: dict | None = None) -> Figure:
     """Gamut gained by one extra laser primary at each candidate peak wavelength.
 
     Shares (0..1) with dims ([``design``,] ``peak_wavelength``) are drawn in percent of the base
-    design's gamut; ``primary_peaks_nm`` (design name → peaks) marks the design's own primaries.
+    design's gamut; ``primary_peaks_nm`` (design name → peaks) marks the base primaries' peaks
+    (dotted); ``own_extra_nm`` (design name → {label: peak}) marks the primaries a design has beyond
+    its base (solid, labelled): where the curve peaks at such a line, the design already holds that
+    gain.
     """
-    panels = [("area", area_gain_share, "Chromaticity area gain\n(% of base, CIE 1931 xy)")]
+    panels = [("area", area_gain_share, "Chromaticity area gain\n(% of base area, CIE 1931 xy)")]
     if volume_gain_share is not None:
-        panels.append(("volume", volume_gain_share, "CIELAB volume gain\n(% of base)"))
+        panels.append(("volume", volume_gain_share, "CIELAB volume gain\n(% of base volume)"))
     with rc_context(STYLE):
-        fig, axes = _figure(7.2, 1.0 + 2.4 * len(panels), len(panels), 1, sharex=True)
-        for ax, (_, share, label) in zip(axes[:, 0], panels):
+        fig, axes = _figure(8.4, 1.8 + 2.4 * len(panels), len(panels), 1, sharex=True)
+        for row, (ax, (_, share, label)) in enumerate(zip(axes[:, 0], panels)):
             if "design" not in share.dims:
                 share = share.expand_dims(design=["design"])
             designs = [str(v) for v in share["design"].values]
@@ -332,10 +417,21 @@ def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.Data
                 ax.plot(wl, 100 * share.sel(design=name).values, color=colours[name], lw=1.8, label=name)
                 for peak in (primary_peaks_nm or {}).get(name, []):
                     ax.axvline(peak, color=colours[name], lw=0.8, ls=(0, (1, 2)))
+                for extra, peak in (own_extra_nm or {}).get(name, {}).items():
+                    ax.axvline(peak, color=colours[name], lw=1.6, alpha=0.8)
+                    if row == 0:  # the label on the side of the line with more room
+                        right = peak > wl[0] + 0.7 * (wl[-1] - wl[0])
+                        ax.annotate(f"{extra} {peak:g} nm", (peak, 0.98), xycoords=("data", "axes fraction"),
+                                    xytext=(-4 if right else 4, 0), textcoords="offset points",
+                                    ha="right" if right else "left", va="top", fontsize=8.5, color=colours[name],
+                                    bbox={"boxstyle": "square,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
             ax.set_ylabel(label)
             ax.set_ylim(bottom=0)
-        axes[0, 0].legend(loc="upper right", frameon=False)
-        axes[0, 0].set_title("Gain from one more laser primary (dotted: the base primaries' peaks)")
+        axes[0, 0].plot([], [], color="#555555", lw=0.8, ls=(0, (1, 2)), label="peaks of the base primaries")
+        if any((own_extra_nm or {}).values()):
+            axes[0, 0].plot([], [], color="#555555", lw=1.6, label="the design's own primary beyond its base")
+        fig.legend(*axes[0, 0].get_legend_handles_labels(), loc="outside lower center", ncols=2, frameon=False)
+        axes[0, 0].set_title("Gamut gained by one more laser primary, per candidate wavelength")
         axes[-1, 0].set_xlabel("Candidate peak wavelength (nm)")
     return fig
 
@@ -347,11 +443,21 @@ def observer_spread(population: xr.Dataset) -> Figure:
     with rc_context(STYLE):
         fig, axes = _figure(9.0, 3.8, 1, 2)
         ages = np.asarray(population.coords["age_years"].values, dtype=float) if "age_years" in population.coords else None
-        if ages is not None:
-            axes[0, 0].hist(ages, bins=max(5, min(30, len(ages) // 10)), color=REFERENCE_COLOUR, alpha=0.8)
+        weights = np.asarray(population.coords["weight"].values, dtype=float) if "weight" in population.coords else None
+        if ages is not None and weights is not None:  # categories: each one's share of the population at its age
+            axes[0, 0].bar(ages, 100 * weights, width=1.6, color=REFERENCE_COLOUR, alpha=0.85)
+            for k, (age, share) in enumerate(zip(ages, weights)):
+                axes[0, 0].annotate(f"{k}", (age, 100 * share), xytext=(0, 2), textcoords="offset points",
+                                    ha="center", va="bottom", fontsize=8)
+            axes[0, 0].set_ylabel("Share of the population (%)")
+            axes[0, 0].set_title("Categories by age (numbers: category)")
+        else:
+            if ages is not None:
+                axes[0, 0].hist(ages, bins=max(5, min(30, len(ages) // 10)), color=REFERENCE_COLOUR, alpha=0.8)
+            axes[0, 0].yaxis.set_major_locator(MaxNLocator(integer=True))
+            axes[0, 0].set_ylabel("Observers (count)")
+            axes[0, 0].set_title("Ages")
         axes[0, 0].set_xlabel("Age (years)")
-        axes[0, 0].set_ylabel("Observers (count)")
-        axes[0, 0].set_title("Ages")
         cmf = population["cmf"].transpose("observer", "xyz", "wavelength")
         wl = cmf["wavelength"].values
         ax = axes[0, 1]

@@ -13,8 +13,10 @@ from matplotlib import rc_context
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
+from matplotlib.ticker import MaxNLocator
 
 from metasim.plots.figures import DESIGN_COLOURS, OUTLINE_COLOUR, REFERENCE_COLOUR, STYLE, _figure
+from metasim.units import DELTA_E00
 
 FITTED_COLOUR = DESIGN_COLOURS[1]
 MEAN_COLOUR = DESIGN_COLOURS[0]
@@ -23,9 +25,12 @@ MAX_SUBJECT_ROWS = 30
 
 
 def _label(ds: xr.Dataset, name: str) -> str:
+    """``"l_shift_nm"`` → ``"L-cone peak shift (nm)"`` (the report's words for parameter keys)."""
+    from metasim.report.labels import key_label
+
     units = str(ds["parameter_units"].sel(parameter=name).values) if "parameter_units" in ds.coords else ""
-    text = name.removesuffix("_pct").removesuffix("_nm").removesuffix("_years").replace("_", " ")
-    return f"{text} ({units})"
+    text = key_label(name.removesuffix("_pct").removesuffix("_nm").removesuffix("_years"))
+    return f"{text} ({units})" if units and units != "1" else f"{text} (unitless)"
 
 
 def fit_parameters(ds: xr.Dataset) -> Figure:
@@ -56,6 +61,8 @@ def fit_parameters(ds: xr.Dataset) -> Figure:
                 ax.set_yticks(y if n <= 12 else y[::max(1, n // 6)])
                 ax.set_yticklabels([str(v) for v in ds["observer"].values[ax.get_yticks().astype(int)]], fontsize=8)
                 ax.grid(False, axis="y")
+                if ax.get_subplotspec().is_first_col():
+                    ax.set_ylabel("Subject")
             else:
                 bins = np.linspace(mean - 3.5 * sd, mean + 3.5 * sd, 36)
                 ax.hist(np.clip(est, bins[0], bins[-1]), bins=bins, density=True, color=FITTED_COLOUR, alpha=0.75)
@@ -63,6 +70,7 @@ def fit_parameters(ds: xr.Dataset) -> Figure:
                 ax.plot(x, np.exp(-0.5 * ((x - mean) / sd) ** 2) / (sd * np.sqrt(2 * np.pi)), color=REFERENCE_COLOUR,
                         lw=1.2)
                 ax.set_yticks([])
+                ax.set_ylabel("Density (1/unit)")
                 ax.set_title(f"median SE {np.median(se):.3g}, identified {100 * ok.mean():.0f} %", fontsize=9)
             ax.set_xlabel(_label(ds, name))
         handles = [Patch(color=REFERENCE_COLOUR, alpha=0.3, label="population mean ± 1, ± 2 SD")]
@@ -80,7 +88,7 @@ def fit_parameters(ds: xr.Dataset) -> Figure:
 def fit_residuals(ds: xr.Dataset) -> Figure:
     """Match errors of the mean observer and the fitted observers: per stimulus and per subject."""
     session = ds.attrs.get("matching_data") == "matching session"
-    unit = "CIE 2000 ΔE00" if session else "CIE 1976 Δu'v'"
+    unit = f"CIE 2000, {DELTA_E00}" if session else "CIE 1976 Δu'v', unitless"
     fitted = ds["match_error"].transpose("observer", "matching_stimulus", "matching_repeat").values
     mean = ds["match_error_mean_observer"].transpose("observer", "matching_stimulus", "matching_repeat").values
     with rc_context(STYLE):
@@ -115,6 +123,7 @@ def fit_residuals(ds: xr.Dataset) -> Figure:
             ax.hist(values[np.isfinite(values)], bins=bins, color=colour, alpha=0.6, label=text)
         ax.set_xlabel(f"Median match error per subject ({unit})")
         ax.set_ylabel("Subjects (count)")
+        ax.yaxis.set_major_locator(MaxNLocator(integer=True))
         ax.set_title("Per subject, before and after")
         ax.legend(frameon=False)
     return fig

@@ -12,13 +12,13 @@ from metasim.sweep.pareto import objective_values, pareto_objectives
 
 #: Axis words of the named objectives (metasim.sweep.pareto.OBJECTIVES); a share is shown in %.
 OBJECTIVE_AXES = {
-    "p95_mismatch": ("95th percentile ΔE00\n(all observer × stimulus pairs)", 1.0),
-    "median_mismatch": ("median ΔE00\n(all observer × stimulus pairs)", 1.0),
-    "white_p95": ("95th percentile ΔE00 of the white", 1.0),
+    "p95_mismatch": ("95th percentile CIE 2000 difference\n(ΔE00; all observer × stimulus pairs)", 1.0),
+    "median_mismatch": ("median CIE 2000 difference\n(ΔE00; all observer × stimulus pairs)", 1.0),
+    "white_p95": ("95th percentile CIE 2000 difference\nof the white (ΔE00)", 1.0),
     "bt2020_coverage": ("BT.2020 xy area covered (%)", 100.0),
     "p3_coverage": ("Display P3 xy area covered (%)", 100.0),
     "bt709_coverage": ("BT.709 xy area covered (%)", 100.0),
-    "gamut_area": ("CIE 1931 xy gamut area", 1.0),
+    "gamut_area": ("CIE 1931 xy gamut area (unitless)", 1.0),
     "lab_volume": ("CIELAB volume (CIELAB units³)", 1.0),
     "white_efficacy": ("luminous efficacy of the white (lm/W)", 1.0),
 }
@@ -55,7 +55,7 @@ def pareto_figure(values: np.ndarray, ranks: np.ndarray, objectives: list[dict],
                                               objectives[j].get("long_name"))
             x, y = values[:, j] * x_scale, values[:, 0] * y_scale
             ax.scatter(x[other], y[other], s=14, color=OUTLINE_COLOUR, alpha=0.45, lw=0,
-                       label=f"other designs ({int(other.sum())})")
+                       label=f"other designs ({int(other.sum())})" if other.any() else None)
             ax.scatter(x[front], y[front], s=46, color=DESIGN_COLOURS[0], edgecolor=REFERENCE_COLOUR, lw=0.8,
                        zorder=5, label=f"Pareto front ({int(front.sum())} designs)")
             if k == 2 and front.sum() > 1:  # two objectives: the front is a staircase
@@ -72,7 +72,7 @@ def pareto_figure(values: np.ndarray, ranks: np.ndarray, objectives: list[dict],
             if objectives[j]["sense"] == "max":
                 ax.annotate("better →", (0.98, 0.02), xycoords="axes fraction", ha="right", fontsize=8,
                             color="#7a7a7a")
-        axes[0, 0].legend(loc="upper left", frameon=False)
+        fig.legend(*axes[0, 0].get_legend_handles_labels(), loc="outside lower center", ncols=2, frameon=False)
         fig.suptitle("Designs no other design beats on every objective (Pareto front)", fontsize=12)
     return fig
 

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import textwrap
+
 import numpy as np
 import xarray as xr
 from matplotlib import rc_context
@@ -9,6 +11,7 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
 from metasim.plots.figures import DESIGN_COLOURS, OUTLINE_COLOUR, REFERENCE_COLOUR, STYLE, _figure
+from metasim.units import axis_label
 
 
 def search_convergence(result: xr.Dataset, penalty: float = 1.0e6) -> Figure:
@@ -32,8 +35,10 @@ def search_convergence(result: xr.Dataset, penalty: float = 1.0e6) -> Figure:
             bad = np.flatnonzero(~feasible)
             ax.scatter(generation[bad], np.full(bad.size, top * 1.05 if top > 0 else 1.0), marker="x", s=14,
                        color=REFERENCE_COLOUR, lw=0.8, label="breaks a constraint")
-        ax.set_xlabel("Generation (0 = initial population)")
-        ax.set_ylabel("Value minimised by the search")
+        ax.set_xlabel("Generation (count; 0 = initial population)")
+        words = str(result["search_objective"].attrs.get("long_name", "value the search minimises")).split(" (")[0]
+        ax.set_ylabel(axis_label(textwrap.fill(f"Minimised: {words}", 40),
+                                 result["search_objective"].attrs.get("units", "1")))
         ax.xaxis.set_major_locator(MaxNLocator(integer=True))
         ax.set_title(f"Search: {value.size} designs in {count} generations")
         ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)

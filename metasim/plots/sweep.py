@@ -11,6 +11,10 @@ from matplotlib.patches import Rectangle
 from matplotlib.ticker import MaxNLocator
 
 from metasim.plots.figures import DELTA_E_LABEL, DESIGN_COLOURS, REFERENCE_COLOUR, STYLE, _figure
+from metasim.units import DELTA_E00
+
+#: the threshold line of the sweep curves (ΔE00; common practice, no source)
+THRESHOLD = 2.0
 
 #: Sequential map of the sweep heat map, light (small mismatch) to dark (large): cream, ember, slate.
 MISMATCH_CMAP = LinearSegmentedColormap.from_list("metasim_mismatch", ["#f4f1ea", "#e9b27d", "#d9633b", "#8e3b46",
@@ -116,26 +120,25 @@ def _sweep_curves(summary: xr.Dataset, name: str, p95: np.ndarray, median: np.nd
         coverage = 100 * summary["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
     best = _best_index(p95)
     with rc_context(STYLE):
-        fig, axes = _figure(7.6, 4.4 if coverage is None else 6.4, 1 if coverage is None else 2, 1, sharex=True,
+        fig, axes = _figure(9.6, 4.4 if coverage is None else 6.4, 1 if coverage is None else 2, 1, sharex=True,
                             gridspec_kw=None if coverage is None else {"height_ratios": [2.2, 1]})
         ax = axes[0, 0]
         ax.plot(x[order], p95[order], color=DESIGN_COLOURS[0], lw=1.8, marker="o", ms=4.5, label="95th percentile")
         ax.plot(x[order], median[order], color=DESIGN_COLOURS[1], lw=1.5, marker="s", ms=4, ls="--", label="median")
         ax.scatter([x[best]], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
                    label=f"best: design {_tick(summary['design'].values[best])} ({parameter_value(summary, name, best)})")
-        ax.axhline(2.0, color="#9a9a9a", lw=0.8, ls=(0, (2, 3)), zorder=0)
-        ax.annotate("2", (1.0, 2.0), xycoords=("axes fraction", "data"), xytext=(3, -3), textcoords="offset points",
-                    fontsize=7.5, color="#7a7a7a")
+        ax.axhline(THRESHOLD, color="#8a8a8a", lw=0.9, ls=(0, (2, 3)), zorder=0,
+                   label=f"{THRESHOLD:g} {DELTA_E00} (common practice threshold)")
         ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
         ax.set_ylim(bottom=0)
         ax.set_title("Mismatch of each design against the reference")
-        ax.legend(loc="best", frameon=False)
+        ax.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)  # beside the data, never over it
         if coverage is not None:
             ax2 = axes[1, 0]
             ax2.plot(x[order], coverage[order], color=REFERENCE_COLOUR, lw=1.6, marker="o", ms=4,
-                     label="BT.2020 xy area covered")
+                     label="BT.2020 xy area\ncovered")
             ax2.set_ylabel("BT.2020 covered\n(% of xy area, CIE 1931)")
-            ax2.legend(loc="best", frameon=False)
+            ax2.legend(loc="upper left", bbox_to_anchor=(1.01, 1.0), frameon=False)
         bottom = axes[-1, 0]
         if categorical:
             bottom.set_xticks(np.arange(len(categories)), categories)
@@ -174,9 +177,9 @@ def _sweep_heat_map(summary: xr.Dataset, names: list[str], p95: np.ndarray) -> F
         ax.set_yticks(np.arange(len(ys))[::step_y], [_tick(v) for v in ys][::step_y])
         ax.set_xlabel(parameter_label(summary, xn))
         ax.set_ylabel(parameter_label(summary, yn))
-        ax.set_title("95th percentile mismatch per design")
+        ax.set_title("95th percentile CIE 2000 difference per design")
         bar = fig.colorbar(image, ax=ax)
-        bar.set_label("95th percentile CIE 2000 ΔE00\n(CIELAB units)")
+        bar.set_label(f"95th percentile CIE 2000 difference\n({DELTA_E00})")
         ax.legend(loc="upper left", bbox_to_anchor=(0.0, -0.16), frameon=False)
     return fig
 
@@ -197,7 +200,7 @@ def _sweep_rank(summary: xr.Dataset, varied: list[str], p95: np.ndarray, median:
         values = "\n".join(f"{parameter_text(summary, c)[0]} {parameter_value(summary, c, best)}" for c in varied[:5])
         ax.scatter([1], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
                    label=f"best: design {_tick(designs[best])}" + (f"\n{values}" if values else ""))
-        ax.set_xlabel("Rank of the design (1 = smallest 95th percentile)")
+        ax.set_xlabel("Rank of the design (unitless; 1 = smallest 95th percentile)")
         ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
         ax.set_ylim(bottom=0)
         ax.set_xlim(0.5, len(order) + 0.5)

@@ -81,8 +81,9 @@ def _kind(ds: xr.Dataset) -> str:
 
 # -- figures ---------------------------------------------------------------------------------------------
 
-def _primary_peaks(ds: xr.Dataset) -> dict:
-    """Peak wavelength of each base primary, per design (for the extra-primary figure)."""
+def _primary_peaks(ds: xr.Dataset, base: bool = True) -> dict:
+    """Peak wavelength of each primary in (``base``) or beyond (not ``base``) a design's extra-primary
+    base, per design: {design: [peaks]} for the base, {design: {label: peak}} beyond it."""
     out = {}
     if "spectra" not in ds or "design" not in ds.dims:
         return out
@@ -91,10 +92,50 @@ def _primary_peaks(ds: xr.Dataset) -> dict:
             continue
         spectra = ds["spectra"].sel(display=name).transpose("primary", "wavelength")
         labels = [str(v) for v in ds["primary_label"].sel(display=name).values]
-        base = str(ds["extra_base"].sel(design=name).values).split(", ") if "extra_base" in ds else labels
+        members = str(ds["extra_base"].sel(design=name).values).split(", ") if "extra_base" in ds else labels
         wl = spectra["wavelength"].values
-        out[str(name)] = [float(wl[int(np.nanargmax(spectra.values[i]))]) for i, lab in enumerate(labels)
-                          if lab and lab in base]
+        peaks = {lab: float(wl[int(np.nanargmax(spectra.values[i]))]) for i, lab in enumerate(labels) if lab}
+        if base:
+            out[str(name)] = [peak for lab, peak in peaks.items() if lab in members]
+        else:
+            out[str(name)] = {lab: peak for lab, peak in peaks.items() if lab not in members}
+    return out
+
+
+def _describe_primary(table: dict) -> str:
+    """What a primary of a design spec is, in words: "laser line 639 nm", "backlight through a
+    610-710 nm filter"."""
+    kind = table.get("kind", table.get("type"))
+
+    def nm(key):
+        value = table.get(key)
+        return f"{value:g}" if isinstance(value, (int, float)) else "?"
+
+    if kind == "laser":
+        return f"laser line {nm('peak_nm')} nm"
+    if kind == "filter":
+        centre, width = table.get("centre_nm"), table.get("passband_nm", table.get("width_nm"))
+        if isinstance(centre, (int, float)) and isinstance(width, (int, float)):
+            return f"backlight through a {centre - width / 2:g}-{centre + width / 2:g} nm filter"
+        return "backlight through a filter"
+    return {"gaussian": "Gaussian band", "led": "LED", "quantum_dot": "quantum dot",
+            "measured": "measured spectrum"}.get(kind, str(kind or "primary"))
+
+
+def primary_descriptions(ds: xr.Dataset) -> dict:
+    """{display: {primary label: words}} from the design specs a result keeps (``display_specs``);
+    empty for displays without a spec."""
+    import tomllib
+
+    specs = parsed(ds.attrs.get("display_specs", {}))
+    out = {}
+    for name, text in (specs.items() if isinstance(specs, dict) else []):
+        try:
+            spec = tomllib.loads(str(text))
+        except tomllib.TOMLDecodeError:
+            continue
+        tables = spec.get("primary") if isinstance(spec.get("primary"), list) else []
+        out[str(name)] = {str(t.get("label")): _describe_primary(t) for t in tables if isinstance(t, dict)}
     return out
 
 
@@ -134,11 +175,15 @@ def figure_builders(ds: xr.Dataset) -> dict:
         figures["observers"] = (lambda: plots.observer_spread(ds), "Ages and colour-matching functions of the observers.")
         return figures
     if "gamut_polygon" in ds:
+        references = ([str(r) for r in ds["reference_gamut"].values] if "reference_gamut" in ds.coords
+                      else ["bt709", "bt2020"])
         figures["chromaticity"] = (lambda: plots.chromaticity_diagram(ds["gamut_polygon"], ds.get("primary_xy"),
-                                                                      ds.get("white_xy")),
-                                   "Gamut of each display in the CIE 1931 xy diagram, with the BT.709 and BT.2020 outlines.")
+                                                                      ds.get("white_xy"), references=references),
+                                   "Gamut of each display in the CIE 1931 xy diagram, with the outlines of the "
+                                   f"reference gamuts ({', '.join(label(r) for r in references)}).")
     if "spectra" in ds and "display" in ds["spectra"].dims:
-        figures["spectra"] = (lambda: plots.primary_spectra(ds["spectra"], ds.get("primary_label"), ds.get("primary_xy")),
+        figures["spectra"] = (lambda: plots.primary_spectra(ds["spectra"], ds.get("primary_label"), ds.get("primary_xy"),
+                                                            primary_descriptions(ds)),
                               "Spectral radiance of every primary at full drive after white calibration.")
     if "delta_e_2000" in ds and "age_years" in ds["delta_e_2000"].coords:
         bands = list(ds["age_band"].values) if "age_band" in ds.coords else None
@@ -149,7 +194,7 @@ def figure_builders(ds: xr.Dataset) -> dict:
                                       "95th percentile of the population's CIE 2000 difference, per stimulus.")
     if "area_gain_share" in ds:
         figures["extra_primary"] = (lambda: plots.extra_primary_gain(ds["area_gain_share"], ds.get("volume_gain_share"),
-                                                                     _primary_peaks(ds)),
+                                                                     _primary_peaks(ds), _primary_peaks(ds, base=False)),
                                     "Gamut area and CIELAB volume gained by one more laser primary, per candidate wavelength.")
     return figures
 
@@ -244,7 +289,7 @@ def _gamut(ds: xr.Dataset) -> str:
 
 
 def _volume(value) -> str:
-    """A CIELAB volume as a reader reads it: ``1 110 000`` → ``"1.11 million"``."""
+    """A CIELAB volume in a table whose header names the unit: ``1 110 000`` → ``"1.11 million"``."""
     value = float(value)
     if not np.isfinite(value):
         return "–"

@@ -10,7 +10,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.report.html import _attribute_list, _e, _num, _pct, _table
-from metasim.report.labels import label
+from metasim.report.labels import key_label, label
 
 MAX_SUBJECT_ROWS = 60
 FIT_CAUTION = ("Estimates describe the model observer (CIE 170-1:2006 with eight deviations) that best explains "
@@ -32,7 +32,16 @@ def _typical(values: np.ndarray) -> np.ndarray:
 
 
 def _short(name: str) -> str:
-    return str(name).replace("_pct", " %").replace("_nm", " nm").replace("_years", " (years)").replace("_", " ")
+    """A parameter key as a reader reads it: ``"l_shift_nm"`` → ``"L-cone shift (nm)"``."""
+    return key_label(str(name))
+
+
+def _readable(text: str, names) -> str:
+    """A note with the parameter keys it names replaced by their labels."""
+    text = str(text)
+    for name in sorted(map(str, names), key=len, reverse=True):
+        text = text.replace(name, _short(name))
+    return text
 
 
 def _unit(ds) -> str:
@@ -63,19 +72,20 @@ def fit_headline(ds: xr.Dataset) -> str:
 
 def fit_parameter_table(ds: xr.Dataset) -> str:
     rows = []
+    names = [str(v) for v in ds["parameter"].values]
     for name in ds["parameter"].values:
         sel = ds.sel(parameter=name)
         notes = Counter(part.split(" (")[0].split(":")[0] for note in sel["identification_note"].values
                         for part in str(note).split("; ") if part)
-        common = "; ".join(f"{text} ({count})" for text, count in notes.most_common(2))
-        rows.append([_short(name), str(sel["parameter_units"].values), _num(sel["prior_sd"], 3),
+        common = "; ".join(f"{_readable(text, names)} ({count})" for text, count in notes.most_common(2))
+        rows.append([_short(name), _num(sel["prior_sd"], 3),
                      _num(np.median(sel["estimate"].values), 3), _num(np.median(sel["standard_error"].values), 3),
                      _pct(np.median(sel["standard_error"].values) / float(sel["prior_sd"])),
                      _pct(sel["identified"].values.astype(bool).mean()), common])
     rule = _e(ds.attrs.get("identification_rules", ""))
     return ("<h2>Parameters</h2><p>Standard errors are posterior standard deviations from the curvature at the "
             f"estimate. Rule: {rule}.</p>"
-            + _table(["parameter", "units", "population SD", "median estimate", "median SE", "SE / population SD",
+            + _table(["parameter", "population SD", "median estimate", "median SE", "SE / population SD",
                       "identified", "most common reasons (subjects)"], rows))
 
 
@@ -93,9 +103,9 @@ def fit_subject_table(ds: xr.Dataset) -> str:
         category = str(int(sub["nearest_category"])) if "nearest_category" in ds else "–"
         rows.append([str(sub["observer"].values), _num(sub["age_years"], 1), _num(sub["field_size_deg"], 1),
                      f"{float(sub['setting_noise']):.3g}", f"{before[i]:.3g} → {after[i]:.3g}", category,
-                     ", ".join(missing) or "–", estimates])
+                     ", ".join(_short(m) for m in missing) or "–", estimates])
     more = f" (first {MAX_SUBJECT_ROWS} of {n})" if n > MAX_SUBJECT_ROWS else ""
-    table = _table(["subject", "age", "field (°)", "setting noise", f"median match error ({_unit(ds)})",
+    table = _table(["subject", "age (years)", "field (°)", "setting noise", f"median match error ({_unit(ds)})",
                     "nearest category", "not identified", "estimates ± SE"], rows)
     return f"<details><summary>Subjects{more}</summary>{table}</details>"
 
@@ -112,12 +122,26 @@ def fit_categories(ds: xr.Dataset) -> str:
                      str(counts[j])])
     return ("<h2>Nearest observer category</h2><p>" + _e(record.get("description", "")) + "; nearness: RMS difference "
             "of the XYZ colour-matching functions, each category observer evaluated at the subject's field size.</p>"
-            + _table(["category", "share of population", "age", "deviations", "subjects nearest"], rows))
+            + _table(["category", "share of population", "age (years)", "deviations", "subjects nearest"], rows))
+
+
+def _prior_table(prior) -> str:
+    """The population prior as a table: each parameter's mean and standard deviation, and its source."""
+    from metasim.report.labels import parsed
+
+    prior = parsed(prior)
+    if not isinstance(prior, dict):
+        return ""
+    rows = [[_short(name), _num(value.get("mean", np.nan), 3), _num(value.get("sd", np.nan), 3)]
+            for name, value in prior.items() if isinstance(value, dict)]
+    source = f"<p>Source: {_e(prior['source'])}.</p>" if prior.get("source") else ""
+    return ("<h3>Prior: the population spread the fit starts from</h3>" + source
+            + _table(["parameter", "population mean", "population standard deviation"], rows))
 
 
 def fit_models(ds: xr.Dataset) -> str:
-    attrs = {k: v for k, v in ds.attrs.items() if k != "categories"}
-    return "<h2>Models and parameters</h2>" + _attribute_list(attrs)
+    attrs = {k: v for k, v in ds.attrs.items() if k not in ("categories", "prior")}
+    return "<h2>Models and parameters</h2>" + _attribute_list(attrs) + _prior_table(ds.attrs.get("prior"))
 
 
 __all__ = ["is_fit", "fit_headline", "fit_parameter_table", "fit_subject_table", "fit_categories", "fit_models"]

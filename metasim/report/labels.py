@@ -40,6 +40,8 @@ NAMES = {
     "reflectance": "reflectances (real surfaces)",
     "objects": "real surfaces under their illuminant",
     "log_wavelength": "log wavelength",
+    "monotone_cubic": "monotone cubic (Fritsch & Carlson 1980)",
+    "linear": "linear",
     "display": "a display",
     "design": "design",
     "reference": "reference",

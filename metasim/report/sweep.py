@@ -147,11 +147,16 @@ def _sweep_models(ds: xr.Dataset) -> str:
     attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
     spec = dict(plots.sweep_spec(ds))
     text = spec.pop("sweep_spec_text", "")
+    if isinstance(spec.get("parameters"), list):  # the design parameters by their names, not their keys
+        spec["parameters"] = [plots.parameter_label(ds, c) if c in ds.coords else c for c in spec["parameters"]]
+    if isinstance(spec.get("bounds"), dict):
+        spec["bounds"] = {plots.parameter_label(ds, c) if c in ds.coords else c: f"{lo:g} to {hi:g}"
+                          for c, (lo, hi) in spec["bounds"].items()}
     out = "<h2>Models and parameters</h2>" + _attribute_list(attrs)
     if spec:
         out += "<h3>Sweep spec</h3>" + _attribute_list(spec)
     if text:
-        out += f"<h3>Sweep spec file</h3><pre>{_e(text)}</pre>"
+        out += f"<h3>Sweep spec file</h3><pre class='spec-file'>{_e(text)}</pre>"
     return out
 
 

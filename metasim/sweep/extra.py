@@ -35,6 +35,7 @@ from metasim.metamerism.engine import resolve_observers
 from metasim.observers import standard_observer
 from metasim.spectra import grid_step
 from metasim.sweep.summary import design_summaries
+from metasim.units import DELTA_E00
 
 RESULT_KIND = "metasim extra primary"
 
@@ -132,13 +133,13 @@ def extra_primary_value(base: Display, reference, observers, stimuli: xr.Dataset
     out["coverage_gain"] = ("peak_wavelength", coverage - base_coverage,
                             {"units": "1", "long_name": "share of the BT.2020 xy area added"})
     out["delta_e_2000_p95"] = ("peak_wavelength", p95, {
-        "units": "1", "long_name": "95th percentile CIE 2000 difference over all observer x stimulus pairs, "
+        "units": DELTA_E00, "long_name": "95th percentile CIE 2000 difference over all observer x stimulus pairs, "
                                    "with the extra primary (population drive strategy)"})
     out["mismatch_gain"] = ("peak_wavelength", base_p95 - p95, {
-        "units": "1", "long_name": "95th percentile CIE 2000 difference saved by the extra primary"})
+        "units": DELTA_E00, "long_name": "95th percentile CIE 2000 difference saved by the extra primary"})
     out["mismatch_gain_share"] = ("peak_wavelength", (base_p95 - p95) / base_p95 if base_p95 > 0 else np.zeros_like(p95),
                                   {"units": "1", "long_name": "95th percentile saved, as a share of the base's"})
-    out["base_delta_e_2000_p95"] = ((), base_p95, {"units": "1", "long_name": "95th percentile CIE 2000 difference "
+    out["base_delta_e_2000_p95"] = ((), base_p95, {"units": DELTA_E00, "long_name": "95th percentile CIE 2000 difference "
                                                                               "of the base design"})
     out["base_coverage"] = ((), base_coverage, {"units": "1", "long_name": "share of the BT.2020 xy area the base "
                                                                           "covers"})

@@ -28,15 +28,16 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import SweepError
+from metasim.units import DELTA_E00, LAB_VOLUME
 
 #: Named objectives: (variable, selection, sense, words, units). Sense "min": smaller is better.
 OBJECTIVES = {
     "p95_mismatch": ("delta_e_2000_overall", {"statistic": "p95"}, "min",
-                     "95th percentile CIE 2000 difference over all observer × stimulus pairs", "1"),
+                     "95th percentile CIE 2000 difference over all observer × stimulus pairs", DELTA_E00),
     "median_mismatch": ("delta_e_2000_overall", {"statistic": "median"}, "min",
-                        "median CIE 2000 difference over all observer × stimulus pairs", "1"),
+                        "median CIE 2000 difference over all observer × stimulus pairs", DELTA_E00),
     "white_p95": ("delta_e_white", {"statistic": "p95"}, "min",
-                  "95th percentile CIE 2000 difference between the whites over observers", "1"),
+                  "95th percentile CIE 2000 difference between the whites over observers", DELTA_E00),
     "bt2020_coverage": ("gamut_coverage", {"reference_gamut": "bt2020"}, "max",
                         "share of the BT.2020 xy area covered", "1"),
     "p3_coverage": ("gamut_coverage", {"reference_gamut": "display_p3"}, "max",
@@ -44,7 +45,7 @@ OBJECTIVES = {
     "bt709_coverage": ("gamut_coverage", {"reference_gamut": "bt709"}, "max",
                        "share of the BT.709 xy area covered", "1"),
     "gamut_area": ("gamut_area_xy", {}, "max", "CIE 1931 xy area of the chromaticity gamut", "1"),
-    "lab_volume": ("lab_volume", {}, "max", "CIELAB volume of the colour solid", "1"),
+    "lab_volume": ("lab_volume", {}, "max", "CIELAB volume of the colour solid", LAB_VOLUME),
     "white_efficacy": ("white_efficacy", {}, "max", "luminous efficacy of radiation of the white", "lm W-1"),
 }
 SENSES = ("min", "max")

@@ -36,6 +36,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from metasim.units import DELTA_E00
 from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES, population_statistics
 from metasim.statistics.comparison import (
     DEFAULT_HALF_WIDTH,
@@ -78,7 +79,7 @@ def interval_variables(delta_e: xr.DataArray, *, level: float = DEFAULT_LEVEL, r
         "share_beyond_overall_interval": plain(table["share_beyond_interval"], "design", "bound", "threshold"),
         REPLICATES: plain(table["statistics_replicates"].sel(statistic="p95", drop=True), "design", "resample"),
     }
-    out[REPLICATES].attrs.update({"units": "1", "long_name": "95th percentile of CIE 2000 differences over all "
+    out[REPLICATES].attrs.update({"units": DELTA_E00, "long_name": "95th percentile of CIE 2000 differences over all "
                                   "observer x stimulus pairs, in each resample of the observers (paired across designs)"})
     attrs = {key: table.attrs[key] for key in ("interval_method", "interval_level", "interval_resamples",
                                                "interval_seed")}

@@ -326,8 +326,12 @@ def combine_search(store, manifest: dict, parts: list[xr.Dataset], objective, co
     combined = combined.assign_coords(design=("design", np.arange(combined.sizes["design"]),
                                               {"units": "1", "long_name": "design index (all generations)"}))
     value, violation = search_values(combined, objective, constraints)
+    terms = _objective_terms(objective)
+    units, words = "1", "value the search minimises"
+    if len(terms) == 1 and next(iter(terms.values())) == (1.0, "min"):  # one named objective: its own unit
+        units, words = OBJECTIVES[next(iter(terms))][4], OBJECTIVES[next(iter(terms))][3]
     combined["search_objective"] = xr.DataArray(value, dims="design", attrs={
-        "units": "1", "long_name": "value the search minimises (infeasible designs: penalty + violation)"})
+        "units": units, "long_name": f"{words} (infeasible designs: penalty + violation)"})
     combined["constraint_violation"] = xr.DataArray(violation, dims="design", attrs={
         "units": "1", "long_name": "summed relative violation of the constraints (0 = feasible)"})
     best = int(np.argmin(value))

@@ -47,6 +47,7 @@ from metasim.colorimetry.integration import spectral_products
 from metasim.statistics import statistics_along
 from metasim.sweep.evaluate import SweepContext, design_statistics, prepare
 from metasim.sweep.ranking import interval_variables
+from metasim.units import DELTA_E00, DELTA_E_ITP
 
 #: Reference gamuts of the coverage numbers.
 COVERAGE_GAMUTS = ("bt709", "display_p3", "bt2020")
@@ -108,7 +109,7 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
         dims = test.batch_dims if isinstance(test, Display) else type(test).__name__
         raise SweepError(f"design_summaries needs a Display with one 'design' dim, got {dims}")
     numbers = design_statistics(context, test, per_stimulus, raw, differences=intervals is not None)
-    statistic_attrs = {"units": "1"}
+    statistic_attrs = {"units": DELTA_E00}
     pooled = summary_attrs(context.weights)  # what each summary pools, as the engine's summaries say
     design_dims = ("design", "statistic")
     out = {
@@ -119,9 +120,9 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
     }
     if "delta_e_itp_overall" in numbers:
         out["delta_e_itp_overall"] = (design_dims, numbers["delta_e_itp_overall"], {
-            **statistic_attrs, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
+            "units": DELTA_E_ITP, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
     out["delta_e_white"] = (design_dims, numbers["delta_e_white"], {
-        "units": "1", "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
+        "units": DELTA_E00, "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
     out["share_beyond_overall"] = (("design", "threshold"), numbers["share_beyond_overall"],
                                    pooled["share_beyond_overall"])
     if "delta_e_2000_by_age" in numbers:
@@ -130,7 +131,7 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
     out["out_of_gamut_count"] = ("design", numbers["out_of_gamut_count"], {
         "units": "1", "long_name": "stimuli outside the design's gamut (clipped)"})
     out["delta_e_2000_calibration_max"] = ("design", numbers["delta_e_2000_calibration_max"], {
-        "units": "1", "long_name": "largest CIE 2000 difference for the calibration observer"})
+        "units": DELTA_E00, "long_name": "largest CIE 2000 difference for the calibration observer"})
 
     spectra = test.spectra.variable.transpose("design", "primary", "wavelength").values
     wavelengths = test.wavelengths.values
