@@ -9,7 +9,8 @@ ROOT = Path(metasim.__file__).parent
 #: top to bottom, as in DEVELOPERS.md ("Layers and data flow")
 ORDER = ("spectra", "observers", "emitters", "colorimetry", "display", "statistics", "metamerism", "gamut",
          "fitting", "study", "sweep", "tables", "plots", "report", "cli")
-UTILITIES = {"errors", "checks", "_version", "io", "labelling", "progress", "_paths", "_threads", "_memory", "_warmup"}
+UTILITIES = {"errors", "checks", "_version", "io", "labelling", "progress", "units", "_paths", "_threads", "_memory",
+             "_warmup"}
 #: old import paths kept for users: the name is looked up in its new, lower layer on first use only
 COMPATIBILITY = {("observers/__init__.py", "metasim.metamerism"), ("observers/categories.py", "metasim.metamerism")}
 

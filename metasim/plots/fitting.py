@@ -25,11 +25,10 @@ MAX_SUBJECT_ROWS = 30
 
 
 def _label(ds: xr.Dataset, name: str) -> str:
-    """``"l_shift_nm"`` → ``"L-cone peak shift (nm)"`` (the report's words for parameter keys)."""
-    from metasim.report.labels import key_label
-
+    """``"l_shift_nm"`` → ``"L-cone shift (nm)"`` (the words the report uses for parameter keys)."""
     units = str(ds["parameter_units"].sel(parameter=name).values) if "parameter_units" in ds.coords else ""
-    text = key_label(name.removesuffix("_pct").removesuffix("_nm").removesuffix("_years"))
+    words = name.removesuffix("_pct").removesuffix("_nm").removesuffix("_years").replace("_", " ")
+    text = f" {words} ".replace(" l ", " L-cone ").replace(" m ", " M-cone ").replace(" s ", " S-cone ").strip()
     return f"{text} ({units})" if units and units != "1" else f"{text} (unitless)"
 
 
