@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from metasim.colorimetry._kernels.types import writable
 from metasim.statistics._kernels.order import summarise_rows
 from metasim.statistics.summaries import STATISTICS, statistics_along
 
@@ -28,7 +29,7 @@ def row_statistics(rows: np.ndarray) -> np.ndarray:
     >>> np.round(row_statistics(np.array([[1.0, 2.0, 3.0, 10.0]])), 9).tolist()  # numpy linear quantiles
     [[4.0, 2.5, 8.95, 10.0]]
     """
-    rows = np.ascontiguousarray(rows, dtype=float)
+    rows = writable(rows)  # one argument type per kernel parameter: one compiled version
     out = np.empty((rows.shape[0], len(STATISTICS)))
     if rows.shape[1] == 0:
         out[:] = np.nan

@@ -32,6 +32,7 @@ from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
 from metasim.colorimetry._kernels.sums import padded_drives
+from metasim.colorimetry._kernels.types import writable
 from metasim.colorimetry.integration import apply_matrices
 from metasim.display import Display
 from metasim.display.optics import display_matrices, display_rows, observer_xyz
@@ -138,7 +139,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
     # or (adapted to the test white) the XYZ, CIELAB then made per design
     xyz_ref = np.ascontiguousarray(xyz_ref, dtype=float)
     columns = np.empty((xyz_ref.shape[0], 3, padded_drives(np.zeros((1, xyz_ref.shape[1], 1))).shape[2]))
-    reference_columns(xyz_ref, np.ascontiguousarray(white_ref, dtype=float), adapted_white == "reference", columns)
+    reference_columns(writable(xyz_ref), writable(white_ref), adapted_white == "reference", columns)
     weights = observer_weights(obs["cmf"])
     ages = obs.coords.variables["age_years"].values if "age_years" in obs.coords else None
     edges = age_band_edges(age_bands, ages)
@@ -151,7 +152,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
                         strategy_population=strategy_population, match_white=bool(match_white),
                         adapted_white=adapted_white, include_itp=include_itp, weights=weights, bands=bands,
                         age_bands=age_bands,
-                        thresholds=np.asarray(thresholds, dtype=float), attrs=attrs)
+                        thresholds=writable(np.asarray(thresholds, dtype=float)), attrs=attrs)
 
 
 def _shared_primary_matrices(context: SweepContext, test: Display, raw: np.ndarray):
@@ -296,11 +297,11 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
         counts = np.zeros((designs, context.thresholds.size, stimuli), dtype=np.int64)
         by_stimulus = np.full((designs, statistics, stimuli if per_stimulus else 0), np.nan)
         flags = np.zeros(designs, dtype=np.int64)
-        kernel_statistics(padded_drives(block.solution.drive), np.ascontiguousarray(block.matrices, dtype=float),
-                          np.ascontiguousarray(block.black, dtype=float),
-                          np.ascontiguousarray(block.adapted.reshape(-1, 3), dtype=float), context.reference_columns,
-                          context.adapted_white == "reference", np.ascontiguousarray(block.correction, dtype=float),
-                          band_of, sizes, context.thresholds, bool(per_stimulus), overall, overall_index, by_band,
+        # writable C arrays: one argument type per parameter, one compiled version (metasim._warmup)
+        kernel_statistics(writable(padded_drives(block.solution.drive)), writable(block.matrices),
+                          writable(block.black), writable(block.adapted.reshape(-1, 3)), context.reference_columns,
+                          context.adapted_white == "reference", writable(block.correction),
+                          band_of, writable(sizes, np.int64), context.thresholds, bool(per_stimulus), overall, overall_index, by_band,
                           counts, by_stimulus, flags)
         share = counts / observers
         out.update({"delta_e_2000_overall": overall, "metamerism_index_overall": overall_index,
