@@ -47,10 +47,13 @@ STUDY = (
      "metasim.statistics._kernels.pooled:walk"),
 )
 
-#: Every kernel with declared types: the study's, then the others (the test suite's session warm-up).
+#: Every kernel with declared types (the test suite's session warm-up): the study's, then the others,
+#: and the sweep's compiled pass in a third helper (its row statistics first: they share callees).
 EVERY = (
     STUDY[0] + ("metasim.colorimetry._kernels.sums:_apply", "metasim.display._kernels.qp:_box_qp_rows"),
     STUDY[1] + ("metasim.colorimetry._kernels.fused:_pair_rows", "metasim.colorimetry._kernels.cielab:_lab_rows"),
+    ("metasim.statistics._kernels.order:summarise_rows", "metasim.sweep._kernels.designs:reference_columns",
+     "metasim.sweep._kernels.designs:design_statistics"),
 )
 
 _ROOT = Path(__file__).resolve().parent

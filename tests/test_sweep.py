@@ -305,3 +305,14 @@ def test_a_rerun_keeps_the_chunk_size_of_its_store(tmp_path, monitor, viewers, s
     run_sweep(designs, monitor, viewers, stimuli, store=store, scheduler="serial", progress=events.append)
     assert [e["kind"] for e in events] == ["skipped", "skipped", "combined"]  # resumed, not refused
     assert read_manifest(store)["chunk_size"] == 5
+
+
+def test_the_sweep_pass_is_called_with_its_declared_types(swept):
+    # common practice, no source: the test suite's warm-up compiles the declared types ahead
+    # (metasim._warmup.EVERY), so a sweep must call exactly those and compile nothing of its own
+    from metasim import _warmup
+
+    for name in ("metasim.sweep._kernels.designs:design_statistics", "metasim.sweep._kernels.designs:reference_columns",
+                 "metasim.statistics._kernels.order:summarise_rows"):
+        dispatcher, spelled = _warmup._kernel(name)
+        assert list(dispatcher.overloads) == [_warmup._argument_types(spelled)], name

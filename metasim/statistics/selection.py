@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from metasim import _warmup
 from metasim.colorimetry._kernels.types import writable
 from metasim.statistics._kernels.order import summarise_rows
 from metasim.statistics.summaries import STATISTICS, statistics_along
@@ -34,6 +35,7 @@ def row_statistics(rows: np.ndarray) -> np.ndarray:
     if rows.shape[1] == 0:
         out[:] = np.nan
     elif rows.shape[0]:
+        _warmup.wait(summarise_rows)  # compiled ahead in a helper process (the test suite)
         summarise_rows(rows, out)
     return out
 

@@ -27,6 +27,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
+from metasim import _warmup
 from metasim._threads import blas_single_threaded
 from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
@@ -139,6 +140,7 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
     # or (adapted to the test white) the XYZ, CIELAB then made per design
     xyz_ref = np.ascontiguousarray(xyz_ref, dtype=float)
     columns = np.empty((xyz_ref.shape[0], 3, padded_drives(np.zeros((1, xyz_ref.shape[1], 1))).shape[2]))
+    _warmup.wait(reference_columns)  # compiled ahead in a helper process (the test suite)
     reference_columns(writable(xyz_ref), writable(white_ref), adapted_white == "reference", columns)
     weights = observer_weights(obs["cmf"])
     ages = obs.coords.variables["age_years"].values if "age_years" in obs.coords else None
@@ -298,6 +300,7 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
         by_stimulus = np.full((designs, statistics, stimuli if per_stimulus else 0), np.nan)
         flags = np.zeros(designs, dtype=np.int64)
         # writable C arrays: one argument type per parameter, one compiled version (metasim._warmup)
+        _warmup.wait(kernel_statistics)
         kernel_statistics(writable(padded_drives(block.solution.drive)), writable(block.matrices),
                           writable(block.black), writable(block.adapted.reshape(-1, 3)), context.reference_columns,
                           context.adapted_white == "reference", writable(block.correction),

@@ -229,3 +229,10 @@ def summarise_rows(rows, out):
     flat = rows.reshape(-1)
     for r in numba.prange(rows.shape[0]):
         summarise(flat, r * n, n, out[r])
+
+
+#: Argument types of the kernels as :mod:`metasim.statistics.selection` calls them (compiled ahead of
+#: need by :mod:`metasim._warmup` in the test suite's warm-up).
+SIGNATURES = {
+    "summarise_rows": ("float64[:, ::1]", "float64[:, ::1]"),
+}

@@ -149,3 +149,14 @@ def reference_columns(xyz, white, lab, out):
             lab_columns(buf[0], buf[1], buf[2], white[o, 0], white[o, 1], white[o, 2], out[o, 0], out[o, 1], out[o, 2])
         else:
             out[o] = buf
+
+
+#: Argument types of the kernels as :mod:`metasim.sweep.evaluate` calls them (compiled ahead of need
+#: by :mod:`metasim._warmup` in the test suite's warm-up).
+SIGNATURES = {
+    "design_statistics": ("float64[:, :, ::1]", "float64[:, :, :, ::1]", "float64[:, :, ::1]", "float64[:, ::1]",
+                          "float64[:, :, ::1]", "boolean", "float64[:, :, ::1]", "int64[::1]", "int64[::1]",
+                          "float64[::1]", "boolean", "float64[:, ::1]", "float64[:, ::1]", "float64[:, :, ::1]",
+                          "int64[:, :, ::1]", "float64[:, :, ::1]", "int64[::1]"),
+    "reference_columns": ("float64[:, :, ::1]", "float64[:, ::1]", "boolean", "float64[:, :, ::1]"),
+}
