@@ -15,8 +15,8 @@ def rng():
 
 
 def pytest_configure(config):
-    """Before collection: on an empty kernel cache, start compiling every kernel in two helper
-    processes (metasim._warmup, as the command does) while pytest imports the test modules."""
+    """Before collection: on an empty kernel cache, start compiling every kernel in helper processes
+    (metasim._warmup.EVERY, as the command does for a study's) while pytest imports the test modules."""
     from metasim import _warmup
 
     _warmup.start(_warmup.EVERY)
