@@ -268,16 +268,7 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         Observer categories for the white trims (:func:`metasim.metamerism.white_point_offsets`);
         a population of categories is used as it is; 0 skips the trims.
     seed : int
-        Seed of the category clustering and of the resampling of observers.
-    intervals : bool
-        Percentile intervals from resampling observers for the statistics over all pairs, the
-        white differences, the comparison of two designs and the population-size advice
-        (:mod:`metasim.statistics`); default on.
-    level, resamples : float, int
-        Interval level (default 0.95) and resamples (None: 400; at least 200).
-    target_half_width : float
-        The interval half-width on the 95th percentile the population-size advice aims at, CIE
-        2000 units (None: 0.1).
+        Seed of the category clustering.
 
     Returns
     -------

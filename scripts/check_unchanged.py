@@ -61,7 +61,7 @@ def demo_study(size: int) -> dict:
         display, spec = load_display(DEMO_DIR / name)
         designs.append(display)
         bases.append(spec.get("extra_primary_base"))
-    observers = build_population(size, 2024, AUDIENCE_AGES, "2")
+    observers = build_population(size, 2024, AUDIENCE_AGES, 2)
     stimuli = build_stimuli(STIMULI.format(csv=DEMO_DIR / "stimuli.csv"))
     result = run_study(reference, designs, observers, stimuli, seed=2024, extra_bases=bases, resamples=200)
     out: dict = {}

@@ -220,3 +220,60 @@ def test_two_component_lens_table_gives_the_cie_170_1_age_formula(tmp_path):
         read_lens_components(bad)
     with pytest.raises(ObserverError, match=">= 0"):
         lens_components_dataset([1, -1], [0, 0], [400, 401])
+
+
+# -- the public helpers of the model's tables ------------------------------------------------------
+
+def test_optical_density_tables_hold_the_cie_170_1_values_on_the_base_grid():
+    from metasim.observers.physiological import BASE_WAVELENGTHS, LENS_TABLE, MACULAR_TABLE
+
+    lens, macula = optical_density_table(LENS_TABLE), optical_density_table(MACULAR_TABLE)
+    assert lens.shape == macula.shape == BASE_WAVELENGTHS.shape
+    at = {nm: int(nm - BASE_WAVELENGTHS[0]) for nm in (400, 450, 460, 500, 550)}
+    # CIE 170-1:2006 ocular media at age 32 (Stockman, Sharpe & Fach 1999, CVRL lensss_1)
+    assert lens[at[400]] == pytest.approx(1.76490, abs=1e-12)  # CIE 170-1:2006
+    assert lens[at[450]] == pytest.approx(0.26288, abs=1e-12)  # CIE 170-1:2006
+    assert lens[at[500]] == pytest.approx(0.15370, abs=1e-12)  # CIE 170-1:2006
+    # CIE 170-1:2006 macular pigment at 2°: 0.35 at 460 nm (the scale of D_max), highest near 458 nm,
+    # none at 550 nm (CVRL macss_1)
+    assert macula[at[460]] == pytest.approx(0.35, abs=1e-12)  # CIE 170-1:2006
+    assert macula.max() == pytest.approx(0.35211, abs=1e-12) and abs(int(np.argmax(macula)) - at[460]) <= 2  # CIE 170-1:2006
+    assert macula[at[550]] == 0.0  # CIE 170-1:2006
+
+
+def test_absorbance_table_rebuilds_the_2_degree_fundamentals_it_was_inverted_from():
+    from metasim.observers.physiological import (
+        BASE_WAVELENGTHS, INVERSION_PEAK_DENSITY, LENS_TABLE, MACULAR_TABLE, S_CONE_LIMIT_NM, absorbance_table)
+
+    absorbance, peak_nm = absorbance_table()
+    assert absorbance.shape == (3, BASE_WAVELENGTHS.size)
+    np.testing.assert_allclose(absorbance.max(axis=1), 1.0, rtol=0, atol=1e-15)  # peak-normalised (CIE 170-1:2006)
+    assert np.all(absorbance[2, BASE_WAVELENGTHS > S_CONE_LIMIT_NM] == 0.0)
+    assert np.all(np.abs(peak_nm - BASE_WAVELENGTHS[np.argmax(absorbance, axis=1)]) <= 0.5)  # the sub-nm peak
+    # CIE 170-1 forward model at 2°, age 32 with the tables gives back the 2° fundamentals it was
+    # inverted from (colour-science's Stockman & Sharpe 2° data)
+    media = optical_density_table(LENS_TABLE) + optical_density_table(MACULAR_TABLE)
+    lms = (1.0 - 10.0 ** (-INVERSION_PEAK_DENSITY[:, None] * absorbance)) * 10.0**-media * BASE_WAVELENGTHS
+    lms /= lms.max(axis=1, keepdims=True)
+    reference = _colour_table(SS[2])
+    inside = BASE_WAVELENGTHS <= S_CONE_LIMIT_NM
+    np.testing.assert_allclose(lms[:2], reference[:2], rtol=5e-5, atol=1e-9)  # colour-science (6 figures)
+    np.testing.assert_allclose(lms[2, inside], reference[2, inside], rtol=5e-5, atol=1e-9)  # colour-science
+
+
+def test_ocular_density_values_is_the_table_aged_by_the_published_formulas():
+    from metasim.observers.physiological import LENS_TABLE, ocular_density_values
+
+    ages = np.array([20.0, 32.0, 45.0, 60.0, 75.0])
+    values = ocular_density_values(ages)
+    assert values.shape == (ages.size, WL.size)
+    np.testing.assert_array_equal(values[1], optical_density_table(LENS_TABLE))  # age 32 is the table (CIE 170-1:2006)
+    for age, row in zip(ages, values):
+        np.testing.assert_array_equal(row, ocular_media_density(age).values)  # the labelled form's numbers
+    # CIE 170-1:2006 two-component formula: D1·(1 + 0.02(A − 32)) + D2 up to 60 years,
+    # D1·(1.56 + 0.0667(A − 60)) + D2 above (from memory of CIE 170-1:2006)
+    d1, d2 = np.linspace(0.5, 0.1, WL.size), np.full(WL.size, 0.05)
+    components = lens_components_dataset(d1, d2, WL)
+    aged = ocular_density_values(ages, components)
+    factors = np.array([1 + 0.02 * (20 - 32), 1.0, 1 + 0.02 * (45 - 32), 1.56, 1.56 + 0.0667 * 15])
+    np.testing.assert_allclose(aged, factors[:, None] * d1 + d2, rtol=1e-14)  # CIE 170-1:2006, from memory

@@ -197,3 +197,38 @@ def test_a_population_too_large_for_the_memory_is_refused_first(monkeypatch):
     with pytest.raises(NotEnoughMemoryError, match="1,000 observers x 100,000 stimuli x 2 designs"):
         check_mismatch_memory(1000, 100_000, 2)
     check_mismatch_memory(1000, 100, 2)  # 32 MB: not even checked
+
+
+def test_categories_of_coinciding_observers_give_each_distinct_observer_its_own_category():
+    # five equal observers: every k-means run leaves a category empty, so the fallback makes the one
+    # distinct observer a category and the next categories take repeats, in population order
+    equal = metasim.physiological_observers(age_years=[40] * 5, field_size_deg=2, wavelengths=COARSE)
+    for k, weights in ((2, [0.8, 0.2]), (3, [0.6, 0.2, 0.2])):
+        for seed in (0, 5):  # the fallback does not depend on the draws
+            cats = observer_categories(equal, k, seed=seed)
+            np.testing.assert_allclose(cats["weight"].values, weights)  # 4 + 1 and 3 + 1 + 1 of 5 observers
+            assert cats["observer"].values.tolist() == list(range(k))
+            np.testing.assert_array_equal(cats["category_rms_delta_e"].values, 0.0)
+    # two distinct observers, three categories: no category mixes them (every member equals its representative)
+    two = metasim.physiological_observers(age_years=[30, 30, 30, 60, 60], field_size_deg=2, wavelengths=COARSE)
+    cats = observer_categories(two, 3, seed=0)
+    assert sorted(set(cats["age_years"].values.tolist())) == [30.0, 60.0]
+    assert float(cats["weight"].sum()) == pytest.approx(1.0, abs=1e-15)
+    np.testing.assert_allclose(cats["category_rms_delta_e"].values, 0.0, atol=1e-9)
+
+
+def test_the_command_line_population_passes_age_years_on_and_keeps_the_old_spellings():
+    from metasim.cli.study import build_population
+
+    kwargs = dict(seed=3, wavelengths=COARSE)
+    expected = observer_population(4, age_years=(25, 65), field_size_deg=2, **kwargs)
+    with pytest.MonkeyPatch.context() as patch:  # the draw is the library's, under the same names
+        patch.setattr("metasim.cli.study.observer_population",
+                      lambda n, **options: observer_population(n, wavelengths=COARSE, **options))
+        new = build_population(4, 3, (25.0, 65.0), 2)
+        with pytest.warns(DeprecationWarning, match="ages=... is now age_years"):
+            old = build_population(4, 3, ages="25-65", field_size="2")
+    xr.testing.assert_identical(new, expected)
+    xr.testing.assert_identical(old, expected)
+    with pytest.raises(TypeError, match="agez"):
+        build_population(4, 3, agez=30)

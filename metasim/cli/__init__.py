@@ -56,7 +56,7 @@ from pathlib import Path
 
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
-from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range
+from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range, range_text
 from metasim.errors import FileFormatError, MetasimError, OptionError, ReportError, StimulusError
 from metasim.progress import Progress
 
@@ -161,8 +161,8 @@ def cmd_observers(args) -> int:
         raise OptionError(f"--out {out}: give a netCDF file name ending in .nc")
     progress = args.progress
     progress.steps = 1 + int(args.categories is not None) + 1 + int(bool(args.report))
-    population = build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate,
-                                  progress=progress)
+    population = build_population(args.size, args.seed, args.age_years, args.field_size_deg,
+                                  extrapolate=args.extrapolate, progress=progress)
     if args.categories is not None:
         from metasim.observers import observer_categories
 
@@ -171,7 +171,8 @@ def cmd_observers(args) -> int:
     save_dataset(population, out, replace=args.replace)
     progress.step(f"wrote {out}")
     what = f"{args.categories} categories of {args.size} observers" if args.categories else f"{args.size} observers"
-    print(f"wrote {out}: {what}, ages {args.ages}, field size {args.field_size} deg, seed {args.seed}")
+    print(f"wrote {out}: {what}, ages {range_text(args.age_years)}, field size {range_text(args.field_size_deg)} deg, "
+          f"seed {args.seed}")
     if args.report:
         from metasim.report import write_report
 
@@ -198,7 +199,7 @@ def _observers(args, numbered: bool = True):
 
     if getattr(args, "observer_set", None) is not None:
         return args.observer_set
-    return build_population(args.size, args.seed, args.ages, args.field_size, extrapolate=args.extrapolate,
+    return build_population(args.size, args.seed, args.age_years, args.field_size_deg, extrapolate=args.extrapolate,
                             progress=args.progress if numbered else args.progress.say)
 
 
@@ -613,13 +614,12 @@ def _whole(minimum: int):
 
 
 def _range(what: str):
-    """argparse type: N or LO-HI (kept as text; the library checks the model's range)."""
-    def number_or_range(text: str) -> str:
+    """argparse type: N or LO-HI → a number or a (lo, hi) pair (the library checks the model's range)."""
+    def number_or_range(text: str):
         try:
-            parse_range(text, what)
+            return parse_range(text, what)
         except MetasimError as exc:
             raise argparse.ArgumentTypeError(str(exc)) from None
-        return text
 
     return number_or_range
 
@@ -642,9 +642,9 @@ def _population_options(parser, observers_file: bool = True) -> None:
                            "(default: draw a population with the options below)")
     group.add_argument("--size", type=_whole(1), default=1000, help="number of observers (default 1000)")
     group.add_argument("--seed", type=_whole(0), default=1, help="random seed (default 1)")
-    group.add_argument("--ages", type=_range("age range"), default="20-70",
+    group.add_argument("--ages", dest="age_years", type=_range("age range"), default="20-70",
                        help="age in years, N or LO-HI uniform (default 20-70; CIE 170-1 covers 20-80)")
-    group.add_argument("--field-size", type=_range("field size"), default="2",
+    group.add_argument("--field-size", dest="field_size_deg", type=_range("field size"), default="2",
                        help="field size in degrees, N or LO-HI (default 2; CIE 170-1 covers 1-10)")
     group.add_argument("--extrapolate", action="store_true",
                        help="allow ages and field sizes outside the CIE 170-1 range (the model is then extrapolated)")

@@ -15,7 +15,7 @@ from pathlib import Path
 from metasim._paths import data_dir
 from metasim.cli.specs import load_display
 from metasim.cli.study import build_population, build_stimuli, spec_texts
-from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE
+from metasim.cli.paths import FIGURES_DIR, REPORT_FILE, RESULT_FILE, range_text
 from metasim.io import check_outputs, save_dataset
 from metasim.progress import Progress
 from metasim.report import report_outputs, write_report
@@ -24,7 +24,7 @@ from metasim.study import run_study
 DEMO_DIR = data_dir() / "demo"
 REFERENCE_SPEC = "grading_monitor.toml"
 DESIGN_SPECS = ("projector_four_laser.toml", "projector_laser_phosphor.toml")
-AUDIENCE_AGES = "20-70"
+AUDIENCE_AGES = (20.0, 70.0)
 STIMULI = "ramp:6,primaries,{csv}"
 
 
@@ -49,8 +49,8 @@ def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, re
         designs.append(display)
         specs[display.name] = spec
     progress.step(f"displays: {reference.name!r} and {len(designs)} designs from {DEMO_DIR}")
-    observers = build_population(size, seed, AUDIENCE_AGES, "2")
-    progress.step(f"audience: {size} observers aged {AUDIENCE_AGES}, seed {seed}")
+    observers = build_population(size, seed, AUDIENCE_AGES, 2)
+    progress.step(f"audience: {size} observers aged {range_text(AUDIENCE_AGES)}, seed {seed}")
     stimuli = build_stimuli(STIMULI.format(csv=DEMO_DIR / "stimuli.csv"))
     result = run_study(reference, designs, observers, stimuli, spec_texts=spec_texts(specs), progress=progress, seed=seed,
                        extra_bases=[specs[d.name].get("extra_primary_base") for d in designs])

@@ -25,6 +25,8 @@ RESULT_FILE = "study.nc"
 FIT_FILE = "fit.nc"
 REPORT_FILE = "report.html"
 FIGURES_DIR = "figures"
+#: the files a sweep or search store's result is written to (the store itself is a folder)
+STORE_FILES = {"sweep": ("sweep.nc", "manifest.json"), "search": ("search.nc", "search.json")}
 
 
 def parse_range(text: str, what: str):
@@ -39,6 +41,13 @@ def parse_range(text: str, what: str):
     if len(values) == 2 and values[0] > values[1]:
         raise OptionError(f"{what} {text!r}: LO {values[0]:g} is above HI {values[1]:g}; give LO-HI")
     return values[0] if len(values) == 1 else tuple(values)
+
+
+def range_text(value) -> str:
+    """The ``N`` or ``LO-HI`` text of a number or a ``(lo, hi)`` pair (the inverse of :func:`parse_range`)."""
+    if isinstance(value, (tuple, list)):
+        return "-".join(f"{float(v):g}" for v in value)
+    return f"{float(value):g}"
 
 
 def read_toml(path, what: str = "design spec") -> dict:
@@ -190,20 +199,15 @@ def check_command_files(args) -> None:
     """
     inputs, outputs = command_files(args)
     args.inputs, args.outputs = inputs, outputs
-    if args.command == "sweep":
+    if args.command in STORE_FILES:
         store = Path(args.out)
         if store.exists() and not store.is_dir():
-            raise FileFormatError(f"--out {store}: is a file; the sweep store must be a folder")
-        check_outputs([store / "sweep.nc", store / "manifest.json"], inputs=inputs, replace=True)
-        return
-    if args.command == "search":
-        store = Path(args.out)
-        if store.exists() and not store.is_dir():
-            raise FileFormatError(f"--out {store}: is a file; the search store must be a folder")
-        check_outputs([store / "search.nc", store / "search.json"], inputs=inputs, replace=True)
+            raise FileFormatError(f"--out {store}: is a file; the {args.command} store must be a folder")
+        check_outputs([store / name for name in STORE_FILES[args.command]], inputs=inputs, replace=True)
         return
     check_outputs(outputs, inputs=inputs, replace=args.replace)
 
 
-__all__ = ["SpecError", "parse_range", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR", "read_toml", "relative_to", "spec_files",
-           "design_spec_inputs", "stimulus_files", "check_inputs", "command_files", "check_command_files"]
+__all__ = ["SpecError", "parse_range", "range_text", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR",
+           "STORE_FILES", "read_toml", "relative_to", "spec_files", "design_spec_inputs", "stimulus_files", "check_inputs",
+           "command_files", "check_command_files"]

@@ -29,12 +29,10 @@ p3_coverage, bt709_coverage, gamut_area, lab_volume (with lab_volume = true), wh
 
 from __future__ import annotations
 
-from metasim.checks import known_keys
-from metasim.cli.paths import read_toml
-from metasim.cli.specs import load_display, spec_settings
-from metasim.cli.sweep import DISPLAY_KEYS, TOP_KEYS, relative
+from metasim.cli.specs import load_display
+from metasim.cli.sweep import TOP_KEYS, check_shared_keys, display_settings, read_spec_table, relative
 from metasim.errors import MetasimError, SpecError
-from metasim.sweep import GRID_KINDS, search_space
+from metasim.sweep import search_space
 
 SEARCH_TOP_KEYS = tuple(k for k in TOP_KEYS if k not in ("vary", "per_stimulus")) + ("search",)
 SEARCH_KEYS = ("kind", "profile", "seed", "generations", "population", "tolerance", "objective", "primaries",
@@ -43,15 +41,8 @@ SEARCH_KEYS = ("kind", "profile", "seed", "generations", "population", "toleranc
 
 def read_search_spec(path) -> dict:
     """The parsed search spec (``_path``, ``_text`` added), its keys and value types checked."""
-    spec = read_toml(path, "search spec")
-    where = str(spec["_path"])
-    known_keys(spec, SEARCH_TOP_KEYS, where, error=SpecError)
-    search = spec.get("search")
-    if not isinstance(search, dict):
-        raise SpecError(f"{where}: a search spec needs a [search] table with [search.primaries.<label>] tables")
-    known_keys(search, SEARCH_KEYS, f"{where} [search]", error=SpecError)
-    if search.get("kind", "laser") not in GRID_KINDS:
-        raise SpecError(f"{where} [search]: kind {search.get('kind')!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    spec, where, search = read_spec_table(path, "search spec", SEARCH_TOP_KEYS, "search", SEARCH_KEYS,
+                                          "a search spec needs a [search] table with [search.primaries.<label>] tables")
     if not isinstance(search.get("primaries"), dict) or not search["primaries"]:
         raise SpecError(f"{where}: [search.primaries.<label>] must name at least one primary, e.g. "
                         "[search.primaries.R] peak_nm = [615, 660]")
@@ -65,15 +56,7 @@ def read_search_spec(path) -> dict:
         raise SpecError(f"{where} [search]: objective = {search['objective']!r}; give a name or a table of weights")
     if "constraints" in search and not isinstance(search["constraints"], dict):
         raise SpecError(f"{where} [search]: constraints must be a table, e.g. bt2020_coverage = {{min = 0.9}}")
-    for key in ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy"):
-        if key in spec and not isinstance(spec[key], str):
-            raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
-    if "display" in spec:
-        if "base" in spec:
-            raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
-        if not isinstance(spec["display"], dict):
-            raise SpecError(f"{where}: display must be a table of display settings")
-        known_keys(spec["display"], DISPLAY_KEYS, f"{where} [display]", error=SpecError)
+    check_shared_keys(spec, where)
     return spec
 
 
@@ -87,11 +70,7 @@ def spec_search_space(spec: dict):
                              profile=search.get("profile", "gaussian"))
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None
-    settings = None
-    if "display" in spec:
-        settings = spec_settings({**spec["display"], "_path": spec["_path"]})
-        settings = {k: settings[k] for k in DISPLAY_KEYS}
-    return space, settings
+    return space, display_settings(spec)
 
 
 __all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "read_search_spec", "spec_search_space"]

@@ -50,6 +50,8 @@ from metasim.sweep import GRID_KINDS, design_grid
 TOP_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy",
             "chunk_size", "lab_volume", "per_stimulus", "display", "vary")
 VARY_KEYS = ("kind", "peaks_nm", "width_nm", "radiance", "profile")
+#: keys of sweep and search specs whose values are text
+TEXT_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy")
 DISPLAY_KEYS = ("transfer", "gamma", "peak_luminance", "black_luminance", "white", "calibration_observer")
 #: largest number of values one ``{start, stop, step}`` range may expand to
 MAX_RANGE_VALUES = 10_000
@@ -78,34 +80,57 @@ def value_list(where: str, value) -> list[float]:
 
 def read_sweep_spec(path) -> dict:
     """The parsed sweep spec (``_path``, ``_text`` added), its keys and value types checked."""
-    spec = read_toml(path, "sweep spec")
-    where = str(spec["_path"])
-    known_keys(spec, TOP_KEYS, where, error=SpecError)
-    vary = spec.get("vary")
-    if not isinstance(vary, dict):
-        raise SpecError(f"{where}: a sweep spec needs a [vary] table with [vary.peaks_nm]")
-    known_keys(vary, VARY_KEYS, f"{where} [vary]", error=SpecError)
-    kind = vary.get("kind", "laser")
-    if kind not in GRID_KINDS:
-        raise SpecError(f"{where} [vary]: kind {kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    spec, where, vary = read_spec_table(path, "sweep spec", TOP_KEYS, "vary", VARY_KEYS,
+                                        "a sweep spec needs a [vary] table with [vary.peaks_nm]")
     peaks = vary.get("peaks_nm")
     if not isinstance(peaks, dict) or not peaks:
         raise SpecError(f"{where}: [vary.peaks_nm] must give at least one primary label, e.g. R = [620, 640]")
-    for key in ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy"):
-        if key in spec and not isinstance(spec[key], str):
-            raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
+    check_shared_keys(spec, where)
     if "chunk_size" in spec:
         whole_number(spec["chunk_size"], f"{where}: chunk_size", error=SpecError, minimum=1, sep=" = ")
     for key in ("lab_volume", "per_stimulus"):
         if key in spec and not isinstance(spec[key], bool):
             raise SpecError(f"{where}: {key} = {spec[key]!r} must be true or false")
+    return spec
+
+
+def read_spec_table(path, what: str, top_keys, table: str, table_keys, missing: str) -> tuple[dict, str, dict]:
+    """A sweep or search spec read (:func:`~metasim.cli.paths.read_toml`) with its top-level keys
+    checked, and its main table (``[vary]`` or ``[search]``): present (else ``missing`` is the
+    message), known keys, a known design ``kind``. Returns the spec, its path as text and the table."""
+    spec = read_toml(path, what)
+    where = str(spec["_path"])
+    known_keys(spec, top_keys, where, error=SpecError)
+    body = spec.get(table)
+    if not isinstance(body, dict):
+        raise SpecError(f"{where}: {missing}")
+    known_keys(body, table_keys, f"{where} [{table}]", error=SpecError)
+    kind = body.get("kind", "laser")
+    if kind not in GRID_KINDS:
+        raise SpecError(f"{where} [{table}]: kind {kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
+    return spec, where, body
+
+
+def check_shared_keys(spec: dict, where: str) -> None:
+    """The keys sweep and search specs share: text values are strings, and a ``[display]`` table
+    (only without ``base``) holds known display settings."""
+    for key in TEXT_KEYS:
+        if key in spec and not isinstance(spec[key], str):
+            raise SpecError(f"{where}: {key} = {spec[key]!r} must be a string")
     if "display" in spec:
         if "base" in spec:
             raise SpecError(f"{where}: give either base (a display spec) or a [display] table, not both")
         if not isinstance(spec["display"], dict):
             raise SpecError(f"{where}: display must be a table of display settings")
         known_keys(spec["display"], DISPLAY_KEYS, f"{where} [display]", error=SpecError)
-    return spec
+
+
+def display_settings(spec: dict) -> dict | None:
+    """The checked settings of a spec's ``[display]`` table (:data:`DISPLAY_KEYS`), or None without one."""
+    if "display" not in spec:
+        return None
+    settings = spec_settings({**spec["display"], "_path": spec["_path"]})
+    return {k: settings[k] for k in DISPLAY_KEYS}
 
 
 def relative(spec: dict, value: str) -> Path:
@@ -135,9 +160,9 @@ def sweep_designs(spec: dict, *, allow_outside_grid: bool = False):
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None
     if "display" in spec:
-        settings = spec_settings({**spec["display"], "_path": spec["_path"]})
-        designs.attrs["display_settings"] = {k: settings[k] for k in DISPLAY_KEYS}
+        designs.attrs["display_settings"] = display_settings(spec)
     return designs, base_spec
 
 
-__all__ = ["TOP_KEYS", "VARY_KEYS", "read_sweep_spec", "sweep_designs", "value_list", "relative"]
+__all__ = ["TOP_KEYS", "TEXT_KEYS", "VARY_KEYS", "DISPLAY_KEYS", "read_sweep_spec", "read_spec_table", "check_shared_keys", "display_settings",
+           "sweep_designs", "value_list", "relative"]

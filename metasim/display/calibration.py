@@ -23,7 +23,7 @@ import xarray as xr
 
 from metasim.colorimetry import tristimulus, xy_to_xyz, xyz_to_xy
 from metasim.errors import DisplayError
-from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.model import Display, observer_name, single_observer
 from metasim.display.optics import observer_optics
 from metasim.display.solvers import equality_box_qp
 from metasim.display.transfer import check_luminance
@@ -126,14 +126,7 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     """
     if not isinstance(display, Display):
         raise DisplayError(f"calibrate_white needs a Display, got {type(display).__name__}")
-    obs = resolve_observer(observer, display)
-    if "observer" in obs.dims:
-        if obs.sizes["observer"] != 1:
-            raise DisplayError(
-                f"calibration needs one observer, got an 'observer' dim of size {obs.sizes['observer']}; "
-                "select one with .isel(observer=i)"
-            )
-        obs = obs.isel(observer=0)
+    obs = single_observer(observer, display, "calibration needs one observer", "select one with .isel(observer=i)")
     target_luminance = display.peak_luminance if luminance is None else luminance
     if not isinstance(target_luminance, xr.DataArray):
         target_luminance = xr.DataArray(float(target_luminance))

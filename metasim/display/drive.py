@@ -35,6 +35,8 @@ derivative gives J); Sharma, Wu & Dalal (2005) (ΔE00 of the residual).
 
 from __future__ import annotations
 
+import inspect
+
 import numpy as np
 import xarray as xr
 
@@ -46,7 +48,7 @@ from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.labelling import coordinates, labelled
 from metasim.errors import DisplayError
 from metasim.spectra import integrate
-from metasim.display.model import Display, observer_name, resolve_observer
+from metasim.display.model import Display, observer_name, resolve_observer, single_observer
 from metasim.display.optics import observer_optics
 from metasim.display._kernels.clip import clip_rows
 from metasim.display.solvers import equality_box_qp
@@ -120,14 +122,8 @@ def _calibration_observer(display: Display, observer):
             raise DisplayError(
                 f"the display was calibrated for observer {name!r}, which is not a standard observer; pass observer=..."
             ) from None
-    obs = resolve_observer(observer, display)
-    if "observer" in obs.dims:
-        if obs.sizes["observer"] != 1:
-            raise DisplayError(
-                f"drive solving needs one calibration observer, got an 'observer' dim of size {obs.sizes['observer']}; "
-                "pass the population as population=..."
-            )
-        obs = obs.isel(observer=0)
+    obs = single_observer(observer, display, "drive solving needs one calibration observer",
+                          "pass the population as population=...")
     return obs, observer_name(observer)
 
 
@@ -181,20 +177,7 @@ def _population_objective(display, population, reference, reference_white, rgb_a
     return H, f
 
 
-def solve_drive(
-    display: Display,
-    target: xr.DataArray | None = None,
-    *,
-    rgb: xr.DataArray | None = None,
-    source: str = "bt709",
-    encoding: str | None = None,
-    observer=None,
-    strategy: str = "min_norm",
-    population=None,
-    reference=None,
-    reference_white: xr.DataArray | None = None,
-    primary_power: xr.DataArray | None = None,
-) -> xr.Dataset:
+def solve_drive(display: Display, target: xr.DataArray | None = None, **options) -> xr.Dataset:
     """Drive values (0..1) that reproduce target colours on a display, for its calibration observer.
 
     Parameters
@@ -246,9 +229,7 @@ def solve_drive(
     >>> metasim.solve_drive(display, rgb=rgb)["drive"].sel(stimulus="white").round(6).values.tolist()
     [1.0, 1.0, 1.0]
     """
-    return drive_solution(display, target, rgb=rgb, source=source, encoding=encoding, observer=observer,
-                          strategy=strategy, population=population, reference=reference,
-                          reference_white=reference_white, primary_power=primary_power).dataset()
+    return drive_solution(display, target, **options).dataset()
 
 
 def drive_solution(
@@ -374,6 +355,10 @@ def drive_solution(
     achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
     return DriveSolution(display, drive, achieved, t_abs, outside, white, batch, dims,
                          [*batch_sizes.values(), *stim_shape], base, strategy, obs_name)
+
+
+# solve_drive takes drive_solution's keywords (one list, written once); help() shows them
+solve_drive.__signature__ = inspect.signature(drive_solution).replace(return_annotation="xr.Dataset")
 
 
 def _prefer(coords: xr.Coordinates, spectra: xr.DataArray, batch) -> xr.Coordinates:

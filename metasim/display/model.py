@@ -376,6 +376,18 @@ def resolve_observer(observer, display: "Display | None" = None) -> xr.Dataset:
                        f"colour-science XYZ_ColourMatchingFunctions, got {type(observer).__name__}")
 
 
+def single_observer(observer, display: "Display | None", need: str, hint: str) -> xr.Dataset:
+    """:func:`resolve_observer` where one observer is needed: an ``observer`` dim of size 1 is
+    dropped; a larger one is refused with ``need`` (e.g. "calibration needs one observer"), its size
+    and ``hint`` (what to do instead)."""
+    obs = resolve_observer(observer, display)
+    if "observer" in obs.dims:
+        if obs.sizes["observer"] != 1:
+            raise DisplayError(f"{need}, got an 'observer' dim of size {obs.sizes['observer']}; {hint}")
+        obs = obs.isel(observer=0)
+    return obs
+
+
 def observer_name(observer) -> str:
     if isinstance(observer, str):
         return observer

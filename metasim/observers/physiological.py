@@ -212,9 +212,9 @@ def _ageing_terms(wl: np.ndarray) -> np.ndarray:
     )
 
 
-def _cie170_age_factor(age: np.ndarray) -> np.ndarray:
+def _cie170_age_factor(age_years: np.ndarray) -> np.ndarray:
     """Factor on the age-dependent lens component (CIE 170-1:2006 as recalled from memory)."""
-    return np.where(age <= 60.0, 1.0 + 0.02 * (age - 32.0), 1.56 + 0.0667 * (age - 60.0))
+    return np.where(age_years <= 60.0, 1.0 + 0.02 * (age_years - 32.0), 1.56 + 0.0667 * (age_years - 60.0))
 
 
 def ocular_density_values(age_years: np.ndarray, lens_components: xr.Dataset | None = None) -> np.ndarray:

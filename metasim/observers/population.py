@@ -61,34 +61,35 @@ POPULATION_MODEL = (
 )
 
 
-def _draw(name: str, spec, n: int, rng: np.random.Generator, extrapolate: bool):
-    """Draw n values of an age or field size following ``spec``; return (values, description).
+def _draw(name: str, distribution, n: int, rng: np.random.Generator, extrapolate: bool):
+    """Draw n values of ``name`` (``age_years`` or ``field_size_deg``) following ``distribution``;
+    return (values, description).
 
-    Every value the spec states is checked here (:func:`~metasim.observers.physiological.check_parameter`),
+    Every value the distribution states is checked here (:func:`~metasim.observers.physiological.check_parameter`),
     so every draw lies inside the model's range and is not checked again.
     """
     def checked(value) -> float:
         return float(check_parameter(name, value, extrapolate)[0])
 
-    if isinstance(spec, Real) and not isinstance(spec, bool):
-        value = checked(spec)
+    if isinstance(distribution, Real) and not isinstance(distribution, bool):
+        value = checked(distribution)
         return np.full(n, value), {"distribution": "fixed", "value": value}
-    if isinstance(spec, (tuple, list)) and len(spec) == 2:
-        lo, hi = (checked(v) for v in spec)
+    if isinstance(distribution, (tuple, list)) and len(distribution) == 2:
+        lo, hi = (checked(v) for v in distribution)
         if lo > hi:
             raise ObserverError(f"{name} range ({lo:g}, {hi:g}) is not allowed; need lo <= hi")
         return rng.uniform(lo, hi, n), {"distribution": "uniform", "low": lo, "high": hi}
-    if isinstance(spec, xr.DataArray):
-        if spec.ndim != 1 or spec.dims[0] not in spec.coords:
+    if isinstance(distribution, xr.DataArray):
+        if distribution.ndim != 1 or distribution.dims[0] not in distribution.coords:
             raise ObserverError(f"{name} histogram DataArray must be 1-D with a coordinate of values")
-        spec = dict(zip(spec.coords[spec.dims[0]].values.tolist(), spec.values.tolist()))
-    if not isinstance(spec, dict) or not spec:
+        distribution = dict(zip(distribution.coords[distribution.dims[0]].values.tolist(), distribution.values.tolist()))
+    if not isinstance(distribution, dict) or not distribution:
         raise ObserverError(
-            f"{name}={spec!r} is not allowed; give a number, a (lo, hi) pair, or a histogram "
+            f"{name}={distribution!r} is not allowed; give a number, a (lo, hi) pair, or a histogram "
             "(dict or DataArray of relative frequencies)"
         )
     bins, weights = [], []
-    for key, weight in spec.items():
+    for key, weight in distribution.items():
         if isinstance(key, (tuple, list)) and len(key) == 2:
             lo, hi = (checked(v) for v in key)
             if lo > hi:
@@ -182,15 +183,15 @@ def observer_population(
     points = as_wavelengths(default_grid() if wavelengths is None else wavelengths).size
     require_memory(POPULATION_BYTES_PER_POINT * n * points, f"a population of {n:,} observers",
                    f"use at most about {largest_fitting(POPULATION_BYTES_PER_POINT * points):,} observers")
-    drawn = {"age_years": _draw("age_years", age_years, n, rng, extrapolate),
-             "field_size_deg": _draw("field_size_deg", field_size_deg, n, rng, extrapolate)}
-    vectors = {name: values for name, (values, _) in drawn.items()}
-    vectors.update({name: rng.normal(0.0, sds[name], n) for name in DEVIATIONS})
-    population = observers_dataset(vectors, wavelengths=wavelengths, extrapolate=extrapolate,
+    age_years, age_distribution = _draw("age_years", age_years, n, rng, extrapolate)
+    field_size_deg, field_distribution = _draw("field_size_deg", field_size_deg, n, rng, extrapolate)
+    deviations = {name: rng.normal(0.0, sds[name], n) for name in DEVIATIONS}
+    population = observers_dataset({"age_years": age_years, "field_size_deg": field_size_deg, **deviations},
+                                   wavelengths=wavelengths, extrapolate=extrapolate,
                                    lens_components=lens_components, peak_shift_axis=peak_shift_axis,
                                    absorbance_interpolation=absorbance_interpolation)
     parameters = {
-        "n": n, **{name: description for name, (_, description) in drawn.items()},
+        "n": n, "age_years": age_distribution, "field_size_deg": field_distribution,
         **{f"sd_{k}": float(v) for k, v in sds.items()},
         "deviation_distribution": "normal, mean 0, independent",
         "lens_components": None if lens_components is None else lens_components.attrs.get("source", "user"),
