@@ -48,6 +48,12 @@ def to_colour(obj, *, name: str | None = None):
     name : str, optional
         Name of the colour-science object (default: the observer / display / array name).
 
+    Returns
+    -------
+    object
+        colour-science ``XYZ_ColourMatchingFunctions``, ``LMS_ConeFundamentals``,
+        ``RGB_DisplayPrimaries``, ``MultiSpectralDistributions`` or ``SpectralDistribution``.
+
     Examples
     --------
     >>> import metasim
@@ -82,6 +88,25 @@ def from_colour(obj, wavelengths=None, *, dim: str | None = None):
     distributions → a labelled DataArray (``dim`` names the label
     dim of a multi-spectral object). ``wavelengths`` puts the result on a grid
     (:func:`metasim.spectra.resample` policy); None keeps the object's own.
+
+    Parameters
+    ----------
+    obj
+        colour-science colour-matching functions, cone fundamentals or spectral distributions.
+    wavelengths : optional
+        The grid of the result (None: the object's own).
+    dim : str, optional
+        The label dim of a multi-spectral object.
+
+    Returns
+    -------
+    Dataset or DataArray
+        An observer Dataset or a labelled spectral DataArray.
+
+    Raises
+    ------
+    InteropError
+        An object that is not a colour-science spectral distribution or colour-matching functions.
 
     Examples
     --------

@@ -364,6 +364,27 @@ def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, re
     (:class:`~metasim.errors.OutputExistsError`). ``before_rename``, if given, is called with the
     complete temporary file just before the rename (e.g. to record its checksum).
 
+    Parameters
+    ----------
+    data : Dataset or DataArray
+        What to save.
+    path : path-like
+        The netCDF4 file.
+    replace : bool
+        Replace an existing file (default True).
+    before_rename : callable, optional
+        Called with the complete temporary file before the rename.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    OutputExistsError
+        The file exists and ``replace=False``.
+
     Examples
     --------
     >>> import metasim
@@ -405,6 +426,16 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
     Returns a DataArray if a DataArray was saved, else a Dataset, fully loaded into memory.
     Raises :class:`~metasim.errors.FileFormatError` for a missing or unreadable file and for
     attributes metasim stores as JSON that do not hold JSON.
+
+    Parameters
+    ----------
+    path : path-like
+        A file written by :func:`save_dataset`.
+
+    Returns
+    -------
+    Dataset or DataArray
+        What was saved, attributes restored, loaded into memory.
 
     Examples
     --------

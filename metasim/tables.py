@@ -178,6 +178,11 @@ def result_tables(ds, *, pairs: bool = False, attributes: bool = True) -> list[T
     attributes : bool
         Add the ``attributes`` table of the file's attributes.
 
+    Returns
+    -------
+    list of Table
+        One table per group of variables sharing dims (module docstring).
+
     Examples
     --------
     >>> import metasim
@@ -294,6 +299,29 @@ def write_csv_tables(tables: list[Table], folder, *, contents: bool = True, repl
     Existing files are refused unless ``replace`` (nothing is written then), as is a file that is one
     of ``inputs``.
 
+    Parameters
+    ----------
+    tables : list of Table
+        From :func:`result_tables`.
+    folder : path-like
+        The folder to write into (created).
+    contents : bool
+        Also write ``contents.csv`` (default True).
+    replace : bool
+        Replace existing files (default False).
+    inputs : sequence of path-like
+        Files that must not be overwritten.
+
+    Returns
+    -------
+    list of Path
+        The files written.
+
+    Raises
+    ------
+    OutputExistsError
+        A file exists and ``replace`` is False, or is one of ``inputs``.
+
     Examples
     --------
     >>> import metasim
@@ -356,6 +384,31 @@ def write_workbook(tables: list[Table], path, *, contents: bool = True, replace:
     """One ``.xlsx`` workbook: a ``contents`` sheet, then a sheet per table (header row frozen).
 
     Needs openpyxl (the ``spreadsheet`` extra); an existing file is refused unless ``replace``.
+
+    Parameters
+    ----------
+    tables : list of Table
+        From :func:`result_tables`.
+    path : path-like
+        The ``.xlsx`` file.
+    contents : bool
+        Also write the ``contents`` sheet (default True).
+    replace : bool
+        Replace an existing file (default False).
+    inputs : sequence of path-like
+        Files that must not be overwritten.
+
+    Returns
+    -------
+    Path
+        The path written.
+
+    Raises
+    ------
+    ReportError
+        openpyxl is not installed.
+    OutputError
+        A file name not ending in ``.xlsx``.
 
     Examples
     --------

@@ -694,6 +694,8 @@ def _matching_options(parser):
 
 
 def build_parser() -> argparse.ArgumentParser:
+    """The ``metasim`` command's argument parser: one subcommand per ``add(...)`` call, usage errors
+    on one line."""
     parser = Parser(
         prog=PROG, formatter_class=argparse.RawDescriptionHelpFormatter,
         description="Spectral simulation of observer-dependent metamerism for display design.",

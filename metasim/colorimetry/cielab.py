@@ -43,6 +43,16 @@ def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
 
     Black (X + Y + Z = 0) gives NaN.
 
+    Parameters
+    ----------
+    xyz : DataArray
+        XYZ (dim ``xyz``).
+
+    Returns
+    -------
+    DataArray
+        x, y (dim ``chromaticity``); NaN for black.
+
     Examples
     --------
     >>> import metasim
@@ -62,6 +72,16 @@ def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
 
 def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
     """CIE 1976 u'v' chromaticity (dim ``chromaticity`` = u', v') from XYZ (CIE 15:2004 §8.1).
+
+    Parameters
+    ----------
+    xyz : DataArray
+        XYZ (dim ``xyz``).
+
+    Returns
+    -------
+    DataArray
+        u', v' (dim ``chromaticity``).
 
     Examples
     --------
@@ -83,6 +103,18 @@ def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
 
 def xy_to_xyz(xy: xr.DataArray, luminance: float | xr.DataArray = 1.0) -> xr.DataArray:
     """XYZ with the given Y from xy chromaticity (dim ``chromaticity`` = x, y).
+
+    Parameters
+    ----------
+    xy : DataArray
+        Chromaticity (dim ``chromaticity`` = x, y).
+    luminance : float or DataArray
+        Y of the result (default 1).
+
+    Returns
+    -------
+    DataArray
+        XYZ (dim ``xyz``), Y = ``luminance``.
 
     Examples
     --------
@@ -153,6 +185,11 @@ def xyz_to_lab(xyz: xr.DataArray, white: xr.DataArray) -> xr.DataArray:
     xyz : DataArray with an ``xyz`` dim.
     white : DataArray with an ``xyz`` dim, broadcast by dim name (for example one white per
         ``observer``). Same scale as ``xyz``.
+
+    Returns
+    -------
+    DataArray
+        CIELAB (dim ``lab`` = L*, a*, b*).
 
     References
     ----------

@@ -68,6 +68,16 @@ def xyz_to_ictcp(xyz: xr.DataArray) -> xr.DataArray:
     Negative LMS (far outside the BT.2020 gamut) is clipped to 0 before the PQ curve, as the curve
     is undefined for negative light (:func:`xyz_to_ictcp_values`).
 
+    Parameters
+    ----------
+    xyz : DataArray
+        Absolute XYZ in cd/m² (dim ``xyz``).
+
+    Returns
+    -------
+    DataArray
+        ICtCp (dim ``ictcp``).
+
     References
     ----------
     ITU-R BT.2100-2 (2018), Tables 4, 6 and 7.
@@ -94,6 +104,16 @@ def delta_e_itp(ictcp_1: xr.DataArray, ictcp_2: xr.DataArray) -> xr.DataArray:
     """ΔE_ITP = 720·√(ΔI² + ΔT² + ΔP²), T = Ct/2, P = Cp (ITU-R BT.2124-0, 2019).
 
     A value of 1 is about one just-noticeable difference; broadcast by dim name over all but ``ictcp``.
+
+    Parameters
+    ----------
+    ictcp_1, ictcp_2 : DataArray
+        ICtCp values (dim ``ictcp``), from :func:`xyz_to_ictcp`.
+
+    Returns
+    -------
+    DataArray
+        ΔE_ITP, the inputs' dims without ``ictcp``.
 
     Examples
     --------

@@ -177,6 +177,20 @@ def tristimulus(
 def cone_excitations(spectra: xr.DataArray, observers, **kwargs) -> xr.DataArray:
     """Cone excitations (``cone`` = L, M, S) of spectra; see :func:`tristimulus` for the options.
 
+    Parameters
+    ----------
+    spectra : DataArray
+        Spectra with a ``wavelength`` dim on the observers' grid.
+    observers : str or Dataset
+        A standard observer name or observer Dataset with ``lms``.
+    **kwargs
+        As for :func:`tristimulus` (``scale``, ...).
+
+    Returns
+    -------
+    DataArray
+        Cone excitations with a ``cone`` dim (L, M, S) in place of ``wavelength``.
+
     Examples
     --------
     >>> import metasim

@@ -433,6 +433,17 @@ def make_display(
     name : str, optional
         A label kept in the attributes (default: a colour-science object's name, else "display").
 
+    Returns
+    -------
+    Display
+        The display model (spectra not rescaled; see :func:`metasim.display.calibrate_white`).
+
+    Raises
+    ------
+    DisplayError
+        Spectra without ``primary`` and ``wavelength`` dims, unusable primaries, an unknown
+        transfer function (each named in the message).
+
     References
     ----------
     Berns (1996) Displays 16(4) 173-182 (additive display model).
@@ -499,6 +510,23 @@ def make_display(
 
 def stack_designs(displays: Sequence[Display], design: Sequence | None = None) -> Display:
     """Stack displays with the same primaries count, grid and transfer function along ``design``.
+
+    Parameters
+    ----------
+    displays : sequence of Display
+        Displays with the same primary count, grid and transfer function.
+    design : sequence, optional
+        Labels of the ``design`` dim (default 0, 1, ...).
+
+    Returns
+    -------
+    Display
+        One display with a ``design`` dim.
+
+    Raises
+    ------
+    DisplayError
+        Displays that cannot be stacked (named in the message).
 
     Examples
     --------

@@ -164,6 +164,12 @@ def colour_matching_data(amounts=None, *, test_wavelengths, primaries, primary_l
     age_years : float or per subject, optional
         20-80 years; NaN or None = unknown.
 
+    Returns
+    -------
+    Dataset
+        The matches in the layout of the module docstring (``amounts`` or a plan without
+        observations, the test wavelengths, primaries and subject coordinates).
+
     Examples
     --------
     >>> import metasim
@@ -228,6 +234,12 @@ def matching_session_data(settings=None, *, references, display, black=None, sub
         (``primary`` × ``wavelength``), on the references' grid.
     black : DataArray, optional
         Black-level spectral radiance when ``display`` is given as spectra (default 0).
+
+    Returns
+    -------
+    Dataset
+        The sessions in the layout of the module docstring (settings or a plan, references, display
+        primaries and subject coordinates).
 
     Examples
     --------

@@ -420,18 +420,41 @@ def physiological_observers(age_years=32, field_size_deg=2, *, wavelengths=None,
                             absorbance_interpolation: str = DEFAULT_ABSORBANCE_INTERPOLATION, **deviations) -> xr.Dataset:
     """Many CIE 170-1 individual observers in one vectorised call (leading ``observer`` dim).
 
-    Parameters: ``age_years`` (20-80) and ``field_size_deg`` (1-10), and any of the eight
-    :data:`DEVIATIONS` (default 0; below −100 % means zero density), each a number or a 1-D vector
-    (numbers broadcast); ``wavelengths``: output grid, default 390-830 nm at 1 nm; ``extrapolate``:
-    allow any positive age and field size; ``lens_components``: a two-component lens table
-    (:func:`read_lens_components`) to age the media by CIE 170-1's own formula; ``peak_shift_axis``:
-    ``"log_wavelength"`` (default) or ``"wavelength"``, the axis along which the peak shifts move the
-    absorbance (:data:`PEAK_SHIFT_AXES`, module docstring); ``absorbance_interpolation``:
-    ``"linear"`` (default) or ``"monotone_cubic"``, how the 1-nm absorbance table is read at shifted
-    positions (:mod:`metasim.observers.pigments`). Both are recorded as attributes.
+    Parameters
+    ----------
+    age_years : float or 1-D array_like
+        Age in years, 20-80.
+    field_size_deg : float or 1-D array_like
+        Field size in degrees, 1-10.
+    wavelengths : optional
+        Output grid (default 390-830 nm at 1 nm).
+    extrapolate : bool
+        Allow any positive age and field size.
+    lens_components : Dataset, optional
+        A two-component lens table (:func:`read_lens_components`) to age the media by CIE 170-1's
+        own formula.
+    peak_shift_axis : {"log_wavelength", "wavelength"}
+        The axis along which the peak shifts move the absorbance (:data:`PEAK_SHIFT_AXES`, module
+        docstring); recorded as an attribute.
+    absorbance_interpolation : {"linear", "monotone_cubic"}
+        How the 1-nm absorbance table is read at shifted positions
+        (:mod:`metasim.observers.pigments`); recorded as an attribute.
+    **deviations : float or 1-D array_like
+        Any of the eight :data:`DEVIATIONS` (default 0; below −100 % means zero density).
 
-    Returns a Dataset with ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz,
-    wavelength), every parameter an ``observer`` coordinate.
+    Numbers broadcast against vectors; every vector has one value per observer.
+
+    Returns
+    -------
+    Dataset
+        ``lms`` (observer, cone, wavelength) and ``cmf`` (observer, xyz, wavelength), every
+        parameter an ``observer`` coordinate.
+
+    Raises
+    ------
+    ObserverError
+        An age or field size outside the model, an unknown deviation, vectors of different lengths,
+        an unknown peak-shift axis or interpolation.
 
     References
     ----------

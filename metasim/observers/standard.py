@@ -141,6 +141,18 @@ def cone_fundamentals(field_size_deg: int = 2, wavelengths=None) -> xr.DataArray
 
     Energy-based, peak-normalised; identical to CIE 170-1:2006 at age 32.
 
+    Parameters
+    ----------
+    field_size_deg : {2, 10}
+        Field size in degrees.
+    wavelengths : optional
+        The grid (default 390-830 nm at 1 nm).
+
+    Returns
+    -------
+    DataArray
+        ``cone`` × ``wavelength``, energy-based, each peak 1.
+
     Examples
     --------
     >>> import metasim

@@ -45,6 +45,11 @@ def read_spectra_csv(
         Accept, with a warning, a spectrum that loses more than 1 % of its energy outside
         ``wavelengths`` (an error otherwise; :func:`metasim.spectra.check_energy_on_grid`).
 
+    Returns
+    -------
+    DataArray
+        ``dim`` × ``wavelength`` with ``units``, ``long_name`` and ``source_notes``.
+
     Raises
     ------
     FileFormatError
@@ -153,6 +158,22 @@ def write_spectra_csv(
     ``wavelength_nm,<label>,...`` and one row per wavelength, values with 17 significant digits.
     Written through :func:`metasim.io.atomic_output`; an existing file is replaced unless
     ``replace=False``.
+
+    Parameters
+    ----------
+    spectra : DataArray
+        One leading dim × ``wavelength``, or ``wavelength`` only.
+    path : path-like
+        The CSV file.
+    notes : iterable of str
+        Comment lines written first.
+    replace : bool
+        Replace an existing file (default True).
+
+    Returns
+    -------
+    Path
+        The path written.
 
     Examples
     --------

@@ -112,6 +112,11 @@ def wavelength_grid(
     step_nm : float
         Spacing in nm, > 0.
 
+    Returns
+    -------
+    DataArray
+        The ``wavelength`` coordinate (nm) with its attributes.
+
     Examples
     --------
     >>> import metasim
@@ -138,6 +143,11 @@ def wavelength_grid(
 
 def default_grid() -> xr.DataArray:
     """The default grid, 390-830 nm at 1 nm (CIE 170-1:2006 range).
+
+    Returns
+    -------
+    DataArray
+        The ``wavelength`` coordinate, 390-830 nm at 1 nm.
 
     Examples
     --------
@@ -283,6 +293,35 @@ def make_spectra(
 
     ``values`` has shape (n_wavelength,) or (n_labels, n_wavelength).
 
+    Parameters
+    ----------
+    values : array_like
+        Shape (n_wavelength,) or (n_labels, n_wavelength).
+    wavelengths : array_like or DataArray
+        A uniform ascending grid in nm.
+    dim : str
+        Name of the label dim (default ``channel``).
+    labels : sequence, optional
+        One label per row of ``values``.
+    units, long_name : str
+        The attributes of the result.
+    non_negative : bool
+        Refuse negative values (default True).
+    **attrs
+        Further attributes.
+
+    Returns
+    -------
+    DataArray
+        ``dim`` × ``wavelength`` (or ``wavelength`` only), checked.
+
+    Raises
+    ------
+    SpectrumError
+        Values that are not 1-D or 2-D, a grid that is not uniform, NaN or negative values.
+    GridMismatchError
+        A number of values per row other than the number of wavelengths.
+
     Examples
     --------
     >>> import metasim
@@ -351,6 +390,28 @@ def resample(
     reach into the ultraviolet, where the part beyond the grid does not count). ``warn_share=None``
     skips the energy accounting altogether: published tables cut to the working grid on purpose
     (standard observers, CIE illuminants, CIE 13.3 reflectances, density tables).
+
+    Parameters
+    ----------
+    spectra : DataArray
+        Spectra with a ``wavelength`` dim.
+    wavelengths : optional
+        The target grid (default 390-830 nm at 1 nm).
+    warn_share : float or None
+        Share of any channel's energy outside the grid above which a warning is given (None: no
+        energy accounting).
+    allow_outside_grid : bool
+        False: more than :data:`OUTSIDE_GRID_SHARE` outside is an error.
+
+    Returns
+    -------
+    DataArray
+        The spectra on the grid (attribute ``resampled_from``).
+
+    Raises
+    ------
+    EnergyOutsideGridError
+        No energy on the grid, or too much outside it with ``allow_outside_grid=False``.
 
     Examples
     --------

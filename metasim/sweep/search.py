@@ -173,6 +173,11 @@ def search_space(kind: str = "laser", primaries: Mapping[str, Mapping] | None = 
     wavelengths : optional
         The grid (default: the base's, else 390–830 nm at 1 nm).
 
+    Returns
+    -------
+    SearchSpace
+        The searched parameters, their bounds and the fixed primaries.
+
     Examples
     --------
     >>> from metasim.sweep import search_space
