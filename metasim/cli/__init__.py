@@ -507,7 +507,7 @@ def cmd_estimate(args) -> int:
                 raise OptionError(f"--primaries {args.primaries!r}: give three wavelengths in nm "
                                   "(e.g. 645.16,526.32,444.44) or a spectra CSV file") from None
         data = read_matching_csv(source, primaries=primaries, references=args.references, display=display,
-                                 field_size_deg=args.field_size, age_years=args.age)
+                                 field_size_deg=args.field_size_deg, age_years=args.age_years)
     categories = False if args.no_categories else (load_dataset(args.categories) if args.categories else None)
     progress.say(f"read {source}; fitting the subjects' observers")
     result = fit_observer(data, fit_age=args.fit_age, setting_noise=args.setting_noise,
@@ -642,9 +642,9 @@ def _population_options(parser, observers_file: bool = True) -> None:
                            "(default: draw a population with the options below)")
     group.add_argument("--size", type=_whole(1), default=1000, help="number of observers (default 1000)")
     group.add_argument("--seed", type=_whole(0), default=1, help="random seed (default 1)")
-    group.add_argument("--ages", dest="age_years", type=_range("age range"), default="20-70",
+    group.add_argument("--ages", dest="age_years", metavar="AGES", type=_range("age range"), default="20-70",
                        help="age in years, N or LO-HI uniform (default 20-70; CIE 170-1 covers 20-80)")
-    group.add_argument("--field-size", dest="field_size_deg", type=_range("field size"), default="2",
+    group.add_argument("--field-size", dest="field_size_deg", metavar="FIELD_SIZE", type=_range("field size"), default="2",
                        help="field size in degrees, N or LO-HI (default 2; CIE 170-1 covers 1-10)")
     group.add_argument("--extrapolate", action="store_true",
                        help="allow ages and field sizes outside the CIE 170-1 range (the model is then extrapolated)")
@@ -790,9 +790,11 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--references", metavar="SPECTRA.csv", help="matching sessions: reference spectra, one column per stimulus")
     p.add_argument("--display", metavar="SPEC", help="matching sessions: the three-primary test display, a design spec "
                    "(TOML) or a spectra CSV of its primaries")
-    p.add_argument("--field-size", type=float, default=2.0, help="field size in degrees for subjects without a "
+    p.add_argument("--field-size", dest="field_size_deg", metavar="FIELD_SIZE", type=float, default=2.0,
+                   help="field size in degrees for subjects without a "
                    "field_size_deg column (default 2)")
-    p.add_argument("--age", type=float, help="age in years for subjects without an age_years column (default unknown)")
+    p.add_argument("--age", dest="age_years", metavar="AGE", type=float,
+                   help="age in years for subjects without an age_years column (default unknown)")
     p.add_argument("--fit-age", action="store_true", help="also fit every subject's age (prior 50 ± 17.3 years)")
     p.add_argument("--setting-noise", type=float, help="known setting noise (default: estimated per subject)")
     p.add_argument("--peak-shift-axis", choices=("log_wavelength", "wavelength"), default="log_wavelength",
