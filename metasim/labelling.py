@@ -32,6 +32,28 @@ def coordinates(dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequenc
     Sources are DataArrays, Datasets or Coordinates; the first one holding a name wins. ``labels``
     adds dimension coordinates of fixed labels (for example ``{"xyz": ("X", "Y", "Z")}``), which
     take precedence over a source coordinate of the same name. Nothing is realigned or re-indexed.
+
+    Parameters
+    ----------
+    dims : sequence of str
+        The dims of the object to be labelled.
+    sources : sequence
+        DataArrays, Datasets or Coordinates to take coordinates from (the first holding a name wins).
+    labels : mapping, optional
+        Dimension coordinates of fixed labels, taking precedence over the sources.
+
+    Returns
+    -------
+    xarray.Coordinates
+        The coordinates along ``dims`` only.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.labelling import coordinates
+    >>> source = xr.DataArray([1.0, 2.0], dims="stimulus", coords={"stimulus": ["a", "b"]})
+    >>> sorted(coordinates(("stimulus", "xyz"), [source], labels={"xyz": ("X", "Y", "Z")}))
+    ['stimulus', 'xyz']
     """
     allowed = set(dims)
     labels = labels or {}
@@ -55,6 +77,24 @@ def coordinates(dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequenc
 def labelled(values, dims: Sequence[str], sources=(), *, labels: Mapping[str, Sequence] | None = None,
              attrs: dict | None = None, name=None) -> xr.DataArray:
     """A DataArray of numpy ``values`` over ``dims``, labelled by :func:`coordinates` of ``sources``.
+
+    Parameters
+    ----------
+    values : ndarray
+        The numbers, one axis per dim.
+    dims : sequence of str
+        Their dims.
+    sources, labels
+        As for :func:`coordinates`.
+    attrs : dict, optional
+        Attributes (``units``, ``long_name``).
+    name : str, optional
+        The DataArray's name.
+
+    Returns
+    -------
+    DataArray
+        ``values`` with dims, coordinates and attributes.
 
     Examples
     --------

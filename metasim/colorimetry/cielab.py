@@ -242,7 +242,26 @@ def _aligned(a: xr.DataArray, b: xr.DataArray) -> bool:
 
 
 def lab_to_lch(lab: xr.DataArray) -> xr.DataArray:
-    """CIE LCh(ab): lightness, chroma C*ab and hue angle h_ab in degrees [0, 360)."""
+    """CIE LCh(ab): lightness, chroma C*ab and hue angle h_ab in degrees [0, 360).
+
+    Parameters
+    ----------
+    lab : DataArray
+        CIELAB (dim ``lab``).
+
+    Returns
+    -------
+    DataArray
+        Dim ``lch`` = L*, C*ab, h_ab (degrees, 0-360).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.colorimetry import lab_to_lch
+    >>> lab = xr.DataArray([50.0, 0.0, 10.0], dims="lab", coords={"lab": ["L*", "a*", "b*"]})
+    >>> lab_to_lch(lab).values.round(6).tolist()
+    [50.0, 10.0, 90.0]
+    """
     _need(lab, "lab", "lab")
     L = lab.sel(lab="L*", drop=True)
     a = lab.sel(lab="a*", drop=True)

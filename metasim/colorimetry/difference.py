@@ -24,7 +24,26 @@ from metasim.units import DELTA_E00
 
 
 def delta_e_2000_array(lab_1, lab_2, *, k_L: float = 1.0) -> np.ndarray:
-    """CIE 2000 colour difference of numpy arrays with L*, a*, b* on the last axis (broadcast)."""
+    """CIE 2000 colour difference of numpy arrays with L*, a*, b* on the last axis (broadcast).
+
+    Parameters
+    ----------
+    lab_1, lab_2 : array_like
+        CIELAB values, L*, a*, b* on the last axis (broadcast against each other).
+    k_L : float
+        Lightness weight (1 for reference conditions).
+
+    Returns
+    -------
+    ndarray
+        ΔE00, the broadcast shape without the last axis.
+
+    Examples
+    --------
+    >>> from metasim.colorimetry import delta_e_2000_array
+    >>> float(delta_e_2000_array([50.0, 2.6772, -79.7751], [50.0, 0.0, -82.7485]).round(4))  # Sharma et al. pair 1
+    2.0425
+    """
     a = np.asarray(lab_1, dtype=float)
     b = np.asarray(lab_2, dtype=float)
     if a.shape[-1:] != (3,) or b.shape[-1:] != (3,):

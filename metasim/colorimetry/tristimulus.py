@@ -79,6 +79,29 @@ def contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str) -
 
     Output dims: the spectra's non-wavelength dims, then the responses' non-wavelength dims other
     than ``channel_dim``, then ``channel_dim``. No Python loop over spectra or observers.
+
+    Parameters
+    ----------
+    spectra : DataArray
+        Spectra with a ``wavelength`` dim.
+    responses : DataArray
+        Response functions on the same grid (for example ``cmf``), with ``channel_dim``.
+    channel_dim : str
+        The responses' channel dim (``xyz`` or ``cone``).
+
+    Returns
+    -------
+    DataArray
+        Σ_λ spectra · responses · Δλ over the dims named above.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.colorimetry import contract
+    >>> from metasim.emitters import gaussian
+    >>> spectra = gaussian([450, 550], [20, 20], name=["B", "G"])
+    >>> contract(spectra, metasim.standard_observer("cie1931_2")["cmf"], "xyz").dims
+    ('primary', 'xyz')
     """
     values, dims = _contract(spectra, responses, channel_dim)
     return labelled(values, dims, (spectra, responses))

@@ -73,9 +73,34 @@ def _check_functions(observers: xr.Dataset, name: str, components: list[str], wh
 def check_observers(observers, *, where: str = "observers", wavelengths=None) -> xr.Dataset:
     """Check an observer set (see the module docstring); returns it unchanged.
 
-    ``wavelengths``: the grid the observers must share with the displays (checked when given).
-    Raises :class:`~metasim.errors.ObserverError` (layout and values) or
-    :class:`~metasim.errors.GridMismatchError` (another grid), naming ``where``.
+    Parameters
+    ----------
+    observers : Dataset
+        An observer set (``cmf`` with an ``observer`` dim; module docstring).
+    where : str
+        How messages name the set (e.g. the file).
+    wavelengths : optional
+        The grid the observers must share with the displays (checked when given).
+
+    Returns
+    -------
+    Dataset
+        ``observers``, unchanged.
+
+    Raises
+    ------
+    ObserverError
+        Layout or values not allowed, naming ``where``.
+    GridMismatchError
+        Another grid than ``wavelengths``.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.observers import check_observers
+    >>> audience = metasim.observer_population(3, seed=1)
+    >>> check_observers(audience) is audience
+    True
     """
     if not isinstance(observers, xr.Dataset):
         raise ObserverError(f"{where}: holds a single {type(observers).__name__}, not an observer set (a Dataset with "
@@ -125,7 +150,37 @@ def check_observers(observers, *, where: str = "observers", wavelengths=None) ->
 
 
 def read_observers(path: str | os.PathLike, wavelengths=None) -> xr.Dataset:
-    """An observer set from a netCDF file, checked (:func:`check_observers`) before it is used."""
+    """An observer set from a netCDF file, checked (:func:`check_observers`) before it is used.
+
+    Parameters
+    ----------
+    path : path-like
+        A netCDF file (for example from ``metasim observers --out``).
+    wavelengths : optional
+        The grid the observers must share with the displays (checked when given).
+
+    Returns
+    -------
+    Dataset
+        The observer set, checked.
+
+    Raises
+    ------
+    FileFormatError
+        A missing or unreadable file.
+    ObserverError, GridMismatchError
+        As for :func:`check_observers`.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> import metasim
+    >>> from metasim.observers import read_observers
+    >>> path = os.path.join(tempfile.mkdtemp(), "audience.nc")
+    >>> _ = metasim.save_dataset(metasim.observer_population(3, seed=1), path)
+    >>> read_observers(path).sizes["observer"]
+    3
+    """
     return check_observers(load_dataset(path), where=str(path), wavelengths=wavelengths)
 
 

@@ -172,9 +172,26 @@ def low_density_absorbance(wavelengths=None) -> xr.DataArray:
     Derived from the Stockman & Sharpe (2000) 2° cone fundamentals by inverting the CIE 170-1
     formula with f = 2° (D_mac,max 0.35, D_peak 0.50/0.50/0.40); S is 0 above 615 nm.
 
+    Parameters
+    ----------
+    wavelengths : optional
+        The grid (default 390-830 nm at 1 nm).
+
+    Returns
+    -------
+    DataArray
+        ``cone`` × ``wavelength``, each row peaking at 1.
+
     References
     ----------
     CIE 170-1:2006; Stockman & Sharpe (2000) Vision Research 40, 1711-1737.
+
+    Examples
+    --------
+    >>> from metasim.observers import low_density_absorbance
+    >>> absorbance = low_density_absorbance()
+    >>> absorbance.max("wavelength").round(12).values.tolist()
+    [1.0, 1.0, 1.0]
     """
     absorbance, peaks = absorbance_table()
     wl = _grid(wavelengths)
@@ -243,9 +260,34 @@ def read_lens_components(path: str | os.PathLike) -> xr.Dataset:
     D_ocul,2(λ) (optical densities at age 32). Pass the result as ``lens_components=`` to
     :func:`cie2006_observer`, :func:`physiological_observers`, or :func:`ocular_media_density`.
 
+    Parameters
+    ----------
+    path : path-like
+        The CSV file.
+
+    Returns
+    -------
+    Dataset
+        As :func:`lens_components_dataset` makes it.
+
+    Raises
+    ------
+    FileFormatError
+        A file that cannot be read as spectra, or without exactly two columns.
+
     References
     ----------
     CIE 170-1:2006, ocular media density as a function of age.
+
+    Examples
+    --------
+    >>> import os, tempfile
+    >>> from metasim.observers import read_lens_components
+    >>> path = os.path.join(tempfile.mkdtemp(), "lens.csv")
+    >>> with open(path, "w") as f:
+    ...     _ = f.write("wavelength_nm,age_dependent,constant\\n400,0.2,0.05\\n401,0.1,0.05\\n")
+    >>> read_lens_components(path)["lens_density_1"].values.tolist()
+    [0.2, 0.1]
     """
     table = read_spectra_csv(path, units="1", long_name="ocular media optical density")
     if table.sizes["channel"] != 2:
@@ -255,7 +297,35 @@ def read_lens_components(path: str | os.PathLike) -> xr.Dataset:
 
 
 def lens_components_dataset(age_dependent, constant, wavelengths, *, source: str = "user") -> xr.Dataset:
-    """Build a two-component lens table (variables ``lens_density_1``, ``lens_density_2``)."""
+    """Build a two-component lens table (variables ``lens_density_1``, ``lens_density_2``).
+
+    Parameters
+    ----------
+    age_dependent, constant : array_like
+        D_ocul,1(λ) and D_ocul,2(λ), optical densities at age 32, one value per wavelength.
+    wavelengths : array_like
+        Their grid in nm.
+    source : str
+        Where the table comes from (kept in the ``source`` attribute).
+
+    Returns
+    -------
+    Dataset
+        ``lens_density_1`` and ``lens_density_2`` over ``wavelength``.
+
+    Raises
+    ------
+    ObserverError
+        Negative or non-finite densities, or lengths that do not match the grid.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from metasim.observers import lens_components_dataset
+    >>> table = lens_components_dataset([0.2, 0.1], [0.05, 0.05], [400.0, 401.0])
+    >>> sorted(table.data_vars)
+    ['lens_density_1', 'lens_density_2']
+    """
     wl = check_wavelengths(wavelengths, where="lens table")
     values = [np.asarray(v, dtype=float) for v in (age_dependent, constant)]
     for name, v in zip(("age-dependent", "constant"), values):
@@ -277,9 +347,36 @@ def ocular_media_density(age_years=32, wavelengths=None, *, lens_components: xr.
     170-1's formula D1·(1 + 0.02·(A − 32)) + D2 up to 60 years, D1·(1.56 + 0.0667·(A − 60)) + D2
     above (the formula is quoted from memory, not from the standard's text).
 
+    Parameters
+    ----------
+    age_years : float
+        Age in years (20-80 unless ``extrapolate``).
+    wavelengths : optional
+        The grid (default 390-830 nm at 1 nm).
+    lens_components : Dataset, optional
+        A two-component table (:func:`read_lens_components`) for CIE 170-1's own formula.
+    extrapolate : bool
+        Allow any positive age.
+
+    Returns
+    -------
+    DataArray
+        Optical density over ``wavelength`` (attribute ``age_years``).
+
+    Raises
+    ------
+    ObserverError
+        An age outside the model's range.
+
     References
     ----------
     CIE 170-1:2006; CIE 203:2012; van de Kraats & van Norren (2007) JOSA A 24, 1842.
+
+    Examples
+    --------
+    >>> from metasim.observers import ocular_media_density
+    >>> round(float(ocular_media_density(32).sel(wavelength=400)), 5)  # the age-32 table
+    1.7649
     """
     age_years = check_parameter("age_years", age_years, extrapolate)
     wl = _grid(wavelengths)
