@@ -401,7 +401,7 @@ def write_workbook(tables: list[Table], path, *, contents: bool = True, replace:
     Returns
     -------
     Path
-        The path written.
+        The workbook file.
 
     Raises
     ------

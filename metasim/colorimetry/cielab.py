@@ -46,7 +46,7 @@ def xyz_to_xy(xyz: xr.DataArray) -> xr.DataArray:
     Parameters
     ----------
     xyz : DataArray
-        XYZ (dim ``xyz``).
+        Tristimulus values with an ``xyz`` dim, any scale; other dims are kept.
 
     Returns
     -------
@@ -76,12 +76,12 @@ def xyz_to_uv(xyz: xr.DataArray) -> xr.DataArray:
     Parameters
     ----------
     xyz : DataArray
-        XYZ (dim ``xyz``).
+        Tristimulus values with an ``xyz`` dim; u', v' do not depend on their scale.
 
     Returns
     -------
     DataArray
-        u', v' (dim ``chromaticity``).
+        u', v' over the ``chromaticity`` dim, in place of ``xyz``.
 
     Examples
     --------
@@ -247,12 +247,12 @@ def lab_to_lch(lab: xr.DataArray) -> xr.DataArray:
     Parameters
     ----------
     lab : DataArray
-        CIELAB (dim ``lab``).
+        CIELAB values along a ``lab`` dim.
 
     Returns
     -------
     DataArray
-        Dim ``lch`` = L*, C*ab, h_ab (degrees, 0-360).
+        L*, C*ab and h_ab (degrees, 0-360) along an ``lch`` dim.
 
     Examples
     --------
