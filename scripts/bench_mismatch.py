@@ -51,14 +51,20 @@ def build_case(n_observers: int, n_stimuli: int, seed: int):
 
 
 def colour_loop(ref, test, observers, drive_ref, drive_test, count: int) -> np.ndarray:
+    return colour_delta_e(observers, ref.spectra.transpose("primary", "wavelength").values, ref.black.values,
+                          ref.white_spectrum().values, test.spectra.transpose("primary", "wavelength").values,
+                          test.black.values, drive_ref, drive_test, count)
+
+
+def colour_delta_e(observers, ref_primaries, ref_black, ref_white, test_primaries, test_black, drive_ref, drive_test,
+                   count: int) -> np.ndarray:
+    """CIE 2000 differences (count × stimuli) of the first ``count`` observers, the straightforward
+    colour-science way: ``sd_to_XYZ`` per primary, black and white, XYZ of the drives, ``XYZ_to_Lab``
+    against the reference white, ``delta_E``. Spectra are numpy arrays on the observers' grid."""
     import colour
 
     wl = observers.wavelength.values
     shape = colour.SpectralShape(wl[0], wl[-1], wl[1] - wl[0])
-    ref_primaries = ref.spectra.transpose("primary", "wavelength").values
-    test_primaries = test.spectra.transpose("primary", "wavelength").values
-    ref_black, test_black = ref.black.values, test.black.values
-    ref_white = ref.white_spectrum().values
     cmf_all = observers["cmf"].transpose("observer", "wavelength", "xyz").values
     out = np.empty((count, drive_ref.shape[0]))
     for o in range(count):

@@ -105,6 +105,7 @@ def colour_loop(args) -> dict:
 
     import metasim
     from metasim.sweep import chunk_display, run_sweep
+    from bench_mismatch import colour_delta_e  # scripts/ is on the path when a script runs
     from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 
     reference, observers, stimuli = build_inputs(args.observers, args.seed)
@@ -121,9 +122,6 @@ def colour_loop(args) -> dict:
     matched = metasim.calibrate_white(display, "cie1931_2", white=tuple(
         colour.XYZ_to_xy(metasim.tristimulus(reference.white_spectrum(), metasim.standard_observer("cie1931_2")).values)),
         luminance=float(metasim.tristimulus(reference.white_spectrum(), metasim.standard_observer("cie1931_2")).sel(xyz="Y")))
-    wl = observers.wavelength.values
-    shape = colour.SpectralShape(wl[0], wl[-1], wl[1] - wl[0])
-    cmf_all = observers["cmf"].transpose("observer", "wavelength", "xyz").values
     count = min(args.loop_observers or args.observers, args.observers)
     drive_ref = result["drive_reference"].transpose("stimulus", "reference_primary").values
     ref_primaries = reference.spectra.transpose("primary", "wavelength").values
@@ -134,22 +132,8 @@ def colour_loop(args) -> dict:
         test = matched.spectra.isel(design=d).transpose("primary", "wavelength").values
         test_black = matched.black.isel(design=d).values if "design" in matched.black.dims else matched.black.values
         drive_test = result["drive_test"].isel(design=d).transpose("stimulus", "primary").values
-        de = np.empty((count, drive_ref.shape[0]))
-        for o in range(count):
-            cmfs = colour.MultiSpectralDistributions(cmf_all[o], wl, name=f"observer {o}")
-
-            def xyz(values):
-                return colour.sd_to_XYZ(colour.SpectralDistribution(values, wl), cmfs, method="Integration",
-                                        k=683.0, shape=shape)
-
-            m_ref = np.column_stack([xyz(p) for p in ref_primaries])
-            m_test = np.column_stack([xyz(p) for p in test])
-            white = xyz(ref_white)
-            xyz_ref = drive_ref @ m_ref.T + xyz(ref_black)
-            xyz_test = drive_test @ m_test.T + xyz(test_black)
-            white_xy = colour.XYZ_to_xy(white)
-            de[o] = colour.delta_E(colour.XYZ_to_Lab(xyz_ref / white[1], white_xy),
-                                   colour.XYZ_to_Lab(xyz_test / white[1], white_xy), method="CIE 2000")
+        de = colour_delta_e(observers, ref_primaries, ref_black, ref_white, test, test_black, drive_ref, drive_test,
+                            count)
         flat = de.ravel()
         stats[d] = [flat.mean(), np.median(flat), np.quantile(flat, 0.95), flat.max()]
     seconds = (time.perf_counter() - start) * args.observers / count
