@@ -89,7 +89,26 @@ def seed_generator(seed, *, error: type[MetasimError] = MetasimError) -> tuple[n
 def seed_attributes(rng: np.random.Generator, recorded: int | str) -> dict:
     """The attributes recording a draw's seed: ``seed`` (as :func:`seed_generator` returned it) and,
     for a caller's own Generator, ``generator_state`` (its bit generator's state before the draws,
-    JSON), so the draw can be repeated."""
+    JSON), so the draw can be repeated.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+        The generator, before any draw.
+    recorded : int or str
+        The seed as :func:`seed_generator` returned it.
+
+    Returns
+    -------
+    dict
+        ``seed`` and, for a caller's own Generator, ``generator_state``.
+
+    Examples
+    --------
+    >>> from metasim.checks import seed_attributes, seed_generator
+    >>> seed_attributes(*seed_generator(7))
+    {'seed': 7}
+    """
     if recorded == GENERATOR_SEED:
         return {"seed": recorded, "generator_state": json.dumps(rng.bit_generator.state, default=int)}
     return {"seed": recorded}
@@ -127,6 +146,31 @@ def number(value, name: str, *, error: type[MetasimError] = MetasimError, minimu
 
     ``sep`` joins the name and the value in the message (``" = "`` for keys of a TOML file).
 
+    Parameters
+    ----------
+    value
+        The value given.
+    name : str
+        How the message names it.
+    error : type
+        The :class:`~metasim.errors.MetasimError` subclass to raise.
+    minimum, maximum, above : float, optional
+        Bounds: ``>= minimum``, ``<= maximum``, ``> above``.
+    units, note : str
+        Said in the message after the allowed range.
+    sep : str
+        Joins the name and the value in the message.
+
+    Returns
+    -------
+    float
+        The value.
+
+    Raises
+    ------
+    error
+        Not a finite real number, or outside the bounds.
+
     Examples
     --------
     >>> number(True, "gamma")
@@ -151,6 +195,29 @@ def number(value, name: str, *, error: type[MetasimError] = MetasimError, minimu
 def whole_number(value, name: str, *, error: type[MetasimError] = MetasimError, minimum: int | None = None,
                  maximum: int | None = None, note: str = "", sep: str = "=") -> int:
     """One integer (a bool is refused; ``numpy`` integers are accepted), inside the bounds given.
+
+    Parameters
+    ----------
+    value
+        The value given.
+    name : str
+        How the message names it.
+    error : type
+        The :class:`~metasim.errors.MetasimError` subclass to raise.
+    minimum, maximum : int, optional
+        Bounds, inclusive.
+    note, sep : str
+        As for :func:`number`.
+
+    Returns
+    -------
+    int
+        The value.
+
+    Raises
+    ------
+    error
+        Not an integer, or outside the bounds.
 
     Examples
     --------
@@ -177,6 +244,23 @@ def numbers(values, name: str, *, error: type[MetasimError] = MetasimError, mini
 
     Returns them as a float64 array of at least one dimension. The message names the first
     offending entry.
+
+    Parameters
+    ----------
+    values
+        A number or array-like.
+    name, error, minimum, maximum, above, units, note
+        As for :func:`number`.
+
+    Returns
+    -------
+    ndarray
+        float64, at least one dimension.
+
+    Raises
+    ------
+    error
+        An entry that is not a finite real number or lies outside the bounds (the first is named).
 
     Examples
     --------
@@ -209,6 +293,26 @@ def known_keys(table: Mapping, allowed: Iterable[str], where: str, *,
                error: type[MetasimError] = MetasimError) -> None:
     """Refuse a key of ``table`` that is not in ``allowed`` (keys starting with ``_`` are internal).
 
+    Parameters
+    ----------
+    table : mapping
+        The keys to check (a TOML table, a dict of options).
+    allowed : iterable of str
+        The keys allowed.
+    where : str
+        How the message names the table (file and table).
+    error : type
+        The :class:`~metasim.errors.MetasimError` subclass to raise.
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    error
+        A key not in ``allowed``, named with the allowed ones.
+
     Examples
     --------
     >>> known_keys({"peak_nm": 450, "fwhm": 20}, ("peak_nm", "fwhm_nm"), "spec.toml [[primary]] B")
@@ -224,6 +328,16 @@ def known_keys(table: Mapping, allowed: Iterable[str], where: str, *,
 
 def is_number(text: str) -> bool:
     """True when ``float(text)`` reads ``text`` (file readers use it to name the bad cell).
+
+    Parameters
+    ----------
+    text : str
+        A cell or option as read.
+
+    Returns
+    -------
+    bool
+        Whether ``float(text)`` reads it.
 
     Examples
     --------

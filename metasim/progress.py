@@ -41,7 +41,24 @@ LOOP_EVERY_S = 1.0
 
 
 def format_duration(seconds: float) -> str:
-    """``4.2`` → ``"4 s"``, ``95`` → ``"1 min 35 s"``, ``4000`` → ``"1 h 7 min"``."""
+    """``4.2`` → ``"4 s"``, ``95`` → ``"1 min 35 s"``, ``4000`` → ``"1 h 7 min"``.
+
+    Parameters
+    ----------
+    seconds : float
+        A duration.
+
+    Returns
+    -------
+    str
+        The duration in hours, minutes and seconds, the two largest units only.
+
+    Examples
+    --------
+    >>> from metasim.progress import format_duration
+    >>> format_duration(4.2), format_duration(95), format_duration(4000)
+    ('4 s', '1 min 35 s', '1 h 7 min')
+    """
     seconds = max(0.0, float(seconds))
     if seconds < 60:
         return f"{max(seconds, 1):.0f} s"
@@ -199,14 +216,44 @@ _SILENT = Progress(quiet=True, heartbeat=None)
 
 
 def current() -> Progress:
-    """The reporter of the running command (the innermost active one), or a silent reporter."""
+    """The reporter of the running command (the innermost active one), or a silent reporter.
+
+    Returns
+    -------
+    Progress
+        The innermost active reporter, or a silent one.
+
+    Examples
+    --------
+    >>> from metasim.progress import current
+    >>> current().say("nobody listens")  # silent outside a command
+    """
     return _ACTIVE[-1] if _ACTIVE else _SILENT
 
 
 @contextlib.contextmanager
 def activate(progress: Progress):
     """Make ``progress`` the reporter :func:`current` returns, and run its heartbeat, inside a
-    ``with`` block (the same as ``with progress:``)."""
+    ``with`` block (the same as ``with progress:``).
+
+    Parameters
+    ----------
+    progress : Progress
+        The command's reporter.
+
+    Yields
+    ------
+    Progress
+        ``progress``, active until the block ends.
+
+    Examples
+    --------
+    >>> from metasim.progress import Progress, activate, current
+    >>> reporter = Progress(quiet=True)
+    >>> with activate(reporter):
+    ...     current() is reporter
+    True
+    """
     with progress:
         yield progress
 

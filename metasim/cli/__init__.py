@@ -695,7 +695,19 @@ def _matching_options(parser):
 
 def build_parser() -> argparse.ArgumentParser:
     """The ``metasim`` command's argument parser: one subcommand per ``add(...)`` call, usage errors
-    on one line."""
+    on one line.
+
+    Returns
+    -------
+    argparse.ArgumentParser
+        The parser with every subcommand.
+
+    Examples
+    --------
+    >>> from metasim.cli import build_parser
+    >>> build_parser().parse_args(["observers", "--out", "audience.nc", "--ages", "30-60"]).age_years
+    (30.0, 60.0)
+    """
     parser = Parser(
         prog=PROG, formatter_class=argparse.RawDescriptionHelpFormatter,
         description="Spectral simulation of observer-dependent metamerism for display design.",
@@ -823,7 +835,24 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv=None) -> int:
-    """Entry point of the ``metasim`` console script; returns the exit code."""
+    """Entry point of the ``metasim`` console script; returns the exit code.
+
+    Parameters
+    ----------
+    argv : list of str, optional
+        The arguments (default: the command line).
+
+    Returns
+    -------
+    int
+        The exit code: 0, 1 (an error, one line on stderr) or 2 (usage).
+
+    Examples
+    --------
+    >>> from metasim.cli import main
+    >>> main(["observers", "--out", "audience.txt"])  # the error is one line on stderr
+    1
+    """
     parser = build_parser()
     args = parser.parse_args(argv)
     args.quiet = bool(getattr(args, "quiet", False))

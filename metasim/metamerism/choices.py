@@ -68,14 +68,15 @@ def rank_calibration_observers(
     --------
     >>> import metasim
     >>> from metasim.emitters import gaussian, laser_line
-    >>> from metasim.metamerism import neutral_ramp
-    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
-    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
-    >>> lasers = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
-    >>> viewers = metasim.observer_population(4, seed=1, age_years=(20, 70))
-    >>> ranking = metasim.rank_calibration_observers(monitor, lasers, viewers, neutral_ramp(3))
-    >>> ranking.sizes["calibration_observer"], ranking.attrs["best_calibration_observer"] in ranking.calibration_observer
-    (5, True)
+    >>> from metasim.metamerism import primaries_and_secondaries
+    >>> studio = metasim.make_display(gaussian([450, 540, 625], [20, 35, 30], name=["B", "G", "R"]))
+    >>> studio = metasim.calibrate_white(studio, "cie1964_10")
+    >>> projector = metasim.make_display(laser_line([462, 520, 640], 2.0, name=["B", "G", "R"]))
+    >>> elders = metasim.observer_population(3, seed=2, age_years=(60, 75))
+    >>> ranking = metasim.rank_calibration_observers(studio, projector, elders, primaries_and_secondaries(),
+    ...                                              candidates=("cie1931_2", "cie2015_2"))
+    >>> ranking.calibration_observer.values.tolist(), ranking.attrs["best_calibration_observer"] in ("cie1931_2", "cie2015_2")
+    (['cie1931_2', 'cie2015_2'], True)
     """
     if not candidates:
         raise MismatchError("candidates is empty; give at least one calibration observer")
