@@ -198,16 +198,10 @@ def whole_number(value, name: str, *, error: type[MetasimError] = MetasimError, 
 
     Parameters
     ----------
-    value
-        The value given.
-    name : str
-        How the message names it.
-    error : type
-        The :class:`~metasim.errors.MetasimError` subclass to raise.
+    value, name, error, note, sep
+        As for :func:`number`.
     minimum, maximum : int, optional
         Bounds, inclusive.
-    note, sep : str
-        As for :func:`number`.
 
     Returns
     -------
