@@ -61,7 +61,25 @@ def is_colour_object(obj) -> bool:
 
 
 def is_colour_spectrum(obj) -> bool:
-    """True for a colour-science ``SpectralDistribution`` or ``MultiSpectralDistributions`` (any subclass)."""
+    """True for a colour-science ``SpectralDistribution`` or ``MultiSpectralDistributions`` (any subclass).
+
+    Parameters
+    ----------
+    obj
+        Any object.
+
+    Returns
+    -------
+    bool
+        Whether it is a colour-science spectral distribution (single or multi).
+
+    Examples
+    --------
+    >>> import colour
+    >>> from metasim.spectra import is_colour_spectrum
+    >>> is_colour_spectrum(colour.SDS_ILLUMINANTS["D65"]), is_colour_spectrum([1.0, 2.0])
+    (True, False)
+    """
     if not is_colour_object(obj):
         return False
     import colour

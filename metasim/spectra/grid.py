@@ -160,7 +160,24 @@ def default_grid() -> xr.DataArray:
 
 
 def as_wavelengths(wavelengths) -> np.ndarray:
-    """Return the wavelengths of a grid, DataArray, Dataset or sequence as a float64 array."""
+    """Return the wavelengths of a grid, DataArray, Dataset or sequence as a float64 array.
+
+    Parameters
+    ----------
+    wavelengths : DataArray, Dataset or sequence
+        A grid, an object with a ``wavelength`` coordinate, or the numbers (nm).
+
+    Returns
+    -------
+    ndarray
+        The wavelengths in nm, float64.
+
+    Examples
+    --------
+    >>> from metasim.spectra import as_wavelengths, wavelength_grid
+    >>> as_wavelengths(wavelength_grid(400, 410, 5)).tolist()
+    [400.0, 405.0, 410.0]
+    """
     if isinstance(wavelengths, (xr.DataArray, xr.Dataset)) and "wavelength" in wavelengths.coords:
         return np.asarray(wavelengths.coords["wavelength"].values, dtype=float)
     return np.asarray(wavelengths, dtype=float)
@@ -174,10 +191,30 @@ def check_wavelengths(
     Allowed: a one-dimensional, finite, strictly ascending vector of positive values in nm with at
     least two entries; with ``uniform=True`` also a constant step (relative tolerance 1e-6).
 
+    Parameters
+    ----------
+    wavelengths : array_like
+        The wavelengths in nm.
+    where : str
+        How the message names them.
+    uniform : bool
+        Also require a constant step.
+
+    Returns
+    -------
+    ndarray
+        The wavelengths, float64.
+
     Raises
     ------
     SpectrumError
         Naming ``where``, the first offending value and what is allowed.
+
+    Examples
+    --------
+    >>> from metasim.spectra import check_wavelengths
+    >>> check_wavelengths([400, 405, 410], uniform=True).tolist()
+    [400.0, 405.0, 410.0]
     """
     try:
         values = as_wavelengths(wavelengths)
@@ -216,7 +253,29 @@ def check_wavelengths(
 
 
 def grid_step(wavelengths) -> float:
-    """Step in nm of a uniform grid (validated; a grid seen before is recognised by its values)."""
+    """Step in nm of a uniform grid (validated; a grid seen before is recognised by its values).
+
+    Parameters
+    ----------
+    wavelengths
+        A uniform grid (anything :func:`as_wavelengths` reads).
+
+    Returns
+    -------
+    float
+        The step in nm.
+
+    Raises
+    ------
+    SpectrumError
+        A grid that is not uniform.
+
+    Examples
+    --------
+    >>> from metasim.spectra import grid_step, wavelength_grid
+    >>> grid_step(wavelength_grid(390, 830, 5))
+    5.0
+    """
     try:
         values = as_wavelengths(wavelengths)
     except (TypeError, ValueError):
@@ -243,6 +302,34 @@ def check_spectra(
 
     With ``non_negative=True`` (emission, reflectance, transmittance) negative values are refused.
     Returns the input unchanged.
+
+    Parameters
+    ----------
+    spectra : DataArray
+        The spectra to check.
+    where : str
+        How messages name them.
+    non_negative : bool
+        Refuse negative values (emission, reflectance, transmittance).
+
+    Returns
+    -------
+    DataArray
+        ``spectra``, unchanged.
+
+    Raises
+    ------
+    SpectrumError
+        No ``wavelength`` dim or coordinate, wavelengths not allowed, non-finite or negative values,
+        each named.
+
+    Examples
+    --------
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.spectra import check_spectra
+    >>> spectra = gaussian([450], [20], name=["B"])
+    >>> check_spectra(spectra) is spectra
+    True
     """
     if not isinstance(spectra, xr.DataArray):
         raise SpectrumError(
@@ -349,13 +436,56 @@ def make_spectra(
 
 
 def same_grid(a, b) -> bool:
-    """True when two objects carry identical wavelength coordinates."""
+    """True when two objects carry identical wavelength coordinates.
+
+    Parameters
+    ----------
+    a, b
+        Objects with a ``wavelength`` coordinate.
+
+    Returns
+    -------
+    bool
+        Whether the coordinates are identical.
+
+    Examples
+    --------
+    >>> from metasim.spectra import same_grid, wavelength_grid
+    >>> same_grid(wavelength_grid(), wavelength_grid(390, 830, 1)), same_grid(wavelength_grid(), wavelength_grid(390, 830, 5))
+    (True, False)
+    """
     wa, wb = as_wavelengths(a), as_wavelengths(b)
     return wa.shape == wb.shape and np.array_equal(wa, wb)
 
 
 def require_same_grid(a, b, *, names: tuple[str, str] = ("first", "second")) -> None:
-    """Raise :class:`GridMismatchError` unless ``a`` and ``b`` share their wavelength grid."""
+    """Raise :class:`GridMismatchError` unless ``a`` and ``b`` share their wavelength grid.
+
+    Parameters
+    ----------
+    a, b
+        Objects with a ``wavelength`` coordinate.
+    names : tuple of str
+        How the message names them.
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    GridMismatchError
+        Different wavelength grids.
+
+    Examples
+    --------
+    >>> from metasim.spectra import require_same_grid, wavelength_grid
+    >>> require_same_grid(wavelength_grid(390, 830, 5), wavelength_grid(390, 830, 1),
+    ...                   names=("spectra", "observer"))  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+        ...
+    metasim.errors.GridMismatchError: spectra is sampled at 390-830 nm (89 points, 5 nm) but observer at ...
+    """
     if not same_grid(a, b):
         wa, wb = as_wavelengths(a), as_wavelengths(b)
         raise GridMismatchError(
@@ -487,7 +617,26 @@ def _flat_label(array: xr.DataArray, flat_index: int) -> str:
 
 
 def integrate(spectra: xr.DataArray) -> xr.DataArray:
-    """Integral over wavelength by the rectangle rule on a uniform grid (sum × step), in units × nm."""
+    """Integral over wavelength by the rectangle rule on a uniform grid (sum × step), in units × nm.
+
+    Parameters
+    ----------
+    spectra : DataArray
+        Spectra on a uniform grid (``wavelength`` dim).
+
+    Returns
+    -------
+    DataArray
+        The integrals, without ``wavelength``; units the spectra's × nm.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from metasim.spectra import integrate, make_spectra
+    >>> flat = make_spectra(np.ones(11), np.arange(400.0, 411.0), units="1")
+    >>> float(integrate(flat))  # 11 samples × 1 nm
+    11.0
+    """
     step = grid_step(spectra)
     out = spectra.sum("wavelength") * step
     out.attrs = {"long_name": f"integral of {spectra.attrs.get('long_name', 'spectrum')}"}
