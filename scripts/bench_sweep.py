@@ -1,11 +1,18 @@
 """Benchmark: design sweeps, metasim's run_sweep vs the straightforward colour-science loop.
 
-Run:  python scripts/bench_sweep.py [--sizes 1000 10000 100000] [--repeats 3] [--observers 500]
+Run:  python scripts/bench_sweep.py [--case cube64 random50] [--sizes N ...] [--repeats 3] [--huge]
 
-Case: a lazy ``design_grid`` of three laser primaries (R 615-660 nm, G 515-550 nm, B 440-470 nm,
+Designs: a lazy ``design_grid`` of three laser primaries (R 615-660 nm, G 515-550 nm, B 440-470 nm,
 1 nm line width) judged against a broadband three-primary reference monitor by ``--observers``
-CIE 170-1 observers aged 20-70 (seeded), on ``rgb_cube_grid(4)`` (64 BT.709 colours), scheduler
-``--scheduler`` (default "threads"), the default chunk size.
+(500) CIE 170-1 observers aged 20-70 (seeded), scheduler ``--scheduler`` (default "threads"), the
+default chunk size. Two cases (both by default):
+
+* ``cube64``: ``rgb_cube_grid(4)`` (64 BT.709 colours), 10³, 10⁴ and 10⁵ designs. Targets: at least
+  500 designs/s (16 M pairs/s) at 10³ and 10⁴ designs; peak resident memory within +10 % from 10³
+  to 10⁵ designs. ``--huge`` adds one sweep of 10⁶ designs (about half an hour on 2 cores).
+* ``random50``: 50 seeded random BT.709 colours, 100, 1,000 and 10,000 designs (the scale of a
+  design search). Targets: throughput at 10,000 designs at least 80 % of that at 1,000; peak
+  resident memory under 2 GB and flat; at least 300 times the colour-science loop per design.
 
 Each sweep size runs in a fresh Python process (so the peak resident memory is that size's): the
 process builds the inputs, runs one 8-design sweep (numba's compiled code loaded, xarray's netCDF
@@ -43,19 +50,33 @@ import numpy as np
 
 warnings.filterwarnings("ignore")
 
-PER_AXIS = {1000: (10, 10, 10), 10000: (25, 20, 20), 100000: (50, 50, 40), 1000000: (100, 100, 100)}
+PER_AXIS = {100: (5, 5, 4), 1000: (10, 10, 10), 10000: (25, 20, 20), 100000: (50, 50, 40),
+            1000000: (100, 100, 100)}
+#: The cases: default sweep sizes and a description of the stimuli.
+CASES = {"cube64": ([1000, 10000, 100000], "64 stimuli (rgb_cube_grid(4))"),
+         "random50": ([100, 1000, 10000], "50 stimuli (seeded random BT.709 signals)")}
+HUGE = 1_000_000
 
 
-def build_inputs(n_observers: int, seed: int):
+def build_stimuli(case: str, seed: int):
+    from metasim.metamerism import rgb_cube_grid
+    from metasim.metamerism.stimuli import rgb_set
+
+    if case == "cube64":
+        return rgb_cube_grid(4)
+    signals = np.random.default_rng(seed).random((50, 3))
+    return rgb_set(signals, [f"colour {i + 1}" for i in range(50)], description="50 seeded random BT.709 signals")
+
+
+def build_inputs(n_observers: int, seed: int, case: str = "cube64"):
     import metasim
     from metasim import emitters
-    from metasim.metamerism import rgb_cube_grid
 
     reference = metasim.calibrate_white(metasim.make_display(
         emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"]), name="reference monitor"),
         "cie1931_2", white="D65", luminance=100)
     observers = metasim.observer_population(n_observers, seed=seed, age_years=(20, 70))
-    return reference, observers, rgb_cube_grid(4)
+    return reference, observers, build_stimuli(case, seed)
 
 
 def grid(size: int, lazy: bool = True):
@@ -76,7 +97,7 @@ def one_size(args) -> dict:
     """Time one sweep in this (fresh) process; returns the figures as a dict."""
     from metasim.sweep import run_sweep
 
-    reference, observers, stimuli = build_inputs(args.observers, args.seed)
+    reference, observers, stimuli = build_inputs(args.observers, args.seed, args.case)
     designs = grid(args.one)
     folder = tempfile.mkdtemp(prefix="bench-sweep-")
     try:
@@ -108,7 +129,7 @@ def colour_loop(args) -> dict:
     from bench_mismatch import colour_delta_e  # scripts/ is on the path when a script runs
     from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 
-    reference, observers, stimuli = build_inputs(args.observers, args.seed)
+    reference, observers, stimuli = build_inputs(args.observers, args.seed, args.case)
     full = grid(1000, lazy=False)
     picks = np.linspace(0, full.sizes["design"] - 1, args.loop_designs).round().astype(int)
     designs = full.isel(design=picks)
@@ -145,7 +166,7 @@ def colour_loop(args) -> dict:
 
 def run_child(args, extra) -> dict:
     command = [sys.executable, os.path.abspath(__file__), *extra, "--observers", str(args.observers),
-               "--seed", str(args.seed), "--scheduler", args.scheduler]
+               "--seed", str(args.seed), "--scheduler", args.scheduler, "--case", args.case]
     if args.chunk_size:
         command += ["--chunk-size", str(args.chunk_size)]
     if args.loop_observers:
@@ -158,7 +179,9 @@ def run_child(args, extra) -> dict:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--sizes", type=int, nargs="+", default=[1000, 10000, 100000])
+    parser.add_argument("--case", nargs="+", choices=sorted(CASES), default=["cube64", "random50"])
+    parser.add_argument("--sizes", type=int, nargs="+", default=None, help="sweep sizes (default: the case's)")
+    parser.add_argument("--huge", action="store_true", help=f"also one sweep of {HUGE:,} designs (cube64 case)")
     parser.add_argument("--repeats", type=int, default=3, help="runs per size (each in a fresh process)")
     parser.add_argument("--repeats-large", type=int, default=1, help="runs per size above 10,000 designs")
     parser.add_argument("--observers", type=int, default=500)
@@ -171,14 +194,23 @@ def main() -> None:
     parser.add_argument("--one", type=int, default=None, help=argparse.SUPPRESS)
     parser.add_argument("--loop", action="store_true", help=argparse.SUPPRESS)
     args = parser.parse_args()
-    if args.one is not None:
-        print(json.dumps(one_size(args)))
+    cases = args.case
+    if args.one is not None or args.loop:
+        args.case = cases[0]
+        print(json.dumps(one_size(args) if args.one is not None else colour_loop(args)))
         return
-    if args.loop:
-        print(json.dumps(colour_loop(args)))
-        return
+    for case in cases:
+        args.case = case
+        sizes = args.sizes or CASES[case][0]
+        if args.huge and case == "cube64":
+            sizes = [*sizes, HUGE]
+        run_case(args, sizes)
 
-    print(f"case: lazy laser design grid x {args.observers} observers x 64 stimuli (rgb_cube_grid(4)), "
+
+def run_case(args, sizes) -> None:
+    """Print one case's table: the loop, then each sweep size in fresh processes, then the targets."""
+    stimuli = 64 if args.case == "cube64" else 50
+    print(f"\ncase {args.case}: lazy laser design grid x {args.observers} observers x {CASES[args.case][1]}, "
           f"scheduler {args.scheduler!r}, {os.cpu_count()} CPUs; load average now {os.getloadavg()[0]:.1f}")
     loop = run_child(args, ["--loop"])
     scaled = "" if loop["observers_timed"] == args.observers else f", timed on {loop['observers_timed']} observers, scaled"
@@ -188,18 +220,50 @@ def main() -> None:
         print(f"largest |difference| of mean, median, p95, max (CIE 2000), loop vs sweep: {loop['largest_difference']:.2e}")
     print(f"{'designs':>9} {'runs':>4} {'seconds':>9} {'designs/s':>10} {'pairs/s':>10} {'peak RSS':>9} "
           f"{'load':>10} {'ratio vs loop':>14}")
-    for size in args.sizes:
+    rows = {}
+    for size in sizes:
         repeats = args.repeats if size <= 10000 else args.repeats_large
         runs = [run_child(args, ["--one", str(size)]) for _ in range(repeats)]
         seconds = statistics.median(r["seconds"] for r in runs)
         rss = statistics.median(r["peak_rss_mb"] for r in runs)
         loads = [r["load_before"] for r in runs] + [r["load_after"] for r in runs]
         count = runs[0]["designs"]
-        pairs = count * args.observers * 64
+        pairs = count * args.observers * stimuli
         ratio = loop["seconds_per_design"] / (seconds / count)
+        rows[count] = {"designs_per_s": count / seconds, "rss": rss, "ratio": ratio}
         print(f"{count:>9,} {repeats:>4} {seconds:>9.2f} {count / seconds:>10.0f} {pairs / seconds / 1e6:>9.1f}M "
               f"{rss:>7.0f}MB {min(loads):>4.1f}-{max(loads):<4.1f} {ratio:>13.0f}x")
         sys.stdout.flush()
+    targets(args.case, rows)
+
+
+def targets(case: str, rows: dict) -> None:
+    """Print each target of the case against the figures just measured (met / not met)."""
+    def line(text, met):
+        print(f"  {'met    ' if met else 'NOT met'}  {text}")
+
+    print("targets:")
+    counts = sorted(rows)
+    rss = [rows[c]["rss"] for c in counts]
+    if case == "cube64":
+        for c in (1000, 10000):
+            if c in rows:
+                line(f">= 500 designs/s at {c:,} designs: {rows[c]['designs_per_s']:.0f}",
+                     rows[c]["designs_per_s"] >= 500)
+        if 1000 in rows and 100000 in rows:
+            growth = rows[100000]["rss"] / rows[1000]["rss"] - 1
+            line(f"peak RSS within +10 % from 1,000 to 100,000 designs: {growth:+.1%}", growth <= 0.10)
+        if HUGE in rows:
+            print(f"  {HUGE:,} designs ran: {rows[HUGE]['designs_per_s']:.0f} designs/s, peak RSS {rows[HUGE]['rss']:.0f} MB")
+    else:
+        if 1000 in rows and 10000 in rows:
+            share = rows[10000]["designs_per_s"] / rows[1000]["designs_per_s"]
+            line(f"throughput at 10,000 designs >= 80 % of that at 1,000: {share:.0%}", share >= 0.8)
+        line(f"peak RSS < 2 GB at every size: largest {max(rss):.0f} MB", max(rss) < 2048)
+        line(f"peak RSS flat: {min(rss):.0f}-{max(rss):.0f} MB (+{max(rss) / min(rss) - 1:.0%})",
+             max(rss) / min(rss) <= 1.10)
+        line(f">= 300x the colour-science loop per design: {min(r['ratio'] for r in rows.values()):.0f}x at the "
+             "slowest size", min(r["ratio"] for r in rows.values()) >= 300)
 
 
 if __name__ == "__main__":
