@@ -28,6 +28,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import SweepError
+from metasim.sweep._kernels.pareto import sorted_ranks
 from metasim.units import DELTA_E00, LAB_VOLUME
 
 #: Named objectives: (variable, selection, sense, words, units). Sense "min": smaller is better.
@@ -58,12 +59,6 @@ def default_objectives(ds: xr.Dataset) -> dict:
     if "white_efficacy" in ds:
         names.append("white_efficacy")
     return {name: OBJECTIVES[name][2] for name in names}
-
-
-def _dominates(front: np.ndarray, point: np.ndarray) -> bool:
-    """Whether any row of ``front`` (minimisation) dominates ``point``."""
-    no_worse = (front <= point).all(axis=1)
-    return bool((no_worse & (front < point).any(axis=1)).any())
 
 
 def pareto_ranks(values, senses: Sequence[str] | None = None) -> np.ndarray:
@@ -99,26 +94,9 @@ def pareto_ranks(values, senses: Sequence[str] | None = None) -> np.ndarray:
     if valid.size == 0:
         return ranks
     order = valid[np.lexsort(points[valid].T[::-1])]  # lexicographic: first objective, then the next ...
-    fronts: list[list[int]] = []
-    arrays: list[np.ndarray] = []  # each front's points, refreshed lazily
-    sizes: list[int] = []
-    for index in order:
-        point = points[index]
-        low, high = 0, len(fronts)  # first front none of whose members dominates the point
-        while low < high:
-            mid = (low + high) // 2
-            if sizes[mid] != len(fronts[mid]):
-                arrays[mid], sizes[mid] = points[fronts[mid]], len(fronts[mid])
-            if _dominates(arrays[mid], point):
-                low = mid + 1
-            else:
-                high = mid
-        if low == len(fronts):
-            fronts.append([])
-            arrays.append(points[:0])
-            sizes.append(0)
-        fronts[low].append(int(index))
-        ranks[index] = low + 1
+    in_order = np.empty(order.size, dtype=np.int64)
+    sorted_ranks(np.ascontiguousarray(points[order]), in_order)  # compiled: metasim.sweep._kernels.pareto
+    ranks[order] = in_order
     return ranks
 
 

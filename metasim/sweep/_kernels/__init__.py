@@ -5,4 +5,6 @@
              their mean, median, 95th percentile and maximum overall and per age band, the counts
              beyond the thresholds and, if asked, the statistics per stimulus); entry point
              design_statistics, used by :mod:`metasim.sweep.evaluate`
+``pareto``   non-dominated sorting of points in lexicographic order (entry point sorted_ranks, used
+             by :func:`metasim.sweep.pareto.pareto_ranks`)
 """
