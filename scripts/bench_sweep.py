@@ -18,8 +18,9 @@ Each sweep size runs in a fresh Python process (so the peak resident memory is t
 process builds the inputs, runs one 8-design sweep (numba's compiled code loaded, xarray's netCDF
 writer imported), then times ``run_sweep`` of the whole grid into a new store. Printed per size:
 seconds, designs/s, observer × stimulus pairs/s and the process's peak resident memory (median
-over ``--repeats`` runs, each in its own process), and the machine's load average around the
-runs (the machine is shared: figures are noisy, ratios in the same run are what to compare).
+over ``--repeats`` runs, each in its own process), the process CPU time per design (all threads:
+what a loaded machine distorts least), and the machine's load average around the runs (the
+machine is shared: figures are noisy, ratios in the same run are what to compare).
 
 colour-science loop (``--loop-designs`` designs, default 10): per design and per observer, build
 its colour-matching functions, ``sd_to_XYZ`` (method "Integration") of every primary of both
@@ -218,21 +219,22 @@ def run_case(args, sizes) -> None:
           f"({loop['designs']} designs{scaled})")
     if loop["largest_difference"] is not None:
         print(f"largest |difference| of mean, median, p95, max (CIE 2000), loop vs sweep: {loop['largest_difference']:.2e}")
-    print(f"{'designs':>9} {'runs':>4} {'seconds':>9} {'designs/s':>10} {'pairs/s':>10} {'peak RSS':>9} "
-          f"{'load':>10} {'ratio vs loop':>14}")
+    print(f"{'designs':>9} {'runs':>4} {'seconds':>9} {'designs/s':>10} {'pairs/s':>10} {'CPU ms/design':>14} "
+          f"{'peak RSS':>9} {'load':>10} {'ratio vs loop':>14}")
     rows = {}
     for size in sizes:
         repeats = args.repeats if size <= 10000 else args.repeats_large
         runs = [run_child(args, ["--one", str(size)]) for _ in range(repeats)]
         seconds = statistics.median(r["seconds"] for r in runs)
         rss = statistics.median(r["peak_rss_mb"] for r in runs)
+        cpu = statistics.median(r["cpu_seconds"] for r in runs)
         loads = [r["load_before"] for r in runs] + [r["load_after"] for r in runs]
         count = runs[0]["designs"]
         pairs = count * args.observers * stimuli
         ratio = loop["seconds_per_design"] / (seconds / count)
         rows[count] = {"designs_per_s": count / seconds, "rss": rss, "ratio": ratio}
         print(f"{count:>9,} {repeats:>4} {seconds:>9.2f} {count / seconds:>10.0f} {pairs / seconds / 1e6:>9.1f}M "
-              f"{rss:>7.0f}MB {min(loads):>4.1f}-{max(loads):<4.1f} {ratio:>13.0f}x")
+              f"{cpu / count * 1e3:>14.2f} {rss:>7.0f}MB {min(loads):>4.1f}-{max(loads):<4.1f} {ratio:>13.0f}x")
         sys.stdout.flush()
     targets(args.case, rows)
 

@@ -7,7 +7,8 @@
 ``rowstats`` median, 95th percentile, maximum and shares beyond thresholds of sorted rows (entry
             point sorted_rows; used by :mod:`metasim.statistics.sorted_rows`)
 ``order``   mean (in numpy's pairwise order), linear quantiles and maximum of unsorted rows by
-            bucket selection, no sort (entry points summarise_rows, summarise, numpy_sum; used by
+            bucket selection, no sort (entry points summarise_rows, summarise, summarise_in_order,
+            numpy_sum; used by
             :mod:`metasim.statistics.selection` and, per design, by the sweep's compiled pass
             :mod:`metasim.sweep._kernels.designs`)
 """

@@ -222,6 +222,17 @@ def summarise(x, start, n, out):
     out[3] = found[4]
 
 
+@numba.njit(cache=True)
+def summarise_in_order(x, start, n, out):
+    """As :func:`summarise`, the mean added value after value: numpy's order when it reduces an
+    axis that is not the last (the observers of an (observer, stimulus) array, say)."""
+    summarise(x, start, n, out)
+    total = 0.0
+    for i in range(start, start + n):
+        total += x[i]
+    out[0] = total / n
+
+
 @numba.njit(cache=True, parallel=True, nogil=True)
 def summarise_rows(rows, out):
     """out[r] = mean, median, p95, max of rows[r] (a C-contiguous (R, n) float array)."""

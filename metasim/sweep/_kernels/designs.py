@@ -23,7 +23,7 @@ from metasim.colorimetry._kernels.cielab import lab_columns
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_columns, padded
 from metasim.colorimetry._kernels.fused import corrected_differences_into, mend
 from metasim.colorimetry._kernels.sums import xyz_of_drives
-from metasim.statistics._kernels.order import summarise
+from metasim.statistics._kernels.order import summarise, summarise_in_order
 
 # flags per design
 NOT_FINITE = 1  # a difference was NaN: the caller takes numpy's route for this design
@@ -103,17 +103,14 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
         summary = np.empty(4)
         summarise(members, 0, k, summary)
         by_band[d, :, g] = summary
-    if per_stimulus:
+    if per_stimulus:  # statistics over observers of each stimulus (the mean in numpy's order for that axis)
         column = np.empty(observers)
         summary = np.empty(4)
         for s in range(stimuli):
-            total = 0.0  # numpy's mean over the observer axis: rows added in order
             for o in range(observers):
                 column[o] = values_all[o * stimuli + s]
-                total += column[o]
-            summarise(column, 0, observers, summary)
-            by_stimulus[d, 0, s] = total / observers
-            for k in range(1, 4):
+            summarise_in_order(column, 0, observers, summary)
+            for k in range(4):
                 by_stimulus[d, k, s] = summary[k]
 
 
