@@ -46,6 +46,7 @@ from __future__ import annotations
 
 import json
 import math
+import warnings
 from numbers import Integral, Real
 from typing import Iterable, Mapping
 
@@ -320,6 +321,27 @@ def known_keys(table: Mapping, allowed: Iterable[str], where: str, *,
         raise error(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
 
 
+def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3):
+    """The current name of ``value``: an old spelling in ``renamed`` (old → new) still works for one
+    release, with a :class:`~metasim.errors.RenamedWarning` naming the new one; anything else as given.
+
+    >>> import warnings
+    >>> with warnings.catch_warnings(record=True) as seen:
+    ...     warnings.simplefilter("always")
+    ...     current_spelling("population", {"population": "least_mismatch"}, "strategy")
+    'least_mismatch'
+    >>> str(seen[0].message)
+    "strategy 'population' is renamed 'least_mismatch'; the old name works until the next release"
+    """
+    if isinstance(value, str) and value in renamed:
+        from metasim.errors import RenamedWarning
+
+        warnings.warn(f"{what} {value!r} is renamed {renamed[value]!r}; the old name works until the next release",
+                      RenamedWarning, stacklevel=stacklevel)
+        return renamed[value]
+    return value
+
+
 def is_number(text: str) -> bool:
     """True when ``float(text)`` reads ``text`` (file readers use it to name the bad cell).
 
@@ -345,4 +367,5 @@ def is_number(text: str) -> bool:
     return True
 
 
-__all__ = ["GENERATOR_SEED", "seed_generator", "seed_attributes", "number", "whole_number", "numbers", "known_keys", "is_number"]
+__all__ = ["GENERATOR_SEED", "seed_generator", "seed_attributes", "number", "whole_number", "numbers", "known_keys", "current_spelling",
+           "is_number"]

@@ -26,6 +26,11 @@ class MetasimWarning(UserWarning):
     """Base class of the warnings metasim gives (the result is computed, but something deserves a look)."""
 
 
+class RenamedWarning(MetasimWarning, FutureWarning):
+    """An option, spec key or value was given by its old name; it still works for one release (the
+    message names the new one)."""
+
+
 class DuplicateStimulusWarning(MetasimWarning):
     """A stimulus set holds the same colour more than once (pooled statistics count it twice)."""
 

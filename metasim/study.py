@@ -284,7 +284,9 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         out["calibration_p95_delta_e"] = ranking["p95_delta_e"]
         out["calibration_mean_delta_e_white"] = ranking["mean_delta_e_white"]
         out["calibration_mean_delta_e_stimuli"] = ranking["mean_delta_e_stimuli"]
-        out["best_calibration_observer"] = xr.DataArray(best)
+        out["best_calibration_observer"] = xr.DataArray(best, attrs={
+            "units": "1", "long_name": "calibration observer with the lowest mean CIE 2000 difference over the "
+                                       "observers, white and stimuli"})
     if categories:
         group = observers if "weight" in observers.coords else observer_categories(
             observers, min(int(categories), observers.sizes["observer"]), seed=seed)
@@ -427,8 +429,8 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
 
     Parameters
     ----------
-    reference : Display or "objects"
-        The reference display, or ``"objects"``: the stimuli as real surfaces under their own
+    reference : Display or "surfaces"
+        The reference display, or ``"surfaces"`` (old name ``"objects"``): the stimuli as real surfaces under their own
         illuminant (reflectance stimuli).
     designs : sequence of Display
         The candidate displays.

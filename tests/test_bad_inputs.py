@@ -28,19 +28,19 @@ white = "D65"
 
 [[primary]]
 label = "B"
-type = "laser"
+kind = "laser"
 peak_nm = 465
 linewidth_nm = 1.0
 
 [[primary]]
 label = "G"
-type = "laser"
+kind = "laser"
 peak_nm = 532
 linewidth_nm = 1.0
 
 [[primary]]
 label = "R"
-type = "laser"
+kind = "laser"
 peak_nm = 639
 linewidth_nm = 1.0
 """
@@ -56,7 +56,7 @@ peak_luminance = 100
 
 [vary]
 kind = "laser"
-width_nm = 1.0
+fwhm_nm = 1.0
 
 [vary.peaks_nm]
 R = [630, 640]
@@ -152,8 +152,8 @@ def spec(old: str = "", new: str = "", text: str = SPEC) -> str:
     return text.replace(old, new, 1)
 
 
-BLUE = 'label = "B"\ntype = "laser"\npeak_nm = 465\nlinewidth_nm = 1.0'
-MEASURED = "\n".join(f'[[primary]]\nlabel = "{c}"\ntype = "measured"\nfile = "m.csv"\n' for c in "RGB")
+BLUE = 'label = "B"\nkind = "laser"\npeak_nm = 465\nlinewidth_nm = 1.0'
+MEASURED = "\n".join(f'[[primary]]\nlabel = "{c}"\nkind = "measured"\nfile = "m.csv"\n' for c in "RGB")
 CSV_HEAD = "# channel spectra\nwavelength_nm,R,G,B\n"
 CSV = CSV_HEAD + "".join(f"{w},{max(0, 1 - abs(w - 610) / 60):.3f},{max(0, 1 - abs(w - 540) / 60):.3f},"
                          f"{max(0, 1 - abs(w - 460) / 50):.3f}\n" for w in range(380, 785, 5))
@@ -163,7 +163,7 @@ STIMULI = "name,R,G,B\nred,1,0,0\ngrey,0.5,0.5,0.5\n"
 def ev(*extra, files=None, spec_text=SPEC, code=1):
     """An evaluate command line on spec.toml (5 observers, 7 stimuli), its files and exit status."""
     return (["evaluate", "spec.toml", "--size", "5", "--stimuli", "primaries", "--reference", "spec.toml",
-             "--no-choices", "--out", "o", *extra], {"spec.toml": spec_text, **(files or {})}, code)
+             "--no-calibration-ranking", "--out", "o", *extra], {"spec.toml": spec_text, **(files or {})}, code)
 
 
 def sw(*extra, files=None, sweep_text=SWEEP, code=1):
@@ -244,8 +244,8 @@ CASES = [
          ["none.csv", "no such file"], {"spec.toml": SPEC}),
     Case("evaluate: spec names a missing measured file", ["evaluate", "measured.toml"],
          ["measured.toml", "gone.csv", "no such file"],
-         {"measured.toml": SPEC.replace('type = "laser"\npeak_nm = 465\nlinewidth_nm = 1.0',
-                                        'type = "measured"\nfile = "gone.csv"')}),
+         {"measured.toml": SPEC.replace('kind = "laser"\npeak_nm = 465\nlinewidth_nm = 1.0',
+                                        'kind = "measured"\nfile = "gone.csv"')}),
     Case("compare: missing second spec", ["compare", "spec.toml", "other.toml"], ["other.toml", "no such file"],
          {"spec.toml": SPEC}),
     Case("report: missing result", ["report", "none.nc"], ["none.nc", "no such file"]),
@@ -261,9 +261,9 @@ CASES = [
     case("spec: NUL bytes", ev(spec_text=SPEC.encode() + b"\x00\x00"), ["spec.toml", "NUL"]),
     case("spec: unknown key", ev(spec_text=spec("linewidth_nm = 1.0", "linewidth = 1.0")),
          ["spec.toml", "unknown key 'linewidth'", "allowed"]),
-    case("spec: unknown primary type", ev(spec_text=spec('type = "laser"', 'type = "plasma"')),
+    case("spec: unknown primary type", ev(spec_text=spec('kind = "laser"', 'kind = "plasma"')),
          ["spec.toml", "type 'plasma' is not known", "laser"]),
-    case("spec: missing key", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "gaussian"\npeak_nm = 465')),
+    case("spec: missing key", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "gaussian"\npeak_nm = 465')),
          ["spec.toml", "primary 'B'", "missing key 'fwhm_nm'"]),
     case("spec: text for a number", ev(spec_text=spec("peak_nm = 465", 'peak_nm = "465"')),
          ["spec.toml", "peak_nm = '465' is not a number"]),
@@ -291,12 +291,12 @@ CASES = [
          ["spec.toml", "peak_luminance = -5", "> 0"]),
     case("spec: black above white", ev(spec_text=spec("peak_luminance = 100", "peak_luminance = 100\nblack_luminance = 200")),
          ["spec.toml", "black_luminance=200"]),
-    case("spec: extra-primary base unknown", ev(spec_text='extra_primary_base = ["B", "G", "Q"]\n' + SPEC),
-         ["spec.toml", "extra_primary_base", "Q"]),
+    case("spec: extra-primary base unknown", ev(spec_text='extra_primary_added_to = ["B", "G", "Q"]\n' + SPEC),
+         ["spec.toml", "extra_primary_added_to", "Q"]),
     case("spec: white out of reach", ev(spec_text=SPEC.replace("peak_nm = 532", "peak_nm = 470").replace(
         "peak_nm = 639", "peak_nm = 480")), ["spec.toml", "white"]),
-    case("spec: filter without backlight", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "filter"\ncentre_nm = 460\n'
-                                                                  'width_nm = 40')), ["spec.toml", "[backlight]"]),
+    case("spec: filter without backlight", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "filter"\ncentre_nm = 460\n'
+                                                                  'passband_nm = 40')), ["spec.toml", "[backlight]"]),
     # -- emitters with energy outside the 390-830 nm grid ----------------------------------------------------
     case("emitter: laser at 200 nm", ev(spec_text=spec("peak_nm = 465", "peak_nm = 200")),
          ["spec.toml", "B (peak 200 nm", "no emission", "390-830 nm"]),
@@ -304,18 +304,18 @@ CASES = [
          ["spec.toml", "R (peak 835 nm", "no emission"]),
     case("emitter: laser at 389 nm", ev(spec_text=spec("peak_nm = 465", "peak_nm = 389")),
          ["spec.toml", "B (peak 389 nm", "83.19 %", "at most 1 %", "--allow-outside-grid"]),
-    case("emitter: Gaussian at 300 nm", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "gaussian"\npeak_nm = 300\n'
+    case("emitter: Gaussian at 300 nm", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "gaussian"\npeak_nm = 300\n'
                                                                  'fwhm_nm = 30')), ["spec.toml", "peak 300 nm", "no emission"]),
-    case("emitter: Gaussian at 400 nm", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "gaussian"\npeak_nm = 400\n'
+    case("emitter: Gaussian at 400 nm", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "gaussian"\npeak_nm = 400\n'
                                                                 'fwhm_nm = 20')), ["spec.toml", "11.95 %", "--allow-outside-grid"]),
-    case("emitter: LED at 395 nm", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "led"\npeak_nm = 395\n'
+    case("emitter: LED at 395 nm", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "led"\npeak_nm = 395\n'
                                                            'half_spectral_width_nm = 15')), ["spec.toml", "23.71 %"]),
-    case("emitter: quantum dot at 385 nm", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "quantum_dot"\npeak_nm = 385\n'
+    case("emitter: quantum dot at 385 nm", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "quantum_dot"\npeak_nm = 385\n'
                                                                    'fwhm_nm = 30')), ["spec.toml", "62.60 %"]),
-    case("emitter: measured far outside", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "measured"\nfile = "m.csv"'),
+    case("emitter: measured far outside", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "measured"\nfile = "m.csv"'),
                                              files={"m.csv": "wavelength_nm,B\n200,1\n300,1\n"}),
          ["m.csv", "no emission"]),
-    case("emitter: measured half outside", ev(spec_text=spec(BLUE, 'label = "B"\ntype = "measured"\nfile = "m.csv"'),
+    case("emitter: measured half outside", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "measured"\nfile = "m.csv"'),
                                               files={"m.csv": "wavelength_nm,B\n350,1\n430,1\n"}),
          ["m.csv", "50.00 %", "--allow-outside-grid"]),
     # -- measured spectra (CSV) --------------------------------------------------------------------------
@@ -352,7 +352,7 @@ CASES = [
     case("stimuli: unknown set", ev("--stimuli", "rainbow"), ["'rainbow' is not known", "ramp"]),
     case("stimuli: count not a number", ev("--stimuli", "cube:x"), ["'cube:x'", "whole number"]),
     case("stimuli: cube of one", ev("--stimuli", "cube:1"), ["per_axis=1", ">= 2"]),
-    case("stimuli: objects need reflectances", ev("--reference", "objects"), ["reflectance stimuli", "cie13.3"]),
+    case("stimuli: objects need reflectances", ev("--reference", "surfaces"), ["reflectance stimuli", "cie13.3"]),
     # -- observer files ------------------------------------------------------------------------------------
     case("observers: not netCDF", ev("--observers", "obs.nc", files={"obs.nc": "name,age\nann,30\n"}),
          ["obs.nc", "not a readable netCDF4 file"]),
@@ -411,7 +411,7 @@ CASES = [
     case("args: age bands outside the observers", ev("--age-bands", "80,90,100"),
          ["age band 80-89", "outside the observers' ages", "years"]),
     case("args: unknown option", ev("--frobnicate", code=2), ["unrecognized arguments: --frobnicate"]),
-    case("args: unknown source", ev("--source", "adobe", code=2), ["argument --source", "'adobe'"]),
+    case("args: unknown source", ev("--stimulus-space", "adobe", code=2), ["argument --stimulus-space", "'adobe'"]),
     case("args: chunk size 0", sw("--chunk-size", "0", code=2), ["argument --chunk-size", ">= 1"]),
     case("args: workers 0", sw("--workers", "0", code=2), ["argument --workers", ">= 1"]),
     case("args: unknown scheduler", sw("--scheduler", "fast"), ["scheduler 'fast'", "serial"]),
@@ -436,7 +436,7 @@ CASES = [
          ["sweep.toml", "peak 835 nm", "no emission"]),
     case("sweep spec: Latin-1", sw(sweep_text=SWEEP.replace("Red line", "Rouge \xe9").encode("latin-1")),
          ["sweep.toml:1", "not UTF-8"]),
-    case("sweep spec: objects with RGB stimuli", sw(sweep_text=SWEEP.replace('reference = "monitor.toml"', 'reference = "objects"')),
+    case("sweep spec: objects with RGB stimuli", sw(sweep_text=SWEEP.replace('reference = "monitor.toml"', 'reference = "surfaces"')),
          ["reflectance stimuli"]),
     case("sweep spec: age bands outside", sw("--age-bands", "80,90"), ["age band 80-90", "outside the observers' ages"]),
     Case("search: missing spec", ["search", "none.toml", "--out", "store"], ["none.toml", "no such"]),

@@ -134,7 +134,7 @@ def test_observers_categories_with_report(workdir):
 def evaluated(workdir, population_file):
     out = workdir / "evaluate"
     done = run("evaluate", FOUR_LASER, "--reference", MONITOR, "--observers", population_file,
-               "--stimuli", "primaries,ramp:3", "--no-choices", "--no-report", "--out", out)
+               "--stimuli", "primaries,ramp:3", "--no-calibration-ranking", "--no-report", "--out", out)
     return out, done
 
 
@@ -166,10 +166,10 @@ def test_report_of_a_study_file(workdir, evaluated):
 
 def test_evaluate_against_real_objects(workdir, population_file):
     out = workdir / "objects"
-    run("evaluate", LASER_PHOSPHOR, "--observers", population_file, "--no-choices", "--no-report", "--out", out,
+    run("evaluate", LASER_PHOSPHOR, "--observers", population_file, "--no-calibration-ranking", "--no-report", "--out", out,
         "--quiet")
     result = metasim.load_dataset(out / "study.nc")
-    assert result.attrs["reference_kind"] == "objects"
+    assert result.attrs["reference_kind"] == "surfaces"
     assert result.sizes["stimulus"] == 14  # the CIE 13.3 test colour samples (CIE 13.3-1995)
     assert not (out / "report.html").exists()
 
@@ -177,7 +177,7 @@ def test_evaluate_against_real_objects(workdir, population_file):
 def test_compare_second_against_first(workdir, population_file):
     out = workdir / "compare"
     run("compare", MONITOR, FOUR_LASER, "--observers", population_file, "--stimuli", "primaries",
-        "--no-choices", "--no-report", "--out", out, "--quiet")
+        "--no-calibration-ranking", "--no-report", "--out", out, "--quiet")
     result = metasim.load_dataset(out / "study.nc")
     assert result.sizes["display"] == 2 and result.sizes["design"] == 1
     assert str(result["design"].values[0]) == "Four-laser projector (candidate A)"
@@ -187,7 +187,7 @@ def test_compare_second_against_first(workdir, population_file):
 def test_compare_two_designs_states_who_sees_which_closer(workdir, population_file):
     out = workdir / "compare-two"
     done = run("compare", FOUR_LASER, LASER_PHOSPHOR, "--reference", MONITOR, "--observers", population_file,
-               "--stimuli", "primaries", "--no-choices", "--no-report", "--out", out, "--quiet", "--resamples", 200)
+               "--stimuli", "primaries", "--no-calibration-ranking", "--no-report", "--out", out, "--quiet", "--resamples", 200)
     result = metasim.load_dataset(out / "study.nc")
     share = float(result["comparison_share_second_closer"])
     assert 0.0 <= share <= 1.0 and "of viewers" in done.stdout.splitlines()[0]
@@ -233,7 +233,7 @@ def test_help_shows_worked_examples():
 
 def test_bad_inputs_give_one_line_errors(workdir):
     bad_spec = workdir / "bad.toml"
-    bad_spec.write_text('name = "x"\n[[primary]]\nlabel = "A"\ntype = "plasma"\n')
+    bad_spec.write_text('name = "x"\n[[primary]]\nlabel = "A"\nkind = "plasma"\n')
     cases = [
         ("evaluate", workdir / "missing.toml"),  # missing file
         ("evaluate", bad_spec),                 # bad spec: unknown primary type
@@ -266,10 +266,10 @@ def test_spec_errors_name_the_problem(tmp_path):
     cases = {
         'name = "x"\n': "at least 3",
         'transfer = "log"\n': "transfer 'log' is not known",
-        '[[primary]]\nlabel = "A"\ntype = "laser"\npeak = 500\n': "unknown key 'peak'",
-        '[[primary]]\nlabel = "A"\ntype = "gaussian"\npeak_nm = 500\n': "missing key 'fwhm_nm'",
-        '[[primary]]\nlabel = "A"\ntype = "filter"\ncentre_nm = 500\nwidth_nm = 40\n': "[backlight]",
-        '[[primary]]\nlabel = "A"\ntype = "measured"\nfile = "none.csv"\n': "none.csv",
+        '[[primary]]\nlabel = "A"\nkind = "laser"\npeak = 500\n': "unknown key 'peak'",
+        '[[primary]]\nlabel = "A"\nkind = "gaussian"\npeak_nm = 500\n': "missing key 'fwhm_nm'",
+        '[[primary]]\nlabel = "A"\nkind = "filter"\ncentre_nm = 500\npassband_nm = 40\n': "[backlight]",
+        '[[primary]]\nlabel = "A"\nkind = "measured"\nfile = "none.csv"\n': "none.csv",
     }
     for text, expected in cases.items():
         path = tmp_path / "spec.toml"

@@ -178,7 +178,7 @@ def test_colour_illuminant_and_reflectances_as_stimuli(crt):
         result = mismatch(d65, display, [colour.MSDS_CMFS[CIE1931], "cie1964_10"], reflectances)
     assert list(result.stimulus.values) == list(reflectances.labels)
     assert list(result.observer.values) == [CIE1931, "cie1964_10"]
-    assert result.attrs["reference"] == "objects under D65"
+    assert result.attrs["reference"] == "surfaces under D65"
     target = result["target_xyz"].transpose("stimulus", "xyz").values
     white_y = float(display.white_tristimulus("cie1931_2").sel(xyz="Y"))
     np.testing.assert_allclose(target * 100 / white_y, _object_xyz(reflectances, d65, crt.shape),
@@ -190,7 +190,7 @@ def test_colour_illuminant_and_reflectances_as_stimuli(crt):
     with pytest.warns(SpectralEnergyWarning):
         stimuli = reflectance_set(reflectances, crt.wavelengths, illuminant=d65)
     assert stimuli.attrs["illuminant"] == "D65" and "illuminant" in stimuli
-    again = mismatch("objects", display, ["cie1931_2", "cie1964_10"], stimuli)
+    again = mismatch("surfaces", display, ["cie1931_2", "cie1964_10"], stimuli)
     np.testing.assert_allclose(again["target_xyz"].values, result["target_xyz"].values, rtol=1e-12)
     np.testing.assert_allclose(again["delta_e_2000"].values, result["delta_e_2000"].values, rtol=1e-9, atol=1e-12)
 

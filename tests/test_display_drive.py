@@ -81,7 +81,7 @@ def test_population_strategy_lowers_mismatch(four, reference, cie1931, populatio
                              coords={"primary": reference.primaries})
     target = tristimulus(reference.render(ref_drive), cie1931)
     plain = solve_drive(four, target, strategy="min_norm")
-    aware = solve_drive(four, target, strategy="population", population=population, reference=reference)
+    aware = solve_drive(four, target, strategy="least_mismatch", population=population, reference=reference)
     assert not plain.out_of_gamut.any() and not aware.out_of_gamut.any()
     np.testing.assert_allclose(aware.reproduced.values, target.values, atol=1e-7)  # calibration observer still exact
     white = tristimulus(reference.white_spectrum(), population)
@@ -98,7 +98,7 @@ def test_population_with_reference_spectra(four, reference, cie1931, population)
     rng = np.random.default_rng(5)
     drive = xr.DataArray(rng.uniform(0.2, 0.6, (5, 3)), dims=("stimulus", "primary"), coords={"primary": reference.primaries})
     spectra = reference.render(drive)
-    result = solve_drive(four, strategy="population", population=population, reference=spectra,
+    result = solve_drive(four, strategy="least_mismatch", population=population, reference=spectra,
                          reference_white=reference.white_spectrum())
     np.testing.assert_allclose(result.reproduced.values, tristimulus(spectra, cie1931).values, atol=1e-7)
 
@@ -149,7 +149,7 @@ def test_bad_requests(four):
     with pytest.raises(DisplayError, match="strategy='fastest' is not known; allowed: min_norm"):
         solve_drive(four, target, strategy="fastest")
     with pytest.raises(DisplayError, match="needs reference"):
-        solve_drive(four, target, strategy="population", population="cie1964_10")
+        solve_drive(four, target, strategy="least_mismatch", population="cie1964_10")
     with pytest.raises(DisplayError, match="source colour space 'adobe' is not known"):
         solve_drive(four, rgb=xr.DataArray([[1.0, 1.0, 1.0]], dims=("stimulus", "primary")), source="adobe")
     with pytest.raises(DisplayError, match="not calibrated"):

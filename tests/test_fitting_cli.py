@@ -66,7 +66,7 @@ def test_estimate_writes_a_fit_and_a_report(cmf_fit):
 def test_fit_file_serves_as_observers_of_a_study(cmf_fit, capsys):
     folder, _, _ = cmf_fit
     code, out = _main(capsys, "evaluate", DEMO / "projector_four_laser.toml", "--reference", MONITOR, "--observers",
-                      folder / "fit" / "fit.nc", "--out", folder / "study", "--no-choices", "--no-report",
+                      folder / "fit" / "fit.nc", "--out", folder / "study", "--no-calibration-ranking", "--no-report",
                       "--stimuli", "primaries")
     study = metasim.load_dataset(folder / "study" / "study.nc")
     assert code == 0 and study.sizes["observer"] == 12 and "95th percentile" in out.out

@@ -54,7 +54,7 @@ peak_luminance = 100
 
 [vary]
 kind = "laser"
-width_nm = 1.0
+fwhm_nm = 1.0
 
 [vary.peaks_nm]
 R = [625, 635, 645]
@@ -102,7 +102,7 @@ def study_file(tmp_path_factory) -> Path:
 
     folder = tmp_path_factory.mktemp("study")
     assert main(["evaluate", str(DEMO / "projector_four_laser.toml"), "--reference", str(DEMO / "grading_monitor.toml"),
-                 "--size", "5", "--stimuli", "primaries", "--no-choices", "--no-report", "--out", str(folder),
+                 "--size", "5", "--stimuli", "primaries", "--no-calibration-ranking", "--no-report", "--out", str(folder),
                  "--quiet"]) == 0
     return folder / "study.nc"
 

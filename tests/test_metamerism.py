@@ -198,8 +198,8 @@ def test_observer_metamerism_index_equals_colour_science(rng):
 def test_object_reference_cie_13_3_samples(laser, population):
     samples = cie_13_3_samples()
     assert samples.sizes["stimulus"] == 14  # CIE 13.3-1995 defines 14 test colour samples
-    result = mismatch("objects", laser, population, samples)
-    assert result.attrs["reference_kind"] == "objects"
+    result = mismatch("surfaces", laser, population, samples)
+    assert result.attrs["reference_kind"] == "surfaces"
     assert result["delta_e_2000"].sizes == {"observer": 300, "stimulus": 14}
     inside = ~result["out_of_gamut_test"].values
     assert float(result["delta_e_2000_calibration"].values[inside].max()) < 1e-6
@@ -244,7 +244,7 @@ def test_bad_input_errors(reference, laser, population, stimuli, tmp_path):
     with pytest.raises(MetasimError, match="observer set is empty"):
         mismatch(reference, laser, [], stimuli)
     with pytest.raises(StimulusError, match="reflectance"):
-        mismatch("objects", laser, population, stimuli)
+        mismatch("surfaces", laser, population, stimuli)
     with pytest.raises(MetasimError, match="calibration observer 'cie1900'"):
         mismatch(reference, laser, population, stimuli, calibration_observer="cie1900")
     with pytest.raises(StimulusError, match="stimulus-set Dataset"):

@@ -48,7 +48,7 @@ def test_report_embeds_figures_and_states_models(study_report):
     assert "CIE 1931 2°" in text and "minimum-norm drive" in text  # calibration observer, drive strategy
     assert "Four-laser projector (candidate A)" in text
     plain = html.unescape(text)
-    assert 'type = "laser"' in plain  # the design spec is reproduced
+    assert 'kind = "laser"' in plain  # the design spec is reproduced
     for caution in CAUTIONS:
         assert caution in plain
 

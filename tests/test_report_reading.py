@@ -150,3 +150,17 @@ def test_category_report_tabulates_the_shares(study):
     table = next(t for t in parsed.tables if t["head"][0][:2] == ["category", "share of the population"])
     shares = [float(row[1].rstrip(" %")) for row in table["rows"]]
     assert len(shares) == 4 and abs(sum(shares) - 100) < 0.5
+
+
+def test_every_variable_has_a_long_name_of_its_own(study):
+    # a long name says what a variable holds, not its key with spaces; no two variables share one
+    names = {}
+    for key, variable in study[0].data_vars.items():
+        long_name = str(variable.attrs.get("long_name", ""))
+        assert long_name and long_name != key.replace("_", " "), key
+        assert variable.attrs.get("units"), key
+        names.setdefault(long_name, []).append(key)
+    shared = {name: keys for name, keys in names.items() if len(keys) > 1}
+    assert not shared, shared
+    assert study[0]["lab_volume"].attrs["units"] == study[0]["volume_gain"].attrs["units"] == "CIELAB units³"
+    assert study[0]["delta_e_2000"].attrs["units"] == "ΔE00"

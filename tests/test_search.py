@@ -163,7 +163,7 @@ def test_search_command_writes_a_store_and_resumes(tmp_path):
 
     spec = tmp_path / "search.toml"
     spec.write_text(
-        'name = "Red line searched"\nstimuli = "primaries"\nreference = "objects"\n'
+        'name = "Red line searched"\nstimuli = "primaries"\nreference = "surfaces"\n'
         '[display]\ntransfer = "gamma"\n'
         '[search]\nkind = "laser"\ngenerations = 1\npopulation = 5\nseed = 2\n'
         '[search.primaries.R]\npeak_nm = [620, 650]\n[search.primaries.G]\npeak_nm = 532\n'

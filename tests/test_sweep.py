@@ -106,7 +106,7 @@ def test_combined_sweep_equals_single_mismatch_calls(swept, designs, monitor, vi
         np.testing.assert_allclose(result["delta_e_2000_by_age"].isel(design=i).sel(age_band="40-49").values,
                                    [band.mean(), np.median(band), np.quantile(band, 0.95), band.max()], atol=1e-9)
         white = alone["delta_e_white"].isel(design=0).values
-        np.testing.assert_allclose(float(result["delta_e_white"].isel(design=i).sel(statistic="p95")),
+        np.testing.assert_allclose(float(result["delta_e_white_overall"].isel(design=i).sel(statistic="p95")),
                                    np.quantile(white, 0.95), atol=1e-9)
         gamut = metasim.chromaticity_gamut(display, observer=metasim.standard_observer("cie1931_2"))
         np.testing.assert_allclose(float(result["gamut_area_xy"].isel(design=i)), float(gamut["area"].squeeze()),
@@ -150,7 +150,8 @@ def test_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, stimul
     result = run_sweep(designs, monitor, viewers, stimuli, store=tmp_path / "threads", chunk_size=2,
                        scheduler="threads", workers=2)
     serial = swept[1]
-    for name in ("delta_e_2000_overall", "delta_e_2000_by_age", "delta_e_white", "gamut_coverage", "share_beyond_overall"):
+    for name in ("delta_e_2000_overall", "delta_e_2000_by_age", "delta_e_white_overall", "gamut_coverage",
+                 "share_beyond_overall"):
         np.testing.assert_array_equal(result[name].values, serial[name].values)
 
 
@@ -176,11 +177,11 @@ def test_per_stimulus_summaries_equal_numpy_per_design(tmp_path, swept, designs,
 def test_explicit_design_list_and_objects_reference(tmp_path, viewers):
     spectra = [emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]) for red in (615, 630, 645)]
     designs = design_list(spectra, red_nm=[615, 630, 645])
-    result = run_sweep(designs, "objects", viewers, metasim.metamerism.cie_13_3_samples(), store=tmp_path / "objects",
+    result = run_sweep(designs, "surfaces", viewers, metasim.metamerism.cie_13_3_samples(), store=tmp_path / "objects",
                        chunk_size=2, scheduler="serial", lab_volume=True)
     assert list(result["red_nm"].values) == [615, 630, 645]
     assert (result["lab_volume"].values > 0).all()
-    assert result.attrs["reference_kind"] == "objects"
+    assert result.attrs["reference_kind"] == "surfaces"
 
 
 def test_missing_distributed_gives_the_install_hint(monkeypatch, tmp_path, designs, monitor, viewers, stimuli):

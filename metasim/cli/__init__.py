@@ -2,7 +2,8 @@
 
 Subcommands::
 
-    metasim demo       run the embedded demo study (data/demo/) end to end
+    metasim demo       run the embedded demo study end to end; ``--files DIR`` copies its example
+                       specs and their format description (README.md) out for editing
     metasim observers  build a seeded observer population (or its categories) to netCDF
     metasim evaluate   one display design: gamut, extra-primary gain and mismatch against a reference
     metasim compare    two display designs side by side against one reference (or the second
@@ -15,8 +16,8 @@ Subcommands::
     metasim estimate   individual observers from colour-matching data (CSV or netCDF), with
                        uncertainties, to a result file and an HTML report
 
-Displays are described in TOML design spec files (full format: :mod:`metasim.cli.specs` and
-``data/demo/README.md``), for example::
+Displays are described in TOML design spec files (full format: :mod:`metasim.cli.specs` and the
+README.md that ``metasim demo --files DIR`` writes beside the example specs), for example::
 
     name = "Four-laser projector"
     transfer = "gamma"
@@ -26,7 +27,7 @@ Displays are described in TOML design spec files (full format: :mod:`metasim.cli
 
     [[primary]]
     label = "B"
-    type = "laser"          # laser | gaussian | led | quantum_dot | filter | measured
+    kind = "laser"          # laser | gaussian | led | quantum_dot | filter | measured
     peak_nm = 465
     linewidth_nm = 1.0
     # ... one [[primary]] table per primary, at least three
@@ -57,10 +58,11 @@ from pathlib import Path
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range, range_text
-from metasim.errors import FileFormatError, MetasimError, OptionError, ReportError, StimulusError
+from metasim.errors import FileFormatError, MetasimError, OptionError, RenamedWarning, ReportError, StimulusError
 from metasim.progress import Progress
 
 PROG = "metasim"
+SWEEP_FILE = "sweep.nc"
 
 
 class LibraryChoices(Sequence):
@@ -71,8 +73,9 @@ class LibraryChoices(Sequence):
     of other options stay quick.
     """
 
-    def __init__(self, module: str, name: str):
+    def __init__(self, module: str, name: str, renamed: dict | None = None):
         self.module, self.name, self._values = module, name, None
+        self.renamed = dict(renamed or {})  # old names still accepted for one release (not listed in help)
 
     def _load(self) -> tuple:
         if self._values is None:
@@ -86,11 +89,17 @@ class LibraryChoices(Sequence):
         return len(self._load())
 
     def __contains__(self, value) -> bool:
-        return value in self._load()
+        return value in self._load() or value in self.renamed
 
 
 CALIBRATION_OBSERVERS = LibraryChoices("metasim.metamerism.choices", "CANDIDATES")
-STRATEGIES = LibraryChoices("metasim.display.drive", "STRATEGIES")
+STRATEGIES = LibraryChoices("metasim.display.drive", "STRATEGIES", {"population": "least_mismatch"})
+#: the reference that is the stimuli themselves, as real surfaces; its old name (one release more)
+SURFACES, OLD_SURFACES = "surfaces", "objects"
+#: old option spellings: old → new (each still works for one release, with a notice naming the new one)
+RENAMED_OPTIONS = {"--no-choices": "--no-calibration-ranking", "--source": "--stimulus-space"}
+#: old values of options: (option, old value) → new value
+RENAMED_VALUES = {("--strategy", "population"): "least_mismatch", ("--reference", OLD_SURFACES): SURFACES}
 SOURCES = LibraryChoices("metasim.display.sources", "SOURCE_SPACES")
 CSV_KINDS = LibraryChoices("metasim.metamerism.stimuli", "KINDS")
 
@@ -141,6 +150,8 @@ def _kernels_ahead(progress, study: bool = True) -> None:
 
 
 def cmd_demo(args) -> int:
+    if args.files:
+        return _copy_examples(args)
     _kernels_ahead(args.progress)  # first: the helpers start before the rest of the library is imported
     from metasim.cli.demo import run_demo
 
@@ -149,6 +160,24 @@ def cmd_demo(args) -> int:
     print(f"result:  {paths['result_path']}")
     print(f"report:  {paths['report_path']}")
     print(f"figures: {paths['figures_dir']}")
+    return 0
+
+
+def _copy_examples(args) -> int:
+    """``metasim demo --files DIR``: the example specs, their data files and the format description
+    (README.md) written into DIR for editing (nothing is computed)."""
+    from metasim.cli.paths import example_files
+    from metasim.io import write_bytes
+
+    folder = Path(args.files)
+    folder.mkdir(parents=True, exist_ok=True)
+    for path in example_files():
+        write_bytes(folder / path.name, path.read_bytes(), replace=args.replace)
+        args.progress.say(f"wrote {folder / path.name}")
+    print(f"examples: {len(example_files())} files in {folder}")
+    print(f"formats:  {folder / 'README.md'} (design, sweep and search specs; stimulus and matching CSV files)")
+    print(f"try:      metasim evaluate {folder / 'projector_four_laser.toml'} --reference "
+          f"{folder / 'grading_monitor.toml'} --out study-a")
     return 0
 
 
@@ -206,11 +235,19 @@ def _observers(args, numbered: bool = True):
 def _reference(args, specs: dict):
     from metasim.cli.specs import load_display
 
-    if args.reference in (None, "objects"):
-        return "objects"
+    if args.reference in (None, SURFACES):
+        return SURFACES
     display, spec = load_display(args.reference, allow_outside_grid=args.allow_outside_grid)
     specs[display.name] = spec
     return display
+
+
+def _spec_reference(value: str, spec_path) -> str:
+    """A spec's ``reference = "surfaces"`` (or its old name, with a notice)."""
+    if value == OLD_SURFACES:
+        warnings.warn(f"{spec_path}: reference = {OLD_SURFACES!r} is renamed {SURFACES!r}; the old name works "
+                      "until the next release", RenamedWarning, stacklevel=2)
+    return SURFACES
 
 
 def _age_bands(args):
@@ -230,10 +267,10 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     figures = out / FIGURES_DIR
     if not args.no_report:  # the figure files too, before computing
         check_outputs(report_outputs("study", out / REPORT_FILE, figures), inputs=args.inputs, replace=args.replace)
-    stimuli_text = args.stimuli or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli_text = args.stimuli or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
-    if reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
-        raise StimulusError("a reference of real objects needs reflectance stimuli (--stimuli cie13.3 or a "
+    if reference == SURFACES and stimuli.attrs.get("kind") != "reflectance":
+        raise StimulusError("a reference of real surfaces needs reflectance stimuli (--stimuli cie13.3 or a "
                             "reflectance CSV with --csv-kind reflectance); or give --reference SPEC.toml")
     from metasim.metamerism.engine import check_mismatch_memory
 
@@ -241,11 +278,11 @@ def _study(args, designs: list, reference, specs: dict) -> int:
     check_mismatch_memory(size, stimuli.sizes["stimulus"], 1)  # one design at a time; before drawing observers
     progress = args.progress
     progress.steps = (int(getattr(args, "observer_set", None) is None) + len(designs) * (2 + int(args.choices))
-                      + len(designs) + int(reference != "objects") + 1 + int(not args.no_report))
+                      + len(designs) + int(reference != SURFACES) + 1 + int(not args.no_report))
     observers = _observers(args)
     result = run_study(reference, designs, observers, stimuli, calibration_observer=args.calibration_observer,
                        strategy=args.strategy, age_bands=_age_bands(args), spec_texts=spec_texts(specs),
-                       progress=progress, extra_bases=[specs[d.name].get("extra_primary_base") for d in designs],
+                       progress=progress, extra_bases=[specs[d.name].get("extra_primary_added_to") for d in designs],
                        rank_calibration=args.choices, white_categories=WHITE_CATEGORIES if args.choices else 0,
                        seed=args.seed, intervals=args.intervals, resamples=args.resamples,
                        target_half_width=args.p95_half_width)
@@ -345,9 +382,10 @@ def cmd_sweep(args) -> int:
     args.observer_set = _observer_file(args)  # before any computing
     designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
     if args.reference is None and "reference" in spec:
-        args.reference = spec["reference"] if spec["reference"] == "objects" else str(relative(spec, spec["reference"]))
+        args.reference = (_spec_reference(spec["reference"], args.spec) if spec["reference"] in (SURFACES, OLD_SURFACES)
+                          else str(relative(spec, spec["reference"])))
     reference = _reference(args, {})
-    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     observers = _observers(args, numbered=False)  # the chunks are numbered
     line = args.progress
@@ -415,9 +453,14 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
         if "delta_e_2000_overall_interval" in result else None
     parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
 
-    def describe(index: int) -> str:
-        values = ", ".join(f"{c} {float(result[c].values[index]):g}" for c in parameters)
-        return f"design {result.design.values[index]} ({values})" if values else f"design {result.design.values[index]}"
+    from metasim.plots.sweep import parameter_text, parameter_value, sweep_parameters
+
+    varied = sweep_parameters(result)[0] or parameters
+
+    def describe(index: int) -> str:  # by its parameters; the index is the design's label in sweep.nc
+        values = ", ".join(f"{parameter_text(result, c)[0]} {parameter_value(result, c, index)}" for c in varied)
+        name = f"design {result.design.values[index]} in {SWEEP_FILE}"
+        return f"{values} ({name})" if values else name
 
     for rank, index in enumerate(np.argsort(p95.values, kind="stable")[:3], start=1):
         text = with_interval(p95.values[index], None if interval is None else interval.isel(design=index))
@@ -449,9 +492,10 @@ def cmd_search(args) -> int:
     space, settings = spec_search_space(spec)
     search = spec["search"]
     if args.reference is None and "reference" in spec:
-        args.reference = spec["reference"] if spec["reference"] == "objects" else str(relative(spec, spec["reference"]))
+        args.reference = (_spec_reference(spec["reference"], args.spec) if spec["reference"] in (SURFACES, OLD_SURFACES)
+                          else str(relative(spec, spec["reference"])))
     reference = _reference(args, {})
-    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == "objects" else "ramp:6,primaries,cube:3")
+    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
     stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
     generations = args.generations if args.generations is not None else search.get("generations", 20)
     line = args.progress
@@ -543,6 +587,27 @@ def _print_headline(result, target_half_width: float | None = None) -> None:
 
 # -- parser ------------------------------------------------------------------------------------------
 
+class OldSpelling(argparse.Action):
+    """An option's old spelling (:data:`RENAMED_OPTIONS`): does what the new one does and leaves a notice
+    naming it, which :func:`main` prints as a warning line."""
+
+    def __call__(self, parser, namespace, values, option_string=None):
+        setattr(namespace, self.dest, self.const if self.nargs == 0 else values)
+        namespace.notices = [*getattr(namespace, "notices", []), f"{option_string} is renamed "
+                             f"{RENAMED_OPTIONS[option_string]}; the old spelling works until the next release"]
+
+
+def renamed_values(args) -> list[str]:
+    """Old values of options (:data:`RENAMED_VALUES`) replaced by their new names; the notices."""
+    notices = []
+    for (option, old), new in RENAMED_VALUES.items():
+        dest = option.lstrip("-").replace("-", "_")
+        if getattr(args, dest, None) == old:
+            setattr(args, dest, new)
+            notices.append(f"{option} {old} is renamed {option} {new}; the old name works until the next release")
+    return notices
+
+
 class Parser(argparse.ArgumentParser):
     """argparse with usage errors on one line: ``metasim: error: ... (see 'metasim demo --help')``."""
 
@@ -551,13 +616,14 @@ class Parser(argparse.ArgumentParser):
 
 
 EXAMPLES = {
-    "demo": "example:\n  metasim demo --out metasim-demo\n  metasim demo --out quick-demo --size 200 --seed 5",
+    "demo": ("examples:\n  metasim demo --out metasim-demo\n  metasim demo --out quick-demo --size 200 --seed 5\n"
+             "  metasim demo --files examples   # the example specs and README.md (every file format), to edit"),
     "observers": ("examples:\n  metasim observers --out audience.nc --size 1000 --ages 20-70 --seed 7\n"
                   "  metasim observers --out groups.nc --size 2000 --ages 20-80 --categories 8 --report groups.html"),
-    "evaluate": ("examples:\n  metasim evaluate data/demo/projector_four_laser.toml --reference data/demo/grading_monitor.toml "
-                 "--out study-a\n  metasim evaluate my_oled.toml --observers audience.nc --stimuli cie13.3 --out oled-vs-objects"),
-    "compare": ("examples:\n  metasim compare data/demo/projector_four_laser.toml data/demo/projector_laser_phosphor.toml "
-                "--reference data/demo/grading_monitor.toml --out a-vs-b\n"
+    "evaluate": ("examples:\n  metasim evaluate examples/projector_four_laser.toml --reference examples/grading_monitor.toml "
+                 "--out study-a\n  metasim evaluate my_oled.toml --observers audience.nc --stimuli cie13.3 --out oled-vs-surfaces"),
+    "compare": ("examples:\n  metasim compare examples/projector_four_laser.toml examples/projector_laser_phosphor.toml "
+                "--reference examples/grading_monitor.toml --out a-vs-b\n"
                 "  metasim compare old_monitor.toml new_monitor.toml --size 300 --out upgrade   # second against first"),
     "estimate": ("examples:\n  metasim estimate matches.csv --primaries 645.16,526.32,444.44 --field-size 10 --out fit\n"
                  "  metasim estimate sessions.csv --references references.csv --display my_monitor.toml --out lab-fit\n"
@@ -572,21 +638,25 @@ EXAMPLES = {
                "  metasim tables audience.nc --xlsx audience.xlsx --no-csv\n"
                "one CSV file per table (one row per combination of its dims, a column per dim, coordinate and value;\n"
                "headers 'key [units]'); contents.csv lists every column with its long name and units"),
-    "search": ("examples:\n  metasim search data/demo/search_red_green.toml --out rg-search --size 100 --seed 7\n"
-               "  metasim search data/demo/search_red_green.toml --out rg-search --size 100 --seed 7  # again: resumes\n"
+    "search": ("examples:\n  metasim search examples/search_red_green.toml --out rg-search --size 100 --seed 7\n"
+               "  metasim search examples/search_red_green.toml --out rg-search --size 100 --seed 7  # again: resumes\n"
                "  metasim report rg-search/search.nc --out rg-search.html\n\n"
                "Each generation is one batched evaluation of all its designs, stored as a sweep store\n"
                "(STORE/generation-NNNNN); a re-run replays the finished generations from the store and continues."),
-    "sweep": ("examples:\n  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7\n"
-              "  metasim sweep data/demo/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
+    "sweep": ("examples:\n  metasim sweep examples/sweep_red_laser.toml --out red-sweep --size 300 --seed 7\n"
+              "  metasim sweep examples/sweep_red_laser.toml --out red-sweep --size 300 --seed 7   # again: resumes\n"
               "  metasim sweep my_grid.toml --out big-sweep --observers audience.nc --chunk-size 16 "
               "--scheduler tcp://10.0.0.5:8786\n"
               "the store folder holds manifest.json (with a checksum of every finished chunk), one chunk-NNNNN.nc per\n"
               "finished chunk, the combined sweep.nc and its report (report.html, figures/); a chunk file that does\n"
               "not match its checksum is renamed to chunk-NNNNN.nc.set-aside and computed again; writer.lock names\n"
               "the run writing the store;\n"
-              "the spec format is described in data/demo/README.md"),
+              "the spec format is described in README.md of 'metasim demo --files examples'"),
 }
+#: where the examples' spec files come from (a regular install has no data/ folder to point to)
+EXAMPLE_NOTE = "the example specs above: 'metasim demo --files examples' writes them, with README.md (every format)"
+for _name in ("evaluate", "compare", "sweep", "search"):
+    EXAMPLES[_name] += "\n" + EXAMPLE_NOTE
 
 
 REPLACE_HELP = {
@@ -650,12 +720,14 @@ def _population_options(parser, observers_file: bool = True) -> None:
                        help="allow ages and field sizes outside the CIE 170-1 range (the model is then extrapolated)")
 
 
-def _study_options(parser) -> None:
-    parser.add_argument("--out", default="metasim-study", help="output folder (default metasim-study)")
+def _study_options(parser, default_out: str) -> None:
+    parser.add_argument("--out", default=default_out, metavar="FOLDER",
+                        help=f"output FOLDER for study.nc, report.html and figures/ (default {default_out})")
     _population_options(parser)
     group = _matching_options(parser)
-    group.add_argument("--no-choices", dest="choices", action="store_false",
-                       help="skip the calibration-observer ranking and white-point offsets")
+    group.add_argument("--no-calibration-ranking", dest="choices", action="store_false",
+                       help="skip the ranking of calibration observers and the white-point trims per observer category")
+    group.add_argument("--no-choices", dest="choices", action=OldSpelling, nargs=0, const=False, help=argparse.SUPPRESS)
     group.add_argument("--no-report", action="store_true", help="write the result file only")
     _interval_options(parser)
 
@@ -675,17 +747,20 @@ def _interval_options(parser) -> None:
 def _matching_options(parser):
     group = parser.add_argument_group("stimuli and matching")
     group.add_argument("--stimuli", help="comma list of ramp[:N], primaries, cube[:N], cie13.3 or CSV files "
-                       "(default ramp:6,primaries,cube:3; cie13.3 for --reference objects)")
+                       "(default ramp:6,primaries,cube:3; cie13.3 for --reference surfaces)")
     # choice lists from the library's constants (LibraryChoices); a metavar keeps argparse from
     # reading them while it builds the parser
     group.add_argument("--csv-kind", choices=CSV_KINDS, default="rgb", metavar="KIND",
                        help="what stimulus CSV files hold: %(choices)s (default rgb)")
-    group.add_argument("--source", choices=SOURCES, default="bt709", metavar="SPACE",
-                       help="colour space of RGB stimuli: %(choices)s (default bt709)")
+    group.add_argument("--stimulus-space", dest="source", choices=SOURCES, default="bt709", metavar="SPACE",
+                       help="colour space the RGB stimuli are encoded in: %(choices)s (default bt709)")
+    group.add_argument("--source", dest="source", choices=SOURCES, action=OldSpelling, metavar="SPACE",
+                       help=argparse.SUPPRESS)
     group.add_argument("--calibration-observer", choices=CALIBRATION_OBSERVERS, default="cie1931_2", metavar="NAME",
                        help="observer both sides are matched for: %(choices)s (default cie1931_2)")
     group.add_argument("--strategy", choices=STRATEGIES, default="min_norm", metavar="NAME",
-                       help="drive strategy for more than 3 primaries: %(choices)s (default min_norm)")
+                       help="drive strategy for more than 3 primaries: %(choices)s (default min_norm; least_mismatch: "
+                            "the least mismatch over the observers)")
     group.add_argument("--age-bands", type=_edges, help="age band edges in years, e.g. 20,40,60,80 (default: decades)")
     group.add_argument("--allow-outside-grid", action="store_true",
                        help="accept primaries and measured spectra that lose more than 1 %% of their energy outside "
@@ -725,12 +800,16 @@ def build_parser() -> argparse.ArgumentParser:
         return p
 
     p = add("demo", "run the embedded demo study end to end (figures, result file, HTML report)", cmd_demo)
-    p.add_argument("--out", default="metasim-demo", help="output folder (default metasim-demo)")
+    p.add_argument("--out", default="metasim-demo", metavar="FOLDER",
+                   help="output FOLDER for study.nc, report.html and figures/ (default metasim-demo)")
     p.add_argument("--size", type=_whole(1), default=1000, help="audience size (default 1000)")
     p.add_argument("--seed", type=_whole(0), default=2024, help="random seed of the audience (default 2024)")
+    p.add_argument("--files", metavar="FOLDER", help="write the example specs, their data files and README.md (the "
+                   "format of every spec and input file) into FOLDER for editing, and stop: no study is run")
 
     p = add("observers", "build a seeded observer population (or its categories) to a netCDF file", cmd_observers)
-    p.add_argument("--out", required=True, help="netCDF file to write (.nc)")
+    p.add_argument("--out", required=True, metavar="FILE.nc", help="the FILE (not a folder) to write the observers "
+                   "to, ending in .nc")
     _population_options(p, observers_file=False)
     p.add_argument("--categories", type=_whole(1), metavar="K",
                    help="write K representative observer categories instead (K >= 1)")
@@ -739,22 +818,23 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("evaluate", "evaluate one display design: gamut, extra-primary gain, mismatch against a reference",
             cmd_evaluate)
     p.add_argument("design", help="design spec (TOML)")
-    p.add_argument("--reference", help="reference display spec (TOML), or 'objects' for the stimuli as real "
-                   "surfaces under their illuminant (default objects)")
-    _study_options(p)
+    p.add_argument("--reference", help="reference display spec (TOML), or 'surfaces' for the stimuli as real "
+                   "surfaces under their illuminant (default surfaces)")
+    _study_options(p, "metasim-evaluate")
 
     p = add("compare", "compare two display designs: both against --reference, or the second against the first",
             cmd_compare)
     p.add_argument("first", help="first design spec (TOML); the reference when --reference is not given")
     p.add_argument("second", help="second design spec (TOML)")
-    p.add_argument("--reference", help="reference display spec (TOML) or 'objects'")
-    _study_options(p)
+    p.add_argument("--reference", help="reference display spec (TOML) or 'surfaces' (the stimuli as real surfaces)")
+    _study_options(p, "metasim-compare")
 
     p = add("sweep", "evaluate a grid of candidate designs (a sweep spec) in chunks; resumable", cmd_sweep)
     p.add_argument("spec", help="sweep spec (TOML): the designs to vary and, optionally, reference and stimuli")
-    p.add_argument("--out", required=True, metavar="STORE", help="store folder (chunk files, manifest, sweep.nc); "
+    p.add_argument("--out", required=True, metavar="STORE", help="store FOLDER (chunk files, manifest, sweep.nc, "
+                   "report.html, figures/); "
                    "an existing store of the same sweep resumes")
-    p.add_argument("--reference", help="reference display spec (TOML) or 'objects' (default: the spec's, else objects)")
+    p.add_argument("--reference", help="reference display spec (TOML) or 'surfaces' (default: the spec's, else surfaces)")
     p.add_argument("--chunk-size", type=_whole(1), metavar="N",
                    help="designs per chunk (default: the spec's, else automatic)")
     p.add_argument("--scheduler", default="threads", help="serial, threads (default), dask-threads, or a dask "
@@ -776,9 +856,9 @@ def build_parser() -> argparse.ArgumentParser:
     p = add("search", "search for the best design (a search spec) by differential evolution; resumable", cmd_search)
     p.add_argument("spec", help="search spec (TOML): the primaries' ranges, objective, constraints; optionally "
                    "reference and stimuli")
-    p.add_argument("--out", required=True, metavar="STORE", help="store folder (one sweep store per generation, "
+    p.add_argument("--out", required=True, metavar="STORE", help="store FOLDER (one sweep store per generation, "
                    "search.json, search.nc); an existing store of the same search resumes")
-    p.add_argument("--reference", help="reference display spec (TOML) or 'objects' (default: the spec's, else objects)")
+    p.add_argument("--reference", help="reference display spec (TOML) or 'surfaces' (default: the spec's, else surfaces)")
     p.add_argument("--generations", type=int, metavar="N", help="generations after the first (default: the spec's, "
                    "else 20); more than a finished search had continues it")
     p.add_argument("--search-seed", type=int, metavar="N", help="seed of the search (default: the spec's, else 0)")
@@ -796,7 +876,8 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = add("estimate", "estimate individual observers from colour-matching data, with uncertainties", cmd_estimate)
     p.add_argument("data", help="matching data: CSV (either layout, see below) or netCDF (.nc)")
-    p.add_argument("--out", default="metasim-fit", help="output folder (default metasim-fit)")
+    p.add_argument("--out", default="metasim-fit", metavar="FOLDER",
+                   help="output FOLDER for fit.nc and report.html (default metasim-fit)")
     p.add_argument("--primaries", help="colour-matching functions: three primary wavelengths in nm, comma-separated, "
                    "or a spectra CSV (default: the file's '# primary_wavelengths_nm:' comment)")
     p.add_argument("--references", metavar="SPECTRA.csv", help="matching sessions: reference spectra, one column per stimulus")
@@ -818,14 +899,15 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = add("report", "write an HTML report (figures embedded) from a metasim result file", cmd_report)
     p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc) or an observer file")
-    p.add_argument("--out", help="HTML file to write (default: the result name with .html)")
+    p.add_argument("--out", metavar="FILE.html", help="the HTML FILE (not a folder) to write (default: the result "
+                   "file's name with .html)")
     p.add_argument("--figures", metavar="DIR", help="also write each figure as a PNG file into DIR")
 
     p = add("tables", "write the summary tables of a result file as CSV files (tidy, units in the header) "
             "and, optionally, one .xlsx workbook", cmd_tables)
     p.add_argument("result", help="result file (.nc): a study, a mismatch result, a sweep (STORE/sweep.nc, or the "
                    "STORE folder) or an observer file")
-    p.add_argument("--out", metavar="FOLDER", help="folder for the CSV files (default: RESULT-tables beside the result)")
+    p.add_argument("--out", metavar="FOLDER", help="FOLDER for the CSV files (default: RESULT-tables beside the result)")
     p.add_argument("--xlsx", metavar="FILE.xlsx", help="also write every table into one workbook (needs the "
                    "spreadsheet extra: pip install \"metasim[spreadsheet]\")")
     p.add_argument("--no-csv", action="store_true", help="write the workbook only")
@@ -856,6 +938,8 @@ def main(argv=None) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     args.quiet = bool(getattr(args, "quiet", False))
+    for notice in [*getattr(args, "notices", []), *renamed_values(args)]:
+        print(f"{PROG}: warning: {notice}", file=sys.stderr)
     args.progress = Progress(quiet=args.quiet)  # progress lines on stderr (metasim.progress); --quiet silences
     keep_freed_memory()  # many studies in one process: reuse freed memory (metasim._memory)
     try:

@@ -53,7 +53,7 @@ def run_demo(out, *, size: int = 1000, seed: int = 2024, quiet: bool = False, re
     progress.step(f"audience: {size} observers aged {range_text(AUDIENCE_AGES)}, seed {seed}")
     stimuli = build_stimuli(STIMULI.format(csv=DEMO_DIR / "stimuli.csv"))
     result = run_study(reference, designs, observers, stimuli, spec_texts=spec_texts(specs), progress=progress, seed=seed,
-                       extra_bases=[specs[d.name].get("extra_primary_base") for d in designs])
+                       extra_bases=[specs[d.name].get("extra_primary_added_to") for d in designs])
     result.attrs["title"] = "Kestrel Lane Post: screening-room projector candidates against the grading monitor"
     result.attrs["scenario"] = ("invented demo: a post-production house weighs two projector designs against its "
                                 "broadband grading monitor for audiences aged 20-70")

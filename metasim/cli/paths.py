@@ -21,6 +21,8 @@ from pathlib import Path
 from metasim.errors import FileFormatError, OptionError, SpecError
 from metasim.io import check_outputs, read_text_file
 
+#: the reference that is the stimuli as real surfaces, and its old name (accepted for one release)
+SURFACE_NAMES = ("surfaces", "objects")
 RESULT_FILE = "study.nc"
 FIT_FILE = "fit.nc"
 REPORT_FILE = "report.html"
@@ -115,7 +117,7 @@ def _sweep_inputs(args) -> list[Path]:
     inputs = [Path(args.spec)]
     for key in ("base", "reference"):
         value = spec.get(key)
-        if key == "reference" and (args.reference is not None or value == "objects"):
+        if key == "reference" and (args.reference is not None or value in SURFACE_NAMES):
             continue
         if isinstance(value, str) and value:
             path = relative_to(args.spec, value)
@@ -132,7 +134,7 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
     inputs, outputs = [], []
     if command in ("evaluate", "compare"):
         specs = [args.design] if command == "evaluate" else [args.first, args.second]
-        if args.reference not in (None, "objects"):
+        if args.reference not in (None, *SURFACE_NAMES):
             specs.append(args.reference)
         check_inputs(specs)
         for spec in specs:
@@ -140,7 +142,7 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
     elif command in ("sweep", "search"):
         check_inputs([args.spec])
         inputs += _sweep_inputs(args)
-        if args.reference not in (None, "objects"):
+        if args.reference not in (None, *SURFACE_NAMES):
             check_inputs([args.reference])
             inputs += design_spec_inputs(args.reference)
     elif command == "report":
@@ -159,7 +161,13 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
         if args.observers:
             inputs.append(Path(args.observers))
     check_inputs(inputs)
-    if command in ("demo", "evaluate", "compare"):
+    if command == "demo" and getattr(args, "files", None):  # the example files, copied out for editing
+        folder = Path(args.files)
+        if folder.exists() and not folder.is_dir():
+            raise FileFormatError(f"--files {folder}: is a file; give a folder for the example specs")
+        inputs += example_files()
+        outputs += [folder / path.name for path in example_files()]
+    elif command in ("demo", "evaluate", "compare"):
         out = Path(args.out)
         if out.exists() and not out.is_dir():
             raise FileFormatError(f"--out {out}: is a file; give a folder for the result, report and figures")
@@ -178,6 +186,15 @@ def command_files(args) -> tuple[list[Path], list[Path]]:
     elif command == "tables" and args.xlsx:  # the CSV names follow the file's tables: checked by the command
         outputs.append(Path(args.xlsx))
     return inputs, outputs
+
+
+def example_files() -> list[Path]:
+    """The demo's example files a user may copy out and edit (``metasim demo --files DIR``): the design,
+    sweep and search specs, their data files and README.md, which describes every spec format."""
+    from metasim._paths import data_dir
+
+    folder = data_dir() / "demo"
+    return sorted(p for p in folder.iterdir() if p.is_file() and p.suffix.lower() in (".toml", ".csv", ".md"))
 
 
 def _table_source(result) -> Path:
@@ -210,4 +227,4 @@ def check_command_files(args) -> None:
 
 __all__ = ["SpecError", "parse_range", "range_text", "RESULT_FILE", "FIT_FILE", "REPORT_FILE", "FIGURES_DIR",
            "STORE_FILES", "read_toml", "relative_to", "spec_files", "design_spec_inputs", "stimulus_files", "check_inputs",
-           "command_files", "check_command_files"]
+           "command_files", "check_command_files", "example_files"]

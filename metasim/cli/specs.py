@@ -11,34 +11,40 @@ Format (TOML, read with Python's ``tomllib``; every key but ``[[primary]]`` is o
     white = "D65"                # D65 | D50 | DCI | E, or [x, y] in CIE 1931 xy (default D65)
     calibration_observer = "cie1931_2"   # observer the white is set for: cie1931_2 | cie1964_10 |
                                          # cie2015_2 | cie2015_10               (default cie1931_2)
-    extra_primary_base = ["R", "G", "B"] # primaries the extra-primary gain starts from
-                                         # (default: all of them, i.e. "what would one more add")
+    extra_primary_added_to = ["R", "G", "B"] # the primaries one extra primary is added to in the
+                                             # extra-primary gain (default: all of them)
 
-    [backlight]                  # only for primaries of type "filter"
-    type = "phosphor_white_led"  # or "measured" with file = "...", column = "..."
-    pump_peak_nm = 450           # any keyword of metasim.emitters.phosphor_white_led
+    [backlight]                  # only for primaries of kind "filter"
+    kind = "phosphor_white_led"  # or "measured" with file = "...", column = "..."
+    pump_peak_nm = 450           # pump_half_spectral_width_nm, phosphor_peak_nm, phosphor_fwhm_nm,
+    phosphor_pump_ratio = 4.0    # phosphor power / pump power (metasim.emitters.phosphor_white_led)
 
     [[primary]]                  # one table per primary, at least 3, in any order
     label = "G"                  # unique label
-    type = "laser"               # see PRIMARY_TYPES below
+    kind = "laser"               # see PRIMARY_TYPES below
     peak_nm = 532
     linewidth_nm = 1.0
-    radiance = 1.0               # relative power before calibration (optional; matters for N > 3)
+    relative_power = 1.0         # relative power before calibration (optional; matters for N > 3)
 
-Primary types and their keys (each maps to one :mod:`metasim.emitters` function):
+Old key names (``type``, ``radiance``, a filter's ``width_nm``, ``phosphor_to_pump``,
+``extra_primary_base``) still work for one release, with a warning naming the new one
+(:data:`RENAMED_KEYS`).
+
+Primary kinds and their keys (each maps to one :mod:`metasim.emitters` function):
 
 ==============  ===============================================================================
 ``laser``        ``peak_nm``, ``linewidth_nm`` (FWHM, default 0.1), ``profile`` (gaussian|lorentzian)
 ``gaussian``     ``peak_nm``, ``fwhm_nm``
 ``led``          ``peak_nm``, ``half_spectral_width_nm``, ``long_side_half_spectral_width_nm``
 ``quantum_dot``  ``peak_nm``, ``fwhm_nm``
-``filter``       the ``[backlight]`` × a band-pass filter: ``centre_nm``, ``width_nm``, ``edge_nm``,
+``filter``       the ``[backlight]`` × a band-pass filter: ``centre_nm``, ``passband_nm`` (the full
+                 width between the 50 % points), ``edge_nm``,
                  ``peak_transmittance``, ``floor_transmittance``
 ``measured``     ``file`` (CSV with a ``wavelength_nm`` column; a path relative to the spec file),
                  ``column`` (default: the label)
 ==============  ===============================================================================
 
-Every primary also takes ``radiance``. Spectra are built on the default grid (390-830 nm, 1 nm).
+Every primary also takes ``relative_power``. Spectra are built on the default grid (390-830 nm, 1 nm).
 The display is then white-calibrated (:func:`metasim.display.calibrate_white`) to ``white`` and
 ``peak_luminance`` for ``calibration_observer``.
 """
@@ -53,32 +59,71 @@ from metasim.checks import known_keys, number
 from metasim.cli.paths import read_toml
 from metasim.display import WHITE_POINTS, Display, calibrate_white, make_display
 from metasim.display.transfer import DEFAULT_PEAK_LUMINANCE, TRANSFER_FUNCTIONS
-from metasim.errors import MetasimError, SpecError
+from metasim.errors import MetasimError, RenamedWarning, SpecError
 from metasim.observers import STANDARD_OBSERVERS
 from metasim.spectra import default_grid
 
 
 TOP_KEYS = ("name", "description", "transfer", "gamma", "peak_luminance", "black_luminance", "white",
-            "calibration_observer", "extra_primary_base", "backlight", "primary")
+            "calibration_observer", "extra_primary_added_to", "backlight", "primary")
 PRIMARY_TYPES = {
     "laser": ("peak_nm", "linewidth_nm", "profile"),
     "gaussian": ("peak_nm", "fwhm_nm"),
     "led": ("peak_nm", "half_spectral_width_nm", "long_side_half_spectral_width_nm"),
     "quantum_dot": ("peak_nm", "fwhm_nm"),
-    "filter": ("centre_nm", "width_nm", "edge_nm", "peak_transmittance", "floor_transmittance"),
+    "filter": ("centre_nm", "passband_nm", "edge_nm", "peak_transmittance", "floor_transmittance"),
     "measured": ("file", "column"),
 }
 REQUIRED = {"laser": ("peak_nm",), "gaussian": ("peak_nm", "fwhm_nm"),
             "led": ("peak_nm", "half_spectral_width_nm"), "quantum_dot": ("peak_nm", "fwhm_nm"),
-            "filter": ("centre_nm", "width_nm"), "measured": ("file",)}
+            "filter": ("centre_nm", "passband_nm"), "measured": ("file",)}
 BACKLIGHT_KEYS = ("pump_peak_nm", "pump_half_spectral_width_nm", "phosphor_peak_nm", "phosphor_fwhm_nm",
-                  "phosphor_to_pump")
-COMMON_KEYS = ("label", "type", "radiance")
+                  "phosphor_pump_ratio")
+#: spec keys to the keywords of metasim.emitters.phosphor_white_led
+BACKLIGHT_KEYWORDS = {"phosphor_pump_ratio": "phosphor_to_pump"}
+COMMON_KEYS = ("label", "kind", "relative_power")
+#: old key names, still read for one release (with a RenamedWarning): table → {old: new}
+RENAMED_KEYS = {
+    "top": {"extra_primary_base": "extra_primary_added_to"},
+    "primary": {"type": "kind", "radiance": "relative_power"},
+    "filter": {"width_nm": "passband_nm"},
+    "backlight": {"type": "kind", "phosphor_to_pump": "phosphor_pump_ratio"},
+}
+
+
+def renamed_keys(table: dict, renames: dict, where: str) -> dict:
+    """``table`` with its old key names (``renames``: old → new) replaced by the new ones, each with a
+    :class:`~metasim.errors.RenamedWarning`; both spellings of one key at once are a SpecError."""
+    for old, new in renames.items():
+        if old not in table:
+            continue
+        if new in table:
+            raise SpecError(f"{where}: both {old!r} and {new!r} given; {old!r} is the old name of {new!r}, keep one")
+        table[new] = table.pop(old)
+        warnings.warn(f"{where}: key {old!r} is renamed {new!r}; the old name works until the next release",
+                      RenamedWarning, stacklevel=3)
+    return table
+
+
+def modernised(spec: dict) -> dict:
+    """A parsed design spec with every old key name replaced (:data:`RENAMED_KEYS`)."""
+    where = str(spec.get("_path", "spec"))
+    renamed_keys(spec, RENAMED_KEYS["top"], where)
+    if isinstance(spec.get("backlight"), dict):
+        renamed_keys(spec["backlight"], RENAMED_KEYS["backlight"], f"{where} [backlight]")
+    for i, table in enumerate(spec.get("primary") if isinstance(spec.get("primary"), list) else []):
+        if isinstance(table, dict):
+            inside = f"{where} [[primary]] {table.get('label', i + 1)!r}"
+            renamed_keys(table, RENAMED_KEYS["primary"], inside)
+            if table.get("kind") == "filter":
+                renamed_keys(table, RENAMED_KEYS["filter"], inside)
+    return spec
 
 
 def read_spec(path) -> dict:
-    """The parsed TOML of a spec file, with ``_path`` (the file) and ``_text`` (its text) added."""
-    return read_toml(path, "design spec")
+    """The parsed TOML of a spec file, with ``_path`` (the file) and ``_text`` (its text) added, old key
+    names replaced by the new ones (:func:`modernised`)."""
+    return modernised(read_toml(path, "design spec"))
 
 
 def _allowed(spec: dict) -> bool:
@@ -93,18 +138,19 @@ def _number(where: str, key: str, value, *, positive: bool = True) -> float:
 def _backlight(spec: dict, where: str, grid):
     table = spec.get("backlight")
     if not isinstance(table, dict):
-        raise SpecError(f"{where}: primaries of type 'filter' need a [backlight] table")
-    kind = table.get("type", "phosphor_white_led")
+        raise SpecError(f"{where}: primaries of kind 'filter' need a [backlight] table")
+    kind = table.get("kind", "phosphor_white_led")
     if kind == "phosphor_white_led":
-        known_keys(table, ("type", *BACKLIGHT_KEYS), f"{where} [backlight]", error=SpecError)
-        params = {k: _number(f"{where} [backlight]", k, v) for k, v in table.items() if k != "type"}
+        known_keys(table, ("kind", *BACKLIGHT_KEYS), f"{where} [backlight]", error=SpecError)
+        params = {BACKLIGHT_KEYWORDS.get(k, k): _number(f"{where} [backlight]", k, v) for k, v in table.items()
+                  if k != "kind"}
         return emitters.phosphor_white_led(grid, **params, allow_outside_grid=_allowed(spec))
     if kind == "measured":
-        known_keys(table, ("type", "file", "column"), f"{where} [backlight]", error=SpecError)
+        known_keys(table, ("kind", "file", "column"), f"{where} [backlight]", error=SpecError)
         spectra = _measured(spec, f"{where} [backlight]", table, grid)
         column = table.get("column", str(spectra.primary.values[0]))
         return _column(spectra, column, f"{where} [backlight]")
-    raise SpecError(f"{where} [backlight]: type {kind!r} is not known; allowed: phosphor_white_led, measured")
+    raise SpecError(f"{where} [backlight]: kind {kind!r} is not known; allowed: phosphor_white_led, measured")
 
 
 def _measured(spec: dict, where: str, table: dict, grid):
@@ -133,14 +179,14 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
     if not isinstance(label, str) or not label:
         raise SpecError(f"{where}: 'label' must be a non-empty string")
     where = f"{spec['_path']}: primary {label!r}"
-    kind = table.get("type")
+    kind = table.get("kind")
     if kind not in PRIMARY_TYPES:
-        raise SpecError(f"{where}: type {kind!r} is not known; allowed: {', '.join(PRIMARY_TYPES)}")
+        raise SpecError(f"{where}: kind {kind!r} is not known; allowed: {', '.join(PRIMARY_TYPES)}")
     known_keys(table, (*COMMON_KEYS, *PRIMARY_TYPES[kind]), f"{where} ({kind})", error=SpecError)
     missing = [k for k in REQUIRED[kind] if k not in table]
     if missing:
         raise SpecError(f"{where} ({kind}): missing key {missing[0]!r}")
-    radiance = _number(where, "radiance", table.get("radiance", 1.0))
+    radiance = _number(where, "relative_power", table.get("relative_power", 1.0))
     params = {k: v for k, v in table.items() if k not in COMMON_KEYS}
     if kind == "measured":
         spectra = _measured(spec, where, table, grid)
@@ -148,7 +194,7 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
         out.attrs = dict(spectra.attrs)
     elif kind == "filter":
         numbers = {k: _number(where, k, v, positive=k not in ("floor_transmittance",)) for k, v in params.items()}
-        filters = emitters.band_pass_filter(numbers.pop("centre_nm"), numbers.pop("width_nm"), grid, name=label,
+        filters = emitters.band_pass_filter(numbers.pop("centre_nm"), numbers.pop("passband_nm"), grid, name=label,
                                             **numbers)
         out = emitters.filtered_primaries(_backlight(spec, where, grid), filters).isel(primary=0) * radiance
     else:
@@ -190,9 +236,9 @@ def spec_settings(spec: dict) -> dict:
     name = spec.get("name", Path(where).stem)
     if not isinstance(name, str) or not name:
         raise SpecError(f"{where}: name must be a non-empty string")
-    base = spec.get("extra_primary_base")
+    base = spec.get("extra_primary_added_to")
     if base is not None and (not isinstance(base, list) or not all(isinstance(b, str) for b in base)):
-        raise SpecError(f"{where}: extra_primary_base must be a list of primary labels")
+        raise SpecError(f"{where}: extra_primary_added_to must be a list of primary labels")
     return {
         "name": name,
         "description": str(spec.get("description", "")),
@@ -223,7 +269,7 @@ def display_from_spec(spec: dict) -> Display:
     if base is not None:
         unknown = [b for b in base if b not in labels]
         if unknown or len(base) < 3:
-            raise SpecError(f"{where}: extra_primary_base {base} must name at least 3 of the primaries {labels}")
+            raise SpecError(f"{where}: extra_primary_added_to {base} must name at least 3 of the primaries {labels}")
     spectra = emitters.stack_primaries(*parts)
     display = make_display(spectra, transfer=settings["transfer"], gamma=settings["gamma"],
                            peak_luminance=settings["peak_luminance"], black_luminance=settings["black_luminance"],
@@ -257,4 +303,5 @@ def load_display(path, *, allow_outside_grid: bool = False) -> tuple[Display, di
         raise SpecError(f"{path}: cannot build the display ({type(exc).__name__}: {exc})") from None
 
 
-__all__ = ["SpecError", "PRIMARY_TYPES", "read_spec", "spec_settings", "display_from_spec", "load_display"]
+__all__ = ["SpecError", "PRIMARY_TYPES", "RENAMED_KEYS", "renamed_keys", "modernised", "read_spec", "spec_settings",
+           "display_from_spec", "load_display"]

@@ -1,15 +1,15 @@
 """Sweep specs: a small TOML file that describes a grid of candidate designs, for ``metasim sweep``.
 
 Format (TOML; paths are relative to the spec file; only ``[vary]`` and ``[vary.peaks_nm]`` are
-required)::
+required; the old names ``width_nm`` and ``radiance`` of ``[vary]`` still work for one release)::
 
     name = "Red laser of candidate A"      # label kept in the result
     description = "free text, kept in the result"
     base = "projector_four_laser.toml"     # display spec: its other primaries and its settings stay
-    reference = "grading_monitor.toml"     # display spec, or "objects"            (default objects)
+    reference = "grading_monitor.toml"     # display spec, or "surfaces"           (default surfaces)
     stimuli = "ramp:6,primaries,cube:3"    # the --stimuli list                    (default as --stimuli)
     calibration_observer = "cie1931_2"     # cie1931_2 | cie1964_10 | cie2015_2 | cie2015_10 | population_mean
-    strategy = "min_norm"                  # min_norm | max_efficiency | population
+    strategy = "min_norm"                  # min_norm | max_efficiency | least_mismatch
     chunk_size = 4                         # designs per chunk                     (default: automatic)
     lab_volume = false                     # also the CIELAB volume of every design (slower)
     per_stimulus = false                   # also every stimulus's statistics, per design
@@ -21,9 +21,9 @@ required)::
 
     [vary]
     kind = "laser"                         # laser | gaussian | quantum_dot
-    width_nm = [1.0, 2.0]                  # line width (laser) or FWHM, shared by the varied primaries;
-                                           # or a table with one list per primary: {R = [1, 2], G = [1]}
-    radiance = 1.0                         # integrated radiance before calibration (matters for N > 3)
+    fwhm_nm = [1.0, 2.0]                   # full width at half maximum (a laser's line width), shared by
+                                           # the varied primaries; or one list per primary: {R = [1, 2]}
+    relative_power = 1.0                   # relative power before calibration (matters for N > 3)
     profile = "gaussian"                   # laser line shape: gaussian | lorentzian
 
     [vary.peaks_nm]                        # one entry per varied primary label
@@ -43,13 +43,15 @@ import numpy as np
 
 from metasim.checks import known_keys, whole_number
 from metasim.cli.paths import read_toml, relative_to
-from metasim.cli.specs import load_display, spec_settings
+from metasim.cli.specs import load_display, renamed_keys, spec_settings
 from metasim.errors import MetasimError, SpecError
 from metasim.sweep import GRID_KINDS, design_grid
 
 TOP_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy",
             "chunk_size", "lab_volume", "per_stimulus", "display", "vary")
-VARY_KEYS = ("kind", "peaks_nm", "width_nm", "radiance", "profile")
+VARY_KEYS = ("kind", "peaks_nm", "fwhm_nm", "relative_power", "profile")
+#: old key names of [vary], still read for one release (with a RenamedWarning)
+RENAMED_VARY_KEYS = {"width_nm": "fwhm_nm", "radiance": "relative_power"}
 #: keys of sweep and search specs whose values are text
 TEXT_KEYS = ("name", "description", "base", "reference", "stimuli", "calibration_observer", "strategy")
 DISPLAY_KEYS = ("transfer", "gamma", "peak_luminance", "black_luminance", "white", "calibration_observer")
@@ -81,7 +83,7 @@ def value_list(where: str, value) -> list[float]:
 def read_sweep_spec(path) -> dict:
     """The parsed sweep spec (``_path``, ``_text`` added), its keys and value types checked."""
     spec, where, vary = read_spec_table(path, "sweep spec", TOP_KEYS, "vary", VARY_KEYS,
-                                        "a sweep spec needs a [vary] table with [vary.peaks_nm]")
+                                        "a sweep spec needs a [vary] table with [vary.peaks_nm]", RENAMED_VARY_KEYS)
     peaks = vary.get("peaks_nm")
     if not isinstance(peaks, dict) or not peaks:
         raise SpecError(f"{where}: [vary.peaks_nm] must give at least one primary label, e.g. R = [620, 640]")
@@ -94,16 +96,19 @@ def read_sweep_spec(path) -> dict:
     return spec
 
 
-def read_spec_table(path, what: str, top_keys, table: str, table_keys, missing: str) -> tuple[dict, str, dict]:
+def read_spec_table(path, what: str, top_keys, table: str, table_keys, missing: str,
+                    renames: dict | None = None) -> tuple[dict, str, dict]:
     """A sweep or search spec read (:func:`~metasim.cli.paths.read_toml`) with its top-level keys
     checked, and its main table (``[vary]`` or ``[search]``): present (else ``missing`` is the
-    message), known keys, a known design ``kind``. Returns the spec, its path as text and the table."""
+    message), old key names replaced (``renames``: old → new, with a warning), known keys, a known
+    design ``kind``. Returns the spec, its path as text and the table."""
     spec = read_toml(path, what)
     where = str(spec["_path"])
     known_keys(spec, top_keys, where, error=SpecError)
     body = spec.get(table)
     if not isinstance(body, dict):
         raise SpecError(f"{where}: {missing}")
+    renamed_keys(body, renames or {}, f"{where} [{table}]")
     known_keys(body, table_keys, f"{where} [{table}]", error=SpecError)
     kind = body.get("kind", "laser")
     if kind not in GRID_KINDS:
@@ -143,17 +148,17 @@ def sweep_designs(spec: dict, *, allow_outside_grid: bool = False):
     where = str(spec["_path"])
     vary = spec["vary"]
     peaks = {str(label): value_list(f"{where} [vary.peaks_nm] {label}", v) for label, v in vary["peaks_nm"].items()}
-    width = vary.get("width_nm", 1.0)
+    width = vary.get("fwhm_nm", 1.0)
     if isinstance(width, dict):
-        width = {str(label): value_list(f"{where} [vary] width_nm.{label}", v) for label, v in width.items()}
+        width = {str(label): value_list(f"{where} [vary] fwhm_nm.{label}", v) for label, v in width.items()}
     else:
-        width = value_list(f"{where} [vary] width_nm", width)
+        width = value_list(f"{where} [vary] fwhm_nm", width)
     base, base_spec = None, None
     if "base" in spec:
         base, base_spec = load_display(relative(spec, spec["base"]), allow_outside_grid=allow_outside_grid)
-    radiance = vary.get("radiance", 1.0)
+    radiance = vary.get("relative_power", 1.0)
     if isinstance(radiance, bool) or not isinstance(radiance, (int, float)) or radiance <= 0:
-        raise SpecError(f"{where} [vary]: radiance = {radiance!r} is not allowed; need a number > 0")
+        raise SpecError(f"{where} [vary]: relative_power = {radiance!r} is not allowed; need a number > 0")
     try:
         designs = design_grid(vary.get("kind", "laser"), peaks, width, base=base, radiance=float(radiance),
                               profile=vary.get("profile", "gaussian"), allow_outside_grid=allow_outside_grid)

@@ -54,9 +54,12 @@ from metasim.display._kernels.clip import clip_rows
 from metasim.display.solvers import equality_box_qp
 from metasim.display.sources import rgb_to_xyz, source_light
 from metasim.display.transfer import check_transfer, eotf_inverse_values
+from metasim.checks import current_spelling
 from metasim.units import DELTA_E00
 
-STRATEGIES = ("min_norm", "max_efficiency", "population")
+STRATEGIES = ("min_norm", "max_efficiency", "least_mismatch")
+#: old names of strategies, still accepted for one release (metasim.checks.current_spelling)
+RENAMED_STRATEGIES = {"population": "least_mismatch"}
 _TIE_BREAK = 1e-6
 _CLIP_WEIGHT = 1e-6
 _FEASIBILITY = 1e-9
@@ -139,7 +142,7 @@ def _population_objective(display, population, reference, reference_white, rgb_a
     if "observer" not in pop.dims:
         pop = pop.expand_dims(observer=[0])
     if reference is None:
-        raise DisplayError("strategy='population' needs reference=... (a reference Display or reference spectra)")
+        raise DisplayError("strategy='least_mismatch' needs reference=... (a reference Display or reference spectra)")
     if isinstance(reference, Display):
         if reference.batch_dims and set(reference.batch_dims) - set(batch):
             raise DisplayError(f"the reference display varies along {reference.batch_dims}; the test display along {batch}")
@@ -194,10 +197,12 @@ def solve_drive(display: Display, target: xr.DataArray | None = None, **options)
         to the display white, HLG uses the display's peak luminance.
     observer : str or Dataset, optional
         The calibration observer (default: the one the display was calibrated for).
-    strategy : {"min_norm", "max_efficiency", "population"}
+    strategy : {"min_norm", "max_efficiency", "least_mismatch"}
         How to use the freedom of N > 3 primaries (module docstring).
     population : Dataset, optional
-        Observer population (``cmf`` with an ``observer`` dim) for ``strategy="population"``.
+        Observer population (``cmf`` with an ``observer`` dim) for ``strategy="least_mismatch"`` (the
+        least linearised mismatch over the population; its old name ``"population"`` still works for
+        one release).
     reference : Display or DataArray, optional
         The reference rendering for ``population``: a Display (driven for the same targets, its
         own strategy ``min_norm``) or reference spectra (stimulus dims × ``wavelength``).
@@ -250,6 +255,7 @@ def drive_solution(
     is built only when asked for."""
     if not isinstance(display, Display):
         raise DisplayError(f"solve_drive needs a Display, got {type(display).__name__}")
+    strategy = current_spelling(strategy, RENAMED_STRATEGIES, "strategy", stacklevel=4)
     if strategy not in STRATEGIES:
         raise DisplayError(f"strategy={strategy!r} is not known; allowed: {', '.join(STRATEGIES)}")
     obs, obs_name = _calibration_observer(display, observer)

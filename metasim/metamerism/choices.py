@@ -148,8 +148,8 @@ def white_point_offsets(
 
     Parameters
     ----------
-    reference : Display, "objects" or illuminant spectrum
-        As for :func:`metasim.mismatch` (``"objects"`` needs ``stimuli`` with reflectances).
+    reference : Display, "surfaces" or illuminant spectrum
+        As for :func:`metasim.mismatch` (``"surfaces"`` needs ``stimuli`` with reflectances).
     test : Display
     categories : Dataset
         Observers with an ``observer`` dim (e.g. :func:`metasim.observer_categories`, whose

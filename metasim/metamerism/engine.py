@@ -2,7 +2,7 @@
 
 Procedure (all observers and stimuli at once; no Python loop over either):
 
-1. **Reference rendering.** A reference :class:`~metasim.display.Display`, or real objects
+1. **Reference rendering.** A reference :class:`~metasim.display.Display`, or real surfaces
    (reflectances × an illuminant scaled so that a perfect white diffuser has the stated luminance).
 2. **White match.** With ``match_white=True`` (default) the test display's white is calibrated to
    the reference white *as the calibration observer sees it* (chromaticity and luminance) — the way a
@@ -54,8 +54,14 @@ from metasim.observers.convert import as_observer, is_colour_observer
 from metasim.spectra import RADIANCE_UNITS, require_same_grid
 from metasim.spectra.convert import as_spectra, is_colour_object, is_colour_spectrum
 from metasim.units import DELTA_E00, DELTA_E_ITP
+from metasim.checks import current_spelling
+from metasim.display.drive import RENAMED_STRATEGIES
 
 ADAPTED_WHITES = ("reference", "test")
+#: the reference that is the stimuli themselves, as real surfaces under their own illuminant
+SURFACES = "surfaces"
+#: old names of references, still accepted for one release
+RENAMED_REFERENCES = {"objects": SURFACES}
 #: Peak memory of mismatch() per observer x stimulus x design pair: about 16 float64 measured
 #: (both sides' XYZ and CIELAB, differences, index, summaries), 20 allowed.
 MISMATCH_BYTES_PER_PAIR = 20 * 8
@@ -139,7 +145,9 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
 def resolve_reference(reference, wavelengths):
     """The ``reference`` argument at a public entry: a colour-science ``SpectralDistribution`` (an
     illuminant) becomes a ``wavelength`` DataArray on the test display's grid; anything else is
-    returned unchanged."""
+    returned unchanged, but for the old name of ``"surfaces"`` (``"objects"``, accepted for one release)."""
+    if isinstance(reference, str):
+        return current_spelling(reference, RENAMED_REFERENCES, "reference", stacklevel=4)
     if is_colour_spectrum(reference):
         return as_spectra(reference, wavelengths=wavelengths, where="reference illuminant",
                           dims_example=("wavelength",))
@@ -148,22 +156,22 @@ def resolve_reference(reference, wavelengths):
 
 def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Display, calibration: xr.Dataset,
                              object_white_luminance=None) -> tuple[xr.DataArray, str]:
-    """The reference white radiance and the reference kind ("display" or "objects")."""
+    """The reference white radiance and the reference kind ("display" or "surfaces")."""
     reference = resolve_reference(reference, test.wavelengths.values)
     if isinstance(reference, Display):
         require_same_grid(reference.spectra, test.spectra, names=("reference display", "test display"))
         if reference.batch_dims:
             raise MismatchError(f"the reference display must be a single design, got dims {reference.batch_dims}")
         return reference.white_spectrum(), "display"
-    if isinstance(reference, str) and reference == "objects":
+    if isinstance(reference, str) and reference == SURFACES:
         if stimuli is None or stimuli.attrs.get("kind") != "reflectance":
-            raise StimulusError("reference='objects' needs reflectance stimuli (e.g. cie_13_3_samples())")
+            raise StimulusError("reference='surfaces' needs reflectance stimuli (e.g. cie_13_3_samples())")
         illuminant = stimulus_illuminant(stimuli, test.wavelengths.values)
     elif isinstance(reference, xr.DataArray) and set(reference.dims) == {"wavelength"}:
         illuminant = reference
         require_same_grid(illuminant, test.spectra, names=("reference illuminant", "test display"))
     else:
-        raise MismatchError("reference must be a Display, 'objects', or an illuminant spectrum (a wavelength-only "
+        raise MismatchError("reference must be a Display, 'surfaces', or an illuminant spectrum (a wavelength-only "
                             f"DataArray or a colour-science SpectralDistribution), got {type(reference).__name__}")
     if object_white_luminance is None:
         object_white_luminance = float(test.white_tristimulus(calibration).sel(xyz="Y").max())
@@ -174,12 +182,12 @@ def reference_white_spectrum(reference, stimuli: xr.Dataset | None, test: Displa
         raise MismatchError("the reference illuminant has no luminance for the calibration observer")
     white = illuminant * (object_white_luminance / y)
     white.attrs = {"units": RADIANCE_UNITS, "long_name": "radiance of a perfect white diffuser under the illuminant"}
-    return white, "objects"
+    return white, SURFACES
 
 
 def _reference_targets(reference, kind: str, stimuli: xr.Dataset, calibration, white_spectrum, reference_kind: str):
     """Reference rendering for the calibration observer: (target XYZ, drive solution or spectra)."""
-    if reference_kind == "objects":
+    if reference_kind == SURFACES:
         spectra = (stimuli["reflectance"] * white_spectrum).transpose("stimulus", "wavelength")
         spectra.attrs = {"units": RADIANCE_UNITS, "long_name": "reflected spectral radiance"}
         return tristimulus(spectra, calibration), spectra
@@ -228,7 +236,8 @@ class ReferenceSide:
     def test_drives(self, test: Display, strategy: str = "min_norm", strategy_population=None):
         """The test display's drive solution for every target (:func:`metasim.display.drive.drive_solution`)."""
         strategy_args = {}
-        if strategy == "population":
+        strategy = current_spelling(strategy, RENAMED_STRATEGIES, "strategy", stacklevel=4)
+        if strategy == "least_mismatch":
             population = self.observers if strategy_population is None else strategy_population
             display = self.reference_kind == "display"
             strategy_args = {"population": population, "reference": self.reference if display else self.rendering,
@@ -298,8 +307,9 @@ def mismatch(
 
     Parameters
     ----------
-    reference : Display, "objects" or DataArray
-        A reference display; ``"objects"`` for reflectance stimuli under their own illuminant; or
+    reference : Display, "surfaces" or DataArray
+        A reference display; ``"surfaces"`` for reflectance stimuli as real surfaces under their own
+        illuminant (old name ``"objects"``, still accepted for one release); or
         an illuminant spectrum (``wavelength`` only, or a colour-science ``SpectralDistribution``
         put on the test display's grid) for reflectance stimuli.
     test : Display
@@ -318,7 +328,8 @@ def mismatch(
         functions are accepted.
     strategy : str
         Drive strategy of the test display for N > 3 primaries (:data:`metasim.display.STRATEGIES`);
-        ``"population"`` minimises the expected mismatch over ``strategy_population`` (default
+        ``"least_mismatch"`` (old name ``"population"``, accepted for one release) minimises the
+        expected mismatch over ``strategy_population`` (default
         ``observers``).
     match_white : bool
         Calibrate the test white to the reference white for the calibration observer first.
@@ -366,6 +377,7 @@ def mismatch(
         include_itp = bool(transfers & {"pq", "hlg"})
     if match_white:
         test = side.matched(test)
+    strategy = current_spelling(strategy, RENAMED_STRATEGIES, "strategy")
     solution = side.test_drives(test, strategy, strategy_population)
     # every observer's XYZ of both sides: integrate observer x primary once, then small dense algebra
     core = _observer_core(side.reference, side.rendering, test, solution, side.white_spectrum, side.observers,
@@ -442,7 +454,7 @@ def result_attrs(side: ReferenceSide, test_name: str, match_white: bool, adapted
     reference, stimuli, observers = side.given_reference, side.stimuli, side.observers
     return {
         "model": "observer mismatch between a reference rendering and a test display (metasim)",
-        "reference": reference.name if side.reference_kind == "display" else "objects under " + (
+        "reference": reference.name if side.reference_kind == "display" else "surfaces under " + (
             str(reference.name or "the given illuminant") if isinstance(reference, xr.DataArray)
             else str(stimuli.attrs.get("illuminant", "illuminant"))),
         "reference_kind": side.reference_kind,

@@ -61,7 +61,7 @@ def answer_box(sentences: list[str], kind: str) -> str:
 # -- the sentences of each kind --------------------------------------------------------------------------
 
 def _reference_name(ds: xr.Dataset) -> str:
-    if ds.attrs.get("reference_kind") == "objects" or ds.attrs.get("reference") == "objects":
+    if ds.attrs.get("reference_kind") in ("surfaces", "objects") or ds.attrs.get("reference") in ("surfaces", "objects"):
         return "real surfaces"
     return str(ds.attrs.get("reference") or "the reference")
 

@@ -110,7 +110,7 @@ def _sweep_interval_note(ds: xr.Dataset) -> list[str]:
 def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
     numbers = _sweep_numbers(ds)
     varied = plots.sweep_parameters(ds)[0]
-    header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
+    header = ["rank", "design (its label in the file)"] + [plots.parameter_label(ds, c) for c in varied]
     header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
     ranked = "best_probability" in ds
     if ranked:

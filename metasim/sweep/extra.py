@@ -7,7 +7,7 @@ wavelength) two gains are computed:
   (the base white fixed), plus the BT.2020 coverage added;
 * **mismatch** — the population's 95th percentile CIE 2000 difference against the reference with
   the base design, minus the same with the extended design, whose extra degree of freedom is used
-  by the ``"population"`` drive strategy (each colour is still matched exactly for the calibration
+  by the ``"least_mismatch"`` drive strategy (each colour is still matched exactly for the calibration
   observer; among the drives that do so, the one with the least CIELAB-linearised mismatch over the
   population is taken, :mod:`metasim.display.drive`).
 
@@ -110,7 +110,7 @@ def extra_primary_value(base: Display, reference, observers, stimuli: xr.Dataset
     extra = candidates.values * (level * power / (candidates.values.sum(-1, keepdims=True) * grid_step(wl)))
     labels = [str(p) for p in base.primaries]
     extended = np.concatenate([np.broadcast_to(spectra, (peaks.size, *spectra.shape)), extra[:, None, :]], axis=1)
-    options = {"calibration_observer": calibration_observer, "strategy": "population", "strategy_population": observers}
+    options = {"calibration_observer": calibration_observer, "strategy": "least_mismatch", "strategy_population": observers}
     before = design_summaries(_stacked(base, spectra[None], labels, np.array([np.nan]), base.name), reference,
                               observers, stimuli, **options)
     after = design_summaries(_stacked(base, extended, labels + ["extra"], peaks, f"{base.name} + extra"), reference,
@@ -145,7 +145,7 @@ def extra_primary_value(base: Display, reference, observers, stimuli: xr.Dataset
                                                                           "covers"})
     out.attrs = {"result_kind": RESULT_KIND, "base_design": base.name, "base_primaries": labels,
                  "candidate_kind": kind, "candidate_fwhm_nm": "none" if fwhm_nm is None else float(fwhm_nm),
-                 "candidate_level": float(level), "drive_strategy": "population", "reference": before.attrs.get(
+                 "candidate_level": float(level), "drive_strategy": "least_mismatch", "reference": before.attrs.get(
                      "reference", ""), "calibration_observer": before.attrs.get("calibration_observer", ""),
                  "observer_count": before.attrs.get("observer_count", 0), "stimulus_count": before.attrs.get(
                      "stimulus_count", 0), "observer_seed": before.attrs.get("observer_seed", "none"),

@@ -37,7 +37,7 @@ OBJECTIVES = {
                      "95th percentile CIE 2000 difference over all observer × stimulus pairs", DELTA_E00),
     "median_mismatch": ("delta_e_2000_overall", {"statistic": "median"}, "min",
                         "median CIE 2000 difference over all observer × stimulus pairs", DELTA_E00),
-    "white_p95": ("delta_e_white", {"statistic": "p95"}, "min",
+    "white_p95": ("delta_e_white_overall", {"statistic": "p95"}, "min",
                   "95th percentile CIE 2000 difference between the whites over observers", DELTA_E00),
     "bt2020_coverage": ("gamut_coverage", {"reference_gamut": "bt2020"}, "max",
                         "share of the BT.2020 xy area covered", "1"),

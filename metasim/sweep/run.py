@@ -35,6 +35,9 @@ from pathlib import Path
 import numpy as np
 import xarray as xr
 
+from metasim.checks import current_spelling
+from metasim.display.drive import RENAMED_STRATEGIES
+from metasim.metamerism.engine import RENAMED_REFERENCES, SURFACES
 from metasim._version import __version__
 from metasim.display import Display, calibrate_white, make_display
 from metasim.errors import MetasimError, SweepError
@@ -206,7 +209,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         ``design × primary × wavelength`` spectra (:func:`metasim.sweep.design_grid`,
         :func:`metasim.sweep.design_list`; parameters as ``design`` coordinates), made into displays
         with ``display_settings`` and white-calibrated; or a Display with a ``design`` dim, used as is.
-    reference : Display or "objects"
+    reference : Display or "surfaces"
         As for :func:`metasim.mismatch`.
     observers : Dataset or str or list of str
         The population (``cmf`` over ``observer``) or standard observer names.
@@ -282,8 +285,11 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     """
     _check_designs(designs)
     _check_scheduler(scheduler)
-    if isinstance(reference, str) and reference == "objects" and stimuli.attrs.get("kind") != "reflectance":
-        raise SweepError(f"reference='objects' (real surfaces) needs reflectance stimuli such as the CIE 13.3 samples; "
+    if isinstance(reference, str):  # old names still work for one release
+        reference = current_spelling(reference, RENAMED_REFERENCES, "reference")
+    strategy = current_spelling(strategy, RENAMED_STRATEGIES, "strategy")
+    if isinstance(reference, str) and reference == SURFACES and stimuli.attrs.get("kind") != "reflectance":
+        raise SweepError(f"reference='surfaces' (real surfaces) needs reflectance stimuli such as the CIE 13.3 samples; "
                          f"these stimuli are {stimuli.attrs.get('kind', 'unknown')!r}")
     settings = _settings(designs, display_settings) if not isinstance(designs, Display) else {}
     count = designs.spectra.sizes["design"] if isinstance(designs, Display) else designs.sizes["design"]
@@ -302,7 +308,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         if not isinstance(age_bands, str):  # checked against the observers' ages before the store is touched
             age_band_edges(age_bands, observers.coords.get("age_years"))
         mismatch_options["age_bands"] = tuple(age_bands)
-    if isinstance(reference, str) and reference == "objects":  # one object white for every chunk
+    if isinstance(reference, str) and reference == SURFACES:  # one object white for every chunk
         # every design's white is calibrated to the stated peak luminance
         peak = designs.peak_luminance.max() if isinstance(designs, Display) else settings["peak_luminance"]
         mismatch_options["object_white_luminance"] = float(peak)
@@ -316,8 +322,12 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
         interval_options = {"level": float(level), "resamples": int(resamples), "seed": int(interval_seed)}
     options = {"display_settings": settings, "lab_volume": bool(lab_volume), "per_stimulus": bool(per_stimulus),
                "mismatch": mismatch_options, "intervals": interval_options}
-    digest = spec_hash(designs, reference, observers, stimuli, settings, bool(lab_volume),
-                       {k: v for k, v in mismatch_options.items() if k != "calibration_observer"}, calibration_observer,
+    # hashed with the names of before the renames, so that stores made then still resume
+    hashed_reference = {SURFACES: "objects"}.get(reference, reference) if isinstance(reference, str) else reference
+    hashed_options = {k: ({"least_mismatch": "population"}.get(v, v) if k == "strategy" else v)
+                      for k, v in mismatch_options.items() if k != "calibration_observer"}
+    digest = spec_hash(designs, hashed_reference, observers, stimuli, settings, bool(lab_volume), hashed_options,
+                       calibration_observer,
                        *(["per stimulus"] if per_stimulus else []),  # stores without it keep their hash
                        *([f"intervals {json.dumps(interval_options, sort_keys=True)}"] if interval_options else []))
     pairs = observers.sizes["observer"] * stimuli.sizes.get("stimulus", 1)

@@ -62,7 +62,7 @@ from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, default_grid
 from metasim.sweep.grid import GRID_KINDS, _base_spectra
 from metasim.sweep.pareto import OBJECTIVES, SENSES, objective_values, pareto_front
 from metasim.sweep.run import run_sweep
-from metasim.sweep.store import COMBINED, MANIFEST, spec_hash, store_lock
+from metasim.sweep.store import COMBINED, MANIFEST, spec_hash, store_lock, upgraded
 
 SEARCH_FORMAT = "metasim search store"
 SEARCH_MANIFEST = "search.json"
@@ -309,7 +309,7 @@ def _stored_generation(folder: Path, designs: xr.DataArray, names: list[str]) ->
     path = folder / COMBINED
     if not path.is_file():
         return None
-    ds = load_dataset(path)
+    ds = upgraded(load_dataset(path))
     same = ds.sizes.get("design") == designs.sizes["design"] and all(
         name in ds.coords and np.array_equal(ds[name].values, designs[name].values) for name in names)
     if not same:

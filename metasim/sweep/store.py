@@ -423,6 +423,19 @@ def write_chunk(store, manifest: dict, index: int, summary: xr.Dataset) -> Path:
     return save_dataset(summary, Path(store) / chunk["file"], before_rename=record)
 
 
+#: variables of chunks written before a rename: old name → new name (read for one release)
+RENAMED_VARIABLES = {"delta_e_white": "delta_e_white_overall"}
+
+
+def upgraded(part: xr.Dataset) -> xr.Dataset:
+    """A chunk or sweep written before a variable was renamed, with the new names
+    (:data:`RENAMED_VARIABLES`: the sweep's white statistics are ``delta_e_white_overall``, as in a
+    study; ``delta_e_white`` is the per-observer white difference everywhere)."""
+    old = {name: new for name, new in RENAMED_VARIABLES.items()
+           if name in part and "statistic" in part[name].dims and new not in part}
+    return part.rename(old) if old else part
+
+
 def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     """Gather every chunk of a finished store into one Dataset over ``design`` (saved as ``sweep.nc``).
 
@@ -455,7 +468,7 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
         if problem is not None:
             aside = _put_aside(folder, manifest, chunk, problem, warn=False).name
             raise StoreIntegrityError(f"{path}: {problem}; set aside as {aside}; run the sweep again to compute it")
-        parts.append(part)
+        parts.append(upgraded(part))
     combined = xr.concat(parts, dim="design", data_vars="minimal", coords="minimal", compat="equals",
                          combine_attrs="drop_conflicts")
     for key in ("chunk", "design_start", "design_stop"):

@@ -10,7 +10,8 @@ variable (dims)                          holds
                                          stimulus pairs (observer weights when present)
 ``share_beyond_overall`` (design, threshold)   share of pairs beyond 1, 2, 3 CIE 2000 units
 ``delta_e_2000_by_age`` (design, statistic, age_band)   the same statistics per age band (needs ages)
-``delta_e_white`` (design, statistic)    CIE 2000 between the two whites, statistics over observers
+``delta_e_white_overall`` (design, statistic)  CIE 2000 between the two whites, statistics over observers
+                                        (as in a study; before: ``delta_e_white``)
 ``metamerism_index_overall`` (design, statistic)   observer-change metamerism index over all pairs
 ``delta_e_itp_overall`` (design, statistic)        ΔE_ITP over all pairs (HDR transfer functions only)
 ``out_of_gamut_count`` (design)          stimuli outside the design's gamut (clipped)
@@ -121,7 +122,7 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
     if "delta_e_itp_overall" in numbers:
         out["delta_e_itp_overall"] = (design_dims, numbers["delta_e_itp_overall"], {
             "units": DELTA_E_ITP, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
-    out["delta_e_white"] = (design_dims, numbers["delta_e_white"], {
+    out["delta_e_white_overall"] = (design_dims, numbers["delta_e_white"], {
         "units": DELTA_E00, "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
     out["share_beyond_overall"] = (("design", "threshold"), numbers["share_beyond_overall"],
                                    pooled["share_beyond_overall"])

@@ -1,0 +1,140 @@
+"""Renamed options, spec keys and values: the old spelling does what the new one does for one more
+release, with a warning that names the new spelling."""
+
+import warnings
+
+import numpy as np
+import pytest
+from test_cli import DEMO, run
+
+import metasim
+from metasim.cli.specs import load_display
+from metasim.errors import RenamedWarning
+from metasim.metamerism import cie_13_3_samples, primaries_and_secondaries
+
+#: the laser-phosphor demo spec written with every old key name
+OLD_SPEC = """
+name = "Old spelling"
+transfer = "gamma"
+gamma = 2.6
+peak_luminance = 48
+white = "D65"
+extra_primary_base = ["B", "G", "R"]
+[backlight]
+type = "phosphor_white_led"
+pump_peak_nm = 455
+pump_half_spectral_width_nm = 2
+phosphor_peak_nm = 560
+phosphor_fwhm_nm = 115
+phosphor_to_pump = 4.0
+[[primary]]
+label = "B"
+type = "laser"
+peak_nm = 455
+linewidth_nm = 1.5
+[[primary]]
+label = "G"
+type = "filter"
+centre_nm = 540
+width_nm = 70
+edge_nm = 15
+[[primary]]
+label = "R"
+type = "filter"
+centre_nm = 660
+width_nm = 100
+edge_nm = 15
+[[primary]]
+label = "R+"
+type = "laser"
+peak_nm = 639
+linewidth_nm = 1.0
+radiance = 0.5
+"""
+
+
+def test_old_spec_keys_build_the_same_display(tmp_path):
+    new = (DEMO / "projector_laser_phosphor.toml").read_text(encoding="utf-8")
+    old = tmp_path / "old.toml"
+    old.write_text(OLD_SPEC, encoding="utf-8")
+    with pytest.warns(RenamedWarning) as seen:
+        display, spec = load_display(old)
+    messages = " ".join(str(w.message) for w in seen)
+    for before, after in (("type", "kind"), ("radiance", "relative_power"), ("width_nm", "passband_nm"),
+                          ("phosphor_to_pump", "phosphor_pump_ratio"), ("extra_primary_base", "extra_primary_added_to")):
+        assert f"{before!r} is renamed {after!r}" in messages
+    assert spec["extra_primary_added_to"] == ["B", "G", "R"]
+    fresh, _ = load_display(DEMO / "projector_laser_phosphor.toml")
+    np.testing.assert_array_equal(display.spectra.values, fresh.spectra.values)  # same display, either spelling
+    assert "kind = " in new and "type = " not in new  # the shipped examples use the new names
+
+
+def test_both_spellings_of_one_key_are_refused(tmp_path):
+    spec = tmp_path / "both.toml"
+    spec.write_text(OLD_SPEC.replace('type = "laser"\npeak_nm = 455', 'type = "laser"\nkind = "laser"\npeak_nm = 455'),
+                    encoding="utf-8")
+    with pytest.raises(metasim.errors.SpecError, match="both 'type' and 'kind'"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RenamedWarning)  # the other old keys of the file
+        load_display(spec)
+
+
+def test_old_option_spellings_work_with_a_notice(tmp_path):
+    common = ["evaluate", DEMO / "projector_four_laser.toml", "--size", 6, "--seed", 2, "--stimuli", "primaries",
+              "--no-report", "--no-intervals", "--quiet"]
+    old = run(*common, "--no-choices", "--source", "bt709", "--strategy", "population", "--out", tmp_path / "old",
+              "--reference", DEMO / "grading_monitor.toml")
+    new = run(*common, "--no-calibration-ranking", "--stimulus-space", "bt709", "--strategy", "least_mismatch",
+              "--out", tmp_path / "new", "--reference", DEMO / "grading_monitor.toml")
+    notices = [line for line in old.stderr.splitlines() if line.startswith("metasim: warning:")]
+    assert "metasim: warning: --no-choices is renamed --no-calibration-ranking" in "\n".join(notices)
+    assert "--source is renamed --stimulus-space" in old.stderr
+    assert "--strategy population is renamed --strategy least_mismatch" in old.stderr
+    assert "renamed" not in new.stderr
+    a, b = (metasim.load_dataset(tmp_path / name / "study.nc") for name in ("old", "new"))
+    np.testing.assert_array_equal(a["delta_e_2000"].values, b["delta_e_2000"].values)
+    assert a.attrs["drive_strategy"] == b.attrs["drive_strategy"] == "least_mismatch"
+    assert "calibration_mean_delta_e" not in a  # --no-choices did skip the ranking
+
+
+def test_old_library_names_still_work():
+    monitor, _ = load_display(DEMO / "grading_monitor.toml")
+    lasers, _ = load_display(DEMO / "projector_four_laser.toml")
+    viewers = metasim.observer_population(4, seed=3)
+    with pytest.warns(RenamedWarning, match="'objects' is renamed 'surfaces'"):
+        old = metasim.mismatch("objects", lasers, viewers, cie_13_3_samples())
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RenamedWarning)
+        new = metasim.mismatch("surfaces", lasers, viewers, cie_13_3_samples())
+    np.testing.assert_array_equal(old["delta_e_2000"].values, new["delta_e_2000"].values)
+    with pytest.warns(RenamedWarning, match="'population' is renamed 'least_mismatch'"):
+        metasim.mismatch(monitor, lasers, viewers, primaries_and_secondaries(), strategy="population")
+
+
+# -- --out and the example files --------------------------------------------------------------------------
+
+@pytest.mark.parametrize("command, kind", [("demo", "FOLDER"), ("observers", "FILE"), ("evaluate", "FOLDER"),
+                                           ("compare", "FOLDER"), ("report", "FILE"), ("tables", "FOLDER"),
+                                           ("sweep", "FOLDER"), ("search", "FOLDER"), ("estimate", "FOLDER")])
+def test_every_help_says_whether_out_is_a_file_or_a_folder(command, kind):
+    done = run(command, "--help", check=False)
+    lines = done.stdout.splitlines()
+    first = next(i for i, line in enumerate(lines) if line.startswith("  --out "))  # the option, not the usage
+    rest = [line for line in lines[first + 1:first + 4] if line.startswith("     ")]  # its wrapped help
+    out = " ".join(" ".join([lines[first], *rest]).split())
+    assert kind in out, out
+    if command in ("evaluate", "compare"):  # distinct defaults: one run does not meet the other's files
+        assert f"(default metasim-{command})" in out
+
+
+def test_demo_files_writes_the_examples_and_their_format(tmp_path):
+    folder = tmp_path / "examples"
+    done = run("demo", "--files", folder)
+    names = sorted(p.name for p in folder.iterdir())
+    assert {"README.md", "projector_four_laser.toml", "grading_monitor.toml", "grading_monitor_spectra.csv",
+            "sweep_red_laser.toml", "search_red_green.toml", "lab_matches.csv"} <= set(names)
+    assert "Display design spec format" in (folder / "README.md").read_text(encoding="utf-8")
+    assert "examples:" in done.stdout and not (tmp_path / "metasim-demo").exists()  # nothing computed
+    display, _ = load_display(folder / "grading_monitor.toml")  # a copied spec works where it lands
+    assert display.n_primaries == 3
+    again = run("demo", "--files", folder, check=False)
+    assert again.returncode != 0 and "--replace" in again.stderr  # nothing a user edited is overwritten
