@@ -262,7 +262,7 @@ CASES = [
     case("spec: unknown key", ev(spec_text=spec("linewidth_nm = 1.0", "linewidth = 1.0")),
          ["spec.toml", "unknown key 'linewidth'", "allowed"]),
     case("spec: unknown primary type", ev(spec_text=spec('kind = "laser"', 'kind = "plasma"')),
-         ["spec.toml", "type 'plasma' is not known", "laser"]),
+         ["spec.toml", "kind 'plasma' is not known", "laser"]),
     case("spec: missing key", ev(spec_text=spec(BLUE, 'label = "B"\nkind = "gaussian"\npeak_nm = 465')),
          ["spec.toml", "primary 'B'", "missing key 'fwhm_nm'"]),
     case("spec: text for a number", ev(spec_text=spec("peak_nm = 465", 'peak_nm = "465"')),

@@ -169,3 +169,13 @@ def test_per_stimulus_sweep_lists_the_hardest_stimuli(tmp_path, inputs):
     assert first_row.startswith(f"{html.escape(hardest)}</td>")  # the worst stimulus heads the table
     assert "Hardest stimuli" not in render_report(run_sweep(designs, *inputs, store=tmp_path / "plain",
                                                             scheduler="serial"))
+
+
+def test_edge_warning_names_the_parameter_in_words():
+    import xarray as xr
+
+    sweep = xr.Dataset(coords={"peak_nm_R": ("design", [610.0, 650.0], {"units": "nm"})},
+                       attrs={"edge_warnings": "the best design has peak_nm_R = 650 nm, the upper end of the swept "
+                                               "range 610-650 nm: extend the range beyond 650 nm"})
+    (message,) = plots.sweep.edge_messages(sweep)
+    assert message.startswith("the best design has red primary peak = 650 nm") and "peak_nm_R" not in message

@@ -453,7 +453,7 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
         if "delta_e_2000_overall_interval" in result else None
     parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
 
-    from metasim.plots.sweep import parameter_text, parameter_value, sweep_parameters
+    from metasim.plots.sweep import edge_messages, parameter_text, parameter_value, sweep_parameters
 
     varied = sweep_parameters(result)[0] or parameters
 
@@ -471,7 +471,7 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
                      f"rank {low}-{high}")
         print(line)
     if "best_probability" in result:
-        edges = [m for m in str(result.attrs.get("edge_warnings", "")).split(" | ") if m]
+        edges = edge_messages(result)  # the parameters in words
         print(sweep_headline(result, p95, interval, describe=describe, edges=edges))
         best = int(np.flatnonzero(result["rank"].values == 1)[0])
         advice = population_advice(interval.isel(design=best), int(result.attrs.get("observer_count", 0)),

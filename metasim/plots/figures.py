@@ -445,12 +445,13 @@ def observer_spread(population: xr.Dataset) -> Figure:
         ages = np.asarray(population.coords["age_years"].values, dtype=float) if "age_years" in population.coords else None
         weights = np.asarray(population.coords["weight"].values, dtype=float) if "weight" in population.coords else None
         if ages is not None and weights is not None:  # categories: each one's share of the population at its age
-            axes[0, 0].bar(ages, 100 * weights, width=1.6, color=REFERENCE_COLOUR, alpha=0.85)
-            for k, (age, share) in enumerate(zip(ages, weights)):
-                axes[0, 0].annotate(f"{k}", (age, 100 * share), xytext=(0, 2), textcoords="offset points",
+            axes[0, 0].bar(ages, 100 * weights, width=0.9, color=REFERENCE_COLOUR, alpha=0.85)
+            names = [str(v) for v in population["observer"].values]  # as the report's table of categories
+            for name, age, share in zip(names, ages, weights):
+                axes[0, 0].annotate(name, (age, 100 * share), xytext=(0, 2), textcoords="offset points",
                                     ha="center", va="bottom", fontsize=8)
             axes[0, 0].set_ylabel("Share of the population (%)")
-            axes[0, 0].set_title("Categories by age (numbers: category)")
+            axes[0, 0].set_title("Categories by age (labels: category)")
         else:
             if ages is not None:
                 axes[0, 0].hist(ages, bins=max(5, min(30, len(ages) // 10)), color=REFERENCE_COLOUR, alpha=0.8)

@@ -79,6 +79,17 @@ def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
     return text, ("" if not units or units == "1" else str(units))
 
 
+def edge_messages(summary: xr.Dataset) -> list[str]:
+    """The sweep's warnings that its best design sits at the end of a swept range
+    (:mod:`metasim.sweep.ranking`), the parameters named in words: "the best design has red laser peak
+    = 650 nm, ..." instead of the coordinate's key."""
+    messages = [m for m in str(summary.attrs.get("edge_warnings", "")).split(" | ") if m]
+    names = sorted((str(c) for c in summary.coords if summary[c].dims == ("design",)), key=len, reverse=True)
+    for name in names:
+        messages = [m.replace(f" {name} = ", f" {parameter_text(summary, name)[0]} = ") for m in messages]
+    return messages
+
+
 def parameter_label(summary: xr.Dataset, name: str) -> str:
     """Axis label of a design parameter with its units, e.g. ``"red laser peak (nm)"``."""
     text, units = parameter_text(summary, name)
@@ -232,4 +243,4 @@ def sweep_figure(summary: xr.Dataset) -> Figure:
     return _sweep_rank(summary, varied, p95, median)
 
 
-__all__ = ["MISMATCH_CMAP", "sweep_spec", "sweep_parameters", "parameter_text", "parameter_label", "parameter_value", "sweep_figure"]
+__all__ = ["MISMATCH_CMAP", "sweep_spec", "sweep_parameters", "parameter_text", "edge_messages", "parameter_label", "parameter_value", "sweep_figure"]

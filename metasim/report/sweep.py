@@ -88,7 +88,7 @@ def sweep_answer_sentences(ds: xr.Dataset) -> list[str]:
         described = _parameters_of(ds, varied, index)
         return _design_name(ds, index) + (f" ({described})" if described else "")
 
-    edges = [m for m in str(ds.attrs.get("edge_warnings", "")).split(" | ") if m]
+    edges = plots.sweep.edge_messages(ds)  # the parameters in words
     sentences = [sweep_headline(ds, p95, interval, describe=describe)]
     sentences += [f"{m[0].upper() + m[1:]}." for m in edges]
     best = int(np.flatnonzero(ds["rank"].values == 1)[0])
