@@ -592,6 +592,10 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     for name in out.data_vars:
         out[name].attrs.setdefault("long_name", name.replace("_", " "))
         out[name].attrs.setdefault("units", "1")
+    for name in out.data_vars:  # an interval says of what: "95 % interval of each statistic, of <what>"
+        base = name.removesuffix("_interval")
+        if base != name and base in out and "of each" in str(out[name].attrs.get("long_name", "")):
+            out[name].attrs["long_name"] += f": {out[base].attrs['long_name']}"
     return out
 
 

@@ -134,13 +134,15 @@ def paired_comparison(first: xr.DataArray, second: xr.DataArray, *, labels=("A",
             "share_beyond_difference_interval": (("bound", "threshold"),
                                                  percentile_interval(share_reps[..., 1] - share_reps[..., 0], level,
                                                                      axis=0),
-                                                 {"units": "1", "long_name": f"{100 * level:g} % interval",
+                                                 {"units": "1", "long_name": f"{100 * level:g} % interval of the "
+                                                                            "difference of the shares beyond",
                                                   **interval_attrs}),
             "share_second_closer": ((), float(w @ closer / w.sum()), {
                 "units": "1", "long_name": f"share of observers for whom {labels[1]} looks closer to the reference "
                                            f"than {labels[0]} (mean difference over the stimuli; ties count half)"}),
             "share_second_closer_interval": ("bound", percentile_interval(closer_reps, level),
-                                             {"units": "1", "long_name": f"{100 * level:g} % interval",
+                                             {"units": "1", "long_name": f"{100 * level:g} % interval of the share "
+                                                                         "of observers who see the second closer",
                                               **interval_attrs}),
         },
         coords={"design": list(labels), "statistic": table["statistic"].values, "threshold": table["threshold"],
