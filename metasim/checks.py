@@ -325,6 +325,24 @@ def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3)
     """The current name of ``value``: an old spelling in ``renamed`` (old → new) still works for one
     release, with a :class:`~metasim.errors.RenamedWarning` naming the new one; anything else as given.
 
+    Parameters
+    ----------
+    value : object
+        The value as given (a name such as a strategy or a reference; other values pass through).
+    renamed : Mapping
+        Old name → new name.
+    what : str
+        What the value is, for the warning ("strategy", "reference").
+    stacklevel : int
+        Passed to :func:`warnings.warn`: the frame the warning points to.
+
+    Returns
+    -------
+    object
+        The new name for an old one, else ``value`` itself.
+
+    Examples
+    --------
     >>> import warnings
     >>> with warnings.catch_warnings(record=True) as seen:
     ...     warnings.simplefilter("always")

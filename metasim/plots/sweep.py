@@ -82,7 +82,26 @@ def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
 def edge_messages(summary: xr.Dataset) -> list[str]:
     """The sweep's warnings that its best design sits at the end of a swept range
     (:mod:`metasim.sweep.ranking`), the parameters named in words: "the best design has red laser peak
-    = 650 nm, ..." instead of the coordinate's key."""
+    = 650 nm, ..." instead of the coordinate's key.
+
+    Parameters
+    ----------
+    summary : Dataset
+        A sweep result (``STORE/sweep.nc``) with its ``edge_warnings`` attribute (none: no messages).
+
+    Returns
+    -------
+    list of str
+        One message per parameter whose best value sits at an end of its swept range.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [610.0, 650.0], {"units": "nm"})},
+    ...                    attrs={"edge_warnings": "the best design has peak_nm_R = 650 nm, the upper end"})
+    >>> edge_messages(sweep)
+    ['the best design has red primary peak = 650 nm, the upper end']
+    """
     messages = [m for m in str(summary.attrs.get("edge_warnings", "")).split(" | ") if m]
     names = sorted((str(c) for c in summary.coords if summary[c].dims == ("design",)), key=len, reverse=True)
     for name in names:
