@@ -110,7 +110,7 @@ def test_a_command_is_never_silent_for_long(population_run):
     assert times and times[0] < 2.0, done.stderr
     gaps = [b - a for a, b in zip(times, times[1:] + [done.seconds])]
     assert max(gaps) < 6.0, (gaps, done.stderr)  # 2 s heartbeat, room for a machine busy with other work
-    assert done.stderr.splitlines()[0] == "metasim: observers: inputs checked; loading the numerical modules (0.0 s)"
+    assert done.stderr.splitlines()[0].startswith("metasim: observers: inputs checked; loading the numerical modules (")
 
 
 def test_observers_writes_a_population(population_file):
