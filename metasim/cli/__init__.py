@@ -371,9 +371,21 @@ def cmd_tables(args) -> int:
     return 0
 
 
-def cmd_sweep(args) -> int:
+def _spec_reference_and_stimuli(args, spec: dict):
+    """The reference and stimuli of a sweep or search spec (the command line's options win)."""
     from metasim.cli.study import build_stimuli
-    from metasim.cli.sweep import read_sweep_spec, relative, sweep_designs
+    from metasim.cli.sweep import relative
+
+    if args.reference is None and "reference" in spec:
+        args.reference = (_spec_reference(spec["reference"], args.spec) if spec["reference"] in (SURFACES, OLD_SURFACES)
+                          else str(relative(spec, spec["reference"])))
+    reference = _reference(args, {})
+    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
+    return reference, build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+
+
+def cmd_sweep(args) -> int:
+    from metasim.cli.sweep import read_sweep_spec, sweep_designs
     from metasim.metamerism.summary import age_band_edges
     from metasim.sweep import run_sweep
 
@@ -381,12 +393,7 @@ def cmd_sweep(args) -> int:
     _kernels_ahead(args.progress, study=False)
     args.observer_set = _observer_file(args)  # before any computing
     designs, _ = sweep_designs(spec, allow_outside_grid=args.allow_outside_grid)
-    if args.reference is None and "reference" in spec:
-        args.reference = (_spec_reference(spec["reference"], args.spec) if spec["reference"] in (SURFACES, OLD_SURFACES)
-                          else str(relative(spec, spec["reference"])))
-    reference = _reference(args, {})
-    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
-    stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+    reference, stimuli = _spec_reference_and_stimuli(args, spec)
     observers = _observers(args, numbered=False)  # the chunks are numbered
     line = args.progress
     line.say(f"{len(designs)} designs from {args.spec}; computing them in chunks",
@@ -482,8 +489,6 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
 
 def cmd_search(args) -> int:
     from metasim.cli.search import read_search_spec, spec_search_space
-    from metasim.cli.study import build_stimuli
-    from metasim.cli.sweep import relative
     from metasim.metamerism.summary import age_band_edges
     from metasim.sweep import best_design, run_search
 
@@ -491,12 +496,7 @@ def cmd_search(args) -> int:
     _kernels_ahead(args.progress, study=False)
     space, settings = spec_search_space(spec)
     search = spec["search"]
-    if args.reference is None and "reference" in spec:
-        args.reference = (_spec_reference(spec["reference"], args.spec) if spec["reference"] in (SURFACES, OLD_SURFACES)
-                          else str(relative(spec, spec["reference"])))
-    reference = _reference(args, {})
-    stimuli_text = args.stimuli or spec.get("stimuli") or ("cie13.3" if reference == SURFACES else "ramp:6,primaries,cube:3")
-    stimuli = build_stimuli(stimuli_text, source=args.source, csv_kind=args.csv_kind)
+    reference, stimuli = _spec_reference_and_stimuli(args, spec)
     generations = args.generations if args.generations is not None else search.get("generations", 20)
     line = args.progress
     # the observers, the first generation and those after it, the report
