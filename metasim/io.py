@@ -58,13 +58,48 @@ PARTIAL_SUFFIX = ".partial"
 # -- writing outputs safely -----------------------------------------------------------------------
 
 def partial_path(path: str | os.PathLike) -> Path:
-    """The temporary name ``NAME.<pid>.partial`` an output is written under before its rename."""
+    """The temporary name ``NAME.<pid>.partial`` an output is written under before its rename.
+
+    Parameters
+    ----------
+    path : path-like
+        The output file (``NAME``).
+
+    Returns
+    -------
+    Path
+        ``NAME.<pid>.partial`` in the same folder, ``<pid>`` this process's id (nothing is created).
+
+    Examples
+    --------
+    >>> import os
+    >>> partial_path("out/report.html").name == f"report.html.{os.getpid()}.partial"
+    True
+    """
     path = Path(path)
     return path.with_name(f"{path.name}.{os.getpid()}{PARTIAL_SUFFIX}")
 
 
 def process_alive(pid: int) -> bool:
-    """Whether a process with this id runs on this machine (True when that cannot be told)."""
+    """Whether a process with this id runs on this machine (True when that cannot be told).
+
+    Parameters
+    ----------
+    pid : int
+        A process id, as written in a ``NAME.<pid>.partial`` file name.
+
+    Returns
+    -------
+    bool
+        True for this process and for any process that exists (also one of another user, which
+        cannot be signalled); False for ids <= 0 and ids no process holds.
+
+    Examples
+    --------
+    >>> import os
+    >>> process_alive(os.getpid()), process_alive(0)
+    (True, False)
+    """
     if pid == os.getpid():
         return True
     if pid <= 0:
@@ -82,6 +117,27 @@ def remove_stale_partials(path: str | os.PathLike) -> list[Path]:
     """Remove ``NAME.<pid>.partial`` files of the output ``path`` whose process is gone.
 
     Returns the files removed. Temporary files of running processes are left alone.
+
+    Parameters
+    ----------
+    path : path-like
+        The output file (``NAME``) whose temporary files are looked for in its folder.
+
+    Returns
+    -------
+    list of Path
+        The temporary files removed: those whose ``<pid>`` no longer runs (:func:`process_alive`),
+        and a ``NAME.partial`` without a process id. Empty when the folder does not exist.
+
+    Examples
+    --------
+    >>> import os, pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     out = pathlib.Path(folder) / "result.nc"
+    ...     _ = pathlib.Path(folder, "result.nc.partial").write_text("left by a killed run")
+    ...     _ = partial_path(out).write_text("this process is still writing it")
+    ...     print([p.name for p in remove_stale_partials(out)], partial_path(out).exists())
+    ['result.nc.partial'] True
     """
     path = Path(path)
     if not path.parent.is_dir():
@@ -99,7 +155,28 @@ def remove_stale_partials(path: str | os.PathLike) -> list[Path]:
 
 
 def same_file(a: str | os.PathLike, b: str | os.PathLike) -> bool:
-    """Whether two paths name one file (through links, ``..`` or a relative path)."""
+    """Whether two paths name one file (through links, ``..`` or a relative path).
+
+    Parameters
+    ----------
+    a, b : path-like
+        The two paths; they need not exist.
+
+    Returns
+    -------
+    bool
+        For two existing files, whether they are one file (:func:`os.path.samefile`, so hard links
+        count); otherwise whether the resolved paths are equal (case-folded where the system folds).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     spec = pathlib.Path(folder) / "spec.toml"
+    ...     print(same_file(spec, pathlib.Path(folder) / "sub" / ".." / "spec.toml"),
+    ...           same_file(spec, pathlib.Path(folder) / "spec.csv"))
+    True False
+    """
     a, b = Path(a), Path(b)
     with contextlib.suppress(OSError):
         if a.exists() and b.exists():
@@ -119,6 +196,43 @@ def check_outputs(outputs: Iterable, *, inputs: Iterable = (), replace: bool = F
 
     The temporary ``*.partial`` files an earlier, killed run left for these outputs are removed
     (:func:`remove_stale_partials`) before the last check. ``None`` entries are skipped.
+
+    Parameters
+    ----------
+    outputs : iterable of path-like or None
+        Every file the job will write.
+    inputs : iterable of path-like or None
+        Every file the job reads.
+    replace : bool
+        Allow outputs that exist already (they are replaced when written; default False).
+
+    Returns
+    -------
+    list of Path
+        The outputs, ``None`` entries dropped, in the order given.
+
+    Raises
+    ------
+    OutputIsInputError
+        An output is also an input, or two outputs name one file.
+    OutputError
+        An output is a folder.
+    OutputExistsError
+        An output exists and ``replace`` is False.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> spec = pathlib.Path(folder.name) / "spec.toml"
+    >>> _ = spec.write_text("")
+    >>> [p.name for p in check_outputs([spec.with_name("result.nc"), None], inputs=[spec])]
+    ['result.nc']
+    >>> check_outputs([spec], inputs=[spec])
+    Traceback (most recent call last):
+        ...
+    metasim.errors.OutputIsInputError: .../spec.toml: is an output and also an input; nothing was written; give the output another name
+    >>> folder.cleanup()
     """
     outs = [Path(o) for o in outputs if o is not None]
     ins = [Path(i) for i in inputs if i is not None]
@@ -159,6 +273,37 @@ def atomic_output(path: str | os.PathLike, *, replace: bool = True) -> Iterator[
     file or the complete new one, never a partial one. If the block raises, the temporary file is
     removed. With ``replace=False`` an existing ``path`` is never replaced
     (:class:`~metasim.errors.OutputExistsError`, also when it appears while the block runs).
+
+    Parameters
+    ----------
+    path : path-like
+        The output file; its folder must exist.
+    replace : bool
+        Replace an existing file (default True).
+
+    Yields
+    ------
+    Path
+        The temporary file to write (:func:`partial_path`); it does not exist yet.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a folder, its folder does not exist, or the block wrote nothing.
+    OutputExistsError
+        ``path`` exists (or appears while the block runs) and ``replace`` is False.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     out = pathlib.Path(folder) / "notes.txt"
+    ...     with atomic_output(out) as tmp:
+    ...         _ = tmp.write_text("complete")
+    ...         print(out.exists())  # nothing under the final name while the block runs
+    ...     print(out.read_text(), sorted(p.name for p in out.parent.iterdir()))
+    False
+    complete ['notes.txt']
     """
     path = Path(path)
     if path.is_dir():
@@ -187,14 +332,80 @@ def atomic_output(path: str | os.PathLike, *, replace: bool = True) -> Iterator[
 
 
 def write_bytes(path: str | os.PathLike, data: bytes, *, replace: bool = True) -> Path:
-    """Write ``data`` to ``path`` through :func:`atomic_output`; returns the path."""
+    """Write ``data`` to ``path`` through :func:`atomic_output`; returns the path.
+
+    Parameters
+    ----------
+    path : path-like
+        The output file; its folder must exist.
+    data : bytes
+        The whole content.
+    replace : bool
+        Replace an existing file (default True).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a folder or its folder does not exist.
+    OutputExistsError
+        ``path`` exists and ``replace`` is False.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     out = write_bytes(pathlib.Path(folder) / "figure.png", b"\\x89PNG")
+    ...     write_bytes(out, b"", replace=False)
+    Traceback (most recent call last):
+        ...
+    metasim.errors.OutputExistsError: .../figure.png: exists already; nothing was written; give replace=True to replace it
+    """
     with atomic_output(path, replace=replace) as tmp:
         tmp.write_bytes(data)
     return Path(path)
 
 
 def write_text(path: str | os.PathLike, text: str, *, replace: bool = True, encoding: str = "utf-8") -> Path:
-    """Write ``text`` to ``path`` through :func:`atomic_output`; returns the path."""
+    """Write ``text`` to ``path`` through :func:`atomic_output`; returns the path.
+
+    Line ends are written as given (no translation).
+
+    Parameters
+    ----------
+    path : path-like
+        The output file; its folder must exist.
+    text : str
+        The whole content.
+    replace : bool
+        Replace an existing file (default True).
+    encoding : str
+        Text encoding (default UTF-8).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a folder or its folder does not exist.
+    OutputExistsError
+        ``path`` exists and ``replace`` is False.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     out = write_text(pathlib.Path(folder) / "table.csv", "band,p95\\r\\nred,0.8\\r\\n")
+    ...     print(out.name, out.read_bytes())
+    table.csv b'band,p95\\r\\nred,0.8\\r\\n'
+    """
     with atomic_output(path, replace=replace) as tmp:
         tmp.write_text(text, encoding=encoding, newline="")
     return Path(path)
@@ -212,6 +423,43 @@ def read_text_file(path: str | os.PathLike, what: str = "text file") -> str:
     Raises :class:`~metasim.errors.FileFormatError` naming the file for a missing file or folder,
     a file that cannot be read, UTF-16/UTF-32 text, bytes that are not UTF-8 (with the first bad
     byte and its position) and NUL bytes (binary data), so no reader meets undecodable input.
+
+    Parameters
+    ----------
+    path : path-like
+        The file to read.
+    what : str
+        What the file is, for the error messages ("spec file", "CSV file").
+
+    Returns
+    -------
+    str
+        The decoded text, without a UTF-8 byte-order mark.
+
+    Raises
+    ------
+    FileFormatError
+        Missing file, a folder, an unreadable file, UTF-16/UTF-32 text, bytes that are not UTF-8,
+        or NUL bytes.
+
+    References
+    ----------
+    The Unicode Standard, §3.9 and §23.8 (UTF-8; the byte-order mark); RFC 3629 (UTF-8).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = pathlib.Path(folder.name) / "spec.toml"
+    >>> _ = path.write_bytes("\\ufeffname = 'Café display'\\n".encode("utf-8"))
+    >>> read_text_file(path, "spec file")
+    "name = 'Café display'\\n"
+    >>> _ = path.write_bytes("name = 'Café'\\n".encode("latin-1"))
+    >>> read_text_file(path, "spec file")
+    Traceback (most recent call last):
+        ...
+    metasim.errors.FileFormatError: .../spec.toml:1: byte 0xe9 is not UTF-8 text; save the spec file as UTF-8 ...
+    >>> folder.cleanup()
     """
     path = Path(path)
     if not path.exists():
@@ -244,6 +492,38 @@ def read_csv_rows(path: str | os.PathLike, what: str = "CSV file") -> tuple[list
     (its text, ``#`` and surrounding blanks removed); every other row is returned with its line
     number, cells as written (the reader strips and checks them). Text the csv module cannot split
     is a :class:`~metasim.errors.FileFormatError` naming the file.
+
+    Parameters
+    ----------
+    path : path-like
+        The CSV file (UTF-8).
+    what : str
+        What the file is, for the error messages.
+
+    Returns
+    -------
+    notes : list of str
+        The text of the note rows, in file order.
+    rows : list of (int, list of str)
+        Line number (from 1) and cells of every other non-blank row.
+
+    Raises
+    ------
+    FileFormatError
+        The file cannot be read as UTF-8 text (:func:`read_text_file`) or split as CSV.
+
+    References
+    ----------
+    RFC 4180 (CSV format).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = pathlib.Path(folder) / "spectra.csv"
+    ...     _ = path.write_text("# measured 2026-11-02\\nwavelength,red\\n\\n450, 0.01\\n")
+    ...     read_csv_rows(path)
+    (['measured 2026-11-02'], [(2, ['wavelength', 'red']), (4, ['450', ' 0.01'])])
     """
     text = read_text_file(path, what)
     try:

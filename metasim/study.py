@@ -192,6 +192,17 @@ def _clean(array: xr.DataArray, keep=()) -> xr.DataArray:
 def unique_names(names: Sequence[str]) -> list[str]:
     """``names`` with repeats numbered.
 
+    Parameters
+    ----------
+    names : sequence of str
+        Display names in study order.
+
+    Returns
+    -------
+    list of str
+        The names, the second and later uses of a name followed by `` (2)``, `` (3)``, ...; a
+        numbered label that is itself taken counts on.
+
     Examples
     --------
     >>> unique_names(["monitor", "projector", "monitor"])
@@ -224,8 +235,35 @@ def display_blocks(displays: Sequence[Display], roles: Sequence[str], observer: 
     Returns
     -------
     Dataset
-        The ``display`` variables of the study layout (module docstring); repeated display names
-        are numbered (:func:`unique_names`).
+        The ``display`` variables of the study layout (module docstring): ``spectra`` (display,
+        primary, wavelength) in W sr-1 m-2 nm-1, ``primary_label``, ``primary_xy`` and ``white_xy``
+        (CIE 1931 xy), ``gamut_area_xy``, ``gamut_area_uv``, ``gamut_polygon`` (display, vertex,
+        chromaticity), ``gamut_coverage`` and ``lab_coverage_volume`` (display, reference_gamut),
+        ``locus_share`` and ``lab_volume`` (CIELAB units³); coordinate ``display_role``. Repeated
+        display names are numbered (:func:`unique_names`); displays with fewer primaries are padded
+        with NaN and ``""``.
+
+    Raises
+    ------
+    MetasimError
+        From the gamut functions, for a display they do not allow (e.g. primaries on one line).
+
+    References
+    ----------
+    CIE 15:2004 §7.3 (CIE 1931 xy, CIE 1976 u'v'), §8.2.1 (CIELAB); reference gamuts ITU-R BT.709-6,
+    SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> spectra = gaussian([455, 535, 615], 30, name=["B", "G", "R"])
+    >>> monitor = metasim.calibrate_white(metasim.make_display(spectra, name="monitor"), "cie1931_2")
+    >>> blocks = display_blocks([monitor], ["reference"])
+    >>> list(blocks.display.values), list(blocks.display_role.values), blocks["gamut_coverage"].dims
+    (['monitor'], ['reference'], ('display', 'reference_gamut'))
+    >>> blocks["primary_label"].values.tolist(), blocks["lab_volume"].attrs["units"]
+    ([['B', 'G', 'R']], 'CIELAB units³')
     """
     progress = progress or _quiet
     observer = observer if observer is not None else standard_observer(GAMUT_OBSERVER, default_grid().values)
@@ -259,8 +297,20 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
 
     Parameters
     ----------
-    reference, design, observers, stimuli, strategy, calibration_observer
+    reference : Display or "surfaces"
         As for :func:`run_study`.
+    design : Display
+        The one design judged.
+    observers : Dataset
+        Observer population (``observer`` dim), as for :func:`run_study`; a population with
+        ``weight`` coordinates (observer categories) is used as the categories.
+    stimuli : Dataset
+        Stimulus set (``stimulus`` dim), as for :func:`run_study`; its reflectances (``kind`` =
+        ``"reflectance"``) are also used for the white trims.
+    strategy : str
+        Drive strategy for more than three primaries (:data:`metasim.display.STRATEGIES`).
+    calibration_observer : str or Dataset
+        The observer the white trims start from, as for :func:`run_study`.
     rank : bool
         Rank the candidate calibration observers
         (:func:`metasim.metamerism.rank_calibration_observers`).
@@ -273,8 +323,38 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
     Returns
     -------
     Dataset or None
-        The ``calibration_*``, ``best_calibration_observer`` and ``white_offset_*`` variables of the
-        study layout (attribute ``best``), or None when neither was asked for.
+        The ``calibration_*`` (calibration_observer), ``best_calibration_observer`` (0-d, text) and
+        ``white_offset_xy`` (category, chromaticity), ``white_offset_uv_length`` (category) variables
+        of the study layout (attribute ``best``: the best calibration observer or ``"n/a"``), or None
+        when neither was asked for.
+
+    Raises
+    ------
+    MetasimError
+        From the ranking, clustering and white-offset functions, for inputs they do not allow.
+
+    References
+    ----------
+    CIE 15:2004 §8.3 and CIE 142-2001 (CIEDE2000 differences of the ranking); CIE 15:2004 §7.3
+    (CIE 1931 xy and CIE 1976 u'v' of the white offsets).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.metamerism import neutral_ramp
+    >>> def display(name, peaks):
+    ...     spectra = gaussian(peaks, [25, 30, 35], name=["B", "G", "R"])
+    ...     return metasim.calibrate_white(metasim.make_display(spectra, name=name), "cie1931_2")
+    >>> reference, design = display("monitor", [455, 535, 615]), display("candidate", [465, 530, 630])
+    >>> audience = metasim.observer_population(3, seed=1, age_years=(20, 70))
+    >>> block = decision_block(reference, design, audience, neutral_ramp(3), strategy="min_norm",
+    ...                        calibration_observer="cie1931_2", rank=False, categories=2, seed=0)
+    >>> sorted(block.data_vars), block["white_offset_xy"].dims, block.attrs["best"]
+    (['white_offset_uv_length', 'white_offset_xy'], ('category', 'chromaticity'), 'n/a')
+    >>> decision_block(reference, design, audience, neutral_ramp(3), strategy="min_norm",
+    ...                calibration_observer="cie1931_2", rank=False, categories=0, seed=0) is None
+    True
     """
     out, best = xr.Dataset(), "n/a"
     if rank:
@@ -311,6 +391,38 @@ def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: f
     (observer weights if present), with intervals from resampling observers: the table of
     :func:`metasim.statistics.population_statistics` (``pooled`` says which stimuli).
 
+    Parameters
+    ----------
+    delta_e : xarray.DataArray (observer, stimulus)
+        CIE 2000 differences, ΔE00; a ``weight`` coordinate on ``observer`` weights the observers.
+    interval : bool
+        Add percentile intervals from resampling observers (default True).
+    level : float
+        Interval level, a share (default 0.95).
+    resamples : int
+        Resamples of the observers (default 400).
+    seed : int
+        Seed of the resampling.
+    pooled : str, optional
+        What the stimuli are, recorded in the result's ``pooled_stimuli`` attribute.
+
+    Returns
+    -------
+    Dataset
+        ``statistics`` (statistic: mean, median, p95, max) in ΔE00, ``share_beyond`` (threshold),
+        and with ``interval`` their ``*_interval`` (bound: lower, upper).
+
+    Raises
+    ------
+    StatisticsError
+        Interval settings that are not allowed (level outside (0, 1), too few resamples).
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000); quantiles: Hyndman & Fan (1996) The American Statistician 50(4),
+    361-365, definition 7 (no weights) and definition 1 with weights (:mod:`metasim.statistics.summaries`);
+    percentile intervals: Efron & Tibshirani (1993) An Introduction to the Bootstrap, ch. 13.
+
     Examples
     --------
     >>> import xarray as xr
@@ -336,7 +448,34 @@ def _comparison_variables(comparison: xr.Dataset) -> dict:
 def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None) -> list[str]:
     """One-sentence answers of a study result, with their intervals (for the command line and the
     report): the comparison of two designs when there is one, each design against the reference,
-    and the observers a chosen half-width on the 95th percentile needs."""
+    and the observers a chosen half-width on the 95th percentile needs.
+
+    Parameters
+    ----------
+    study : Dataset
+        A study result (:func:`run_study` layout), at least ``delta_e_2000_overall`` (design,
+        statistic) in ΔE00; its ``*_interval``, ``share_beyond_overall`` and ``comparison_*``
+        variables are used when present.
+    target_half_width : float, optional
+        The interval half-width on the 95th percentile the population-size advice aims at, ΔE00
+        (None: the study's ``target_half_width`` attribute, else 0.1).
+
+    Returns
+    -------
+    list of str
+        One sentence per answer: the comparison first (two designs with intervals), then one per
+        design, then the population-size advice (with intervals only); empty for a result without
+        ``delta_e_2000_overall`` or ``design``.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> study = xr.Dataset({"delta_e_2000_overall": (("design", "statistic"), [[0.61, 0.52, 1.43, 2.2]])},
+    ...                    coords={"design": ["candidate"], "statistic": ["mean", "median", "p95", "max"]},
+    ...                    attrs={"reference": "the studio monitor"})
+    >>> study_headlines(study)
+    ['candidate differs from the studio monitor by a 95th percentile of 1.43 CIE 2000 units, median 0.52.']
+    """
     if "delta_e_2000_overall" not in study or "design" not in study.dims:
         return []
     reference = str(study.attrs.get("reference", "the reference")) or "the reference"
@@ -374,7 +513,44 @@ def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None
 
 def study_attributes(engine: dict, observers: xr.Dataset, stimuli: xr.Dataset, spec_texts: dict | None, reference,
                      design_names: Sequence[str], strategy: str, calibration) -> dict:
-    """The attributes of a study result (module docstring) from the engine's and the inputs'."""
+    """The attributes of a study result (module docstring) from the engine's and the inputs'.
+
+    Parameters
+    ----------
+    engine : dict
+        The attributes of a :func:`metasim.mismatch` result (``model``, ``reference``,
+        ``white_matched``, ...); missing ones are recorded empty.
+    observers : Dataset
+        The observer population (``observer`` dim); its ``model``, ``parameters`` (JSON text or a
+        record) and ``seed`` attributes are recorded.
+    stimuli : Dataset
+        The stimulus set (``stimulus`` dim); its ``description``, ``kind`` and ``source``.
+    spec_texts : dict or None
+        Display name → text of its spec file.
+    reference : Display or "surfaces"
+        The reference (its name goes in the title).
+    design_names : sequence of str
+        The design names, for the title.
+    strategy : str
+        The drive strategy used.
+    calibration : str or Dataset
+        The calibration observer used (``calibration_observer`` of :func:`run_study`).
+
+    Returns
+    -------
+    dict
+        ``result_kind``, ``title``, ``model``, the observer, engine, stimulus and gamut settings,
+        ``display_specs`` and ``metasim_version`` (module docstring).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.metamerism import neutral_ramp
+    >>> attrs = study_attributes({"model": "demo engine"}, metasim.observer_population(3, seed=4), neutral_ramp(3),
+    ...                          None, "surfaces", ["candidate"], "min_norm", "cie1931_2")
+    >>> attrs["title"], attrs["observer_seed"], attrs["observer_count"], attrs["result_kind"]
+    ('candidate against real objects', 4, 3, 'metasim study')
+    """
     population = dict(observers.attrs)
     parameters = population.get("parameters", "{}")
     if isinstance(parameters, str):
@@ -608,6 +784,18 @@ def _plain(value: xr.DataArray, long_name: str) -> xr.DataArray:
 def as_study(ds: xr.Dataset) -> xr.Dataset:
     """A result in the study layout: a plain :func:`metasim.mismatch` Dataset gains a one-entry
     ``design`` dim (named by its ``test`` attribute); a study is returned as it is.
+
+    Parameters
+    ----------
+    ds : Dataset
+        A study result, or a :func:`metasim.mismatch` result (``delta_e_2000`` over observer,
+        stimulus).
+
+    Returns
+    -------
+    Dataset
+        Every data variable of a mismatch result gains a leading one-entry ``design`` dim (a copy;
+        the input is unchanged); any other Dataset as it is.
 
     Examples
     --------

@@ -236,7 +236,27 @@ def result_tables(ds, *, pairs: bool = False, attributes: bool = True) -> list[T
 
 
 def attributes_table(attrs: dict) -> Table:
-    """The file's attributes as a two-column table (``attribute``, ``value``; non-text values as JSON)."""
+    """The file's attributes as a two-column table (``attribute``, ``value``; non-text values as JSON).
+
+    Parameters
+    ----------
+    attrs : dict
+        A result's ``attrs`` (model, seed, version, parameter records, ...).
+
+    Returns
+    -------
+    Table
+        Key ``attributes``, one row per attribute in the given order: strings and numbers as text,
+        booleans, None, lists, records and arrays as JSON.
+
+    Examples
+    --------
+    >>> table = attributes_table({"seed": 7, "model": "demo audience", "ages": [20, 40], "weighted": True})
+    >>> table.key, table.headers
+    ('attributes', ['attribute', 'value'])
+    >>> list(table.column("value").values)
+    ['7', 'demo audience', '[20, 40]', 'true']
+    """
     keys, values = [], []
     for key, value in attrs.items():
         keys.append(str(key))
@@ -251,7 +271,27 @@ def attributes_table(attrs: dict) -> Table:
 
 def contents_table(tables: list[Table]) -> Table:
     """One row per column of every table: ``table``, ``column`` (header), ``key``, ``long_name``,
-    ``units``, ``rows``, ``table_title``."""
+    ``units``, ``rows``, ``table_title``.
+
+    Parameters
+    ----------
+    tables : list of Table
+        From :func:`result_tables`.
+
+    Returns
+    -------
+    Table
+        Key ``contents``; ``rows`` holds each table's row count (int), the other columns text.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"p95": ("display", [0.8, 1.4], {"units": "1", "long_name": "95th percentile"})},
+    ...                     coords={"display": ["lamp", "laser"]})
+    >>> contents = contents_table(result_tables(result, attributes=False))
+    >>> list(contents.column("column").values), list(contents.column("rows").values)
+    (['display', 'p95 [1]'], [2, 2])
+    """
     rows = [(t.key, c.header, c.key, c.long_name, c.units, t.rows, t.title) for t in tables for c in t.columns]
     names = ("table", "column", "key", "long_name", "units", "rows", "table_title")
     columns = []
@@ -273,7 +313,35 @@ def _cell_text(value) -> str:
 
 
 def table_csv(table: Table) -> str:
-    """The CSV text of a table: the header row, then one row per entry."""
+    """The CSV text of a table: the header row, then one row per entry.
+
+    Floats are written as Python's ``repr`` (so they read back exactly), NaN as an empty cell,
+    integers (and booleans, stored as 1 / 0) as integers.
+
+    Parameters
+    ----------
+    table : Table
+        A table from :func:`result_tables`, :func:`attributes_table` or :func:`contents_table`.
+
+    Returns
+    -------
+    str
+        Comma-separated text, ``\\n`` line ends.
+
+    References
+    ----------
+    RFC 4180 (CSV format; quoting of cells holding commas or quotes).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"p95": ("display", [0.8, float("nan")], {"units": "1"})},
+    ...                     coords={"display": ["lamp", "laser"]})
+    >>> print(table_csv(result_tables(result, attributes=False)[0]), end="")
+    display,p95 [1]
+    lamp,0.8
+    laser,
+    """
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(table.headers)
@@ -283,7 +351,30 @@ def table_csv(table: Table) -> str:
 
 
 def csv_paths(tables: list[Table], folder, *, contents: bool = True) -> list[Path]:
-    """The files :func:`write_csv_tables` writes for these tables."""
+    """The files :func:`write_csv_tables` writes for these tables.
+
+    Parameters
+    ----------
+    tables : list of Table
+        From :func:`result_tables`.
+    folder : path-like
+        The folder the files go in (nothing is created).
+    contents : bool
+        Include ``contents.csv`` first (default True).
+
+    Returns
+    -------
+    list of Path
+        ``folder/KEY.csv`` per table, the key made safe as a file name (characters other than
+        letters, digits, ``_``, ``.`` and ``-`` become ``_``).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"p95": ("display", [0.8, 1.4])}, attrs={"seed": 7})
+    >>> [path.as_posix() for path in csv_paths(result_tables(result), "tables")]
+    ['tables/contents.csv', 'tables/p95.csv', 'tables/attributes.csv']
+    """
     keys = (["contents"] if contents else []) + [t.key for t in tables]
     return [Path(folder) / f"{_file_key(k)}.csv" for k in keys]
 
@@ -356,7 +447,36 @@ def _sheet_names(tables: list[Table]) -> list[str]:
 
 def require_workbook_writer(path=None) -> None:
     """Raise the clear error now, before anything is written: ``path`` does not end in .xlsx, or
-    openpyxl is not installed."""
+    openpyxl is not installed.
+
+    Parameters
+    ----------
+    path : path-like, optional
+        The workbook file to be written; None checks only for openpyxl.
+
+    Returns
+    -------
+    None
+        Returns only when a workbook can be written.
+
+    Raises
+    ------
+    OutputError
+        ``path`` does not end in ``.xlsx``.
+    ReportError
+        openpyxl (the ``spreadsheet`` extra) is not installed.
+
+    References
+    ----------
+    ISO/IEC 29500-1:2016 (Office Open XML, the ``.xlsx`` workbook format).
+
+    Examples
+    --------
+    >>> require_workbook_writer("audience.csv")
+    Traceback (most recent call last):
+        ...
+    metasim.errors.OutputError: audience.csv: give a workbook file name ending in .xlsx
+    """
     if path is not None and Path(path).suffix.lower() != ".xlsx":
         raise OutputError(f"{path}: give a workbook file name ending in .xlsx")
     _openpyxl()
@@ -441,7 +561,35 @@ def write_workbook(tables: list[Table], path, *, contents: bool = True, replace:
 
 
 def read_csv_table(path: str | os.PathLike) -> tuple[list[str], list[list[str]]]:
-    """The header and rows of a CSV table written by :func:`write_csv_tables` (as text)."""
+    """The header and rows of a CSV table written by :func:`write_csv_tables` (as text).
+
+    Parameters
+    ----------
+    path : path-like
+        A CSV file (UTF-8).
+
+    Returns
+    -------
+    header : list of str
+        The first row (the column headers, units in brackets).
+    rows : list of list of str
+        Every other row, cells as text (an empty cell is a NaN).
+
+    Raises
+    ------
+    FileFormatError
+        The file is empty.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"p95": ("display", [0.8, 1.4], {"units": "1"})}, coords={"display": ["lamp", "laser"]})
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     paths = write_csv_tables(result_tables(result, attributes=False), pathlib.Path(folder), contents=False)
+    ...     read_csv_table(paths[0])
+    (['display', 'p95 [1]'], [['lamp', '0.8'], ['laser', '1.4']])
+    """
     with open(path, newline="", encoding="utf-8") as handle:
         records = list(csv.reader(handle))
     if not records:

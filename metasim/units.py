@@ -41,7 +41,27 @@ DISPLAY_FORMS = {"W sr-1 m-2 nm-1": "W sr⁻¹ m⁻² nm⁻¹", "cd m-2": "cd/m�
 
 
 def unit_text(units: str) -> str:
-    """A file's unit as a reader reads it: ``"W sr-1 m-2 nm-1"`` → ``"W sr⁻¹ m⁻² nm⁻¹"``; ``"1"`` → ``""``."""
+    """A file's unit as a reader reads it: ``"W sr-1 m-2 nm-1"`` → ``"W sr⁻¹ m⁻² nm⁻¹"``; ``"1"`` → ``""``.
+
+    Parameters
+    ----------
+    units : str
+        A ``units`` attribute as stored in a result file (``"nm"``, ``"cd m-2"``, ``"1"``, ...); ``None``
+        or empty reads as no unit.
+
+    Returns
+    -------
+    str
+        The display form of :data:`DISPLAY_FORMS` (superscripts, ``cd/m²``), ``""`` for unitless
+        (``"1"``) or missing units, any other unit unchanged.
+
+    Examples
+    --------
+    >>> unit_text("W sr-1 m-2 nm-1")
+    'W sr⁻¹ m⁻² nm⁻¹'
+    >>> unit_text("cd m-2"), unit_text(UNITLESS), unit_text(DELTA_E00)
+    ('cd/m²', '', 'ΔE00')
+    """
     units = str(units or "")
     if units == UNITLESS:
         return ""
@@ -52,8 +72,26 @@ def axis_label(quantity: str, units: str) -> str:
     """An axis label with its unit in brackets: ``axis_label("95th percentile", DELTA_E00)`` →
     ``"95th percentile (ΔE00)"``; unitless quantities get ``(unitless)`` or ``(%)`` from the caller.
 
+    Parameters
+    ----------
+    quantity : str
+        What the axis shows, in words ("95th percentile", "wavelength").
+    units : str
+        The quantity's ``units`` attribute as stored in a file (read through :func:`unit_text`).
+
+    Returns
+    -------
+    str
+        ``"quantity (unit)"``, or ``"quantity (unitless)"`` when the unit is ``"1"`` or missing.
+
+    Examples
+    --------
     >>> axis_label("CIE 2000 colour difference", DELTA_E00)
     'CIE 2000 colour difference (ΔE00)'
+    >>> axis_label("spectral radiance", "W sr-1 m-2 nm-1")
+    'spectral radiance (W sr⁻¹ m⁻² nm⁻¹)'
+    >>> axis_label("share of observers", UNITLESS)
+    'share of observers (unitless)'
     """
     text = unit_text(units)
     return f"{quantity} ({text})" if text else f"{quantity} (unitless)"
@@ -62,8 +100,29 @@ def axis_label(quantity: str, units: str) -> str:
 def format_volume(value: float) -> str:
     """A CIELAB volume as a reader reads it: ``1.11e6`` → ``"1.11 million CIELAB units³"``.
 
+    Parameters
+    ----------
+    value : float
+        A volume in CIELAB space (units: ``CIELAB units³``, i.e. ΔE*ab cubed); NaN for one not computed.
+
+    Returns
+    -------
+    str
+        Three significant figures in millions from one million up, a whole number with thousands
+        separators below, ``"not computed"`` for NaN.
+
+    References
+    ----------
+    CIE 15:2004 §8.2.1 (CIELAB, the space whose volume this is).
+
+    Examples
+    --------
     >>> format_volume(1_110_000.0)
     '1.11 million CIELAB units³'
+    >>> format_volume(825_431.6)
+    '825,432 CIELAB units³'
+    >>> format_volume(float("nan"))
+    'not computed'
     """
     value = float(value)
     if value != value:  # NaN

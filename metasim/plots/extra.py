@@ -13,7 +13,38 @@ from metasim.units import DELTA_E00
 
 def extra_primary_value_figure(value: xr.Dataset) -> Figure:
     """Left: xy area, CIELAB volume and BT.2020 coverage added (%); right: 95th percentile CIE 2000
-    difference saved, per candidate peak wavelength (:func:`metasim.sweep.extra_primary_value`)."""
+    difference saved, per candidate peak wavelength (:func:`metasim.sweep.extra_primary_value`).
+
+    Parameters
+    ----------
+    value : xarray.Dataset
+        A :func:`metasim.sweep.extra_primary_value` result over ``peak_wavelength`` (nm):
+        ``area_gain_share`` (share of the base xy area), ``coverage_gain`` (share of the BT.2020 xy
+        area), optionally ``volume_gain_share`` (share of the base CIELAB volume), all unitless;
+        ``mismatch_gain`` (ΔE00 saved on the 95th percentile) and ``base_delta_e_2000_p95`` (0-d,
+        ΔE00); attribute ``candidate_kind``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Two axes side by side (gamut in %, mismatch saved in ΔE00).
+
+    References
+    ----------
+    CIE 15:2004 §7.3, §8.2.1 (CIE 1931 xy, CIELAB); CIE 142-2001 (CIEDE2000); ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> peaks = {"peak_wavelength": [490.0, 510.0]}
+    >>> value = xr.Dataset({"area_gain_share": ("peak_wavelength", [0.08, 0.12]),
+    ...                     "coverage_gain": ("peak_wavelength", [0.05, 0.07]),
+    ...                     "mismatch_gain": ("peak_wavelength", [0.3, -0.1]),
+    ...                     "base_delta_e_2000_p95": 1.9}, coords=peaks)
+    >>> fig = extra_primary_value_figure(value)
+    >>> [ax.get_title() for ax in fig.axes]
+    ['Gamut', 'Viewer disagreement (base: 1.90)']
+    """
     peaks = value["peak_wavelength"].values
     with rc_context(STYLE):
         fig, axes = _figure(11.0, 4.4, 1, 2, sharex=True)

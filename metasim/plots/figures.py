@@ -57,7 +57,28 @@ def _figure(width: float, height: float, nrows: int = 1, ncols: int = 1, **kwarg
 
 
 def png_bytes(fig: Figure) -> bytes:
-    """The figure as PNG bytes."""
+    """The figure as PNG bytes.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        A figure of this module (or any figure with a canvas).
+
+    Returns
+    -------
+    bytes
+        The PNG file, drawn in the house style (:data:`STYLE`, 110 dpi).
+
+    References
+    ----------
+    ISO/IEC 15948:2004 (Portable Network Graphics).
+
+    Examples
+    --------
+    >>> from matplotlib.figure import Figure
+    >>> png_bytes(Figure(figsize=(1.0, 1.0)))[1:4]
+    b'PNG'
+    """
     buffer = io.BytesIO()
     with rc_context(STYLE):
         fig.savefig(buffer, format="png")
@@ -65,12 +86,62 @@ def png_bytes(fig: Figure) -> bytes:
 
 
 def save_png(fig: Figure, path, *, replace: bool = True) -> Path:
-    """Write the figure as a PNG file (through :func:`metasim.io.write_bytes`); returns the path."""
+    """Write the figure as a PNG file (through :func:`metasim.io.write_bytes`); returns the path.
+
+    Parameters
+    ----------
+    fig : matplotlib.figure.Figure
+        The figure.
+    path : path-like
+        The PNG file; its folder must exist.
+    replace : bool
+        Replace an existing file (default True).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    OutputError
+        ``path`` is a folder or its folder does not exist.
+    OutputExistsError
+        ``path`` exists and ``replace`` is False.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from matplotlib.figure import Figure
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = save_png(Figure(figsize=(1.0, 1.0)), pathlib.Path(folder) / "blank.png")
+    ...     print(path.name, path.read_bytes()[1:4])
+    blank.png b'PNG'
+    """
     return write_bytes(path, png_bytes(fig), replace=replace)
 
 
 def colours_for(names, roles=None) -> dict:
-    """Colour of each display: slate for the reference, the design palette in order for the others."""
+    """Colour of each display: slate for the reference, the design palette in order for the others.
+
+    Parameters
+    ----------
+    names : sequence
+        Display (or design) names, in order.
+    roles : sequence of str, optional
+        ``"reference"`` or ``"design"`` per name (a study's ``display_role``); default all designs.
+
+    Returns
+    -------
+    dict
+        Name (as text) → hex colour: :data:`REFERENCE_COLOUR` for references, the
+        :data:`DESIGN_COLOURS` in turn (repeating after six) for the others.
+
+    Examples
+    --------
+    >>> colours_for(["monitor", "lamp", "laser"], ["reference", "design", "design"])
+    {'monitor': '#2b3a55', 'lamp': '#d9633b', 'laser': '#2a9d8f'}
+    """
     out, k = {}, 0
     roles = list(roles) if roles is not None else ["design"] * len(names)
     for name, role in zip(names, roles):
@@ -104,6 +175,38 @@ def chromaticity_diagram(gamut_polygon: xr.DataArray, primary_xy: xr.DataArray |
     ``references`` names the reference gamuts outlined (a study's ``reference_gamut`` values: every
     gamut its coverage table lists). Outlines with the same primaries (Display P3 and DCI-P3, which
     differ only in their white) are drawn once and named together.
+
+    Parameters
+    ----------
+    gamut_polygon : xarray.DataArray (display, vertex, chromaticity)
+        Gamut hull of each display in CIE 1931 xy (unitless), NaN padded; a ``display_role``
+        coordinate colours the reference (:func:`colours_for`).
+    primary_xy : xarray.DataArray (display, primary, chromaticity), optional
+        CIE 1931 xy of each primary (unitless), NaN padded; marked as dots.
+    white_xy : xarray.DataArray (display, chromaticity), optional
+        CIE 1931 xy of each display white (unitless); marked as crosses.
+    references : sequence of str
+        Reference gamuts outlined (keys of :data:`metasim.gamut.REFERENCE_GAMUTS`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis; the spectrum locus of the CIE 1931 2° observer with wavelength ticks (nm).
+
+    References
+    ----------
+    CIE 15:2004 §7.3 (CIE 1931 chromaticity diagram); reference primaries ITU-R BT.709-6,
+    ITU-R BT.2020-2, SMPTE EG 432-1 (Display P3), SMPTE RP 431-2 (DCI-P3).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> polygon = xr.DataArray([[[0.68, 0.32], [0.265, 0.69], [0.15, 0.06]]],
+    ...                        dims=("display", "vertex", "chromaticity"),
+    ...                        coords={"display": ["candidate"], "chromaticity": ["x", "y"]})
+    >>> fig = chromaticity_diagram(polygon)
+    >>> fig.axes[0].get_xlabel(), [text.get_text() for text in fig.axes[0].get_legend().get_texts()]
+    ('x (CIE 1931 chromaticity, unitless)', ['spectrum locus (CIE 1931 2°)', 'ITU-R BT.709', 'ITU-R BT.2020', 'candidate'])
     """
     from metasim.gamut import reference_xy, spectrum_locus
     from metasim.observers import standard_observer
@@ -202,6 +305,30 @@ def primary_spectra(spectra: xr.DataArray, primary_label: xr.DataArray | None = 
     taller than the broadband curves of the same panel, the axis is scaled to the broadband curves
     and the lines are cut at the top with their peak radiance written beside them, so that both stay
     readable. Legends sit beside the panels, never over a curve.
+
+    Parameters
+    ----------
+    spectra : xarray.DataArray ([display,] primary, wavelength)
+        Spectral radiance of each primary, W sr-1 m-2 nm-1 (its ``units`` attribute labels the
+        axis); without ``display`` one panel named by the ``name`` attribute.
+    primary_label : xarray.DataArray (display, primary), optional
+        Label of each primary (default: the ``primary`` coordinate).
+    primary_xy : xarray.DataArray (display, primary, chromaticity), optional
+        CIE 1931 xy of each primary (unitless): the curve colours (approximate sRGB); grey without.
+    descriptions : dict, optional
+        Display name → {primary label → words}.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis per display, wavelength in nm (shown up to 780 nm).
+
+    Examples
+    --------
+    >>> from metasim.emitters import gaussian
+    >>> fig = primary_spectra(gaussian([455, 535, 615], 30, name=["B", "G", "R"]))
+    >>> fig.axes[0].get_xlabel(), fig.axes[0].get_legend().get_texts()[0].get_text()
+    ('Wavelength (nm)', 'B (peak 455 nm)')
     """
     if "display" not in spectra.dims:
         spectra = spectra.expand_dims(display=[str(spectra.attrs.get("name", "display"))])
@@ -265,6 +392,26 @@ def band_members(age_years: np.ndarray, labels) -> list[np.ndarray]:
 
     Bands follow :func:`metasim.metamerism.summarise`: band i covers [lo_i, lo_(i+1)), the last is
     closed at its upper end.
+
+    Parameters
+    ----------
+    age_years : numpy.ndarray (observer)
+        Observer ages, years.
+    labels : sequence of str
+        Age-band labels ``"lo-hi"`` in years, in increasing order (the engine's ``age_band``
+        coordinate).
+
+    Returns
+    -------
+    list of numpy.ndarray of bool (observer)
+        One mask per band.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> masks = band_members(np.array([25.0, 30.0, 39.9, 40.0]), ["20-29", "30-40"])
+    >>> [mask.tolist() for mask in masks]
+    [[True, False, False, False], [False, True, True, True]]
     """
     bounds = [tuple(float(v) for v in str(label).split("-")) for label in labels]
     masks = []
@@ -283,6 +430,35 @@ def delta_e_by_age(delta_e: xr.DataArray, age_bands=None, thresholds=(1.0, 2.0, 
     coordinate; ``age_bands`` are labels as in the engine's ``age_band`` coordinate (default: the
     engine's default bands, the decades covering the ages). Boxes span the quartiles, whiskers the 5th-95th percentiles; the diamond is the mean.
     The box numbers come from :mod:`metasim.statistics` (observer weights when present).
+
+    Parameters
+    ----------
+    delta_e : xarray.DataArray ([design,] observer, stimulus)
+        CIE 2000 differences, ΔE00, with an ``age_years`` coordinate on ``observer`` (and a
+        ``weight`` one for observer categories).
+    age_bands : sequence of str, optional
+        Age-band labels ``"lo-hi"`` (years); default the decades covering the ages.
+    thresholds : sequence of float
+        ΔE00 levels drawn as dotted lines (common practice: 1, 2, 3, no source).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis: a box per band and design (bands without observers left empty).
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000); box-plot statistics by :mod:`metasim.statistics.summaries`
+    (Hyndman & Fan 1996 quantiles).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> delta_e = xr.DataArray([[0.4, 1.1], [0.9, 2.3], [1.5, 3.2]], dims=("observer", "stimulus"),
+    ...                        coords={"age_years": ("observer", [24.0, 47.0, 71.0])})
+    >>> fig = delta_e_by_age(delta_e, ["20-45", "45-70", "70-80"])
+    >>> [tick.get_text() for tick in fig.axes[0].get_xticklabels()]
+    ['20-45\\n(n=1)', '45-70\\n(n=1)', '70-80\\n(n=1)']
     """
     from metasim.statistics import observer_weights, quantiles, weighted_mean
 
@@ -352,6 +528,32 @@ def p95_by_stimulus(by_stimulus: xr.DataArray, max_stimuli: int = 40) -> Figure:
     ``max_stimuli`` the largest are shown. Stimuli at zero for every design (black: nothing to
     see) get no empty row; the title says how many were left out. Within each stimulus the
     designs stand in legend order, top to bottom.
+
+    Parameters
+    ----------
+    by_stimulus : xarray.DataArray ([design,] statistic, stimulus)
+        Statistics of CIE 2000 differences over observers, ΔE00, with ``statistic`` holding
+        ``"p95"``.
+    max_stimuli : int
+        Most stimuli shown (the largest).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis of horizontal bars.
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> by_stimulus = xr.DataArray([[0.0, 1.2, 0.7]], dims=("statistic", "stimulus"),
+    ...                            coords={"statistic": ["p95"], "stimulus": ["black", "skin", "sky"]})
+    >>> fig = p95_by_stimulus(by_stimulus)
+    >>> [tick.get_text() for tick in fig.axes[0].get_yticklabels()], fig.axes[0].get_title().splitlines()[1]
+    (['sky', 'skin'], '(1 stimulus at 0 for every design not shown)')
     """
     if "design" not in by_stimulus.dims:
         by_stimulus = by_stimulus.expand_dims(design=["design"])
@@ -401,6 +603,35 @@ def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.Data
     (dotted); ``own_extra_nm`` (design name → {label: peak}) marks the primaries a design has beyond
     its base (solid, labelled): where the curve peaks at such a line, the design already holds that
     gain.
+
+    Parameters
+    ----------
+    area_gain_share : xarray.DataArray ([design,] peak_wavelength)
+        Chromaticity-area gain (CIE 1931 xy), a share of the base area (unitless); ``peak_wavelength``
+        in nm.
+    volume_gain_share : xarray.DataArray ([design,] peak_wavelength), optional
+        CIELAB volume gain, a share of the base volume (unitless); a second panel.
+    primary_peaks_nm : dict, optional
+        Design name → peak wavelengths (nm) of its base primaries.
+    own_extra_nm : dict, optional
+        Design name → {primary label → peak wavelength (nm)} of its primaries beyond the base.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis per panel, gains in %.
+
+    References
+    ----------
+    CIE 15:2004 §7.3 (CIE 1931 xy), §8.2.1 (CIELAB).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> share = xr.DataArray([0.02, 0.11, 0.05], dims="peak_wavelength", coords={"peak_wavelength": [480.0, 500.0, 520.0]})
+    >>> fig = extra_primary_gain(share, primary_peaks_nm={"design": [455.0, 535.0, 615.0]})
+    >>> len(fig.axes), fig.axes[0].get_xlabel()
+    (1, 'Candidate peak wavelength (nm)')
     """
     panels = [("area", area_gain_share, "Chromaticity area gain\n(% of base area, CIE 1931 xy)")]
     if volume_gain_share is not None:
@@ -439,7 +670,33 @@ def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.Data
 # -- observer populations ------------------------------------------------------------------------------
 
 def observer_spread(population: xr.Dataset) -> Figure:
-    """Ages of a population and the spread of its colour-matching functions (5th-95th percentile)."""
+    """Ages of a population and the spread of its colour-matching functions (5th-95th percentile).
+
+    Parameters
+    ----------
+    population : xarray.Dataset
+        An observer population or categories (:func:`metasim.observer_population`,
+        :func:`metasim.observer_categories`): ``cmf`` (observer, xyz, wavelength), unitless, with
+        ``age_years`` (years) and, for categories, ``weight`` coordinates on ``observer``.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Left: an age histogram (categories: each one's share at its age); right: median and
+        5th-95th percentile band of x̄, ȳ, z̄ over the observers against wavelength (nm).
+
+    References
+    ----------
+    Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671 (the population model); CIE 170-1:2006
+    (the cone-fundamental-based functions it varies).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> fig = observer_spread(metasim.observer_population(5, seed=1))
+    >>> [ax.get_title() for ax in fig.axes]
+    ['Ages', "Spread of the observers' functions"]
+    """
     with rc_context(STYLE):
         fig, axes = _figure(9.0, 3.8, 1, 2)
         ages = np.asarray(population.coords["age_years"].values, dtype=float) if "age_years" in population.coords else None

@@ -33,7 +33,33 @@ def _label(ds: xr.Dataset, name: str) -> str:
 
 
 def fit_parameters(ds: xr.Dataset) -> Figure:
-    """Estimates (±2 standard errors, or their histogram) against the prior mean ± 1 and 2 SD, per parameter."""
+    """Estimates (±2 standard errors, or their histogram) against the prior mean ± 1 and 2 SD, per parameter.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        An observer fit (:func:`metasim.fit_observer`): ``estimate``, ``standard_error`` and
+        ``identified`` (bool) over (observer, parameter), ``prior_mean`` and ``prior_sd`` over
+        ``parameter``, in each parameter's units (coordinate ``parameter_units``: nm, %, years).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis per parameter: up to :data:`MAX_SUBJECT_ROWS` subjects one row each with ± 2
+        standard errors (grey: not identified), more as a histogram against the prior density.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> parameters = {"parameter": ["l_shift_nm", "lens_pct"], "observer": ["s1", "s2"]}
+    >>> fit = xr.Dataset({"estimate": (("observer", "parameter"), [[1.2, 5.0], [-0.8, -12.0]]),
+    ...                   "standard_error": (("observer", "parameter"), [[0.5, 9.0], [0.6, 8.0]]),
+    ...                   "identified": (("observer", "parameter"), [[True, False], [True, True]]),
+    ...                   "prior_mean": ("parameter", [0.0, 0.0]), "prior_sd": ("parameter", [1.5, 18.7])},
+    ...                  coords={**parameters, "parameter_units": ("parameter", ["nm", "%"])})
+    >>> [ax.get_xlabel() for ax in fit_parameters(fit).axes if ax.get_visible()]
+    ['L-cone shift (nm)', 'lens (%)']
+    """
     names = [str(v) for v in ds["parameter"].values]
     n = ds.sizes["observer"]
     cols = 3 if len(names) == 9 else 4
@@ -85,7 +111,35 @@ def fit_parameters(ds: xr.Dataset) -> Figure:
 
 
 def fit_residuals(ds: xr.Dataset) -> Figure:
-    """Match errors of the mean observer and the fitted observers: per stimulus and per subject."""
+    """Match errors of the mean observer and the fitted observers: per stimulus and per subject.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        An observer fit (:func:`metasim.fit_observer`): ``match_error`` and
+        ``match_error_mean_observer`` over (observer, matching_stimulus, matching_repeat), in
+        ΔE00 when the attribute ``matching_data`` is ``"matching session"``, else CIE 1976 Δu'v'
+        (unitless); a ``test_wavelength`` coordinate (nm) puts the stimuli on a wavelength axis.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Left: median and 10-90 % band per stimulus; right: histogram of each subject's median error.
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000); CIE 15:2004 §7.3 (CIE 1976 u'v').
+
+    Examples
+    --------
+    >>> import numpy as np, xarray as xr
+    >>> dims = ("observer", "matching_stimulus", "matching_repeat")
+    >>> fit = xr.Dataset({"match_error": (dims, np.full((2, 3, 1), 0.004)),
+    ...                   "match_error_mean_observer": (dims, np.full((2, 3, 1), 0.011))},
+    ...                  coords={"matching_stimulus": ["yellow", "cyan", "white"]})
+    >>> [ax.get_xlabel() for ax in fit_residuals(fit).axes]
+    ['Reference', "Median match error per subject (CIE 1976 Δu'v', unitless)"]
+    """
     session = ds.attrs.get("matching_data") == "matching session"
     unit = f"CIE 2000, {DELTA_E00}" if session else "CIE 1976 Δu'v', unitless"
     fitted = ds["match_error"].transpose("observer", "matching_stimulus", "matching_repeat").values

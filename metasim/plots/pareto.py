@@ -25,7 +25,31 @@ OBJECTIVE_AXES = {
 
 
 def objective_axis(name: str, sense: str, long_name: str = "") -> tuple[str, float]:
-    """Axis label (with which way is better) and display scale of an objective."""
+    """Axis label (with which way is better) and display scale of an objective.
+
+    Parameters
+    ----------
+    name : str
+        Objective name (:data:`metasim.sweep.pareto.OBJECTIVES`) or a ``design`` variable.
+    sense : {"min", "max"}
+        Whether smaller or larger is better.
+    long_name : str
+        Words for an objective not in :data:`OBJECTIVE_AXES` (default: the name, ``_`` as spaces).
+
+    Returns
+    -------
+    label : str
+        The axis words with their unit, then ``"lower is better"`` or ``"higher is better"``.
+    scale : float
+        Factor from the stored value to the axis (100 for shares shown in %, else 1).
+
+    Examples
+    --------
+    >>> objective_axis("bt2020_coverage", "max")
+    ('BT.2020 xy area covered (%)\\nhigher is better', 100.0)
+    >>> objective_axis("cost_index", "min")
+    ('cost index\\nlower is better', 1.0)
+    """
     text, scale = OBJECTIVE_AXES.get(name, (long_name or name.replace("_", " "), 1.0))
     return f"{text}\n{'lower' if sense == 'min' else 'higher'} is better", scale
 
@@ -35,11 +59,34 @@ def pareto_figure(values: np.ndarray, ranks: np.ndarray, objectives: list[dict],
 
     Parameters
     ----------
-    values : ndarray (design × objective)
-    ranks : ndarray of int (design): 1 = front, 0 = not ranked
-    objectives : list of {"name", "sense", "long_name"} (as recorded with ``pareto_rank``)
+    values : numpy.ndarray (design, objective)
+        Objective values as stored (shares 0..1, ΔE00, CIELAB units³, ...).
+    ranks : numpy.ndarray of int (design)
+        Pareto rank: 1 = front, 0 = not ranked (:func:`metasim.sweep.pareto.pareto_ranks`).
+    objectives : list of dict
+        ``{"name", "sense", "long_name"}`` per objective column (as recorded with ``pareto_rank``).
     labels : sequence of str, optional
         A short label per design; front designs are annotated with it when the front is small.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis per objective after the first (the first on every y axis; one axis for a single
+        objective).
+
+    References
+    ----------
+    Deb, Pratap, Agarwal & Meyarivan (2002) IEEE Trans. Evol. Comput. 6(2), 182-197 (Pareto ranks,
+    non-dominated sorting).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> objectives = [{"name": "p95_mismatch", "sense": "min"}, {"name": "bt2020_coverage", "sense": "max"}]
+    >>> fig = pareto_figure(np.array([[1.2, 0.70], [1.6, 0.80], [1.7, 0.75]]), np.array([1, 1, 2]), objectives,
+    ...                     ["a", "b", "c"])
+    >>> fig.axes[0].get_xlabel()
+    'BT.2020 xy area covered (%)\\nhigher is better'
     """
     k = values.shape[1]
     panels = max(1, k - 1)
@@ -78,7 +125,39 @@ def pareto_figure(values: np.ndarray, ranks: np.ndarray, objectives: list[dict],
 
 
 def result_pareto_figure(ds: xr.Dataset) -> Figure:
-    """:func:`pareto_figure` of a result that carries ``pareto_rank`` (metasim.sweep.pareto)."""
+    """:func:`pareto_figure` of a result that carries ``pareto_rank`` (metasim.sweep.pareto).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep or search result over ``design`` with ``pareto_rank`` and the objective variables
+        its ``objectives`` attribute names (:func:`metasim.sweep.pareto.pareto_front`).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        As :func:`pareto_figure`, designs labelled with their ``design`` coordinate.
+
+    Raises
+    ------
+    SweepError
+        The recorded objectives name variables the result does not hold, or ``pareto_rank``
+        records none.
+
+    References
+    ----------
+    Deb, Pratap, Agarwal & Meyarivan (2002) IEEE Trans. Evol. Comput. 6(2), 182-197.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.sweep.pareto import pareto_front
+    >>> ds = xr.Dataset({"cost": ("design", [3.0, 1.0, 2.0]), "gain": ("design", [3.0, 1.0, 1.0])},
+    ...                 coords={"design": [0, 1, 2]})
+    >>> fig = result_pareto_figure(pareto_front(ds, {"cost": "min", "gain": "max"}))
+    >>> fig.axes[0].get_ylabel(), fig.axes[0].get_xlabel()
+    ('cost\\nlower is better', 'gain\\nhigher is better')
+    """
     objectives = pareto_objectives(ds)
     values = objective_values(ds, {o["name"]: o["sense"] for o in objectives})[0]
     labels = [str(v) for v in ds["design"].values]

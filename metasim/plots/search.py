@@ -16,7 +16,31 @@ from metasim.units import axis_label
 
 def search_convergence(result: xr.Dataset, penalty: float = 1.0e6) -> Figure:
     """Value of every evaluated design (feasible ones; infeasible ones marked at the top) per generation,
-    and the best value found so far (:func:`metasim.sweep.run_search` results)."""
+    and the best value found so far (:func:`metasim.sweep.run_search` results).
+
+    Parameters
+    ----------
+    result : xarray.Dataset
+        A search result over ``design``: ``generation`` (int; 0 = the initial population) and
+        ``search_objective`` (the value minimised, with its ``units`` and ``long_name``).
+    penalty : float
+        Values at or above it mark designs that break a constraint (the search's penalty value).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        One axis: designs per generation, the best so far as a line.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"generation": ("design", [0, 0, 1, 1]),
+    ...                      "search_objective": ("design", [2.1, 1.0e6, 1.7, 1.4],
+    ...                                           {"units": "ΔE00", "long_name": "95th percentile CIE 2000 difference"})})
+    >>> fig = search_convergence(result)
+    >>> fig.axes[0].get_title(), fig.axes[0].get_ylabel()
+    ('Search: 4 designs in 2 generations', 'Minimised: 95th percentile CIE 2000\\ndifference (ΔE00)')
+    """
     generation = np.asarray(result["generation"].values)
     value = np.asarray(result["search_objective"].values, dtype=float)
     feasible = value < penalty

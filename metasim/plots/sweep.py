@@ -25,7 +25,27 @@ EMITTER_WORDS = {"laser": "laser", "gaussian": "Gaussian primary", "quantum_dot"
 
 
 def sweep_spec(summary: xr.Dataset) -> dict:
-    """The sweep spec recorded in a sweep result's attributes (a dict; empty when absent or unreadable)."""
+    """The sweep spec recorded in a sweep result's attributes (a dict; empty when absent or unreadable).
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result (``STORE/sweep.nc``); its ``spec`` attribute holds the spec as a record or
+        as JSON text.
+
+    Returns
+    -------
+    dict
+        The spec's keys and values; empty when there is no ``spec``, it is not JSON or not a record.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep_spec(xr.Dataset(attrs={"spec": '{"sweep_name": "laser reds", "parameters": ["peak_nm_R"]}'}))
+    {'sweep_name': 'laser reds', 'parameters': ['peak_nm_R']}
+    >>> sweep_spec(xr.Dataset(attrs={"spec": "not JSON"}))
+    {}
+    """
     import json
 
     spec = summary.attrs.get("spec", {})
@@ -52,6 +72,27 @@ def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
     """The design parameters of a sweep summary: (varied, fixed) coordinate names, in the spec's order.
 
     A parameter is varied when it takes more than one value over ``design``.
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result: its coordinates over ``design`` alone are the design parameters; the
+        recorded spec's ``parameters`` (:func:`sweep_spec`) give their order, others follow.
+
+    Returns
+    -------
+    varied : list of str
+        Coordinate names of the parameters that take more than one value.
+    fixed : list of str
+        Those that take one value.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"design": [0, 1], "peak_nm_R": ("design", [620.0, 640.0]),
+    ...                            "width_nm": ("design", [2.0, 2.0])})
+    >>> sweep_parameters(sweep)
+    (['peak_nm_R'], ['width_nm'])
     """
     names = [str(c) for c in summary.coords if summary[c].dims == ("design",) and c != "design"]
     order = [str(c) for c in sweep_spec(summary).get("parameters", []) if str(c) in names]
@@ -61,7 +102,38 @@ def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
 
 
 def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
-    """Words and units of a design parameter, e.g. ``("red laser peak", "nm")`` (units "" when none)."""
+    """Words and units of a design parameter, e.g. ``("red laser peak", "nm")`` (units "" when none).
+
+    ``peak_nm_<label>`` and ``width_nm[_<label>]`` are named from the primary's colour letter
+    (:data:`COLOUR_WORDS`) and the emitter kind of the recorded spec (:data:`EMITTER_WORDS`); other
+    parameters by their ``long_name``.
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result holding the parameter as a coordinate.
+    name : str
+        The parameter's coordinate name.
+
+    Returns
+    -------
+    words : str
+        The parameter in words.
+    units : str
+        Its ``units`` attribute (``"nm"`` for a name ending in ``_nm`` without one); ``""`` for none
+        or unitless (``"1"``).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [620.0, 640.0], {"units": "nm"}),
+    ...                            "width_nm": ("design", [2.0, 4.0])},
+    ...                    attrs={"spec": {"design_parameters": {"kind": "laser"}}})
+    >>> parameter_text(sweep, "peak_nm_R"), parameter_text(sweep, "width_nm")
+    (('red laser peak', 'nm'), ('laser line width (FWHM)', 'nm'))
+    >>> parameter_text(sweep.assign_attrs(spec={}), "peak_nm_R")  # no emitter kind recorded
+    ('red primary peak', 'nm')
+    """
     kind = _design_kind(summary)
     emitter = EMITTER_WORDS.get(kind, "primary")
     units = summary[name].attrs.get("units") if name in summary.coords else None
@@ -110,13 +182,56 @@ def edge_messages(summary: xr.Dataset) -> list[str]:
 
 
 def parameter_label(summary: xr.Dataset, name: str) -> str:
-    """Axis label of a design parameter with its units, e.g. ``"red laser peak (nm)"``."""
+    """Axis label of a design parameter with its units, e.g. ``"red laser peak (nm)"``.
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result holding the parameter as a coordinate.
+    name : str
+        The parameter's coordinate name.
+
+    Returns
+    -------
+    str
+        :func:`parameter_text` words, the units in brackets when there are any.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"peak_nm_G": ("design", [520.0, 532.0], {"units": "nm"}),
+    ...                            "drive": ("design", ["min_norm", "max_white"], {"long_name": "drive strategy"})})
+    >>> parameter_label(sweep, "peak_nm_G"), parameter_label(sweep, "drive")
+    ('green primary peak (nm)', 'drive strategy')
+    """
     text, units = parameter_text(summary, name)
     return f"{text} ({units})" if units else text
 
 
 def parameter_value(summary: xr.Dataset, name: str, index: int) -> str:
-    """One design's value of a parameter with its units, e.g. ``"640 nm"``."""
+    """One design's value of a parameter with its units, e.g. ``"640 nm"``.
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result holding the parameter as a coordinate over ``design``.
+    name : str
+        The parameter's coordinate name.
+    index : int
+        Position of the design along ``design`` (not its label).
+
+    Returns
+    -------
+    str
+        Numbers in the shortest form (``%g``) followed by the units, text as it is.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [620.0, 640.0], {"units": "nm"})})
+    >>> parameter_value(sweep, "peak_nm_R", 1)
+    '640 nm'
+    """
     units = parameter_text(summary, name)[1]
     return _tick(summary[name].values[index]) + (f" {units}" if units else "")
 
@@ -250,6 +365,32 @@ def sweep_figure(summary: xr.Dataset) -> Figure:
     stimulus pairs) against the parameter, with BT.2020 coverage in a second panel when present.
     Two: a heat map of the 95th percentile over both. None or more than two: every design's 95th
     percentile, sorted (rank plot). The design with the smallest 95th percentile is starred.
+
+    Parameters
+    ----------
+    summary : xarray.Dataset
+        A sweep result: ``delta_e_2000_overall`` (design, statistic) in ΔE00 with ``"p95"`` and
+        ``"median"``, the design parameters as coordinates over ``design`` (:func:`sweep_parameters`),
+        and optionally ``gamut_coverage`` (design, reference_gamut), a share, for the BT.2020 panel.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        Curves (one varied parameter), a heat map (two) or a rank plot (otherwise).
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000); ITU-R BT.2020-2 (the coverage reference).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset({"delta_e_2000_overall": (("design", "statistic"), [[0.9, 2.4], [0.7, 1.8], [0.8, 2.1]])},
+    ...                    coords={"design": [0, 1, 2], "statistic": ["median", "p95"],
+    ...                            "peak_nm_R": ("design", [620.0, 630.0, 640.0], {"units": "nm"})})
+    >>> fig = sweep_figure(sweep)
+    >>> fig.axes[0].get_title(), fig.axes[-1].get_xlabel()
+    ('Mismatch of each design against the reference', 'red primary peak (nm)')
     """
     stats = summary["delta_e_2000_overall"].transpose("design", "statistic")
     p95 = np.asarray(stats.sel(statistic="p95").values, dtype=float)
