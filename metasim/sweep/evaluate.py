@@ -120,35 +120,35 @@ def prepare(reference, test: Display, observers, stimuli: xr.Dataset, *, calibra
     if include_itp is None:
         transfers = {test.transfer} | ({reference.transfer} if isinstance(reference, Display) else set())
         include_itp = bool(transfers & {"pq", "hlg"})
-    obs = side.observers
-    cmf, step = flat_observers(obs)
+    population = side.observers
+    cmf, step = flat_observers(population)
     reference_matrices = None
     if side.reference_kind == "display":
-        (m_ref, b_ref), = display_matrices([side.reference], cmf, step)
-        reference_matrices = (m_ref[:1], b_ref[:1])
-        white_ref = m_ref[0].sum(-1) + b_ref[0]  # (O, 3), summed as the engine sums the test white
-        xyz_ref = apply_matrices(side.rendering.drive, m_ref[:1], b_ref[:1])[0]  # (O, S, 3)
+        (reference_matrix, reference_black), = display_matrices([side.reference], cmf, step)
+        reference_matrices = (reference_matrix[:1], reference_black[:1])
+        white_reference = reference_matrix[0].sum(-1) + reference_black[0]  # (O, 3), summed as the engine sums the test white
+        xyz_reference = apply_matrices(side.rendering.drive, reference_matrix[:1], reference_black[:1])[0]  # (O, S, 3)
     else:  # the white and every object's reflected light in one integration, as the engine does
-        n_w = cmf.shape[-1]
-        stim = list(side.targets.dims[:-1])
-        light = np.concatenate([side.white_spectrum.values.reshape(1, n_w),
-                                side.rendering.transpose(*stim, "wavelength").values.reshape(-1, n_w)])
+        wavelengths = cmf.shape[-1]
+        stimulus_dims = list(side.targets.dims[:-1])
+        light = np.concatenate([side.white_spectrum.values.reshape(1, wavelengths),
+                                side.rendering.transpose(*stimulus_dims, "wavelength").values.reshape(-1, wavelengths)])
         seen = observer_xyz(cmf, step, light).reshape(cmf.shape[0], 3, -1)
-        white_ref = seen[..., 0]
-        xyz_ref = np.ascontiguousarray(np.swapaxes(seen[..., 1:], -1, -2))
+        white_reference = seen[..., 0]
+        xyz_reference = np.ascontiguousarray(np.swapaxes(seen[..., 1:], -1, -2))
     # the reference columns of the compiled pass: CIELAB against each observer's reference white,
     # or (adapted to the test white) the XYZ, CIELAB then made per design
-    xyz_ref = np.ascontiguousarray(xyz_ref, dtype=float)
-    columns = np.empty((xyz_ref.shape[0], 3, padded_drives(np.zeros((1, xyz_ref.shape[1], 1))).shape[2]))
+    xyz_reference = np.ascontiguousarray(xyz_reference, dtype=float)
+    columns = np.empty((xyz_reference.shape[0], 3, padded_drives(np.zeros((1, xyz_reference.shape[1], 1))).shape[2]))
     _warmup.wait(reference_columns)  # compiled ahead in a helper process (the test suite)
-    reference_columns(writable(xyz_ref), writable(white_ref), adapted_white == "reference", columns)
-    weights = observer_weights(obs["cmf"])
-    ages = obs.coords.variables["age_years"].values if "age_years" in obs.coords else None
+    reference_columns(writable(xyz_reference), writable(white_reference), adapted_white == "reference", columns)
+    weights = observer_weights(population["cmf"])
+    ages = population.coords.variables["age_years"].values if "age_years" in population.coords else None
     edges = age_band_edges(age_bands, ages)
     bands = age_band_members(ages, edges) if edges else None
     attrs = {key: value for key, value in result_attrs(side, "", match_white, adapted_white, strategy).items()
              if key != "test"}
-    return SweepContext(side=side, cmf=cmf, step=step, white_reference=white_ref, xyz_reference=xyz_ref,
+    return SweepContext(side=side, cmf=cmf, step=step, white_reference=white_reference, xyz_reference=xyz_reference,
                         reference_columns=columns,
                         reference_matrices=reference_matrices, strategy=strategy,
                         strategy_population=strategy_population, match_white=bool(match_white),
@@ -166,11 +166,11 @@ def _shared_primary_matrices(context: SweepContext, test: Display, raw: np.ndarr
     30 spectra instead of 3,000. The same sums as integrating the calibrated spectra, the gain
     applied after the sum instead of before (values equal to about 1e-15 relative).
     """
-    designs, primaries, n_w = raw.shape
+    designs, primaries, wavelengths = raw.shape
     gain = test._ds["primary_gain"].variable.transpose("design", "primary").values
     black = display_rows(test)[:, -1]  # (P, wavelength): white calibration leaves the black as it is
-    rows = np.ascontiguousarray(np.concatenate([raw.reshape(-1, n_w), black]), dtype=float)
-    keys = rows.view(np.dtype((np.void, n_w * rows.itemsize))).ravel()
+    rows = np.ascontiguousarray(np.concatenate([raw.reshape(-1, wavelengths), black]), dtype=float)
+    keys = rows.view(np.dtype((np.void, wavelengths * rows.itemsize))).ravel()
     _, first, inverse = np.unique(keys, return_index=True, return_inverse=True)
     observers = context.cmf.shape[0]
     seen = observer_xyz(context.cmf, context.step, rows[first]).reshape(observers, 3, -1)  # (O, 3, distinct)
@@ -199,8 +199,8 @@ class _TestSide:
         self.adapted = np.broadcast_to(reference, self.white.shape) if context.adapted_white == "reference" else self.white
         # observer-change metamerism index: the test display's residual for the calibration observer
         # (zero inside the test gamut, where the match is exact by construction), as in the engine
-        stim = [d for d in solution.dims if d not in solution.batch]
-        standard = side.reference_calibration.transpose(*stim, "xyz").values  # the reference as the calibration observer sees it
+        stimulus_dims = [d for d in solution.dims if d not in solution.batch]
+        standard = side.reference_calibration.transpose(*stimulus_dims, "xyz").values  # the reference as the calibration observer sees it
         target_xyz = np.broadcast_to(standard.reshape(1, -1, 3), solution.reproduced.shape)
         self.correction = np.where(solution.out_of_gamut[..., None], solution.reproduced - target_xyz, 0.0)
         self.designs, self.observers = self.matrices.shape[0], self.matrices.shape[1]
@@ -229,22 +229,22 @@ class _TestSide:
         count, observers, stimuli = matrices.shape[0], self.observers, self.stimuli
         rows = count * observers
         adapted = self.adapted[designs].reshape(rows, 3)
-        xyz_t = None
+        xyz_test = None
         if context.reference_matrices is not None:
-            m_ref, b_ref = context.reference_matrices
-            _, xyz_t, _, _, de, index = driven_pair_differences(side.rendering.drive, m_ref, b_ref, drive, matrices,
-                                                                black, adapted, correction)
+            reference_matrix, reference_black = context.reference_matrices
+            _, xyz_test, _, _, delta_e, index = driven_pair_differences(
+                side.rendering.drive, reference_matrix, reference_black, drive, matrices, black, adapted, correction)
         else:
-            xyz_t = apply_matrices(drive, matrices, black)
-            xyz_r = np.broadcast_to(context.xyz_reference, xyz_t.shape)
-            _, _, de, index = pair_differences(xyz_r.reshape(rows, stimuli, 3), xyz_t.reshape(rows, stimuli, 3),
-                                               adapted, correction)
-        out = {"delta_e_2000": de.reshape(count, observers, stimuli),
+            xyz_test = apply_matrices(drive, matrices, black)
+            xyz_reference = np.broadcast_to(context.xyz_reference, xyz_test.shape)
+            _, _, delta_e, index = pair_differences(xyz_reference.reshape(rows, stimuli, 3), xyz_test.reshape(rows, stimuli, 3),
+                                                    adapted, correction)
+        out = {"delta_e_2000": delta_e.reshape(count, observers, stimuli),
                "metamerism_index": index.reshape(count, observers, stimuli)}
         if context.include_itp:
-            if xyz_t is None:
-                xyz_t = apply_matrices(drive, matrices, black)
-            out["delta_e_itp"] = itp_difference(np.broadcast_to(context.xyz_reference, xyz_t.shape), xyz_t)
+            if xyz_test is None:
+                xyz_test = apply_matrices(drive, matrices, black)
+            out["delta_e_itp"] = itp_difference(np.broadcast_to(context.xyz_reference, xyz_test.shape), xyz_test)
         return out
 
 
@@ -323,10 +323,10 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
         which = np.flatnonzero(general)
         pairs = {name: values[which] for name, values in kept.items()} if kept is not None \
             else block.pairs(context, which)
-        de = pairs["delta_e_2000"]
+        delta_e = pairs["delta_e_2000"]
         share, share_overall, by_age, by_stimulus = band_and_stimulus_statistics(
-            de, context.weights, ages, context.age_bands, context.thresholds, per_stimulus)
-        numbers = {"delta_e_2000_overall": pair_statistics(de, context.weights),
+            delta_e, context.weights, ages, context.age_bands, context.thresholds, per_stimulus)
+        numbers = {"delta_e_2000_overall": pair_statistics(delta_e, context.weights),
                    "metamerism_index_overall": pair_statistics(pairs["metamerism_index"], context.weights),
                    "share_beyond": share, "share_beyond_overall": share_overall}
         if by_age is not None:
