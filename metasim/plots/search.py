@@ -24,7 +24,8 @@ def search_convergence(result: xr.Dataset, penalty: float = 1.0e6) -> Figure:
         A search result over ``design``: ``generation`` (int; 0 = the initial population) and
         ``search_objective`` (the value minimised, with its ``units`` and ``long_name``).
     penalty : float
-        Values at or above it mark designs that break a constraint (the search's penalty value).
+        Values at or above it mark designs that break a constraint; the default repeats
+        :data:`metasim.sweep.search.PENALTY` (1e6).
 
     Returns
     -------

@@ -54,13 +54,65 @@ from metasim.study import RESULT_KIND, as_study, study_headlines
 
 
 def is_sweep(ds: xr.Dataset) -> bool:
-    """Whether ``ds`` is a sweep's per-design summaries (combined ``sweep.nc`` or one chunk file)."""
+    """Whether ``ds`` is a sweep's per-design summaries (combined ``sweep.nc`` or one chunk file).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Any result.
+
+    Returns
+    -------
+    bool
+        True for a Dataset with ``delta_e_2000_overall`` over ``design``, no per-pair
+        ``delta_e_2000`` and a sweep's ``result_kind`` (``"metasim sweep"``) or ``spec_hash``
+        attribute.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> overall = xr.DataArray([[0.7, 1.9]], dims=("design", "statistic"))
+    >>> is_sweep(xr.Dataset({"delta_e_2000_overall": overall}, attrs={"result_kind": "metasim sweep"}))
+    True
+    >>> is_sweep(xr.Dataset({"delta_e_2000_overall": overall}, attrs={"result_kind": "metasim study"}))
+    False
+    """
     return ("delta_e_2000_overall" in ds and "design" in ds.dims and "delta_e_2000" not in ds
             and (ds.attrs.get("result_kind") == "metasim sweep" or "spec_hash" in ds.attrs))
 
 
 def report_kind(ds: xr.Dataset) -> str:
-    """What a result file holds for a report: "sweep", "study" or "population" (MetasimError if none)."""
+    """What a result file holds for a report: "study", "sweep", "population", "fit" or "extra"
+    (:class:`~metasim.errors.ReportError` if none); a plain mismatch result is a "study".
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Any result.
+
+    Returns
+    -------
+    str
+        One of ``"extra"``, ``"fit"``, ``"sweep"``, ``"study"``, ``"population"`` (the keys of
+        :data:`FIGURE_NAMES`).
+
+    Raises
+    ------
+    ReportError
+        The Dataset holds none of these.
+
+    Examples
+    --------
+    >>> import metasim, xarray as xr
+    >>> report_kind(metasim.observer_population(3, seed=1))
+    'population'
+    >>> report_kind(xr.Dataset({"delta_e_2000": (("observer", "stimulus"), [[0.4, 1.2]])}))
+    'study'
+    >>> report_kind(xr.Dataset())
+    Traceback (most recent call last):
+        ...
+    metasim.errors.ReportError: the file holds no metasim results this report can show (need a study, a mismatch result, ...)
+    """
     return _kind(ds)
 
 
@@ -141,7 +193,32 @@ def primary_descriptions(ds: xr.Dataset) -> dict:
 
 def figure_builders(ds: xr.Dataset) -> dict:
     """The figures a result supports, by file stem, not drawn yet: {name: (function, caption)};
-    calling the function draws the Figure."""
+    calling the function draws the Figure.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of any :func:`report_kind` (a plain mismatch result is read as a one-design study).
+
+    Returns
+    -------
+    dict
+        File stem (:data:`FIGURE_NAMES`) → (function of no arguments returning a
+        :class:`matplotlib.figure.Figure`, caption), only for the figures the result has the
+        variables for.
+
+    Raises
+    ------
+    ReportError
+        The result is of no kind a report shows (:func:`report_kind`).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> builders = figure_builders(metasim.observer_population(3, seed=1))
+    >>> list(builders), builders["observers"][1]
+    (['observers'], 'Ages and colour-matching functions of the observers.')
+    """
     if _kind(ds) == "extra":
         return {"extra_primary_value": (lambda: plots.extra_primary_value_figure(ds), "Left: gamut added by one more "
                                         "primary at each candidate peak wavelength; right: the population's 95th "
@@ -200,7 +277,30 @@ def figure_builders(ds: xr.Dataset) -> dict:
 
 
 def report_figures(ds: xr.Dataset) -> dict:
-    """The figures a result supports, by file stem: {name: (Figure, caption)}."""
+    """The figures a result supports, by file stem: {name: (Figure, caption)}.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of any :func:`report_kind`.
+
+    Returns
+    -------
+    dict
+        File stem → (:class:`matplotlib.figure.Figure`, caption): :func:`figure_builders`, drawn.
+
+    Raises
+    ------
+    ReportError
+        The result is of no kind a report shows.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> figure, caption = report_figures(metasim.observer_population(3, seed=1))["observers"]
+    >>> [ax.get_xlabel() for ax in figure.axes]
+    ['Age (years)', 'Wavelength (nm)']
+    """
     return {name: (build(), caption) for name, (build, caption) in figure_builders(ds).items()}
 
 
@@ -208,7 +308,38 @@ def report_figures(ds: xr.Dataset) -> dict:
 
 def with_summaries(ds: xr.Dataset) -> xr.Dataset:
     """A study-layout result with the tables over all pairs (and their intervals): a result that
-    lacks them (a plain :func:`metasim.mismatch` Dataset) gets them from the statistics layer."""
+    lacks them (a plain :func:`metasim.mismatch` Dataset) gets them from the statistics layer.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A study-layout result: ``delta_e_2000`` ([design,] observer, stimulus) in ΔE00 and,
+        optionally, ``delta_e_white`` ([design,] observer).
+
+    Returns
+    -------
+    xarray.Dataset
+        ``ds`` itself when it has no ``delta_e_2000`` or has ``delta_e_2000_overall`` already; else
+        a copy with ``delta_e_2000_overall``, ``share_beyond_overall``, ``delta_e_white_overall``
+        and their ``*_interval`` (default level, resamples and seed of
+        :func:`metasim.statistics.population_statistics`) and the interval attributes.
+
+    References
+    ----------
+    CIE 142-2001 (CIEDE2000); percentile intervals from resampling observers: Efron & Tibshirani
+    (1993) An Introduction to the Bootstrap, ch. 13.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"delta_e_2000": (("design", "observer", "stimulus"), [[[0.2, 1.4], [0.6, 2.6], [1.0, 3.0]]])},
+    ...                     coords={"design": ["candidate"]})
+    >>> summaries = with_summaries(result)
+    >>> summaries["delta_e_2000_overall"].sel(design="candidate").values.round(3).tolist()
+    [1.467, 1.2, 2.9, 3.0]
+    >>> summaries["delta_e_2000_overall_interval"].dims
+    ('bound', 'statistic', 'design')
+    """
     if "delta_e_2000" not in ds or "delta_e_2000_overall" in ds:
         return ds
     ds = ds.copy()
@@ -442,7 +573,34 @@ def report_answer(ds: xr.Dataset, kind: str) -> list[str]:
 
 def figure_pngs(ds: xr.Dataset) -> dict:
     """The figures of :func:`report_figures` as PNG bytes: {name: (png, caption)}, one at a time
-    with progress lines (:func:`metasim.progress.current`)."""
+    with progress lines (:func:`metasim.progress.current`).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of any :func:`report_kind`.
+
+    Returns
+    -------
+    dict
+        File stem → (PNG bytes, caption); each figure is drawn, encoded and let go before the next.
+
+    Raises
+    ------
+    ReportError
+        The result is of no kind a report shows.
+
+    References
+    ----------
+    ISO/IEC 15948:2004 (Portable Network Graphics).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> png, caption = figure_pngs(metasim.observer_population(3, seed=1))["observers"]
+    >>> png[1:4], caption
+    (b'PNG', 'Ages and colour-matching functions of the observers.')
+    """
     out = {}
     builders = figure_builders(ds)
     for name in current().loop(list(builders), "report figures"):
@@ -456,6 +614,39 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     """The report of a result Dataset as one HTML string (figures embedded).
 
     ``figures`` may pass the output of :func:`figure_pngs` when it has been made already.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of any :func:`report_kind`.
+    title : str, optional
+        The page title (default: the sweep name, the result's ``title`` attribute, or what it
+        holds).
+    source : str, optional
+        Where the result came from (a file name), named under the title.
+    figures : dict, optional
+        :func:`figure_pngs` of ``ds`` (default: drawn now); ``{}`` makes a page without figures.
+
+    Returns
+    -------
+    str
+        A complete HTML page, figures embedded as ``data:`` URLs, no script or outside resource.
+
+    Raises
+    ------
+    ReportError
+        ``ds`` is not a Dataset, or of no kind a report shows.
+
+    References
+    ----------
+    WHATWG HTML Living Standard; RFC 2397 (the ``data`` URL scheme); RFC 4648 §4 (base64).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> page = render_report(metasim.observer_population(3, seed=1), title="Demo audience", figures={})
+    >>> page.startswith("<!DOCTYPE html>"), "<title>Demo audience</title>" in page, "id='cautions'" in page
+    (True, True, True)
     """
     if not isinstance(ds, xr.Dataset):
         raise ReportError(f"a report needs a result Dataset, got {type(ds).__name__}")
@@ -514,8 +705,34 @@ FIGURE_NAMES = {
 
 
 def report_outputs(kind: str, path, figures_dir=None) -> list[Path]:
-    """Every file :func:`write_report` may write for a result of ``kind`` ("study", "population",
-    "sweep"): the page and each figure it may hold."""
+    """Every file :func:`write_report` may write for a result of ``kind`` (a :func:`report_kind`):
+    the page and each figure it may hold.
+
+    Parameters
+    ----------
+    kind : str
+        A :func:`report_kind` (also ``"fit"`` and ``"extra"``).
+    path : path-like
+        The HTML page.
+    figures_dir : path-like, optional
+        The folder of the PNG files (None: the page only).
+
+    Returns
+    -------
+    list of Path
+        The page, then ``figures_dir/NAME.png`` for every figure of :data:`FIGURE_NAMES` ``[kind]``
+        (whether or not the result holds it).
+
+    Raises
+    ------
+    KeyError
+        ``kind`` is not a key of :data:`FIGURE_NAMES` (and ``figures_dir`` is given).
+
+    Examples
+    --------
+    >>> [path.as_posix() for path in report_outputs("sweep", "out/sweep.html", "out/figures")]
+    ['out/sweep.html', 'out/figures/sweep.png', 'out/figures/pareto.png', 'out/figures/search.png']
+    """
     outputs = [Path(path)]
     if figures_dir is not None:
         outputs += [Path(figures_dir) / f"{name}.png" for name in FIGURE_NAMES[kind]]
@@ -530,6 +747,55 @@ def write_report(ds: xr.Dataset, path, *, figures_dir=None, title: str | None = 
     partial). With ``replace=False`` nothing is rendered when the page or a figure file exists
     already (:class:`~metasim.errors.OutputExistsError`); an output that is one of ``inputs`` is
     refused either way (:func:`metasim.io.check_outputs`).
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A result of any :func:`report_kind`.
+    path : path-like
+        The HTML page; its folder must exist.
+    figures_dir : path-like, optional
+        A folder (created) for the figures as PNG files, named as in :data:`FIGURE_NAMES`.
+    title, source : str, optional
+        As for :func:`render_report`.
+    replace : bool
+        Replace existing files (default True).
+    inputs : sequence of path-like
+        Files that must not be overwritten (the result file read).
+
+    Returns
+    -------
+    Path
+        ``path``.
+
+    Raises
+    ------
+    ReportError
+        ``ds`` is not a Dataset, or of no kind a report shows.
+    OutputError
+        The folder of ``path`` does not exist.
+    OutputExistsError
+        A file exists and ``replace`` is False (nothing is drawn or written).
+    OutputIsInputError
+        An output is one of ``inputs``.
+
+    References
+    ----------
+    WHATWG HTML Living Standard; ISO/IEC 15948:2004 (PNG).
+
+    Examples
+    --------
+    A mismatch result without the variables of any figure (no ages, no per-stimulus table) makes a
+    page alone, quickly; :func:`figure_pngs` shows a figure drawn.
+
+    >>> import pathlib, tempfile
+    >>> import xarray as xr
+    >>> result = xr.Dataset({"delta_e_2000": (("observer", "stimulus"), [[0.2, 1.4], [0.6, 2.6], [1.0, 3.0]])},
+    ...                     attrs={"test": "candidate", "reference": "studio monitor"})
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     page = write_report(result, pathlib.Path(folder) / "candidate.html", figures_dir=pathlib.Path(folder) / "figures")
+    ...     print(sorted(p.name for p in page.parent.rglob("*")), "95th pct ΔE00" in page.read_text(encoding="utf-8"))
+    ['candidate.html', 'figures'] True
     """
     path = Path(path)
     if not isinstance(ds, xr.Dataset):
