@@ -22,6 +22,9 @@ The checks
     Array-like real numbers, every entry finite and optionally bounded → float array.
 :func:`known_keys`
     A table (dict, e.g. parsed TOML) holds only the allowed keys.
+:func:`current_spelling` / :func:`renamed_keywords`
+    An old name of a value / of a function's keyword still works for one release, with a warning
+    naming the new one.
 :func:`is_number`
     Text that reads as a number (for file readers naming the bad cell).
 
@@ -45,6 +48,7 @@ metasim.errors.ObserverError: width_nm=0 is not allowed; need a finite number > 
 from __future__ import annotations
 
 import json
+import functools
 import math
 import warnings
 from numbers import Integral, Real
@@ -52,7 +56,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
-from metasim.errors import MetasimError
+from metasim.errors import MetasimError, RenamedKeywordWarning
 
 #: What is recorded as the seed of a draw made with a caller's own ``numpy.random.Generator``.
 GENERATOR_SEED = "numpy Generator"
@@ -360,6 +364,58 @@ def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3)
     return value
 
 
+def renamed_keywords(**old_to_new: str):
+    """Decorator: the function also takes each old keyword name (``old=new``) for one release, with a
+    :class:`~metasim.errors.RenamedKeywordWarning` (a ``DeprecationWarning``) naming the new one.
+
+    Parameters
+    ----------
+    **old_to_new : str
+        Old keyword → new keyword of the decorated function.
+
+    Returns
+    -------
+    callable
+        The decorator; the decorated function keeps its name, signature and docstring.
+
+    Raises
+    ------
+    TypeError
+        From the decorated function, when one keyword is given by both its old and its new name.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> @renamed_keywords(radiance="relative_power")
+    ... def scaled(x, *, relative_power=1.0):
+    ...     return x * relative_power
+    >>> with warnings.catch_warnings(record=True) as seen:
+    ...     warnings.simplefilter("always")
+    ...     scaled(2.0, radiance=3.0)
+    6.0
+    >>> str(seen[0].message)
+    "scaled(): keyword 'radiance' is renamed 'relative_power'; the old name works until the next release"
+    """
+    def decorate(function):
+        @functools.wraps(function)
+        def call(*args, **kwargs):
+            for old, new in old_to_new.items():
+                if old not in kwargs:
+                    continue
+                if new in kwargs:
+                    raise TypeError(f"{function.__qualname__}(): both {old}= and {new}= given; {old!r} is the old "
+                                    f"name of {new!r}, keep one")
+                kwargs[new] = kwargs.pop(old)
+                warnings.warn(f"{function.__qualname__}(): keyword {old!r} is renamed {new!r}; the old name works "
+                              "until the next release", RenamedKeywordWarning, stacklevel=2)
+            return function(*args, **kwargs)
+
+        call.renamed_keywords = dict(old_to_new)
+        return call
+
+    return decorate
+
+
 def is_number(text: str) -> bool:
     """True when ``float(text)`` reads ``text`` (file readers use it to name the bad cell).
 
@@ -386,4 +442,4 @@ def is_number(text: str) -> bool:
 
 
 __all__ = ["GENERATOR_SEED", "seed_generator", "seed_attributes", "number", "whole_number", "numbers", "known_keys", "current_spelling",
-           "is_number"]
+           "renamed_keywords", "is_number"]

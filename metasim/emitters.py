@@ -5,10 +5,12 @@ named by ``name``) in spectral radiance, W·sr⁻¹·m⁻²·nm⁻¹ (:data:`met
 Shape parameters (``peak_nm``, ``fwhm_nm``, ...) may be scalars or equal-length sequences; a
 sequence gives one primary per entry.
 
-Scaling: ``normalise="total"`` (default) scales each primary so that its integrated radiance
-(rectangle rule, Σ S·Δλ) equals ``radiance`` in W·sr⁻¹·m⁻²; ``normalise="peak"`` makes the
-largest sample equal ``radiance`` in W·sr⁻¹·m⁻²·nm⁻¹; ``normalise="none"`` multiplies the
-model's own shape by ``radiance`` (a laser line's profile has unit area on the real line, so its
+Scaling: ``relative_power`` (the keyword a spec's ``relative_power`` key reaches; it was
+``radiance`` before, still accepted for one release with a warning) sets each primary's power
+relative to the others. ``normalise="total"`` (default) scales each primary so that its integrated
+radiance (rectangle rule, Σ S·Δλ) equals ``relative_power`` in W·sr⁻¹·m⁻²; ``normalise="peak"``
+makes the largest sample equal ``relative_power`` in W·sr⁻¹·m⁻²·nm⁻¹; ``normalise="none"``
+multiplies the model's own shape by ``relative_power`` (a laser line's profile has unit area on the real line, so its
 grid integral shows exactly what the grid keeps; the other shapes peak at 1). Display calibration
 (:func:`metasim.display.calibrate_white`) rescales primaries afterwards, so the absolute level
 here only matters for uncalibrated designs.
@@ -19,7 +21,7 @@ share lost, unless ``allow_outside_grid=True`` (then a warning states the share)
 files follow too (:func:`metasim.spectra.check_energy_on_grid`). A 200 nm or 835 nm line on the
 390-830 nm grid is therefore refused instead of becoming a rescaled comb or an 830 nm line.
 
-Layer: imports only :mod:`metasim.spectra` and :mod:`metasim.errors`.
+Layer: imports only :mod:`metasim.spectra` and the utilities :mod:`metasim.errors` and :mod:`metasim.checks`.
 """
 
 from __future__ import annotations
@@ -32,6 +34,7 @@ import numpy as np
 import xarray as xr
 from scipy.special import erf, ndtr
 
+from metasim.checks import renamed_keywords
 from metasim.errors import SpectrumError
 from metasim.spectra import (
     RADIANCE_UNITS,
@@ -109,16 +112,16 @@ def _gaussian_inside(lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     return np.clip(ndtr(hi) - ndtr(lo), 0.0, 1.0)
 
 
-def _finish(values: np.ndarray, wl: np.ndarray, labels, *, radiance, normalise: str, long_name: str,
+def _finish(values: np.ndarray, wl: np.ndarray, labels, *, relative_power, normalise: str, long_name: str,
             model: str, lost=None, details=None, allow_outside_grid: bool = False, where: str = "emitter",
             **attrs) -> xr.DataArray:
     if normalise not in NORMALISATIONS:
         raise SpectrumError(f"normalise={normalise!r} is not known; allowed: {', '.join(NORMALISATIONS)}")
     if lost is not None:  # share of each model spectrum's energy outside the grid: the one rule
         check_energy_on_grid(lost, labels, wl, where=where, allow=allow_outside_grid, details=details)
-    radiance = np.broadcast_to(np.asarray(radiance, dtype=float), (values.shape[0],))
-    if not np.isfinite(radiance).all() or (radiance < 0).any():
-        raise SpectrumError(f"radiance={radiance.tolist()} is not allowed; must be finite and >= 0")
+    power = np.broadcast_to(np.asarray(relative_power, dtype=float), (values.shape[0],))
+    if not np.isfinite(power).all() or (power < 0).any():
+        raise SpectrumError(f"relative_power={power.tolist()} is not allowed; must be finite and >= 0")
     step = float(wl[1] - wl[0])
     if normalise == "total":
         reference = values.sum(axis=-1) * step
@@ -131,7 +134,7 @@ def _finish(values: np.ndarray, wl: np.ndarray, labels, *, radiance, normalise: 
         raise SpectrumError(
             f"{labels[i]}: no emission on the grid {wl[0]:g}-{wl[-1]:g} nm; move the peak inside the grid"
         )
-    data = values * (radiance / reference)[:, None]
+    data = values * (power / reference)[:, None]
     array = xr.DataArray(
         data,
         dims=("primary", "wavelength"),
@@ -158,13 +161,14 @@ def _second_antiderivative(x: np.ndarray, centre: np.ndarray, width: np.ndarray,
     return width * (0.5 * u + (u * np.arctan(u) - 0.5 * np.log1p(u * u)) / math.pi)
 
 
+@renamed_keywords(radiance="relative_power")
 def laser_line(
     peak_nm,
     linewidth_nm=0.1,
     wavelengths=None,
     *,
     profile: str = "gaussian",
-    radiance=1.0,
+    relative_power=1.0,
     normalise: str = "total",
     name=None,
     allow_outside_grid: bool = False,
@@ -181,22 +185,54 @@ def laser_line(
     Parameters
     ----------
     peak_nm : float or sequence
-        Line centre(s), nm.
+        Line centre(s), nm, > 0.
     linewidth_nm : float or sequence
         Full width at half maximum, nm, > 0.
-    wavelengths : optional
-        Uniform grid (default 390-830 nm at 1 nm).
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
     profile : {"gaussian", "lorentzian"}
-    radiance, normalise, name
-        See the module docstring.
+        Line shape.
+    relative_power : float or sequence
+        Power of each primary relative to the others, >= 0 (see the module docstring; was
+        ``radiance``, still accepted for one release with a warning).
+    normalise : {"total", "peak", "none"}
+        What ``relative_power`` sets: the integral over the grid, the largest sample, or a factor on
+        the model's own shape.
+    name : str or sequence of str, optional
+        Primary label(s); a single string for several primaries is numbered. Default: the model
+        and peak (e.g. ``"laser 532 nm"``).
     allow_outside_grid : bool
-        Accept, with a warning, a line that loses more than 1 % of its energy outside the grid
-        (an error otherwise): the share lost is 1 − the grid integral of the unit-area line.
+        Accept, with a warning, a primary that loses more than 1 % of its energy outside the grid
+        (an error otherwise); the share lost is 1 − the grid integral of the unit-area line.
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` spectral radiance (W·sr⁻¹·m⁻²·nm⁻¹), with the model and its
+        parameters as attributes.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive peak or line width, sequences of different lengths, an unknown
+        ``normalise`` or ``profile``, a non-uniform grid, no emission on the grid, or more than 1 % of the
+        energy outside the grid (unless ``allow_outside_grid``).
 
     References
     ----------
     Siegman, *Lasers* (1986), ch. 2-3 (Lorentzian and Gaussian line shapes); the hat-function
     projection is the linear finite-element (cloud-in-cell) weighting — common practice, no source.
+
+    Examples
+    --------
+    A 0.5 nm green line on the 1 nm grid keeps its energy and its centroid:
+
+    >>> lines = laser_line([450, 532], [1.0, 0.5], name=["B", "G"])
+    >>> dict(lines.sizes), lines.sum("wavelength").values.round(9).tolist()
+    ({'primary': 2, 'wavelength': 441}, [1.0, 1.0])
+    >>> green = lines.sel(primary="G")
+    >>> round(float((green.wavelength * green).sum() / green.sum()), 6)
+    532.0
     """
     if profile not in LINE_PROFILES:
         raise SpectrumError(f"profile={profile!r} is not known; allowed: {', '.join(LINE_PROFILES)}")
@@ -213,14 +249,15 @@ def laser_line(
               + _second_antiderivative(nodes - step, centre, width, profile))
     values = np.clip(second / (step * step), 0.0, None)
     labels = _labels(name, count, [f"laser {c:g} nm" for c in p["peak_nm"]])
-    return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+    return _finish(values, wl, labels, relative_power=relative_power, normalise=normalise, long_name="spectral radiance",
                    lost=1.0 - values.sum(axis=-1) * step, where="laser_line", allow_outside_grid=allow_outside_grid,
                    details=_peak_details(p["peak_nm"], p["linewidth_nm"], "line width"),
                    model=f"laser line, {profile} profile integrated over the grid's hat functions",
                    peak_nm=p["peak_nm"].tolist(), linewidth_nm=p["linewidth_nm"].tolist())
 
 
-def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None,
+@renamed_keywords(radiance="relative_power")
+def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, relative_power=1.0, normalise: str = "total", name=None,
              allow_outside_grid: bool = False) -> xr.DataArray:
     """Gaussian band(s) in wavelength, sampled at the grid points.
 
@@ -228,9 +265,53 @@ def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str
     colour-science's ``sd_gaussian_fwhm``. Point sampling suits bands several grid steps wide;
     for lines narrower than about two steps use :func:`laser_line`, which integrates over the grid.
 
+    Parameters
+    ----------
+    peak_nm : float or sequence
+        Peak wavelength(s), nm, > 0.
+    fwhm_nm : float or sequence
+        Full width at half maximum, nm, > 0.
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
+    relative_power : float or sequence
+        Power of each primary relative to the others, >= 0 (see the module docstring; was
+        ``radiance``, still accepted for one release with a warning).
+    normalise : {"total", "peak", "none"}
+        What ``relative_power`` sets: the integral over the grid, the largest sample, or a factor on
+        the model's own shape.
+    name : str or sequence of str, optional
+        Primary label(s); a single string for several primaries is numbered. Default: the model
+        and peak (e.g. ``"gaussian 530 nm"``).
+    allow_outside_grid : bool
+        Accept, with a warning, a primary that loses more than 1 % of its energy outside the grid
+        (an error otherwise).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` spectral radiance (W·sr⁻¹·m⁻²·nm⁻¹), with the model and its
+        parameters as attributes.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive peak or width, sequences of different lengths, an unknown
+        ``normalise``, a non-uniform grid, no emission on the grid, or more than 1 % of the
+        energy outside the grid (unless ``allow_outside_grid``).
+
     References
     ----------
     Common practice, no source (the normal distribution expressed by its full width at half maximum).
+
+    Examples
+    --------
+    >>> band = gaussian(530, 30, relative_power=2.0)
+    >>> band.primary.values.tolist(), float(band.sum().round(9)), float(band.idxmax("wavelength")[0])
+    (['gaussian 530 nm'], 2.0, 530.0)
+    >>> import colour  # the same shape as colour-science's
+    >>> shape = colour.colorimetry.sd_gaussian_fwhm(530, 30, shape=colour.SpectralShape(390, 830, 1)).values
+    >>> bool(abs(2.0 * shape / shape.sum() - band.values[0]).max() < 1e-12)
+    True
     """
     wl = _grid(wavelengths)
     count, p = _parameters("gaussian", peak_nm=peak_nm, fwhm_nm=fwhm_nm)
@@ -239,19 +320,20 @@ def gaussian(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str
     values = np.exp(-((wl[None, :] - p["peak_nm"][:, None]) ** 2) / (2.0 * sigma**2))
     labels = _labels(name, count, [f"gaussian {c:g} nm" for c in p["peak_nm"]])
     inside = _gaussian_inside((wl[0] - p["peak_nm"]) / sigma[:, 0], (wl[-1] - p["peak_nm"]) / sigma[:, 0])
-    return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+    return _finish(values, wl, labels, relative_power=relative_power, normalise=normalise, long_name="spectral radiance",
                    lost=1.0 - inside, where="gaussian", allow_outside_grid=allow_outside_grid,
                    details=_peak_details(p["peak_nm"], p["fwhm_nm"], "FWHM"),
                    model="Gaussian band in wavelength", peak_nm=p["peak_nm"].tolist(), fwhm_nm=p["fwhm_nm"].tolist())
 
 
+@renamed_keywords(radiance="relative_power")
 def ohno_led(
     peak_nm,
     half_spectral_width_nm,
     wavelengths=None,
     *,
     long_side_half_spectral_width_nm=None,
-    radiance=1.0,
+    relative_power=1.0,
     normalise: str = "total",
     name=None,
     allow_outside_grid: bool = False,
@@ -266,10 +348,55 @@ def ohno_led(
     ``half_spectral_width_nm``) uses a different width for λ > λ0, giving the red-skewed shape of
     many real LEDs while keeping the peak at λ0.
 
+    Parameters
+    ----------
+    peak_nm : float or sequence
+        Peak wavelength(s) λ0, nm, > 0.
+    half_spectral_width_nm : float or sequence
+        Ohno's half spectral width Δλ0.5, nm, > 0 (the short side when the sides differ).
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
+    long_side_half_spectral_width_nm : float or sequence, optional
+        Width for λ > λ0, nm, > 0 (default: ``half_spectral_width_nm``).
+    relative_power : float or sequence
+        Power of each primary relative to the others, >= 0 (see the module docstring; was
+        ``radiance``, still accepted for one release with a warning).
+    normalise : {"total", "peak", "none"}
+        What ``relative_power`` sets: the integral over the grid, the largest sample, or a factor on
+        the model's own shape.
+    name : str or sequence of str, optional
+        Primary label(s); a single string for several primaries is numbered. Default: the model
+        and peak (e.g. ``"LED 630 nm"``).
+    allow_outside_grid : bool
+        Accept, with a warning, a primary that loses more than 1 % of its energy outside the grid
+        (an error otherwise).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` spectral radiance (W·sr⁻¹·m⁻²·nm⁻¹), with the model and its
+        parameters as attributes.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive peak or width, sequences of different lengths, an unknown
+        ``normalise``, a non-uniform grid, no emission on the grid, or more than 1 % of the
+        energy outside the grid (unless ``allow_outside_grid``).
+
     References
     ----------
     Ohno, Y. (2005) Spectral design considerations for white LED color rendering. Optical
     Engineering 44(11), 111302; Ohno, Y. (2008) NIST CQS simulation.
+
+    Examples
+    --------
+    >>> led = ohno_led(630, 15)
+    >>> led.primary.values.tolist(), float(led.idxmax("wavelength")[0]), led.attrs["model"]
+    (['LED 630 nm'], 630.0, 'Ohno (2005) LED')
+    >>> skewed = ohno_led(630, 12, long_side_half_spectral_width_nm=18)
+    >>> bool(skewed.sel(wavelength=645).item() > skewed.sel(wavelength=615).item())  # a longer red side
+    True
     """
     wl = _grid(wavelengths)
     long_side = half_spectral_width_nm if long_side_half_spectral_width_nm is None else long_side_half_spectral_width_nm
@@ -284,7 +411,7 @@ def ohno_led(
     labels = _labels(name, count, [f"LED {c:g} nm" for c in p["peak_nm"]])
     lost = 1.0 - _ohno_inside(wl[0], wl[-1], p["peak_nm"], p["half_spectral_width_nm"],
                               p["long_side_half_spectral_width_nm"])
-    return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+    return _finish(values, wl, labels, relative_power=relative_power, normalise=normalise, long_name="spectral radiance",
                    lost=lost, where="ohno_led", allow_outside_grid=allow_outside_grid,
                    details=_peak_details(p["peak_nm"], p["half_spectral_width_nm"], "half spectral width"),
                    model="Ohno (2005) LED", peak_nm=p["peak_nm"].tolist(),
@@ -327,7 +454,8 @@ def _energy_gaussian_inside(lo: float, hi: float, peak_nm: np.ndarray, fwhm_nm: 
     return _gaussian_inside((1.0 / hi - nu_centre) / sigma, (1.0 / lo - nu_centre) / sigma)
 
 
-def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: str = "total", name=None,
+@renamed_keywords(radiance="relative_power")
+def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, relative_power=1.0, normalise: str = "total", name=None,
                 allow_outside_grid: bool = False) -> xr.DataArray:
     """Quantum-dot emission peak(s): a Gaussian in photon energy, expressed per nm.
 
@@ -338,23 +466,64 @@ def quantum_dot(peak_nm, fwhm_nm, wavelengths=None, *, radiance=1.0, normalise: 
     so that the per-nm spectrum peaks exactly at ``peak_nm``. The FWHM in nm equals ``fwhm_nm`` to
     first order in fwhm/peak; the shape has the slight red tail of measured QD spectra.
 
+    Parameters
+    ----------
+    peak_nm : float or sequence
+        Peak wavelength(s) of the per-nm spectrum, nm, > 0.
+    fwhm_nm : float or sequence
+        Full width at half maximum, nm, > 0 (to first order in fwhm/peak).
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
+    relative_power : float or sequence
+        Power of each primary relative to the others, >= 0 (see the module docstring; was
+        ``radiance``, still accepted for one release with a warning).
+    normalise : {"total", "peak", "none"}
+        What ``relative_power`` sets: the integral over the grid, the largest sample, or a factor on
+        the model's own shape.
+    name : str or sequence of str, optional
+        Primary label(s); a single string for several primaries is numbered. Default: the model
+        and peak (e.g. ``"QD 530 nm"``).
+    allow_outside_grid : bool
+        Accept, with a warning, a primary that loses more than 1 % of its energy outside the grid
+        (an error otherwise).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` spectral radiance (W·sr⁻¹·m⁻²·nm⁻¹), with the model and its
+        parameters as attributes.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive peak or width, sequences of different lengths, an unknown
+        ``normalise``, a non-uniform grid, no emission on the grid, or more than 1 % of the
+        energy outside the grid (unless ``allow_outside_grid``).
+
     References
     ----------
     Common practice, no source (inhomogeneous size broadening of an ensemble of emitters: a
     Gaussian in energy).
+
+    Examples
+    --------
+    >>> dots = quantum_dot([530, 630], [25, 30])
+    >>> dots.primary.values.tolist(), dots.idxmax("wavelength").values.tolist()
+    (['QD 530 nm', 'QD 630 nm'], [530.0, 630.0])
     """
     wl = _grid(wavelengths)
     count, p = _parameters("quantum_dot", peak_nm=peak_nm, fwhm_nm=fwhm_nm)
     _positive("quantum_dot", **p)
     values = _energy_gaussian(wl, p["peak_nm"], p["fwhm_nm"])
     labels = _labels(name, count, [f"QD {c:g} nm" for c in p["peak_nm"]])
-    return _finish(values, wl, labels, radiance=radiance, normalise=normalise, long_name="spectral radiance",
+    return _finish(values, wl, labels, relative_power=relative_power, normalise=normalise, long_name="spectral radiance",
                    lost=1.0 - _energy_gaussian_inside(wl[0], wl[-1], p["peak_nm"], p["fwhm_nm"]), where="quantum_dot",
                    allow_outside_grid=allow_outside_grid, details=_peak_details(p["peak_nm"], p["fwhm_nm"], "FWHM"),
                    model="quantum dot: Gaussian in photon energy", peak_nm=p["peak_nm"].tolist(),
                    fwhm_nm=p["fwhm_nm"].tolist())
 
 
+@renamed_keywords(radiance="relative_power", phosphor_to_pump="phosphor_pump_ratio")
 def phosphor_white_led(
     wavelengths=None,
     *,
@@ -362,8 +531,8 @@ def phosphor_white_led(
     pump_half_spectral_width_nm: float = 14.0,
     phosphor_peak_nm: float = 560.0,
     phosphor_fwhm_nm: float = 120.0,
-    phosphor_to_pump: float = 2.5,
-    radiance=1.0,
+    phosphor_pump_ratio: float = 2.5,
+    relative_power=1.0,
     normalise: str = "total",
     name: str = "white LED",
     allow_outside_grid: bool = False,
@@ -372,27 +541,68 @@ def phosphor_white_led(
 
     Pump: the Ohno (2005) LED shape (:func:`ohno_led`). Phosphor: a broad Gaussian in photon
     energy (the :func:`quantum_dot` shape), which reproduces the long red tail of Ce:YAG-type
-    phosphors. ``phosphor_to_pump`` is the ratio of integrated phosphor to pump radiance (larger
+    phosphors. ``phosphor_pump_ratio`` is the ratio of integrated phosphor to pump radiance (larger
     gives a warmer white). Multiply by colour filters with :func:`filtered_primaries`.
+
+    Parameters
+    ----------
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
+    pump_peak_nm, pump_half_spectral_width_nm : float
+        The pump's peak and Ohno half spectral width, nm, > 0.
+    phosphor_peak_nm, phosphor_fwhm_nm : float
+        The phosphor band's peak and full width at half maximum, nm, > 0.
+    phosphor_pump_ratio : float
+        Integrated phosphor over integrated pump radiance, finite and >= 0 (was
+        ``phosphor_to_pump``, still accepted for one release with a warning).
+    relative_power : float
+        Power of the white relative to other primaries, >= 0 (see the module docstring; was
+        ``radiance``).
+    normalise : {"total", "peak", "none"}
+        What ``relative_power`` sets (module docstring).
+    name : str
+        The primary's label.
+    allow_outside_grid : bool
+        Accept, with a warning, a pump or phosphor band that loses more than 1 % of its energy
+        outside the grid (an error otherwise).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` (one) × ``wavelength`` spectral radiance (W·sr⁻¹·m⁻²·nm⁻¹), with the model and its
+        parameters as attributes.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive width or peak, a negative or non-finite ``phosphor_pump_ratio``, sequences of different lengths, an unknown
+        ``normalise``, a non-uniform grid, no emission on the grid, or more than 1 % of the
+        energy outside the grid (unless ``allow_outside_grid``).
 
     References
     ----------
     Ohno (2005) Optical Engineering 44(11) 111302 (pump shape); the phosphor band shape is common
     practice, no source.
+
+    Examples
+    --------
+    >>> white = phosphor_white_led(phosphor_pump_ratio=3.0)
+    >>> white.primary.values.tolist(), white.attrs["phosphor_pump_ratio"], float(white.sum().round(9))
+    (['white LED'], 3.0, 1.0)
     """
     wl = _grid(wavelengths)
-    if not (math.isfinite(phosphor_to_pump) and phosphor_to_pump >= 0):
-        raise SpectrumError(f"phosphor_to_pump={phosphor_to_pump!r} is not allowed; must be finite and >= 0")
+    if not (math.isfinite(phosphor_pump_ratio) and phosphor_pump_ratio >= 0):
+        raise SpectrumError(f"phosphor_pump_ratio={phosphor_pump_ratio!r} is not allowed; must be finite and >= 0")
     pump = ohno_led(pump_peak_nm, pump_half_spectral_width_nm, wl, name=f"{name} pump",
                     allow_outside_grid=allow_outside_grid).values[0]
     phosphor = quantum_dot(phosphor_peak_nm, phosphor_fwhm_nm, wl, name=f"{name} phosphor",
                            allow_outside_grid=allow_outside_grid).values[0]  # each integrates to 1
-    values = (pump + phosphor_to_pump * phosphor)[None, :]
-    return _finish(values, wl, [name], radiance=radiance, normalise=normalise, long_name="spectral radiance",
+    values = (pump + phosphor_pump_ratio * phosphor)[None, :]
+    return _finish(values, wl, [name], relative_power=relative_power, normalise=normalise, long_name="spectral radiance",
                    model="phosphor-converted white LED (Ohno pump + energy-Gaussian phosphor)",
                    pump_peak_nm=float(pump_peak_nm), pump_half_spectral_width_nm=float(pump_half_spectral_width_nm),
                    phosphor_peak_nm=float(phosphor_peak_nm), phosphor_fwhm_nm=float(phosphor_fwhm_nm),
-                   phosphor_to_pump=float(phosphor_to_pump))
+                   phosphor_pump_ratio=float(phosphor_pump_ratio))
 
 
 # ----------------------------------------------------------------------------------------------
@@ -400,9 +610,10 @@ def phosphor_white_led(
 # ----------------------------------------------------------------------------------------------
 
 
+@renamed_keywords(width_nm="passband_nm")
 def band_pass_filter(
     centre_nm,
-    width_nm,
+    passband_nm,
     wavelengths=None,
     *,
     edge_nm=10.0,
@@ -413,19 +624,52 @@ def band_pass_filter(
     """Parametric band-pass colour filter(s): transmittance (``primary`` × ``wavelength``, units 1).
 
     ``T(λ) = floor + (peak − floor) · σ((λ − λ_lo)/e) · σ((λ_hi − λ)/e)`` with logistic edges σ,
-    ``λ_lo, λ_hi = centre ∓ width/2`` (the 50 % points of each edge for a wide band) and edge
+    ``λ_lo, λ_hi = centre ∓ passband/2`` (the 50 % points of each edge for a wide band) and edge
     scale ``e = edge_nm / (2 ln 9)`` so that each edge rises from 10 % to 90 % over ``edge_nm``.
     A long-pass red filter is a band with its upper edge beyond the grid.
+
+    Parameters
+    ----------
+    centre_nm : float or sequence
+        Centre(s) of the passband, nm, > 0.
+    passband_nm : float or sequence
+        Width of the passband between the 50 % points of its edges, nm, > 0 (the spec key
+        ``passband_nm``; was ``width_nm``, still accepted for one release with a warning).
+    wavelengths : array-like, optional
+        Uniform grid, nm (default 390-830 nm at 1 nm).
+    edge_nm : float or sequence
+        Distance over which each edge rises from 10 % to 90 % of the passband, nm, > 0.
+    peak_transmittance, floor_transmittance : float or sequence
+        Transmittance inside the band and far outside it, 0 <= floor <= peak <= 1.
+    name : str or sequence of str, optional
+        Filter label(s) (default ``"filter <centre> nm"``).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` spectral transmittance (units 1).
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        A non-finite or non-positive centre, passband or edge, sequences of different lengths,
+        transmittances outside 0 <= floor <= peak <= 1, or a non-uniform grid.
 
     References
     ----------
     Common practice, no source (logistic edges are a smooth stand-in for measured filter curves;
     load measured ones with :func:`measured_spectra`).
+
+    Examples
+    --------
+    >>> green = band_pass_filter(540, 80, edge_nm=20)
+    >>> green.sel(wavelength=[500, 540]).values.round(3).tolist(), green.attrs["units"]
+    ([[0.45, 0.9]], '1')
     """
     wl = _grid(wavelengths)
-    count, p = _parameters("band_pass_filter", centre_nm=centre_nm, width_nm=width_nm, edge_nm=edge_nm,
+    count, p = _parameters("band_pass_filter", centre_nm=centre_nm, passband_nm=passband_nm, edge_nm=edge_nm,
                            peak_transmittance=peak_transmittance, floor_transmittance=floor_transmittance)
-    _positive("band_pass_filter", centre_nm=p["centre_nm"], width_nm=p["width_nm"], edge_nm=p["edge_nm"])
+    _positive("band_pass_filter", centre_nm=p["centre_nm"], passband_nm=p["passband_nm"], edge_nm=p["edge_nm"])
     peak, floor = p["peak_transmittance"], p["floor_transmittance"]
     if ((peak > 1) | (floor < 0) | (floor > peak)).any():
         raise SpectrumError(
@@ -433,8 +677,8 @@ def band_pass_filter(
             "need 0 <= floor <= peak <= 1"
         )
     scale = p["edge_nm"][:, None] / (2.0 * math.log(9.0))
-    lo = (p["centre_nm"] - p["width_nm"] / 2)[:, None]
-    hi = (p["centre_nm"] + p["width_nm"] / 2)[:, None]
+    lo = (p["centre_nm"] - p["passband_nm"] / 2)[:, None]
+    hi = (p["centre_nm"] + p["passband_nm"] / 2)[:, None]
     rise = 0.5 * (1.0 + np.tanh((wl[None, :] - lo) / (2.0 * scale)))
     fall = 0.5 * (1.0 + np.tanh((hi - wl[None, :]) / (2.0 * scale)))
     values = floor[:, None] + (peak - floor)[:, None] * rise * fall
@@ -463,11 +707,28 @@ def filtered_primaries(source: xr.DataArray, filters: xr.DataArray) -> xr.DataAr
 
     Returns
     -------
-    DataArray ``primary`` × ``wavelength`` in the source's radiance units, labelled by the filters.
+    xarray.DataArray
+        ``primary`` × ``wavelength`` in the source's radiance units, labelled by the filters.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        More than one backlight spectrum, a transmittance above 1, or a spectrum that is not
+        usable (negative or non-finite values).
+    metasim.errors.GridMismatchError
+        Source and filters on different grids.
 
     References
     ----------
     Common practice, no source (Beer-Lambert: transmitted radiance = incident × transmittance).
+
+    Examples
+    --------
+    >>> white = phosphor_white_led()
+    >>> filters = band_pass_filter([460, 540, 640], [50, 80, 120], name=["B", "G", "R"])
+    >>> subpixels = filtered_primaries(white, filters)
+    >>> subpixels.primary.values.tolist(), subpixels.attrs["units"]
+    (['B', 'G', 'R'], 'W sr-1 m-2 nm-1')
     """
     if isinstance(source, xr.DataArray) or not isinstance(filters, xr.DataArray):
         source = as_spectra(source, where="source", dims_example=("wavelength",))
@@ -511,6 +772,46 @@ def measured_spectra(
     The file layout is that of :func:`metasim.spectra.read_spectra_csv` (a ``wavelength_nm``
     column, one column per primary); the result has dims ``primary`` × ``wavelength`` and is
     resampled onto ``wavelengths`` when given (linear inside the measured range, zero outside).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file.
+    wavelengths : array-like, optional
+        Grid to resample onto, nm (default: the file's own wavelengths).
+    units : str
+        Units of the values (``"1"`` for a transmittance).
+    long_name : str
+        What the values are, for labels.
+    allow_outside_grid : bool
+        Accept, with a warning, a spectrum with more than 1 % of its energy outside ``wavelengths``
+        (an error otherwise).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength``, named ``spectra``, in ``units``.
+
+    Raises
+    ------
+    metasim.errors.FileFormatError
+        A file that cannot be read as such a table (the message names the row or cell).
+    metasim.errors.SpectrumError
+        Values that are not usable, or energy outside the grid (unless ``allow_outside_grid``).
+
+    References
+    ----------
+    Common practice, no source (linear interpolation of tabulated spectra).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "red.csv"
+    >>> rows = ["wavelength_nm,R", "600,0", "620,1", "640,2", "660,1", "680,0"]
+    >>> _ = path.write_text("\\n".join(rows), encoding="utf-8")
+    >>> red = measured_spectra(path, np.arange(600, 681, 10.0))
+    >>> red.primary.values.tolist(), red.values.tolist()
+    (['R'], [[0.0, 0.5, 1.0, 1.5, 2.0, 1.5, 1.0, 0.5, 0.0]])
     """
     array = read_spectra_csv(path, wavelengths=wavelengths, units=units, long_name=long_name, dim="primary",
                              allow_outside_grid=allow_outside_grid)
@@ -524,6 +825,34 @@ def stack_primaries(*spectra: xr.DataArray) -> xr.DataArray:
     Each argument has dims ``wavelength`` (labelled by its ``name``) or ``primary`` × ``wavelength``;
     all share the grid and the units; primary labels must be unique. colour-science distributions
     are accepted and put on the grid of the first DataArray (else of the first argument).
+
+    Parameters
+    ----------
+    *spectra : xarray.DataArray or colour-science distribution
+        The parts, in order (or one list or tuple of them).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``primary`` × ``wavelength`` in the parts' units, named ``spectra``.
+
+    Raises
+    ------
+    metasim.errors.SpectrumError
+        No spectra, dims other than ``primary`` and ``wavelength``, different units, or repeated
+        labels.
+    metasim.errors.GridMismatchError
+        Parts on different grids.
+
+    References
+    ----------
+    Common practice, no source.
+
+    Examples
+    --------
+    >>> display = stack_primaries(laser_line(465, name="B"), gaussian([530, 630], [30, 20], name=["G", "R"]))
+    >>> display.primary.values.tolist(), display.attrs["units"]
+    (['B', 'G', 'R'], 'W sr-1 m-2 nm-1')
     """
     if len(spectra) == 1 and isinstance(spectra[0], (list, tuple)):
         spectra = tuple(spectra[0])

@@ -31,6 +31,12 @@ class RenamedWarning(MetasimWarning, FutureWarning):
     message names the new one)."""
 
 
+class RenamedKeywordWarning(RenamedWarning, DeprecationWarning):
+    """A library function was called with a keyword's old name; it still works for one release (the
+    message names the new one). A :class:`DeprecationWarning` too, so Python shows it where the call
+    is in a script or a test and not where another library makes it."""
+
+
 class DuplicateStimulusWarning(MetasimWarning):
     """A stimulus set holds the same colour more than once (pooled statistics count it twice)."""
 

@@ -22,7 +22,7 @@ def test_ohno_led_equals_colour_science():
 @pytest.mark.parametrize("linewidth", [0.05, 0.1, 0.3, 1.0, 2.0, 5.0])
 @pytest.mark.parametrize("centre", [532.0, 532.37, 639.81])
 def test_laser_line_keeps_energy_and_centroid(linewidth, centre):
-    line = emitters.laser_line(centre, linewidth, normalise="none", radiance=2.5)
+    line = emitters.laser_line(centre, linewidth, normalise="none", relative_power=2.5)
     wl = line.wavelength.values
     values = line.values[0]
     energy = values.sum() * 1.0

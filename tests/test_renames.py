@@ -138,3 +138,37 @@ def test_demo_files_writes_the_examples_and_their_format(tmp_path):
     assert display.n_primaries == 3
     again = run("demo", "--files", folder, check=False)
     assert again.returncode != 0 and "--replace" in again.stderr  # nothing a user edited is overwritten
+
+
+# -- library keywords ----------------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("call, old, new", [
+    (lambda **k: metasim.emitters.laser_line(532, 1.0, **k), "radiance", "relative_power"),
+    (lambda **k: metasim.emitters.gaussian(530, 30, **k), "radiance", "relative_power"),
+    (lambda **k: metasim.emitters.ohno_led(630, 15, **k), "radiance", "relative_power"),
+    (lambda **k: metasim.emitters.quantum_dot(630, 30, **k), "radiance", "relative_power"),
+    (lambda **k: metasim.emitters.phosphor_white_led(**k), "radiance", "relative_power"),
+    (lambda **k: metasim.emitters.phosphor_white_led(**k), "phosphor_to_pump", "phosphor_pump_ratio"),
+])
+def test_old_emitter_keywords_work_and_warn(call, old, new):
+    with pytest.warns(DeprecationWarning, match=f"keyword '{old}' is renamed '{new}'") as seen:
+        before = call(**{old: 3.0})
+    assert issubclass(seen[0].category, RenamedWarning)  # the project's renamed-name notice
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        after = call(**{new: 3.0})
+    np.testing.assert_array_equal(before.values, after.values)
+    with pytest.raises(TypeError, match=f"both {old}= and {new}="):
+        call(**{old: 3.0, new: 3.0})
+
+
+def test_old_filter_and_grid_keywords_work_and_warn():
+    with pytest.warns(DeprecationWarning, match="'width_nm' is renamed 'passband_nm'"):
+        old = metasim.emitters.band_pass_filter(540, width_nm=80)
+    np.testing.assert_array_equal(old.values, metasim.emitters.band_pass_filter(540, passband_nm=80).values)
+    base = metasim.emitters.laser_line([465, 532], 1.0, name=["B", "G"])
+    with pytest.warns(DeprecationWarning, match="'radiance' is renamed 'relative_power'"):
+        old = metasim.design_grid("laser", {"R": [630, 640]}, 1.0, base=base, radiance=2.0)
+    new = metasim.design_grid("laser", {"R": [630, 640]}, 1.0, base=base, relative_power=2.0)
+    xr_equal = old.identical(new)
+    assert xr_equal

@@ -79,8 +79,6 @@ REQUIRED = {"laser": ("peak_nm",), "gaussian": ("peak_nm", "fwhm_nm"),
             "filter": ("centre_nm", "passband_nm"), "measured": ("file",)}
 BACKLIGHT_KEYS = ("pump_peak_nm", "pump_half_spectral_width_nm", "phosphor_peak_nm", "phosphor_fwhm_nm",
                   "phosphor_pump_ratio")
-#: spec keys to the keywords of metasim.emitters.phosphor_white_led
-BACKLIGHT_KEYWORDS = {"phosphor_pump_ratio": "phosphor_to_pump"}
 COMMON_KEYS = ("label", "kind", "relative_power")
 #: old key names, still read for one release (with a RenamedWarning): table → {old: new}
 RENAMED_KEYS = {
@@ -142,7 +140,7 @@ def _backlight(spec: dict, where: str, grid):
     kind = table.get("kind", "phosphor_white_led")
     if kind == "phosphor_white_led":
         known_keys(table, ("kind", *BACKLIGHT_KEYS), f"{where} [backlight]", error=SpecError)
-        params = {BACKLIGHT_KEYWORDS.get(k, k): _number(f"{where} [backlight]", k, v) for k, v in table.items()
+        params = {k: _number(f"{where} [backlight]", k, v) for k, v in table.items()
                   if k != "kind"}
         return emitters.phosphor_white_led(grid, **params, allow_outside_grid=_allowed(spec))
     if kind == "measured":
@@ -186,17 +184,17 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
     missing = [k for k in REQUIRED[kind] if k not in table]
     if missing:
         raise SpecError(f"{where} ({kind}): missing key {missing[0]!r}")
-    radiance = _number(where, "relative_power", table.get("relative_power", 1.0))
+    power = _number(where, "relative_power", table.get("relative_power", 1.0))
     params = {k: v for k, v in table.items() if k not in COMMON_KEYS}
     if kind == "measured":
         spectra = _measured(spec, where, table, grid)
-        out = _column(spectra, table.get("column", label), where) * radiance
+        out = _column(spectra, table.get("column", label), where) * power
         out.attrs = dict(spectra.attrs)
     elif kind == "filter":
         numbers = {k: _number(where, k, v, positive=k not in ("floor_transmittance",)) for k, v in params.items()}
         filters = emitters.band_pass_filter(numbers.pop("centre_nm"), numbers.pop("passband_nm"), grid, name=label,
                                             **numbers)
-        out = emitters.filtered_primaries(_backlight(spec, where, grid), filters).isel(primary=0) * radiance
+        out = emitters.filtered_primaries(_backlight(spec, where, grid), filters).isel(primary=0) * power
     else:
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "led": emitters.ohno_led,
                     "quantum_dot": emitters.quantum_dot}[kind]
@@ -204,13 +202,13 @@ def primary_spectrum(spec: dict, table: dict, index: int, grid):
         peak = numbers.pop("peak_nm")
         allow = {"allow_outside_grid": _allowed(spec)}
         if kind == "laser":
-            out = function(peak, numbers.pop("linewidth_nm", 0.1), grid, radiance=radiance, name=label, **numbers,
+            out = function(peak, numbers.pop("linewidth_nm", 0.1), grid, relative_power=power, name=label, **numbers,
                            **allow)
         elif kind == "led":
-            out = function(peak, numbers.pop("half_spectral_width_nm"), grid, radiance=radiance, name=label, **numbers,
+            out = function(peak, numbers.pop("half_spectral_width_nm"), grid, relative_power=power, name=label, **numbers,
                            **allow)
         else:
-            out = function(peak, numbers.pop("fwhm_nm"), grid, radiance=radiance, name=label, **allow)
+            out = function(peak, numbers.pop("fwhm_nm"), grid, relative_power=power, name=label, **allow)
         out = out.isel(primary=0)
     return out.drop_vars([c for c in out.coords if c != "wavelength"]).rename(label)
 

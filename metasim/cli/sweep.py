@@ -156,11 +156,11 @@ def sweep_designs(spec: dict, *, allow_outside_grid: bool = False):
     base, base_spec = None, None
     if "base" in spec:
         base, base_spec = load_display(relative(spec, spec["base"]), allow_outside_grid=allow_outside_grid)
-    radiance = vary.get("relative_power", 1.0)
-    if isinstance(radiance, bool) or not isinstance(radiance, (int, float)) or radiance <= 0:
-        raise SpecError(f"{where} [vary]: relative_power = {radiance!r} is not allowed; need a number > 0")
+    power = vary.get("relative_power", 1.0)
+    if isinstance(power, bool) or not isinstance(power, (int, float)) or power <= 0:
+        raise SpecError(f"{where} [vary]: relative_power = {power!r} is not allowed; need a number > 0")
     try:
-        designs = design_grid(vary.get("kind", "laser"), peaks, width, base=base, radiance=float(radiance),
+        designs = design_grid(vary.get("kind", "laser"), peaks, width, base=base, relative_power=float(power),
                               profile=vary.get("profile", "gaussian"), allow_outside_grid=allow_outside_grid)
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None

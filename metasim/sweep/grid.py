@@ -19,6 +19,7 @@ import numpy as np
 import xarray as xr
 
 from metasim import emitters
+from metasim.checks import renamed_keywords
 from metasim.display import Display
 from metasim.errors import SweepError
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, default_grid
@@ -74,8 +75,9 @@ def _base_spectra(base) -> tuple[xr.DataArray | None, dict]:
     raise SweepError(f"base must be a Display or spectra (primary x wavelength), got {type(base).__name__}")
 
 
+@renamed_keywords(radiance="relative_power")
 def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, width_nm=1.0, *,
-                base=None, radiance: float = 1.0, profile: str = "gaussian", wavelengths=None,
+                base=None, relative_power: float = 1.0, profile: str = "gaussian", wavelengths=None,
                 allow_outside_grid: bool = False, lazy: bool = False) -> "xr.DataArray | DesignGrid":
     """Every combination of primary peaks and widths, as one ``design × primary × wavelength`` array.
 
@@ -93,8 +95,9 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
         A design whose other primaries stay fixed (spectra before white calibration); a varied label
         replaces the base primary of that label, new labels are appended. A Display also gives the
         designs its display settings (transfer, white, luminance, calibration observer).
-    radiance : float
-        Integrated radiance of each varied primary before calibration, W·sr⁻¹·m⁻² (matters for N > 3).
+    relative_power : float
+        Integrated radiance of each varied primary before calibration, W·sr⁻¹·m⁻², relative to the
+        fixed ones (matters for N > 3; was ``radiance``, still accepted for one release with a warning).
     profile : {"gaussian", "lorentzian"}
         Line shape of laser primaries.
     wavelengths : optional
@@ -128,7 +131,7 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     >>> lazy.sizes["design"], lazy.block(1, 3)["peak_nm_R"].values.tolist()
     (3, [640.0, 650.0])
     """
-    grid = DesignGrid(kind, peaks_nm, width_nm, base=base, radiance=radiance, profile=profile,
+    grid = DesignGrid(kind, peaks_nm, width_nm, base=base, relative_power=relative_power, profile=profile,
                       wavelengths=wavelengths, allow_outside_grid=allow_outside_grid)
     return grid if lazy else grid.block(0, grid.count)
 
@@ -146,7 +149,8 @@ class DesignGrid:
 
     dims = ("design", "primary", "wavelength")
 
-    def __init__(self, kind: str, peaks_nm, width_nm=1.0, *, base=None, radiance: float = 1.0,
+    @renamed_keywords(radiance="relative_power")
+    def __init__(self, kind: str, peaks_nm, width_nm=1.0, *, base=None, relative_power: float = 1.0,
                  profile: str = "gaussian", wavelengths=None, allow_outside_grid: bool = False):
         if kind not in GRID_KINDS:
             raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
@@ -178,7 +182,7 @@ class DesignGrid:
         self.labels, self.width_of, self.wavelengths = labels, width_of, wl
         # each varied primary's distinct (peak, width) pairs, sorted, made in one emitter call
         self._tables = {}
-        arguments = {"radiance": radiance, "allow_outside_grid": allow_outside_grid,
+        arguments = {"relative_power": relative_power, "allow_outside_grid": allow_outside_grid,
                      **({"profile": profile} if kind == "laser" else {})}
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}[kind]
         axis = dict(self.axes)
@@ -201,7 +205,7 @@ class DesignGrid:
         parameters = {"kind": kind, "peaks_nm": {k: _values(k, v) for k, v in peaks_nm.items()},
                       "width_nm": ({str(k): _values(k, v) for k, v in width_nm.items()} if isinstance(width_nm, Mapping)
                                    else _values("width_nm", width_nm)),
-                      "radiance": float(radiance), "profile": profile,
+                      "radiance": float(relative_power), "profile": profile,  # the key hashed by older stores
                       "fixed_primaries": [p for p in order if p not in labels]}
         self.attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
                       "model": f"design grid: {kind} primaries {', '.join(labels)} varied (Cartesian product)",
