@@ -28,7 +28,7 @@ import numpy as np
 import xarray as xr
 
 from metasim import _warmup
-from metasim._threads import blas_single_threaded
+from metasim._threads import blas_single_threaded, run_in_parts
 from metasim.colorimetry.cielab import xyz_to_lab_array
 from metasim.colorimetry.difference import delta_e_2000_array
 from metasim.colorimetry.fused import driven_pair_differences, pair_differences
@@ -299,13 +299,16 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
         counts = np.zeros((designs, context.thresholds.size, stimuli), dtype=np.int64)
         by_stimulus = np.full((designs, statistics, stimuli if per_stimulus else 0), np.nan)
         flags = np.zeros(designs, dtype=np.int64)
-        # writable C arrays: one argument type per parameter, one compiled version (metasim._warmup)
-        _warmup.wait(kernel_statistics)
-        kernel_statistics(writable(padded_drives(block.solution.drive)), writable(block.matrices),
-                          writable(block.black), writable(block.adapted.reshape(-1, 3)), context.reference_columns,
-                          context.adapted_white == "reference", writable(block.correction),
-                          band_of, writable(sizes, np.int64), context.thresholds, bool(per_stimulus), overall, overall_index, by_band,
-                          counts, by_stimulus, flags)
+        kept = np.empty((designs, observers, stimuli) if differences else (0, 0, 0))
+        # writable C arrays: one argument type per parameter, one compiled version (metasim._warmup);
+        # ranges of designs on the kernel threads
+        run_in_parts(kernel_statistics, designs, writable(padded_drives(block.solution.drive)),
+                     writable(block.matrices), writable(block.black), writable(block.adapted.reshape(-1, 3)),
+                     context.reference_columns, context.adapted_white == "reference", writable(block.correction),
+                     band_of, writable(sizes, np.int64), context.thresholds, bool(per_stimulus), overall,
+                     overall_index, by_band, counts, by_stimulus, kept, flags)
+        if differences:
+            out["differences"] = kept
         share = counts / observers
         out.update({"delta_e_2000_overall": overall, "metamerism_index_overall": overall_index,
                     "share_beyond": share, "share_beyond_overall": overall_shares(share)})
@@ -316,13 +319,13 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
         general = flags != 0
     if context.include_itp:
         general[:] = True
-    kept = block.pairs(context) if differences else None
-    if differences:
-        out["differences"] = kept["delta_e_2000"]
     if general.any():  # the arrays and the statistics layer's general route for these designs
         which = np.flatnonzero(general)
-        pairs = {name: values[which] for name, values in kept.items()} if kept is not None \
-            else block.pairs(context, which)
+        pairs = block.pairs(context, which)
+        if differences:
+            if "differences" not in out:
+                out["differences"] = np.empty((designs, observers, stimuli))
+            out["differences"][which] = pairs["delta_e_2000"]
         delta_e = pairs["delta_e_2000"]
         share, share_overall, by_age, by_stimulus = band_and_stimulus_statistics(
             delta_e, context.weights, ages, context.age_bands, context.thresholds, per_stimulus)

@@ -9,19 +9,18 @@ same white), the metamerism index where the design carries a correction — the 
 design's statistics over its observer × stimulus pairs with the selection and numpy-order sums of
 :mod:`metasim.statistics._kernels.order`, the statistics layer's compiled summary (numpy's mean,
 linear quantiles and maximum, bit for bit).
-Designs run in parallel; the GIL is released.
+A serial loop over a range of designs that releases the GIL: the entry point
+(:func:`metasim.sweep.evaluate.design_statistics`) runs ranges on the kernel threads.
 """
 
 from __future__ import annotations
-
-import math
 
 import numba
 import numpy as np
 
 from metasim.colorimetry._kernels.cielab import lab_columns
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_columns, padded
-from metasim.colorimetry._kernels.fused import corrected_differences_into, mend
+from metasim.colorimetry._kernels.fused import mend
 from metasim.colorimetry._kernels.sums import xyz_of_drives
 from metasim.statistics._kernels.order import summarise, summarise_in_order
 
@@ -31,20 +30,31 @@ NOT_FINITE = 1  # a difference was NaN: the caller takes numpy's route for this 
 
 @numba.njit(cache=True, error_model="numpy")
 def _design(d, test_t, matrices, black, white, reference, reference_is_lab, correction, band_of, band_sizes,
-            thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, flags):
+            thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, differences, flags):
     observers = matrices.shape[1]
     stimuli = correction.shape[1]
     width = test_t.shape[2]
     pairs = observers * stimuli
-    values_all = np.empty(pairs)
+    keep = differences.shape[0] > 0
+    values_all = differences[d].reshape(pairs) if keep else np.empty(pairs)
     c = correction[d]
     corrected = 0
     for s in range(stimuli):
         corrected += (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0)
+    where = np.empty(corrected, dtype=np.int64)
+    j = 0
+    for s in range(stimuli):
+        if (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0):
+            where[j] = s
+            j += 1
     index_all = np.empty(pairs if corrected > 0 else 0)
-    part = padded(corrected)  # work arrays of the corrected stimuli, reused from observer to observer
-    where, cbuf, cref = np.empty(corrected, dtype=np.int64), np.ones((3, part)), np.ones((3, part))
-    clab, cspecial, cvalues = np.empty((3, part)), np.empty(part, dtype=np.bool_), np.empty(part)
+    # the corrected stimuli of one observer as columns (CIELAB against that observer's white), then
+    # those of every observer side by side, for one CIE 2000 column loop per design
+    part = padded(corrected)
+    cbuf, clab = np.ones((3, part)), np.empty((3, part))
+    span = padded(observers * corrected)
+    batch_ref, batch_lab = np.ones((3, span)), np.ones((3, span))
+    batch_special, batch_values = np.empty(span, dtype=np.bool_), np.empty(span)
     buf = np.empty((3, width))
     lab = np.empty((3, width))
     lab_r = np.empty((3, width))
@@ -54,7 +64,7 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
     for t in range(n_t):
         for s in range(stimuli):
             counts[d, t, s] = 0
-    finite = True
+    not_finite = 0
     for o in range(observers):
         r = d * observers + o
         wx, wy, wz = white[r, 0], white[r, 1], white[r, 2]
@@ -70,19 +80,35 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
         mend(ref, lab, values, special)
         row = values_all[o * stimuli:(o + 1) * stimuli]
         for s in range(stimuli):
-            v = values[s]
-            row[s] = v
-            finite &= not math.isnan(v)
-            for t in range(n_t):
-                counts[d, t, s] += v > thresholds[t]
-        if corrected > 0:
-            index_row = index_all[o * stimuli:(o + 1) * stimuli]
-            index_row[:] = row
-            corrected_differences_into(buf, ref, c, stimuli, corrected, wx, wy, wz, index_row, where, cbuf, cref,
-                                       clab, cspecial, cvalues)
+            row[s] = values[s]
+        for s in range(stimuli):
+            not_finite += values[s] != values[s]
+        for t in range(n_t):  # observers beyond each threshold, stimulus by stimulus
+            limit = thresholds[t]
+            line = counts[d, t]
             for s in range(stimuli):
-                finite &= not math.isnan(index_row[s])
-    if not finite:
+                line[s] += values[s] > limit
+        if corrected > 0:  # the corrected colours (test XYZ minus the correction, clipped at 0) as CIELAB
+            for j in range(corrected):
+                s = where[j]
+                for k in range(3):
+                    cbuf[k, j] = max(buf[k, s] - c[s, k], 0.0)
+            lab_columns(cbuf[0], cbuf[1], cbuf[2], wx, wy, wz, clab[0], clab[1], clab[2])
+            for j in range(corrected):
+                for k in range(3):
+                    batch_ref[k, o * corrected + j] = ref[k, where[j]]
+                    batch_lab[k, o * corrected + j] = clab[k, j]
+    if corrected > 0:  # the metamerism index: CIE 2000 of the corrected colours, every observer in one loop
+        delta_e_2000_columns(batch_ref[0], batch_ref[1], batch_ref[2], batch_lab[0], batch_lab[1], batch_lab[2], 1.0,
+                             batch_values, batch_special)
+        mend(batch_ref, batch_lab, batch_values, batch_special)
+        index_all[:] = values_all
+        for o in range(observers):
+            for j in range(corrected):
+                v = batch_values[o * corrected + j]
+                index_all[o * stimuli + where[j]] = v
+                not_finite += v != v
+    if not_finite > 0:
         flags[d] |= NOT_FINITE
         return
     summarise(values_all, 0, pairs, overall[d])
@@ -114,10 +140,12 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
                 by_stimulus[d, k, s] = summary[k]
 
 
-@numba.njit(cache=True, parallel=True, nogil=True, error_model="numpy")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def design_statistics(test_t, matrices, black, white, reference, reference_is_lab, correction, band_of, band_sizes,
-                      thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, flags):
-    """Every design's summaries (designs in parallel).
+                      thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, differences, flags,
+                      start, stop):
+    """The summaries of designs start:stop (a serial loop that releases the GIL; callers split the
+    designs over the kernel threads with :func:`metasim._threads.run_in_parts`).
 
     test_t (D, N, S_padded) padded drives; matrices (D, O, 3, N) and black (D, O, 3) the test
     display's observer matrices; white (D·O, 3) each row's adapted white; reference (O, 3,
@@ -125,11 +153,13 @@ def design_statistics(test_t, matrices, black, white, reference, reference_is_la
     (D, S, 3); band_of (O,) age band of each observer (−1: none), band_sizes (G,); thresholds (T,).
     Writes overall, overall_index (D, 4): mean, median, p95, max of the differences and of the
     index over all pairs; by_band (D, 4, G); counts (D, T, S) observers beyond each threshold;
-    by_stimulus (D, 4, S) statistics over observers (if ``per_stimulus``); flags (D,).
+    by_stimulus (D, 4, S) statistics over observers (if ``per_stimulus``); differences (D, O, S)
+    every pair's CIE 2000 difference (when its first dim is not empty: kept for intervals);
+    flags (D,).
     """
-    for d in numba.prange(matrices.shape[0]):
+    for d in range(start, stop):
         _design(d, test_t, matrices, black, white, reference, reference_is_lab, correction, band_of, band_sizes,
-                thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, flags)
+                thresholds, per_stimulus, overall, overall_index, by_band, counts, by_stimulus, differences, flags)
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
@@ -154,6 +184,7 @@ SIGNATURES = {
     "design_statistics": ("float64[:, :, ::1]", "float64[:, :, :, ::1]", "float64[:, :, ::1]", "float64[:, ::1]",
                           "float64[:, :, ::1]", "boolean", "float64[:, :, ::1]", "int64[::1]", "int64[::1]",
                           "float64[::1]", "boolean", "float64[:, ::1]", "float64[:, ::1]", "float64[:, :, ::1]",
-                          "int64[:, :, ::1]", "float64[:, :, ::1]", "int64[::1]"),
+                          "int64[:, :, ::1]", "float64[:, :, ::1]", "float64[:, :, ::1]", "int64[::1]", "int64",
+                          "int64"),
     "reference_columns": ("float64[:, :, ::1]", "float64[:, ::1]", "boolean", "float64[:, :, ::1]"),
 }
