@@ -77,9 +77,38 @@ def observer_features(population: xr.Dataset) -> xr.DataArray:
 
     See the module docstring for the stimulus set and the adaptation to each observer's own white.
 
+    Parameters
+    ----------
+    population : xarray.Dataset
+        Observers with ``cmf`` (observer, xyz, wavelength) on a uniform grid, e.g. from
+        :func:`metasim.observer_population`.
+
+    Returns
+    -------
+    xarray.DataArray (observer, stimulus, lab)
+        CIELAB L*, a*, b* (CIELAB units) of the 14 CIE 13.3 samples and 9 narrow bands
+        (``narrow band 450 nm`` ... ``650 nm``) for every observer.
+
+    Raises
+    ------
+    ObserverError
+        ``population`` without a ``cmf`` variable of those dims.
+    SpectrumError
+        A grid that is not uniform.
+
     References
     ----------
     CIE 13.3-1995; CIE 15:2004.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.metamerism import observer_features
+    >>> features = observer_features(metasim.observer_population(3, seed=1))
+    >>> features.dims, features.shape
+    (('observer', 'stimulus', 'lab'), (3, 23, 3))
+    >>> features.sel(observer=0, stimulus="TCS01").round(1).values.tolist()
+    [61.3, 21.6, 11.5]
     """
     cmf = _population_cmf(population)
     wl = check_wavelengths(population["wavelength"], where="population grid", uniform=True)

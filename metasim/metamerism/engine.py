@@ -73,6 +73,43 @@ def resolve_observers(observers, wavelengths) -> xr.Dataset:
     Accepted: an observer Dataset, standard observer names, colour-science colour-matching
     functions (``XYZ_ColourMatchingFunctions``, put on the grid), or a list mixing names and
     colour-science objects (labelled by name).
+
+    Parameters
+    ----------
+    observers : str, list, colour.XYZ_ColourMatchingFunctions or xarray.Dataset
+        Standard observer names (``cie1931_2``, ``cie1964_10``, ``cie2015_2``, ``cie2015_10``),
+        colour-science colour-matching functions, a list mixing both (unique names), or an observer
+        Dataset with ``cmf`` (observer, xyz, wavelength), e.g. from
+        :func:`metasim.observer_population` (one observer without an ``observer`` dim gets one).
+    wavelengths : array_like or xarray.DataArray (wavelength)
+        The displays' grid in nm; names and colour-science objects are put on it, a Dataset must
+        already be on it.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``cmf`` (observer, xyz, wavelength; unit 1), the ``observer`` coordinate holding the names
+        for names and colour-science objects.
+
+    Raises
+    ------
+    ObserverError
+        An empty set, an unknown name, repeated names, colour-science cone fundamentals only, or an
+        object that is none of the above.
+    GridMismatchError
+        An observer Dataset on another grid than ``wavelengths``.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (CIE 1931 and 1964 standard observers); CIE 170-2:2015.
+
+    Examples
+    --------
+    >>> from metasim.metamerism import resolve_observers
+    >>> from metasim.spectra import wavelength_grid
+    >>> observers = resolve_observers(["cie1931_2", "cie1964_10"], wavelength_grid(390, 830, 5))
+    >>> observers["cmf"].dims, observers["observer"].values.tolist()
+    (('observer', 'xyz', 'wavelength'), ['cie1931_2', 'cie1964_10'])
     """
     if isinstance(observers, np.ndarray):
         as_observer(observers)  # refused, with how to label it
@@ -115,6 +152,45 @@ def resolve_calibration_observer(calibration_observer, observers: xr.Dataset, wa
     """The calibration observer (no ``observer`` dim) and its name.
 
     ``"population_mean"`` is the mean of the observers' colour-matching functions.
+
+    Parameters
+    ----------
+    calibration_observer : str, xarray.Dataset or colour.XYZ_ColourMatchingFunctions
+        A standard observer name (``cie1931_2``, ``cie1964_10``, ``cie2015_2``, ``cie2015_10``),
+        ``"population_mean"``, an observer Dataset with ``cmf`` (xyz, wavelength; an ``observer``
+        dim of length 1 is dropped) or colour-science colour-matching functions.
+    observers : xarray.Dataset
+        The observers of the study, ``cmf`` (observer, xyz, wavelength) as from
+        :func:`resolve_observers` (used for ``"population_mean"``).
+    wavelengths : array_like or xarray.DataArray (wavelength)
+        The displays' grid in nm.
+
+    Returns
+    -------
+    tuple of (xarray.Dataset, str)
+        The observer, ``cmf`` (xyz, wavelength; unit 1), and its name (a Dataset's ``observer``
+        attribute, else "custom").
+
+    Raises
+    ------
+    ObserverError
+        An unknown name, a Dataset of more than one observer, or another kind of object.
+    GridMismatchError
+        An observer Dataset on another grid than ``wavelengths``.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (CIE 1931 and 1964 standard observers); CIE 170-2:2015.
+
+    Examples
+    --------
+    >>> from metasim.metamerism import resolve_calibration_observer, resolve_observers
+    >>> from metasim.spectra import wavelength_grid
+    >>> grid = wavelength_grid(390, 830, 5)
+    >>> observers = resolve_observers(["cie1931_2", "cie1964_10"], grid)
+    >>> calibration, name = resolve_calibration_observer("population_mean", observers, grid)
+    >>> name, calibration["cmf"].dims
+    ('population_mean', ('xyz', 'wavelength'))
     """
     if isinstance(calibration_observer, str):
         if calibration_observer == "population_mean":

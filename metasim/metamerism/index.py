@@ -59,11 +59,32 @@ def observer_metamerism_index(
     Returns
     -------
     DataArray
-        The index (a CIE 2000 difference), broadcast over all dims but ``xyz``.
+        The index (a CIE 2000 difference, ΔE00), broadcast over all dims but ``xyz``, named
+        ``metamerism_index``.
+
+    Raises
+    ------
+    MismatchError
+        An unknown ``correction`` or ``space``, or ``space="lab"`` without ``white_r``.
 
     References
     ----------
     ISO 18314-4:2024; colour-science ``XYZ_to_metamerism_index`` / ``Lab_to_metamerism_index``.
+
+    Examples
+    --------
+    A sample and standard that match for the calibration observer (condition r) but differ by
+    0.5 in X for an individual observer (condition t):
+
+    >>> import xarray as xr
+    >>> from metasim.metamerism import observer_metamerism_index
+    >>> def xyz(values):
+    ...     return xr.DataArray(values, dims="xyz", coords={"xyz": ["X", "Y", "Z"]})
+    >>> index = observer_metamerism_index(xyz([20.0, 21.0, 22.0]), xyz([20.5, 21.0, 22.0]),
+    ...                                   xyz([20.0, 21.0, 21.5]), xyz([20.0, 21.0, 21.5]),
+    ...                                   xyz([95.047, 100.0, 108.883]))
+    >>> round(float(index), 3), index.attrs["units"]
+    (3.412, 'ΔE00')
     """
     if correction not in CORRECTIONS:
         raise MismatchError(f"correction={correction!r} is not known; allowed: {', '.join(CORRECTIONS)}")

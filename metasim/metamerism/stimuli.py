@@ -57,7 +57,45 @@ _VARIABLE = {"rgb": "signal", "xyz": "xyz_relative", "reflectance": "reflectance
 
 
 def rgb_set(values, labels, *, source: str = "bt709", encoding: str | None = None, description: str = "RGB signals") -> xr.Dataset:
-    """Stimuli from encoded source RGB signals (``stimulus`` × R, G, B, each 0..1)."""
+    """Stimuli from encoded source RGB signals (``stimulus`` × R, G, B, each 0..1).
+
+    Parameters
+    ----------
+    values : array_like (stimulus, 3)
+        Encoded R, G, B signals, each 0..1 (unit 1).
+    labels : sequence of str
+        One name per stimulus (the ``stimulus`` coordinate).
+    source : str
+        The RGB space the signals are encoded in: ``bt709``, ``srgb``, ``display_p3`` or ``bt2020``.
+    encoding : str or None
+        A transfer-function name (:mod:`metasim.display.transfer`); None or empty: the source's own.
+    description : str
+        The set's ``description`` attribute (named in warnings and reports).
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``rgb``: ``signal`` (stimulus, primary = R, G, B; unit 1) and the
+        attributes ``kind``, ``source``, ``encoding``, ``description``. A repeated colour is kept,
+        with a :class:`~metasim.errors.DuplicateStimulusWarning` naming it.
+
+    Raises
+    ------
+    StimulusError
+        Values not of shape (stimulus, 3), no stimulus, or a signal outside 0..1 (named).
+
+    References
+    ----------
+    The source spaces: ITU-R BT.709-6; IEC 61966-2-1:1999 (sRGB); SMPTE EG 432-1:2010 (Display P3);
+    ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> from metasim.metamerism import rgb_set
+    >>> stimuli = rgb_set([[1.0, 0.0, 0.0], [0.5, 0.5, 0.5]], ["red", "mid grey"], source="srgb")
+    >>> stimuli["signal"].dims, stimuli.attrs["kind"], stimuli.attrs["source"]
+    (('stimulus', 'primary'), 'rgb', 'srgb')
+    """
     values = np.asarray(values, dtype=float)
     if values.ndim != 2 or values.shape[1] != 3:
         raise StimulusError(f"RGB stimuli need 3 values (R, G, B) each, got shape {values.shape}")
@@ -74,7 +112,38 @@ def rgb_set(values, labels, *, source: str = "bt709", encoding: str | None = Non
 
 
 def neutral_ramp(steps: int = 11, *, source: str = "bt709", encoding: str | None = None) -> xr.Dataset:
-    """Greys from black to white in equal signal steps (``steps`` ≥ 2), white last."""
+    """Greys from black to white in equal signal steps (``steps`` ≥ 2), white last.
+
+    Parameters
+    ----------
+    steps : int
+        Number of greys, at least 2 (black and white).
+    source : str
+        The RGB space of the signals (as for :func:`rgb_set`).
+    encoding : str or None
+        A transfer-function name; None: the source's own.
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``rgb`` (see :func:`rgb_set`): ``steps`` greys with R = G = B, labelled
+        ``grey 0.000``, ... and ``white``.
+
+    Raises
+    ------
+    StimulusError
+        ``steps`` not an integer ≥ 2.
+
+    References
+    ----------
+    The source spaces as for :func:`rgb_set` (ITU-R BT.709-6 by default).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import neutral_ramp
+    >>> neutral_ramp(3)["stimulus"].values.tolist()
+    ['grey 0.000', 'grey 0.500', 'white']
+    """
     if not isinstance(steps, (int, np.integer)) or steps < 2:
         raise StimulusError(f"steps={steps!r} is not allowed; a neutral ramp needs an integer >= 2")
     levels = np.linspace(0.0, 1.0, int(steps))
@@ -85,7 +154,41 @@ def neutral_ramp(steps: int = 11, *, source: str = "bt709", encoding: str | None
 
 
 def primaries_and_secondaries(*, source: str = "bt709", encoding: str | None = None, level: float = 1.0) -> xr.Dataset:
-    """White, the three primaries and three secondaries of the source space at signal ``level``."""
+    """White, the three primaries and three secondaries of the source space at signal ``level``.
+
+    Parameters
+    ----------
+    source : str
+        The RGB space of the signals (as for :func:`rgb_set`).
+    encoding : str or None
+        A transfer-function name; None: the source's own.
+    level : float
+        The encoded signal of the channels that are on, 0 < level ≤ 1 (unit 1).
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``rgb`` (see :func:`rgb_set`) of seven stimuli: white, red, green,
+        blue, cyan, magenta, yellow.
+
+    Raises
+    ------
+    StimulusError
+        ``level`` outside (0, 1].
+
+    References
+    ----------
+    The source spaces as for :func:`rgb_set` (ITU-R BT.709-6 by default).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import primaries_and_secondaries
+    >>> stimuli = primaries_and_secondaries(level=0.5)
+    >>> stimuli["stimulus"].values.tolist()
+    ['white', 'red', 'green', 'blue', 'cyan', 'magenta', 'yellow']
+    >>> stimuli["signal"].sel(stimulus="cyan").values.tolist()
+    [0.0, 0.5, 0.5]
+    """
     if not 0 < level <= 1:
         raise StimulusError(f"level={level!r} is not allowed; need 0 < level <= 1")
     table = {"white": (1, 1, 1), "red": (1, 0, 0), "green": (0, 1, 0), "blue": (0, 0, 1),
@@ -95,7 +198,39 @@ def primaries_and_secondaries(*, source: str = "bt709", encoding: str | None = N
 
 
 def rgb_cube_grid(per_axis: int = 5, *, source: str = "bt709", encoding: str | None = None) -> xr.Dataset:
-    """A regular grid of ``per_axis``³ signals filling the source RGB cube (corners included)."""
+    """A regular grid of ``per_axis``³ signals filling the source RGB cube (corners included).
+
+    Parameters
+    ----------
+    per_axis : int
+        Levels per channel, equally spaced from 0 to 1, at least 2.
+    source : str
+        The RGB space of the signals (as for :func:`rgb_set`).
+    encoding : str or None
+        A transfer-function name; None: the source's own.
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``rgb`` (see :func:`rgb_set`) of ``per_axis``³ stimuli labelled
+        ``rgb R G B`` (two decimals), blue varying fastest.
+
+    Raises
+    ------
+    StimulusError
+        ``per_axis`` not an integer ≥ 2.
+
+    References
+    ----------
+    The source spaces as for :func:`rgb_set` (ITU-R BT.709-6 by default).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import rgb_cube_grid
+    >>> cube = rgb_cube_grid(2)
+    >>> cube.sizes["stimulus"], cube["stimulus"].values[:3].tolist()
+    (8, ['rgb 0.00 0.00 0.00', 'rgb 0.00 0.00 1.00', 'rgb 0.00 1.00 0.00'])
+    """
     if not isinstance(per_axis, (int, np.integer)) or per_axis < 2:
         raise StimulusError(f"per_axis={per_axis!r} is not allowed; need an integer >= 2")
     levels = np.linspace(0.0, 1.0, int(per_axis))
@@ -109,9 +244,36 @@ def cie_13_3_samples(*, wavelengths=None, illuminant="D65") -> xr.Dataset:
     """The 14 CIE 13.3-1995 test colour samples (reflectances from colour-science) under ``illuminant``
     (a name, or a spectrum as for :func:`reflectance_set`).
 
+    Parameters
+    ----------
+    wavelengths : array_like or xarray.DataArray (wavelength), optional
+        The grid in nm to resample the reflectances onto (default 390-830 nm at 1 nm).
+    illuminant : str, xarray.DataArray (wavelength) or colour.SpectralDistribution
+        A CIE illuminant name known to colour-science (default D65), or a spectrum on the grid.
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``reflectance`` (see :func:`reflectance_set`): 14 stimuli ``TCS01`` ...
+        ``TCS14``, ``reflectance`` (stimulus, wavelength; unit 1).
+
+    Raises
+    ------
+    SpectrumError
+        ``wavelengths`` not an ascending grid of positive values.
+    StimulusError
+        An unknown illuminant name or an unusable illuminant spectrum.
+
     References
     ----------
     CIE 13.3-1995 Method of measuring and specifying colour rendering properties of light sources.
+
+    Examples
+    --------
+    >>> from metasim.metamerism import cie_13_3_samples
+    >>> samples = cie_13_3_samples(wavelengths=range(400, 701, 10))
+    >>> dict(samples.sizes), samples["stimulus"].values[:3].tolist(), samples.attrs["illuminant"]
+    ({'stimulus': 14, 'wavelength': 31}, ['TCS01', 'TCS02', 'TCS03'], 'D65')
     """
     from colour.quality.datasets.tcs import SDS_TCS
 
@@ -142,6 +304,37 @@ def reflectance_set(values, wavelengths=None, labels=None, *, illuminant="D65",
     illuminant
         A CIE illuminant name known to colour-science (default D65), or a spectrum (a ``wavelength``
         DataArray or a colour-science ``SpectralDistribution``), put on the set's grid.
+    description : str, optional
+        The set's ``description`` attribute (default "object colours", or the colour-science source).
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``reflectance``: ``reflectance`` (stimulus, wavelength; unit 1), the
+        attribute ``illuminant`` naming the illuminant and, for an illuminant given as a spectrum,
+        the variable ``illuminant`` (wavelength). A repeated colour is kept, with a
+        :class:`~metasim.errors.DuplicateStimulusWarning` naming it.
+
+    Raises
+    ------
+    StimulusError
+        Values of another shape or dims, no stimulus, negative or non-finite factors, a label count
+        that differs from the stimulus count, an unknown illuminant name or an unusable illuminant
+        spectrum.
+    SpectrumError
+        Wavelengths that are not an ascending grid of positive values.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (spectral reflectance factor; CIE standard illuminants).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import reflectance_set
+    >>> stimuli = reflectance_set([[0.2, 0.4, 0.6], [0.5, 0.5, 0.5]], [500, 550, 600], ["rising", "flat"],
+    ...                           illuminant="D50")
+    >>> stimuli["reflectance"].dims, stimuli.attrs["illuminant"]
+    (('stimulus', 'wavelength'), 'D50')
     """
     if is_colour_spectrum(values) or is_colour_collection(values):
         values = as_spectra(values, dim="stimulus", wavelengths=default_grid() if wavelengths is None else wavelengths,
@@ -232,7 +425,41 @@ def as_stimuli(stimuli, wavelengths=None) -> xr.Dataset:
 
 
 def xyz_set(values, labels, *, description: str = "XYZ targets") -> xr.Dataset:
-    """Targets as XYZ for the calibration observer, relative to the reference white (white Y = 100)."""
+    """Targets as XYZ for the calibration observer, relative to the reference white (white Y = 100).
+
+    Parameters
+    ----------
+    values : array_like (stimulus, 3)
+        X, Y, Z of each stimulus for the calibration observer, relative (the reference white has
+        Y = 100), each finite and ≥ 0.
+    labels : sequence of str
+        One name per stimulus.
+    description : str
+        The set's ``description`` attribute.
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of kind ``xyz``: ``xyz_relative`` (stimulus, xyz). A repeated colour is kept,
+        with a :class:`~metasim.errors.DuplicateStimulusWarning` naming it.
+
+    Raises
+    ------
+    StimulusError
+        Values not of shape (stimulus, 3), no stimulus, or negative or non-finite values.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (tristimulus values; relative values with Y = 100 for the
+    white).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import xyz_set
+    >>> stimuli = xyz_set([[95.047, 100.0, 108.883], [20.0, 21.0, 22.0]], ["white", "grey"])
+    >>> stimuli["xyz_relative"].sel(stimulus="grey").values.tolist()
+    [20.0, 21.0, 22.0]
+    """
     values = np.asarray(values, dtype=float)
     if values.ndim != 2 or values.shape[1] != 3:
         raise StimulusError(f"XYZ stimuli need 3 values each, got shape {values.shape}")
@@ -269,6 +496,21 @@ def duplicate_colours(stimuli: xr.Dataset, *, tolerance: float = SAME_COLOUR_TOL
         One list of stimulus positions per repeated colour (two or more each, ascending, the first
         one the stimulus a merge keeps); empty when every colour is distinct. Sameness is taken as
         transitive (a chain of near-equal stimuli is one group).
+
+    Raises
+    ------
+    StimulusError
+        ``stimuli`` is not a stimulus set.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> from metasim.metamerism import duplicate_colours, rgb_set
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")  # rgb_set warns of the repeat
+    ...     stimuli = rgb_set([[1, 1, 1], [0, 0, 0], [1, 1, 1]], ["white", "black", "white again"])
+    >>> duplicate_colours(stimuli)
+    [[0, 2]]
     """
     values = _colour_values(stimuli, check_stimuli(stimuli))
     n = values.shape[0]
@@ -337,6 +579,22 @@ def distinct(stimuli: xr.Dataset, *, tolerance: float = SAME_COLOUR_TOLERANCE) -
     Dataset
         The set without repeats, in the original order; the attribute ``merged_stimuli`` lists what
         was merged ("kept = dropped = ..."; empty when nothing was).
+
+    Raises
+    ------
+    StimulusError
+        ``stimuli`` is not a stimulus set.
+
+    Examples
+    --------
+    >>> import warnings
+    >>> from metasim.metamerism import distinct, rgb_set
+    >>> with warnings.catch_warnings():
+    ...     warnings.simplefilter("ignore")  # rgb_set warns of the repeat
+    ...     stimuli = rgb_set([[1, 1, 1], [0, 0, 0], [1, 1, 1]], ["white", "black", "white again"])
+    >>> merged = distinct(stimuli)
+    >>> merged["stimulus"].values.tolist(), merged.attrs["merged_stimuli"]
+    (['white', 'black'], "'white' = 'white again'")
     """
     groups = duplicate_colours(stimuli, tolerance=tolerance)
     out = stimuli
@@ -397,6 +655,32 @@ def combine(*sets: xr.Dataset) -> xr.Dataset:
     primaries and an RGB grid) is kept once, under its first label (:func:`distinct`; attribute
     ``merged_stimuli``). Different colours that share a label get `` (2)``, `` (3)``, ... appended
     to the later labels (attribute ``renamed_stimuli``).
+
+    Parameters
+    ----------
+    *sets : xarray.Dataset
+        Stimulus sets of one kind with the same ``source``, ``encoding`` and ``illuminant``
+        attributes (and the same illuminant spectrum, if any).
+
+    Returns
+    -------
+    xarray.Dataset
+        One stimulus set, the sets' stimuli in order, repeats merged; ``description`` joins theirs
+        with " + ".
+
+    Raises
+    ------
+    StimulusError
+        No set, sets of different kinds or settings, or a set that is not a stimulus set.
+
+    Examples
+    --------
+    >>> from metasim.metamerism import combine, neutral_ramp, primaries_and_secondaries
+    >>> both = combine(neutral_ramp(3), primaries_and_secondaries())
+    >>> both["stimulus"].values.tolist()
+    ['grey 0.000', 'grey 0.500', 'white', 'red', 'green', 'blue', 'cyan', 'magenta', 'yellow']
+    >>> both.attrs["merged_stimuli"]
+    "'white' = 'white'"
     """
     if not sets:
         raise StimulusError("combine needs at least one stimulus set")
@@ -441,6 +725,50 @@ def read_stimuli_csv(path: str | os.PathLike, kind: str, *, source: str = "bt709
     * ``kind="reflectance"``: the spectral layout of :func:`metasim.spectra.read_spectra_csv`
       (``wavelength_nm,<sample>,...``), one column per stimulus, resampled onto ``wavelengths``
       (a part of a reflectance outside the grid gives a warning, not an error: it is not energy).
+
+    Lines starting with ``#`` are notes (:func:`metasim.io.read_csv_rows`).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file (UTF-8).
+    kind : {"rgb", "xyz", "reflectance"}
+        What the file holds.
+    source : str
+        For ``rgb``: the RGB space of the signals (as for :func:`rgb_set`).
+    encoding : str or None
+        For ``rgb``: a transfer-function name; None: the source's own.
+    illuminant : str
+        For ``reflectance``: a CIE illuminant name known to colour-science.
+    wavelengths : array_like, optional
+        For ``reflectance``: the grid in nm (default 390-830 nm at 1 nm).
+
+    Returns
+    -------
+    xarray.Dataset
+        A stimulus set of the given kind (:func:`rgb_set`, :func:`xyz_set`, :func:`reflectance_set`),
+        described as read "from" the file's name.
+
+    Raises
+    ------
+    StimulusError
+        An unknown ``kind``, a file with a header but no stimuli, or a value out of range (naming
+        the file).
+    FileFormatError
+        A wrong header, a row with another number of cells, a cell that is not a number, or
+        repeated stimulus names (naming the file and line).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from metasim.metamerism import read_stimuli_csv
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "greys.csv"
+    ...     _ = path.write_text("name,R,G,B\\ndark grey,0.2,0.2,0.2\\nlight grey,0.8,0.8,0.8\\n")
+    ...     stimuli = read_stimuli_csv(path, "rgb")
+    >>> stimuli["stimulus"].values.tolist(), stimuli.attrs["description"]
+    (['dark grey', 'light grey'], 'RGB from greys.csv')
     """
     if kind not in KINDS:
         raise StimulusError(f"kind={kind!r} is not known; allowed: {', '.join(KINDS)}")

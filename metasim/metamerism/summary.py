@@ -78,6 +78,32 @@ def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
     ``"decades"`` (:data:`DECADES`, the default everywhere) gives :func:`decade_age_bands` of the
     ages; a sequence gives those edges (ascending, at least two); ``None`` or an empty sequence
     gives no bands. Observers without ages (``ages`` None) have no bands either.
+
+    Parameters
+    ----------
+    age_bands : "decades", sequence of float or None
+        The option: :data:`DECADES`, ascending band edges in years (at least two), or None / empty.
+    ages : array_like or xarray.DataArray (observer), or None
+        The observers' ages in years.
+
+    Returns
+    -------
+    tuple of float, or None
+        Ascending band edges in years (bands [lo, hi), the last one closed); None for no bands.
+
+    Raises
+    ------
+    MismatchError
+        Another string, edges that are not ascending and finite, or a band that would hold no
+        observer (naming it and the observers' ages).
+
+    Examples
+    --------
+    >>> from metasim.metamerism import age_band_edges
+    >>> age_band_edges("decades", [23, 41, 67])
+    (20, 30, 40, 50, 60, 70)
+    >>> age_band_edges([20, 40, 80], [23, 41, 67])
+    (20.0, 40.0, 80.0)
     """
     if ages is None or age_bands is None or (not isinstance(age_bands, str) and len(age_bands) == 0):
         return None
