@@ -35,7 +35,35 @@ WHITE_POINTS = {"D65": "D65", "D50": "D50", "DCI": "DCI-P3", "E": "E"}
 
 
 def white_xy(white) -> xr.DataArray:
-    """A white chromaticity (dim ``chromaticity`` = x, y) from a name in :data:`WHITE_POINTS` or (x, y)."""
+    """A white chromaticity (dim ``chromaticity`` = x, y) from a name in :data:`WHITE_POINTS` or (x, y).
+
+    Parameters
+    ----------
+    white : str, sequence of 2 floats or xarray.DataArray (chromaticity, ...)
+        A name (``D65``, ``D50``, ``DCI``, ``E``), a CIE 1931 (x, y) pair, or chromaticities with a
+        ``chromaticity`` dim (x, y), e.g. one per ``design``.
+
+    Returns
+    -------
+    xarray.DataArray (chromaticity)
+        CIE 1931 x, y (unit 1); a DataArray given keeps its other dims.
+
+    Raises
+    ------
+    DisplayError
+        An unknown name, not a pair, no ``chromaticity`` dim, or x < 0, y ≤ 0 or x + y > 1.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (CIE illuminants D65, D50, E); IEC 61966-2-1:1999 (D65,
+    x = 0.3127, y = 0.3290); SMPTE RP 431-2:2011 (DCI white); values from colour-science.
+
+    Examples
+    --------
+    >>> from metasim.display import white_xy
+    >>> white_xy("D65").values.tolist(), white_xy("D65").dims
+    ([0.3127, 0.329], ('chromaticity',))
+    """
     if isinstance(white, str):
         if white not in WHITE_POINTS:
             raise DisplayError(f"white point {white!r} is not known; allowed: {', '.join(WHITE_POINTS)} or an (x, y) pair")

@@ -69,9 +69,30 @@ XYZ = ("X", "Y", "Z")
 def lab_jacobian(xyz: np.ndarray, white: np.ndarray) -> np.ndarray:
     """∂(L*, a*, b*)/∂(X, Y, Z) at ``xyz`` (…, 3) relative to ``white`` (…, 3); returns (…, 3, 3).
 
+    Plain numpy values (the drive solver's linearisation of CIELAB, used row by row).
+
+    Parameters
+    ----------
+    xyz : ndarray (..., 3)
+        X, Y, Z of the colours (any scale, the same as ``white``; last axis the ``xyz`` dim).
+    white : ndarray (..., 3)
+        X, Y, Z of the reference white, broadcast against ``xyz``.
+
+    Returns
+    -------
+    ndarray (..., 3, 3)
+        Rows L*, a*, b*, columns X, Y, Z: CIELAB units per unit of ``xyz``.
+
     References
     ----------
     CIE 15:2004 §8.2.1 (CIELAB with the exact ε = 216/24389, κ = 24389/27 of ISO/CIE 11664-4).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from metasim.display import lab_jacobian
+    >>> lab_jacobian(np.array([20.0, 21.0, 22.0]), np.array([95.047, 100.0, 108.883])).round(3).tolist()
+    [[0.0, 1.094, 0.0], [4.957, -4.717, 0.0], [0.0, 1.887, -1.778]]
     """
     t = xyz / white
     with np.errstate(invalid="ignore", divide="ignore"):

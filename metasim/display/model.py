@@ -339,7 +339,37 @@ class Display:
 
 
 def check_drive(drive, primaries: Sequence[str]) -> xr.DataArray:
-    """Validate explicit linear drive values: a DataArray with a ``primary`` dim, finite, in 0..1."""
+    """Validate explicit linear drive values: a DataArray with a ``primary`` dim, finite, in 0..1.
+
+    Parameters
+    ----------
+    drive : xarray.DataArray (primary, ...)
+        Linear drive of each primary, 0..1 (unit 1), with any other dims (e.g. ``stimulus``).
+    primaries : sequence of str
+        The display's primary names (the ``primary`` coordinate given to an unlabelled drive).
+
+    Returns
+    -------
+    xarray.DataArray (primary, ...)
+        ``drive``, with a ``primary`` coordinate.
+
+    Raises
+    ------
+    DisplayError
+        Not a DataArray with a ``primary`` dim, another number of primaries than the display's, or a
+        value not finite or outside 0..1 (named).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.display import check_drive
+    >>> check_drive(xr.DataArray([0.2, 0.5, 1.0], dims="primary"), ["B", "G", "R"])["primary"].values.tolist()
+    ['B', 'G', 'R']
+    >>> check_drive(xr.DataArray([0.2, 1.5, 1.0], dims="primary"), ["B", "G", "R"])
+    Traceback (most recent call last):
+        ...
+    metasim.errors.DisplayError: drive value 1.5 is outside the allowed range 0..1
+    """
     if not isinstance(drive, xr.DataArray) or "primary" not in drive.dims:
         raise DisplayError("drive values must be a DataArray with a 'primary' dim (one value per primary)")
     if drive.sizes["primary"] != len(primaries):

@@ -51,9 +51,32 @@ def _space(source: str) -> str:
 def source_matrix(source: str) -> xr.DataArray:
     """RGB→XYZ normalised primary matrix of a source space (dims ``xyz`` × ``primary`` = R, G, B).
 
+    Parameters
+    ----------
+    source : str
+        ``bt709``, ``srgb``, ``display_p3`` or ``bt2020``.
+
+    Returns
+    -------
+    xarray.DataArray (xyz, primary)
+        The matrix (unit 1): XYZ of linear R, G, B, white (R = G = B = 1) at Y = 1.
+
+    Raises
+    ------
+    DisplayError
+        An unknown source space (naming the allowed ones).
+
     References
     ----------
-    SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities).
+    SMPTE RP 177-1993 §3.3 (normalised primary matrix from primary and white chromaticities);
+    primaries and whites of ITU-R BT.709-6, IEC 61966-2-1:1999, SMPTE EG 432-1:2010 and
+    ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> from metasim.display import source_matrix
+    >>> source_matrix("bt709").round(4).values.tolist()  # ITU-R BT.709-6 / IEC 61966-2-1
+    [[0.4124, 0.3576, 0.1805], [0.2126, 0.7152, 0.0722], [0.0193, 0.1192, 0.9505]]
     """
     _space(source)
     return xr.DataArray(rgb_to_xyz_matrix(source).copy(), dims=("xyz", "primary"), coords={"xyz": ["X", "Y", "Z"], "primary": list(RGB)},
@@ -80,9 +103,31 @@ def rgb_to_xyz(rgb: xr.DataArray, source: str = "bt709", *, encoding: str | None
         Nominal peak L_W for ``hlg`` (default ``white_luminance``).
     black_luminance, gamma : see :func:`metasim.display.transfer.eotf`.
 
+    Returns
+    -------
+    xarray.DataArray (..., xyz)
+        X, Y, Z in cd/m² (``rgb``'s other dims first), named ``target``.
+
+    Raises
+    ------
+    DisplayError
+        An unknown source space or transfer function, or ``rgb`` without a ``primary`` dim of size 3.
+
     References
     ----------
-    See the module docstring.
+    ITU-R BT.709-6 (primaries, D65); IEC 61966-2-1:1999 (sRGB); SMPTE EG 432-1:2010 (Display P3);
+    ITU-R BT.2020-2 and BT.2100-2 (primaries, PQ/HLG); ITU-R BT.1886 (2011) Annex 1; SMPTE
+    ST 2084:2014; SMPTE RP 177-1993 (normalised primary matrix).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.display import rgb_to_xyz
+    >>> rgb = xr.DataArray([[1.0, 1.0, 1.0], [1.0, 0.0, 0.0]], dims=("stimulus", "primary"),
+    ...                    coords={"stimulus": ["white", "red"]})
+    >>> xyz = rgb_to_xyz(rgb, "srgb", white_luminance=100.0)
+    >>> xyz.dims, xyz.round(2).values.tolist(), xyz.attrs["units"]
+    (('stimulus', 'xyz'), [[95.05, 100.0, 108.91], [41.24, 21.26, 1.93]], 'cd m-2')
     """
     encoding = _space(source) if encoding is None else encoding
     check_transfer(encoding, gamma=gamma)

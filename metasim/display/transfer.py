@@ -209,9 +209,29 @@ def eotf(signal, transfer: str, *, peak_luminance: float | None = None, black_lu
     channel_dim : str
         The channel dim for HLG (default ``primary``).
 
+    Returns
+    -------
+    xarray.DataArray
+        Display light in cd/m², the dims of ``signal`` (a plain array becomes an unlabelled
+        DataArray), attribute ``transfer_function``.
+
+    Raises
+    ------
+    DisplayError
+        An unknown transfer function, a luminance or gamma not allowed, or a non-finite signal.
+
     References
     ----------
-    See the module docstring (IEC 61966-2-1, ITU-R BT.1886, SMPTE ST 2084, ITU-R BT.2100-2).
+    IEC 61966-2-1:1999 (sRGB); ITU-R BT.1886 (2011) Annex 1; SMPTE ST 2084:2014 (PQ);
+    ITU-R BT.2100-2 (2018) Table 5 (HLG).
+
+    Examples
+    --------
+    >>> from metasim.display import eotf
+    >>> eotf([0.0, 0.5, 1.0], "srgb", peak_luminance=100.0).round(3).values.tolist()  # IEC 61966-2-1
+    [0.0, 21.404, 100.0]
+    >>> eotf([0.5081], "pq").round(1).values.tolist()  # SMPTE ST 2084: absolute, 100 cd/m²
+    [100.0]
     """
     peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
     v = _as_array(signal, "signal")
@@ -233,9 +253,46 @@ def eotf_inverse(light, transfer: str, *, peak_luminance: float | None = None, b
                  gamma: float = 2.2, luminance_weights=None, channel_dim: str = "primary") -> xr.DataArray:
     """Inverse EOTF: display light in cd/m² → encoded signal V; parameters as :func:`eotf`.
 
+    Parameters
+    ----------
+    light : xarray.DataArray or array_like
+        Display light in cd/m².
+    transfer : str
+        One of :data:`TRANSFER_FUNCTIONS`.
+    peak_luminance : float, optional
+        Nominal white luminance L_W in cd/m² (default from :data:`DEFAULT_PEAK_LUMINANCE`; PQ
+        ignores it).
+    black_luminance : float
+        L_B in cd/m² for ``bt1886`` and ``hlg``.
+    gamma : float
+        Exponent of the ``gamma`` curve.
+    luminance_weights : sequence or xarray.DataArray, optional
+        HLG only: weight of each channel (default BT.2100 for 3 channels).
+    channel_dim : str
+        The channel dim for HLG.
+
+    Returns
+    -------
+    xarray.DataArray
+        The encoded signal V (unit 1), the dims of ``light``, attribute ``transfer_function``.
+
+    Raises
+    ------
+    DisplayError
+        An unknown transfer function, a luminance or gamma not allowed, or non-finite light.
+
     References
     ----------
-    See the module docstring (IEC 61966-2-1, ITU-R BT.1886, SMPTE ST 2084, ITU-R BT.2100-2).
+    IEC 61966-2-1:1999 (sRGB); ITU-R BT.1886 (2011) Annex 1; SMPTE ST 2084:2014 (PQ);
+    ITU-R BT.2100-2 (2018) Table 5 (HLG).
+
+    Examples
+    --------
+    >>> from metasim.display import eotf_inverse
+    >>> eotf_inverse([100.0], "pq").round(4).values.tolist()  # SMPTE ST 2084
+    [0.5081]
+    >>> eotf_inverse([21.404], "srgb", peak_luminance=100.0).round(4).values.tolist()
+    [0.5]
     """
     peak = check_transfer(transfer, gamma=gamma, peak_luminance=peak_luminance, black_luminance=black_luminance)
     lum = _as_array(light, "light")

@@ -60,14 +60,27 @@ def weighted_mean(values, weights=None, axis: int = 0) -> np.ndarray:
     Parameters
     ----------
     values : array_like
+        The values (any unit; e.g. CIE 2000 differences, observer × stimulus).
     weights : array_like, optional
-        One weight per entry along ``axis``.
+        One weight per entry along ``axis`` (e.g. observer weights), or the shape of ``values``;
+        finite and ≥ 0. None: equal weights.
     axis : int
+        The axis to reduce (e.g. the observer axis).
 
     Returns
     -------
     ndarray
-        ``values`` reduced along ``axis``; NaN where no value has weight.
+        ``values`` reduced along ``axis``, in their unit; NaN where no value has weight.
+
+    Examples
+    --------
+    Two observers (rows) × three stimuli, the first observer standing for three times the share of
+    the population:
+
+    >>> from metasim.statistics import weighted_mean
+    >>> differences = [[0.5, 1.5, 2.5], [1.0, 3.5, 0.2]]
+    >>> weighted_mean(differences).tolist(), weighted_mean(differences, [3, 1]).tolist()
+    ([0.75, 2.5, 1.35], [0.625, 2.0, 1.925])
     """
     values = np.moveaxis(np.asarray(values, dtype=float), axis, -1)
     finite = ~np.isnan(values)
@@ -88,17 +101,38 @@ def quantiles(values, levels, weights=None, axis: int = 0) -> np.ndarray:
     Parameters
     ----------
     values : array_like
+        The values (any unit); NaN left out.
     levels : sequence of float
         Quantile levels in 0..1.
     weights : array_like, optional
         One weight per entry along ``axis`` (or the shape of ``values``); None for equal weights
         (numpy's linear method), otherwise numpy's weighted ``inverted_cdf``.
     axis : int
+        The axis to reduce.
 
     Returns
     -------
     ndarray
-        Shape ``(len(levels), *rest)``; NaN where no value has weight.
+        Shape ``(len(levels), *rest)``, in the values' unit; NaN where no value has weight.
+
+    Raises
+    ------
+    StatisticsError
+        A level outside 0..1 or not finite.
+
+    References
+    ----------
+    Hyndman, R. J. & Fan, Y. (1996). Sample quantiles in statistical packages. *The American
+    Statistician* 50(4), 361-365, doi:10.1080/00031305.1996.10473566.
+
+    Examples
+    --------
+    >>> from metasim.statistics import quantiles
+    >>> values = [0.5, 1.0, 1.5, 2.5, 3.5]
+    >>> quantiles(values, [0.5, 0.95]).round(3).tolist()  # as numpy.quantile (linear)
+    [1.5, 3.3]
+    >>> quantiles(values, [0.5], weights=[1, 1, 1, 1, 4]).tolist()  # weighted inverted_cdf
+    [2.5]
     """
     levels = np.asarray(levels, dtype=float).ravel()
     if ((levels < 0) | (levels > 1)).any() or not np.isfinite(levels).all():
@@ -149,6 +183,32 @@ def statistics_along(values, weights=None, axis: int = 0) -> np.ndarray:
 
     Equal weights without NaN take the fast path (:mod:`metasim.statistics.sorted_rows`: rows
     sorted by numpy, the statistics read off them in one compiled pass; the same numbers).
+
+    Parameters
+    ----------
+    values : array_like
+        The values (any unit); NaN left out.
+    weights : array_like, optional
+        One weight per entry along ``axis``; None: equal weights.
+    axis : int
+        The axis to reduce (e.g. the observer axis of observer × stimulus differences).
+
+    Returns
+    -------
+    ndarray
+        Shape ``(4, *rest)``: the statistics of :data:`STATISTICS` (mean, median, p95, max) in
+        that order, in the values' unit; quantiles as :func:`quantiles`.
+
+    References
+    ----------
+    Hyndman, R. J. & Fan, Y. (1996). Sample quantiles in statistical packages. *The American
+    Statistician* 50(4), 361-365, doi:10.1080/00031305.1996.10473566.
+
+    Examples
+    --------
+    >>> from metasim.statistics import statistics_along
+    >>> statistics_along([0.5, 1.0, 1.5, 2.5, 3.5]).round(3).tolist()  # mean, median, p95, max
+    [1.8, 1.5, 3.3, 3.5]
     """
     values = np.asarray(values, dtype=float)
     if weights is None and values.ndim >= 1 and values.shape[axis] > 0 and not np.isnan(values).any():
@@ -169,7 +229,37 @@ def statistics_along(values, weights=None, axis: int = 0) -> np.ndarray:
 
 def observer_weights(values: xr.DataArray | xr.Dataset, weights=None) -> np.ndarray | None:
     """The observer weights a table uses: ``weights`` if given (one per observer; ``False`` for
-    equal weights), else the ``weight`` coordinate on ``observer`` when there is one, else None."""
+    equal weights), else the ``weight`` coordinate on ``observer`` when there is one, else None.
+
+    Parameters
+    ----------
+    values : xarray.DataArray or xarray.Dataset (observer, ...)
+        The values a table summarises; their ``weight`` coordinate (observer) is used when
+        ``weights`` is None (observer categories carry one: the share of the population each
+        stands for).
+    weights : array_like, xarray.DataArray (observer), False or None
+        Weights to use instead (finite, ≥ 0, not all zero, one per observer); False: equal weights
+        even when ``values`` carry a ``weight`` coordinate.
+
+    Returns
+    -------
+    ndarray (observer,) or None
+        The weights as floats; None for equal weights.
+
+    Raises
+    ------
+    StatisticsError
+        Weights of another count than the observers, negative, non-finite or all zero.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.statistics import observer_weights
+    >>> differences = xr.DataArray([[0.5, 1.5], [1.0, 3.5]], dims=("observer", "stimulus"),
+    ...                            coords={"weight": ("observer", [0.75, 0.25])})
+    >>> observer_weights(differences).tolist(), observer_weights(differences, False)
+    ([0.75, 0.25], None)
+    """
     if weights is False:
         return None
     count = values.sizes.get("observer")
