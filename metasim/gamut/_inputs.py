@@ -70,6 +70,33 @@ def reference_xy(name) -> xr.DataArray:
 
     Values from colour-science ``colour.RGB_COLOURSPACES`` (ITU-R BT.709-6, SMPTE EG 432-1,
     SMPTE RP 431-2, ITU-R BT.2020-2).
+
+    Parameters
+    ----------
+    name : str or colour.RGB_Colourspace
+        A key of :data:`REFERENCE_GAMUTS` (``bt709``, ``display_p3``, ``dci_p3``, ``bt2020``) or a
+        colour-science colour space.
+
+    Returns
+    -------
+    xarray.DataArray (primary, chromaticity)
+        CIE 1931 x, y (unit 1) of R, G, B.
+
+    Raises
+    ------
+    GamutError
+        An unknown name (naming the allowed ones).
+
+    References
+    ----------
+    ITU-R BT.709-6 (primaries); SMPTE EG 432-1:2010 and SMPTE RP 431-2:2011 (P3 primaries);
+    ITU-R BT.2020-2 (primaries).
+
+    Examples
+    --------
+    >>> from metasim.gamut import reference_xy
+    >>> reference_xy("bt709").values.tolist()  # ITU-R BT.709-6
+    [[0.64, 0.33], [0.3, 0.6], [0.15, 0.06]]
     """
     space = _colour_space(name)
     return xr.DataArray(
@@ -86,6 +113,34 @@ def reference_xyz(name, white_luminance: float = 1.0) -> xr.DataArray:
 
     The columns of the colour space's normalised primary matrix (SMPTE RP 177) as colour-science
     stores it (``matrix_RGB_to_XYZ``; see :mod:`metasim.colorimetry.rgb_spaces`).
+
+    Parameters
+    ----------
+    name : str or colour.RGB_Colourspace
+        A key of :data:`REFERENCE_GAMUTS` or a colour-science colour space.
+    white_luminance : float
+        Y of the space's white (R = G = B = 1), in the unit the caller works in (1: relative).
+
+    Returns
+    -------
+    xarray.DataArray (primary, xyz)
+        X, Y, Z of R, G, B (the unit of ``white_luminance``), attribute ``reference_gamut``.
+
+    Raises
+    ------
+    GamutError
+        An unknown name (naming the allowed ones).
+
+    References
+    ----------
+    SMPTE RP 177-1993 (normalised primary matrix); primaries and whites of ITU-R BT.709-6,
+    SMPTE EG 432-1:2010, SMPTE RP 431-2:2011 and ITU-R BT.2020-2.
+
+    Examples
+    --------
+    >>> from metasim.gamut import reference_xyz
+    >>> reference_xyz("bt2020", white_luminance=100.0).round(2).values.tolist()
+    [[63.7, 26.27, 0.0], [14.46, 67.8, 2.81], [16.89, 5.93, 106.1]]
     """
     space = _colour_space(name)
     matrix = np.asarray(space.matrix_RGB_to_XYZ, dtype=float) * float(white_luminance)
@@ -153,6 +208,47 @@ def primaries_xyz(primaries, observer=None, *, allow_chromaticity: bool = False)
     ``observer`` is needed for spectra (any observer Dataset with ``cmf``; a leading ``observer``
     dim is kept). With ``allow_chromaticity`` xy input and reference names are accepted and given
     Y = 1 (chromaticity work only).
+
+    Parameters
+    ----------
+    primaries : xarray.DataArray, display, str, colour-science object or array_like
+        Any form the module docstring lists: tristimulus values (primary, xyz), spectra (primary,
+        wavelength) in W sr⁻¹ m⁻² nm⁻¹, a display, a reference name, chromaticities (primary,
+        chromaticity), colour-science primaries or colour space, or a plain (N, 3) array; any
+        leading dims (``design``, ``observer``) are kept.
+    observer : xarray.Dataset or colour.XYZ_ColourMatchingFunctions, optional
+        ``cmf`` (xyz, wavelength), optionally with a leading ``observer`` dim; needed for spectra.
+    allow_chromaticity : bool
+        Accept chromaticities and reference names as Y = 1 values (for chromaticity work only).
+
+    Returns
+    -------
+    xarray.DataArray (..., primary, xyz)
+        The primaries' X, Y, Z (spectra integrated over wavelength: radiance units × nm), at least
+        3 primaries, finite.
+
+    Raises
+    ------
+    GamutError
+        An unusable type or shape, no ``primary`` dim, spectra without an observer, chromaticities
+        that are not x, y, fewer than 3 primaries or non-finite values.
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (tristimulus values of a spectrum; chromaticity
+    coordinates).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.gamut import primaries_xyz
+    >>> from metasim.spectra import wavelength_grid
+    >>> grid = wavelength_grid(390, 830, 5)
+    >>> spectra = gaussian([455, 535, 615], [25, 30, 35], grid, name=["B", "G", "R"])
+    >>> xyz = primaries_xyz(spectra, metasim.standard_observer("cie1931_2", grid))
+    >>> xyz.dims, xyz.round(3).values.tolist()
+    (('primary', 'xyz'), [[0.296, 0.053, 1.633], [0.244, 0.872, 0.041], [0.865, 0.449, 0.0]])
     """
     primaries, observer = gamut_inputs(primaries, observer)
     primaries = _spectra_of(primaries)

@@ -297,20 +297,37 @@ def spectrum_locus(observer, space: str = "xy") -> xr.Dataset:
 
     Parameters
     ----------
-    observer : Dataset
+    observer : xarray.Dataset or colour.XYZ_ColourMatchingFunctions
         Variable ``cmf`` (``xyz`` × ``wavelength``) with an optional leading ``observer`` dim.
         Wavelengths where X + Y + Z is below 1e-9 of its maximum are left out (no defined chromaticity).
     space : {"xy", "uv"}
+        CIE 1931 x, y or CIE 1976 u', v'.
 
     Returns
     -------
-    Dataset
-        ``area`` and ``polygon`` (``vertex`` × ``chromaticity``, NaN padded), per observer.
+    xarray.Dataset
+        ``area`` (unit 1, chromaticity-diagram area) and ``polygon`` (``vertex`` × ``chromaticity``,
+        counter-clockwise, NaN padded), per observer.
+
+    Raises
+    ------
+    GamutError
+        An unknown ``space`` or an observer without ``cmf``.
 
     References
     ----------
     CIE 15:2004 §7.3: the spectrum locus bounds the chromaticities of all real (non-negative) stimuli;
-    hull by Qhull (Barber, Dobkin & Huhdanpaa 1996, via scipy.spatial.ConvexHull).
+    hull by Qhull (Barber, Dobkin & Huhdanpaa 1996, doi:10.1145/235815.235821, via
+    scipy.spatial.ConvexHull).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.gamut import spectrum_locus
+    >>> from metasim.spectra import wavelength_grid
+    >>> observer = metasim.standard_observer("cie1931_2", wavelength_grid(360, 830, 5))
+    >>> round(float(spectrum_locus(observer)["area"]), 4), round(float(spectrum_locus(observer, "uv")["area"]), 4)
+    (0.3334, 0.1953)
     """
     check_space(space)
     observer = as_observer(observer)
