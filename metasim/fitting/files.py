@@ -142,6 +142,52 @@ def read_matching_functions_csv(path: str | os.PathLike, *, primaries=None, fiel
     ``primaries``: three wavelengths (nm) or a DataArray of three spectra, or a path to a spectra
     CSV (:func:`metasim.read_spectra_csv`); default the file's ``# primary_wavelengths_nm:`` comment.
     ``field_size_deg``, ``age_years``: for subjects without those columns.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file (UTF-8).
+    primaries : sequence of 3 floats, xarray.DataArray (primary, wavelength), str or os.PathLike, optional
+        Monochromatic primary wavelengths in nm, primary spectra, or a spectra CSV file.
+    field_size_deg : float or array_like
+        Field size in degrees (1-10), one or one per subject.
+    age_years : float or array_like, optional
+        Age in years (20-80), one or one per subject; None: unknown.
+
+    Returns
+    -------
+    xarray.Dataset
+        Colour-matching functions (:func:`metasim.colour_matching_data`): ``amount`` (observer,
+        stimulus, repeat, primary) in primary-normalised energy units, the attribute ``source``
+        naming the file.
+
+    Raises
+    ------
+    FileFormatError
+        A wrong header, a row with another number of cells, a cell that is not a number, a missing
+        test wavelength, a per-subject value that changes, or an unusable primaries comment (naming
+        the file and line).
+    FittingError
+        No primaries, or data the form refuses (:func:`check_matching_data`).
+
+    References
+    ----------
+    CIE 15:2018 Colorimetry, 4th edition (colour matching with three primaries).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from metasim.fitting import read_matching_functions_csv
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "matches.csv"
+    ...     _ = path.write_text("# primary_wavelengths_nm: 645.16, 526.32, 444.44\\n"
+    ...                         "subject,test_wavelength_nm,R,G,B,age_years\\n"
+    ...                         "s01,450,0.02,0.05,0.90,30\\ns01,550,0.45,0.60,0.01,30\\n"
+    ...                         "s02,450,0.03,0.05,0.88,\\ns02,550,0.44,0.61,0.01,\\n")
+    ...     data = read_matching_functions_csv(path)
+    >>> dict(data.sizes), data["age_years"].values.tolist()
+    ({'observer': 2, 'stimulus': 2, 'repeat': 1, 'primary': 3}, [30.0, nan])
     """
     subjects, stimuli, array, field, age, labels, notes = _table(path, "test_wavelength_nm", True)
     if primaries is None:
@@ -165,6 +211,54 @@ def read_session_csv(path: str | os.PathLike, *, references, display, field_size
     ``references``: DataArray (stimulus × wavelength) or a spectra CSV path whose columns are named
     like the file's stimuli; ``display``: a metasim Display, primary spectra, or a spectra CSV path
     whose three columns are named like the file's primary columns.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file (UTF-8): ``subject,stimulus,<three primaries>[,field_size_deg][,age_years]``,
+        settings as linear drives 0..1.
+    references : xarray.DataArray (stimulus, wavelength), str or os.PathLike
+        Spectral radiance of each reference stimulus (W sr⁻¹ m⁻² nm⁻¹), or a spectra CSV file.
+    display : Display, xarray.DataArray (primary, wavelength), str or os.PathLike
+        The test display: a :class:`metasim.Display`, its full-drive primary spectra, or a spectra
+        CSV file.
+    field_size_deg : float or array_like
+        Field size in degrees (1-10), one or one per subject.
+    age_years : float or array_like, optional
+        Age in years (20-80), one or one per subject; None: unknown.
+
+    Returns
+    -------
+    xarray.Dataset
+        A matching session (:func:`metasim.matching_session_data`): ``setting`` (observer,
+        stimulus, repeat, primary), ``reference_spectra``, ``display_spectra``, the attribute
+        ``source`` naming the file.
+
+    Raises
+    ------
+    FileFormatError
+        A wrong header, a row with another number of cells, a cell that is not a number, or a
+        per-subject value that changes (naming the file and line).
+    FittingError
+        A stimulus without a reference spectrum, primary columns other than the display's, or data
+        the form refuses (:func:`check_matching_data`).
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.fitting import read_session_csv
+    >>> display = metasim.make_display(laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]))
+    >>> references = gaussian([480, 560], 20, name=["cyan", "lime"])
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "session.csv"
+    ...     _ = path.write_text("subject,stimulus,B,G,R\\ns01,cyan,0.40,0.35,0.02\\n"
+    ...                         "s01,cyan,0.41,0.34,0.02\\ns01,lime,0.01,0.52,0.30\\n")
+    ...     session = read_session_csv(path, references=references, display=display)
+    >>> session["setting"].sel(observer="s01", stimulus="cyan").values.tolist()  # two repeats
+    [[0.4, 0.35, 0.02], [0.41, 0.34, 0.02]]
     """
     subjects, stimuli, array, field, age, labels, _ = _table(path, "stimulus", False)
     if isinstance(references, (str, os.PathLike)):
@@ -193,7 +287,46 @@ def read_session_csv(path: str | os.PathLike, *, references, display, field_size
 
 def read_matching_csv(path: str | os.PathLike, *, primaries=None, references=None, display=None,
                       field_size_deg=2.0, age_years=None) -> xr.Dataset:
-    """Either CSV form, told apart by the header's second column (``test_wavelength_nm`` or ``stimulus``)."""
+    """Either CSV form, told apart by the header's second column (``test_wavelength_nm`` or ``stimulus``).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        The CSV file (UTF-8).
+    primaries
+        For colour-matching functions: as :func:`read_matching_functions_csv`.
+    references, display
+        For matching sessions (both needed): as :func:`read_session_csv`.
+    field_size_deg : float or array_like
+        Field size in degrees (1-10), for subjects without that column.
+    age_years : float or array_like, optional
+        Age in years (20-80), for subjects without that column; None: unknown.
+
+    Returns
+    -------
+    xarray.Dataset
+        Colour-matching functions or a matching session (attribute ``matching_data``).
+
+    Raises
+    ------
+    FileFormatError
+        A header of neither form, or the errors of the two readers.
+    FittingError
+        A matching session without ``references`` or ``display``, or the errors of the two readers.
+
+    Examples
+    --------
+    >>> import tempfile
+    >>> from pathlib import Path
+    >>> from metasim.fitting import read_matching_csv
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     path = Path(folder) / "matches.csv"
+    ...     _ = path.write_text("# primary_wavelengths_nm: 645.16, 526.32, 444.44\\n"
+    ...                         "subject,test_wavelength_nm,R,G,B\\ns01,450,0.02,0.05,0.90\\n")
+    ...     data = read_matching_csv(path)
+    >>> data.attrs["matching_data"]
+    'colour-matching functions'
+    """
     path = Path(path)
     _, records = read_csv_rows(path, "matching CSV file")
     header = records[0][1] if records else []

@@ -62,6 +62,43 @@ def prior_model(prior=None, *, fit_age: bool = False, age_prior=AGE_PRIOR):
     ``prior``: None (the population model's defaults, :data:`metasim.observers.DEFAULT_SD`, mean
     0); a dict {deviation: sd or (mean, sd)} overriding some of them; or a population Dataset from
     :func:`metasim.observer_population`, whose recorded standard deviations are used.
+
+    Parameters
+    ----------
+    prior : None, dict or xarray.Dataset
+        None, {deviation name: SD or (mean, SD)} in the deviation's unit (% or nm; names as
+        :data:`metasim.observers.DEVIATIONS`), or a population Dataset.
+    fit_age : bool
+        Add ``age_years`` as a fitted parameter with the prior ``age_prior``.
+    age_prior : tuple of (float, float)
+        Mean and SD of age in years (default :data:`AGE_PRIOR`).
+
+    Returns
+    -------
+    tuple of (list of str, ndarray, ndarray, dict)
+        Parameter names; prior means and SDs (parameter,) in each parameter's unit; and a record
+        {"source": ..., name: {"mean", "sd"}} for the result's attributes.
+
+    Raises
+    ------
+    FittingError
+        An unknown parameter name, a mean or SD that is not a finite number, an SD ≤ 0, a
+        population that records no SDs, or another kind of ``prior``.
+
+    References
+    ----------
+    Asano, Fairchild & Blondé (2016) PLoS ONE 11, e0145671, doi:10.1371/journal.pone.0145671 (the
+    eight deviations and their spread); Tarantola (2005) Inverse Problem Theory, SIAM,
+    doi:10.1137/1.9780898717921 (Gaussian prior).
+
+    Examples
+    --------
+    >>> from metasim.fitting import prior_model
+    >>> names, mean, sd, record = prior_model({"lens_density_pct": 10.0}, fit_age=True)
+    >>> names[0], names[-1], sd.tolist()
+    ('lens_density_pct', 'age_years', [10.0, 36.5, 9.0, 9.0, 7.4, 2.0, 1.5, 1.3, 17.3])
+    >>> record["source"]
+    'population model defaults, overridden by the given prior'
     """
     means = {name: 0.0 for name in DEVIATIONS}
     sds = dict(DEFAULT_SD)

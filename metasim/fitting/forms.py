@@ -341,7 +341,45 @@ def _check_primaries(geometry: MatchGeometry, field: float) -> None:
 
 
 def check_matching_data(ds) -> MatchData:
-    """Check a Dataset of either form (module docstring) and reduce it to arrays; FittingError if unusable."""
+    """Check a Dataset of either form (module docstring) and reduce it to arrays; FittingError if unusable.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        Colour-matching functions (``amount``: observer, stimulus, repeat, primary) or a matching
+        session (``setting``: observer, stimulus, repeat, primary; drives 0..1), or a plan of
+        either form (no observations); the form from the attribute ``matching_data`` or, without
+        it, from the variable present.
+
+    Returns
+    -------
+    MatchData
+        The form, the match geometry (stimuli and primaries as cone-excitation weights), the
+        observations (subject, stimulus, repeat, primary; None for a plan), field sizes (degrees)
+        and ages (years, NaN = unknown) per subject, subject, stimulus and primary labels, and
+        ``ds`` itself.
+
+    Raises
+    ------
+    FittingError
+        Not a Dataset of either form, a missing coordinate or variable, observations of other dims,
+        infinite values, a setting outside 0..1, a subject without valid matches, a field size or
+        age outside the CIE 170-1 model (1-10°, 20-80 years), or primaries that are not
+        independent for the mean observer.
+
+    References
+    ----------
+    CIE 170-1:2006 (the observer model the matches are read with; its field-size and age range).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.fitting import check_matching_data
+    >>> plan = metasim.colour_matching_data(test_wavelengths=[450, 500, 550, 600], primaries=[645.16, 526.32, 444.44])
+    >>> data = check_matching_data(plan)
+    >>> data.form, data.observations is None, data.primaries
+    ('colour-matching functions', True, ['P1', 'P2', 'P3'])
+    """
     if not isinstance(ds, xr.Dataset):
         raise FittingError(f"matching data must be an xarray Dataset, got {type(ds).__name__}")
     form = ds.attrs.get("matching_data")

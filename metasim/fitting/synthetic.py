@@ -45,6 +45,39 @@ def synthetic_matches(plan: xr.Dataset, observers, *, setting_noise: float, seed
         Write the true ages into the data (False: ages unknown, NaN).
     peak_shift_axis : str, optional
         Default: the population's recorded axis, else ``"log_wavelength"``.
+
+    Returns
+    -------
+    xarray.Dataset
+        ``plan`` with ``amount`` (colour-matching functions, primary-normalised energy units) or
+        ``setting`` (matching session, linear drive 0..1) of dims (observer, stimulus, repeat,
+        primary); coordinates ``field_size_deg``, ``age_years`` and the true parameters
+        ``true_*`` per observer; attributes ``seed``, ``synthetic``, ``peak_shift_axis`` and
+        ``clipped_settings``.
+
+    Raises
+    ------
+    FittingError
+        ``plan`` not matching data, observers without ``age_years`` and ``field_size_deg``, a
+        negative noise, ``repeats`` not a whole number ≥ 1, or a seed not allowed.
+    ObserverError
+        An unknown ``peak_shift_axis``.
+
+    References
+    ----------
+    CIE 170-1:2006 (cone fundamentals of each observer); Asano, Fairchild & Blondé (2016) PLoS ONE
+    11, e0145671, doi:10.1371/journal.pone.0145671 (the eight deviations).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.fitting import synthetic_matches
+    >>> plan = metasim.colour_matching_data(test_wavelengths=[450, 500, 550, 600], primaries=[645.16, 526.32, 444.44])
+    >>> data = synthetic_matches(plan, metasim.observer_population(2, seed=4, age_years=40), setting_noise=0.01, seed=1)
+    >>> data["amount"].dims, data.attrs["seed"]
+    (('observer', 'stimulus', 'repeat', 'primary'), 1)
+    >>> data["amount"].isel(observer=0, repeat=0).round(3).values.tolist()  # test wavelength × primary
+    [[-0.015, 0.02, 0.903], [-0.236, 0.37, 0.114], [0.87, 1.123, -0.014], [2.977, 0.313, 0.011]]
     """
     md = check_matching_data(plan)
     source = observers.coords if isinstance(observers, xr.Dataset) else observers
