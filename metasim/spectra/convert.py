@@ -138,6 +138,35 @@ def from_colour(obj, wavelengths=None, *, dim: str | None = None, units: str | N
         Attributes of the result (colour-science objects carry no units); defaults by class.
     where : str
         What the caller calls the input, for messages.
+
+    Returns
+    -------
+    xarray.DataArray (wavelength) or (dim, wavelength)
+        The spectra with a ``wavelength`` coordinate in nm, ``units``, ``long_name`` and ``source``
+        attributes (``resampled_from`` when put on ``wavelengths``); undefined entries of
+        colour-matching tables become 0. A DataArray converted by :func:`spectra_to_colour` comes
+        back identical.
+
+    Raises
+    ------
+    SpectrumError
+        Not a colour-science spectral object, repeated names in a collection, ``dim="wavelength"``,
+        or values or wavelengths not allowed.
+    EnergyOutsideGridError
+        Resampling onto ``wavelengths`` would drop more than 1 % of an emitter's energy
+        (:func:`metasim.spectra.resample` policy).
+
+    Examples
+    --------
+    >>> import colour
+    >>> from metasim.spectra import from_colour, wavelength_grid
+    >>> d65 = from_colour(colour.SDS_ILLUMINANTS["D65"])  # on its own grid
+    >>> d65.dims, d65.sizes["wavelength"], float(d65.sel(wavelength=560.0))  # CIE 15: D65 is 100 at 560 nm
+    (('wavelength',), 97, 100.0)
+    >>> checker = from_colour(colour.SDS_COLOURCHECKERS["ColorChecker N Ohta"], wavelength_grid(380, 780, 10),
+    ...                       dim="stimulus")
+    >>> checker.dims, checker["stimulus"].values[:2].tolist()
+    (('stimulus', 'wavelength'), ['dark skin', 'light skin'])
     """
     if is_colour_collection(obj):
         return _from_collection(obj, wavelengths, dim, units, long_name, where)
@@ -206,7 +235,45 @@ def as_spectra(obj, *, dim: str | None = None, wavelengths=None, where: str = "s
                long_name: str | None = None) -> xr.DataArray:
     """Spectra at a public entry: a DataArray passes unchanged; a colour-science object is converted
     by :func:`from_colour` (onto ``wavelengths`` when given); anything else is refused, a plain array
-    with the labelling example of :func:`unlabelled_message`."""
+    with the labelling example of :func:`unlabelled_message`.
+
+    Parameters
+    ----------
+    obj : xarray.DataArray (..., wavelength) or colour-science spectral object
+        The spectra as given by a user.
+    dim : str, optional
+        The dim of a multi-spectral object's labels (as :func:`from_colour`).
+    wavelengths : array_like, optional
+        The grid in nm to put a colour-science object on (None: its own).
+    where : str
+        What the caller calls the input, for messages.
+    dims_example : tuple of str
+        The dims the refusal of a plain array suggests.
+    units, long_name : str, optional
+        Attributes of a converted object (as :func:`from_colour`).
+
+    Returns
+    -------
+    xarray.DataArray
+        ``obj`` itself for a DataArray, else the converted object.
+
+    Raises
+    ------
+    SpectrumError
+        A plain array (with how to label it) or any other object; the errors of :func:`from_colour`.
+
+    Examples
+    --------
+    >>> import colour
+    >>> from metasim.spectra import as_spectra, wavelength_grid
+    >>> illuminant_a = as_spectra(colour.SDS_ILLUMINANTS["A"], wavelengths=wavelength_grid(300, 780, 5))
+    >>> illuminant_a.name, illuminant_a.sizes["wavelength"]
+    ('A', 97)
+    >>> as_spectra([1.0, 2.0, 3.0], where="primaries")  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+        ...
+    metasim.errors.SpectrumError: primaries: a plain array does not say which axis is which (nor the wavelengths); label it, ...
+    """
     if isinstance(obj, xr.DataArray):
         return obj
     if is_colour_spectrum(obj) or is_colour_collection(obj):
@@ -224,6 +291,34 @@ def spectra_to_colour(array: xr.DataArray, *, name: str | None = None):
     ``RGB_DisplayPrimaries`` (dim ``primary``, 3 primaries), ``XYZ_ColourMatchingFunctions`` (dim
     ``xyz``), ``LMS_ConeFundamentals`` (dim ``cone``), else ``MultiSpectralDistributions`` with the
     labels of ``<dim>``. Other dims (``design``, ``observer``, ...) must be selected first.
+
+    Parameters
+    ----------
+    array : xarray.DataArray (wavelength) or (dim, wavelength)
+        Spectra with a ``wavelength`` coordinate in nm.
+    name : str, optional
+        The colour-science object's name (default the array's name or ``long_name``).
+
+    Returns
+    -------
+    colour.SpectralDistribution or colour.MultiSpectralDistributions
+        The object of the class above; the array's name, attributes and labels are kept on it so
+        :func:`from_colour` gives the same DataArray back.
+
+    Raises
+    ------
+    SpectrumError
+        Not a DataArray, no ``wavelength`` dim, wavelengths not allowed, or more than one dim
+        besides ``wavelength``.
+
+    Examples
+    --------
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.spectra import from_colour, spectra_to_colour, wavelength_grid
+    >>> primaries = gaussian([450, 550, 620], 20, wavelength_grid(390, 830, 5), name=["B", "G", "R"])
+    >>> display_primaries = spectra_to_colour(primaries)
+    >>> type(display_primaries).__name__, from_colour(display_primaries).identical(primaries)
+    ('RGB_DisplayPrimaries', True)
     """
     if not isinstance(array, xr.DataArray):
         raise SpectrumError(f"spectra_to_colour: expected a DataArray with a 'wavelength' dim, got {type(array).__name__}")

@@ -74,6 +74,43 @@ def check_energy_on_grid(lost, labels, wavelengths, *, where: str, allow: bool =
     More than :data:`OUTSIDE_GRID_SHARE`: :class:`~metasim.errors.EnergyOutsideGridError`, or with
     ``allow`` a :class:`SpectralEnergyWarning` stating the share lost. Less than
     :data:`NOTHING_ON_GRID_SHARE` kept: an error either way.
+
+    Parameters
+    ----------
+    lost : float or array_like
+        Per spectrum, the share (0..1) of its energy outside the grid.
+    labels : sequence of str
+        The spectra's names, one per entry of ``lost``.
+    wavelengths : array_like
+        The grid in nm (named in messages).
+    where : str
+        What the caller calls the spectra, for messages.
+    allow : bool
+        Accept a loss above :data:`OUTSIDE_GRID_SHARE` (1 %) with a warning instead of an error.
+    details : sequence of str, optional
+        Text after each label in messages, e.g. " (peak 835 nm, FWHM 1 nm)".
+
+    Returns
+    -------
+    None
+
+    Raises
+    ------
+    EnergyOutsideGridError
+        A spectrum losing more than 1 % of its energy (unless ``allow``), or keeping less than
+        :data:`NOTHING_ON_GRID_SHARE` of it on the grid.
+    SpectrumError
+        A share that is not finite.
+
+    Examples
+    --------
+    >>> from metasim.spectra import check_energy_on_grid, wavelength_grid
+    >>> check_energy_on_grid([0.0, 0.0005], ["B", "G"], wavelength_grid(), where="primaries")  # within 1 %
+    >>> check_energy_on_grid([0.2], ["R"], wavelength_grid(), where="primaries",
+    ...                      details=[" (peak 835 nm)"])  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+        ...
+    metasim.errors.EnergyOutsideGridError: primaries: R (peak 835 nm) loses 20.00 % of its energy outside the wavelength grid 390-830 nm ...
     """
     lost = np.clip(np.atleast_1d(np.asarray(lost, dtype=float)), 0.0, 1.0)
     details = list(details) if details is not None else [""] * lost.size
