@@ -176,6 +176,42 @@ def test_unsorted_row_summaries_equal_numpy_bit_for_bit(n):
     assert all(numpy_sum(row, 0, n) == np.add.reduce(row) for row in rows)  # numpy's pairwise sum, same order
 
 
+@pytest.mark.parametrize("case", ["gamma", "ties", "zeros", "equal", "outlier"])
+def test_grouped_summaries_equal_numpy_for_every_set(case):
+    from metasim.statistics._kernels.order import summarise_groups
+
+    rng = np.random.default_rng(len(case))
+    rows, row, groups = 40, 16, 4
+    values = rng.gamma(1.5, 2.0, rows * row)
+    if case == "ties":
+        values = np.round(values, 1)
+    elif case == "zeros":
+        values[: values.size // 2] = 0.0
+    elif case == "equal":
+        values[:] = 2.5
+    elif case == "outlier":
+        values[7] = 1e6
+    group_of = rng.integers(-1, groups - 1, rows)  # rows in no group; the last group empty
+    positions = np.sort(rng.choice(values.size, 25, replace=False)).astype(np.int64)
+    replacement = values[positions] + rng.gamma(1.0, 3.0, positions.size)
+    overall, by_group, changed = np.full(4, np.nan), np.full((4, groups), np.nan), np.full(4, np.nan)
+    summarise_groups(values, group_of, row, positions, replacement, True, overall, by_group, changed)
+
+    def expected(x):  # numpy's linear quantiles and maximum as reference
+        return [np.quantile(x, 0.5), np.quantile(x, 0.95), x.max()]
+
+    np.testing.assert_array_equal(overall[1:], expected(values))
+    for g in range(groups):
+        members = values.reshape(rows, row)[group_of == g].ravel()
+        if members.size:
+            np.testing.assert_array_equal(by_group[1:, g], expected(members))
+        else:
+            assert np.isnan(by_group[1:, g]).all()
+    second = values.copy()
+    second[positions] = replacement
+    np.testing.assert_array_equal(changed[1:], expected(second))
+
+
 def test_a_study_calls_each_kernel_with_its_declared_types():
     # common practice, no source: the helper processes compile the declared types, so a study must
     # call exactly those (else it would compile a second version itself)

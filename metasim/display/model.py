@@ -490,6 +490,7 @@ def make_display(
     if name is None:
         name = str(spectra.name) if is_colour_object(spectra) else "display"
     spectra = as_spectra(spectra, dim="primary", where="display spectra", units=RADIANCE_UNITS)
+    black_given = black is not None
     if black is not None:
         black = as_spectra(black, wavelengths=spectra.coords["wavelength"].values, where="display black",
                            dims_example=("wavelength",), units=RADIANCE_UNITS)
@@ -535,7 +536,12 @@ def make_display(
         "black_luminance": float(black_luminance),
         "metasim_version": __version__,
     }
-    return Display(ds)
+    if black_given:
+        return Display(ds)
+    _check_settings(ds)
+    display = Display.__new__(Display)  # the spectra and primaries are checked above, the black is zero
+    display._ds = ds
+    return display
 
 
 def stack_designs(displays: Sequence[Display], design: Sequence | None = None) -> Display:

@@ -2,7 +2,7 @@
 
 The statistics layer's definitions (:mod:`metasim.statistics.summaries`) for equal weights and no
 NaN — mean, median, 95th percentile (numpy's "linear" method), maximum — computed for every row of
-a 2-D array in one parallel compiled pass (:mod:`metasim.statistics._kernels.order`) that sorts
+a 2-D array in one compiled pass (rows in parts on the kernel threads) (:mod:`metasim.statistics._kernels.order`) that sorts
 nothing: the order statistics are found by bucket selection and the sum is added in numpy's own
 pairwise order, so each row's numbers equal ``numpy.mean``, ``numpy.quantile`` and ``numpy.max``
 of that row bit for bit. Rows with NaN or observer weights go the layer's general route
@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from metasim import _warmup
+from metasim._threads import run_in_parts
 from metasim.colorimetry._kernels.types import writable
 from metasim.statistics._kernels.order import summarise_rows
 from metasim.statistics.summaries import STATISTICS, statistics_along
@@ -35,8 +35,7 @@ def row_statistics(rows: np.ndarray) -> np.ndarray:
     if rows.shape[1] == 0:
         out[:] = np.nan
     elif rows.shape[0]:
-        _warmup.wait(summarise_rows)  # compiled ahead in a helper process (the test suite)
-        summarise_rows(rows, out)
+        run_in_parts(summarise_rows, rows.shape[0], rows, out)  # rows in parts on the kernel threads
     return out
 
 

@@ -14,6 +14,9 @@ statistics are this layer's.
   sorted. For non-negative differences this is several times faster than sorting the row; the
   values found are the sorted row's, so the quantiles equal numpy's "linear" method (virtual index
   (n − 1)·q, the same interpolation formula as :mod:`metasim.statistics._kernels.rowstats`).
+* :func:`summarise_groups` does the same selection for several sets drawn from one array at once
+  (all values, the rows of each group, the array with a few values replaced) with one count and
+  one gather pass: the sweep's statistics over all pairs, per age band and of the metamerism index.
 
 Rows must not hold NaN (callers check and take numpy's route otherwise).
 """
@@ -203,17 +206,24 @@ def _linear(a, b, virtual, previous):
     return b - diff * (1.0 - gamma) if gamma >= 0.5 else a + diff * gamma
 
 
-@numba.njit(cache=True)
-def summarise(x, start, n, out):
-    """out[0:4] = mean, median, 95th percentile (numpy's linear method) and maximum of x[start:start + n]."""
-    ranks = np.empty(5, dtype=np.int64)
-    virtual = np.empty(2)
+@numba.njit(cache=True, inline="always")
+def _wanted_ranks(n, ranks, virtual):
+    """ranks (5,): the order statistics :func:`summarise` reads for n values (the two around each
+    quantile's virtual index (n − 1)·q, then the maximum); virtual (2,): the virtual indexes."""
     for q in range(2):
         virtual[q] = (n - 1) * _QUANTILES[q]
         previous = min(max(int(math.floor(virtual[q])), 0), n - 1)
         ranks[2 * q] = previous
         ranks[2 * q + 1] = min(previous + 1, n - 1)
     ranks[4] = n - 1
+
+
+@numba.njit(cache=True)
+def summarise(x, start, n, out):
+    """out[0:4] = mean, median, 95th percentile (numpy's linear method) and maximum of x[start:start + n]."""
+    ranks = np.empty(5, dtype=np.int64)
+    virtual = np.empty(2)
+    _wanted_ranks(n, ranks, virtual)
     found = np.empty(5)
     order_statistics(x, start, n, ranks, found)
     out[0] = numpy_sum(x, start, n) / n
@@ -233,17 +243,147 @@ def summarise_in_order(x, start, n, out):
     out[0] = total / n
 
 
-@numba.njit(cache=True, parallel=True, nogil=True)
-def summarise_rows(rows, out):
-    """out[r] = mean, median, p95, max of rows[r] (a C-contiguous (R, n) float array)."""
+@numba.njit(cache=True, nogil=True)
+def summarise_rows(rows, out, start, stop):
+    """out[r] = mean, median, p95, max of rows[r] for r in start:stop (a C-contiguous (R, n) float
+    array); a serial loop that releases the GIL, run in parts on the kernel threads by the caller."""
     n = rows.shape[1]
     flat = rows.reshape(-1)
-    for r in numba.prange(rows.shape[0]):
+    for r in range(start, stop):
         summarise(flat, r * n, n, out[r])
+
+
+@numba.njit(cache=True)
+def summarise_groups(values, group_of, row, replaced, replacement, with_groups, overall, groups, changed):
+    """:func:`summarise` of several sets drawn from one array of values, with one bucket count and
+    one gather pass shared by all of them, each result equal to :func:`summarise` of the set alone.
+
+    values (R·row,): R rows of ``row`` values; group_of (R,): the group of each row (−1: none);
+    replaced (K,) ascending positions of values and replacement (K,): the values there in a second
+    array (``values`` with those positions replaced). Writes the median, 95th percentile and
+    maximum (items 1-3 of :func:`summarise`'s four; the mean, item 0, is the caller's: it needs each
+    set's values in order) to ``overall`` (4,) for all values, ``groups`` (4, G) for the rows of
+    each group (NaN for an empty group; only if ``with_groups``) and ``changed`` (4,) for the second
+    array (only if K > 0). Values must not be NaN.
+    """
+    n = values.shape[0]
+    rows = n // row
+    n_groups = groups.shape[1] if with_groups else 0
+    k_replaced = replaced.shape[0]
+    sets = 1 + n_groups + (1 if k_replaced > 0 else 0)  # set 0: all values; 1..G: groups; last: changed
+    lo, hi = _extremes(values, 0, n)
+    for j in range(k_replaced):
+        v = replacement[j]
+        lo = v if v < lo else lo
+        hi = v if v > hi else hi
+    scale = _BUCKETS / (hi - lo) if hi > lo else 0.0
+    if not math.isfinite(scale):
+        scale = 0.0
+    # counts per bucket of each group's rows (and of rows in no group), then of the sets
+    tables = np.zeros((n_groups + 1, _BUCKETS), dtype=np.int64)
+    bucket = np.empty(n, dtype=np.int16)
+    for r in range(rows):
+        g = group_of[r] if with_groups and group_of[r] >= 0 else n_groups
+        table = tables[g]
+        for i in range(r * row, (r + 1) * row):
+            b = _bucket(values[i], lo, scale)
+            bucket[i] = b
+            table[b] += 1
+    counts = np.zeros((sets, _BUCKETS), dtype=np.int64)
+    sizes = np.zeros(sets, dtype=np.int64)
+    for g in range(n_groups + 1):
+        for b in range(_BUCKETS):
+            counts[0, b] += tables[g, b]
+    sizes[0] = n
+    for g in range(n_groups):
+        counts[1 + g] = tables[g]
+        sizes[1 + g] = tables[g].sum()
+    if k_replaced > 0:
+        last = sets - 1
+        counts[last] = counts[0]
+        for j in range(k_replaced):
+            counts[last, bucket[replaced[j]]] -= 1
+            counts[last, _bucket(replacement[j], lo, scale)] += 1
+        sizes[last] = n
+    # the bucket of each wanted rank of each set; slots for the distinct (set, bucket) pairs
+    ranks = np.empty((sets, 5), dtype=np.int64)
+    virtual = np.empty((sets, 2))
+    slot_of = np.full((sets, 5), -1, dtype=np.int64)
+    before = np.zeros((sets, 5), dtype=np.int64)
+    wanted = np.full((sets, _BUCKETS), -1, dtype=np.int64)  # (set, bucket) -> slot
+    offsets = np.zeros(5 * sets + 1, dtype=np.int64)
+    slots = 0
+    for t in range(sets):
+        if sizes[t] == 0:
+            continue
+        _wanted_ranks(sizes[t], ranks[t], virtual[t])
+        below, b, j = 0, 0, 0
+        while j < 5:
+            if ranks[t, j] < below + counts[t, b]:
+                if wanted[t, b] < 0:
+                    wanted[t, b] = slots
+                    offsets[slots + 1] = offsets[slots] + counts[t, b]
+                    slots += 1
+                slot_of[t, j] = wanted[t, b]
+                before[t, j] = below
+                j += 1
+            else:
+                below += counts[t, b]
+                b += 1
+    gathered = np.empty(offsets[slots])
+    fill = offsets[:slots].copy()
+    last = sets - 1
+    j_next = 0  # the next replaced position
+    for r in range(rows):
+        g = group_of[r] if with_groups and group_of[r] >= 0 else -1
+        for i in range(r * row, (r + 1) * row):
+            b = bucket[i]
+            v = values[i]
+            k = wanted[0, b]
+            if k >= 0:
+                gathered[fill[k]] = v
+                fill[k] += 1
+            if g >= 0:
+                k = wanted[1 + g, b]
+                if k >= 0:
+                    gathered[fill[k]] = v
+                    fill[k] += 1
+            if k_replaced > 0:
+                if j_next < k_replaced and replaced[j_next] == i:
+                    j_next += 1
+                else:
+                    k = wanted[last, b]
+                    if k >= 0:
+                        gathered[fill[k]] = v
+                        fill[k] += 1
+    for j in range(k_replaced):
+        k = wanted[last, _bucket(replacement[j], lo, scale)]
+        if k >= 0:
+            gathered[fill[k]] = replacement[j]
+            fill[k] += 1
+    for k in range(slots):
+        gathered[offsets[k]:offsets[k + 1]].sort()
+    found = np.empty(5)
+    result = np.full((sets, 3), np.nan)  # median, p95, max of each set
+    for t in range(sets):
+        if sizes[t] == 0:
+            continue
+        for j in range(5):
+            k = slot_of[t, j]
+            found[j] = gathered[offsets[k] + ranks[t, j] - before[t, j]]
+        for q in range(2):
+            result[t, q] = _linear(found[2 * q], found[2 * q + 1], virtual[t, q], ranks[t, 2 * q])
+        result[t, 2] = found[4]
+    for q in range(3):
+        overall[1 + q] = result[0, q]
+        for g in range(n_groups):
+            groups[1 + q, g] = result[1 + g, q]
+        if k_replaced > 0:
+            changed[1 + q] = result[sets - 1, q]
 
 
 #: Argument types of the kernels as :mod:`metasim.statistics.selection` calls them (compiled ahead of
 #: need by :mod:`metasim._warmup` in the test suite's warm-up).
 SIGNATURES = {
-    "summarise_rows": ("float64[:, ::1]", "float64[:, ::1]"),
+    "summarise_rows": ("float64[:, ::1]", "float64[:, ::1]", "int64", "int64"),
 }

@@ -22,7 +22,7 @@ from metasim.colorimetry._kernels.cielab import lab_columns
 from metasim.colorimetry._kernels.ciede2000 import delta_e_2000_columns, padded
 from metasim.colorimetry._kernels.fused import mend
 from metasim.colorimetry._kernels.sums import xyz_of_drives
-from metasim.statistics._kernels.order import summarise, summarise_in_order
+from metasim.statistics._kernels.order import numpy_sum, summarise_groups, summarise_in_order
 
 # flags per design
 NOT_FINITE = 1  # a difference was NaN: the caller takes numpy's route for this design
@@ -102,7 +102,8 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
         delta_e_2000_columns(batch_ref[0], batch_ref[1], batch_ref[2], batch_lab[0], batch_lab[1], batch_lab[2], 1.0,
                              batch_values, batch_special)
         mend(batch_ref, batch_lab, batch_values, batch_special)
-        index_all[:] = values_all
+        for i in range(pairs):
+            index_all[i] = values_all[i]
         for o in range(observers):
             for j in range(corrected):
                 v = batch_values[o * corrected + j]
@@ -111,24 +112,29 @@ def _design(d, test_t, matrices, black, white, reference, reference_is_lab, corr
     if not_finite > 0:
         flags[d] |= NOT_FINITE
         return
-    summarise(values_all, 0, pairs, overall[d])
+    # median, p95 and max of all pairs, of each age band's pairs and of the index in one selection
+    positions = np.empty(observers * corrected, dtype=np.int64)
+    for o in range(observers):
+        for j in range(corrected):
+            positions[o * corrected + j] = o * stimuli + where[j]
+    summarise_groups(values_all, band_of, stimuli, positions, batch_values[:observers * corrected],
+                     band_sizes.shape[0] > 0, overall[d], by_band[d], overall_index[d])
+    overall[d, 0] = numpy_sum(values_all, 0, pairs) / pairs  # the means in numpy's order
     if corrected > 0:
-        summarise(index_all, 0, pairs, overall_index[d])
+        overall_index[d, 0] = numpy_sum(index_all, 0, pairs) / pairs
     else:  # no correction: the index is the difference itself
         overall_index[d, :] = overall[d]
+    members = np.empty(pairs)
     for g in range(band_sizes.shape[0]):
         if band_sizes[g] == 0:
             by_band[d, :, g] = np.nan
             continue
-        members = np.empty(band_sizes[g] * stimuli)
         k = 0
         for o in range(observers):
             if band_of[o] == g:
                 members[k:k + stimuli] = values_all[o * stimuli:(o + 1) * stimuli]
                 k += stimuli
-        summary = np.empty(4)
-        summarise(members, 0, k, summary)
-        by_band[d, :, g] = summary
+        by_band[d, 0, g] = numpy_sum(members, 0, k) / k
     if per_stimulus:  # statistics over observers of each stimulus (the mean in numpy's order for that axis)
         column = np.empty(observers)
         summary = np.empty(4)
