@@ -49,7 +49,32 @@ def _values(where: str, value) -> list[float]:
 
 
 def display_settings_of(display: Display) -> dict:
-    """The display-level settings of a (white-calibrated) display, as a sweep uses them."""
+    """The display-level settings of a (white-calibrated) display, as a sweep uses them.
+
+    Parameters
+    ----------
+    display : Display
+        A display, white-calibrated or not (uncalibrated: white D65, calibration observer
+        ``cie1931_2``).
+
+    Returns
+    -------
+    dict
+        ``transfer``, ``gamma``, ``peak_luminance`` (cd/m², the largest over designs),
+        ``black_luminance`` (cd/m²), ``white`` (a name or CIE 1931 [x, y]) and
+        ``calibration_observer``: what :func:`metasim.sweep.chunk_display` makes every design with.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian
+    >>> from metasim.sweep import display_settings_of
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> settings = display_settings_of(monitor)
+    >>> settings["transfer"], settings["white"], settings["calibration_observer"]
+    ('srgb', [0.3127, 0.329], 'cie1931_2')
+    """
     white = display.attrs.get("calibration_white_xy", "D65")
     return {
         "transfer": display.transfer,
@@ -292,6 +317,35 @@ def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
     """An explicit list of designs (each ``primary × wavelength``, same primaries and grid) as a sweep's designs.
 
     ``parameters`` become ``design`` coordinates: ``name=sequence`` (one value per design).
+
+    Parameters
+    ----------
+    spectra : sequence of xarray.DataArray (primary, wavelength)
+        Each design's primary spectra at full drive (W sr⁻¹ m⁻² nm⁻¹), same primaries and grid.
+    **parameters : sequence
+        Coordinates over ``design`` (one value per design), e.g. ``peak_nm_R=[638, 650]``.
+
+    Returns
+    -------
+    xarray.DataArray (design, primary, wavelength)
+        The designs, named ``spectra``, ``design`` numbered from 0.
+
+    Raises
+    ------
+    SweepError
+        No spectra, an item that is not (primary, wavelength), or a parameter with another count
+        of values than designs.
+    ValueError
+        Designs with different primaries or grids (xarray's exact join).
+
+    Examples
+    --------
+    >>> from metasim.emitters import laser_line
+    >>> from metasim.sweep import design_list
+    >>> designs = design_list([laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]),
+    ...                        laser_line([465, 532, 650], 1.0, name=["B", "G", "R"])], peak_nm_R=[638, 650])
+    >>> designs.dims, designs["peak_nm_R"].values.tolist()
+    (('design', 'primary', 'wavelength'), [638, 650])
     """
     spectra = list(spectra)
     if not spectra:

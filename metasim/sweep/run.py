@@ -106,7 +106,46 @@ def _check_designs(designs) -> None:
 
 
 def chunk_display(designs, settings: dict) -> Display:
-    """The white-calibrated Display of a block of designs."""
+    """The white-calibrated Display of a block of designs.
+
+    Parameters
+    ----------
+    designs : xarray.DataArray (design, primary, wavelength), Display or xarray.Dataset
+        Spectra of the designs (W sr⁻¹ m⁻² nm⁻¹), made into a display and white-calibrated; a
+        Display, or a Display's Dataset, is used as it is.
+    settings : dict
+        The display settings of :func:`metasim.sweep.display_settings_of` (``transfer``,
+        ``gamma``, ``peak_luminance``, ``black_luminance``, ``white``, ``calibration_observer``).
+
+    Returns
+    -------
+    Display
+        The designs along ``design``, each calibrated to ``white`` at ``peak_luminance`` (cd/m²)
+        for the calibration observer.
+
+    Raises
+    ------
+    DisplayError
+        Spectra, settings or a white the display model refuses (e.g. a white the primaries cannot
+        reach).
+
+    References
+    ----------
+    SMPTE RP 177-1993 (white balance of the primaries).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.sweep import chunk_display, display_settings_of
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> designs = metasim.design_grid("laser", {"R": [630, 650]}, 1.0, base=laser_line([465, 532, 638], 1.0,
+    ...                                                                                 name=["B", "G", "R"]))
+    >>> display = chunk_display(designs, display_settings_of(monitor))
+    >>> display.batch_dims, display.attrs["calibration_observer"]
+    (['design'], 'cie1931_2')
+    """
     if isinstance(designs, Display):
         return designs
     if isinstance(designs, xr.Dataset):
@@ -125,6 +164,55 @@ def evaluate_chunk(designs, reference, observers, stimuli, options: dict, contex
     ``(grid, start, stop)`` for a :class:`~metasim.sweep.grid.DesignGrid` (made here);
     ``context``: the reference prepared once (:func:`metasim.sweep.evaluate.prepare`), made here if
     not given.
+
+    Parameters
+    ----------
+    designs : xarray.DataArray (design, primary, wavelength), xarray.Dataset or tuple
+        The block of designs (spectra in W sr⁻¹ m⁻² nm⁻¹, a Display Dataset, or
+        ``(grid, start, stop)``).
+    reference, observers, stimuli
+        As for :func:`metasim.mismatch`.
+    options : dict
+        The sweep's options as :func:`metasim.run_sweep` assembles them: ``display_settings``
+        (:func:`metasim.sweep.display_settings_of`), ``lab_volume`` (bool), ``per_stimulus``
+        (bool), ``mismatch`` (keyword arguments of the mismatch procedure: ``calibration_observer``,
+        ``strategy``, ``thresholds``, ``age_bands``, ...) and ``intervals`` (None, or ``level``,
+        ``resamples``, ``seed``).
+    context : SweepContext, optional
+        The reference side prepared once (:func:`metasim.sweep.evaluate.prepare`).
+
+    Returns
+    -------
+    xarray.Dataset (design, ...)
+        The per-design summaries of :mod:`metasim.sweep.summary` (CIE 2000 differences in ΔE00,
+        gamut areas and coverage), the designs' coordinates kept.
+
+    Raises
+    ------
+    SweepError, DisplayError, MismatchError
+        Designs, options or inputs that the display model or the mismatch procedure refuse.
+
+    References
+    ----------
+    CIE 15:2004 (CIELAB); Sharma, Wu & Dalal (2005) Color Res. Appl. 30, 21-30,
+    doi:10.1002/col.20070 (CIE 2000 colour difference).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> from metasim.sweep import display_settings_of, evaluate_chunk
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> designs = metasim.design_grid("laser", {"R": [630, 650]}, 1.0, base=laser_line([465, 532, 638], 1.0,
+    ...                                                                                 name=["B", "G", "R"]))
+    >>> options = {"display_settings": display_settings_of(monitor), "lab_volume": False, "per_stimulus": False,
+    ...            "mismatch": {"calibration_observer": "cie1931_2", "strategy": "min_norm"}, "intervals": None}
+    >>> block = evaluate_chunk(designs, monitor, metasim.observer_population(3, seed=1, age_years=(20, 70)),
+    ...                        neutral_ramp(3), options)
+    >>> block["delta_e_2000_overall"].sel(statistic="median").round(2).values.tolist()
+    [4.74, 4.37]
     """
     if context is None:
         display = _block_display(designs, options)

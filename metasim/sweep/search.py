@@ -506,7 +506,32 @@ def run_search(space: SearchSpace, reference, observers, stimuli: xr.Dataset, *,
 
 
 def best_design(result: xr.Dataset) -> dict:
-    """The best design of a search result: {parameter: value} plus ``design``, ``value`` and ``feasible``."""
+    """The best design of a search result: {parameter: value} plus ``design``, ``value`` and ``feasible``.
+
+    Parameters
+    ----------
+    result : xarray.Dataset (design)
+        A search result (:func:`run_search`): ``search_objective`` and ``constraint_violation``
+        over ``design``, the searched parameters as ``design`` coordinates (those the ``spec``
+        attribute names, else every ``design`` coordinate), and the attribute ``best_design``
+        (default: the design of the lowest objective).
+
+    Returns
+    -------
+    dict
+        Each parameter's value (in its coordinate's unit, e.g. nm), ``design`` (index), ``value``
+        (the objective) and ``feasible`` (no constraint violated).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.sweep import best_design
+    >>> result = xr.Dataset({"search_objective": ("design", [2.5, 1.25, 1.75]),
+    ...                      "constraint_violation": ("design", [0.0, 0.0, 0.3])},
+    ...                     coords={"peak_nm_R": ("design", [620.0, 640.0, 655.0])}, attrs={"best_design": 1})
+    >>> best_design(result)
+    {'peak_nm_R': 640.0, 'design': 1, 'value': 1.25, 'feasible': True}
+    """
     index = int(result.attrs.get("best_design", int(np.argmin(result["search_objective"].values))))
     spec = result.attrs.get("spec", {})
     spec = json.loads(spec) if isinstance(spec, str) else spec

@@ -118,7 +118,34 @@ def _feed(hasher, item) -> None:
 
 
 def spec_hash(*items) -> str:
-    """SHA-256 (hex) of labelled arrays, displays and JSON-able values, in order."""
+    """SHA-256 (hex) of labelled arrays, displays and JSON-able values, in order.
+
+    Arrays are hashed with their dims, shapes, values and attributes (but those that do not change
+    a result); a store records the hash of its inputs and settings, and a re-run with other inputs
+    is refused instead of mixing chunks.
+
+    Parameters
+    ----------
+    *items : xarray.DataArray, xarray.Dataset, Display or JSON-able value
+        What the hash covers, in order.
+
+    Returns
+    -------
+    str
+        64 hexadecimal digits.
+
+    References
+    ----------
+    NIST FIPS 180-4 (2015) Secure Hash Standard, doi:10.6028/NIST.FIPS.180-4 (SHA-256).
+
+    Examples
+    --------
+    >>> from metasim.sweep import spec_hash
+    >>> len(spec_hash({"chunk_size": 2}, [630, 650]))
+    64
+    >>> spec_hash({"chunk_size": 2}) == spec_hash({"chunk_size": 2}), spec_hash({"chunk_size": 2}) == spec_hash({"chunk_size": 3})
+    (True, False)
+    """
     hasher = hashlib.sha256()
     for item in items:
         hasher.update(b"\x1e")
@@ -169,7 +196,40 @@ def check_manifest(manifest, path) -> dict:
 
 
 def read_manifest(store) -> dict | None:
-    """The manifest of a store, checked (:func:`check_manifest`), or None when the folder holds none."""
+    """The manifest of a store, checked (:func:`check_manifest`), or None when the folder holds none.
+
+    Parameters
+    ----------
+    store : str or os.PathLike
+        The sweep's store folder.
+
+    Returns
+    -------
+    dict or None
+        The manifest (``format``, ``spec_hash``, ``chunk_size``, ``design_count``, ``chunks``:
+        index, design range, file and SHA-256 of each chunk, ``spec``, ...), or None without one.
+
+    Raises
+    ------
+    StoreIntegrityError
+        A manifest that cannot be read or whose keys, types or chunk ranges were edited or damaged.
+    SweepError
+        A file that is not a metasim sweep manifest.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> from metasim.sweep import read_manifest
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     empty = read_manifest(folder)
+    ...     _ = (pathlib.Path(folder) / "manifest.json").write_text("{not json")
+    ...     read_manifest(folder)  # doctest: +ELLIPSIS
+    Traceback (most recent call last):
+        ...
+    metasim.errors.StoreIntegrityError: .../manifest.json: not a readable sweep manifest (...); use a new store folder, ...
+    >>> empty is None
+    True
+    """
     path = Path(store) / MANIFEST
     if not path.is_file():
         return None
@@ -444,6 +504,49 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
 
     Every chunk's checksum and design range are checked first; a chunk that fails is set aside and
     :class:`~metasim.errors.StoreIntegrityError` asks for the sweep to be run again.
+
+    Parameters
+    ----------
+    store : str or os.PathLike
+        A store every chunk of which is finished (:func:`metasim.run_sweep`).
+    write : bool
+        Also save the result as ``STORE/sweep.nc`` (atomically).
+
+    Returns
+    -------
+    xarray.Dataset (design, ...)
+        The per-design summaries of every chunk in design order (:mod:`metasim.sweep.summary`),
+        with the ranking variables for a sweep run with intervals.
+
+    Raises
+    ------
+    SweepError
+        No manifest, or chunks not finished.
+    StoreIntegrityError
+        A damaged manifest, or a chunk whose checksum or design range does not match (set aside).
+
+    References
+    ----------
+    NIST FIPS 180-4 (2015) Secure Hash Standard, doi:10.6028/NIST.FIPS.180-4 (chunk checksums).
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> from metasim.sweep import combine_sweep
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> designs = metasim.design_grid("laser", {"R": [630, 650]}, 1.0, base=laser_line([465, 532, 638], 1.0,
+    ...                                                                                 name=["B", "G", "R"]))
+    >>> with tempfile.TemporaryDirectory() as folder:
+    ...     store = pathlib.Path(folder) / "red-sweep"
+    ...     sweep = metasim.run_sweep(designs, monitor, metasim.observer_population(3, seed=1), neutral_ramp(3),
+    ...                               store=store, chunk_size=1, scheduler="serial")
+    ...     combined = combine_sweep(store, write=False)  # the two one-design chunks again
+    >>> combined.sizes["design"], combined.identical(sweep)
+    (2, True)
     """
     folder = Path(store)
     manifest = read_manifest(folder)

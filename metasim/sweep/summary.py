@@ -89,8 +89,39 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
 
     Returns
     -------
-    Dataset
-        The variables of the module docstring over ``design`` (the designs' coordinates kept).
+    xarray.Dataset (design, ...)
+        The variables of the module docstring over ``design`` (the designs' coordinates kept):
+        CIE 2000 differences in ΔE00 (statistics over observers and stimuli, white, metamerism
+        index), gamut area and coverage (unit 1), and with ``lab_volume`` the CIELAB volume.
+
+    Raises
+    ------
+    SweepError
+        ``test`` not a Display with a ``design`` dim.
+    MismatchError, StimulusError, ObserverError, DisplayError
+        Inputs the mismatch procedure refuses (as :func:`metasim.mismatch`).
+
+    References
+    ----------
+    CIE 15:2004 (CIELAB); Sharma, Wu & Dalal (2005) Color Res. Appl. 30, 21-30,
+    doi:10.1002/col.20070 (CIE 2000 colour difference); ISO 18314-4:2024 (metamerism index
+    construction).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import gaussian, laser_line
+    >>> from metasim.metamerism import neutral_ramp
+    >>> from metasim.sweep import chunk_display, design_summaries, display_settings_of
+    >>> monitor = metasim.calibrate_white(metasim.make_display(gaussian([455, 535, 615], [25, 30, 35],
+    ...                                                                 name=["B", "G", "R"])), "cie1931_2")
+    >>> designs = metasim.design_grid("laser", {"R": [630, 650]}, 1.0, base=laser_line([465, 532, 638], 1.0,
+    ...                                                                                 name=["B", "G", "R"]))
+    >>> test = chunk_display(designs, display_settings_of(monitor))
+    >>> summary = design_summaries(test, monitor, metasim.observer_population(3, seed=1, age_years=(20, 70)),
+    ...                            neutral_ramp(3))
+    >>> summary["delta_e_2000_overall"].dims, summary["delta_e_2000_overall"].sel(statistic="median").round(2).values.tolist()
+    (('design', 'statistic'), [4.74, 4.37])
     """
     if context is None:
         context = prepare(reference, test, observers, stimuli, **mismatch_options)
