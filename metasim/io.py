@@ -670,9 +670,11 @@ def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, re
     >>> import metasim
     >>> import pathlib, tempfile
     >>> population = metasim.observer_population(3, seed=1)
-    >>> path = metasim.save_dataset(population, pathlib.Path(tempfile.mkdtemp()) / "audience.nc")
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = metasim.save_dataset(population, pathlib.Path(folder.name) / "audience.nc")
     >>> metasim.load_dataset(path).attrs["seed"]
     1
+    >>> folder.cleanup()
     """
     import xarray as xr
 
@@ -722,9 +724,11 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
     >>> import metasim
     >>> import pathlib, tempfile
     >>> from metasim.emitters import gaussian
-    >>> path = metasim.save_dataset(gaussian([450, 550], 30), pathlib.Path(tempfile.mkdtemp()) / "bands.nc")
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> path = metasim.save_dataset(gaussian([450, 550], 30), pathlib.Path(folder.name) / "bands.nc")
     >>> type(metasim.load_dataset(path)).__name__  # a DataArray comes back as a DataArray
     'DataArray'
+    >>> folder.cleanup()
     """
     import xarray as xr
 

@@ -418,9 +418,11 @@ def write_csv_tables(tables: list[Table], folder, *, contents: bool = True, repl
     >>> import metasim
     >>> import pathlib, tempfile
     >>> tables = metasim.result_tables(metasim.observer_population(5, seed=1))
-    >>> paths = metasim.write_csv_tables(tables, pathlib.Path(tempfile.mkdtemp()) / "tables")
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> paths = metasim.write_csv_tables(tables, pathlib.Path(folder.name) / "tables")
     >>> sorted(path.name for path in paths)
     ['attributes.csv', 'contents.csv', 'observer.csv']
+    >>> folder.cleanup()
     """
     folder = Path(folder)
     if folder.exists() and not folder.is_dir():
@@ -535,8 +537,10 @@ def write_workbook(tables: list[Table], path, *, contents: bool = True, replace:
     >>> import metasim
     >>> import pathlib, tempfile
     >>> tables = metasim.result_tables(metasim.observer_population(5, seed=1))
-    >>> metasim.write_workbook(tables, pathlib.Path(tempfile.mkdtemp()) / "audience.xlsx").suffix
+    >>> folder = tempfile.TemporaryDirectory()
+    >>> metasim.write_workbook(tables, pathlib.Path(folder.name) / "audience.xlsx").suffix
     '.xlsx'
+    >>> folder.cleanup()
     """
     path = Path(path)
     require_workbook_writer(path)
