@@ -56,7 +56,7 @@ from typing import Iterable, Mapping
 
 import numpy as np
 
-from metasim.errors import MetasimError, RenamedKeywordWarning
+from metasim.errors import MetasimError, DeprecatedNameWarning
 
 #: What is recorded as the seed of a draw made with a caller's own ``numpy.random.Generator``.
 GENERATOR_SEED = "numpy Generator"
@@ -366,7 +366,7 @@ def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3)
 
 def renamed_keywords(**old_to_new: str):
     """Decorator: the function also takes each old keyword name (``old=new``) for one release, with a
-    :class:`~metasim.errors.RenamedKeywordWarning` (a ``DeprecationWarning``) naming the new one.
+    :class:`~metasim.errors.DeprecatedNameWarning` (a ``DeprecationWarning``) naming the new one.
 
     Parameters
     ----------
@@ -407,7 +407,7 @@ def renamed_keywords(**old_to_new: str):
                                     f"name of {new!r}, keep one")
                 kwargs[new] = kwargs.pop(old)
                 warnings.warn(f"{function.__qualname__}(): keyword {old!r} is renamed {new!r}; the old name works "
-                              "until the next release", RenamedKeywordWarning, stacklevel=2)
+                              "until the next release", DeprecatedNameWarning, stacklevel=2)
             return function(*args, **kwargs)
 
         call.renamed_keywords = dict(old_to_new)

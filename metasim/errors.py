@@ -31,9 +31,9 @@ class RenamedWarning(MetasimWarning, FutureWarning):
     message names the new one)."""
 
 
-class RenamedKeywordWarning(RenamedWarning, DeprecationWarning):
-    """A library function was called with a keyword's old name; it still works for one release (the
-    message names the new one). A :class:`DeprecationWarning` too, so Python shows it where the call
+class DeprecatedNameWarning(RenamedWarning, DeprecationWarning):
+    """A library function or one of its keywords was used by its old name; it still works for one
+    release (the message names the new one). A :class:`DeprecationWarning` too, so Python shows it where the call
     is in a script or a test and not where another library makes it."""
 
 

@@ -752,9 +752,60 @@ def load_dataset(path: str | os.PathLike) -> xr.Dataset | xr.DataArray:
         if flag not in ds:
             raise FileFormatError(f"{path}: attribute {_DATAARRAY_FLAG!r} names {flag!r}, which the file does not hold")
         return ds[flag]
-    return ds
+    return with_current_names(ds)
+
+
+#: result variables renamed since files were first written: old name → new name. A file written
+#: before is read under the new names (with a notice) for one release.
+RENAMED_RESULT_VARIABLES = {
+    "locus_share": "spectrum_locus_coverage",
+    "share_beyond": "share_of_observers_above_threshold",
+    "share_beyond_overall": "share_of_pairs_above_threshold",
+    "share_beyond_overall_interval": "share_of_pairs_above_threshold_interval",
+    "comparison_share_beyond_difference": "comparison_share_of_pairs_above_threshold_difference",
+    "comparison_share_beyond_difference_interval": "comparison_share_of_pairs_above_threshold_difference_interval",
+}
+
+
+def with_current_names(ds):
+    """A result read from a file written before a variable was renamed, with today's names
+    (:data:`RENAMED_RESULT_VARIABLES`) and one :class:`~metasim.errors.RenamedWarning` naming them.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A Dataset as read (anything else is returned unchanged).
+
+    Returns
+    -------
+    xarray.Dataset
+        ``ds`` with old variable names replaced (a name whose new spelling is already present stays).
+
+    Examples
+    --------
+    >>> import warnings, xarray as xr
+    >>> old = xr.Dataset({"locus_share": ("display", [0.5])})
+    >>> with warnings.catch_warnings(record=True) as seen:
+    ...     warnings.simplefilter("always")
+    ...     list(with_current_names(old).data_vars)
+    ['spectrum_locus_coverage']
+    >>> str(seen[0].message)
+    "a file written before variables were renamed: 'locus_share' is read as 'spectrum_locus_coverage'"
+    """
+    import warnings
+
+    from metasim.errors import RenamedWarning
+
+    old = {name: new for name, new in RENAMED_RESULT_VARIABLES.items()
+           if name in getattr(ds, "variables", ()) and new not in ds.variables}
+    if not old:
+        return ds
+    warnings.warn("a file written before variables were renamed: "
+                  + ", ".join(f"{name!r} is read as {new!r}" for name, new in old.items()), RenamedWarning,
+                  stacklevel=3)
+    return ds.rename(old)
 
 
 __all__ = ["PARTIAL_SUFFIX", "partial_path", "process_alive", "remove_stale_partials", "same_file", "check_outputs",
            "atomic_output", "write_bytes", "write_text", "read_text_file", "read_csv_rows", "save_dataset",
-           "load_dataset"]
+           "load_dataset", "RENAMED_RESULT_VARIABLES", "with_current_names"]

@@ -33,7 +33,8 @@ Variables over ``display`` (CIE 1931 2° observer, each display's own white):
 ``gamut_area_xy``, ``gamut_area_uv``        chromaticity gamut area in xy and u'v'
 ``gamut_polygon`` (display, vertex, chr.)   hull in CIE 1931 xy, NaN padded
 ``gamut_coverage`` (display, reference_gamut)      share of each reference xy area covered
-``locus_share`` (display)                   share of the CIE 1931 spectrum-locus area
+``spectrum_locus_coverage`` (display)       share of the CIE 1931 spectrum-locus area (was
+                                            ``locus_share``)
 ``lab_volume`` (display)                    CIELAB volume of the colour solid
 ``lab_coverage_volume`` (display, reference_gamut) share of each reference solid's volume covered
 =========================================  ======================================================
@@ -46,12 +47,13 @@ Variables over ``design``:
                                                 come with it
 ``delta_e_white`` (design, observer)            CIE 2000 difference of the whites
 ``delta_e_2000_by_stimulus``, ``_by_age``,      the engine's summaries (:func:`metasim.mismatch`);
-``observers_per_age_band``, ``share_beyond``,   age bands by default the decades covering the
-``share_beyond_overall``                        observers' ages
+``observers_per_age_band``,                     age bands by default the decades covering the
+``share_of_observers_above_threshold``,         observers' ages (the shares were ``share_beyond``
+``share_of_pairs_above_threshold``              and ``share_beyond_overall``)
 ``out_of_gamut_test``, ``out_of_gamut_reference``, ``delta_e_2000_calibration``  as in the engine
 ``delta_e_2000_overall`` (design, statistic)    over all observer × stimulus pairs (weighted), from
                                                 :func:`metasim.statistics.population_statistics`;
-                                                ``share_beyond_overall`` (design, threshold) likewise
+                                                ``share_of_pairs_above_threshold`` (design, threshold) likewise
 ``delta_e_white_overall`` (design, statistic)   the white difference, statistics over observers
 ``*_interval`` (design, bound, ...)             with ``intervals``: the percentile interval of each of
                                                 the three from resampling observers (bound = lower,
@@ -107,13 +109,13 @@ from metasim.gamut import (
     gamut_coverage,
     lab_coverage_volume,
     lab_gamut_volume,
-    locus_share,
+    spectrum_locus_coverage,
 )
 from metasim.metamerism import mismatch
 from metasim.metamerism.engine import resolve_observers
 from metasim.metamerism.stimuli import as_stimuli
 from metasim.metamerism.choices import rank_calibration_observers, white_point_offsets
-from metasim.metamerism.summary import DECADES, summarise
+from metasim.metamerism.summary import DECADES, PAIR_SHARE, summarise
 from metasim.errors import StatisticsError
 from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES, population_statistics
 from metasim.statistics.resampling import check_interval_settings
@@ -131,7 +133,7 @@ GAMUT_OBSERVER = "cie1931_2"
 EXTRA_PEAKS_NM = np.arange(450.0, 651.0, 1.0)
 #: The engine's variables a study keeps, per design.
 MISMATCH_VARIABLES = ("delta_e_2000", "delta_e_white", "delta_e_2000_by_stimulus", "delta_e_2000_by_age",
-                      "observers_per_age_band", "share_beyond", "share_beyond_overall", "out_of_gamut_test",
+                      "observers_per_age_band", "share_of_observers_above_threshold", "share_of_pairs_above_threshold", "out_of_gamut_test",
                       "out_of_gamut_reference", "delta_e_2000_calibration")
 #: Observer categories of the white trims when the population has none (``white_categories``).
 WHITE_CATEGORIES = 6
@@ -145,7 +147,7 @@ VARIABLE_ATTRS = {
     "gamut_area_uv": ("1", "chromaticity gamut area in CIE 1976 u'v'"),
     "gamut_polygon": ("1", "chromaticity gamut polygon in CIE 1931 xy (NaN padded)"),
     "gamut_coverage": ("1", "share of each reference gamut's xy area covered"),
-    "locus_share": ("1", "share of the CIE 1931 spectrum-locus area covered"),
+    "spectrum_locus_coverage": ("1", "share of the CIE 1931 xy spectrum-locus area (every chromaticity) that the gamut covers"),
     "lab_volume": (LAB_VOLUME, "CIELAB volume of the colour solid (own white)"),
     "lab_coverage_volume": ("1", "share of each reference colour solid's CIELAB volume covered"),
     "area_gain_share": ("1", "chromaticity area gained by one extra laser primary, share of the base area"),
@@ -172,7 +174,7 @@ def _gamut_block(display: Display, cie1931: xr.Dataset) -> dict:
         "gamut_polygon": gamut["polygon"],
         "primary_xy": gamut["chromaticity_of_primary"],
         "gamut_coverage": coverage.assign_coords(reference_gamut=refs),
-        "locus_share": locus_share(display, cie1931),
+        "spectrum_locus_coverage": spectrum_locus_coverage(display, cie1931),
         "lab_volume": lab_gamut_volume(display, cie1931),
         "lab_coverage_volume": volume_cover.assign_coords(reference_gamut=refs),
     }
@@ -440,7 +442,7 @@ def _comparison_variables(comparison: xr.Dataset) -> dict:
     for name in ("difference", "difference_interval", "share_beyond_difference", "share_beyond_difference_interval",
                  "share_second_closer", "share_second_closer_interval"):
         value = comparison[name]
-        out[f"comparison_{name}"] = xr.DataArray(value.values, dims=value.dims, attrs={
+        out[f"comparison_{name.replace('share_beyond', PAIR_SHARE)}"] = xr.DataArray(value.values, dims=value.dims, attrs={
             **value.attrs, "first": comparison.attrs["first"], "second": comparison.attrs["second"]})
     return out
 
@@ -495,10 +497,10 @@ def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None
         table = xr.Dataset({"statistics": overall.sel(design=name)})
         if interval is not None:
             table["statistics_interval"] = interval.sel(design=name)
-        if "share_beyond_overall" in study:
-            table["share_beyond"] = study["share_beyond_overall"].sel(design=name)
-            if "share_beyond_overall_interval" in study:
-                table["share_beyond_interval"] = study["share_beyond_overall_interval"].sel(design=name)
+        if "share_of_pairs_above_threshold" in study:
+            table["share_beyond"] = study["share_of_pairs_above_threshold"].sel(design=name)
+            if "share_of_pairs_above_threshold_interval" in study:
+                table["share_beyond_interval"] = study["share_of_pairs_above_threshold_interval"].sel(design=name)
         lines.append(sentences.design_headline(table, str(name), reference))
     if interval is not None:
         target = target_half_width or float(study.attrs.get("target_half_width", DEFAULT_HALF_WIDTH))
@@ -706,13 +708,13 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         part = part.drop_vars([c for c in part.coords if c not in part.dims and "observer" not in part[c].dims])
         part["delta_e_2000_overall"] = _plain(table["statistics"], "CIE 2000 difference over all observer x "
                                               "stimulus pairs")
-        part["share_beyond_overall"] = _plain(table["share_beyond"], "share of observer x stimulus pairs beyond "
-                                              "each threshold")
+        part["share_of_pairs_above_threshold"] = _plain(table["share_beyond"], "share of observer x stimulus pairs "
+                                                "whose CIE 2000 difference is above each threshold")
         part["delta_e_white_overall"] = _plain(white["statistics"], "CIE 2000 difference between the two whites, "
                                                "statistics over observers")
         if intervals:
             for name, source in (("delta_e_2000_overall_interval", table["statistics_interval"]),
-                                 ("share_beyond_overall_interval", table["share_beyond_interval"]),
+                                 ("share_of_pairs_above_threshold_interval", table["share_beyond_interval"]),
                                  ("delta_e_white_overall_interval", white["statistics_interval"])):
                 part[name] = _plain(source, source.attrs["long_name"])
             p95_interval = table["statistics_interval"].sel(statistic="p95")

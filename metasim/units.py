@@ -15,6 +15,7 @@ CIELAB volume             ``CIELAB units³``    a volume in L*a*b* space (ΔE*ab
 CIELAB coordinates,       ``1``                unitless
 chromaticities, areas
 shares                    ``1``                fractions in files; reports and figures show %
+                                               (:func:`format_share`: never 100 % or 0 % unless exact)
 wavelength                ``nm``
 spectral radiance         ``W sr-1 m-2 nm-1``  figures write it with superscripts
 luminance, XYZ            ``cd m-2``           figures write cd/m²
@@ -97,6 +98,54 @@ def axis_label(quantity: str, units: str) -> str:
     return f"{quantity} ({text})" if text else f"{quantity} (unitless)"
 
 
+def format_share(value, decimals: int = 0, *, sign: bool = True) -> str:
+    """A share (a fraction, 0..1) as a percentage that never claims all or none when it is not.
+
+    Shares are rounded to ``decimals``, with one decimal more near the ends (below 1 % and above
+    99 %); a share that still rounds to 100 % or to 0 % without being exactly 1 or 0 is written
+    ``"> 99.9 %"`` / ``"< 0.1 %"``. Exactly 1 and 0 are ``"100 %"`` and ``"0 %"``.
+
+    Parameters
+    ----------
+    value : float
+        The share, a fraction (NaN gives ``"–"``).
+    decimals : int
+        Decimals of the percentage away from the ends (>= 0).
+    sign : bool
+        Append ``" %"`` (``False`` for a bound written before a shared sign, as in ``"84–90 %"``).
+
+    Returns
+    -------
+    str
+        The percentage as a reader reads it.
+
+    Examples
+    --------
+    >>> format_share(0.998), format_share(0.87), format_share(1.0), format_share(0.0)
+    ('99.8 %', '87 %', '100 %', '0 %')
+    >>> format_share(0.99996), format_share(0.0004), format_share(0.004)
+    ('> 99.9 %', '< 0.1 %', '0.4 %')
+    >>> format_share(0.9234, 1), format_share(0.5, sign=False)
+    ('92.3 %', '50')
+    """
+    value = float(value)
+    end = " %" if sign else ""
+    if value != value:  # NaN
+        return "–"
+    if value in (0.0, 1.0):
+        return f"{100 * value:.0f}{end}"
+    percent = 100 * value
+    digits = max(int(decimals), 1) if (percent < 1 or percent > 99) else max(int(decimals), 0)
+    text = f"{percent:.{digits}f}"
+    if 0 < value < 1:
+        step = 10.0 ** -digits
+        if float(text) >= 100:
+            return f"> {100 - step:.{digits}f}{end}"
+        if float(text) <= 0:
+            return f"< {step:.{digits}f}{end}"
+    return f"{text}{end}"
+
+
 def format_volume(value: float) -> str:
     """A CIELAB volume as a reader reads it: ``1.11e6`` → ``"1.11 million CIELAB units³"``.
 
@@ -133,4 +182,4 @@ def format_volume(value: float) -> str:
 
 
 __all__ = ["DELTA_E00", "DELTA_E_AB", "DELTA_E_ITP", "LAB_VOLUME", "UNITLESS", "DISPLAY_FORMS", "unit_text",
-           "axis_label", "format_volume"]
+           "axis_label", "format_share", "format_volume"]

@@ -209,7 +209,7 @@ def test_demo_headline_numbers(workdir):
     # fact of the trade, common practice, no source
     assert laser > 1.5 * hybrid
     assert 3.0 < laser < 30.0 and 1.0 < hybrid < 15.0  # population spread is visible, not absurd (common practice, no source)
-    share = result["share_beyond_overall"].sel(threshold=2.0)
+    share = result["share_of_pairs_above_threshold"].sel(threshold=2.0)
     assert share.sel(design=result["design"].values[0]) > share.sel(design=result["design"].values[1])
     area = result["gamut_area_xy"]
     assert float(area.isel(display=1)) > float(area.isel(display=0))  # four lasers span more than the monitor (geometry)

@@ -48,7 +48,7 @@ def test_estimate_writes_a_fit_and_a_report(cmf_fit):
     z = (result["estimate"].values - truth) / result["standard_error"].values
     assert (np.abs(z) < 3).mean() > 0.95  # Gaussian posterior (common practice, no source)
     html = (folder / "fit" / "report.html").read_text()
-    for text in ("Headline", "against the population spread", "Matches before and after",
+    for text in ("Data and setting noise", "against the population spread", "Matches before and after",
                  "not separable from", "data:image/png;base64,", "Cautions", "not a measurement of anyone"):
         assert text in html
     assert "IEC 60825-1" not in html  # observer-only reports carry only the cautions that apply to them
@@ -104,7 +104,8 @@ def test_estimate_of_sessions_with_a_display_spec(tmp_path, capsys):
     assert result.attrs["matching_data"] == "matching session"
     # CIE 2000 between reference and setting as the fitted observer sees it: setting noise sized (CIE 15:2004)
     assert float(result["match_error"].median()) < float(result["match_error_mean_observer"].median())
-    assert "Headline" in render_report(result)
+    page = render_report(result)
+    assert "Data and setting noise" in page and "Headline" not in page  # the answer box says the headline once
 
 
 def _main(capsys, *args):

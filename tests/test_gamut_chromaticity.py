@@ -10,7 +10,7 @@ from metasim.gamut import (
     candidate_spectra,
     chromaticity_gamut,
     gamut_coverage,
-    locus_share,
+    spectrum_locus_coverage,
     observer_gamut,
     spectrum_locus,
 )
@@ -124,7 +124,7 @@ def test_spectrum_locus_and_share_for_laser_primaries():
     observer = metasim.standard_observer("cie1931_2", wl)
     locus = spectrum_locus(observer)
     lasers = candidate_spectra([630.0, 532.0, 465.0], wl).rename(peak_wavelength="primary")
-    share = float(locus_share(lasers, observer))
+    share = float(spectrum_locus_coverage(lasers, observer))
     xy = observer.cmf.sel(wavelength=[630.0, 532.0, 465.0]).values
     xy = (xy[:2] / xy.sum(axis=0)).T
     # monochromatic primaries sit on the locus (CIE 15:2004 §7.3): share = their triangle / locus area

@@ -146,7 +146,7 @@ def test_every_number_equals_a_per_observer_colour_science_computation(reference
     np.testing.assert_allclose(by_stimulus.sel(statistic="median").values, np.median(de, axis=0), rtol=1e-12)
     np.testing.assert_allclose(by_stimulus.sel(statistic="p95").values, np.percentile(de, 95, axis=0), rtol=1e-12)
     np.testing.assert_allclose(by_stimulus.sel(statistic="max").values, de.max(axis=0), rtol=1e-12)
-    np.testing.assert_allclose(result["share_beyond"].sel(threshold=1.0).values, (de > 1.0).mean(axis=0))
+    np.testing.assert_allclose(result["share_of_observers_above_threshold"].sel(threshold=1.0).values, (de > 1.0).mean(axis=0))
     # ΔE_ITP against colour-science's BT.2100 ICtCp and BT.2124 difference
     space = colour.RGB_COLOURSPACES["ITU-R BT.2020"]
     ictcp = [colour.RGB_to_ICtCp(colour.XYZ_to_RGB(theirs[k], space, apply_cctf_encoding=False)) for k in ("xyz_ref", "xyz_test")]

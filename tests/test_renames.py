@@ -172,3 +172,81 @@ def test_old_filter_and_grid_keywords_work_and_warn():
     new = metasim.design_grid("laser", {"R": [630, 640]}, 1.0, base=base, relative_power=2.0)
     xr_equal = old.identical(new)
     assert xr_equal
+
+
+def test_spectrum_locus_coverage_was_locus_share():
+    lasers = metasim.emitters.laser_line([630, 532, 465], 1.0, name=["R", "G", "B"])
+    observer = metasim.standard_observer("cie1931_2")
+    with pytest.warns(DeprecationWarning, match=r"locus_share\(\) is renamed spectrum_locus_coverage\(\)"):
+        old = metasim.gamut.locus_share(lasers, observer)
+    new = metasim.gamut.spectrum_locus_coverage(lasers, observer)
+    assert float(old) == float(new) and new.attrs["units"] == "1"
+    assert "locus_share" not in metasim.gamut.__all__
+
+
+# -- result variables: new names in files, old files still open --------------------------------------------
+
+RENAMED = {"locus_share": "spectrum_locus_coverage", "share_beyond": "share_of_observers_above_threshold",
+           "share_beyond_overall": "share_of_pairs_above_threshold",
+           "share_beyond_overall_interval": "share_of_pairs_above_threshold_interval"}
+
+
+@pytest.fixture(scope="module")
+def small_study_file(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("renamed")
+    run("evaluate", DEMO / "projector_four_laser.toml", "--reference", DEMO / "grading_monitor.toml", "--size", 6,
+        "--seed", 2, "--stimuli", "primaries", "--no-report", "--resamples", 200, "--quiet", "--out", folder / "new")
+    return folder / "new" / "study.nc"
+
+
+def test_results_carry_the_new_names_with_units_and_long_names(small_study_file):
+    study = metasim.load_dataset(small_study_file)
+    for old, new in RENAMED.items():
+        assert old not in study and new in study, new
+        assert study[new].attrs["units"] == "1" and study[new].attrs["long_name"], new
+    assert "above each threshold" in study["share_of_pairs_above_threshold"].attrs["long_name"]
+    assert "spectrum-locus" in study["spectrum_locus_coverage"].attrs["long_name"]
+
+
+def test_a_file_written_with_the_old_names_still_opens_with_a_notice(small_study_file, tmp_path, capsys):
+    from metasim.cli import main
+    from metasim.report import render_report
+
+    study = metasim.load_dataset(small_study_file)
+    old = study.rename({new: old for old, new in RENAMED.items()})
+    path = metasim.save_dataset(old, tmp_path / "old.nc")
+    with pytest.warns(RenamedWarning, match="'share_beyond_overall' is read as 'share_of_pairs_above_threshold'"):
+        back = metasim.load_dataset(path)
+    assert sorted(set(RENAMED.values()) - set(back.data_vars)) == []
+    np.testing.assert_array_equal(back["share_of_pairs_above_threshold"].values,
+                                  study["share_of_pairs_above_threshold"].values)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RenamedWarning)
+        page = render_report(back, figures={})
+    assert page == render_report(study, figures={})  # the report of an old file reads as that of a new one
+    assert "covers the spectrum locus" in page
+    capsys.readouterr()
+    with warnings.catch_warnings():
+        warnings.simplefilter("always", RenamedWarning)
+        assert main(["report", str(path), "--out", str(tmp_path / "old.html"), "--quiet"]) == 0
+    notice = capsys.readouterr().err
+    assert "metasim: warning: a file written before variables were renamed: 'locus_share' is read as" in notice
+
+
+def test_search_spec_keys_fwhm_nm_and_relative_power(tmp_path):
+    from metasim.cli.search import read_search_spec, spec_search_space
+
+    body = ('[search]\nkind = "laser"\n[search.primaries.R]\npeak_nm = [620, 650]\n{width} = 2.0\n{power} = [0.5, 2]\n'
+            '[search.primaries.G]\npeak_nm = 532\n[search.primaries.B]\npeak_nm = 465\n')
+    (tmp_path / "new.toml").write_text(body.format(width="fwhm_nm", power="relative_power"), encoding="utf-8")
+    (tmp_path / "old.toml").write_text(body.format(width="width_nm", power="power"), encoding="utf-8")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RenamedWarning)
+        new = spec_search_space(read_search_spec(tmp_path / "new.toml"))[0]
+    with pytest.warns(RenamedWarning) as seen:
+        old = spec_search_space(read_search_spec(tmp_path / "old.toml"))[0]
+    messages = " ".join(str(w.message) for w in seen)
+    assert "'width_nm' is renamed 'fwhm_nm'" in messages and "'power' is renamed 'relative_power'" in messages
+    assert old.describe() == new.describe()  # the same searched space (and store hash) either way
+    assert [name for name, _, _ in new.parameters] == ["peak_nm_R", "power_R"]
+    assert "fwhm_nm = 1.0" in (DEMO / "search_red_green.toml").read_text(encoding="utf-8")

@@ -163,6 +163,23 @@ def test_extra_primary_figure_marks_the_designs_own_extra_primary(study_figures)
     assert "C 500 nm" in [t.get_text() for t in ax.texts]  # candidate A's cyan line is beyond its base (B, G, R)
 
 
+def test_extra_primary_label_stays_clear_of_the_curves(study_figures):
+    fig = study_figures["extra_primary"]
+    ax = fig.axes[0]
+    renderer = fig.canvas.get_renderer()
+    label = next(t for t in ax.texts if t.get_text() == "C 500 nm")
+    box = label.get_window_extent(renderer)
+    for line in ax.lines:
+        x, y = (np.asarray(v, dtype=float) for v in line.get_data())
+        if x.size < 3 or np.unique(x).size < 2:  # the curves, not the vertical marks
+            continue
+        points = ax.transData.transform(np.column_stack([x, y]))
+        inside = ((points[:, 0] >= box.x0) & (points[:, 0] <= box.x1)
+                  & (points[:, 1] >= box.y0) & (points[:, 1] <= box.y1))
+        assert not inside.any(), f"the label covers {line.get_label()} at {x[inside]} nm"
+        assert points[:, 1].max() < box.y0  # every curve stays below the band that holds the label
+
+
 def test_age_band_figure_explains_its_marks(study_figures):
     ax = study_figures["age_bands"].axes[0]
     names = [t.get_text() for t in ax.get_legend().get_texts()]

@@ -264,7 +264,8 @@ def test_study_tables_say_what_they_pool_and_agree():
     assert study["delta_e_2000_overall"].attrs["includes_white"] == "no"
     assert study["calibration_mean_delta_e"].attrs["includes_white"].startswith("yes")
     assert "9 stimuli" in study["delta_e_2000_overall"].attrs["pooled_stimuli"]  # 3 + 7, white once
-    for name in ("delta_e_2000_by_stimulus", "delta_e_2000_by_age", "share_beyond", "share_beyond_overall"):
+    for name in ("delta_e_2000_by_stimulus", "delta_e_2000_by_age", "share_of_observers_above_threshold",
+                 "share_of_pairs_above_threshold"):
         assert study[name].attrs["pooled_over"]
     assert 0.0 <= float(study["comparison_share_second_closer"]) <= 1.0
     lines = study_headlines(study)

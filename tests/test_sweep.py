@@ -99,7 +99,7 @@ def test_combined_sweep_equals_single_mismatch_calls(swept, designs, monitor, vi
         expected = [de.mean(), np.median(de), np.quantile(de, 0.95), de.max()]
         # the same numbers computed once by numpy on a one-design mismatch() (no outside reference)
         np.testing.assert_allclose(result["delta_e_2000_overall"].isel(design=i).values, expected, atol=1e-9)
-        np.testing.assert_allclose(result["share_beyond_overall"].isel(design=i).values,
+        np.testing.assert_allclose(result["share_of_pairs_above_threshold"].isel(design=i).values,
                                    [(de > t).mean() for t in (1, 2, 3)], atol=1e-9)
         ages = viewers["age_years"].values
         band = alone["delta_e_2000"].isel(design=0).values[(ages >= 40) & (ages < 50)].ravel()
@@ -151,7 +151,7 @@ def test_threads_equal_serial(tmp_path, swept, designs, monitor, viewers, stimul
                        scheduler="threads", workers=2)
     serial = swept[1]
     for name in ("delta_e_2000_overall", "delta_e_2000_by_age", "delta_e_white_overall", "gamut_coverage",
-                 "share_beyond_overall"):
+                 "share_of_pairs_above_threshold"):
         np.testing.assert_array_equal(result[name].values, serial[name].values)
 
 
@@ -171,7 +171,7 @@ def test_per_stimulus_summaries_equal_numpy_per_design(tmp_path, swept, designs,
     # numpy's mean / median / quantile (linear) / max over the observers of each stimulus
     expected = np.stack([de.mean(0), np.median(de, 0), np.quantile(de, 0.95, axis=0), de.max(0)])
     np.testing.assert_allclose(result["delta_e_2000_by_stimulus"].isel(design=i).values, expected, atol=1e-9)
-    np.testing.assert_allclose(result["share_beyond"].isel(design=i).sel(threshold=2.0).values, (de > 2.0).mean(0))
+    np.testing.assert_allclose(result["share_of_observers_above_threshold"].isel(design=i).sel(threshold=2.0).values, (de > 2.0).mean(0))
 
 
 def test_explicit_design_list_and_objects_reference(tmp_path, viewers):
@@ -231,6 +231,11 @@ def test_cli_sweep_writes_the_store(tmp_path):
     assert "data:image/png;base64," in page and "Best designs" in page
     assert (tmp_path / "red" / "figures" / "sweep.png").is_file()
     assert f"report:  {tmp_path / 'red' / 'report.html'}" in done.stdout
+    # designs numbered from 1 like ranks, with the file's index beside the number
+    best = int(np.argmin(result["delta_e_2000_overall"].sel(statistic="p95").values))
+    first = next(line for line in done.stdout.splitlines() if line.startswith("#1: "))
+    assert f"(design {best + 1}, index {best} in sweep.nc)" in first
+    assert f"design {best + 1}</td>" in page and "design N is index N − 1" in page
 
 
 def test_cli_bad_sweep_spec_is_one_line(tmp_path):

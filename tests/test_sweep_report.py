@@ -57,7 +57,7 @@ def assert_sweep_page(text, result):
     assert len(images) == 2  # the sweep figure and the Pareto front
     assert base64.b64decode(images[0]).startswith(b"\x89PNG\r\n\x1a\n")  # PNG signature (ISO/IEC 15948)
     index, p95 = best_of(result)
-    assert f"Best design: design {result['design'].values[index]}" in text
+    assert f"Best design: design {result['design'].values[index] + 1}" in text  # numbered from 1, like ranks
     assert f"95th percentile {p95:.2f} and median" in text  # in the answer box
     assert "IEC 60825-1" in text and "IEC 62471" in text and "Cautions" in text
     assert all(html.escape(c) in text for c in CAUTIONS)
@@ -92,7 +92,7 @@ def test_one_parameter_sweep_report(red_sweep):
     assert len(axes) == 2 and axes[-1].get_xlabel() == "red laser peak (nm)"
     assert "BT.2020" in axes[1].get_ylabel() and "ΔE00" in axes[0].get_ylabel()
     labels = [t.get_text() for t in axes[0].get_legend().get_texts()]
-    assert labels[:2] == ["95th percentile", "median"] and labels[2].startswith(f"best: design {index}")
+    assert labels[:2] == ["95th percentile", "median"] and labels[2].startswith(f"best: design {index + 1}")
     assert labels[3].startswith("2 ΔE00")  # the threshold line is in the legend, not a label at the plot's edge
     assert_axes_labelled(figure)
     figure.canvas.draw()
@@ -162,7 +162,7 @@ def test_per_stimulus_sweep_lists_the_hardest_stimuli(tmp_path, inputs):
     result = run_sweep(designs, *inputs, store=tmp_path / "per-stimulus", scheduler="serial", per_stimulus=True)
     text = render_report(result)
     index, _ = best_of(result)
-    assert f"Hardest stimuli for design {result['design'].values[index]}" in text
+    assert f"Hardest stimuli for design {result['design'].values[index] + 1}" in text
     p95 = result["delta_e_2000_by_stimulus"].isel(design=index).sel(statistic="p95")
     hardest = str(p95["stimulus"].values[int(np.argmax(p95.values))])
     first_row = text.split("Hardest stimuli")[1].split("<tr><td>")[1]
@@ -179,3 +179,22 @@ def test_edge_warning_names_the_parameter_in_words():
                                                "range 610-650 nm: extend the range beyond 650 nm"})
     (message,) = plots.sweep.edge_messages(sweep)
     assert message.startswith("the best design has red primary peak = 650 nm") and "peak_nm_R" not in message
+
+
+def test_shares_near_the_ends_are_never_rounded_to_all_or_none(red_sweep):
+    from metasim.report.answer import sweep_sentences
+    from metasim.statistics.headline import share_with_interval
+    from metasim.units import format_share
+
+    # common practice, no source: a share is "100 %" only when every case is in it
+    assert [format_share(v) for v in (0.998, 0.9996, 0.995, 0.0004, 0.004, 0.5, 1.0, 0.0)] == [
+        "99.8 %", "> 99.9 %", "99.5 %", "< 0.1 %", "0.4 %", "50 %", "100 %", "0 %"]
+    assert share_with_interval(0.998, [0.99, 1.0]) == "99.8 % (99.0–100 %)"
+    result = red_sweep[1].copy()
+    coverage = result["gamut_coverage"].copy()
+    coverage.loc[{"reference_gamut": "bt2020"}] = 0.998
+    result["gamut_coverage"] = coverage
+    text = " ".join(sweep_sentences(result))
+    assert "it covers 99.8 % of the BT.2020 xy area" in text and "100 %" not in text
+    page = render_report(result, figures={})
+    assert "99.8 %" in page and "100.0 %" not in page

@@ -59,6 +59,7 @@ from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range, range_text
 from metasim.errors import FileFormatError, MetasimError, OptionError, RenamedWarning, ReportError, StimulusError
+from metasim.units import format_share
 from metasim.progress import Progress
 
 PROG = "metasim"
@@ -460,13 +461,13 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
         if "delta_e_2000_overall_interval" in result else None
     parameters = [c for c in result.coords if result[c].dims == ("design",) and c != "design"]
 
-    from metasim.plots.sweep import edge_messages, parameter_text, parameter_value, sweep_parameters
+    from metasim.plots.sweep import design_number, edge_messages, parameter_text, parameter_value, sweep_parameters
 
     varied = sweep_parameters(result)[0] or parameters
 
-    def describe(index: int) -> str:  # by its parameters; the index is the design's label in sweep.nc
+    def describe(index: int) -> str:  # by its parameters; designs are numbered from 1 as ranks are
         values = ", ".join(f"{parameter_text(result, c)[0]} {parameter_value(result, c, index)}" for c in varied)
-        name = f"design {result.design.values[index]} in {SWEEP_FILE}"
+        name = f"design {design_number(result, index)}, index {result.design.values[index]} in {SWEEP_FILE}"
         return f"{values} ({name})" if values else name
 
     for rank, index in enumerate(np.argsort(p95.values, kind="stable")[:3], start=1):
@@ -474,7 +475,7 @@ def _print_sweep_answer(result, target_half_width: float | None) -> None:
         line = f"#{rank}: {describe(int(index))}: 95th percentile {text} CIE 2000 units"
         if "best_probability" in result:
             low, high = result["rank_interval"].isel(design=index).values
-            line += (f"; best in {100 * float(result['best_probability'].values[index]):.0f} % of resamples, "
+            line += (f"; best in {format_share(result['best_probability'].values[index])} of resamples, "
                      f"rank {low}-{high}")
         print(line)
     if "best_probability" in result:
@@ -518,7 +519,7 @@ def cmd_search(args) -> int:
                                "sweep_description": spec.get("description", ""), "sweep_spec_text": spec["_text"]})
     best = best_design(result)
     values = ", ".join(f"{k} {v:.4g}" for k, v in best.items() if k not in ("design", "value", "feasible"))
-    print(f"best: design {best['design']} ({values}): value {best['value']:.4g}"
+    print(f"best: design {best['design'] + 1} (index {best['design']} in search.nc; {values}): value {best['value']:.4g}"
           f"{'' if best['feasible'] else ' (no design found meets every constraint)'}")
     print(f"result:  {Path(args.out) / 'search.nc'} ({result.sizes['design']} designs in "
           f"{result.attrs['generation_count']} generations)")

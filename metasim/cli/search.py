@@ -16,12 +16,15 @@ reference, stimuli, calibration_observer, strategy, chunk_size, lab_volume, [dis
 
     [search.primaries.R]                   # one table per searched primary (3 to 6 primaries in all,
     peak_nm = [615, 660]                   # base primaries included); a number is fixed,
-    width_nm = 1.0                         # [lowest, highest] is searched
-    power = [0.5, 2.0]                     # relative power before white calibration (N > 3)
+    fwhm_nm = 1.0                          # [lowest, highest] is searched
+    relative_power = [0.5, 2.0]            # relative power before white calibration (N > 3)
 
     [search.constraints]                   # optional: bounds on named objectives or design variables
     bt2020_coverage = {min = 0.9}
     white_efficacy = {min = 250}
+
+A primary's ``fwhm_nm`` and ``relative_power`` are the keys of ``[vary]`` (and ``relative_power`` of a
+design spec); their old names ``width_nm`` and ``power`` still work for one release, with a warning.
 
 Objective and constraint names: p95_mismatch, median_mismatch, white_p95, bt2020_coverage,
 p3_coverage, bt709_coverage, gamut_area, lab_volume (with lab_volume = true), white_efficacy.
@@ -29,12 +32,17 @@ p3_coverage, bt709_coverage, gamut_area, lab_volume (with lab_volume = true), wh
 
 from __future__ import annotations
 
-from metasim.cli.specs import load_display
+from metasim.cli.specs import load_display, renamed_keys
 from metasim.cli.sweep import TOP_KEYS, check_shared_keys, display_settings, read_spec_table, relative
 from metasim.errors import MetasimError, SpecError
 from metasim.sweep import search_space
 
 SEARCH_TOP_KEYS = tuple(k for k in TOP_KEYS if k not in ("vary", "per_stimulus")) + ("search",)
+#: a searched primary's spec keys: old name → new name (the old still read for one release, with a warning)
+RENAMED_PRIMARY_KEYS = {"width_nm": "fwhm_nm", "power": "relative_power"}
+#: a searched primary's spec keys → the parameter names of metasim.sweep.search_space (and of the
+#: search's design coordinates, e.g. ``width_nm_R``, which stores and their resuming rely on)
+SPACE_PARAMETERS = {"peak_nm": "peak_nm", "fwhm_nm": "width_nm", "relative_power": "power"}
 SEARCH_KEYS = ("kind", "profile", "seed", "generations", "population", "tolerance", "objective", "primaries",
                "constraints")
 
@@ -46,6 +54,13 @@ def read_search_spec(path) -> dict:
     if not isinstance(search.get("primaries"), dict) or not search["primaries"]:
         raise SpecError(f"{where}: [search.primaries.<label>] must name at least one primary, e.g. "
                         "[search.primaries.R] peak_nm = [615, 660]")
+    for label, table in search["primaries"].items():
+        if isinstance(table, dict):
+            renamed_keys(table, RENAMED_PRIMARY_KEYS, f"{where} [search.primaries.{label}]")
+            unknown = [key for key in table if key not in SPACE_PARAMETERS]
+            if unknown:
+                raise SpecError(f"{where} [search.primaries.{label}]: unknown key {unknown[0]!r}; allowed: "
+                                f"{', '.join(SPACE_PARAMETERS)}")
     for key in ("seed", "generations", "population"):
         if key in search and (isinstance(search[key], bool) or not isinstance(search[key], int) or search[key] < 0):
             raise SpecError(f"{where} [search]: {key} = {search[key]!r} is not allowed; need a whole number >= 0")
@@ -66,11 +81,13 @@ def spec_search_space(spec: dict):
     search = spec["search"]
     base = load_display(relative(spec, spec["base"]))[0] if "base" in spec else None
     try:
-        space = search_space(search.get("kind", "laser"), search["primaries"], base=base,
+        primaries = {label: {SPACE_PARAMETERS.get(k, k): v for k, v in table.items()} if isinstance(table, dict) else table
+                     for label, table in search["primaries"].items()}
+        space = search_space(search.get("kind", "laser"), primaries, base=base,
                              profile=search.get("profile", "gaussian"))
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None
     return space, display_settings(spec)
 
 
-__all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "read_search_spec", "spec_search_space"]
+__all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "RENAMED_PRIMARY_KEYS", "SPACE_PARAMETERS", "read_search_spec", "spec_search_space"]

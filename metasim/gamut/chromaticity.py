@@ -16,12 +16,13 @@ areas are single array expressions (see :mod:`metasim.gamut.polygon`); only the 
 from __future__ import annotations
 
 import functools
+import warnings
 
 import numpy as np
 import xarray as xr
 
 from metasim.colorimetry import xyz_to_uv, xyz_to_xy
-from metasim.errors import GamutError
+from metasim.errors import DeprecatedNameWarning, GamutError
 from metasim.gamut import polygon as geometry
 from metasim.observers.convert import as_observer
 from metasim.gamut._inputs import (
@@ -360,11 +361,46 @@ def spectrum_locus(observer, space: str = "xy") -> xr.Dataset:
     )
 
 
-def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
-    """Share (0..1) of the observer's spectrum-locus area covered by the design's gamut.
+def spectrum_locus_coverage(design, observer, space: str = "xy") -> xr.DataArray:
+    """Share (0..1) of the observer's spectrum-locus area (every chromaticity it can see) covered by
+    the design's gamut (was ``locus_share``, still importable for one release with a warning).
 
     ``design`` is anything :func:`chromaticity_gamut` accepts; spectra are integrated with the same
     ``observer``, so each individual observer's gamut is compared with that observer's own locus.
+
+    Parameters
+    ----------
+    design : DataArray, Display or chromaticities
+        Primaries (``primary`` × ``wavelength``, optional ``design``), a display, or what
+        :func:`chromaticity_gamut` takes.
+    observer : Dataset
+        Colour-matching functions (one observer or a population with an ``observer`` dim).
+    space : {"xy", "uv"}
+        CIE 1931 xy or CIE 1976 u'v'.
+
+    Returns
+    -------
+    xarray.DataArray
+        The share covered (units 1), per design and observer when given.
+
+    Raises
+    ------
+    metasim.errors.GamutError
+        Inputs :func:`chromaticity_gamut` refuses, or an unknown ``space``.
+
+    References
+    ----------
+    CIE 15:2004 (chromaticity diagrams, the spectrum locus); the area share of the convex hulls is
+    common practice, no source.
+
+    Examples
+    --------
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> lasers = laser_line([630, 532, 465], 1.0, name=["R", "G", "B"])
+    >>> share = spectrum_locus_coverage(lasers, metasim.standard_observer("cie1931_2"))
+    >>> share.attrs["units"], round(float(share), 2)
+    ('1', 0.63)
     """
     design, observer = gamut_inputs(design, observer)
     observer = as_observer(observer)
@@ -373,6 +409,13 @@ def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
     share.attrs["long_name"] = f"share of the spectrum-locus {_NAMES[space]} area covered by the design gamut"
     share.attrs["reference"] = "spectrum locus"
     return share
+
+
+def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
+    """The old name of :func:`spectrum_locus_coverage` (works for one release, with a warning)."""
+    warnings.warn("locus_share() is renamed spectrum_locus_coverage(); the old name works until the next release",
+                  DeprecatedNameWarning, stacklevel=2)
+    return spectrum_locus_coverage(design, observer, space)
 
 
 def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERENCE_GAMUTS)) -> xr.Dataset:
@@ -392,7 +435,7 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
     Returns
     -------
     Dataset
-        The :func:`chromaticity_gamut` variables plus ``locus_area``, ``locus_share`` and
+        The :func:`chromaticity_gamut` variables plus ``locus_area``, ``spectrum_locus_coverage`` and
         ``coverage`` (``reference`` dim), per observer.
     """
     spectra, observer = gamut_inputs(spectra, observer)
@@ -400,8 +443,8 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
     gamut = chromaticity_gamut(spectra, space, observer)
     locus = spectrum_locus(observer, space)
     gamut["locus_area"] = locus["area"]
-    gamut["locus_share"] = gamut_coverage(gamut, locus, space)
-    gamut["locus_share"].attrs.update(long_name="share of the observer's own spectrum-locus area covered",
+    gamut["spectrum_locus_coverage"] = gamut_coverage(gamut, locus, space)
+    gamut["spectrum_locus_coverage"].attrs.update(long_name="share of the observer's own spectrum-locus area covered",
                                       reference="spectrum locus")
     if references:
         cover = xr.concat([gamut_coverage(gamut, name, space) for name in references], dim="reference")

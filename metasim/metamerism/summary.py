@@ -29,6 +29,11 @@ from metasim.units import DELTA_E00
 #: the observers' ages, so no band is empty at either end (see :func:`decade_age_bands`).
 DECADES = "decades"
 
+#: result variables: the share of observers above each threshold (per stimulus), and of all
+#: observer × stimulus pairs (were ``share_beyond`` and ``share_beyond_overall``)
+OBSERVER_SHARE = "share_of_observers_above_threshold"
+PAIR_SHARE = "share_of_pairs_above_threshold"
+
 
 def observer_weights(delta_e: xr.DataArray) -> np.ndarray | None:
     """The observers' ``weight`` coordinate (checked), or None for equal weights."""
@@ -167,8 +172,8 @@ def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS
 
     Returns ``<name>_by_stimulus`` (statistic, stimulus, …), ``<name>_by_observer`` (statistic,
     observer, …), ``<name>_by_age`` (statistic, age_band, …; needs an ``age_years`` coordinate),
-    ``share_beyond`` (threshold, stimulus, …: share of observers above each threshold) and
-    ``share_beyond_overall`` (threshold, …: share of observer × stimulus pairs above it).
+    ``share_of_observers_above_threshold`` (threshold, stimulus, …: share of observers above each threshold) and
+    ``share_of_pairs_above_threshold`` (threshold, …: share of observer × stimulus pairs above it).
     ``age_bands`` is resolved by :func:`age_band_edges` (default: the decades covering the ages).
     """
     for dim in ("observer", "stimulus"):
@@ -215,7 +220,7 @@ QUANTITIES = {"delta_e_2000": "CIE 2000 difference", "delta_e": "colour differen
 def summary_attrs(weights: np.ndarray | None, units: str = DELTA_E00, name: str = "delta_e_2000") -> dict[str, dict]:
     """The attributes of the summary variables of :func:`summary_variables` (what each pools, with
     which observer weights, in which unit), by kind: ``by_stimulus``, ``by_observer``, ``by_age``,
-    ``observers_per_age_band``, ``share_beyond``, ``share_beyond_overall``. ``units`` are those of
+    ``observers_per_age_band``, ``share_of_observers_above_threshold``, ``share_of_pairs_above_threshold``. ``units`` are those of
     the values summarised (metasim.units); every long name says what they are (``name`` →
     :data:`QUANTITIES`). A sweep's summaries carry the same (:mod:`metasim.sweep.summary`)."""
     pooled = {"includes_white": "no", "observer_weights": weights_note(weights)}
@@ -228,11 +233,11 @@ def summary_attrs(weights: np.ndarray | None, units: str = DELTA_E00, name: str 
         "by_age": {"units": units, "long_name": f"{what}, statistics over all observer x stimulus pairs in each age band",
                    "pooled_over": "observer x stimulus pairs (per age band)", **pooled},
         "observers_per_age_band": {"units": "1", "long_name": "observers in each age band"},
-        "share_beyond": {"units": "1", "long_name": f"share of observers whose {what} is beyond each threshold",
+        "share_beyond": {"units": "1", "long_name": f"share of observers whose {what} is above each threshold, per stimulus",
                          "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
                          **pooled},
         "share_beyond_overall": {"units": "1", "long_name": f"share of observer x stimulus pairs whose {what} is "
-                                                            "beyond each threshold",
+                                                            "above each threshold",
                                  "pooled_over": "observer x stimulus pairs", **pooled},
         "threshold": {"units": units, "long_name": f"{what} threshold"},
     }
@@ -282,9 +287,9 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
         out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, attrs["by_age"])
         out["observers_per_age_band"] = ("age_band", np.asarray(counts), attrs["observers_per_age_band"])
         fixed.append(label_coordinate("age_band", tuple(band_labels)))
-    out["share_beyond"] = (("threshold", "stimulus", *rest), share, attrs["share_beyond"])
+    out[OBSERVER_SHARE] = (("threshold", "stimulus", *rest), share, attrs["share_beyond"])
     # every stimulus weighs the same, so the share of all pairs is the mean of the stimuli's shares
-    out["share_beyond_overall"] = (("threshold", *rest), share.mean(axis=1), attrs["share_beyond_overall"])
+    out[PAIR_SHARE] = (("threshold", *rest), share.mean(axis=1), attrs["share_beyond_overall"])
     threshold = label_coordinate("threshold", tuple(t.tolist()))
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}

@@ -650,7 +650,7 @@ def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.Data
                     ax.axvline(peak, color=colours[name], lw=0.8, ls=(0, (1, 2)))
                 for extra, peak in (own_extra_nm or {}).get(name, {}).items():
                     ax.axvline(peak, color=colours[name], lw=1.6, alpha=0.8)
-                    if row == 0:  # the label on the side of the line with more room
+                    if row == 0:  # the label above every curve (headroom below), on the side with more room
                         right = peak > wl[0] + 0.7 * (wl[-1] - wl[0])
                         ax.annotate(f"{extra} {peak:g} nm", (peak, 0.98), xycoords=("data", "axes fraction"),
                                     xytext=(-4 if right else 4, 0), textcoords="offset points",
@@ -658,6 +658,9 @@ def extra_primary_gain(area_gain_share: xr.DataArray, volume_gain_share: xr.Data
                                     bbox={"boxstyle": "square,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.85})
             ax.set_ylabel(label)
             ax.set_ylim(bottom=0)
+            if row == 0 and any((own_extra_nm or {}).values()):  # a band above the curves for the labels
+                highest = float(np.nanmax(100 * share.values)) if np.isfinite(share.values).any() else 0.0
+                ax.set_ylim(0, max(highest, ax.get_ylim()[1] * 0.8) / 0.8 if highest > 0 else 1.0)
         axes[0, 0].plot([], [], color="#555555", lw=0.8, ls=(0, (1, 2)), label="peaks of the base primaries")
         if any((own_extra_nm or {}).values()):
             axes[0, 0].plot([], [], color="#555555", lw=1.6, label="the design's own primary beyond its base")

@@ -16,7 +16,7 @@ from matplotlib.patches import Patch
 from matplotlib.ticker import MaxNLocator
 
 from metasim.plots.figures import DESIGN_COLOURS, OUTLINE_COLOUR, REFERENCE_COLOUR, STYLE, _figure
-from metasim.units import DELTA_E00
+from metasim.units import DELTA_E00, format_share
 
 FITTED_COLOUR = DESIGN_COLOURS[1]
 MEAN_COLOUR = DESIGN_COLOURS[0]
@@ -96,7 +96,7 @@ def fit_parameters(ds: xr.Dataset) -> Figure:
                         lw=1.2)
                 ax.set_yticks([])
                 ax.set_ylabel("Density (1/unit)")
-                ax.set_title(f"median SE {np.median(se):.3g}, identified {100 * ok.mean():.0f} %", fontsize=9)
+                ax.set_title(f"median SE {np.median(se):.3g}, identified {format_share(ok.mean())}", fontsize=9)
             ax.set_xlabel(_label(ds, name))
         handles = [Patch(color=REFERENCE_COLOUR, alpha=0.3, label="population mean ± 1, ± 2 SD")]
         if n <= MAX_SUBJECT_ROWS:

@@ -160,7 +160,7 @@ def result_pareto_figure(ds: xr.Dataset) -> Figure:
     """
     objectives = pareto_objectives(ds)
     values = objective_values(ds, {o["name"]: o["sense"] for o in objectives})[0]
-    labels = [str(v) for v in ds["design"].values]
+    labels = [str(int(v) + 1) for v in ds["design"].values]  # numbered from 1, as reports number designs
     return pareto_figure(values, np.asarray(ds["pareto_rank"].values), objectives, labels)
 
 

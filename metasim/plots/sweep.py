@@ -244,6 +244,34 @@ def _as_float(values) -> np.ndarray | None:
     return out if np.isfinite(out).all() else None
 
 
+def design_number(ds: xr.Dataset, index: int) -> int:
+    """The number readers see for the design at position ``index``: numbered from 1, like ranks.
+
+    Sweep and search files keep each design's 0-based ``design`` index (the chunks of a sweep store
+    and its resuming rely on it); reports, figures and the command line show that index + 1 and say
+    so where a reader may look the design up in the file.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep or search result (dim ``design``).
+    index : int
+        Position along ``design``.
+
+    Returns
+    -------
+    int
+        The design's number, from 1.
+
+    Examples
+    --------
+    >>> sweep = xr.Dataset(coords={"design": ("design", [0, 1, 2])})
+    >>> design_number(sweep, 0), design_number(sweep, 2)
+    (1, 3)
+    """
+    return int(ds["design"].values[int(index)]) + 1
+
+
 def _tick(value) -> str:
     return f"{value:g}" if isinstance(value, (float, np.floating, int, np.integer)) else str(value)
 
@@ -271,7 +299,7 @@ def _sweep_curves(summary: xr.Dataset, name: str, p95: np.ndarray, median: np.nd
         ax.plot(x[order], p95[order], color=DESIGN_COLOURS[0], lw=1.8, marker="o", ms=4.5, label="95th percentile")
         ax.plot(x[order], median[order], color=DESIGN_COLOURS[1], lw=1.5, marker="s", ms=4, ls="--", label="median")
         ax.scatter([x[best]], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
-                   label=f"best: design {_tick(summary['design'].values[best])} ({parameter_value(summary, name, best)})")
+                   label=f"best: design {design_number(summary, best)} ({parameter_value(summary, name, best)})")
         ax.axhline(THRESHOLD, color="#8a8a8a", lw=0.9, ls=(0, (2, 3)), zorder=0,
                    label=f"{THRESHOLD:g} {DELTA_E00} (common practice threshold)")
         ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
@@ -315,7 +343,7 @@ def _sweep_heat_map(summary: xr.Dataset, names: list[str], p95: np.ndarray) -> F
                         ax.text(j, i, f"{grid[i, j]:.2f}", ha="center", va="center", fontsize=8,
                                 color="white" if grid[i, j] > 0.55 * top else "#1f2328")
         ax.add_patch(Rectangle((bx - 0.5, by - 0.5), 1.0, 1.0, fill=False, edgecolor=DESIGN_COLOURS[1], lw=3.0,
-                               zorder=5, label=f"best: design {_tick(summary['design'].values[best])} "
+                               zorder=5, label=f"best: design {design_number(summary, best)} "
                                                f"(95th percentile {p95[best]:.2f})"))
         step_x, step_y = max(1, len(xs) // 12), max(1, len(ys) // 12)
         ax.set_xticks(np.arange(len(xs))[::step_x], [_tick(v) for v in xs][::step_x])
@@ -333,7 +361,6 @@ def _sweep_rank(summary: xr.Dataset, varied: list[str], p95: np.ndarray, median:
     order = np.argsort(np.where(np.isfinite(p95), p95, np.inf), kind="stable")
     rank = np.arange(1, len(order) + 1)
     best = order[0]
-    designs = summary["design"].values
     with rc_context(STYLE):
         fig, axes = _figure(7.6, 4.4)
         ax = axes[0, 0]
@@ -344,7 +371,7 @@ def _sweep_rank(summary: xr.Dataset, varied: list[str], p95: np.ndarray, median:
                 label="median (same design)")
         values = "\n".join(f"{parameter_text(summary, c)[0]} {parameter_value(summary, c, best)}" for c in varied[:5])
         ax.scatter([1], [p95[best]], s=160, marker="*", color=REFERENCE_COLOUR, zorder=6,
-                   label=f"best: design {_tick(designs[best])}" + (f"\n{values}" if values else ""))
+                   label=f"best: design {design_number(summary, best)}" + (f"\n{values}" if values else ""))
         ax.set_xlabel("Rank of the design (unitless; 1 = smallest 95th percentile)")
         ax.set_ylabel(f"Over all observer × stimulus pairs,\n{DELTA_E_LABEL.replace('CIE 2000 colour', 'CIE 2000')}")
         ax.set_ylim(bottom=0)
@@ -403,4 +430,5 @@ def sweep_figure(summary: xr.Dataset) -> Figure:
     return _sweep_rank(summary, varied, p95, median)
 
 
-__all__ = ["MISMATCH_CMAP", "sweep_spec", "sweep_parameters", "parameter_text", "edge_messages", "parameter_label", "parameter_value", "sweep_figure"]
+__all__ = ["MISMATCH_CMAP", "sweep_spec", "sweep_parameters", "parameter_text", "edge_messages", "parameter_label",
+           "parameter_value", "design_number", "sweep_figure"]

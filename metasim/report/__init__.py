@@ -42,7 +42,7 @@ from metasim.report.html import (CAUTIONS, REFERENCE_NAMES, STYLE, _attribute_li
 from metasim.report.answer import (answer_box, cautions_section, extra_sentences, fit_sentences, population_sentences,
                                    study_sentences, sweep_sentences)
 from metasim.report.labels import label, parsed
-from metasim.report.fitting import (fit_categories, fit_headline, fit_models, fit_parameter_table, fit_subject_table,
+from metasim.report.fitting import (fit_categories, fit_data_table, fit_models, fit_parameter_table, fit_subject_table,
                                     is_fit)
 from metasim.report.extra import extra_value_page, is_extra_value
 from metasim.report.pareto import pareto_caption, pareto_section, with_pareto_ranks
@@ -346,8 +346,8 @@ def with_summaries(ds: xr.Dataset) -> xr.Dataset:
     table = population_statistics(ds["delta_e_2000"], interval=True, pooled=str(ds.attrs.get("stimuli", "")) or None)
     ds["delta_e_2000_overall"] = table["statistics"]
     ds["delta_e_2000_overall_interval"] = table["statistics_interval"]
-    ds["share_beyond_overall"] = table["share_beyond"]
-    ds["share_beyond_overall_interval"] = table["share_beyond_interval"]
+    ds["share_of_pairs_above_threshold"] = table["share_beyond"]
+    ds["share_of_pairs_above_threshold_interval"] = table["share_beyond_interval"]
     if "delta_e_white" in ds:
         white = population_statistics(ds["delta_e_white"], over="observer", interval=True, pooled="the white",
                                       includes_white=True)
@@ -372,8 +372,8 @@ def _headline(ds: xr.Dataset) -> str:
     for name in ds["design"].values:
         row = [str(name)] + [_cell(ds, "delta_e_2000_overall", design=name, statistic=s) for s in ("mean", "median", "p95")]
         for t in (1.0, 2.0, 3.0):
-            present = "share_beyond_overall" in ds and t in ds["threshold"].values
-            row.append(_cell(ds, "share_beyond_overall", True, design=name, threshold=t) if present else "–")
+            present = "share_of_pairs_above_threshold" in ds and t in ds["threshold"].values
+            row.append(_cell(ds, "share_of_pairs_above_threshold", True, design=name, threshold=t) if present else "–")
         if "delta_e_white_overall" in ds:
             row += [_cell(ds, "delta_e_white_overall", design=name, statistic=s) for s in ("median", "p95")]
         else:
@@ -404,14 +404,14 @@ def _gamut(ds: xr.Dataset) -> str:
         return ""
     refs = [str(r) for r in ds["reference_gamut"].values] if "reference_gamut" in ds.coords else []
     header = ["display", "role", "xy area", "u'v' area"] + [f"covers {REFERENCE_NAMES.get(r, r)}" for r in refs]
-    header += ["share of the spectrum locus", "CIELAB volume (CIELAB units³)", "CIELAB volume of BT.2020 covered"]
+    header += ["covers the spectrum locus (every chromaticity)", "CIELAB volume (CIELAB units³)", "CIELAB volume of BT.2020 covered"]
     rows = []
     for name in ds["display"].values:
         sel = ds.sel(display=name)
         role = str(sel["display_role"].values) if "display_role" in sel.coords else ""
         row = [str(name), role, _num(sel["gamut_area_xy"], 4), _num(sel["gamut_area_uv"], 4)]
         row += [_pct(sel["gamut_coverage"].sel(reference_gamut=r)) for r in refs]
-        row += [_pct(sel["locus_share"]), _volume(sel["lab_volume"])]
+        row += [_pct(sel["spectrum_locus_coverage"]), _volume(sel["lab_volume"])]
         row.append(_pct(sel["lab_coverage_volume"].sel(reference_gamut="bt2020")) if "bt2020" in refs else "–")
         rows.append(row)
     return ("<h2>Gamut</h2><p>Chromaticity areas in the CIE 1931 xy and CIE 1976 u'v' diagrams (unitless); "
@@ -448,7 +448,7 @@ def _by_stimulus(ds: xr.Dataset) -> str:
     rows = []
     for name in ds["design"].values:
         by = ds["delta_e_2000_by_stimulus"].sel(design=name)
-        share = ds["share_beyond"].sel(design=name) if "share_beyond" in ds else None
+        share = ds["share_of_observers_above_threshold"].sel(design=name) if "share_of_observers_above_threshold" in ds else None
         flags = ds["out_of_gamut_test"].sel(design=name) if "out_of_gamut_test" in ds else None
         for stim in ds["stimulus"].values:
             cell = by.sel(stimulus=stim)
@@ -667,7 +667,7 @@ def render_report(ds: xr.Dataset, *, title: str | None = None, source: str | Non
     elif kind == "extra":
         body.append(extra_value_page(ds, figures.get("extra_primary_value")))
     elif kind == "fit":
-        body += [fit_headline(ds), _image(*figures["fit_parameters"]), fit_parameter_table(ds),
+        body += [fit_data_table(ds), _image(*figures["fit_parameters"]), fit_parameter_table(ds),
                  "<h2>Matches before and after</h2>", _image(*figures["fit_residuals"]), fit_subject_table(ds),
                  fit_categories(ds), fit_models(ds)]
     elif kind == "population":

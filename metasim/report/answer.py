@@ -18,6 +18,7 @@ import xarray as xr
 from metasim.report.fitting import FIT_CAUTION
 from metasim.report.html import CAUTIONS, _e
 from metasim.report.labels import label
+from metasim.units import format_share
 
 #: every caution by topic (the full texts stand at the end of a report)
 CAUTION_TEXTS = {
@@ -169,9 +170,9 @@ def sweep_sentences(ds: xr.Dataset) -> list[str]:
                 f"{numbers['p95'][best]:.2f} and median {numbers['median'][best]:.2f} CIE 2000 units over all "
                 "observer × colour pairs")
     if np.isfinite(numbers["share2"][best]):
-        text += f", {100 * numbers['share2'][best]:.0f} % of pairs beyond 2"
+        text += f", {format_share(numbers['share2'][best])} of pairs beyond 2"
     if np.isfinite(numbers["bt2020"][best]):
-        text += f"; it covers {100 * numbers['bt2020'][best]:.0f} % of the BT.2020 xy area"
+        text += f"; it covers {format_share(numbers['bt2020'][best])} of the BT.2020 xy area"
     sentences = ranked[:1] + [text + "."] + ranked[1:]
     finite = numbers["p95"][np.isfinite(numbers["p95"])]
     if finite.size > 1:
@@ -191,7 +192,7 @@ def extra_sentences(ds: xr.Dataset) -> list[str]:
         return ["No candidate extra primary has finite results."]
     best_m, best_a = int(np.nanargmax(gain)), int(np.nanargmax(area))
     base = float(ds["base_delta_e_2000_p95"])
-    return [f"Most gamut: an extra primary at {peaks[best_a]:g} nm adds {100 * area[best_a]:.0f} % of the base "
+    return [f"Most gamut: an extra primary at {peaks[best_a]:g} nm adds {format_share(area[best_a])} of the base "
             "design's CIE 1931 xy area.",
             f"Least viewer disagreement: at {peaks[best_m]:g} nm the 95th percentile CIE 2000 difference over the "
             f"observers falls from {base:.2f} to {base - gain[best_m]:.2f} when the extra primary serves the "
@@ -208,7 +209,7 @@ def fit_sentences(ds: xr.Dataset) -> list[str]:
     identified = ds["identified"].values.astype(bool)
     return [f"{n} subject{'s' if n != 1 else ''} fitted ({int(ds['converged'].values.sum())} converged): the median "
             f"match error falls from {before:.3g} with the mean observer to {after:.3g} with each subject's fitted "
-            f"observer ({_unit(ds)}); {100 * identified.mean():.0f} % of subject × parameter estimates are "
+            f"observer ({_unit(ds)}); {format_share(identified.mean())} of subject × parameter estimates are "
             "identified by the data."]
 
 

@@ -1,4 +1,4 @@
-"""The observer-fit page of a report (results of :func:`metasim.fit_observer`): headline, estimates
+"""The observer-fit page of a report (results of :func:`metasim.fit_observer`): the data and setting noise, estimates
 against the population spread, parameters the data did not identify, match errors before and after,
 a table per subject, the categories and the models."""
 
@@ -48,26 +48,20 @@ def _unit(ds) -> str:
     return "CIE 2000 units" if ds.attrs.get("matching_data") == "matching session" else "Δu'v'"
 
 
-def fit_headline(ds: xr.Dataset) -> str:
+def fit_data_table(ds: xr.Dataset) -> str:
+    """What the fit worked from and how noisy the settings were: the numbers the answer box above does
+    not already say (subjects, convergence, match errors and identification are said there once)."""
     n = ds.sizes["observer"]
     noise = ds["setting_noise"].values
-    before = _typical(ds["match_error_mean_observer"].values)
-    after = _typical(ds["match_error"].values)
-    identified = ds["identified"].values.astype(bool)
-    converged = int(ds["converged"].values.sum())
     rows = [
-        ["subjects", str(n)],
-        ["data", f"{ds.attrs.get('matching_data', '')}: {ds.sizes['matching_stimulus']} stimuli × "
-                 f"{ds.sizes['matching_repeat']} repeat(s), {int(np.median(ds['value_count']))} values per subject (median)"],
-        ["converged", f"{converged} of {n}"],
+        ["matching data", f"{ds.attrs.get('matching_data', '')}: {ds.sizes['matching_stimulus']} stimuli × "
+                          f"{ds.sizes['matching_repeat']} repeat(s), {int(np.median(ds['value_count']))} values per "
+                          "subject (median)"],
         ["setting noise (median, range)", f"{noise.mean() if n == 1 else np.median(noise):.3g} "
                                           f"({noise.min():.3g}–{noise.max():.3g}); {ds['setting_noise'].attrs.get('long_name', '')}"],
-        [f"match error: median over subjects of each subject's median ({_unit(ds)})",
-         f"mean observer {np.nanmedian(before):.3g} → fitted {np.nanmedian(after):.3g}"],
-        ["parameters identified", f"{100 * identified.mean():.0f} % of subject × parameter"],
         ["axis of the peak shifts", label(ds.attrs.get("peak_shift_axis", ""))],
     ]
-    return "<h2>Headline</h2>" + _table(["quantity", "value"], rows)
+    return "<h2>Data and setting noise</h2>" + _table(["quantity", "value"], rows)
 
 
 def fit_parameter_table(ds: xr.Dataset) -> str:
@@ -144,4 +138,4 @@ def fit_models(ds: xr.Dataset) -> str:
     return "<h2>Models and parameters</h2>" + _attribute_list(attrs) + _prior_table(ds.attrs.get("prior"))
 
 
-__all__ = ["is_fit", "fit_headline", "fit_parameter_table", "fit_subject_table", "fit_categories", "fit_models"]
+__all__ = ["is_fit", "fit_data_table", "fit_parameter_table", "fit_subject_table", "fit_categories", "fit_models"]

@@ -7,6 +7,8 @@ import base64
 import html
 import numpy as np
 
+from metasim.units import format_share
+
 CAUTIONS = (
     "metasim computes colorimetry, not eye safety. Lasers and other high-radiance light sources fall "
     "under photobiological safety standards — IEC 60825-1 (safety of laser products) and IEC 62471 "
@@ -51,7 +53,7 @@ def _num(value, digits: int = 2) -> str:
 
 def _pct(value) -> str:
     value = float(value)
-    return "–" if not np.isfinite(value) else f"{100 * value:.1f} %"
+    return "–" if not np.isfinite(value) else format_share(value, 1)
 
 
 def _table(header: list[str], rows: list[list[str]], cls: str | None = None) -> str:

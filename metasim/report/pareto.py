@@ -40,7 +40,7 @@ def pareto_section(ds: xr.Dataset, figure: tuple | None = None, shown: int = 30)
     header += [plots.objective_axis(o["name"], o["sense"], o.get("long_name"))[0].split("\n")[0] for o in objectives]
     rows = []
     for index in front[:shown]:
-        row = [str(ds["design"].values[index])] + [f"{ds[c].values[index]:.4g}" if np.issubdtype(ds[c].dtype, np.number)
+        row = [str(plots.design_number(ds, index))] + [f"{ds[c].values[index]:.4g}" if np.issubdtype(ds[c].dtype, np.number)
                                                    else str(ds[c].values[index]) for c in varied]
         for j, o in enumerate(objectives):
             scale = plots.objective_axis(o["name"], o["sense"])[1]

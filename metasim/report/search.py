@@ -47,7 +47,7 @@ def search_section(ds: xr.Dataset, figure: tuple | None = None) -> str:
         abs(float(ds[c].values[index]) - lo), abs(float(ds[c].values[index]) - hi)) <= 1e-3 * max(hi - lo, 1e-9)]
     note = (f"<p>The best design sits at the edge of the searched range of {_e(', '.join(edge))}; a wider range "
             "may hold better designs.</p>") if edge else ""
-    out = (f"<h2>Search</h2>{text}<h3>Best design found: design {index}</h3>" + _table(["quantity", "value"], rows) + note)
+    out = (f"<h2>Search</h2>{text}<h3>Best design found: design {plots.design_number(ds, index)}</h3>" + _table(["quantity", "value"], rows) + note)
     if figure is not None:
         out += _image(*figure)
     return out

@@ -19,8 +19,8 @@ def _sweep_numbers(ds: xr.Dataset) -> dict:
     stats = ds["delta_e_2000_overall"].transpose("design", "statistic")
     nan = np.full(ds.sizes["design"], np.nan)
     share = nan
-    if "share_beyond_overall" in ds and 2.0 in ds["share_beyond_overall"]["threshold"].values:
-        share = ds["share_beyond_overall"].sel(threshold=2.0).transpose("design").values
+    if "share_of_pairs_above_threshold" in ds and 2.0 in ds["share_of_pairs_above_threshold"]["threshold"].values:
+        share = ds["share_of_pairs_above_threshold"].sel(threshold=2.0).transpose("design").values
     coverage = nan
     if "gamut_coverage" in ds and "bt2020" in ds["gamut_coverage"]["reference_gamut"].values:
         coverage = ds["gamut_coverage"].sel(reference_gamut="bt2020").transpose("design").values
@@ -39,7 +39,8 @@ def _cell(value) -> str:
 
 
 def _design_name(ds: xr.Dataset, index: int) -> str:
-    return f"design {ds['design'].values[index]}"
+    """Designs are numbered from 1, like ranks (:func:`metasim.plots.design_number`)."""
+    return f"design {plots.design_number(ds, index)}"
 
 
 def _parameters_of(ds: xr.Dataset, names, index: int) -> str:
@@ -110,7 +111,7 @@ def _sweep_interval_note(ds: xr.Dataset) -> list[str]:
 def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
     numbers = _sweep_numbers(ds)
     varied = plots.sweep_parameters(ds)[0]
-    header = ["rank", "design (its label in the file)"] + [plots.parameter_label(ds, c) for c in varied]
+    header = ["rank", "design"] + [plots.parameter_label(ds, c) for c in varied]
     header += ["95th pct ΔE00", "median ΔE00", "share > 2", "BT.2020 covered"]
     ranked = "best_probability" in ds
     if ranked:
@@ -139,7 +140,8 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
     what = f"The {min(shown, count)} best of {count} designs" if count > shown else f"All {count} designs"
     return (f"<h2>Best designs</h2><p>{what}, by the 95th percentile of the CIE 2000 difference over all observer × "
             "stimulus pairs; the share is of pairs beyond 2 CIE 2000 units; BT.2020 coverage is of its CIE 1931 xy "
-            "area." + (" Designs that break a constraint of the search are listed after every design that meets "
+            "area. Designs are numbered from 1 as ranks are; in the result file design N is index N − 1 of "
+            "the <code>design</code> dimension." + (" Designs that break a constraint of the search are listed after every design that meets "
                        "them all." if numbers["constrained"] else "") + "</p>" + _table(header, rows))
 
 
@@ -168,8 +170,8 @@ def _sweep_stimuli(ds: xr.Dataset, shown: int = 10) -> str:
     by = ds["delta_e_2000_by_stimulus"].isel(design=best).transpose("statistic", "stimulus")
     p95 = by.sel(statistic="p95").values
     share = None
-    if "share_beyond" in ds and 2.0 in ds["share_beyond"]["threshold"].values:
-        share = ds["share_beyond"].isel(design=best).sel(threshold=2.0).transpose("stimulus").values
+    if "share_of_observers_above_threshold" in ds and 2.0 in ds["share_of_observers_above_threshold"]["threshold"].values:
+        share = ds["share_of_observers_above_threshold"].isel(design=best).sel(threshold=2.0).transpose("stimulus").values
     order = np.argsort(np.where(np.isfinite(p95), -p95, np.inf), kind="stable")[:shown]
     rows = [[str(ds["stimulus"].values[i])] + [_num(by.sel(statistic=s).values[i]) for s in ("mean", "median", "p95", "max")]
             + [_pct(share[i]) if share is not None else "–"] for i in order]

@@ -11,6 +11,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.statistics.comparison import half_width, observers_needed
+from metasim.units import format_share
 
 DASH = "\u2013"
 
@@ -49,11 +50,11 @@ def with_interval(value, interval=None) -> str:
 
 def share_with_interval(value, interval=None) -> str:
     """``"87 % (84-90 %)"``; the share alone when there is no interval."""
-    text = f"{100 * float(value):.0f} %"
+    text = format_share(value)
     bounds = _bounds(interval)
     if bounds is None:
         return text
-    return f"{text} ({100 * bounds[0]:.0f}{DASH}{100 * bounds[1]:.0f} %)"
+    return f"{text} ({format_share(bounds[0], sign=False)}{DASH}{format_share(bounds[1])})"
 
 
 def _cell(table: xr.Dataset, name: str, **where):
@@ -106,7 +107,7 @@ def sweep_headline(ranking: xr.Dataset, statistics: xr.DataArray, interval: xr.D
     name = describe(index) if describe else f"design {best}"
     value = statistics.isel({dim: index})
     text = (f"Best: {name}, {statistic} {with_interval(value, None if interval is None else interval.isel({dim: index}))}"
-            f" CIE 2000 units, lowest in {100 * float(ranking['best_probability'][index]):.0f} % of resamples")
+            f" CIE 2000 units, lowest in {format_share(ranking['best_probability'][index])} of resamples")
     together = [i for i, flag in enumerate(ranking["indistinguishable_from_best"].values) if flag and i != index]
     level = 100 * float(ranking.attrs.get("ranking_level", 0.95))
     if together:

@@ -76,7 +76,7 @@ def interval_variables(delta_e: xr.DataArray, *, level: float = DEFAULT_LEVEL, r
 
     out = {
         "delta_e_2000_overall_interval": plain(table["statistics_interval"], "design", "bound", "statistic"),
-        "share_beyond_overall_interval": plain(table["share_beyond_interval"], "design", "bound", "threshold"),
+        "share_of_pairs_above_threshold_interval": plain(table["share_beyond_interval"], "design", "bound", "threshold"),
         REPLICATES: plain(table["statistics_replicates"].sel(statistic="p95", drop=True), "design", "resample"),
     }
     out[REPLICATES].attrs.update({"units": DELTA_E00, "long_name": "95th percentile of CIE 2000 differences over all "

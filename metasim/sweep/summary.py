@@ -8,7 +8,8 @@ variable (dims)                          holds
 =======================================  ==============================================================
 ``delta_e_2000_overall`` (design, statistic)   mean, median, p95, max of CIE 2000 over all observer ×
                                          stimulus pairs (observer weights when present)
-``share_beyond_overall`` (design, threshold)   share of pairs beyond 1, 2, 3 CIE 2000 units
+``share_of_pairs_above_threshold`` (design, threshold)   share of pairs above 1, 2, 3 CIE 2000 units
+                                         (before: ``share_beyond_overall``)
 ``delta_e_2000_by_age`` (design, statistic, age_band)   the same statistics per age band (needs ages)
 ``delta_e_white_overall`` (design, statistic)  CIE 2000 between the two whites, statistics over observers
                                         (as in a study; before: ``delta_e_white``)
@@ -23,8 +24,9 @@ variable (dims)                          holds
 ``white_efficacy`` (design)              luminous efficacy of radiation of the white, lm/W (CIE 1931 ȳ)
 ``delta_e_2000_by_stimulus`` (design, statistic, stimulus)   statistics over observers for each
                                          stimulus (optional, ``per_stimulus=True``: grows with the set)
-``share_beyond`` (design, threshold, stimulus)   share of observers beyond each threshold, per
-                                         stimulus (optional, with ``per_stimulus``)
+``share_of_observers_above_threshold`` (design, threshold, stimulus)   share of observers above each
+                                         threshold, per stimulus (optional, with ``per_stimulus``;
+                                         before: ``share_beyond``)
 ``*_interval``, ``delta_e_2000_p95_replicates``  intervals and paired replicates (optional,
                                          ``intervals``; :mod:`metasim.sweep.ranking`)
 =======================================  ==============================================================
@@ -155,8 +157,8 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
             "units": DELTA_E_ITP, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
     out["delta_e_white_overall"] = (design_dims, numbers["delta_e_white"], {
         "units": DELTA_E00, "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
-    out["share_beyond_overall"] = (("design", "threshold"), numbers["share_beyond_overall"],
-                                   pooled["share_beyond_overall"])
+    out["share_of_pairs_above_threshold"] = (("design", "threshold"), numbers["share_beyond_overall"],
+                                                pooled["share_beyond_overall"])
     if "delta_e_2000_by_age" in numbers:
         out["delta_e_2000_by_age"] = (("design", "statistic", "age_band"), numbers["delta_e_2000_by_age"],
                                       pooled["by_age"])
@@ -186,7 +188,8 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
     if per_stimulus:
         out["delta_e_2000_by_stimulus"] = (("design", "statistic", "stimulus"), numbers["delta_e_2000_by_stimulus"],
                                            pooled["by_stimulus"])
-        out["share_beyond"] = (("design", "threshold", "stimulus"), numbers["share_beyond"], pooled["share_beyond"])
+        out["share_of_observers_above_threshold"] = (("design", "threshold", "stimulus"), numbers["share_beyond"],
+                                                      pooled["share_beyond"])
     interval_attrs = {}
     if intervals is not None:
         stimuli = int(context.xyz_reference.shape[1])
