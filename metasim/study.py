@@ -241,7 +241,7 @@ def display_blocks(displays: Sequence[Display], roles: Sequence[str], observer: 
         primary, wavelength) in W sr-1 m-2 nm-1, ``primary_label``, ``primary_xy`` and ``white_xy``
         (CIE 1931 xy), ``gamut_area_xy``, ``gamut_area_uv``, ``gamut_polygon`` (display, vertex,
         chromaticity), ``gamut_coverage`` and ``lab_coverage_volume`` (display, reference_gamut),
-        ``locus_share`` and ``lab_volume`` (CIELAB units³); coordinate ``display_role``. Repeated
+        ``spectrum_locus_coverage`` and ``lab_volume`` (CIELAB units³); coordinate ``display_role``. Repeated
         display names are numbered (:func:`unique_names`); displays with fewer primaries are padded
         with NaN and ``""``.
 
