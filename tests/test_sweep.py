@@ -235,7 +235,8 @@ def test_cli_sweep_writes_the_store(tmp_path):
     best = int(np.argmin(result["delta_e_2000_overall"].sel(statistic="p95").values))
     first = next(line for line in done.stdout.splitlines() if line.startswith("#1: "))
     assert f"(design {best + 1}, index {best} in sweep.nc)" in first
-    assert f"design {best + 1}</td>" in page and "design N is index N − 1" in page
+    assert f"<tr><td>1</td><td>{best + 1}</td>" in page and "design N is index N − 1" in page
+    assert "chunk 1/3 (designs 1-4) written" in done.stderr and "designs 0-" not in done.stderr
 
 
 def test_cli_bad_sweep_spec_is_one_line(tmp_path):

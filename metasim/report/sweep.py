@@ -128,7 +128,7 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
             median = with_interval(median, interval.isel(design=index).sel(statistic="median"))
         else:
             p95, median = _num(p95), _num(median)
-        row = ([str(rank), _design_name(ds, index)] + [_cell(ds[c].values[index]) for c in varied]
+        row = ([str(rank), str(plots.design_number(ds, index))] + [_cell(ds[c].values[index]) for c in varied]
                + [p95, median, _pct(numbers["share2"][index]), _pct(numbers["bt2020"][index])])
         if ranked:
             low, high = ds["rank_interval"].isel(design=index).values

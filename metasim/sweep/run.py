@@ -473,7 +473,7 @@ def _fill_store(store, manifest, replace, ranges, count, report, designs, schedu
     done = verified_chunks(store, manifest)
     for index in sorted(done):
         a, b = ranges[index]
-        report("skipped", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) already in the store")
+        report("skipped", index, f"chunk {index + 1}/{len(ranges)} (designs {a + 1}-{b}) already in the store")
     pending = [i for i in range(len(ranges)) if i not in done]
 
     def designs_of(a: int, b: int):
@@ -494,7 +494,7 @@ def _fill_store(store, manifest, replace, ranges, count, report, designs, schedu
         path = write_chunk(store, manifest, index, summary)
         a, b = ranges[index]
         p95 = summary["delta_e_2000_overall"].sel(statistic="p95").values
-        report("computed", index, f"chunk {index + 1}/{len(ranges)} (designs {a}-{b - 1}) written to {Path(path).name}; "
+        report("computed", index, f"chunk {index + 1}/{len(ranges)} (designs {a + 1}-{b}) written to {Path(path).name}; "
                f"95th percentile {np.nanmin(p95):.2f}-{np.nanmax(p95):.2f} CIE 2000 units")
 
     context = None
@@ -527,7 +527,7 @@ def _run_block(block, designs_of, options, context):
     except SweepError:
         raise
     except MetasimError as exc:
-        raise SweepError(f"chunk {index} (designs {a}-{b - 1}): {exc}") from exc
+        raise SweepError(f"chunk {index + 1} (designs {a + 1}-{b}): {exc}") from exc
 
 
 def _execute(scheduler, blocks, designs_of, finish, options, workers, context) -> None:
@@ -616,7 +616,7 @@ def _distributed(scheduler, blocks, designs_of, finish, options, workers, contex
             try:
                 parts = future.result()
             except MetasimError as exc:
-                raise SweepError(f"chunk {block[0]} (designs {block[1]}-{block[2] - 1}): {exc}") from exc
+                raise SweepError(f"chunk {block[0] + 1} (designs {block[1] + 1}-{block[2]}): {exc}") from exc
             finish(block, parts)
             if queue:
                 block = queue.pop(0)
