@@ -78,7 +78,7 @@ def test_constraints_are_respected(tmp_path):
     # the report's headline and best-designs table rank only designs that meet the constraints first
     page = render_report(result)
     assert "constraints: share of the BT.2020 xy area covered ≥ 0.85" in page  # the reader's words, not keys
-    assert f"(of the designs that meet every constraint): design {result['design'].values[index]} " in page
+    assert f"(of the designs that meet every constraint): design {result['design'].values[index] + 1} " in page
     table = page.split("<h2>Best designs</h2>", 1)[1].split("</table>", 1)[0]
     meets = re.findall(r"<td>(yes|no)</td></tr>", table)
     assert len(meets) == min(10, result.sizes["design"]) and meets == sorted(meets, reverse=True)

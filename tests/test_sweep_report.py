@@ -189,7 +189,7 @@ def test_shares_near_the_ends_are_never_rounded_to_all_or_none(red_sweep):
     # common practice, no source: a share is "100 %" only when every case is in it
     assert [format_share(v) for v in (0.998, 0.9996, 0.995, 0.0004, 0.004, 0.5, 1.0, 0.0)] == [
         "99.8 %", "> 99.9 %", "99.5 %", "< 0.1 %", "0.4 %", "50 %", "100 %", "0 %"]
-    assert share_with_interval(0.998, [0.99, 1.0]) == "99.8 % (99.0–100 %)"
+    assert share_with_interval(0.998, [0.991, 1.0]) == "99.8 % (99.1–100 %)"
     result = red_sweep[1].copy()
     coverage = result["gamut_coverage"].copy()
     coverage.loc[{"reference_gamut": "bt2020"}] = 0.998
