@@ -170,6 +170,35 @@ def share_beyond(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> 
     """Weighted share of values strictly greater than each threshold, along ``axis``.
 
     Returns shape ``(len(thresholds), *rest)``; NaN values are left out.
+
+    Parameters
+    ----------
+    values : array_like
+        The values, e.g. CIE 2000 differences (ΔE00) of observer × stimulus; NaN left out.
+    thresholds : sequence of float
+        The thresholds, in the values' unit (default :data:`THRESHOLDS`: 1, 2 and 3 ΔE00, common
+        practice, no source).
+    weights : array_like, optional
+        One weight per entry along ``axis`` (e.g. observer weights); None: equal weights.
+    axis : int
+        The axis to reduce (e.g. the observer axis).
+
+    Returns
+    -------
+    ndarray
+        Shape ``(len(thresholds), *rest)``: shares 0..1 (unit 1); NaN where no value has weight.
+
+    Examples
+    --------
+    Two observers (rows) × three stimuli; the share of observers above 1 and 2 ΔE00 per stimulus
+    (a value equal to a threshold is not above it):
+
+    >>> from metasim.statistics import share_beyond
+    >>> differences = [[0.5, 1.5, 2.5], [1.0, 3.5, 0.2]]
+    >>> share_beyond(differences, (1.0, 2.0)).tolist()
+    [[0.0, 1.0, 0.5], [0.0, 0.5, 0.5]]
+    >>> share_beyond(differences, (1.0, 2.0), weights=[3, 1]).tolist()
+    [[0.0, 1.0, 0.75], [0.0, 0.25, 0.75]]
     """
     t = np.asarray(thresholds, dtype=float).ravel()
     values = np.moveaxis(np.asarray(values, dtype=float), axis, -1)
