@@ -157,6 +157,42 @@ def test_compiled_code_lives_in_kernel_packages():
     assert outside == []
 
 
+def test_study_kernels_pass_no_integer_constants_to_compiled_helpers():
+    # common practice, no source: numba types an integer constant argument as its own literal type
+    # and compiles the called helper once more for each constant value (seconds each on a first run);
+    # kernels pass np.int64(...) or variables instead (helpers inlined at numba's level excepted)
+    import ast
+    import pathlib
+
+    import metasim
+    from metasim import _warmup
+
+    root = pathlib.Path(metasim.__file__).parent
+    paths = {root.joinpath(*name.split(":")[0].split(".")[1:]).with_suffix(".py")
+             for group in _warmup.STUDY for name in group}
+    trees = {path: ast.parse(path.read_text()) for path in root.rglob("_kernels/*.py")}
+    compiled = {node.name for tree in trees.values() for node in ast.walk(tree)
+                if isinstance(node, ast.FunctionDef)
+                and any("njit" in ast.unparse(d) for d in node.decorator_list)
+                and not any(k.arg == "inline" and getattr(k.value, "value", None) == "always"
+                            for d in node.decorator_list if isinstance(d, ast.Call) for k in d.keywords)}
+
+    def integer(node):
+        return isinstance(node, ast.Constant) and type(node.value) is int
+
+    found = []
+    for path in sorted(paths):
+        for function in (n for n in ast.walk(trees[path]) if isinstance(n, ast.FunctionDef)):
+            constants = {t.id for a in ast.walk(function) if isinstance(a, ast.Assign) and integer(a.value)
+                         for t in a.targets if isinstance(t, ast.Name)}
+            for call in ast.walk(function):
+                if isinstance(call, ast.Call) and isinstance(call.func, ast.Name) and call.func.id in compiled:
+                    found += [f"{path.name}:{call.lineno} {ast.unparse(call)}" for arg in call.args
+                              if integer(arg) or (isinstance(arg, ast.Name) and arg.id in constants)]
+    assert found == []
+    assert len(paths) >= 6  # the study's kernel modules were read
+
+
 @pytest.mark.parametrize("n", [1, 7, 8, 129, 255, 256, 300, 4097, 32000])
 def test_unsorted_row_summaries_equal_numpy_bit_for_bit(n):
     from metasim.statistics._kernels.order import numpy_sum
@@ -229,6 +265,9 @@ def test_a_study_calls_each_kernel_with_its_declared_types():
     result = mismatch(reference, test, observers, stimuli)
     assert bool(result["out_of_gamut_test"].any())  # the clipping kernel ran
     population_statistics(result["delta_e_2000"], interval=True, resamples=200)  # the interval kernels
+    from metasim.colorimetry.cielab import xyz_to_lab_array
+
+    xyz_to_lab_array(np.ones((2, 3, 3)), np.ones((2, 1, 3)))  # one white per observer (calibration ranking)
     for name in (name for group in _warmup.STUDY for name in group):
         dispatcher, signature = _warmup._kernel(name)
         assert list(dispatcher.overloads) == [_warmup._argument_types(signature)], name

@@ -30,7 +30,7 @@ def _pairs_of_columns(buf, c, wx, wy, wz, columns, r, lab_ref, lab_test, delta_e
     """Row r of the outputs from buf (6, width): the reference and test XYZ as columns."""
     width = buf.shape[1]
     lab = np.empty((6, width))  # lab_ref, lab_test
-    corrected = 0
+    corrected = np.int64(0)  # not the constant 0: numba would compile the callee a second time for it
     for s in range(columns):
         corrected += (c[s, 0] != 0.0) | (c[s, 1] != 0.0) | (c[s, 2] != 0.0)
     for side in range(2):
@@ -108,8 +108,9 @@ def _pair_rows_driven(ref_t, ref_matrices, ref_black, test_t, test_matrices, tes
         g = r // observers
         o = r % observers
         buf = np.empty((6, width))
-        xyz_of_drives(ref_t, 0, ref_matrices, ref_black, o, buf, 0)
-        xyz_of_drives(test_t, g, test_matrices, test_black, o, buf, 3)
+        # np.int64(...), not plain constants: numba compiles a callee once per constant value passed
+        xyz_of_drives(ref_t, np.int64(0), ref_matrices, ref_black, o, buf, np.int64(0))
+        xyz_of_drives(test_t, g, test_matrices, test_black, o, buf, np.int64(3))
         for s in range(columns):
             for k in range(3):
                 xyz_test[g, o, s, k] = buf[3 + k, s]

@@ -71,7 +71,7 @@ def _apply(drive_t, matrices, offset, out, start, stop):
         g = task // observers
         o = task % observers
         acc = np.empty((3, width))
-        xyz_of_drives(drive_t, g, matrices, offset, o, acc, 0)
+        xyz_of_drives(drive_t, g, matrices, offset, o, acc, np.int64(0))  # the int64 version the fused pass uses
         for s in range(stimuli):
             for k in range(3):
                 out[g, o, s, k] = acc[k, s]
