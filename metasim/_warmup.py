@@ -35,23 +35,27 @@ import threading
 import types
 from pathlib import Path
 
-#: The kernels of a study (display calibration, gamut, mismatch, summaries, intervals), split over
-#: two helpers of about equal compile time (about 17 s of CPU each), each in the order the demo study
-#: first calls them (kernels sharing compiled helpers, like the CIELAB and CIE 2000 column loops, in
-#: the same helper: a callee compiled once is loaded from the cache by every later caller).
+#: The kernels of a study (display calibration, gamut, mismatch, summaries, intervals) in two
+#: helpers of about equal compile time (about 10 s of CPU each), each in the order a study first
+#: calls them. The fused pass alone in the second: numba stores each compiled callee in the cache as
+#: soon as it is compiled, so its CIELAB and CIE 2000 column loops are there by the time the first
+#: helper reaches the kernels that share them (CIE 2000 after the summaries, to leave it the time).
+#: The CIELAB clipping chain is not here: a study clips a few rows, interpreted
+#: (:mod:`metasim.display._kernels.clip`).
 STUDY = (
     ("metasim.colorimetry._kernels.sums:_products", "metasim.display._kernels.qp:_equality_qp_rows",
-     "metasim.display._kernels.clip:_clip_rows", "metasim.statistics._kernels.rowstats:_sorted_rows",
+     "metasim.colorimetry._kernels.cielab:_lab_chunks", "metasim.statistics._kernels.rowstats:_sorted_rows",
      "metasim.statistics._kernels.pooled:resample_counts", "metasim.statistics._kernels.pooled:first_pass",
-     "metasim.statistics._kernels.pooled:gather_windows", "metasim.statistics._kernels.pooled:walk"),
-    ("metasim.colorimetry._kernels.cielab:_lab_chunks", "metasim.colorimetry._kernels.ciede2000:_blocks",
-     "metasim.colorimetry._kernels.fused:_pair_rows_driven", "metasim.colorimetry._kernels.cielab:_lab_rows"),
+     "metasim.statistics._kernels.pooled:gather_windows", "metasim.statistics._kernels.pooled:walk",
+     "metasim.colorimetry._kernels.ciede2000:_blocks", "metasim.colorimetry._kernels.cielab:_lab_rows"),
+    ("metasim.colorimetry._kernels.fused:_pair_rows_driven",),
 )
 
 #: Every kernel with declared types (the test suite's session warm-up): the study's, then the others,
 #: and the sweep's compiled pass in a third helper (its row statistics first: they share callees).
 EVERY = (
-    STUDY[0] + ("metasim.colorimetry._kernels.sums:_apply", "metasim.display._kernels.qp:_box_qp_rows"),
+    STUDY[0] + ("metasim.colorimetry._kernels.sums:_apply", "metasim.display._kernels.clip:_clip_rows",
+                "metasim.display._kernels.qp:_box_qp_rows"),
     STUDY[1] + ("metasim.colorimetry._kernels.fused:_pair_rows",),
     ("metasim.statistics._kernels.order:summarise_rows", "metasim.sweep._kernels.designs:reference_columns",
      "metasim.sweep._kernels.designs:design_statistics"),

@@ -294,7 +294,8 @@ def display_blocks(displays: Sequence[Display], roles: Sequence[str], observer: 
 # -- decisions ---------------------------------------------------------------------------------------
 
 def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: xr.Dataset, *, strategy: str,
-                   calibration_observer, rank: bool, categories: int, seed: int) -> xr.Dataset | None:
+                   calibration_observer, rank: bool, categories: int, seed: int,
+                   groups: xr.Dataset | None = None) -> xr.Dataset | None:
     """Calibration-observer ranking and per-category white-point offsets of one design.
 
     Parameters
@@ -321,6 +322,9 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         a population of categories is used as it is; 0 skips the trims.
     seed : int
         Seed of the category clustering.
+    groups : Dataset, optional
+        The observer categories already made from ``observers`` with ``categories`` and ``seed``
+        (:func:`metasim.observer_categories`; a study makes them once for all its designs).
 
     Returns
     -------
@@ -370,8 +374,7 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
             "units": "1", "long_name": "calibration observer with the lowest mean CIE 2000 difference over the "
                                        "observers, white and stimuli"})
     if categories:
-        group = observers if "weight" in observers.coords else observer_categories(
-            observers, min(int(categories), observers.sizes["observer"]), seed=seed)
+        group = groups if groups is not None else _study_categories(observers, categories, seed)
         offsets = white_point_offsets(reference, design, group, calibration_observer=calibration_observer,
                                       stimuli=stimuli if stimuli.attrs.get("kind") == "reflectance" else None)
         keep = [c for c in ("weight", "age_years") if c in offsets.coords]
@@ -385,6 +388,14 @@ def decision_block(reference, design: Display, observers: xr.Dataset, stimuli: x
         return None
     out.attrs["best"] = best
     return out
+
+
+def _study_categories(observers: xr.Dataset, categories: int, seed: int) -> xr.Dataset:
+    """The observer categories of the white trims: ``observers`` as they are when they carry category
+    weights, else :func:`metasim.observer_categories` of them (at most one category per observer)."""
+    if "weight" in observers.coords:
+        return observers
+    return observer_categories(observers, min(int(categories), observers.sizes["observer"]), seed=seed)
 
 
 def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: float = DEFAULT_LEVEL,
@@ -696,6 +707,7 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
     blocks = display_blocks(displays, roles, cie1931, progress)
     design_names = list(blocks.display.values[len(displays) - len(designs):])
     results, gains, choices = [], [], []
+    groups = None  # the white trims' categories: the same for every design, made once (a seeded clustering)
     for i, design in enumerate(designs):
         result = mismatch(reference, design, observers, stimuli, calibration_observer=calibration_observer,
                           strategy=strategy, age_bands=age_bands)
@@ -738,9 +750,12 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
                      .assign(extra_base=xr.DataArray(", ".join(str(p) for p in base.primary.values))))
         progress(f"extra-primary gain of {design.name!r}: {len(extra_peaks_nm)} candidate lines")
         if rank_calibration or white_categories:
+            if (groups is None and white_categories and isinstance(seed, (int, np.integer))
+                    and isinstance(observers, xr.Dataset)):
+                groups = _study_categories(observers, white_categories, seed)
             choice = decision_block(reference, design, observers, stimuli, strategy=strategy,
                                     calibration_observer=calibration_observer, rank=rank_calibration,
-                                    categories=white_categories, seed=seed)
+                                    categories=white_categories, seed=seed, groups=groups)
             if choice is not None:
                 choices.append(choice)
                 progress(f"calibration choices for {design.name!r}: best {choice.attrs.get('best', 'n/a')}")

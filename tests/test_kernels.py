@@ -364,3 +364,60 @@ def test_kernel_results_do_not_depend_on_the_number_of_threads(monkeypatch):
     for other in results[1:]:
         for first, second in zip(results[0], other):
             np.testing.assert_array_equal(first, second)
+
+
+def _clipping_rows(rows, seed):
+    """Inputs of the CIELAB clipping kernel as metasim.display.drive builds them: four primaries,
+    targets beyond the gamut (a strongly saturated colour per row)."""
+    from metasim.display.drive import _CLIP_WEIGHT
+
+    rng = np.random.default_rng(seed)
+    n = 4
+    A = rng.uniform(0.02, 0.5, (rows, 3, n)) * [[1.0], [1.2], [0.9]]
+    black = rng.uniform(0.0, 0.002, (rows, 3))
+    white = A.sum(-1) + black
+    target = white * rng.uniform(0.0, 1.6, (rows, 3)) * rng.choice([0.05, 1.0], (rows, 3))
+    H_s = np.broadcast_to(np.eye(n), (rows, n, n)).copy()
+    f_s = -0.5 * np.ones((rows, n))
+    q_scale = np.maximum(np.maximum(np.trace(H_s, axis1=-2, axis2=-1) / n, np.abs(f_s).max(-1)), 1e-300)
+    return A, black, target, white, H_s, f_s, q_scale, _CLIP_WEIGHT, 12, 10 * n + 20
+
+
+def test_interpreted_cielab_clipping_equals_the_compiled_kernel_bit_for_bit():
+    # common practice, no source: the interpreted twin runs the compiled kernel's own bytecode with
+    # libm's cube root (what numba compiles np.cbrt to), so it gives the same bits
+    from metasim.display._kernels import clip
+
+    inputs = _clipping_rows(60, 12)
+    compiled, interpreted = np.empty((60, 4)), np.empty((60, 4))
+    clip._clip_rows(*inputs, compiled, 0, 60)
+    clip.interpreted_rows()(*inputs, interpreted, 0, 60)
+    assert np.array_equal(compiled, interpreted)
+    assert ((interpreted >= 0.0) & (interpreted <= 1.0)).all()
+    assert ((interpreted == 0.0) | (interpreted == 1.0)).any(1).mean() > 0.5  # most targets lie beyond the box
+
+
+def test_small_clipping_calls_run_interpreted_while_the_kernel_is_not_compiled(monkeypatch):
+    # common practice, no source: a few rows do not pay for compiling the chain (about 10 s);
+    # larger calls, or any call once the kernel is at hand, run compiled
+    from metasim.display._kernels import clip
+
+    class NotCompiled:
+        overloads: dict = {}
+        __name__ = "not_compiled"
+
+        def __call__(self, *args):
+            raise AssertionError("the compiled kernel was called")
+
+    clip.interpreted_rows()  # made before the kernel is replaced below
+    small = _clipping_rows(clip.INTERPRETED_ROWS, 13)
+    expected = np.empty((clip.INTERPRETED_ROWS, 4))
+    clip._clip_rows(*small, expected, 0, clip.INTERPRETED_ROWS)
+    monkeypatch.setattr(clip, "_clip_rows", NotCompiled())
+    monkeypatch.setattr(clip, "_compiled_in_cache", lambda: False)
+    out = np.empty_like(expected)
+    clip.clip_rows(*small, out)
+    assert np.array_equal(out, expected)
+    large = _clipping_rows(clip.INTERPRETED_ROWS + 1, 14)
+    with pytest.raises(AssertionError, match="compiled kernel was called"):
+        clip.clip_rows(*large, np.empty((clip.INTERPRETED_ROWS + 1, 4)))

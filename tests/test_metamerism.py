@@ -318,3 +318,23 @@ def test_calibration_refuses_absurd_luminance_and_nan_whites(luminance, white, e
 
     with pytest.raises(DisplayError, match=expected):  # not "white cannot be reached"
         metasim.calibrate_white(laser, "cie1931_2", white=white, luminance=luminance)
+
+
+def test_a_study_makes_the_white_trim_categories_once_for_all_designs(reference, laser, monkeypatch):
+    # common practice, no source: the categories are a seeded clustering of the same observers, so
+    # every design's white trims use the same ones; made once, they equal what each design makes alone
+    import metasim.study as study
+
+    made = []
+    cluster = study.observer_categories
+    monkeypatch.setattr(study, "observer_categories", lambda *args, **kwargs: made.append(1) or cluster(*args, **kwargs))
+    audience = metasim.observer_population(12, seed=4, age_years=(20, 70))
+    design = make_display(emitters.gaussian([630, 530, 460], [20, 25, 20], name=["R", "G", "B"]), name="narrow")
+    result = metasim.run_study(reference, [laser, design], audience, neutral_ramp(3), extra_peaks_nm=[500],
+                               rank_calibration=False, white_categories=3, seed=5, intervals=False)
+    assert len(made) == 1
+    for i, one in enumerate((laser, design)):
+        alone = study.decision_block(reference, one, audience, neutral_ramp(3), strategy="min_norm",
+                                     calibration_observer="cie1931_2", rank=False, categories=3, seed=5)
+        assert len(made) == 2 + i  # made again without the study's categories
+        np.testing.assert_array_equal(result["white_offset_xy"].isel(design=i).values, alone["white_offset_xy"].values)

@@ -5,9 +5,20 @@ CIELAB here uses libm's cube root (CIE 15:2004 §8.2.1) and its Jacobian; each s
 (:func:`metasim.display._kernels.qp.box_qp_row`). Compiled for size
 (:func:`~metasim.colorimetry._kernels.simd.small_code`): loops over a few primaries gain nothing
 from vector code.
+
+Compiling the chain takes about 10 s of CPU, while a study clips a few dozen rows (the demo 89 in
+20 calls); the same functions run by the Python interpreter take about 2 ms a row. So a call of at
+most :data:`INTERPRETED_ROWS` rows, in a process where the compiled kernel is neither loaded nor
+in numba's cache, runs the interpreted twin (:func:`interpreted_rows`: the same bytecode, with
+``np.cbrt`` as numba compiles it, libm's ``cbrt``): the same operations in the same order, so the
+same bits (``tests/test_kernels.py`` checks this), and nothing is compiled.
 """
 
 from __future__ import annotations
+
+import functools
+import math
+import types
 
 import numba
 import numpy as np
@@ -17,7 +28,10 @@ from metasim.colorimetry._kernels.simd import small_code
 from metasim.colorimetry._kernels.types import writable
 from metasim.colorimetry.constants import CIELAB_EPSILON as _EPSILON
 from metasim.colorimetry.constants import CIELAB_KAPPA as _KAPPA
-from metasim.display._kernels.qp import box_qp_row
+from metasim.display._kernels.qp import _solve_free, box_qp_row
+
+#: calls of at most this many rows run interpreted while the compiled kernel is not at hand
+INTERPRETED_ROWS = 64
 
 
 @numba.njit(cache=True, inline="always")
@@ -41,7 +55,11 @@ def _jacobian(xyz, white, jac):
     g = np.empty(3)
     for k in range(3):
         t = xyz[k] / white[k]
-        slope = np.cbrt(max(t, _EPSILON)) ** -2 / 3.0 if t > _EPSILON else _KAPPA / 116.0
+        if t > _EPSILON:
+            root = np.cbrt(max(t, _EPSILON))
+            slope = 1.0 / (root * root) / 3.0  # what numba compiles root ** -2 to (Python's pow rounds differently)
+        else:
+            slope = _KAPPA / 116.0
         g[k] = slope / white[k]
     jac[:] = 0.0
     jac[0, 1] = 116.0 * g[1]
@@ -153,11 +171,60 @@ def _clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterat
             out[r, k] = d[k]
 
 
+class _InterpretedNumpy:
+    """numpy as the interpreted twin sees it: ``cbrt`` is libm's (:func:`math.cbrt`), the function
+    numba compiles ``np.cbrt`` to (numpy's own ``np.cbrt`` can differ in the last bit)."""
+
+    cbrt = staticmethod(math.cbrt)
+
+    def __getattr__(self, name):
+        return getattr(np, name)
+
+
+def _no_code_options() -> None:
+    """The interpreted stand-in of :func:`small_code` (an instruction to the compiler only)."""
+
+
+def _twin(kernel, callees: dict):
+    """The Python function of a compiled ``kernel`` (same bytecode), calling ``callees`` in place of
+    the compiled helpers it calls."""
+    function = kernel.py_func
+    namespace = {**function.__globals__, **callees, "np": _InterpretedNumpy(), "small_code": _no_code_options}
+    return types.FunctionType(function.__code__, namespace, function.__name__, function.__defaults__,
+                              function.__closure__)
+
+
+@functools.lru_cache(maxsize=1)
+def interpreted_rows():
+    """:func:`_clip_rows` run by the Python interpreter (same arguments), with its helpers."""
+    helpers = {"_f": _twin(_f, {})}
+    for name, kernel in (("_lab3", _lab3), ("_jacobian", _jacobian), ("_colour", _colour)):
+        helpers[name] = _twin(kernel, helpers)
+    helpers["_cost"] = _twin(_cost, helpers)
+    box = _twin(box_qp_row, {"_solve_free": _twin(_solve_free, {})})
+    helpers["_step"] = _twin(_step, {**helpers, "box_qp_row": box})
+    return _twin(_clip_rows, helpers)
+
+
+@functools.lru_cache(maxsize=1)
+def _compiled_in_cache() -> bool:
+    from metasim import _warmup
+
+    return _warmup.is_cached("metasim.display._kernels.clip:_clip_rows")
+
+
 def clip_rows(A, black, target, white, H_s, f_s, q_scale, weight_factor, iterations, max_iter, out) -> None:
     """Clipped drives of every row into out (R, N), rows on the kernel threads: A (R, 3, N) primary
-    XYZ, black / target / white (R, 3), strategy objective H_s (R, N, N), f_s (R, N), q_scale (R,)."""
+    XYZ, black / target / white (R, 3), strategy objective H_s (R, N, N), f_s (R, N), q_scale (R,).
+    At most :data:`INTERPRETED_ROWS` rows while the compiled kernel is not at hand: interpreted,
+    the same bits (module docstring)."""
     arrays = [writable(a) for a in (A, black, target, white, H_s, f_s, q_scale)]
-    run_in_parts(_clip_rows, out.shape[0], *arrays, float(weight_factor), int(iterations), int(max_iter), out)
+    settings = (float(weight_factor), int(iterations), int(max_iter), out)
+    rows = out.shape[0]
+    if rows <= INTERPRETED_ROWS and not _clip_rows.overloads and not _compiled_in_cache():
+        interpreted_rows()(*arrays, *settings, 0, rows)
+        return
+    run_in_parts(_clip_rows, rows, *arrays, *settings)
 
 
 #: Argument types of the kernels as the entry points above call them (compiled ahead of need by
