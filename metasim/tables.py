@@ -45,7 +45,7 @@ import numpy as np
 import xarray as xr
 
 from metasim.errors import FileFormatError, OutputError, ReportError
-from metasim.io import atomic_output, check_outputs, write_text
+from metasim.io import atomic_output, check_outputs, read_text_file, write_text
 
 #: Dims whose variables are not summaries (spectra, functions of wavelength, polygon vertices).
 SKIPPED_DIMS = ("wavelength", "vertex")
@@ -582,7 +582,7 @@ def read_csv_table(path: str | os.PathLike) -> tuple[list[str], list[list[str]]]
     Raises
     ------
     FileFormatError
-        The file is empty.
+        The file is missing, not UTF-8 text (:func:`metasim.io.read_text_file`) or empty.
 
     Examples
     --------
@@ -594,8 +594,7 @@ def read_csv_table(path: str | os.PathLike) -> tuple[list[str], list[list[str]]]
     ...     read_csv_table(paths[0])
     (['display', 'p95 [1]'], [['lamp', '0.8'], ['laser', '1.4']])
     """
-    with open(path, newline="", encoding="utf-8") as handle:
-        records = list(csv.reader(handle))
+    records = list(csv.reader(io.StringIO(read_text_file(path, "CSV table"), newline="")))
     if not records:
         raise FileFormatError(f"{path}: empty; expected a header row")
     return records[0], records[1:]

@@ -182,3 +182,21 @@ def test_cli_tables_of_a_sweep_store(tmp_path, sweep_file):
     assert bad.returncode == 1 and "no such file" in bad.stderr
     wrong = _run("tables", sweep_file, "--out", tmp_path / "other", "--xlsx", tmp_path / "book.csv")
     assert wrong.returncode == 1 and ".xlsx" in wrong.stderr and not (tmp_path / "other").exists()
+
+
+def test_read_csv_table_names_a_missing_file(tmp_path):
+    # common practice, no source: a missing input is an error naming the file, not an OSError
+    from metasim.errors import FileFormatError
+    from metasim.tables import read_csv_table
+
+    with pytest.raises(FileFormatError, match="absent.csv"):
+        read_csv_table(tmp_path / "absent.csv")
+
+
+def test_report_outputs_refuses_an_unknown_kind(tmp_path):
+    # common practice, no source: the error names the value and the kinds allowed
+    from metasim.errors import ReportError
+    from metasim.report import report_outputs
+
+    with pytest.raises(ReportError, match=r"'pie'.*allowed: extra, fit, population, study, sweep"):
+        report_outputs("pie", tmp_path / "page.html", tmp_path / "figures")

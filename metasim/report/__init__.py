@@ -725,8 +725,9 @@ def report_outputs(kind: str, path, figures_dir=None) -> list[Path]:
 
     Raises
     ------
-    KeyError
-        ``kind`` is not a key of :data:`FIGURE_NAMES` (and ``figures_dir`` is given).
+    ReportError
+        ``kind`` is not a key of :data:`FIGURE_NAMES` (and ``figures_dir`` is given); the message
+        names the kinds allowed.
 
     Examples
     --------
@@ -735,6 +736,8 @@ def report_outputs(kind: str, path, figures_dir=None) -> list[Path]:
     """
     outputs = [Path(path)]
     if figures_dir is not None:
+        if kind not in FIGURE_NAMES:
+            raise ReportError(f"report kind {kind!r} is not known; allowed: {', '.join(sorted(FIGURE_NAMES))}")
         outputs += [Path(figures_dir) / f"{name}.png" for name in FIGURE_NAMES[kind]]
     return outputs
 
