@@ -425,8 +425,10 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
     ----------
     spectra
         Primary spectra (``primary`` × ``wavelength``, optional ``design``) or a display.
-    observer : Dataset
-        ``cmf`` with a leading ``observer`` dim (a population) or a single observer.
+    observer : xarray.Dataset or colour.XYZ_ColourMatchingFunctions
+        ``cmf`` (xyz, wavelength) with a leading ``observer`` dim (a population) or a single observer.
+    space : {"xy", "uv"}
+        CIE 1931 x, y or CIE 1976 u', v'.
     references : sequence of names
         Reference gamuts whose coverage to report. They are defined by CIE 1931 chromaticities, so
         their coverage is meaningful for the CIE 1931 observer only; it is reported for every
@@ -437,6 +439,34 @@ def observer_gamut(spectra, observer, space: str = "xy", references=tuple(REFERE
     Dataset
         The :func:`chromaticity_gamut` variables plus ``locus_area``, ``spectrum_locus_coverage`` and
         ``coverage`` (``reference`` dim), per observer.
+
+    Raises
+    ------
+    GamutError
+        Primaries or an observer the gamut functions refuse (see :func:`chromaticity_gamut`), an
+        unknown ``space`` or reference name.
+
+    References
+    ----------
+    CIE 15:2004 §7.3 (chromaticity diagrams, the spectrum locus); CIE 170-1:2006 (individual
+    observers); reference primaries ITU-R BT.709-6, SMPTE EG 432-1, SMPTE RP 431-2, ITU-R BT.2020-2.
+
+    Examples
+    --------
+    Three laser primaries in the diagrams of three individual observers:
+
+    >>> import metasim
+    >>> from metasim.emitters import laser_line
+    >>> from metasim.gamut import observer_gamut
+    >>> from metasim.spectra import wavelength_grid
+    >>> grid = wavelength_grid(390, 830, 5)
+    >>> lasers = laser_line([638, 532, 465], 1.0, grid, name=["R", "G", "B"])
+    >>> gamut = observer_gamut(lasers, metasim.observer_population(3, seed=1, wavelengths=grid),
+    ...                        references=["bt709", "bt2020"])
+    >>> gamut["area"].round(4).values.tolist(), gamut["locus_area"].round(4).values.tolist()
+    ([0.2182, 0.2128, 0.2042], [0.3932, 0.3169, 0.3095])
+    >>> gamut["coverage"].sel(reference="bt709").round(3).values.tolist()
+    [0.971, 1.0, 1.0]
     """
     spectra, observer = gamut_inputs(spectra, observer)
     observer = as_observer(observer)

@@ -175,6 +175,53 @@ def summarise(delta_e: xr.DataArray, *, age_bands=DECADES, thresholds=THRESHOLDS
     ``share_of_observers_above_threshold`` (threshold, stimulus, …: share of observers above each threshold) and
     ``share_of_pairs_above_threshold`` (threshold, …: share of observer × stimulus pairs above it).
     ``age_bands`` is resolved by :func:`age_band_edges` (default: the decades covering the ages).
+
+    Parameters
+    ----------
+    delta_e : xarray.DataArray (observer, stimulus, ...)
+        Differences, e.g. CIE 2000 (ΔE00; the ``units`` attribute is kept), with labelled
+        ``observer`` and ``stimulus`` coordinates, optionally ``age_years`` (observer) and ``weight``
+        (observer: observer weights).
+    age_bands : "decades", sequence of float or None
+        As for :func:`age_band_edges`.
+    thresholds : sequence of float
+        Thresholds of the shares above, in the values' unit (default 1, 2, 3: common practice, no
+        source).
+    name : str
+        Prefix of the variable names.
+
+    Returns
+    -------
+    xarray.Dataset
+        The variables above, in the values' unit (shares in unit 1), with the coordinates
+        ``statistic`` (mean, median, p95, max), ``age_band`` and ``threshold``; each variable's
+        attributes say what it pools and with which observer weights.
+
+    Raises
+    ------
+    MismatchError
+        No ``observer`` or ``stimulus`` dim, or ``age_bands`` not allowed.
+    StatisticsError
+        Observer weights not allowed.
+
+    References
+    ----------
+    Hyndman, R. J. & Fan, Y. (1996). Sample quantiles in statistical packages. *The American
+    Statistician* 50(4), 361-365, doi:10.1080/00031305.1996.10473566 (the quantile definitions of
+    :mod:`metasim.statistics.summaries`).
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> from metasim.metamerism import summarise
+    >>> differences = xr.DataArray([[0.5, 1.5, 2.5], [1.0, 3.5, 0.2], [0.8, 2.2, 1.1]], dims=("observer", "stimulus"),
+    ...                            coords={"observer": [0, 1, 2], "stimulus": ["red", "green", "blue"],
+    ...                                    "age_years": ("observer", [25.0, 47.0, 63.0])}, attrs={"units": "ΔE00"})
+    >>> summary = summarise(differences, thresholds=(1.0, 2.0))
+    >>> summary["delta_e_by_stimulus"].sel(statistic="median").values.tolist()
+    [0.8, 2.2, 1.1]
+    >>> summary["age_band"].values.tolist(), summary["observers_per_age_band"].values.tolist()
+    (['20-29', '30-39', '40-49', '50-59', '60-70'], [1, 0, 1, 0, 1])
     """
     for dim in ("observer", "stimulus"):
         if dim not in delta_e.dims:
