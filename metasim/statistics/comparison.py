@@ -207,23 +207,31 @@ def rank_designs(replicates: xr.DataArray, point: xr.DataArray | None = None, *,
     together = lower_difference <= 0
     together[best] = True
     labels = [str(v) for v in replicates[dim].values] if dim in replicates.coords else [str(i) for i in range(full.size)]
-    attrs = {"units": "1"}
-    out = xr.Dataset(
-        {
-            "best_probability": (dim, probability, {**attrs, "long_name": "share of resamples in which the design is best"}),
-            "rank": (dim, point_rank, {**attrs, "long_name": "rank of the design (1 = lowest statistic)"}),
-            "rank_interval": (("bound", dim), rank_bounds.astype(np.int64),
-                              {**attrs, "long_name": f"{100 * level:g} % interval of the rank over the resamples"}),
-            "indistinguishable_from_best": (dim, together, {
-                **attrs, "long_name": f"the paired difference to the best design is not above zero at {100 * level:g} %"}),
-        },
-        coords={"bound": list(BOUNDS), **{k: v.variable for k, v in replicates.coords.items() if v.dims == (dim,)}},
-    )
+    out = xr.Dataset(ranking_arrays(probability, point_rank, rank_bounds, together, dim=dim, level=level),
+                     coords={"bound": list(BOUNDS), **{k: v.variable for k, v in replicates.coords.items()
+                                                       if v.dims == (dim,)}})
     out.attrs = {"best_design": labels[best], "best_set": ", ".join(labels[i] for i in np.flatnonzero(together)),
                  "ranking_level": float(level), "resamples": int(reps.shape[0]),
                  "ranking_method": "designs resampled with the same observers; ranks per resample",
                  "metasim_version": __version__}
     return out
+
+
+def ranking_arrays(probability, point_rank, rank_bounds, together, *, dim: str = "design",
+                   level: float = DEFAULT_LEVEL) -> dict:
+    """The variables of :func:`rank_designs` (DataArrays by name, with their units and long names)
+    from its numbers: best probabilities, point ranks, rank bounds (2 × designs) and the best set's mask."""
+    attrs = {"units": "1"}
+    return {
+        "best_probability": xr.DataArray(np.asarray(probability), dims=dim, attrs={
+            **attrs, "long_name": "share of resamples in which the design is best"}),
+        "rank": xr.DataArray(np.asarray(point_rank), dims=dim, attrs={
+            **attrs, "long_name": "rank of the design (1 = lowest statistic)"}),
+        "rank_interval": xr.DataArray(np.asarray(rank_bounds).astype(np.int64), dims=("bound", dim), attrs={
+            **attrs, "long_name": f"{100 * level:g} % interval of the rank over the resamples"}),
+        "indistinguishable_from_best": xr.DataArray(np.asarray(together), dims=dim, attrs={
+            **attrs, "long_name": f"the paired difference to the best design is not above zero at {100 * level:g} %"}),
+    }
 
 
 def edge_warnings(parameters: dict, best: int, units: dict | None = None) -> list[str]:

@@ -33,6 +33,8 @@ joined by " | "; empty for an interior optimum), ``ranking_level``, ``ranking_st
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import xarray as xr
 
@@ -41,10 +43,10 @@ from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES, population_stat
 from metasim.statistics.comparison import (
     DEFAULT_HALF_WIDTH,
     edge_warnings,
-    half_width,
     observers_needed,
-    rank_designs,
+    ranking_arrays,
 )
+from metasim.statistics.resampling import check_interval_settings
 
 REPLICATES = "delta_e_2000_p95_replicates"
 
@@ -103,10 +105,114 @@ def _units(sweep: xr.Dataset, name: str) -> str:
     return units
 
 
+#: bytes of replicates (and of their ranks) held at once while a sweep's designs are ranked
+RANKING_BYTES = 32 << 20
+
+
+def _blocks(count: int, size: int):
+    return [(a, min(a + size, count)) for a in range(0, count, size)]
+
+
+def _column_mean(values: np.ndarray) -> np.ndarray:
+    """``values.mean(axis=0)`` of a (resample, design) block, summed resample after resample for every
+    block width (numpy sums a single column pairwise, several columns row after row)."""
+    if values.shape[1] == 1:
+        return np.concatenate([values, values], axis=1).mean(axis=0)[:1]
+    return values.mean(axis=0)
+
+
+def rank_in_blocks(read, count: int, resamples: int, point: np.ndarray, *, level: float = DEFAULT_LEVEL,
+                   block_bytes: int = RANKING_BYTES, scratch=None) -> tuple[dict, int, np.ndarray]:
+    """:func:`metasim.statistics.rank_designs` of many designs, reading their replicates in blocks.
+
+    The same numbers as ``rank_designs`` of the whole (resample × design) array, holding about
+    ``block_bytes`` of it at once: the lowest value of each resample and how many designs reach it
+    are kept while the designs go by in blocks; the ranks within each resample are computed a few
+    resamples at a time from a copy of the replicates laid out resample by resample in a scratch
+    file (folder ``scratch``), and their intervals read back design block by design block.
+
+    Parameters
+    ----------
+    read : callable
+        ``read(start, stop)``: the replicates of designs ``start .. stop`` as a (resample, design) array.
+    count, resamples : int
+        Designs and resamples.
+    point : ndarray
+        The full-sample statistic per design.
+
+    Returns
+    -------
+    (dict, int, ndarray)
+        The variables of ``rank_designs`` (:func:`metasim.statistics.comparison.ranking_arrays`),
+        the index of the best design and the mask of the designs that cannot be told from it.
+    """
+    import tempfile
+
+    alpha = 1 - float(level)
+    row = max(1, int(resamples)) * 8
+    size = max(2, int(block_bytes) // (6 * row))  # designs per block: the block and its temporaries
+
+    def block(a: int, b: int) -> np.ndarray:
+        values = np.asarray(read(a, b), dtype=float)
+        return np.where(np.isnan(values), np.inf, values) if np.isnan(values).any() else values
+
+    full = np.asarray(point, dtype=float)
+    order = np.argsort(np.where(np.isnan(full), np.inf, full), kind="stable")
+    point_rank = np.empty(count, dtype=np.int64)
+    point_rank[order] = np.arange(1, count + 1)
+    best = int(order[0])
+    best_values = block(best, best + 1)[:, 0]
+    lowest = np.full(resamples, np.inf)
+    reaching = np.zeros(resamples, dtype=np.int64)
+    with tempfile.TemporaryDirectory(dir=scratch, prefix=".ranking-") as folder:
+        by_resample = Path(folder) / "replicates.f8"
+        with open(by_resample, "wb") as out:
+            out.truncate(count * row)
+            for a, b in _blocks(count, size):  # the lowest value of each resample, and the designs reaching it
+                values = block(a, b)
+                low = values.min(axis=1)
+                reach = (values == low[:, None]).sum(axis=1)
+                below, equal = low < lowest, low == lowest
+                lowest[below], reaching[below] = low[below], reach[below]
+                reaching[equal] += reach[equal]
+                for r in range(resamples):  # laid out resample by resample
+                    out.seek((r * count + a) * 8)
+                    out.write(np.ascontiguousarray(values[r]).tobytes())
+        ranks_file = Path(folder) / "ranks.i4"
+        rows = max(1, int(block_bytes) // (4 * 8 * count))  # resamples ranked at once
+        with open(by_resample, "rb") as source, open(ranks_file, "wb") as out:
+            for r0, r1 in _blocks(resamples, rows):
+                values = np.frombuffer(source.read((r1 - r0) * count * 8), dtype=np.float64).reshape(r1 - r0, count)
+                ranks = values.argsort(axis=1, kind="stable").argsort(axis=1, kind="stable") + 1
+                out.write(ranks.astype(np.int32).tobytes())
+        probability = np.empty(count)
+        lower_difference = np.empty(count)
+        rank_bounds = np.empty((2, count), dtype=np.int64)
+        with open(ranks_file, "rb") as ranks_source:
+            for a, b in _blocks(count, size):
+                values = block(a, b)
+                probability[a:b] = _column_mean((values == lowest[:, None]) / reaching[:, None])
+                lower_difference[a:b] = np.quantile(values - best_values[:, None], alpha / 2, axis=0)
+                ranks = np.empty((resamples, b - a), dtype=np.int32)
+                for r in range(resamples):
+                    ranks_source.seek((r * count + a) * 4)
+                    ranks[r] = np.frombuffer(ranks_source.read((b - a) * 4), dtype=np.int32)
+                rank_bounds[:, a:b] = np.quantile(ranks.astype(np.int64), [alpha / 2, 1 - alpha / 2], axis=0,
+                                                  method="inverted_cdf")
+    together = lower_difference <= 0
+    together[best] = True
+    return ranking_arrays(probability, point_rank, rank_bounds, together, level=level), best, together
+
+
 def ranking_variables(sweep: xr.Dataset, *, level: float | None = None,
-                      target_half_width: float = DEFAULT_HALF_WIDTH) -> tuple[dict, dict]:
+                      target_half_width: float = DEFAULT_HALF_WIDTH, block_bytes: int = RANKING_BYTES,
+                      scratch=None) -> tuple[dict, dict]:
     """Ranks, best probabilities, the best set, edge warnings and the observers needed, of a
     combined sweep holding :func:`interval_variables` (empty when it does not).
+
+    The sweep may be opened from its file (:func:`metasim.sweep.store.open_sweep`): its replicates
+    are read in blocks of designs (:func:`rank_in_blocks`, about ``block_bytes`` at once; scratch
+    files in the folder ``scratch``), so memory does not grow with the resamples × designs.
 
     Returns
     -------
@@ -117,29 +223,34 @@ def ranking_variables(sweep: xr.Dataset, *, level: float | None = None,
     if REPLICATES not in sweep or "delta_e_2000_overall" not in sweep:
         return {}, {}
     level = float(sweep.attrs.get("interval_level", DEFAULT_LEVEL) if level is None else level)
-    replicates = sweep[REPLICATES].transpose("resample", "design")
-    point = sweep["delta_e_2000_overall"].sel(statistic="p95")
-    ranking = rank_designs(replicates, point, level=level)
-    best = int(np.flatnonzero(ranking["rank"].values == 1)[0])
+    check_interval_settings(level, DEFAULT_RESAMPLES)  # the level only, as rank_designs checks it
+    count, resamples = sweep.sizes["design"], sweep.sizes["resample"]
+    replicates = sweep[REPLICATES]
+
+    def read(a: int, b: int) -> np.ndarray:
+        return replicates.isel(design=slice(a, b)).transpose("resample", "design").values
+
+    point = sweep["delta_e_2000_overall"].sel(statistic="p95").values
+    ranking, best, together = rank_in_blocks(read, count, resamples, point, level=level, block_bytes=block_bytes,
+                                             scratch=scratch)
     parameters = swept_parameters(sweep)
     edges = edge_warnings(parameters, best, {name: _units(sweep, name) for name in parameters})
     observers = int(sweep.attrs.get("observer_count", 0))
     p95 = sweep["delta_e_2000_overall_interval"].sel(statistic="p95")
-    needed = [observers_needed(float(half_width(p95.isel(design=i))), observers, target_half_width)
-              if observers and np.isfinite(float(half_width(p95.isel(design=i)))) else -1
-              for i in range(sweep.sizes["design"])]
-    out = {name: xr.DataArray(ranking[name].values, dims=ranking[name].dims, attrs=dict(ranking[name].attrs))
-           for name in ("best_probability", "rank", "rank_interval", "indistinguishable_from_best")}
+    widths = ((p95.sel(bound="upper") - p95.sel(bound="lower")) / 2).values  # as half_width computes it
+    needed = [observers_needed(float(h), observers, target_half_width) if observers and np.isfinite(float(h)) else -1
+              for h in widths]
+    out = dict(ranking)
     out["observers_needed_p95"] = xr.DataArray(np.asarray(needed, dtype=np.int64), dims="design", attrs={
         "units": "1", "long_name": "observers needed for the target interval half-width on the 95th percentile "
                                    "(half-widths shrink as 1/sqrt(n); -1: unknown)",
         "target_half_width": float(target_half_width)})
-    labels = [str(v) for v in sweep["design"].values]
-    together = [labels[i] for i in np.flatnonzero(ranking["indistinguishable_from_best"].values)]
-    attrs = {"best_design": labels[best], "best_set": ", ".join(together), "edge_warnings": " | ".join(edges),
-             "ranking_level": level, "ranking_statistic": "p95 (95th percentile over all observer x stimulus pairs)",
+    labels = sweep["design"].values
+    attrs = {"best_design": str(labels[best]), "best_set": ", ".join(str(labels[i]) for i in np.flatnonzero(together)),
+             "edge_warnings": " | ".join(edges), "ranking_level": level,
+             "ranking_statistic": "p95 (95th percentile over all observer x stimulus pairs)",
              "target_half_width": float(target_half_width)}
     return out, attrs
 
 
-__all__ = ["REPLICATES", "interval_variables", "swept_parameters", "ranking_variables"]
+__all__ = ["REPLICATES", "RANKING_BYTES", "interval_variables", "swept_parameters", "rank_in_blocks", "ranking_variables"]

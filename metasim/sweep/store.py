@@ -38,6 +38,7 @@ import hashlib
 import json
 import os
 import socket
+import tempfile
 import time
 import warnings
 from pathlib import Path
@@ -55,7 +56,16 @@ from metasim.errors import (
     StoreLockedError,
     SweepError,
 )
-from metasim.io import load_dataset, process_alive, remove_stale_partials, save_dataset, write_text
+from metasim.io import (
+    _decode_attrs,
+    _encode_attrs,
+    atomic_output,
+    load_dataset,
+    process_alive,
+    remove_stale_partials,
+    save_dataset,
+    write_text,
+)
 from metasim.sweep.pareto import pareto_front
 
 try:
@@ -496,11 +506,189 @@ def upgraded(part: xr.Dataset) -> xr.Dataset:
     return part.rename(old) if old else part
 
 
+def _checked_chunk(folder: Path, manifest: dict, chunk: dict) -> xr.Dataset:
+    """One chunk file, loaded, after its checksum and design range are checked (set aside and
+    :class:`StoreIntegrityError` when they do not match)."""
+    path = folder / chunk["file"]
+    problem = _chunk_problem(path, chunk)
+    if problem is None:
+        part = load_dataset(path)
+        if [part.attrs.get("spec_hash"), part.attrs.get("design_start"), part.attrs.get("design_stop"),
+                part.sizes.get("design")] != [manifest["spec_hash"], chunk["start"], chunk["stop"],
+                                              chunk["stop"] - chunk["start"]]:
+            problem = (f"it does not hold designs {chunk['start']}-{chunk['stop'] - 1} of this sweep (spec hash "
+                       f"{str(part.attrs.get('spec_hash'))[:12]}, designs {part.attrs.get('design_start')}-"
+                       f"{part.attrs.get('design_stop')})")
+    if problem is not None:
+        aside = _put_aside(folder, manifest, chunk, problem, warn=False).name
+        raise StoreIntegrityError(f"{path}: {problem}; set aside as {aside}; run the sweep again to compute it")
+    return upgraded(part)
+
+
+def _equivalent(a, b) -> bool:
+    """Attribute values equal as xarray's "drop_conflicts" compares them (arrays element by element)."""
+    if isinstance(a, np.ndarray) or isinstance(b, np.ndarray):
+        a, b = np.asarray(a), np.asarray(b)
+        return a.shape == b.shape and bool(np.all((a == b) | ((a != a) & (b != b))))
+    try:
+        return bool(a == b)
+    except ValueError:
+        return False
+
+
+class _DropConflicts:
+    """Attributes of many parts merged as ``xr.concat(..., combine_attrs="drop_conflicts")`` does:
+    every key kept unless two parts give it different values."""
+
+    def __init__(self):
+        self.merged, self.dropped = {}, set()
+
+    def add(self, attrs: dict) -> None:
+        for key, value in attrs.items():
+            if key in self.dropped:
+                continue
+            if key not in self.merged:
+                self.merged[key] = value
+            elif not _equivalent(self.merged[key], value):
+                del self.merged[key]
+                self.dropped.add(key)
+
+
+#: largest HDF5 chunk of a combined sweep's variable, in bytes (the design rows of one chunk file, or fewer)
+_STORAGE_BYTES = 4 << 20
+
+
+class CombinedWriter:
+    """``sweep.nc`` written chunk by chunk: the file holds the designs written so far, memory one chunk.
+
+    The first chunk goes through xarray's netCDF writer (so the file has xarray's layout: coordinates,
+    attribute encodings) with ``design`` as the unlimited dimension; every further chunk is written
+    into its slice of each ``design`` variable (:meth:`add`), encoded as xarray encodes it. The
+    variables without ``design`` must equal the first chunk's; attributes that differ between chunks
+    are dropped (as ``xr.concat(..., combine_attrs="drop_conflicts")`` drops them).
+    ``chunks_alive`` counts the chunk Datasets the writer holds (at most one, the one being
+    written).
+    """
+
+    def __init__(self, path, rows: int):
+        self.path, self.rows = Path(path), max(1, int(rows))
+        self.count, self.first, self.names = 0, None, None
+        self.attrs = _DropConflicts()
+        self.variable_attrs: dict[str, _DropConflicts] = {}
+        self.chunks_alive = 0
+
+    def _storage(self, variable) -> dict:
+        row = int(np.prod([n for d, n in variable.sizes.items() if d != "design"] or [1])) * variable.dtype.itemsize
+        rows = max(1, min(self.rows, _STORAGE_BYTES // max(row, 1)))
+        return {"_FillValue": None, "chunksizes": tuple(rows if d == "design" else n for d, n in variable.sizes.items())}
+
+    def add(self, part: xr.Dataset, start: int) -> None:
+        """Write ``part`` (designs ``start`` .. ``start + part.sizes["design"]``) into the file."""
+        self.chunks_alive += 1
+        try:
+            self._add(part, start)
+        finally:
+            self.chunks_alive -= 1
+
+    def _add(self, part: xr.Dataset, start: int) -> None:
+        if start != self.count:
+            raise SweepError(f"{self.path}: designs {start}-... given after {self.count} designs; chunks go in order")
+        names = set(map(str, part.variables))
+        self.attrs.add(part.attrs)
+        for name in names:
+            self.variable_attrs.setdefault(name, _DropConflicts()).add(part[name].attrs)
+        if self.first is None:
+            self.first, self.names = {n: v for n, v in part.variables.items() if "design" not in v.dims}, names
+            out = part.copy()
+            out.attrs = {}
+            encoding = {}
+            for name in list(out.variables):
+                out[name].attrs = _encode_attrs(part[name].attrs, f"{self.path}:{name}")
+                out[name].encoding = {}
+                encoding[name] = self._storage(out[name].variable) if "design" in out[name].dims else {"_FillValue": None}
+            out.to_netcdf(self.path, engine="netcdf4", format="NETCDF4", unlimited_dims=["design"], encoding=encoding)
+        else:
+            if names != self.names:
+                raise StoreIntegrityError(f"{self.path}: the chunk of designs {start}-... holds the variables "
+                                          f"{sorted(names ^ self.names)} that the first chunk does not (or lacks them)")
+            for name, variable in self.first.items():
+                if not variable.equals(part.variables[name]):
+                    raise StoreIntegrityError(f"{self.path}: {name!r} of the chunk of designs {start}-... differs from "
+                                              "the first chunk's")
+            import netCDF4
+
+            with netCDF4.Dataset(self.path, "a") as handle:
+                handle.set_auto_maskandscale(False)
+                for name, variable in part.variables.items():
+                    if "design" not in variable.dims:
+                        continue
+                    target = handle.variables[name]
+                    values = xr.conventions.encode_cf_variable(variable, name=name).transpose(
+                        *target.dimensions).values
+                    if values.dtype.kind == "U":
+                        values = values.astype(object)
+                    where = tuple(slice(start, start + variable.sizes["design"]) if d == "design" else slice(None)
+                                  for d in target.dimensions)
+                    target[where] = values
+        self.count += part.sizes["design"]
+
+    def finish(self, variables: dict, attrs: dict) -> None:
+        """Add ``variables`` (DataArrays by name, over ``design`` and dims of the file) and set the
+        file's attributes to ``attrs``; attributes of a variable that differed between chunks are
+        dropped."""
+        import netCDF4
+
+        from metasim.io import _JSON_LIST
+
+        with netCDF4.Dataset(self.path, "a") as handle:
+            for name, merged in self.variable_attrs.items():
+                if not merged.dropped or name not in handle.variables:
+                    continue
+                target = handle.variables[name]
+                listed = json.loads(target.getncattr(_JSON_LIST)) if _JSON_LIST in target.ncattrs() else []
+                for key in merged.dropped & set(target.ncattrs()):
+                    target.delncattr(key)
+                rest = [key for key in listed if key not in merged.dropped]
+                if rest != listed:
+                    target.delncattr(_JSON_LIST)
+                    if rest:
+                        target.setncattr(_JSON_LIST, json.dumps(rest))
+        # the values only: the coordinates of their dims are in the file already
+        extra = xr.Dataset({name: (value.dims, np.asarray(value.values)) for name, value in variables.items()})
+        encoding = {}
+        for name in list(extra.variables):
+            extra[name].attrs = _encode_attrs(variables[name].attrs, f"{self.path}:{name}")
+            extra[name].encoding = {}
+            encoding[name] = self._storage(extra[name].variable) if "design" in extra[name].dims else {"_FillValue": None}
+        extra.attrs = _encode_attrs(attrs, str(self.path))
+        extra.to_netcdf(self.path, mode="a", engine="netcdf4", format="NETCDF4", encoding=encoding)
+
+
+def open_sweep(path) -> xr.Dataset:
+    """A combined sweep (``sweep.nc``) opened from its file: attributes restored as
+    :func:`metasim.load_dataset` restores them, values read from the file when first used (so a
+    sweep of any size opens in little memory; ``.load()`` reads it all)."""
+    path = Path(path)
+    if not path.is_file():
+        raise SweepError(f"{path}: no such file")
+    ds = xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False)
+    ds.attrs = _decode_attrs(ds.attrs, str(path))
+    for name in ds.variables:
+        ds[name].attrs = _decode_attrs(ds[name].attrs, f"{path}:{name}")
+    return ds
+
+
 def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     """Gather every chunk of a finished store into one Dataset over ``design`` (saved as ``sweep.nc``).
 
+    The chunks are written into ``sweep.nc`` one after the other (:class:`CombinedWriter`): memory
+    holds one chunk at a time, whatever the number of designs. The result is that file, opened
+    (:func:`open_sweep`: values read when used); with ``write=False`` it is read into memory and no
+    ``sweep.nc`` is left in the store.
+
     A sweep run with intervals also gets its designs' ranks, probabilities of being the best, the
-    best set and the edge warning (:func:`metasim.sweep.ranking.ranking_variables`).
+    best set and the edge warning (:func:`metasim.sweep.ranking.ranking_variables`, computed in
+    blocks of designs); every sweep gets its Pareto ranks (:func:`metasim.sweep.pareto.pareto_front`).
 
     Every chunk's checksum and design range are checked first; a chunk that fails is set aside and
     :class:`~metasim.errors.StoreIntegrityError` asks for the sweep to be run again.
@@ -556,28 +744,33 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     if missing:
         raise SweepError(f"{folder}: {len(missing)} of {len(manifest['chunks'])} chunks are not finished "
                          f"({missing[0]}, ...); run the sweep again to finish them")
-    parts = []
-    for chunk in manifest["chunks"]:
-        path = folder / chunk["file"]
-        problem = _chunk_problem(path, chunk)
-        if problem is None:
-            part = load_dataset(path)
-            if [part.attrs.get("spec_hash"), part.attrs.get("design_start"), part.attrs.get("design_stop"),
-                    part.sizes.get("design")] != [manifest["spec_hash"], chunk["start"], chunk["stop"],
-                                                  chunk["stop"] - chunk["start"]]:
-                problem = (f"it does not hold designs {chunk['start']}-{chunk['stop'] - 1} of this sweep (spec hash "
-                           f"{str(part.attrs.get('spec_hash'))[:12]}, designs {part.attrs.get('design_start')}-"
-                           f"{part.attrs.get('design_stop')})")
+    for chunk in manifest["chunks"]:  # every chunk checked before anything is written
+        problem = _chunk_problem(folder / chunk["file"], chunk)
         if problem is not None:
             aside = _put_aside(folder, manifest, chunk, problem, warn=False).name
-            raise StoreIntegrityError(f"{path}: {problem}; set aside as {aside}; run the sweep again to compute it")
-        parts.append(upgraded(part))
-    combined = xr.concat(parts, dim="design", data_vars="minimal", coords="minimal", compat="equals",
-                         combine_attrs="drop_conflicts")
+            raise StoreIntegrityError(f"{folder / chunk['file']}: {problem}; set aside as {aside}; run the sweep "
+                                      "again to compute it")
+    target = folder / COMBINED
+    if write:
+        with atomic_output(target) as tmp:
+            _write_combined(folder, manifest, tmp)
+        return open_sweep(target)
+    with tempfile.TemporaryDirectory(dir=folder, prefix=".combine-") as scratch:
+        path = Path(scratch) / COMBINED
+        _write_combined(folder, manifest, path)
+        with open_sweep(path) as lazy:
+            return lazy.load()
+
+
+def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
+    writer = CombinedWriter(path, manifest["chunk_size"])
+    for chunk in manifest["chunks"]:
+        writer.add(_checked_chunk(folder, manifest, chunk), chunk["start"])
+    attrs = dict(writer.attrs.merged)
     for key in ("chunk", "design_start", "design_stop"):
-        combined.attrs.pop(key, None)
-    combined.attrs["engine_model"] = combined.attrs.pop("model", "")
-    combined.attrs.update({
+        attrs.pop(key, None)
+    attrs["engine_model"] = attrs.pop("model", "")
+    attrs.update({
         "result_kind": "metasim sweep",
         "model": manifest.get("model", "metasim sweep"),
         "observer_seed": manifest.get("observer_seed", "none"),
@@ -589,17 +782,21 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
         "metasim_version": __version__,
         "store_metasim_version": manifest.get("metasim_version", ""),
     })
-    ranked, ranking_attrs = ranking_variables(combined)
-    for name, value in ranked.items():
-        combined[name] = value
-    combined.attrs.update(ranking_attrs)
-    combined = pareto_front(combined)  # pareto_rank over the default objectives (metasim.sweep.pareto)
-    if write:
-        save_dataset(combined, folder / COMBINED)
-    return combined
+    with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False, cache=False) as lazy:
+        lazy.attrs = attrs
+        for name in lazy.variables:
+            lazy[name].attrs = _decode_attrs(lazy[name].attrs, f"{path}:{name}")
+        # read in blocks of designs, scratch files beside the file (metasim.sweep.ranking)
+        ranked, ranking_attrs = ranking_variables(lazy, scratch=path.parent)
+        attrs.update(ranking_attrs)
+        lazy.attrs = attrs
+        fronts = pareto_front(lazy)  # pareto_rank over the default objectives (metasim.sweep.pareto)
+        added = {name: fronts[name].load() for name in fronts.data_vars if name not in lazy.data_vars}
+        attrs = dict(fronts.attrs)
+    writer.finish({**ranked, **added}, attrs)
 
 
 __all__ = ["STORE_FORMAT", "STORE_FORMAT_VERSION", "MANIFEST", "COMBINED", "LOCK", "SET_ASIDE", "chunk_name",
            "chunk_ranges", "spec_hash", "file_checksum", "check_manifest", "read_manifest", "write_manifest",
            "store_lock", "open_store", "set_aside", "verified_chunks", "finished_chunks", "write_chunk",
-           "combine_sweep"]
+           "combine_sweep", "open_sweep", "CombinedWriter"]
