@@ -635,6 +635,22 @@ def _decode_attrs(attrs: dict, where: str) -> dict:
     return attrs
 
 
+#: the attribute listing which attributes a file written by :func:`save_dataset` holds as JSON
+JSON_ATTRS = _JSON_LIST
+
+
+def encode_attrs(attrs: dict, where: str) -> dict:
+    """Attributes as :func:`save_dataset` writes them to a netCDF file (JSON for values netCDF cannot
+    hold, listed in :data:`JSON_ATTRS`); ``where`` names the file or variable in errors."""
+    return _encode_attrs(attrs, where)
+
+
+def decode_attrs(attrs: dict, where: str) -> dict:
+    """Attributes read from a file written by :func:`save_dataset`, restored exactly (the inverse of
+    :func:`encode_attrs`)."""
+    return _decode_attrs(attrs, where)
+
+
 def save_dataset(data: xr.Dataset | xr.DataArray, path: str | os.PathLike, *, replace: bool = True,
                  before_rename=None) -> Path:
     """Save a metasim Dataset (or DataArray) to a netCDF4 file, losslessly; returns the path written.

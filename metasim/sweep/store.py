@@ -57,9 +57,10 @@ from metasim.errors import (
     SweepError,
 )
 from metasim.io import (
-    _decode_attrs,
-    _encode_attrs,
+    JSON_ATTRS,
     atomic_output,
+    decode_attrs,
+    encode_attrs,
     load_dataset,
     process_alive,
     remove_stale_partials,
@@ -603,7 +604,7 @@ class CombinedWriter:
             out.attrs = {}
             encoding = {}
             for name in list(out.variables):
-                out[name].attrs = _encode_attrs(part[name].attrs, f"{self.path}:{name}")
+                out[name].attrs = encode_attrs(part[name].attrs, f"{self.path}:{name}")
                 out[name].encoding = {}
                 encoding[name] = self._storage(out[name].variable) if "design" in out[name].dims else {"_FillValue": None}
             out.to_netcdf(self.path, engine="netcdf4", format="NETCDF4", unlimited_dims=["design"], encoding=encoding)
@@ -638,29 +639,27 @@ class CombinedWriter:
         dropped."""
         import netCDF4
 
-        from metasim.io import _JSON_LIST
-
         with netCDF4.Dataset(self.path, "a") as handle:
             for name, merged in self.variable_attrs.items():
                 if not merged.dropped or name not in handle.variables:
                     continue
                 target = handle.variables[name]
-                listed = json.loads(target.getncattr(_JSON_LIST)) if _JSON_LIST in target.ncattrs() else []
+                listed = json.loads(target.getncattr(JSON_ATTRS)) if JSON_ATTRS in target.ncattrs() else []
                 for key in merged.dropped & set(target.ncattrs()):
                     target.delncattr(key)
                 rest = [key for key in listed if key not in merged.dropped]
                 if rest != listed:
-                    target.delncattr(_JSON_LIST)
+                    target.delncattr(JSON_ATTRS)
                     if rest:
-                        target.setncattr(_JSON_LIST, json.dumps(rest))
+                        target.setncattr(JSON_ATTRS, json.dumps(rest))
         # the values only: the coordinates of their dims are in the file already
         extra = xr.Dataset({name: (value.dims, np.asarray(value.values)) for name, value in variables.items()})
         encoding = {}
         for name in list(extra.variables):
-            extra[name].attrs = _encode_attrs(variables[name].attrs, f"{self.path}:{name}")
+            extra[name].attrs = encode_attrs(variables[name].attrs, f"{self.path}:{name}")
             extra[name].encoding = {}
             encoding[name] = self._storage(extra[name].variable) if "design" in extra[name].dims else {"_FillValue": None}
-        extra.attrs = _encode_attrs(attrs, str(self.path))
+        extra.attrs = encode_attrs(attrs, str(self.path))
         extra.to_netcdf(self.path, mode="a", engine="netcdf4", format="NETCDF4", encoding=encoding)
 
 
@@ -672,9 +671,9 @@ def open_sweep(path) -> xr.Dataset:
     if not path.is_file():
         raise SweepError(f"{path}: no such file")
     ds = xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False)
-    ds.attrs = _decode_attrs(ds.attrs, str(path))
+    ds.attrs = decode_attrs(ds.attrs, str(path))
     for name in ds.variables:
-        ds[name].attrs = _decode_attrs(ds[name].attrs, f"{path}:{name}")
+        ds[name].attrs = decode_attrs(ds[name].attrs, f"{path}:{name}")
     return ds
 
 
@@ -785,7 +784,7 @@ def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
     with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False, cache=False) as lazy:
         lazy.attrs = attrs
         for name in lazy.variables:
-            lazy[name].attrs = _decode_attrs(lazy[name].attrs, f"{path}:{name}")
+            lazy[name].attrs = decode_attrs(lazy[name].attrs, f"{path}:{name}")
         # read in blocks of designs, scratch files beside the file (metasim.sweep.ranking)
         ranked, ranking_attrs = ranking_variables(lazy, scratch=path.parent)
         attrs.update(ranking_attrs)
