@@ -353,8 +353,9 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     -------
     Dataset
         Per-design summaries over ``design`` (:mod:`metasim.sweep.summary`), with the attributes
-        ``spec_hash``, ``spec``, ``observer_seed``, ``observer_model``, ``metasim_version``; also
-        written to ``store/sweep.nc``.
+        ``spec_hash``, ``spec``, ``observer_seed``, ``observer_model``, ``metasim_version``: the
+        file ``store/sweep.nc``, opened (:func:`metasim.sweep.store.open_sweep`: values read when
+        used, so memory does not grow with the number of designs; ``.load()`` reads it all).
 
     Examples
     --------

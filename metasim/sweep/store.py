@@ -703,7 +703,8 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
     -------
     xarray.Dataset (design, ...)
         The per-design summaries of every chunk in design order (:mod:`metasim.sweep.summary`),
-        with the ranking variables for a sweep run with intervals.
+        with the ranking variables for a sweep run with intervals: ``STORE/sweep.nc`` opened
+        (values read when used), or in memory with ``write=False``.
 
     Raises
     ------
