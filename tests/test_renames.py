@@ -1,6 +1,7 @@
 """Renamed options, spec keys and values: the old spelling does what the new one does for one more
 release, with a warning that names the new spelling."""
 
+import importlib
 import warnings
 
 import numpy as np
@@ -10,7 +11,7 @@ from test_cli import DEMO, run
 import metasim
 from metasim.cli.specs import load_display
 from metasim.errors import RenamedWarning
-from metasim.metamerism import cie_13_3_samples, primaries_and_secondaries
+from metasim.metamerism import categories, cie_13_3_samples, primaries_and_secondaries
 
 #: the laser-phosphor demo spec written with every old key name
 OLD_SPEC = """
@@ -250,3 +251,14 @@ def test_search_spec_keys_fwhm_nm_and_relative_power(tmp_path):
     assert old.describe() == new.describe()  # the same searched space (and store hash) either way
     assert [name for name, _, _ in new.parameters] == ["peak_nm_R", "power_R"]
     assert "fwhm_nm = 1.0" in (DEMO / "search_red_green.toml").read_text(encoding="utf-8")
+
+
+@pytest.mark.parametrize("old_module", ["metasim.observers", "metasim.observers.categories"])
+@pytest.mark.parametrize("name", ["observer_categories", "observer_features"])
+def test_old_import_path_of_the_observer_categories_works_with_a_warning(old_module, name):
+    module = importlib.import_module(old_module)
+    with pytest.warns(DeprecationWarning, match=f"{old_module}.{name} has moved to metasim.metamerism.categories.{name}"):
+        old = getattr(module, name)
+    assert old is getattr(categories, name)
+    with pytest.raises(AttributeError, match="no_such_name"):
+        module.no_such_name

@@ -194,7 +194,7 @@ def cmd_observers(args) -> int:
     population = build_population(args.size, args.seed, args.age_years, args.field_size_deg,
                                   extrapolate=args.extrapolate, progress=progress)
     if args.categories is not None:
-        from metasim.observers import observer_categories
+        from metasim.metamerism.categories import observer_categories
 
         population = observer_categories(population, args.categories, seed=args.seed)
         progress.step(f"{args.categories} observer categories")

@@ -1,8 +1,11 @@
 """Observers: standard CIE observers, the CIE 170-1 physiological model, individuals, populations.
 
 ``observer_categories`` and ``observer_features`` live in :mod:`metasim.metamerism.categories`;
-the names here stay for old imports and are looked up there on first use.
+the names here stay for old imports until the next release and are looked up there on first use,
+with a DeprecationWarning naming the new home.
 """
+
+import importlib
 
 from metasim.observers.files import check_observers, read_observers
 from metasim.observers.physiological import (
@@ -27,10 +30,9 @@ from metasim.observers.standard import (
 
 
 def __getattr__(name: str):
-    if name in ("observer_categories", "observer_features"):  # moved to the metamerism layer
-        from metasim.metamerism import categories
-
-        return getattr(categories, name)
+    categories = importlib.import_module("metasim.observers.categories")  # the old home: imports nothing
+    if name in categories._MOVED:  # moved to the metamerism layer
+        return categories.moved_name(name, __name__)
     raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 
