@@ -14,12 +14,42 @@ def rng():
     return np.random.default_rng(20261202)
 
 
+@pytest.fixture(scope="session")
+def monitor():
+    """A three-primary monitor (Gaussian primaries) calibrated to D65 at 100 cd/m² for the CIE 1931
+    observer: the reference display of the sweep tests."""
+    import metasim
+    from metasim import emitters
+
+    spectra = emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])
+    return metasim.calibrate_white(metasim.make_display(spectra), "cie1931_2", white="D65", luminance=100)
+
+
+@pytest.fixture(scope="session")
+def stimuli():
+    """The six primaries and secondaries: the stimulus set of the sweep tests."""
+    from metasim.metamerism import primaries_and_secondaries
+
+    return primaries_and_secondaries()
+
+
 def pytest_configure(config):
     """Before collection: on an empty kernel cache, start compiling every kernel in helper processes
-    (metasim._warmup.EVERY, as the command does for a study's) while pytest imports the test modules."""
+    (metasim._warmup.EVERY, as the command does for a study's) while pytest imports the test modules.
+    With test workers (``-n``), only the main process starts them (see :func:`pytest_sessionstart`)."""
     from metasim import _warmup
 
-    _warmup.start(_warmup.EVERY)
+    if not hasattr(config, "workerinput"):
+        _warmup.start(_warmup.EVERY)
+
+
+def pytest_sessionstart(session):
+    """With test workers, the main process waits for its helpers before the workers start: every
+    worker then loads the kernels from the cache instead of compiling them again."""
+    from metasim import _warmup
+
+    if getattr(session.config.option, "numprocesses", None) and not hasattr(session.config, "workerinput"):
+        _warmup.finish()
 
 
 def pytest_unconfigure(config):

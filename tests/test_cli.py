@@ -63,6 +63,14 @@ def timed_run(argv, cwd=None, timeout: float = 300) -> subprocess.CompletedProce
     return done
 
 
+def busy_factor() -> float:
+    """How many times longer than on an idle machine a wait may take now: the runnable processes per
+    core (1-minute load average), at least 1 (common practice, no source). Bounds on how soon a line
+    appears are multiplied by it, so other work on the machine (or the suite's own test workers)
+    does not fail them, while an idle machine checks the bound itself."""
+    return max(1.0, os.getloadavg()[0] / (os.cpu_count() or 1))
+
+
 def _in_process(argv, cwd) -> subprocess.CompletedProcess:
     from metasim.cli import main
 
@@ -107,9 +115,10 @@ def test_a_command_is_never_silent_for_long(population_run):
     # metasim.progress.HEARTBEAT_S) until the end; the bounds leave room for a busy machine
     done = population_run[1]
     times = done.line_times
-    assert times and times[0] < 2.0, done.stderr
+    slack = busy_factor()
+    assert times and times[0] < 2.0 * slack, done.stderr
     gaps = [b - a for a, b in zip(times, times[1:] + [done.seconds])]
-    assert max(gaps) < 6.0, (gaps, done.stderr)  # 2 s heartbeat, room for a machine busy with other work
+    assert max(gaps) < 6.0 * slack, (gaps, slack, done.stderr)  # 2 s heartbeat, room for a busy machine
     assert done.stderr.splitlines()[0].startswith("metasim: observers: inputs checked; loading the numerical modules (")
 
 

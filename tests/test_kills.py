@@ -131,7 +131,7 @@ def test_a_killed_study_left_behind_is_cleaned_when_the_command_runs_again(study
     assert partials(tmp_path) == []  # ... but the dead run's temporary file is gone
 
 
-SWEEP_ARGS = ["sweep", "sweep.toml", "--size", "4", "--scheduler", "serial", "--chunk-size", "1"]
+SWEEP_ARGS = ["sweep", "sweep.toml", "--size", "4", "--scheduler", "serial", "--chunk-size", "1", "--no-report"]
 
 
 @pytest.fixture(scope="module")

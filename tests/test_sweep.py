@@ -16,7 +16,6 @@ import xarray as xr
 import metasim
 from metasim import emitters
 from metasim.errors import SweepError
-from metasim.metamerism import primaries_and_secondaries
 from metasim.sweep import chunk_display, design_grid, design_list, read_manifest, run_sweep
 from test_cli import run
 
@@ -25,19 +24,8 @@ DEMO_SWEEP = ROOT / "data" / "demo" / "sweep_red_laser.toml"
 
 
 @pytest.fixture(scope="module")
-def monitor():
-    spectra = emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])
-    return metasim.calibrate_white(metasim.make_display(spectra), "cie1931_2", white="D65", luminance=100)
-
-
-@pytest.fixture(scope="module")
 def viewers():
     return metasim.observer_population(30, seed=11, age_years=(20, 70))
-
-
-@pytest.fixture(scope="module")
-def stimuli():
-    return primaries_and_secondaries()
 
 
 @pytest.fixture(scope="module")

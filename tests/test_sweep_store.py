@@ -19,27 +19,14 @@ import pytest
 import xarray as xr
 
 import metasim
-from metasim import emitters
 from metasim.errors import ChunkSetAsideWarning, MetasimWarning, StoreIntegrityError, StoreLockedError, SweepError
-from metasim.metamerism import primaries_and_secondaries
 from metasim.sweep import combine_sweep, design_grid, read_manifest, run_sweep
 from metasim.sweep.store import LOCK, file_checksum, store_lock
 
 
 @pytest.fixture(scope="module")
-def monitor():
-    spectra = emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])
-    return metasim.calibrate_white(metasim.make_display(spectra), "cie1931_2", white="D65", luminance=100)
-
-
-@pytest.fixture(scope="module")
 def viewers():
     return metasim.observer_population(4, seed=5, age_years=(20, 70))
-
-
-@pytest.fixture(scope="module")
-def stimuli():
-    return primaries_and_secondaries()
 
 
 def grid(*red_nm):
