@@ -32,7 +32,7 @@ def driven_pair_differences(ref_drive, ref_matrices, ref_black, test_drive, test
     Returns xyz_ref (O, S, 3), xyz_test (G, O, S, 3), lab_ref, lab_test (G·O, S, 3), delta_e,
     index (G·O, S).
     """
-    ref_t, test_t = padded_drives(ref_drive), padded_drives(test_drive)
+    reference_drives, test_drives = padded_drives(ref_drive), padded_drives(test_drive)
     groups, observers = test_matrices.shape[0], test_matrices.shape[1]
     stimuli = np.shape(test_drive)[1]
     xyz_ref = np.empty((observers, stimuli, 3))
@@ -42,7 +42,7 @@ def driven_pair_differences(ref_drive, ref_matrices, ref_black, test_drive, test
     delta_e, index = np.empty((rows, stimuli)), np.empty((rows, stimuli))
     as_float = [np.ascontiguousarray(a, dtype=float) for a in (ref_matrices, ref_black, test_matrices, test_black,
                                                                  white, correction)]
-    pair_rows_driven(ref_t, as_float[0], as_float[1], test_t, as_float[2], as_float[3], as_float[4], as_float[5],
+    pair_rows_driven(reference_drives, as_float[0], as_float[1], test_drives, as_float[2], as_float[3], as_float[4], as_float[5],
                       xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index)
     return xyz_ref, xyz_test, lab_ref, lab_test, delta_e, index
 

@@ -69,8 +69,8 @@ def _contract(spectra: xr.DataArray, responses: xr.DataArray, channel_dim: str):
         )
     s = spectra.variable.transpose(*s_dims, "wavelength").values
     r = responses.variable.transpose(*r_dims, channel_dim, "wavelength").values
-    n_w = s.shape[-1]
-    out = spectral_products(s.reshape(-1, n_w), r.reshape(-1, n_w)) * step
+    n_wavelengths = s.shape[-1]
+    out = spectral_products(s.reshape(-1, n_wavelengths), r.reshape(-1, n_wavelengths)) * step
     return out.reshape(s.shape[:-1] + r.shape[:-1]), (*s_dims, *r_dims, channel_dim)
 
 

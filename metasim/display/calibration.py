@@ -154,23 +154,23 @@ def calibrate_white(display: Display, observer="cie1931_2", *, white="D65", lumi
     """
     if not isinstance(display, Display):
         raise DisplayError(f"calibrate_white needs a Display, got {type(display).__name__}")
-    obs = single_observer(observer, display, "calibration needs one observer", "select one with .isel(observer=i)")
+    calibration_observer = single_observer(observer, display, "calibration needs one observer", "select one with .isel(observer=i)")
     target_luminance = display.peak_luminance if luminance is None else luminance
     if not isinstance(target_luminance, xr.DataArray):
         target_luminance = xr.DataArray(float(target_luminance))
     check_luminance(target_luminance if luminance is None else luminance, "luminance")
-    xy = white_xy(_white_of_spectrum(white, display, obs) if _is_spectrum(white) else white)
+    xy = white_xy(_white_of_spectrum(white, display, calibration_observer) if _is_spectrum(white) else white)
     batch = display.batch_dims
     spectra = display.spectra
     n = display.n_primaries
     sizes = {d: spectra.sizes[d] for d in batch}
     target = _target_values(xy, target_luminance, spectra, sizes)
     if target is None:  # labels to align or dims to refuse: the labelled route
-        need, A = _need_labelled(display, obs, xy, target_luminance, batch)
+        need, A = _need_labelled(display, calibration_observer, xy, target_luminance, batch)
         b = need.transpose(*batch, "xyz").values.reshape(-1, 3)
         xy_rows = xy.broadcast_like(need.isel(xyz=0, drop=True)).transpose(*batch, "chromaticity").values
     else:
-        _, A, black, _ = observer_optics(display, obs)
+        _, A, black, _ = observer_optics(display, calibration_observer)
         b = target - black
         xy_rows = np.asarray(xy.variable.set_dims({**sizes, "chromaticity": xy.sizes["chromaticity"]}).values)
     scale = np.abs(b).max(-1, keepdims=True)
@@ -241,11 +241,11 @@ def _target_values(xy: xr.DataArray, luminance: xr.DataArray, spectra: xr.DataAr
     return np.asarray(xyz.set_dims({**sizes, "xyz": 3}).values).reshape(-1, 3)
 
 
-def _need_labelled(display: Display, obs, xy, target_luminance, batch):
+def _need_labelled(display: Display, calibration_observer, xy, target_luminance, batch):
     """The labelled route of the target white minus black, for inputs xarray must align or refuse."""
     target = xy_to_xyz(xy, target_luminance)
-    primaries = display.primary_tristimulus(obs)
-    black = display.black_tristimulus(obs)
+    primaries = display.primary_tristimulus(calibration_observer)
+    black = display.black_tristimulus(calibration_observer)
     need = target - black
     extra = [d for d in need.dims if d != "xyz" and d not in batch]
     if extra:

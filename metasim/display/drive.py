@@ -146,9 +146,9 @@ def _calibration_observer(display: Display, observer):
             raise DisplayError(
                 f"the display was calibrated for observer {name!r}, which is not a standard observer; pass observer=..."
             ) from None
-    obs = single_observer(observer, display, "drive solving needs one calibration observer",
+    calibration_observer = single_observer(observer, display, "drive solving needs one calibration observer",
                           "pass the population as population=...")
-    return obs, observer_name(observer)
+    return calibration_observer, observer_name(observer)
 
 
 def _flat(array: xr.DataArray, lead: list[str], tail: list[str]) -> np.ndarray:
@@ -157,7 +157,7 @@ def _flat(array: xr.DataArray, lead: list[str], tail: list[str]) -> np.ndarray:
 
 
 def _population_objective(display, population, reference, reference_white, rgb_args, target,
-                          observer, batch, stim):
+                          observer, batch, stimulus_dims):
     """H (P, S, N, N) and f (P, S, N) of the linearised population mismatch."""
     pop = resolve_observer(population, display)
     if "observer" not in pop.dims:
@@ -175,29 +175,29 @@ def _population_objective(display, population, reference, reference_white, rgb_a
         white_spectrum = display.white_spectrum() if reference_white is None else reference_white
     else:
         raise DisplayError(f"reference must be a Display or spectra (DataArray), got {type(reference).__name__}")
-    ref_xyz = tristimulus(ref_spectra, pop)
+    reference_xyz = tristimulus(ref_spectra, pop)
     ref_white = tristimulus(white_spectrum, pop)
-    m_pop = display.primary_tristimulus(pop)
+    population_matrix = display.primary_tristimulus(pop)
     black_pop = display.black_tristimulus(pop)
-    extra = [d for d in ref_xyz.dims if d not in (*batch, *stim, "observer", "xyz")]
+    extra = [d for d in reference_xyz.dims if d not in (*batch, *stimulus_dims, "observer", "xyz")]
     if extra:
         raise DisplayError(f"reference spectra have dims {extra} that the targets lack; they must share the stimulus dims")
-    template = xr.broadcast(ref_xyz, m_pop.isel(primary=0, drop=True),
+    template = xr.broadcast(reference_xyz, population_matrix.isel(primary=0, drop=True),
                             target.isel(xyz=0, drop=True).expand_dims(observer=pop.sizes["observer"]) * 0)[0]
-    r = _flat(template, [*batch, *stim], ["observer", "xyz"])
-    white = _flat(ref_white.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
-    m = _flat(m_pop, batch, ["observer", "xyz", "primary"])
-    bk = _flat(black_pop.broadcast_like(m_pop.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
-    P, n_obs, N = int(np.prod([m_pop.sizes[d] for d in batch], dtype=int)), pop.sizes["observer"], display.n_primaries
-    r = r.reshape(P, -1, n_obs, 3)
-    m = m.reshape(P, n_obs, 3, N)
-    white = white.reshape(P, n_obs, 3)
-    bk = bk.reshape(P, n_obs, 3)
-    jac = lab_jacobian(r, white[:, None])  # (P, S, n_obs, 3, 3)
+    r = _flat(template, [*batch, *stimulus_dims], ["observer", "xyz"])
+    white = _flat(ref_white.broadcast_like(population_matrix.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
+    m = _flat(population_matrix, batch, ["observer", "xyz", "primary"])
+    black_xyz = _flat(black_pop.broadcast_like(population_matrix.isel(primary=0, drop=True)), batch, ["observer", "xyz"])
+    P, n_observers, N = int(np.prod([population_matrix.sizes[d] for d in batch], dtype=int)), pop.sizes["observer"], display.n_primaries
+    r = r.reshape(P, -1, n_observers, 3)
+    m = m.reshape(P, n_observers, 3, N)
+    white = white.reshape(P, n_observers, 3)
+    black_xyz = black_xyz.reshape(P, n_observers, 3)
+    jac = lab_jacobian(r, white[:, None])  # (P, S, n_observers, 3, 3)
     g = np.einsum("psoij,pojn->psoin", jac, m)
-    resid0 = np.einsum("psoij,psoj->psoi", jac, r - bk[:, None])
-    H = np.einsum("psoin,psoil->psnl", g, g) / n_obs
-    f = -np.einsum("psoin,psoi->psn", g, resid0) / n_obs
+    resid0 = np.einsum("psoij,psoj->psoi", jac, r - black_xyz[:, None])
+    H = np.einsum("psoin,psoil->psnl", g, g) / n_observers
+    f = -np.einsum("psoin,psoi->psn", g, resid0) / n_observers
     return H, f
 
 
@@ -279,13 +279,13 @@ def drive_solution(
     strategy = current_spelling(strategy, RENAMED_STRATEGIES, "strategy", stacklevel=4)
     if strategy not in STRATEGIES:
         raise DisplayError(f"strategy={strategy!r} is not known; allowed: {', '.join(STRATEGIES)}")
-    obs, obs_name = _calibration_observer(display, observer)
+    calibration_observer, calibration_name = _calibration_observer(display, observer)
     spectra = display.spectra
     batch = display.batch_dims
     batch_sizes = {d: spectra.sizes[d] for d in batch}
     P = int(np.prod(list(batch_sizes.values()), dtype=int))
     N = spectra.sizes["primary"]
-    responses, primaries, bk, white = observer_optics(display, obs)
+    responses, primaries, black_xyz, white = observer_optics(display, calibration_observer)
     y_white = white[:, 1]
     coord_sources = [spectra, display.black, responses]
     rgb_args = None
@@ -295,7 +295,7 @@ def drive_solution(
         rgb_args = {"rgb": rgb, "source": source, "encoding": encoding}
         light, relative, matrix, light_dims = source_light(rgb, source, encoding,
                                                            peak_luminance=float(display.peak_luminance.values.max()))
-        light, stim, stim_shape = _layout(xr.Variable((*light_dims, "primary"), light), rgb, spectra, batch_sizes,
+        light, stimulus_dims, stimulus_shape = _layout(xr.Variable((*light_dims, "primary"), light), rgb, spectra, batch_sizes,
                                           "primary")
         if light is None:  # labels of a shared batch dim differ: the xarray route
             target = rgb_to_xyz(rgb, source, encoding=encoding,
@@ -310,7 +310,7 @@ def drive_solution(
     elif target is None:
         if not isinstance(reference, xr.DataArray):
             raise DisplayError("give target (XYZ in cd/m2), rgb (source signals) or reference spectra")
-        target = tristimulus(reference, obs)
+        target = tristimulus(reference, calibration_observer)
     if target is not None:
         if not isinstance(target, xr.DataArray) or "xyz" not in target.dims:
             raise DisplayError("target must be a DataArray with an 'xyz' dim (X, Y, Z in cd/m2)")
@@ -318,12 +318,12 @@ def drive_solution(
             raise DisplayError("target XYZ must be finite numbers (cd/m2)")
         if target.sizes["xyz"] != 3:
             target.assign_coords(xyz=["X", "Y", "Z"])  # raises xarray's error for the wrong size
-        values, stim, stim_shape = _layout(target.variable, target, spectra, batch_sizes, "xyz")
+        values, stimulus_dims, stimulus_shape = _layout(target.variable, target, spectra, batch_sizes, "xyz")
         if values is None:  # labels of a shared batch dim differ: align as xarray does
             template = _labelled_white(white, batch_sizes, coord_sources)
             target_b = target.assign_coords(xyz=["X", "Y", "Z"]).broadcast_like(template)
-            values = target_b.transpose(*batch, *stim, "xyz").values
-            stim_shape = [target_b.sizes[d] for d in stim]
+            values = target_b.transpose(*batch, *stimulus_dims, "xyz").values
+            stimulus_shape = [target_b.sizes[d] for d in stimulus_dims]
             coord_sources = [target_b]
         else:
             coord_sources = [target, *coord_sources]
@@ -331,12 +331,12 @@ def drive_solution(
     elif not np.isfinite(t_abs).all():
         raise DisplayError("target XYZ must be finite numbers (cd/m2)")
     S = t_abs.shape[1]
-    dims = (*batch, *stim)
+    dims = (*batch, *stimulus_dims)
     base = coordinates(dims, coord_sources)
     if len(coord_sources) > 1:  # xarray's alignment would keep the display's labels of its batch dims
         base = _prefer(base, spectra, batch)
     A = primaries / y_white[:, None, None]
-    b = (t_abs - bk[:, None]) / y_white[:, None, None]
+    b = (t_abs - black_xyz[:, None]) / y_white[:, None, None]
 
     if strategy == "min_norm":
         H = np.broadcast_to(np.eye(N), (P, 1, N, N))
@@ -350,10 +350,10 @@ def drive_solution(
         f = np.broadcast_to((power / power.max(-1, keepdims=True))[:, None, :], (P, S, N)).copy()
     else:
         if target is None:
-            target = labelled(t_abs.reshape([*batch_sizes.values(), *stim_shape, 3]), (*dims, "xyz"), [base],
+            target = labelled(t_abs.reshape([*batch_sizes.values(), *stimulus_shape, 3]), (*dims, "xyz"), [base],
                               labels={"xyz": XYZ})
         H, f = _population_objective(display, population, reference, reference_white, rgb_args,
-                                     target.assign_coords(xyz=["X", "Y", "Z"]), obs, batch, stim)
+                                     target.assign_coords(xyz=["X", "Y", "Z"]), calibration_observer, batch, stimulus_dims)
         H = H.reshape(P, S, N, N)
         f = f.reshape(P, S, N)
         norm = np.trace(H, axis1=-2, axis2=-1)[..., None] / N
@@ -369,7 +369,7 @@ def drive_solution(
         white_n = white / y_white[:, None]
         H_s = H[p_idx, s_idx if H.shape[1] > 1 else 0]
         f_s = f[p_idx, s_idx]
-        clipped = _clip(A[p_idx], bk[p_idx] / y_white[p_idx, None], t_abs[p_idx, s_idx] / y_white[p_idx, None],
+        clipped = _clip(A[p_idx], black_xyz[p_idx] / y_white[p_idx, None], t_abs[p_idx, s_idx] / y_white[p_idx, None],
                         white_n[p_idx], H_s, f_s)
         # among drives giving the closest colour, take the strategy's choice (same batched solver)
         columns, position = np.unique(s_idx, return_inverse=True)
@@ -379,9 +379,9 @@ def drive_solution(
                                     tol=1e-7)
         drive[p_idx, s_idx] = np.where(ok[p_idx, position, None], again[p_idx, position], clipped)
 
-    achieved = bk[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
+    achieved = black_xyz[:, None] + np.einsum("pmn,psn->psm", A, drive) * y_white[:, None, None]
     return DriveSolution(display, drive, achieved, t_abs, outside, white, batch, dims,
-                         [*batch_sizes.values(), *stim_shape], base, strategy, obs_name)
+                         [*batch_sizes.values(), *stimulus_shape], base, strategy, calibration_name)
 
 
 # solve_drive takes drive_solution's keywords (one list, written once); help() shows them
@@ -404,14 +404,14 @@ def _layout(variable: xr.Variable, array: xr.DataArray, spectra: xr.DataArray, b
     """Values of ``variable`` (the data of ``array``) as (*batch, *stimulus dims, last), the stimulus
     dims and their sizes; values None when a batch dim shared with the display carries other labels
     (then xarray must align)."""
-    stim = [d for d in variable.dims if d != last and d not in batch_sizes]
-    stim_shape = [variable.sizes[d] for d in stim]
+    stimulus_dims = [d for d in variable.dims if d != last and d not in batch_sizes]
+    stimulus_shape = [variable.sizes[d] for d in stimulus_dims]
     for d in set(batch_sizes) & set(array.dims):
         if array.sizes[d] != batch_sizes[d] or (
                 d in array.xindexes and d in spectra.xindexes and not array.xindexes[d].equals(spectra.xindexes[d])):
-            return None, stim, stim_shape
-    shape = {**batch_sizes, **dict(zip(stim, stim_shape)), last: variable.sizes[last]}
-    return np.asarray(variable.set_dims(shape).values), stim, stim_shape
+            return None, stimulus_dims, stimulus_shape
+    shape = {**batch_sizes, **dict(zip(stimulus_dims, stimulus_shape)), last: variable.sizes[last]}
+    return np.asarray(variable.set_dims(shape).values), stimulus_dims, stimulus_shape
 
 
 def _labelled_white(white: np.ndarray, batch_sizes: dict, sources) -> xr.DataArray:

@@ -245,13 +245,13 @@ class Display:
         cmf_var = responses.variable.transpose(*observer_dims, "xyz", "wavelength")
         cmf = np.ascontiguousarray(cmf_var.values, dtype=float).reshape(-1, 3, cmf_var.shape[-1])
         (matrices, black), = display_matrices([self], cmf, step)
-        stim = [d for d in drive.dims if d != "primary" and d not in batch]
-        sizes = {**{d: spectra.sizes[d] for d in batch}, **{d: drive.sizes[d] for d in stim}}
+        stimulus_dims = [d for d in drive.dims if d != "primary" and d not in batch]
+        sizes = {**{d: spectra.sizes[d] for d in batch}, **{d: drive.sizes[d] for d in stimulus_dims}}
         values = drive.variable.set_dims({**sizes, "primary": self.n_primaries}).values
         xyz = apply_matrices(values.reshape(matrices.shape[0], -1, self.n_primaries), matrices, black)
         shape = [spectra.sizes[d] for d in batch] + [responses.sizes[d] for d in observer_dims] + \
-            [drive.sizes[d] for d in stim] + [3]
-        return labelled(xyz.reshape(shape), (*batch, *observer_dims, *stim, "xyz"), (spectra, responses, drive),
+            [drive.sizes[d] for d in stimulus_dims] + [3]
+        return labelled(xyz.reshape(shape), (*batch, *observer_dims, *stimulus_dims, "xyz"), (spectra, responses, drive),
                         labels={"xyz": ("X", "Y", "Z")}, name="xyz",
                         attrs={"units": "cd m-2", "long_name": "tristimulus values seen by each observer"})
 
@@ -410,12 +410,12 @@ def single_observer(observer, display: "Display | None", need: str, hint: str) -
     """:func:`resolve_observer` where one observer is needed: an ``observer`` dim of size 1 is
     dropped; a larger one is refused with ``need`` (e.g. "calibration needs one observer"), its size
     and ``hint`` (what to do instead)."""
-    obs = resolve_observer(observer, display)
-    if "observer" in obs.dims:
-        if obs.sizes["observer"] != 1:
-            raise DisplayError(f"{need}, got an 'observer' dim of size {obs.sizes['observer']}; {hint}")
-        obs = obs.isel(observer=0)
-    return obs
+    single = resolve_observer(observer, display)
+    if "observer" in single.dims:
+        if single.sizes["observer"] != 1:
+            raise DisplayError(f"{need}, got an 'observer' dim of size {single.sizes['observer']}; {hint}")
+        single = single.isel(observer=0)
+    return single
 
 
 def observer_name(observer) -> str:

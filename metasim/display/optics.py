@@ -23,14 +23,14 @@ def display_rows(display) -> np.ndarray:
     spectra = variable.transpose(*batch, "primary", "wavelength").values
     sizes = {**{d: variable.sizes[d] for d in batch}, "wavelength": variable.sizes["wavelength"]}
     black = np.asarray(display.black.variable.set_dims(sizes).values)
-    n_w = spectra.shape[-1]
-    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_w), black.reshape(-1, 1, n_w)], axis=1)
+    n_wavelengths = spectra.shape[-1]
+    return np.concatenate([spectra.reshape(-1, display.n_primaries, n_wavelengths), black.reshape(-1, 1, n_wavelengths)], axis=1)
 
 
 def observer_xyz(cmf: np.ndarray, step: float, rows: np.ndarray) -> np.ndarray:
     """XYZ (cd/m²) of radiance rows (R, wavelength) for observers cmf (O, 3, wavelength): (O·3, R)."""
-    n_w = cmf.shape[-1]
-    return K_M * step * spectral_products(cmf.reshape(-1, n_w), rows.reshape(-1, n_w))
+    n_wavelengths = cmf.shape[-1]
+    return K_M * step * spectral_products(cmf.reshape(-1, n_wavelengths), rows.reshape(-1, n_wavelengths))
 
 
 def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.ndarray, np.ndarray]]:
@@ -40,9 +40,9 @@ def display_matrices(displays, cmf: np.ndarray, step: float) -> list[tuple[np.nd
     call (one pass over the observer functions).
     """
     stacks = [display_rows(display) for display in displays]
-    n_w = cmf.shape[-1]
+    n_wavelengths = cmf.shape[-1]
     o = cmf.shape[0]
-    values = observer_xyz(cmf, step, np.concatenate([stack.reshape(-1, n_w) for stack in stacks]))
+    values = observer_xyz(cmf, step, np.concatenate([stack.reshape(-1, n_wavelengths) for stack in stacks]))
     out, start = [], 0
     for stack in stacks:
         count = stack.shape[0] * stack.shape[1]

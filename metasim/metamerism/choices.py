@@ -84,7 +84,7 @@ def rank_calibration_observers(
         grid = test.wavelengths.values
         reference, stimuli = resolve_reference(reference, grid), as_stimuli(stimuli, grid)
         observers = resolve_observers(observers, grid)
-    names, mean, p95, white, stim = [], [], [], [], []
+    names, mean, p95, white, stimulus_means = [], [], [], [], []
     for candidate in candidates:
         result = mismatch(reference, test, observers, stimuli, calibration_observer=candidate, **options)
         de = result["delta_e_2000"]
@@ -98,7 +98,7 @@ def rank_calibration_observers(
         mean.append(float(weighted_mean(pooled.ravel(), per_pair)))
         p95.append(float(quantiles(pooled.ravel(), (0.95,), per_pair)[0]))
         white.append(float(weighted_mean(result["delta_e_white"].values, weights)))
-        stim.append(float(weighted_mean(stimuli_only.ravel(), None if weights is None
+        stimulus_means.append(float(weighted_mean(stimuli_only.ravel(), None if weights is None
                                         else np.repeat(weights, stimuli_only.shape[1]))))
     if len(set(names)) != len(names):
         names = [f"{n} #{i}" for i, n in enumerate(names)]
@@ -117,7 +117,7 @@ def rank_calibration_observers(
             "mean_delta_e_white": ("calibration_observer", white, {
                 "units": DELTA_E00, "long_name": "mean CIE 2000 difference of the white", "pooled_over": "observers",
                 "includes_white": "only the white"}),
-            "mean_delta_e_stimuli": ("calibration_observer", stim, {
+            "mean_delta_e_stimuli": ("calibration_observer", stimulus_means, {
                 "units": DELTA_E00, "long_name": "mean CIE 2000 difference over the stimuli", **without_white}),
         },
         coords=coords,

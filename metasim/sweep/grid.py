@@ -291,14 +291,14 @@ class DesignGrid:
         """What :func:`metasim.sweep.store.spec_hash` reads of the full array, without making it:
         (name, dims, shape, blocks of values, attributes) per variable, in name order, then the
         Dataset attributes (none). The spectra come ``block_size`` designs at a time."""
-        n, n_p, n_w = self.count, len(self.primaries), self.wavelengths.size
+        n, n_p, n_wavelengths = self.count, len(self.primaries), self.wavelengths.size
         full = self.block(0, min(1, n))  # the coordinates' attributes and dims as the array has them
         ranges = [(a, min(a + block_size, n)) for a in range(0, n, block_size)]
         parts = {
             "design": (("design",), (n,), (np.arange(a, b) for a, b in ranges), full["design"].attrs),
             "primary": (("primary",), (n_p,), iter([np.asarray(self.primaries)]), full["primary"].attrs),
-            "spectra": (self.dims, (n, n_p, n_w), (self.spectra(a, b) for a, b in ranges), dict(self.attrs)),
-            "wavelength": (("wavelength",), (n_w,), iter([self.wavelengths]), full["wavelength"].attrs),
+            "spectra": (self.dims, (n, n_p, n_wavelengths), (self.spectra(a, b) for a, b in ranges), dict(self.attrs)),
+            "wavelength": (("wavelength",), (n_wavelengths,), iter([self.wavelengths]), full["wavelength"].attrs),
         }
         def column(name):
             return (self.parameters(a, b)[name] for a, b in ranges)

@@ -169,8 +169,8 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
 
     spectra = test.spectra.variable.transpose("design", "primary", "wavelength").values
     wavelengths = test.wavelengths.values
-    n_designs, n_primaries, n_w = spectra.shape
-    xyz = (spectral_products(spectra.reshape(-1, n_w), standard_cmf("cie1931_2", wavelengths))
+    n_designs, n_primaries, n_wavelengths = spectra.shape
+    xyz = (spectral_products(spectra.reshape(-1, n_wavelengths), standard_cmf("cie1931_2", wavelengths))
            * grid_step(wavelengths)).reshape(n_designs, n_primaries, 3)  # as tristimulus(scale="none")
     design_labels = test.spectra.coords.variables["design"].values if "design" in test.spectra.coords else None
     area, coverage, xy = xy_gamut_numbers(xyz, COVERAGE_GAMUTS, labels=design_labels)
