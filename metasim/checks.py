@@ -325,6 +325,41 @@ def known_keys(table: Mapping, allowed: Iterable[str], where: str, *,
         raise error(f"{where}: unknown key {extra[0]!r}; allowed: {', '.join(allowed)}")
 
 
+def warn_renamed(old: str, new: str, category=None, *, stacklevel: int = 2) -> None:
+    """Warn that ``old`` is renamed ``new`` and that the old name works until the next release.
+
+    The one wording of every rename notice (keywords, values, functions, spec entries).
+
+    Parameters
+    ----------
+    old, new : str
+        The old and the new name as the reader should see them (quoted or with ``()`` as fits).
+    category : type of Warning, optional
+        Default :class:`~metasim.errors.RenamedWarning`.
+    stacklevel : int
+        As for :func:`warnings.warn`, counted from the caller of this function.
+
+    Returns
+    -------
+    None
+
+    Examples
+    --------
+    >>> import warnings
+    >>> with warnings.catch_warnings(record=True) as seen:
+    ...     warnings.simplefilter("always")
+    ...     warn_renamed("strategy 'population'", "'least_mismatch'")
+    >>> str(seen[0].message)
+    "strategy 'population' is renamed 'least_mismatch'; the old name works until the next release"
+    """
+    if category is None:
+        from metasim.errors import RenamedWarning
+
+        category = RenamedWarning
+    warnings.warn(f"{old} is renamed {new}; the old name works until the next release", category,
+                  stacklevel=stacklevel + 1)
+
+
 def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3):
     """The current name of ``value``: an old spelling in ``renamed`` (old → new) still works for one
     release, with a :class:`~metasim.errors.RenamedWarning` naming the new one; anything else as given.
@@ -356,10 +391,7 @@ def current_spelling(value, renamed: Mapping, what: str, *, stacklevel: int = 3)
     "strategy 'population' is renamed 'least_mismatch'; the old name works until the next release"
     """
     if isinstance(value, str) and value in renamed:
-        from metasim.errors import RenamedWarning
-
-        warnings.warn(f"{what} {value!r} is renamed {renamed[value]!r}; the old name works until the next release",
-                      RenamedWarning, stacklevel=stacklevel)
+        warn_renamed(f"{what} {value!r}", repr(renamed[value]), stacklevel=stacklevel)
         return renamed[value]
     return value
 
@@ -406,8 +438,7 @@ def renamed_keywords(**old_to_new: str):
                     raise TypeError(f"{function.__qualname__}(): both {old}= and {new}= given; {old!r} is the old "
                                     f"name of {new!r}, keep one")
                 kwargs[new] = kwargs.pop(old)
-                warnings.warn(f"{function.__qualname__}(): keyword {old!r} is renamed {new!r}; the old name works "
-                              "until the next release", DeprecatedNameWarning, stacklevel=2)
+                warn_renamed(f"{function.__qualname__}(): keyword {old!r}", repr(new), DeprecatedNameWarning)
             return function(*args, **kwargs)
 
         call.renamed_keywords = dict(old_to_new)

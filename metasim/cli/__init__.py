@@ -58,7 +58,7 @@ from pathlib import Path
 from metasim._memory import keep_freed_memory
 from metasim._version import __version__
 from metasim.cli.paths import FIGURES_DIR, FIT_FILE, REPORT_FILE, RESULT_FILE, check_command_files, parse_range, range_text
-from metasim.errors import FileFormatError, MetasimError, OptionError, RenamedWarning, ReportError, StimulusError
+from metasim.errors import FileFormatError, MetasimError, OptionError, ReportError, StimulusError
 from metasim.units import format_share
 from metasim.progress import Progress
 
@@ -246,8 +246,9 @@ def _reference(args, specs: dict):
 def _spec_reference(value: str, spec_path) -> str:
     """A spec's ``reference = "surfaces"`` (or its old name, with a notice)."""
     if value == OLD_SURFACES:
-        warnings.warn(f"{spec_path}: reference = {OLD_SURFACES!r} is renamed {SURFACES!r}; the old name works "
-                      "until the next release", RenamedWarning, stacklevel=2)
+        from metasim.checks import warn_renamed
+
+        warn_renamed(f"{spec_path}: reference = {OLD_SURFACES!r}", repr(SURFACES))
     return SURFACES
 
 

@@ -16,12 +16,12 @@ areas are single array expressions (see :mod:`metasim.gamut.polygon`); only the 
 from __future__ import annotations
 
 import functools
-import warnings
 
 import numpy as np
 import xarray as xr
 
 from metasim.colorimetry import xyz_to_uv, xyz_to_xy
+from metasim.checks import warn_renamed
 from metasim.errors import DeprecatedNameWarning, GamutError
 from metasim.gamut import polygon as geometry
 from metasim.observers.convert import as_observer
@@ -413,8 +413,7 @@ def spectrum_locus_coverage(design, observer, space: str = "xy") -> xr.DataArray
 
 def locus_share(design, observer, space: str = "xy") -> xr.DataArray:
     """The old name of :func:`spectrum_locus_coverage` (works for one release, with a warning)."""
-    warnings.warn("locus_share() is renamed spectrum_locus_coverage(); the old name works until the next release",
-                  DeprecatedNameWarning, stacklevel=2)
+    warn_renamed("locus_share()", "spectrum_locus_coverage()", DeprecatedNameWarning)
     return spectrum_locus_coverage(design, observer, space)
 
 
