@@ -400,9 +400,9 @@ def _study_categories(observers: xr.Dataset, categories: int, seed: int) -> xr.D
 
 def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: float = DEFAULT_LEVEL,
                        resamples: int = DEFAULT_RESAMPLES, seed: int = 0, pooled: str | None = None) -> xr.Dataset:
-    """mean, median, p95, max and shares beyond of ``delta_e`` over all observer × stimulus pairs
-    (observer weights if present), with intervals from resampling observers: the table of
-    :func:`metasim.statistics.population_statistics` (``pooled`` says which stimuli).
+    """mean, median, p95, max and shares above thresholds of ``delta_e`` over all observer ×
+    stimulus pairs (observer weights if present), with intervals from resampling observers: the
+    table of :func:`metasim.statistics.population_statistics` (``pooled`` says which stimuli).
 
     Parameters
     ----------
@@ -422,8 +422,8 @@ def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: f
     Returns
     -------
     Dataset
-        ``statistics`` (statistic: mean, median, p95, max) in ΔE00, ``share_beyond`` (threshold),
-        and with ``interval`` their ``*_interval`` (bound: lower, upper).
+        ``statistics`` (statistic: mean, median, p95, max) in ΔE00, ``share_above_threshold``
+        (threshold), and with ``interval`` their ``*_interval`` (bound: lower, upper).
 
     Raises
     ------
@@ -450,10 +450,10 @@ def overall_statistics(delta_e: xr.DataArray, *, interval: bool = True, level: f
 def _comparison_variables(comparison: xr.Dataset) -> dict:
     """The ``comparison_*`` variables of a study from a :func:`paired_comparison` result."""
     out = {}
-    for name in ("difference", "difference_interval", "share_beyond_difference", "share_beyond_difference_interval",
-                 "share_second_closer", "share_second_closer_interval"):
+    for name in ("difference", "difference_interval", "share_above_threshold_difference",
+                 "share_above_threshold_difference_interval", "share_second_closer", "share_second_closer_interval"):
         value = comparison[name]
-        out[f"comparison_{name.replace('share_beyond', PAIR_SHARE)}"] = xr.DataArray(value.values, dims=value.dims, attrs={
+        out[f"comparison_{name.replace('share_above_threshold', PAIR_SHARE)}"] = xr.DataArray(value.values, dims=value.dims, attrs={
             **value.attrs, "first": comparison.attrs["first"], "second": comparison.attrs["second"]})
     return out
 
@@ -467,8 +467,8 @@ def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None
     ----------
     study : Dataset
         A study result (:func:`run_study` layout), at least ``delta_e_2000_overall`` (design,
-        statistic) in ΔE00; its ``*_interval``, ``share_beyond_overall`` and ``comparison_*``
-        variables are used when present.
+        statistic) in ΔE00; its ``*_interval``, ``share_of_pairs_above_threshold`` (with its
+        interval) and ``comparison_*`` variables are used when present.
     target_half_width : float, optional
         The interval half-width on the 95th percentile the population-size advice aims at, ΔE00
         (None: the study's ``target_half_width`` attribute, else 0.1).
@@ -509,9 +509,10 @@ def study_headlines(study: xr.Dataset, *, target_half_width: float | None = None
         if interval is not None:
             table["statistics_interval"] = interval.sel(design=name)
         if "share_of_pairs_above_threshold" in study:
-            table["share_beyond"] = study["share_of_pairs_above_threshold"].sel(design=name)
+            table["share_above_threshold"] = study["share_of_pairs_above_threshold"].sel(design=name)
             if "share_of_pairs_above_threshold_interval" in study:
-                table["share_beyond_interval"] = study["share_of_pairs_above_threshold_interval"].sel(design=name)
+                table["share_above_threshold_interval"] = study["share_of_pairs_above_threshold_interval"].sel(
+                    design=name)
         lines.append(sentences.design_headline(table, str(name), reference))
     if interval is not None:
         target = target_half_width or float(study.attrs.get("target_half_width", DEFAULT_HALF_WIDTH))
@@ -720,13 +721,14 @@ def run_study(reference, designs: Sequence[Display], observers: xr.Dataset, stim
         part = part.drop_vars([c for c in part.coords if c not in part.dims and "observer" not in part[c].dims])
         part["delta_e_2000_overall"] = _plain(table["statistics"], "CIE 2000 difference over all observer x "
                                               "stimulus pairs")
-        part["share_of_pairs_above_threshold"] = _plain(table["share_beyond"], "share of observer x stimulus pairs "
-                                                "whose CIE 2000 difference is above each threshold")
+        part["share_of_pairs_above_threshold"] = _plain(table["share_above_threshold"], "share of observer x "
+                                                        "stimulus pairs whose CIE 2000 difference is above each "
+                                                        "threshold")
         part["delta_e_white_overall"] = _plain(white["statistics"], "CIE 2000 difference between the two whites, "
                                                "statistics over observers")
         if intervals:
             for name, source in (("delta_e_2000_overall_interval", table["statistics_interval"]),
-                                 ("share_of_pairs_above_threshold_interval", table["share_beyond_interval"]),
+                                 ("share_of_pairs_above_threshold_interval", table["share_above_threshold_interval"]),
                                  ("delta_e_white_overall_interval", white["statistics_interval"])):
                 part[name] = _plain(source, source.attrs["long_name"])
             p95_interval = table["statistics_interval"].sel(statistic="p95")

@@ -79,7 +79,7 @@ def main() -> None:
     thresholds = (1.0, 2.0, 3.0)
     counts = resample_counts(values.shape[0], resamples, seed=0)
     ours = pooled_replicates(values, quantiles=(0.5, 0.95), thresholds=thresholds, counts=counts)
-    mine = np.column_stack([ours["quantiles"][:, 1:].T, ours["mean"][1:], ours["share_beyond"][:, 1:].T])
+    mine = np.column_stack([ours["quantiles"][:, 1:].T, ours["mean"][1:], ours["share_above_threshold"][:, 1:].T])
     loop = min(args.loop, resamples)
     start = time.perf_counter()
     theirs = numpy_replicates(values, counts[:loop], thresholds)

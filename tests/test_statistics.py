@@ -14,7 +14,7 @@ from metasim.statistics import (
     population_statistics,
     quantiles,
     resample_counts,
-    share_beyond,
+    share_above_threshold,
     weighted_mean,
 )
 from metasim.statistics.comparison import edge_warnings, observers_needed, paired_comparison, rank_designs
@@ -53,8 +53,25 @@ def test_nan_values_are_left_out_as_numpy_does(rng):
     values[rng.random((50, 3)) < 0.2] = np.nan
     assert np.allclose(quantiles(values, [0.5, 0.95]), np.nanquantile(values, [0.5, 0.95], axis=0))  # numpy
     assert np.allclose(weighted_mean(values), np.nanmean(values, axis=0))  # numpy.nanmean
-    assert np.allclose(share_beyond(values, [0.0])[0], np.nanmean(np.where(np.isnan(values), np.nan, values > 0), 0))
+    assert np.allclose(share_above_threshold(values, [0.0])[0],
+                       np.nanmean(np.where(np.isnan(values), np.nan, values > 0), 0))  # numpy.nanmean
 
+
+
+def test_share_beyond_is_the_old_name_of_share_above_threshold(rng):
+    from metasim.statistics import summaries
+
+    values = _differences(rng, 40, 6)
+    weights = rng.uniform(0.5, 1.5, 40)
+    new = share_above_threshold(values, (1.0, 2.0), weights)
+    for module in (metasim.statistics, summaries):
+        with pytest.warns(DeprecationWarning, match=r"share_beyond\(\) is renamed share_above_threshold\(\)"):
+            old = module.share_beyond(values, (1.0, 2.0), weights)
+        assert np.array_equal(old, new)
+    w = np.repeat(weights, 6)
+    expected = [np.average(values.ravel() > t, weights=w) for t in (1.0, 2.0)]
+    assert np.allclose(share_above_threshold(values.ravel(), (1.0, 2.0), w), expected)  # numpy.average
+    assert "share_beyond" not in metasim.statistics.__all__ and "share_beyond" not in summaries.__all__
 
 def test_pooled_statistics_equal_numpy_on_all_pairs(rng):
     values = _differences(rng, 240, 25)
@@ -63,7 +80,7 @@ def test_pooled_statistics_equal_numpy_on_all_pairs(rng):
     flat = values.ravel()
     stats = plain["statistics"].sel(statistic=["mean", "median", "p95", "max"]).values
     assert np.allclose(stats, [flat.mean(), *np.quantile(flat, [0.5, 0.95]), flat.max()], rtol=1e-14, atol=0)  # numpy
-    assert np.allclose(plain["share_beyond"].values, [(flat > 1).mean(), (flat > 2).mean()])  # numpy
+    assert np.allclose(plain["share_above_threshold"].values, [(flat > 1).mean(), (flat > 2).mean()])  # numpy
     weighted = population_statistics(_table(values, weight=("observer", weights)))
     w = np.repeat(weights, 25)
     expected = np.quantile(flat, [0.5, 0.95], weights=w, method="inverted_cdf")  # numpy >= 2.0
@@ -84,7 +101,7 @@ def test_every_resample_equals_numpy_on_the_copied_observers(rng):
         copied = np.repeat(values, counts[r].astype(int), axis=0).ravel()  # the resample, built by copying rows
         assert np.allclose(plain["quantiles"][:, r + 1], np.quantile(copied, [0.5, 0.95]), rtol=0, atol=1e-12)  # numpy
         assert np.isclose(plain["mean"][r + 1], copied.mean())  # numpy
-        assert np.isclose(plain["share_beyond"][0, r + 1], (copied > 2.0).mean())  # numpy
+        assert np.isclose(plain["share_above_threshold"][0, r + 1], (copied > 2.0).mean())  # numpy
         w = np.repeat(counts[r] * weights, 30)
         expected = np.quantile(values.ravel(), [0.5, 0.95], weights=w, method="inverted_cdf")  # numpy >= 2.0
         assert np.array_equal(weighted["quantiles"][:, r + 1], expected)
@@ -171,6 +188,12 @@ def test_paired_comparison_recovers_a_known_shift(rng):
     mixed = paired_comparison(_table(base), _table(base + per_observer), labels=("old", "new"), seed=5)
     assert np.isclose(float(mixed["difference"].sel(statistic="mean")), per_observer.mean())  # arithmetic
     assert np.isclose(float(mixed["share_second_closer"]), (per_observer < 0).mean())  # arithmetic
+    thresholds = mixed["threshold"].values
+    shares = [[(values > t).mean() for t in thresholds] for values in (base, base + per_observer)]
+    assert np.allclose(mixed["share_above_threshold"].values, shares)  # numpy
+    assert np.allclose(mixed["share_above_threshold_difference"].values, np.subtract(shares[1], shares[0]))  # numpy
+    interval = mixed["share_above_threshold_difference_interval"].values
+    assert interval.shape == (2, thresholds.size) and np.all(interval[0] <= interval[1])
     counts = resample_counts(200, 400, seed=5)
     expected = percentile_interval(counts @ per_observer[:, 0] / 200)  # the same resamples of the mean shift
     assert np.allclose(mixed["difference_interval"].sel(statistic="mean").values, expected)

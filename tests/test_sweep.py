@@ -162,6 +162,29 @@ def test_per_stimulus_summaries_equal_numpy_per_design(tmp_path, swept, designs,
     np.testing.assert_allclose(result["share_of_observers_above_threshold"].isel(design=i).sel(threshold=2.0).values, (de > 2.0).mean(0))
 
 
+
+def test_weighted_observers_take_the_general_route_and_equal_numpy(tmp_path, designs, monitor, viewers, stimuli):
+    weights = np.linspace(0.5, 2.0, viewers.sizes["observer"])
+    weighted = viewers.assign_coords(weight=("observer", weights))
+    result = run_sweep(designs, monitor, weighted, stimuli, store=tmp_path / "weighted", chunk_size=4,
+                       scheduler="serial", per_stimulus=True)
+    settings = {"transfer": "bt1886", "gamma": 2.2, "peak_luminance": 100.0, "black_luminance": 0.0, "white": "D65",
+                "calibration_observer": "cie1931_2"}
+    i = 6
+    spectra = designs.isel(design=i).drop_vars([c for c in designs.coords if designs[c].dims == ("design",)])
+    alone = metasim.mismatch(monitor, chunk_display(spectra.expand_dims(design=[i]), settings), viewers, stimuli)
+    de = alone["delta_e_2000"].isel(design=0).transpose("observer", "stimulus").values
+    pair_weights = np.repeat(weights, de.shape[1])
+    # numpy's weighted average and weighted quantile (numpy >= 2.0, inverted_cdf) over all pairs
+    np.testing.assert_allclose(result["share_of_pairs_above_threshold"].isel(design=i).values,
+                               [np.average(de.ravel() > t, weights=pair_weights) for t in (1, 2, 3)], atol=1e-12)
+    np.testing.assert_allclose(result["share_of_observers_above_threshold"].isel(design=i).sel(threshold=2.0).values,
+                               np.average(de > 2.0, axis=0, weights=weights), atol=1e-12)
+    np.testing.assert_allclose(result["delta_e_2000_overall"].isel(design=i).sel(statistic=["median", "p95"]).values,
+                               np.quantile(de.ravel(), [0.5, 0.95], weights=pair_weights, method="inverted_cdf"),
+                               atol=1e-9)
+    assert result["share_of_pairs_above_threshold"].attrs["observer_weights"].startswith("the observers' weights")
+
 def test_explicit_design_list_and_objects_reference(tmp_path, viewers):
     spectra = [emitters.laser_line([red, 532, 465], 1.0, name=["R", "G", "B"]) for red in (615, 630, 645)]
     designs = design_list(spectra, red_nm=[615, 630, 645])

@@ -1,4 +1,4 @@
-"""The engine's summaries of mismatch results: per stimulus, per observer, by age band, shares beyond.
+"""The engine's summaries of mismatch results: per stimulus, per observer, by age band, shares above thresholds.
 
 Every number comes from the statistics layer (:mod:`metasim.statistics`, the only place
 summaries are computed), by its definitions: observers weighted by their ``weight`` coordinate
@@ -19,7 +19,7 @@ import xarray as xr
 from metasim._threads import blas_single_threaded
 from metasim.labelling import label_coordinate
 from metasim.errors import MismatchError
-from metasim.statistics import STATISTICS, THRESHOLDS, share_beyond, statistics_along
+from metasim.statistics import STATISTICS, THRESHOLDS, share_above_threshold, statistics_along
 from metasim.statistics import observer_weights as _statistics_weights
 from metasim.statistics.sorted_rows import observer_stimulus_stats
 from metasim.statistics.summaries import weights_note
@@ -141,7 +141,7 @@ def age_band_edges(age_bands, ages) -> tuple[float, ...] | None:
 
 
 def check_thresholds(thresholds) -> tuple[float, ...]:
-    """CIE 2000 thresholds of the shares beyond: at least one, each finite and >= 0."""
+    """CIE 2000 thresholds of the shares above threshold: at least one, each finite and >= 0."""
     try:
         values = np.atleast_1d(np.asarray(thresholds, dtype=float))
     except (TypeError, ValueError):
@@ -280,12 +280,13 @@ def summary_attrs(weights: np.ndarray | None, units: str = DELTA_E00, name: str 
         "by_age": {"units": units, "long_name": f"{what}, statistics over all observer x stimulus pairs in each age band",
                    "pooled_over": "observer x stimulus pairs (per age band)", **pooled},
         "observers_per_age_band": {"units": "1", "long_name": "observers in each age band"},
-        "share_beyond": {"units": "1", "long_name": f"share of observers whose {what} is above each threshold, per stimulus",
+        OBSERVER_SHARE: {"units": "1", "long_name": f"share of observers whose {what} is above each threshold, "
+                                                    "per stimulus",
                          "thresholds_source": "common practice, no source", "pooled_over": "observers (per stimulus)",
                          **pooled},
-        "share_beyond_overall": {"units": "1", "long_name": f"share of observer x stimulus pairs whose {what} is "
-                                                            "above each threshold",
-                                 "pooled_over": "observer x stimulus pairs", **pooled},
+        PAIR_SHARE: {"units": "1", "long_name": f"share of observer x stimulus pairs whose {what} is above each "
+                                                "threshold",
+                     "pooled_over": "observer x stimulus pairs", **pooled},
         "threshold": {"units": units, "long_name": f"{what} threshold"},
     }
 
@@ -311,7 +312,7 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
             for j in range(4))
     else:
         by_stimulus = statistics_along(values, weights, 0)
-        share = share_beyond(values, t, weights, 0)
+        share = share_above_threshold(values, t, weights, 0)
         by_observer = statistics_along(values, None, 1)
     attrs = summary_attrs(weights, units, name)
     out[f"{name}_by_stimulus"] = (("statistic", "stimulus", *rest), by_stimulus, attrs["by_stimulus"])
@@ -334,9 +335,9 @@ def summary_variables(values: np.ndarray, rest, weights: np.ndarray | None, ages
         out[f"{name}_by_age"] = (("statistic", "age_band", *rest), by_age, attrs["by_age"])
         out["observers_per_age_band"] = ("age_band", np.asarray(counts), attrs["observers_per_age_band"])
         fixed.append(label_coordinate("age_band", tuple(band_labels)))
-    out[OBSERVER_SHARE] = (("threshold", "stimulus", *rest), share, attrs["share_beyond"])
+    out[OBSERVER_SHARE] = (("threshold", "stimulus", *rest), share, attrs[OBSERVER_SHARE])
     # every stimulus weighs the same, so the share of all pairs is the mean of the stimuli's shares
-    out[PAIR_SHARE] = (("threshold", *rest), share.mean(axis=1), attrs["share_beyond_overall"])
+    out[PAIR_SHARE] = (("threshold", *rest), share.mean(axis=1), attrs[PAIR_SHARE])
     threshold = label_coordinate("threshold", tuple(t.tolist()))
     variables = {name: variable for part in fixed for name, variable in part.variables.items()}
     indexes = {name: index for part in fixed for name, index in part.xindexes.items()}

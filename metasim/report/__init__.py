@@ -320,8 +320,8 @@ def with_summaries(ds: xr.Dataset) -> xr.Dataset:
     -------
     xarray.Dataset
         ``ds`` itself when it has no ``delta_e_2000`` or has ``delta_e_2000_overall`` already; else
-        a copy with ``delta_e_2000_overall``, ``share_beyond_overall``, ``delta_e_white_overall``
-        and their ``*_interval`` (default level, resamples and seed of
+        a copy with ``delta_e_2000_overall``, ``share_of_pairs_above_threshold``,
+        ``delta_e_white_overall`` and their ``*_interval`` (default level, resamples and seed of
         :func:`metasim.statistics.population_statistics`) and the interval attributes.
 
     References
@@ -346,8 +346,8 @@ def with_summaries(ds: xr.Dataset) -> xr.Dataset:
     table = population_statistics(ds["delta_e_2000"], interval=True, pooled=str(ds.attrs.get("stimuli", "")) or None)
     ds["delta_e_2000_overall"] = table["statistics"]
     ds["delta_e_2000_overall_interval"] = table["statistics_interval"]
-    ds["share_of_pairs_above_threshold"] = table["share_beyond"]
-    ds["share_of_pairs_above_threshold_interval"] = table["share_beyond_interval"]
+    ds["share_of_pairs_above_threshold"] = table["share_above_threshold"]
+    ds["share_of_pairs_above_threshold_interval"] = table["share_above_threshold_interval"]
     if "delta_e_white" in ds:
         white = population_statistics(ds["delta_e_white"], over="observer", interval=True, pooled="the white",
                                       includes_white=True)

@@ -2,7 +2,7 @@
 
 Every summary metasim writes (engine, study, sweep, command line, report) is computed here, by the
 definitions of :mod:`metasim.statistics.summaries` (weighted mean, quantiles — numpy's linear
-method without weights, numpy's weighted ``inverted_cdf`` with them —, maximum, shares beyond
+method without weights, numpy's weighted ``inverted_cdf`` with them —, maximum, shares above
 thresholds). :func:`population_statistics` makes the labelled tables, each saying what it pools;
 :mod:`~metasim.statistics.resampling` adds percentile intervals from resampling observers;
 :mod:`~metasim.statistics.comparison` compares two designs seen by the same observers, ranks many
@@ -29,7 +29,8 @@ from metasim.statistics.summaries import (
     THRESHOLDS,
     observer_weights,
     quantiles,
-    share_beyond,
+    share_above_threshold,
+    share_beyond as share_beyond,  # the old name of share_above_threshold, one release (not in __all__)
     statistics_along,
     weighted_mean,
 )
@@ -46,7 +47,7 @@ __all__ = [
     "BOUNDS",
     "weighted_mean",
     "quantiles",
-    "share_beyond",
+    "share_above_threshold",
     "statistics_along",
     "observer_weights",
     "population_statistics",

@@ -71,11 +71,12 @@ def paired_comparison(first: xr.DataArray, second: xr.DataArray, *, labels=("A",
     -------
     Dataset
         ``statistics`` (design, statistic) and ``statistics_interval`` (bound, design, statistic)
-        of both designs pooled over observer × stimulus pairs; ``difference`` (statistic: B − A)
-        and ``difference_interval`` (bound, statistic); ``share_beyond_difference`` (threshold)
-        with its interval; ``share_second_closer`` — the weighted share of observers whose mean
-        difference over the stimuli is smaller with B than with A (ties count half) — with
-        ``share_second_closer_interval`` (bound).
+        of both designs pooled over observer × stimulus pairs, ``share_above_threshold`` (design,
+        threshold) with its interval likewise; ``difference`` (statistic: B − A) and
+        ``difference_interval`` (bound, statistic); ``share_above_threshold_difference``
+        (threshold) with its interval; ``share_second_closer`` — the weighted share of observers
+        whose mean difference over the stimuli is smaller with B than with A (ties count half) —
+        with ``share_second_closer_interval`` (bound).
 
     Examples
     --------
@@ -99,9 +100,9 @@ def paired_comparison(first: xr.DataArray, second: xr.DataArray, *, labels=("A",
     table = population_statistics(stacked, weights=weights, thresholds=thresholds, interval=True, replicates=True,
                                   level=level, resamples=resamples, seed=seed, pooled=pooled)
     reps = table["statistics_replicates"].transpose("resample", "statistic", "design").values
-    share_reps = table["share_beyond_replicates"].transpose("resample", "threshold", "design").values
+    share_reps = table["share_above_threshold_replicates"].transpose("resample", "threshold", "design").values
     point = table["statistics"].transpose("statistic", "design").values
-    share_point = table["share_beyond"].transpose("threshold", "design").values
+    share_point = table["share_above_threshold"].transpose("threshold", "design").values
     w = observer_weights(stacked, weights)
     w = np.ones(stacked.sizes["observer"]) if w is None else w
     per_observer = stacked.mean("stimulus").transpose("design", "observer").values
@@ -120,23 +121,26 @@ def paired_comparison(first: xr.DataArray, second: xr.DataArray, *, labels=("A",
             "statistics_interval": (("bound", "design", "statistic"),
                                     table["statistics_interval"].transpose("bound", "design", "statistic").values,
                                     dict(table["statistics_interval"].attrs)),
-            "share_beyond": (("design", "threshold"), share_point.T, dict(table["share_beyond"].attrs)),
-            "share_beyond_interval": (("bound", "design", "threshold"),
-                                      table["share_beyond_interval"].transpose("bound", "design", "threshold").values,
-                                      dict(table["share_beyond_interval"].attrs)),
+            "share_above_threshold": (("design", "threshold"), share_point.T,
+                                      dict(table["share_above_threshold"].attrs)),
+            "share_above_threshold_interval": (("bound", "design", "threshold"),
+                                               table["share_above_threshold_interval"].transpose(
+                                                   "bound", "design", "threshold").values,
+                                               dict(table["share_above_threshold_interval"].attrs)),
             "difference": ("statistic", point[:, 1] - point[:, 0],
                            {"units": units, "long_name": f"{labels[1]} minus {labels[0]}, each statistic"}),
             "difference_interval": (("bound", "statistic"), diff_bounds,
                                     {"units": units, "long_name": f"{100 * level:g} % interval of the difference",
                                      **interval_attrs}),
-            "share_beyond_difference": ("threshold", share_point[:, 1] - share_point[:, 0],
-                                        {"units": "1", "long_name": f"{labels[1]} minus {labels[0]}, share beyond"}),
-            "share_beyond_difference_interval": (("bound", "threshold"),
-                                                 percentile_interval(share_reps[..., 1] - share_reps[..., 0], level,
-                                                                     axis=0),
-                                                 {"units": "1", "long_name": f"{100 * level:g} % interval of the "
-                                                                            "difference of the shares beyond",
-                                                  **interval_attrs}),
+            "share_above_threshold_difference": ("threshold", share_point[:, 1] - share_point[:, 0],
+                                                 {"units": "1", "long_name": f"{labels[1]} minus {labels[0]}, share "
+                                                                             "above each threshold"}),
+            "share_above_threshold_difference_interval": (("bound", "threshold"),
+                                                          percentile_interval(share_reps[..., 1] - share_reps[..., 0],
+                                                                              level, axis=0),
+                                                          {"units": "1", "long_name": f"{100 * level:g} % interval of "
+                                                           "the difference of the shares above each threshold",
+                                                           **interval_attrs}),
             "share_second_closer": ((), float(w @ closer / w.sum()), {
                 "units": "1", "long_name": f"share of observers for whom {labels[1]} looks closer to the reference "
                                            f"than {labels[0]} (mean difference over the stimuli; ties count half)"}),

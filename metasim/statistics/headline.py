@@ -73,8 +73,8 @@ def design_headline(table: xr.Dataset, design: str, reference: str, *, threshold
     med, med_i = _cell(table, "statistics", statistic="median")
     text = (f"{design} differs from {reference} by a 95th percentile of {with_interval(p95, p95_i)} CIE 2000 units, "
             f"median {with_interval(med, med_i)}")
-    if "share_beyond" in table and threshold in table["threshold"].values:
-        share, share_i = _cell(table, "share_beyond", threshold=threshold)
+    if "share_above_threshold" in table and threshold in table["threshold"].values:
+        share, share_i = _cell(table, "share_above_threshold", threshold=threshold)
         text += f"; {share_with_interval(share, share_i)} of viewer x colour pairs beyond {threshold:g}"
     return text + "."
 

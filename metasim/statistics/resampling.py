@@ -183,7 +183,7 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
     Returns
     -------
     dict
-        ``mean`` (1 + R), ``quantiles`` (Q, 1 + R), ``share_beyond`` (T, 1 + R), ``max`` (float):
+        ``mean`` (1 + R), ``quantiles`` (Q, 1 + R), ``share_above_threshold`` (T, 1 + R), ``max`` (float):
         column 0 is the full sample, columns 1.. the resamples; values in the unit of ``values``,
         shares as fractions 0..1.
 
@@ -218,7 +218,7 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
     if members.size == 0 or n_stimuli == 0:
         nan = np.full(n_columns, np.nan)
         return {"mean": nan, "quantiles": np.tile(nan, (len(quantiles), 1)),
-                "share_beyond": np.tile(nan, (thresholds.size, 1)), "max": np.nan}
+                "share_above_threshold": np.tile(nan, (thresholds.size, 1)), "max": np.nan}
     pool = values if members.size == n_observers else values[members]
     low, high = float(pool.min()), float(pool.max())
     scale = _pooled.FINE / (high - low) if high > low else 0.0
@@ -237,7 +237,7 @@ def pooled_replicates(values: np.ndarray, *, weights: np.ndarray | None = None, 
     totals = n_stimuli * np.concatenate([[member_w.sum()], resample_w.sum(axis=1)])
     per_member = np.column_stack([sums, above])
     pooled = np.concatenate([member_w[None, :] @ per_member, resample_w @ per_member]) / totals[:, None]
-    out = {"mean": pooled[:, 0], "share_beyond": np.ascontiguousarray(pooled[:, 1:].T), "max": high}
+    out = {"mean": pooled[:, 0], "share_above_threshold": np.ascontiguousarray(pooled[:, 1:].T), "max": high}
     # the full-sample mean as numpy computes it (pairwise summation), so it equals numpy exactly
     out["mean"][0] = float(np.average(pool.mean(axis=1), weights=member_w)) if weighted else float(pool.mean())
     cumulative = np.cumsum(hist)

@@ -13,7 +13,7 @@ Definitions (used by every table metasim writes):
   whose cumulative weight share reaches q (Hyndman & Fan definition 1 with weights), exactly
   ``numpy.quantile(..., weights=w, method="inverted_cdf")`` (numpy >= 2.0).
 * **Maximum**: the largest value (weights play no part).
-* **Share beyond a threshold t**: the weighted share of values strictly greater than t.
+* **Share above a threshold t**: the weighted share of values strictly greater than t.
 * NaN values are left out (their weight counts for nothing).
 
 References
@@ -29,7 +29,8 @@ import warnings
 import numpy as np
 import xarray as xr
 
-from metasim.errors import StatisticsError
+from metasim.checks import warn_renamed
+from metasim.errors import DeprecatedNameWarning, StatisticsError
 from metasim.statistics.sorted_rows import row_stats
 
 STATISTICS = ("mean", "median", "p95", "max")
@@ -166,7 +167,7 @@ def quantiles(values, levels, weights=None, axis: int = 0) -> np.ndarray:
     return np.where(total[..., 0] > 0, out, np.nan)
 
 
-def share_beyond(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> np.ndarray:
+def share_above_threshold(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> np.ndarray:
     """Weighted share of values strictly greater than each threshold, along ``axis``.
 
     Returns shape ``(len(thresholds), *rest)``; NaN values are left out.
@@ -193,11 +194,11 @@ def share_beyond(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> 
     Two observers (rows) × three stimuli; the share of observers above 1 and 2 ΔE00 per stimulus
     (a value equal to a threshold is not above it):
 
-    >>> from metasim.statistics import share_beyond
+    >>> from metasim.statistics import share_above_threshold
     >>> differences = [[0.5, 1.5, 2.5], [1.0, 3.5, 0.2]]
-    >>> share_beyond(differences, (1.0, 2.0)).tolist()
+    >>> share_above_threshold(differences, (1.0, 2.0)).tolist()
     [[0.0, 1.0, 0.5], [0.0, 0.5, 0.5]]
-    >>> share_beyond(differences, (1.0, 2.0), weights=[3, 1]).tolist()
+    >>> share_above_threshold(differences, (1.0, 2.0), weights=[3, 1]).tolist()
     [[0.0, 1.0, 0.75], [0.0, 0.25, 0.75]]
     """
     t = np.asarray(thresholds, dtype=float).ravel()
@@ -205,6 +206,12 @@ def share_beyond(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> 
     above = (values[None] > t.reshape(-1, *([1] * values.ndim))).astype(float)
     above = np.where(np.isnan(values)[None], np.nan, above)
     return weighted_mean(above, weights, axis=-1)
+
+
+def share_beyond(values, thresholds=THRESHOLDS, weights=None, axis: int = 0) -> np.ndarray:
+    """The old name of :func:`share_above_threshold` (works for one release, with a warning)."""
+    warn_renamed("share_beyond()", "share_above_threshold()", DeprecatedNameWarning)
+    return share_above_threshold(values, thresholds, weights, axis)
 
 
 def statistics_along(values, weights=None, axis: int = 0) -> np.ndarray:
@@ -306,4 +313,4 @@ def weights_note(weights) -> str:
 
 
 __all__ = ["STATISTICS", "QUANTILE_LEVELS", "THRESHOLDS", "QUANTILE_DEFINITION", "check_weights", "weighted_mean",
-           "quantiles", "share_beyond", "statistics_along", "observer_weights", "weights_note"]
+           "quantiles", "share_above_threshold", "statistics_along", "observer_weights", "weights_note"]

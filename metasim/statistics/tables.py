@@ -28,7 +28,7 @@ from metasim.statistics.summaries import (
     STATISTICS,
     THRESHOLDS,
     observer_weights,
-    share_beyond,
+    share_above_threshold,
     statistics_along,
     weights_note,
 )
@@ -41,12 +41,12 @@ def _general_pool(pool: np.ndarray, weights: np.ndarray, thresholds: np.ndarray)
     flat = pool.ravel()
     w = np.repeat(weights, pool.shape[1])
     keep = w > 0
-    return statistics_along(flat[keep], w[keep], 0), share_beyond(flat[keep], thresholds, w[keep], 0)
+    return statistics_along(flat[keep], w[keep], 0), share_above_threshold(flat[keep], thresholds, w[keep], 0)
 
 
 def pool_statistics(pool: np.ndarray, weights: np.ndarray | None, thresholds: np.ndarray,
                     counts: np.ndarray | None, members: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Statistics (4, 1 + R) and shares beyond (T, 1 + R) of the values of ``members`` of an
+    """Statistics (4, 1 + R) and shares above (T, 1 + R) of the values of ``members`` of an
     (observer, values) array, for the full sample (column 0) and each resample (``counts``)."""
     n_columns = 1 + (0 if counts is None else counts.shape[0])
     sub = pool if members is None else pool[members]
@@ -62,7 +62,7 @@ def pool_statistics(pool: np.ndarray, weights: np.ndarray | None, thresholds: np
                             counts=counts)
     stats = np.vstack([out["mean"], out["quantiles"], np.full(n_columns, np.nan)])
     stats[3, 0] = out["max"]
-    return stats, out["share_beyond"]
+    return stats, out["share_above_threshold"]
 
 
 def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus"), weights=None,
@@ -70,7 +70,7 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
                           level: float = DEFAULT_LEVEL, resamples: int = DEFAULT_RESAMPLES, seed: int = 0,
                           replicates: bool = False, pooled: str | None = None, includes_white: bool = False
                           ) -> xr.Dataset:
-    """mean, median, p95, max and shares beyond thresholds of ``values`` over the dims ``over``.
+    """mean, median, p95, max and shares above thresholds of ``values`` over the dims ``over``.
 
     Parameters
     ----------
@@ -84,7 +84,7 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
         Observer weights; None: the ``weight`` coordinate on ``observer`` when present; False:
         equal weights.
     thresholds : sequence of float
-        Shares of values beyond each (common practice: 1, 2, 3 CIE 2000 units, no source).
+        Shares of values above each (common practice: 1, 2, 3 CIE 2000 units, no source).
     group : DataArray, optional
         A label per observer (dim ``observer``; its name becomes the output dim, e.g.
         ``age_band``): statistics of each group's pool; observers labelled "" belong to none.
@@ -103,10 +103,10 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
     Returns
     -------
     Dataset
-        ``statistics`` (statistic, …), ``share_beyond`` (threshold, …); with intervals
-        ``statistics_interval`` and ``share_beyond_interval`` (bound = lower, upper; no interval
+        ``statistics`` (statistic, …), ``share_above_threshold`` (threshold, …); with intervals
+        ``statistics_interval`` and ``share_above_threshold_interval`` (bound = lower, upper; no interval
         of the maximum: NaN); with replicates ``statistics_replicates``,
-        ``share_beyond_replicates`` (resample, …). Attributes say what is pooled, the weights,
+        ``share_above_threshold_replicates`` (resample, …). Attributes say what is pooled, the weights,
         the quantile definition and the interval method, level, resamples and seed.
 
     Examples
@@ -114,7 +114,7 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
     >>> import numpy as np, xarray as xr
     >>> values = xr.DataArray(np.arange(12.0).reshape(4, 3), dims=("observer", "stimulus"))
     >>> table = population_statistics(values, thresholds=(5.0,))
-    >>> table["statistics"].values.tolist(), table["share_beyond"].values.tolist()  # numpy's linear quantiles
+    >>> table["statistics"].values.tolist(), table["share_above_threshold"].values.tolist()  # numpy's linear quantiles
     ([5.5, 5.5, 10.45, 11.0], [0.5])
     >>> table.attrs["pooled_over"]
     'observer x stimulus pairs'
@@ -158,7 +158,7 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
     if simple:  # no resampling, one value per observer or no observers pooled: vectorised numpy
         flat = blocks.reshape(k, -1)
         stats[0, :, :, 0] = statistics_along(flat, w_pool, axis=1).T
-        shares[0, :, :, 0] = share_beyond(flat, thresholds, w_pool, axis=1).T
+        shares[0, :, :, 0] = share_above_threshold(flat, thresholds, w_pool, axis=1).T
     else:
         for g, (_, members) in enumerate(groups):
             for i in range(k):
@@ -176,8 +176,8 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
     data = {
         "statistics": (("statistic", *out_rest), s_all[..., 0],
                        {"units": values.attrs.get("units", "1"), "long_name": f"statistics over {attrs['pooled_over']}"}),
-        "share_beyond": (("threshold", *out_rest), t_all[..., 0],
-                         {"units": "1", "long_name": f"share beyond each threshold, over {attrs['pooled_over']}"}),
+        "share_above_threshold": (("threshold", *out_rest), t_all[..., 0],
+                                  {"units": "1", "long_name": f"share above each threshold, over {attrs['pooled_over']}"}),
     }
     interval_attrs = {}
     if interval:
@@ -188,13 +188,14 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
         data["statistics_interval"] = (("bound", "statistic", *out_rest), s_bounds, {
             "units": data["statistics"][2]["units"], "long_name": f"{100 * level:g} % interval of each statistic",
             **interval_attrs})
-        data["share_beyond_interval"] = (("bound", "threshold", *out_rest), percentile_interval(t_all[..., 1:], level), {
+        data["share_above_threshold_interval"] = (("bound", "threshold", *out_rest), percentile_interval(t_all[..., 1:], level), {
             "units": "1", "long_name": f"{100 * level:g} % interval of each share", **interval_attrs})
     if replicates:
         data["statistics_replicates"] = (("resample", "statistic", *out_rest), np.moveaxis(s_all[..., 1:], -1, 0),
                                          {"units": data["statistics"][2]["units"], "long_name": "statistics of each resample"})
-        data["share_beyond_replicates"] = (("resample", "threshold", *out_rest), np.moveaxis(t_all[..., 1:], -1, 0),
-                                           {"units": "1", "long_name": "shares of each resample"})
+        data["share_above_threshold_replicates"] = (("resample", "threshold", *out_rest),
+                                                    np.moveaxis(t_all[..., 1:], -1, 0),
+                                                    {"units": "1", "long_name": "shares of each resample"})
     coords = {"statistic": list(STATISTICS),
               "threshold": ("threshold", thresholds, {"units": values.attrs.get("units", "1"),
                                                       "long_name": "difference threshold"})}
@@ -206,7 +207,7 @@ def population_statistics(values: xr.DataArray, *, over=("observer", "stimulus")
         if set(coord.dims) <= set(rest):
             coords[name] = coord.variable
     out = xr.Dataset(data, coords=coords)
-    for name in ("statistics", "share_beyond"):
+    for name in ("statistics", "share_above_threshold"):
         out[name].attrs.update({key: attrs[key] for key in ("pooled_over", "pooled_stimuli", "includes_white",
                                                              "observer_weights")})
     out.attrs = {**attrs, **interval_attrs, "metasim_version": __version__}

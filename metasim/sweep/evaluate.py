@@ -49,6 +49,8 @@ from metasim.metamerism.engine import (
 )
 from metasim.metamerism.summary import (
     DECADES,
+    OBSERVER_SHARE,
+    PAIR_SHARE,
     STATISTICS,
     THRESHOLDS,
     age_band_members,
@@ -70,22 +72,22 @@ def pair_statistics(values: np.ndarray, weights: np.ndarray | None = None) -> np
 
 
 def overall_shares(share: np.ndarray) -> np.ndarray:
-    """Share of all pairs beyond each threshold (P, T) from the shares per stimulus (P, T, S): the
+    """Share of all pairs above each threshold (P, T) from the shares per stimulus (P, T, S): the
     mean over stimuli, added in the order the engine's summaries add them."""
     return np.ascontiguousarray(np.moveaxis(share, 0, -1)).mean(axis=1).T
 
 
 def band_and_stimulus_statistics(values: np.ndarray, weights, ages, age_bands, thresholds, per_stimulus: bool):
-    """Shares beyond the thresholds per stimulus (P, T, S), of all pairs (P, T), the statistics of
+    """Shares above the thresholds per stimulus (P, T, S), of all pairs (P, T), the statistics of
     each age band's pairs (P, 4, G; None without ages) and, if asked, the statistics over observers
     per stimulus (P, 4, S), as :func:`metasim.metamerism.summary.summary_variables` gives them for
     a mismatch result (the statistics layer's route); ``values`` (P, O, S)."""
     out, _ = summary_variables(np.moveaxis(values, 0, -1), ["design"], weights, ages, age_bands=age_bands,
                                thresholds=thresholds, name="d")
-    share = np.moveaxis(out["share_beyond"][1], -1, 0)
+    share = np.moveaxis(out[OBSERVER_SHARE][1], -1, 0)
     by_age = np.moveaxis(out["d_by_age"][1], -1, 0) if "d_by_age" in out else None
     by_stimulus = np.moveaxis(out["d_by_stimulus"][1], -1, 0) if per_stimulus else None
-    return share, np.moveaxis(out["share_beyond_overall"][1], -1, 0), by_age, by_stimulus
+    return share, np.moveaxis(out[PAIR_SHARE][1], -1, 0), by_age, by_stimulus
 
 
 class SweepContext:
@@ -266,9 +268,10 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
 
     Returns (P designs, T thresholds, S stimuli, G age bands): ``delta_e_2000_overall``,
     ``metamerism_index_overall``, ``delta_e_white`` (and ``delta_e_itp_overall``) as (P, 4) mean,
-    median, p95, max; ``share_beyond`` (P, T, S) and ``share_beyond_overall`` (P, T); with ages
-    ``delta_e_2000_by_age`` (P, 4, G); with ``per_stimulus`` ``delta_e_2000_by_stimulus`` (P, 4, S);
-    ``delta_e_2000_calibration_max`` and ``out_of_gamut_count`` (P,). Equal weights go through one
+    median, p95, max; ``share_of_observers_above_threshold`` (P, T, S) and
+    ``share_of_pairs_above_threshold`` (P, T); with ages ``delta_e_2000_by_age`` (P, 4, G); with
+    ``per_stimulus`` ``delta_e_2000_by_stimulus`` (P, 4, S); ``delta_e_2000_calibration_max`` and
+    ``out_of_gamut_count`` (P,). Equal weights go through one
     compiled pass per block (:mod:`metasim.sweep._kernels.designs`); observer weights, ΔE_ITP or a
     design with NaN differences through the arrays of :func:`design_arrays` and numpy. ``raw``: the
     designs' spectra before white calibration (design, primary, wavelength), when ``test`` was made
@@ -311,7 +314,7 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
             out["differences"] = kept
         share = counts / observers
         out.update({"delta_e_2000_overall": overall, "metamerism_index_overall": overall_index,
-                    "share_beyond": share, "share_beyond_overall": overall_shares(share)})
+                    OBSERVER_SHARE: share, PAIR_SHARE: overall_shares(share)})
         if bands is not None:
             out["delta_e_2000_by_age"] = by_band
         if per_stimulus:
@@ -331,7 +334,7 @@ def design_statistics(context: SweepContext, test: Display, per_stimulus: bool =
             delta_e, context.weights, ages, context.age_bands, context.thresholds, per_stimulus)
         numbers = {"delta_e_2000_overall": pair_statistics(delta_e, context.weights),
                    "metamerism_index_overall": pair_statistics(pairs["metamerism_index"], context.weights),
-                   "share_beyond": share, "share_beyond_overall": share_overall}
+                   OBSERVER_SHARE: share, PAIR_SHARE: share_overall}
         if by_age is not None:
             numbers["delta_e_2000_by_age"] = by_age
         if per_stimulus:

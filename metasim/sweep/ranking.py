@@ -15,8 +15,8 @@ Variables (dims):
 =============================================  ================================================
 ``delta_e_2000_overall_interval`` (design,     percentile interval of each statistic over all
 bound, statistic)                              observer × stimulus pairs (none for the maximum)
-``share_beyond_overall_interval`` (design,     interval of each share beyond a threshold
-bound, threshold)
+``share_of_pairs_above_threshold_interval``    interval of each share above a threshold
+(design, bound, threshold)
 ``delta_e_2000_p95_replicates`` (design,       the 95th percentile in each resample (paired)
 resample)
 ``best_probability`` (design)                  share of resamples in which the design is best
@@ -78,7 +78,8 @@ def interval_variables(delta_e: xr.DataArray, *, level: float = DEFAULT_LEVEL, r
 
     out = {
         "delta_e_2000_overall_interval": plain(table["statistics_interval"], "design", "bound", "statistic"),
-        "share_of_pairs_above_threshold_interval": plain(table["share_beyond_interval"], "design", "bound", "threshold"),
+        "share_of_pairs_above_threshold_interval": plain(table["share_above_threshold_interval"], "design",
+                                                         "bound", "threshold"),
         REPLICATES: plain(table["statistics_replicates"].sel(statistic="p95", drop=True), "design", "resample"),
     }
     out[REPLICATES].attrs.update({"units": DELTA_E00, "long_name": "95th percentile of CIE 2000 differences over all "

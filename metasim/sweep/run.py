@@ -324,8 +324,8 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     lab_volume : bool
         Also compute each design's CIELAB volume (slower).
     per_stimulus : bool
-        Also keep every stimulus's statistics over observers and shares beyond the thresholds
-        (``delta_e_2000_by_stimulus``, ``share_beyond``: design × stimulus numbers).
+        Also keep every stimulus's statistics over observers and shares above the thresholds
+        (``delta_e_2000_by_stimulus``, ``share_of_observers_above_threshold``: design × stimulus numbers).
     progress : callable, optional
         Called with one dict per event: ``kind`` ("waiting", "skipped", "computed", "combined"), ``chunk``,
         ``start``, ``stop``, ``done``, ``total``, ``seconds``, ``message``.

@@ -42,7 +42,7 @@ from metasim.errors import SweepError
 from metasim.colorimetry.efficacy import luminous_efficacy
 from metasim.gamut import lab_gamut_volume
 from metasim.gamut.chromaticity import xy_gamut_numbers
-from metasim.metamerism.summary import STATISTICS, summary_attrs
+from metasim.metamerism.summary import OBSERVER_SHARE, PAIR_SHARE, STATISTICS, summary_attrs
 from metasim.observers import standard_observer
 from metasim.observers.standard import standard_cmf
 from metasim.spectra import grid_step
@@ -78,7 +78,7 @@ def design_summaries(test: Display, reference, observers, stimuli, *, lab_volume
     lab_volume : bool
         Also compute the CIELAB volume of each design's colour solid (slower).
     per_stimulus : bool
-        Also keep the statistics over observers and the shares beyond the thresholds of every
+        Also keep the statistics over observers and the shares above the thresholds of every
         stimulus (design × stimulus numbers: which colours a design gets wrong).
     intervals : dict, optional
         ``level``, ``resamples`` and ``seed`` of intervals from resampling observers: adds the
@@ -157,8 +157,7 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
             "units": DELTA_E_ITP, "long_name": "ITU-R BT.2124 difference over all observer x stimulus pairs"})
     out["delta_e_white_overall"] = (design_dims, numbers["delta_e_white"], {
         "units": DELTA_E00, "long_name": "CIE 2000 difference between the two whites, statistics over observers"})
-    out["share_of_pairs_above_threshold"] = (("design", "threshold"), numbers["share_beyond_overall"],
-                                                pooled["share_beyond_overall"])
+    out[PAIR_SHARE] = (("design", "threshold"), numbers[PAIR_SHARE], pooled[PAIR_SHARE])
     if "delta_e_2000_by_age" in numbers:
         out["delta_e_2000_by_age"] = (("design", "statistic", "age_band"), numbers["delta_e_2000_by_age"],
                                       pooled["by_age"])
@@ -188,8 +187,7 @@ def summary_parts(context: SweepContext, test: Display, *, lab_volume: bool = Fa
     if per_stimulus:
         out["delta_e_2000_by_stimulus"] = (("design", "statistic", "stimulus"), numbers["delta_e_2000_by_stimulus"],
                                            pooled["by_stimulus"])
-        out["share_of_observers_above_threshold"] = (("design", "threshold", "stimulus"), numbers["share_beyond"],
-                                                      pooled["share_beyond"])
+        out[OBSERVER_SHARE] = (("design", "threshold", "stimulus"), numbers[OBSERVER_SHARE], pooled[OBSERVER_SHARE])
     interval_attrs = {}
     if intervals is not None:
         stimuli = int(context.xyz_reference.shape[1])
