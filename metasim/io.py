@@ -783,19 +783,126 @@ RENAMED_RESULT_VARIABLES = {
 }
 
 
-def with_current_names(ds):
+#: design coordinates of design grids and searches renamed since files were first written: the old
+#: prefix (the primary's label after it) → the new suffix (the label before it); the shared line
+#: width ``width_nm`` is now ``fwhm_nm``. Files and stores written before read under the new names.
+RENAMED_DESIGN_COORDINATES = {"peak_nm_": "_peak_nm", "width_nm_": "_fwhm_nm", "power_": "_relative_power"}
+_SHARED_WIDTH = ("width_nm", "fwhm_nm")
+#: ``design_model`` of the results whose design coordinates are named as above
+_NAMED_DESIGNS = ("design grid", "design search")
+
+
+def current_design_coordinate(name: str) -> str:
+    """Today's name of a design grid's or search's ``design`` coordinate (``peak_nm_R`` → ``R_peak_nm``).
+
+    Parameters
+    ----------
+    name : str
+        A coordinate name as written before the rename (:data:`RENAMED_DESIGN_COORDINATES`); any other
+        name comes back as it is.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> [current_design_coordinate(n) for n in ("peak_nm_R", "width_nm_G", "width_nm", "power_Y", "drive")]
+    ['R_peak_nm', 'G_fwhm_nm', 'fwhm_nm', 'Y_relative_power', 'drive']
+    """
+    if name == _SHARED_WIDTH[0]:
+        return _SHARED_WIDTH[1]
+    for old, new in RENAMED_DESIGN_COORDINATES.items():
+        if name.startswith(old) and len(name) > len(old):
+            return name[len(old):] + new
+    return name
+
+
+def first_design_coordinate(name: str) -> str:
+    """The name a design grid's or search's ``design`` coordinate had when stores were first written
+    (``R_peak_nm`` → ``peak_nm_R``): the spec hash reads coordinates under these names, so a store
+    begun before the rename still resumes. The inverse of :func:`current_design_coordinate`.
+
+    Parameters
+    ----------
+    name : str
+        A coordinate name of today; any other name comes back as it is.
+
+    Returns
+    -------
+    str
+
+    Examples
+    --------
+    >>> [first_design_coordinate(n) for n in ("R_peak_nm", "G_fwhm_nm", "fwhm_nm", "Y_relative_power", "drive")]
+    ['peak_nm_R', 'width_nm_G', 'width_nm', 'power_Y', 'drive']
+    """
+    if name == _SHARED_WIDTH[1]:
+        return _SHARED_WIDTH[0]
+    for old, new in RENAMED_DESIGN_COORDINATES.items():
+        if name.endswith(new) and len(name) > len(new):
+            return old + name[: -len(new)]
+    return name
+
+
+def renamed_design_coordinates(ds, parameters=None) -> dict:
+    """Old → new name of each ``design`` coordinate of ``ds`` written before the rename.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep or search result, or one chunk of a sweep store.
+    parameters : list of str, optional
+        Today's names of the design parameters (a chunk's store manifest); without it the result's
+        own ``spec`` attribute decides: only design grids' and searches' coordinates are renamed
+        (a design list keeps the names its author gave).
+
+    Returns
+    -------
+    dict
+        Old name → new name, only for names that change and whose new name is not taken.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> chunk = xr.Dataset(coords={"peak_nm_R": ("design", [620.0]), "width_nm": ("design", [1.0])})
+    >>> renamed_design_coordinates(chunk, ["R_peak_nm", "fwhm_nm"])
+    {'peak_nm_R': 'R_peak_nm', 'width_nm': 'fwhm_nm'}
+    >>> renamed_design_coordinates(chunk.assign_attrs(spec={"design_model": "design list"}))  # the author's names
+    {}
+    """
+    if parameters is None:
+        spec = getattr(ds, "attrs", {}).get("spec")
+        if isinstance(spec, str):
+            try:
+                spec = json.loads(spec)
+            except ValueError:
+                return {}
+        if not isinstance(spec, dict) or not str(spec.get("design_model", "")).startswith(_NAMED_DESIGNS):
+            return {}
+        parameters = [current_design_coordinate(str(name)) for name in spec.get("parameters", [])]
+    return {name: current_design_coordinate(name) for name in map(str, getattr(ds, "coords", ()))
+            if current_design_coordinate(name) != name and current_design_coordinate(name) in parameters
+            and current_design_coordinate(name) not in ds.coords}
+
+
+def with_current_names(ds, parameters=None):
     """A result read from a file written before a variable was renamed, with today's names
-    (:data:`RENAMED_RESULT_VARIABLES`) and one :class:`~metasim.errors.RenamedWarning` naming them.
+    (:data:`RENAMED_RESULT_VARIABLES`, and the design coordinates of :data:`RENAMED_DESIGN_COORDINATES`)
+    and one :class:`~metasim.errors.RenamedWarning` naming them.
 
     Parameters
     ----------
     ds : xarray.Dataset
         A Dataset as read (anything else is returned unchanged).
+    parameters : list of str, optional
+        Today's names of the design parameters, for a sweep chunk (:func:`renamed_design_coordinates`).
 
     Returns
     -------
     xarray.Dataset
-        ``ds`` with old variable names replaced (a name whose new spelling is already present stays).
+        ``ds`` with old variable names replaced (a name whose new spelling is already present stays);
+        a sweep's or search's ``spec`` attribute lists its parameters under the new names.
 
     Examples
     --------
@@ -807,21 +914,40 @@ def with_current_names(ds):
     ['spectrum_locus_coverage']
     >>> str(seen[0].message)
     "a file written before variables were renamed: 'locus_share' is read as 'spectrum_locus_coverage'"
+    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [620.0, 640.0])},
+    ...                    attrs={"spec": {"design_model": "design grid: laser", "parameters": ["peak_nm_R"]}})
+    >>> with warnings.catch_warnings(record=True):
+    ...     warnings.simplefilter("always")
+    ...     current = with_current_names(sweep)
+    >>> list(current.coords), current.attrs["spec"]["parameters"]
+    (['R_peak_nm'], ['R_peak_nm'])
     """
     import warnings
 
     from metasim.errors import RenamedWarning
 
+    if not hasattr(ds, "variables"):
+        return ds
     old = {name: new for name, new in RENAMED_RESULT_VARIABLES.items()
-           if name in getattr(ds, "variables", ()) and new not in ds.variables}
+           if name in ds.variables and new not in ds.variables}
+    old.update(renamed_design_coordinates(ds, parameters))
     if not old:
         return ds
     warnings.warn("a file written before variables were renamed: "
                   + ", ".join(f"{name!r} is read as {new!r}" for name, new in old.items()), RenamedWarning,
                   stacklevel=3)
-    return ds.rename(old)
+    ds = ds.rename(old)
+    spec = ds.attrs.get("spec")
+    if isinstance(spec, dict) and isinstance(spec.get("parameters"), list):
+        spec = {**spec, "parameters": [current_design_coordinate(str(n)) if str(n) in old else n
+                                       for n in spec["parameters"]]}
+        if isinstance(spec.get("bounds"), dict):
+            spec["bounds"] = {old.get(k, k): v for k, v in spec["bounds"].items()}
+        ds.attrs = {**ds.attrs, "spec": spec}
+    return ds
 
 
 __all__ = ["PARTIAL_SUFFIX", "partial_path", "process_alive", "remove_stale_partials", "same_file", "check_outputs",
            "atomic_output", "write_bytes", "write_text", "read_text_file", "read_csv_rows", "save_dataset",
-           "load_dataset", "RENAMED_RESULT_VARIABLES", "with_current_names"]
+           "load_dataset", "RENAMED_RESULT_VARIABLES", "with_current_names", "RENAMED_DESIGN_COORDINATES",
+           "current_design_coordinate", "first_design_coordinate", "renamed_design_coordinates"]

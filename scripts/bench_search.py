@@ -31,8 +31,8 @@ from metasim.emitters import gaussian
 from metasim.metamerism import primaries_and_secondaries
 from metasim.sweep import best_design, design_grid, run_search, run_sweep, search_space
 
-BOUNDS = {"peak_nm_R": (600.0, 650.0), "peak_nm_G": (510.0, 560.0), "peak_nm_B": (440.0, 475.0),
-          "width_nm_G": (5.0, 70.0)}
+BOUNDS = {"R_peak_nm": (600.0, 650.0), "G_peak_nm": (510.0, 560.0), "B_peak_nm": (440.0, 475.0),
+          "G_fwhm_nm": (5.0, 70.0)}
 
 
 def main() -> None:
@@ -53,8 +53,8 @@ def main() -> None:
           f"{stimuli.sizes['stimulus']} stimuli, objective p95 CIE 2000 difference")
 
     with tempfile.TemporaryDirectory() as folder:
-        designs = design_grid("gaussian", {"R": axes["peak_nm_R"], "G": axes["peak_nm_G"], "B": axes["peak_nm_B"]},
-                              {"R": [20.0], "G": axes["width_nm_G"], "B": [20.0]})
+        designs = design_grid("gaussian", {"R": axes["R_peak_nm"], "G": axes["G_peak_nm"], "B": axes["B_peak_nm"]},
+                              {"R": [20.0], "G": axes["G_fwhm_nm"], "B": [20.0]})
         start = time.perf_counter()
         grid = run_sweep(designs, monitor, viewers, stimuli, store=Path(folder) / "grid", scheduler="threads")
         grid_seconds = time.perf_counter() - start
@@ -63,12 +63,12 @@ def main() -> None:
         grid_best = float(p95[best])
         print(f"grid:   {count} designs in {grid_seconds:.1f} s ({count / grid_seconds:.0f} designs/s); optimum "
               f"{grid_best:.4f} at " + ", ".join(f"{n} {float(grid[n].values[best]):g}"
-                                                for n in ("peak_nm_R", "peak_nm_G", "peak_nm_B", "width_nm_G")))
+                                                for n in ("R_peak_nm", "G_peak_nm", "B_peak_nm", "G_fwhm_nm")))
 
-        space = search_space("gaussian", {"R": {"peak_nm": list(BOUNDS["peak_nm_R"]), "width_nm": 20.0},
-                                          "G": {"peak_nm": list(BOUNDS["peak_nm_G"]),
-                                                "width_nm": list(BOUNDS["width_nm_G"])},
-                                          "B": {"peak_nm": list(BOUNDS["peak_nm_B"]), "width_nm": 20.0}})
+        space = search_space("gaussian", {"R": {"peak_nm": list(BOUNDS["R_peak_nm"]), "fwhm_nm": 20.0},
+                                          "G": {"peak_nm": list(BOUNDS["G_peak_nm"]),
+                                                "fwhm_nm": list(BOUNDS["G_fwhm_nm"])},
+                                          "B": {"peak_nm": list(BOUNDS["B_peak_nm"]), "fwhm_nm": 20.0}})
         budget = count // 10
         population = 40
         generations = budget // population - 1  # the initial population counts as one generation

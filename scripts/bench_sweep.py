@@ -95,9 +95,9 @@ def grid(size: int, lazy: bool = True):
         r = g = b = max(1, round(size ** (1 / 3)))
     peaks = {"R": np.linspace(615, 660, r), "G": np.linspace(515, 550, g), "B": np.linspace(440, 470, b)}
     try:
-        return design_grid("laser", peaks_nm=peaks, width_nm=1.0, lazy=lazy)
+        return design_grid("laser", peaks_nm=peaks, fwhm_nm=1.0, lazy=lazy)
     except TypeError:  # a metasim without lazy grids (for before/after figures with PYTHONPATH)
-        return design_grid("laser", peaks_nm=peaks, width_nm=1.0)
+        return design_grid("laser", peaks_nm=peaks, fwhm_nm=1.0)
 
 
 def one_size(args) -> dict:

@@ -83,7 +83,7 @@ def sweep(tmp_path_factory):
     monitor = metasim.calibrate_white(metasim.make_display(emitters.gaussian([612, 548, 455], [38, 42, 28],
                                                                              name=["R", "G", "B"])), "cie1931_2")
     viewers = metasim.observer_population(12, seed=4, age_years=(20, 70))
-    designs = design_grid("laser", peaks_nm={"R": [615, 635, 655], "G": [520, 540], "B": [465]}, width_nm=1.0)
+    designs = design_grid("laser", peaks_nm={"R": [615, 635, 655], "G": [520, 540], "B": [465]}, fwhm_nm=1.0)
     store = tmp_path_factory.mktemp("pareto") / "store"
     return run_sweep(designs, monitor, viewers, primaries_and_secondaries().isel(stimulus=slice(0, 4)), store=store,
                      scheduler="serial")
@@ -105,7 +105,7 @@ def test_white_efficacy_equals_colour_science(sweep):
     # the efficacy of the first design's calibrated white, recomputed from its spectrum by colour-science
     from metasim.sweep import chunk_display
 
-    designs = design_grid("laser", peaks_nm={"R": [615], "G": [520], "B": [465]}, width_nm=1.0)
+    designs = design_grid("laser", peaks_nm={"R": [615], "G": [520], "B": [465]}, fwhm_nm=1.0)
     from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS
 
     white = chunk_display(designs, DEFAULT_DISPLAY_SETTINGS).white_spectrum().isel(design=0)

@@ -3,6 +3,7 @@ release, with a warning that names the new spelling."""
 
 import importlib
 import warnings
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -11,6 +12,8 @@ from test_cli import DEMO, run
 import metasim
 from metasim.cli.specs import load_display
 from metasim.errors import RenamedWarning
+from metasim.io import first_design_coordinate
+from metasim.sweep.grid import hashed_designs
 from metasim.metamerism import categories, cie_13_3_samples, primaries_and_secondaries
 
 #: the laser-phosphor demo spec written with every old key name
@@ -173,6 +176,11 @@ def test_old_filter_and_grid_keywords_work_and_warn():
     new = metasim.design_grid("laser", {"R": [630, 640]}, 1.0, base=base, relative_power=2.0)
     xr_equal = old.identical(new)
     assert xr_equal
+    with pytest.warns(DeprecationWarning, match="'width_nm' is renamed 'fwhm_nm'"):
+        old = metasim.design_grid("laser", {"R": [630, 640]}, base=base, width_nm=[1.0, 2.0])
+    new = metasim.design_grid("laser", {"R": [630, 640]}, base=base, fwhm_nm=[1.0, 2.0])
+    assert old.identical(new) and list(new.coords) == ["design", "primary", "wavelength", "R_peak_nm", "fwhm_nm"]
+    assert new["fwhm_nm"].attrs == {"units": "nm", "long_name": "linewidth of the varied primaries"}
 
 
 def test_spectrum_locus_coverage_was_locus_share():
@@ -249,7 +257,7 @@ def test_search_spec_keys_fwhm_nm_and_relative_power(tmp_path):
     messages = " ".join(str(w.message) for w in seen)
     assert "'width_nm' is renamed 'fwhm_nm'" in messages and "'power' is renamed 'relative_power'" in messages
     assert old.describe() == new.describe()  # the same searched space (and store hash) either way
-    assert [name for name, _, _ in new.parameters] == ["peak_nm_R", "power_R"]
+    assert [name for name, _, _ in new.parameters] == ["R_peak_nm", "R_relative_power"]
     assert "fwhm_nm = 1.0" in (DEMO / "search_red_green.toml").read_text(encoding="utf-8")
 
 
@@ -262,3 +270,118 @@ def test_old_import_path_of_the_observer_categories_works_with_a_warning(old_mod
     assert old is getattr(categories, name)
     with pytest.raises(AttributeError, match="no_such_name"):
         module.no_such_name
+
+
+# -- design coordinates: <label>_peak_nm, <label>_fwhm_nm, <label>_relative_power ---------------------------
+
+#: a sweep store written by metasim 0.1.0 (the release before the design coordinates were renamed) and
+#: interrupted after its first chunk: two laser designs (red at 630 and 645 nm, green 532, blue 465,
+#: 1 nm line widths given per primary), the suite's monitor as reference, 4 observers (seed 5, ages
+#: 20-70), the six primaries and secondaries, chunks of one design
+OLD_STORE = Path(__file__).parent / "data" / "sweep-store-0.1.0"
+#: spec hashes metasim 0.1.0 computed (see test_stores_begun_before_the_rename_keep_their_spec_hash)
+HASHES_0_1_0 = {"shared_lazy_grid": "26a00d797e28ea9257db698bfbefaf0d527679bf4c48b8f5cd546f26008ce0d2",
+                "search_generation_designs": "7005d2c7e35ecf2d83e4b2ecf131cbdc809b011b326ab6deee2ae96ef9333f36",
+                "search_space": "d13bfad984f2f7dfd867c45f3a905c59898f32fc0742b9baa7afde9c5c7f72dd"}
+
+
+def old_store_designs():
+    return metasim.design_grid("laser", peaks_nm={"R": [630, 645], "G": [532], "B": [465]},
+                               fwhm_nm={"R": [1.0], "G": [1.0], "B": [1.0]})
+
+
+def old_store_viewers():
+    return metasim.observer_population(4, seed=5, age_years=(20, 70))
+
+
+def test_grid_and_search_coordinates_name_the_primary_then_the_parameter():
+    from metasim.sweep import search_space
+
+    grid = old_store_designs()
+    assert [c for c in grid.coords if grid[c].dims == ("design",) and c != "design"] == [
+        "R_peak_nm", "G_peak_nm", "B_peak_nm", "R_fwhm_nm", "G_fwhm_nm", "B_fwhm_nm"]
+    assert grid["R_fwhm_nm"].attrs == {"units": "nm", "long_name": "linewidth of primary R"}
+    space = search_space("laser", {"R": {"peak_nm": [615, 660], "fwhm_nm": [1.0, 3.0], "relative_power": [0.5, 2.0]},
+                                   "G": {"peak_nm": 532}, "B": {"peak_nm": 465}})
+    designs = space.designs([[630, 1.5, 1.0]])
+    assert [name for name, _, _ in space.parameters] == ["R_peak_nm", "R_fwhm_nm", "R_relative_power"]
+    assert designs["R_relative_power"].attrs["long_name"] == "relative power before calibration of primary R"
+    with pytest.warns(RenamedWarning, match="primary 'R' parameter 'power' is renamed 'relative_power'"):
+        old = search_space("laser", {"R": {"peak_nm": [615, 660], "width_nm": [1.0, 3.0], "power": [0.5, 2.0]},
+                                     "G": {"peak_nm": 532}, "B": {"peak_nm": 465}})
+    assert old.describe() == space.describe() and old.parameters == space.parameters
+    with pytest.raises(metasim.errors.SweepError, match="both 'width_nm' and 'fwhm_nm' given"):
+        search_space("laser", {"R": {"peak_nm": 630, "width_nm": 1.0, "fwhm_nm": 2.0}, "G": {"peak_nm": 532},
+                               "B": {"peak_nm": 465}})
+
+
+def test_stores_begun_before_the_rename_keep_their_spec_hash():
+    """The spec hash reads design coordinates under their first names, so a store begun by 0.1.0
+    resumes: the hashes below were computed by metasim 0.1.0 for the same inputs."""
+    from metasim.sweep import search_space, spec_hash
+
+    shared = metasim.design_grid("laser", peaks_nm={"R": [630, 645], "G": [532], "B": [465]}, fwhm_nm=[1.0, 2.0],
+                                 lazy=True)
+    space = search_space("laser", {"R": {"peak_nm": [615, 660], "fwhm_nm": [1.0, 3.0], "relative_power": [0.5, 2.0]},
+                                   "G": {"peak_nm": 532}, "B": {"peak_nm": 465}})
+    generation = space.designs([[630, 1.5, 1.0], [640, 2.0, 1.5]])
+    assert spec_hash(shared) == HASHES_0_1_0["shared_lazy_grid"]
+    assert spec_hash(hashed_designs(generation)) == HASHES_0_1_0["search_generation_designs"]
+    assert spec_hash(space.describe()) == HASHES_0_1_0["search_space"]
+    # the whole grid as an array hashes like the lazy grid
+    assert spec_hash(hashed_designs(shared.block(0, shared.count))) == HASHES_0_1_0["shared_lazy_grid"]
+
+
+def test_a_sweep_store_begun_before_the_rename_resumes_under_the_new_names(tmp_path, monitor, stimuli):
+    import json
+    import shutil
+
+    from metasim.sweep import run_sweep
+    from metasim.sweep.store import file_checksum
+
+    store = shutil.copytree(OLD_STORE, tmp_path / "store")
+    before = json.loads((store / "manifest.json").read_text())
+    kept = file_checksum(store / "chunk-00000.nc")
+    with pytest.warns(RenamedWarning, match="'peak_nm_R' is read as 'R_peak_nm'"):
+        resumed = run_sweep(old_store_designs(), monitor, old_store_viewers(), stimuli, store=store, chunk_size=1,
+                            scheduler="serial").load()
+    after = json.loads((store / "manifest.json").read_text())
+    assert after["spec_hash"] == before["spec_hash"]  # the same sweep: not refused, not started afresh
+    assert file_checksum(store / "chunk-00000.nc") == kept  # the chunk 0.1.0 computed is kept, not redone
+    assert after["spec"]["parameters"] == ["R_peak_nm", "G_peak_nm", "B_peak_nm", "R_fwhm_nm", "G_fwhm_nm",
+                                           "B_fwhm_nm"]
+    fresh = run_sweep(old_store_designs(), monitor, old_store_viewers(), stimuli, store=tmp_path / "fresh",
+                      chunk_size=1, scheduler="serial").load()
+    assert set(resumed.coords) == set(fresh.coords) and "peak_nm_R" not in resumed.coords
+    for name in fresh.data_vars:
+        if fresh[name].dtype.kind == "f":
+            np.testing.assert_allclose(resumed[name].values, fresh[name].values, rtol=0, atol=1e-12, err_msg=name)
+        else:
+            np.testing.assert_array_equal(resumed[name].values, fresh[name].values, err_msg=name)
+
+
+def test_a_sweep_file_written_before_the_rename_opens_under_the_new_names(tmp_path, monitor, stimuli):
+    from metasim import plots
+    from metasim.sweep import run_sweep
+    from metasim.sweep.store import open_sweep
+
+    result = run_sweep(old_store_designs(), monitor, old_store_viewers(), stimuli, store=tmp_path / "store",
+                       chunk_size=2, scheduler="serial").load()
+    first = {new: first_design_coordinate(new) for new in result.coords if first_design_coordinate(new) != new}
+    assert first == {"R_peak_nm": "peak_nm_R", "G_peak_nm": "peak_nm_G", "B_peak_nm": "peak_nm_B",
+                     "R_fwhm_nm": "width_nm_R", "G_fwhm_nm": "width_nm_G", "B_fwhm_nm": "width_nm_B"}
+    old = result.rename(first)
+    old.attrs["spec"] = {**result.attrs["spec"], "parameters": [first[n] for n in result.attrs["spec"]["parameters"]]}
+    old.attrs["edge_warnings"] = "the best design has peak_nm_R = 645 nm, the upper end of the swept range"
+    path = metasim.save_dataset(old, tmp_path / "old-sweep.nc")
+    for read in (metasim.load_dataset, open_sweep):
+        with pytest.warns(RenamedWarning, match="'width_nm_R' is read as 'R_fwhm_nm'"):
+            back = read(path)
+        assert set(back.coords) == set(result.coords)
+        assert back.attrs["spec"]["parameters"] == result.attrs["spec"]["parameters"]
+        np.testing.assert_array_equal(back["R_peak_nm"].values, [630.0, 645.0])
+    assert plots.edge_messages(back) == ["the best design has red laser peak = 645 nm, the upper end of the swept range"]
+    # a design list keeps the names its author gave, old-looking or not
+    listed = metasim.sweep.design_list([old_store_designs().isel(design=0).drop_vars(list(first))] * 2,
+                                       peak_nm_R=[630.0, 631.0])
+    assert "peak_nm_R" in hashed_designs(listed).coords

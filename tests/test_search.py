@@ -52,14 +52,14 @@ def test_finds_the_known_optimum(found):
     # (common practice, no source: identical spectra are identical stimuli for any observer)
     result = found[1]
     best = best_design(result)
-    assert best["peak_nm_R"] == pytest.approx(OPTIMUM["R"], abs=2.0)
-    assert best["peak_nm_G"] == pytest.approx(OPTIMUM["G"], abs=2.0)
+    assert best["R_peak_nm"] == pytest.approx(OPTIMUM["R"], abs=2.0)
+    assert best["G_peak_nm"] == pytest.approx(OPTIMUM["G"], abs=2.0)
     assert best["value"] < 0.3
     assert result.attrs["evaluation_count"] == result.sizes["design"] == 10 * 11
     assert set(np.unique(result["generation"].values)) == set(range(11))
     # every searched value within its bounds
-    assert result["peak_nm_R"].min() >= 615 and result["peak_nm_R"].max() <= 665
-    assert result["peak_nm_G"].min() >= 515 and result["peak_nm_G"].max() <= 550
+    assert result["R_peak_nm"].min() >= 615 and result["R_peak_nm"].max() <= 665
+    assert result["G_peak_nm"].min() >= 515 and result["G_peak_nm"].max() <= 550
 
 
 def test_constraints_are_respected(tmp_path):
@@ -88,11 +88,11 @@ def test_same_seed_same_result(found, tmp_path):
     again = run_search(space(), *inputs(), store=tmp_path / "again", generations=10, population=10, seed=3,
                        tolerance=0.0, scheduler="threads", workers=2, chunk_size=5)
     first = found[1]
-    for name in ("peak_nm_R", "peak_nm_G", "search_objective"):
+    for name in ("R_peak_nm", "G_peak_nm", "search_objective"):
         np.testing.assert_array_equal(again[name].values, first[name].values)
     other = run_search(space(), *inputs(), store=tmp_path / "other", generations=1, population=10, seed=9,
                        scheduler="serial")
-    assert not np.array_equal(other["peak_nm_R"].values, first["peak_nm_R"].values[:20])
+    assert not np.array_equal(other["R_peak_nm"].values, first["R_peak_nm"].values[:20])
 
 
 def test_result_opens_in_report_and_pareto(found):
@@ -153,7 +153,7 @@ def test_killed_search_resumes_to_the_same_result(found, tmp_path):
     with pytest.warns(MetasimWarning, match="taking over the lock"):  # the killed run's lock
         resumed = run_search(space(), *inputs(), store=store, generations=10, population=10, seed=3, tolerance=0.0,
                              scheduler="serial", chunk_size=5)
-    for name in ("peak_nm_R", "peak_nm_G", "search_objective"):
+    for name in ("R_peak_nm", "G_peak_nm", "search_objective"):
         np.testing.assert_array_equal(resumed[name].values, found[1][name].values)
     assert json.loads((store / "search.json").read_text())["seed"] == 3
 

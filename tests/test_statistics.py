@@ -220,11 +220,11 @@ def test_ranks_and_best_set(rng):
 def test_edge_warning_only_for_a_best_design_on_the_edge():
     peaks = np.arange(610.0, 651.0, 5.0)
     widths = np.ones_like(peaks)
-    edge = edge_warnings({"peak_nm_R": peaks, "width_nm": widths}, best=8, units={"peak_nm_R": "nm"})
-    assert edge == ["the best design has peak_nm_R = 650 nm, the upper end of the swept range 610-650 nm: "
+    edge = edge_warnings({"R_peak_nm": peaks, "fwhm_nm": widths}, best=8, units={"R_peak_nm": "nm"})
+    assert edge == ["the best design has R_peak_nm = 650 nm, the upper end of the swept range 610-650 nm: "
                     "extend the range beyond 650 nm"]
-    assert "extend the range below 610" in edge_warnings({"peak_nm_R": peaks}, best=0)[0]
-    assert edge_warnings({"peak_nm_R": peaks, "width_nm": widths}, best=4) == []  # interior optimum
+    assert "extend the range below 610" in edge_warnings({"R_peak_nm": peaks}, best=0)[0]
+    assert edge_warnings({"R_peak_nm": peaks, "fwhm_nm": widths}, best=4) == []  # interior optimum
 
 
 def test_population_size_advice_follows_the_square_root_law(rng):

@@ -30,7 +30,7 @@ def viewers():
 
 @pytest.fixture(scope="module")
 def designs():
-    return design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0])
+    return design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, fwhm_nm=[1.0, 3.0])
 
 
 @pytest.fixture(scope="module")
@@ -45,19 +45,19 @@ def swept(tmp_path_factory, designs, monitor, viewers, stimuli):
 def test_grid_is_the_cartesian_product(designs):
     assert designs.dims == ("design", "primary", "wavelength")
     assert designs.sizes["design"] == 8 and list(designs.primary.values) == ["R", "G", "B"]
-    combos = {(r, g, w) for r, g, w in zip(designs["peak_nm_R"].values, designs["peak_nm_G"].values,
-                                          designs["width_nm"].values)}
+    combos = {(r, g, w) for r, g, w in zip(designs["R_peak_nm"].values, designs["G_peak_nm"].values,
+                                          designs["fwhm_nm"].values)}
     assert len(combos) == 8
-    assert designs["peak_nm_R"].attrs["units"] == "nm" and designs.attrs["units"]
+    assert designs["R_peak_nm"].attrs["units"] == "nm" and designs.attrs["units"]
     one = designs.isel(design=5)
-    expected = emitters.laser_line([float(one.peak_nm_R), float(one.peak_nm_G), 460.0], float(one.width_nm))
+    expected = emitters.laser_line([float(one.R_peak_nm), float(one.G_peak_nm), 460.0], float(one.fwhm_nm))
     np.testing.assert_allclose(one.values, expected.values, atol=1e-15)  # the emitter itself (no outside reference)
 
 
 def test_grid_keeps_the_base_primaries():
     base = metasim.calibrate_white(metasim.make_display(emitters.laser_line([465, 500, 532, 639], 1.0,
                                                                             name=["B", "C", "G", "R"])), "cie1931_2")
-    grid = design_grid("laser", peaks_nm={"R": [620, 630]}, width_nm=1.0, base=base)
+    grid = design_grid("laser", peaks_nm={"R": [620, 630]}, fwhm_nm=1.0, base=base)
     assert list(grid.primary.values) == ["B", "C", "G", "R"]
     uncalibrated = emitters.laser_line([465, 500, 532, 639], 1.0, name=["B", "C", "G", "R"])
     np.testing.assert_allclose(grid.isel(design=1).sel(primary="C").values, uncalibrated.sel(primary="C").values,
@@ -102,7 +102,7 @@ def test_combined_sweep_equals_single_mismatch_calls(swept, designs, monitor, vi
         coverage = metasim.gamut_coverage(gamut, "bt2020")
         np.testing.assert_allclose(float(result["gamut_coverage"].isel(design=i).sel(reference_gamut="bt2020")),
                                    float(coverage.squeeze()), atol=1e-12)
-    np.testing.assert_array_equal(result["peak_nm_R"].values, designs["peak_nm_R"].values)
+    np.testing.assert_array_equal(result["R_peak_nm"].values, designs["R_peak_nm"].values)
     assert result["delta_e_2000_overall"].attrs["long_name"] and result["gamut_coverage"].attrs["units"] == "1"
     back = metasim.load_dataset(store / "sweep.nc")
     xr.testing.assert_identical(back, result)
@@ -234,7 +234,7 @@ def test_cli_sweep_writes_the_store(tmp_path):
     assert "combined 9 designs" in done.stderr and "result:" in done.stdout
     result = metasim.load_dataset(tmp_path / "red" / "sweep.nc")
     assert result.sizes["design"] == 9
-    np.testing.assert_allclose(result["peak_nm_R"].values, np.arange(610, 651, 5))
+    np.testing.assert_allclose(result["R_peak_nm"].values, np.arange(610, 651, 5))
     assert sorted(p.name for p in (tmp_path / "red").glob("chunk-*.nc")) == [f"chunk-0000{i}.nc" for i in range(3)]
     assert "sweep_spec_text" in result.attrs["spec"]
     # the report beside sweep.nc, as evaluate writes one beside study.nc
@@ -262,12 +262,14 @@ def test_cli_bad_sweep_spec_is_one_line(tmp_path):
 
 def test_a_lazy_grid_is_the_array_made_block_by_block(designs):
     from metasim.sweep import spec_hash
+    from metasim.sweep.grid import hashed_designs
 
-    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0], lazy=True)
-    assert lazy.sizes == dict(designs.sizes) and lazy.coordinate_names == ["peak_nm_R", "peak_nm_G", "peak_nm_B", "width_nm"]
+    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, fwhm_nm=[1.0, 3.0], lazy=True)
+    assert lazy.sizes == dict(designs.sizes) and lazy.coordinate_names == ["R_peak_nm", "G_peak_nm", "B_peak_nm", "fwhm_nm"]
     xr.testing.assert_identical(lazy.block(0, 8), designs)  # the array design_grid makes at once
     xr.testing.assert_identical(lazy.block(3, 7), designs.isel(design=slice(3, 7)))
-    assert spec_hash(lazy, "options") == spec_hash(designs, "options")  # one sweep, one store, however given
+    # one sweep, one store, however given (as run_sweep hashes them: coordinates under their first names)
+    assert spec_hash(lazy, "options") == spec_hash(hashed_designs(designs), "options")
     with pytest.raises(SweepError, match="outside the grid"):
         lazy.block(5, 9)
 
@@ -276,7 +278,7 @@ def test_lazy_grid_sweep_and_blocks_inside_chunks_give_the_same_numbers(tmp_path
                                                                          viewers, stimuli):
     import metasim.sweep.run as run
 
-    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, width_nm=[1.0, 3.0], lazy=True)
+    lazy = design_grid("laser", peaks_nm={"R": [625, 640], "G": [525, 535], "B": [460]}, fwhm_nm=[1.0, 3.0], lazy=True)
     monkeypatch.setattr(run, "PAIRS_PER_BLOCK", 2 * viewers.sizes["observer"] * stimuli.sizes["stimulus"])
     result = run_sweep(lazy, monitor, viewers, stimuli, store=tmp_path / "lazy", chunk_size=3, scheduler="threads",
                        workers=2)  # chunks of 3 designs computed in blocks of 2 and 1
@@ -299,7 +301,7 @@ def test_a_million_design_grid_runs_its_first_chunk_without_making_the_grid(monk
         return values
 
     monkeypatch.setattr(DesignGrid, "spectra", recorded)
-    lazy = design_grid("laser", peaks_nm=peaks, width_nm=1.0, lazy=True)
+    lazy = design_grid("laser", peaks_nm=peaks, fwhm_nm=1.0, lazy=True)
     count, primaries, wavelengths = lazy.sizes["design"], lazy.sizes["primary"], lazy.sizes["wavelength"]
     assert count == 1_000_000
     held = sum(table.nbytes for _, _, table in lazy._tables.values()) + sum(v.nbytes for _, v in lazy.axes)
@@ -311,7 +313,7 @@ def test_a_million_design_grid_runs_its_first_chunk_without_making_the_grid(monk
     options = {"display_settings": settings, "lab_volume": False, "mismatch": {}}
     first = evaluate_chunk((lazy, *ranges[0]), monitor, viewers, stimuli, options)
     assert first.sizes["design"] == 64 and np.isfinite(first["delta_e_2000_overall"].values).all()
-    np.testing.assert_array_equal(first["peak_nm_B"].values[:3], peaks["B"][:3])  # the last axis runs fastest
+    np.testing.assert_array_equal(first["B_peak_nm"].values[:3], peaks["B"][:3])  # the last axis runs fastest
     assert made and max(shape[0] for shape in made) <= 64  # only the chunk's designs were made
     assert all(shape[1:] == (primaries, wavelengths) for shape in made)
 

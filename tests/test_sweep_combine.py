@@ -31,7 +31,7 @@ def swept(tmp_path_factory):
     monitor = metasim.calibrate_white(metasim.make_display(
         emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])), "cie1931_2", white="D65", luminance=100)
     viewers = metasim.observer_population(4, seed=5, age_years=(20, 70))
-    designs = design_grid("laser", peaks_nm={"R": [625, 640, 655], "G": [520, 540], "B": [465]}, width_nm=[1.0])
+    designs = design_grid("laser", peaks_nm={"R": [625, 640, 655], "G": [520, 540], "B": [465]}, fwhm_nm=[1.0])
     store = tmp_path_factory.mktemp("combine") / "store"
     result = run_sweep(designs, monitor, viewers, primaries_and_secondaries(), store=store, chunk_size=2,
                        scheduler="serial", intervals=True, resamples=200, per_stimulus=True)

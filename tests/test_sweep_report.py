@@ -36,14 +36,14 @@ def inputs():
 @pytest.fixture(scope="module")
 def red_sweep(tmp_path_factory, inputs):
     store = tmp_path_factory.mktemp("red") / "store"
-    designs = design_grid("laser", peaks_nm={"R": [620, 630, 640, 650, 660], "G": [532], "B": [465]}, width_nm=1.0)
+    designs = design_grid("laser", peaks_nm={"R": [620, 630, 640, 650, 660], "G": [532], "B": [465]}, fwhm_nm=1.0)
     return store, run_sweep(designs, *inputs, store=store, chunk_size=2, scheduler="serial")
 
 
 @pytest.fixture(scope="module")
 def pair_sweep(tmp_path_factory, inputs):
     store = tmp_path_factory.mktemp("pair") / "store"
-    designs = design_grid("laser", peaks_nm={"R": [625, 645], "G": [525, 535], "B": [465]}, width_nm=1.0)
+    designs = design_grid("laser", peaks_nm={"R": [625, 645], "G": [525, 535], "B": [465]}, fwhm_nm=1.0)
     return store, run_sweep(designs, *inputs, store=store, scheduler="serial")
 
 
@@ -71,9 +71,9 @@ def test_sweep_is_recognised(red_sweep, inputs):
     result = red_sweep[1]
     assert is_sweep(result)
     assert not is_sweep(metasim.observer_population(5, seed=1))
-    assert plots.sweep_parameters(result) == (["peak_nm_R"], ["peak_nm_G", "peak_nm_B", "width_nm"])
-    assert plots.parameter_label(result, "peak_nm_R") == "red laser peak (nm)"
-    assert plots.parameter_label(result, "width_nm") == "laser line width (FWHM) (nm)"
+    assert plots.sweep_parameters(result) == (["R_peak_nm"], ["G_peak_nm", "B_peak_nm", "fwhm_nm"])
+    assert plots.parameter_label(result, "R_peak_nm") == "red laser peak (nm)"
+    assert plots.parameter_label(result, "fwhm_nm") == "laser line width (FWHM) (nm)"
 
 
 def test_one_parameter_sweep_report(red_sweep):
@@ -82,7 +82,7 @@ def test_one_parameter_sweep_report(red_sweep):
     assert_sweep_page(text, result)
     check_page(text)  # parses, every image and table whole, no stored key, the answer box first
     index, _ = best_of(result)
-    peak = float(result["peak_nm_R"].values[index])
+    peak = float(result["R_peak_nm"].values[index])
     assert f"(red laser peak {peak:g} nm)" in text
     assert "<th>red laser peak (nm)</th>" in text and "BT.2020 covered" in text
     best_table = text.split("<h2>Best designs</h2>", 1)[1].split("<h2>", 1)[0]
@@ -115,13 +115,13 @@ def test_two_parameter_sweep_report_is_a_heat_map(pair_sweep):
     assert grid.shape == (2, 2)
     p95 = result["delta_e_2000_overall"].sel(statistic="p95")
     for d in range(4):
-        i = [525.0, 535.0].index(float(result["peak_nm_G"][d]))
-        j = [625.0, 645.0].index(float(result["peak_nm_R"][d]))
+        i = [525.0, 535.0].index(float(result["G_peak_nm"][d]))
+        j = [625.0, 645.0].index(float(result["R_peak_nm"][d]))
         assert grid[i, j] == pytest.approx(float(p95[d]))  # the heat map holds the summary values (no outside reference)
 
 
 def test_more_parameters_give_a_rank_plot(pair_sweep):
-    result = pair_sweep[1].assign_coords(width_nm=("design", [1.0, 2.0, 3.0, 4.0], {"units": "nm"}))
+    result = pair_sweep[1].assign_coords(fwhm_nm=("design", [1.0, 2.0, 3.0, 4.0], {"units": "nm"}))
     figure = plots.sweep_figure(result)
     ax = figure.axes[0]
     assert_axes_labelled(figure)
@@ -158,7 +158,7 @@ def test_write_report_of_a_loaded_sweep(tmp_path, pair_sweep):
 
 
 def test_per_stimulus_sweep_lists_the_hardest_stimuli(tmp_path, inputs):
-    designs = design_grid("laser", peaks_nm={"R": [625, 645], "G": [532], "B": [465]}, width_nm=1.0)
+    designs = design_grid("laser", peaks_nm={"R": [625, 645], "G": [532], "B": [465]}, fwhm_nm=1.0)
     result = run_sweep(designs, *inputs, store=tmp_path / "per-stimulus", scheduler="serial", per_stimulus=True)
     text = render_report(result)
     index, _ = best_of(result)
@@ -174,11 +174,11 @@ def test_per_stimulus_sweep_lists_the_hardest_stimuli(tmp_path, inputs):
 def test_edge_warning_names_the_parameter_in_words():
     import xarray as xr
 
-    sweep = xr.Dataset(coords={"peak_nm_R": ("design", [610.0, 650.0], {"units": "nm"})},
-                       attrs={"edge_warnings": "the best design has peak_nm_R = 650 nm, the upper end of the swept "
+    sweep = xr.Dataset(coords={"R_peak_nm": ("design", [610.0, 650.0], {"units": "nm"})},
+                       attrs={"edge_warnings": "the best design has R_peak_nm = 650 nm, the upper end of the swept "
                                                "range 610-650 nm: extend the range beyond 650 nm"})
     (message,) = plots.sweep.edge_messages(sweep)
-    assert message.startswith("the best design has red primary peak = 650 nm") and "peak_nm_R" not in message
+    assert message.startswith("the best design has red primary peak = 650 nm") and "R_peak_nm" not in message
 
 
 def test_shares_near_the_ends_are_never_rounded_to_all_or_none(red_sweep):

@@ -30,7 +30,7 @@ def viewers():
 
 
 def grid(*red_nm):
-    return design_grid("laser", peaks_nm={"R": list(red_nm), "G": [532], "B": [465]}, width_nm=[1.0])
+    return design_grid("laser", peaks_nm={"R": list(red_nm), "G": [532], "B": [465]}, fwhm_nm=[1.0])
 
 
 def test_a_store_of_another_sweep_is_replaced_only_when_asked(tmp_path, monitor, viewers, stimuli):

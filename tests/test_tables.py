@@ -37,7 +37,7 @@ def result(monitor, viewers):
 
 @pytest.fixture(scope="module")
 def sweep_file(tmp_path_factory, monitor, viewers):
-    designs = design_grid("laser", peaks_nm={"R": [625, 640], "G": [532], "B": [460]}, width_nm=[1.0])
+    designs = design_grid("laser", peaks_nm={"R": [625, 640], "G": [532], "B": [460]}, fwhm_nm=[1.0])
     store = tmp_path_factory.mktemp("tables") / "store"
     run_sweep(designs, monitor, viewers, primaries_and_secondaries(), store=store, scheduler="serial")
     return store / "sweep.nc"
@@ -119,8 +119,8 @@ def test_sweep_file_tables_carry_the_design_parameters(tmp_path, sweep_file):
     tables = result_tables(sweep)
     per_design = next(t for t in tables if t.key == "per_design")
     assert per_design.rows == sweep.sizes["design"] == 2
-    assert "peak_nm_R [nm]" in per_design.headers
-    np.testing.assert_array_equal(per_design.column("peak_nm_R").values, [625.0, 640.0])
+    assert "R_peak_nm [nm]" in per_design.headers
+    np.testing.assert_array_equal(per_design.column("R_peak_nm").values, [625.0, 640.0])
     _check_round_trip(tables, write_csv_tables(tables, tmp_path / "csv"))
 
 

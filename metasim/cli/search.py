@@ -36,13 +36,12 @@ from metasim.cli.specs import load_display, renamed_keys
 from metasim.cli.sweep import TOP_KEYS, check_shared_keys, display_settings, read_spec_table, relative
 from metasim.errors import MetasimError, SpecError
 from metasim.sweep import search_space
+from metasim.sweep.search import PARAMETERS, RENAMED_PARAMETERS
 
 SEARCH_TOP_KEYS = tuple(k for k in TOP_KEYS if k not in ("vary", "per_stimulus")) + ("search",)
-#: a searched primary's spec keys: old name → new name (the old still read for one release, with a warning)
-RENAMED_PRIMARY_KEYS = {"width_nm": "fwhm_nm", "power": "relative_power"}
-#: a searched primary's spec keys → the parameter names of metasim.sweep.search_space (and of the
-#: search's design coordinates, e.g. ``width_nm_R``, which stores and their resuming rely on)
-SPACE_PARAMETERS = {"peak_nm": "peak_nm", "fwhm_nm": "width_nm", "relative_power": "power"}
+#: a searched primary's spec keys: old name → new name (the old still read for one release, with a warning);
+#: the keys are the parameter names of metasim.sweep.search_space
+RENAMED_PRIMARY_KEYS = RENAMED_PARAMETERS
 SEARCH_KEYS = ("kind", "profile", "seed", "generations", "population", "tolerance", "objective", "primaries",
                "constraints")
 
@@ -57,10 +56,10 @@ def read_search_spec(path) -> dict:
     for label, table in search["primaries"].items():
         if isinstance(table, dict):
             renamed_keys(table, RENAMED_PRIMARY_KEYS, f"{where} [search.primaries.{label}]")
-            unknown = [key for key in table if key not in SPACE_PARAMETERS]
+            unknown = [key for key in table if key not in PARAMETERS]
             if unknown:
                 raise SpecError(f"{where} [search.primaries.{label}]: unknown key {unknown[0]!r}; allowed: "
-                                f"{', '.join(SPACE_PARAMETERS)}")
+                                f"{', '.join(PARAMETERS)}")
     for key in ("seed", "generations", "population"):
         if key in search and (isinstance(search[key], bool) or not isinstance(search[key], int) or search[key] < 0):
             raise SpecError(f"{where} [search]: {key} = {search[key]!r} is not allowed; need a whole number >= 0")
@@ -81,13 +80,11 @@ def spec_search_space(spec: dict):
     search = spec["search"]
     base = load_display(relative(spec, spec["base"]))[0] if "base" in spec else None
     try:
-        primaries = {label: {SPACE_PARAMETERS.get(k, k): v for k, v in table.items()} if isinstance(table, dict) else table
-                     for label, table in search["primaries"].items()}
-        space = search_space(search.get("kind", "laser"), primaries, base=base,
+        space = search_space(search.get("kind", "laser"), search["primaries"], base=base,
                              profile=search.get("profile", "gaussian"))
     except MetasimError as exc:
         raise SpecError(f"{where}: {exc}") from None
     return space, display_settings(spec)
 
 
-__all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "RENAMED_PRIMARY_KEYS", "SPACE_PARAMETERS", "read_search_spec", "spec_search_space"]
+__all__ = ["SEARCH_TOP_KEYS", "SEARCH_KEYS", "RENAMED_PRIMARY_KEYS", "read_search_spec", "spec_search_space"]

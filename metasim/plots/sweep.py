@@ -10,6 +10,7 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 from matplotlib.ticker import MaxNLocator
 
+from metasim.io import first_design_coordinate
 from metasim.plots.figures import DELTA_E_LABEL, DESIGN_COLOURS, REFERENCE_COLOUR, STYLE, _figure
 from metasim.units import DELTA_E00
 
@@ -41,8 +42,8 @@ def sweep_spec(summary: xr.Dataset) -> dict:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep_spec(xr.Dataset(attrs={"spec": '{"sweep_name": "laser reds", "parameters": ["peak_nm_R"]}'}))
-    {'sweep_name': 'laser reds', 'parameters': ['peak_nm_R']}
+    >>> sweep_spec(xr.Dataset(attrs={"spec": '{"sweep_name": "laser reds", "parameters": ["R_peak_nm"]}'}))
+    {'sweep_name': 'laser reds', 'parameters': ['R_peak_nm']}
     >>> sweep_spec(xr.Dataset(attrs={"spec": "not JSON"}))
     {}
     """
@@ -89,10 +90,10 @@ def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep = xr.Dataset(coords={"design": [0, 1], "peak_nm_R": ("design", [620.0, 640.0]),
-    ...                            "width_nm": ("design", [2.0, 2.0])})
+    >>> sweep = xr.Dataset(coords={"design": [0, 1], "R_peak_nm": ("design", [620.0, 640.0]),
+    ...                            "fwhm_nm": ("design", [2.0, 2.0])})
     >>> sweep_parameters(sweep)
-    (['peak_nm_R'], ['width_nm'])
+    (['R_peak_nm'], ['fwhm_nm'])
     """
     names = [str(c) for c in summary.coords if summary[c].dims == ("design",) and c != "design"]
     order = [str(c) for c in sweep_spec(summary).get("parameters", []) if str(c) in names]
@@ -104,9 +105,10 @@ def sweep_parameters(summary: xr.Dataset) -> tuple[list[str], list[str]]:
 def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
     """Words and units of a design parameter, e.g. ``("red laser peak", "nm")`` (units "" when none).
 
-    ``peak_nm_<label>`` and ``width_nm[_<label>]`` are named from the primary's colour letter
-    (:data:`COLOUR_WORDS`) and the emitter kind of the recorded spec (:data:`EMITTER_WORDS`); other
-    parameters by their ``long_name``.
+    ``<label>_peak_nm``, ``[<label>_]fwhm_nm`` and ``<label>_relative_power`` (the coordinates of
+    design grids and searches) are named from the primary's colour letter (:data:`COLOUR_WORDS`)
+    and the emitter kind of the recorded spec (:data:`EMITTER_WORDS`); other parameters by their
+    ``long_name``.
 
     Parameters
     ----------
@@ -126,12 +128,14 @@ def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [620.0, 640.0], {"units": "nm"}),
-    ...                            "width_nm": ("design", [2.0, 4.0])},
+    >>> sweep = xr.Dataset(coords={"R_peak_nm": ("design", [620.0, 640.0], {"units": "nm"}),
+    ...                            "fwhm_nm": ("design", [2.0, 4.0]), "G_relative_power": ("design", [1.0, 1.5])},
     ...                    attrs={"spec": {"design_parameters": {"kind": "laser"}}})
-    >>> parameter_text(sweep, "peak_nm_R"), parameter_text(sweep, "width_nm")
+    >>> parameter_text(sweep, "R_peak_nm"), parameter_text(sweep, "fwhm_nm")
     (('red laser peak', 'nm'), ('laser line width (FWHM)', 'nm'))
-    >>> parameter_text(sweep.assign_attrs(spec={}), "peak_nm_R")  # no emitter kind recorded
+    >>> parameter_text(sweep, "G_relative_power")
+    ('green laser relative power', '')
+    >>> parameter_text(sweep.assign_attrs(spec={}), "R_peak_nm")  # no emitter kind recorded
     ('red primary peak', 'nm')
     """
     kind = _design_kind(summary)
@@ -139,13 +143,13 @@ def parameter_text(summary: xr.Dataset, name: str) -> tuple[str, str]:
     units = summary[name].attrs.get("units") if name in summary.coords else None
     if units is None and name.endswith("_nm"):
         units = "nm"
-    if name.startswith("peak_nm_"):
-        label = name[len("peak_nm_"):]
-        text = f"{COLOUR_WORDS.get(label, label)} {emitter} peak"
-    elif name == "width_nm" or name.startswith("width_nm_"):
-        width = "line width (FWHM)" if kind == "laser" else "FWHM"
-        label = name[len("width_nm_"):] if name != "width_nm" else None
-        text = f"{COLOUR_WORDS.get(label, label)} {emitter} {width}" if label else f"{emitter} {width}"
+    width = "line width (FWHM)" if kind == "laser" else "FWHM"
+    for suffix, what in (("_peak_nm", "peak"), ("_fwhm_nm", width), ("_relative_power", "relative power")):
+        if name.endswith(suffix) and len(name) > len(suffix):
+            label = name[: -len(suffix)]
+            return f"{COLOUR_WORDS.get(label, label)} {emitter} {what}", ("" if not units or units == "1" else str(units))
+    if name == "fwhm_nm":
+        text = f"{emitter} {width}"
     else:
         text = str(summary[name].attrs.get("long_name", name.replace("_", " "))) if name in summary.coords else name
     return text, ("" if not units or units == "1" else str(units))
@@ -169,15 +173,16 @@ def edge_messages(summary: xr.Dataset) -> list[str]:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [610.0, 650.0], {"units": "nm"})},
-    ...                    attrs={"edge_warnings": "the best design has peak_nm_R = 650 nm, the upper end"})
+    >>> sweep = xr.Dataset(coords={"R_peak_nm": ("design", [610.0, 650.0], {"units": "nm"})},
+    ...                    attrs={"edge_warnings": "the best design has R_peak_nm = 650 nm, the upper end"})
     >>> edge_messages(sweep)
     ['the best design has red primary peak = 650 nm, the upper end']
     """
     messages = [m for m in str(summary.attrs.get("edge_warnings", "")).split(" | ") if m]
     names = sorted((str(c) for c in summary.coords if summary[c].dims == ("design",)), key=len, reverse=True)
-    for name in names:
-        messages = [m.replace(f" {name} = ", f" {parameter_text(summary, name)[0]} = ") for m in messages]
+    for name in names:  # a sweep written before the coordinates were renamed names them the old way
+        for key in dict.fromkeys((name, first_design_coordinate(name))):
+            messages = [m.replace(f" {key} = ", f" {parameter_text(summary, name)[0]} = ") for m in messages]
     return messages
 
 
@@ -199,9 +204,9 @@ def parameter_label(summary: xr.Dataset, name: str) -> str:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep = xr.Dataset(coords={"peak_nm_G": ("design", [520.0, 532.0], {"units": "nm"}),
+    >>> sweep = xr.Dataset(coords={"G_peak_nm": ("design", [520.0, 532.0], {"units": "nm"}),
     ...                            "drive": ("design", ["min_norm", "max_white"], {"long_name": "drive strategy"})})
-    >>> parameter_label(sweep, "peak_nm_G"), parameter_label(sweep, "drive")
+    >>> parameter_label(sweep, "G_peak_nm"), parameter_label(sweep, "drive")
     ('green primary peak (nm)', 'drive strategy')
     """
     text, units = parameter_text(summary, name)
@@ -228,8 +233,8 @@ def parameter_value(summary: xr.Dataset, name: str, index: int) -> str:
     Examples
     --------
     >>> import xarray as xr
-    >>> sweep = xr.Dataset(coords={"peak_nm_R": ("design", [620.0, 640.0], {"units": "nm"})})
-    >>> parameter_value(sweep, "peak_nm_R", 1)
+    >>> sweep = xr.Dataset(coords={"R_peak_nm": ("design", [620.0, 640.0], {"units": "nm"})})
+    >>> parameter_value(sweep, "R_peak_nm", 1)
     '640 nm'
     """
     units = parameter_text(summary, name)[1]
@@ -414,7 +419,7 @@ def sweep_figure(summary: xr.Dataset) -> Figure:
     >>> import xarray as xr
     >>> sweep = xr.Dataset({"delta_e_2000_overall": (("design", "statistic"), [[0.9, 2.4], [0.7, 1.8], [0.8, 2.1]])},
     ...                    coords={"design": [0, 1, 2], "statistic": ["median", "p95"],
-    ...                            "peak_nm_R": ("design", [620.0, 630.0, 640.0], {"units": "nm"})})
+    ...                            "R_peak_nm": ("design", [620.0, 630.0, 640.0], {"units": "nm"})})
     >>> fig = sweep_figure(sweep)
     >>> fig.axes[0].get_title(), fig.axes[-1].get_xlabel()
     ('Mismatch of each design against the reference', 'red primary peak (nm)')

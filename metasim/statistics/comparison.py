@@ -248,13 +248,13 @@ def edge_warnings(parameters: dict, best: int, units: dict | None = None) -> lis
     best : int
         Position of the best design.
     units : dict, optional
-        Units per parameter for the messages (e.g. ``{"peak_nm_R": "nm"}``).
+        Units per parameter for the messages (e.g. ``{"R_peak_nm": "nm"}``).
 
     Returns
     -------
     list of str
         One sentence per parameter whose range the best design sits on the edge of, e.g. "the best
-        design has peak_nm_R = 650 nm, the upper end of the swept range 610-650 nm: extend the range
+        design has R_peak_nm = 650 nm, the upper end of the swept range 610-650 nm: extend the range
         beyond 650 nm"; empty for an interior optimum.
     """
     messages = []

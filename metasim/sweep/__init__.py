@@ -5,13 +5,14 @@
     from metasim.sweep import design_grid, run_sweep
 
     designs = design_grid("laser", peaks_nm={"R": [620, 630, 640], "G": [525, 532], "B": [455, 465]},
-                          width_nm=[1, 2])                         # 24 designs (design, primary, wavelength)
+                          fwhm_nm=[1, 2])                          # 24 designs (design, primary, wavelength)
     result = run_sweep(designs, monitor, viewers, stimuli, store="red-sweep", chunk_size=8)
     result["delta_e_2000_overall"].sel(statistic="p95")           # one number per design
 
 * :mod:`metasim.sweep.grid` — the designs: a Cartesian grid of emitter parameters (``design_grid``;
   with ``lazy=True`` a :class:`DesignGrid` that makes any block of designs on demand) or an
-  explicit list of spectra (``design_list``); parameters become ``design`` coordinates.
+  explicit list of spectra (``design_list``); parameters become ``design`` coordinates
+  (``R_peak_nm``, ``fwhm_nm`` ...).
 * :mod:`metasim.sweep.evaluate` — the reference side of the mismatch procedure prepared once per
   sweep, and a block of designs taken through the rest (one compiled pass, ``sweep/_kernels``).
 * :mod:`metasim.sweep.summary` — a block of designs' mismatch and gamut numbers reduced to

@@ -1,9 +1,11 @@
 """Candidate designs of a sweep: a Cartesian grid of emitter parameters, or an explicit list of spectra.
 
 A sweep's designs are one DataArray ``design × primary × wavelength`` of spectral radiance at full
-drive (W·sr⁻¹·m⁻²·nm⁻¹), the swept parameters as ``design`` coordinates (``peak_nm_R``,
-``width_nm`` ...). The display-level settings the designs share (transfer function, white,
-luminance, calibration observer) travel with it in the attribute ``display_settings``;
+drive (W·sr⁻¹·m⁻²·nm⁻¹), the swept parameters as ``design`` coordinates named by the primary's
+label and the parameter (``R_peak_nm``, ``R_fwhm_nm``, or ``fwhm_nm`` for one width shared by the
+varied primaries; before: ``peak_nm_R``, ``width_nm_R``, ``width_nm``, still read from older files).
+The display-level settings the designs share (transfer function, white, luminance, calibration
+observer) travel with it in the attribute ``display_settings``;
 :func:`metasim.sweep.run_sweep` builds and white-calibrates one display per design from them.
 
 Layer: sweep (imports spectra, emitters, display).
@@ -22,6 +24,7 @@ from metasim import emitters
 from metasim.checks import renamed_keywords
 from metasim.display import Display
 from metasim.errors import SweepError
+from metasim.io import first_design_coordinate
 from metasim.spectra import RADIANCE_UNITS, WAVELENGTH_ATTRS, default_grid
 
 #: Emitter kinds of a design grid and the name of each kind's width parameter.
@@ -100,8 +103,8 @@ def _base_spectra(base) -> tuple[xr.DataArray | None, dict]:
     raise SweepError(f"base must be a Display or spectra (primary x wavelength), got {type(base).__name__}")
 
 
-@renamed_keywords(radiance="relative_power")
-def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, width_nm=1.0, *,
+@renamed_keywords(radiance="relative_power", width_nm="fwhm_nm")
+def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | None = None, fwhm_nm=1.0, *,
                 base=None, relative_power: float = 1.0, profile: str = "gaussian", wavelengths=None,
                 allow_outside_grid: bool = False, lazy: bool = False) -> "xr.DataArray | DesignGrid":
     """Every combination of primary peaks and widths, as one ``design × primary × wavelength`` array.
@@ -113,9 +116,10 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
         ``quantum_dot``); the width is the line width (FWHM) of a laser, the FWHM of the others.
     peaks_nm : mapping of primary label to peak wavelengths, nm
         e.g. ``{"R": [620, 630, 640], "G": [520, 532], "B": [450, 465]}``.
-    width_nm : number, sequence, or mapping of label to sequence
-        A number or a sequence shared by the varied primaries (one grid axis, coordinate
-        ``width_nm``), or one sequence per label (axes ``width_nm_<label>``).
+    fwhm_nm : number, sequence, or mapping of label to sequence
+        Full width at half maximum, nm (a laser's line width): a number or a sequence shared by
+        the varied primaries (one grid axis, coordinate ``fwhm_nm``), or one sequence per label
+        (axes ``<label>_fwhm_nm``). Was ``width_nm``, still accepted for one release with a warning.
     base : Display or DataArray, optional
         A design whose other primaries stay fixed (spectra before white calibration); a varied label
         replaces the base primary of that label, new labels are appended. A Display also gives the
@@ -139,7 +143,7 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     Returns
     -------
     DataArray or DesignGrid
-        ``design`` (0 … n−1) × ``primary`` × ``wavelength``; coordinates ``peak_nm_<label>`` and the
+        ``design`` (0 … n−1) × ``primary`` × ``wavelength``; coordinates ``<label>_peak_nm`` and the
         width axes on ``design``; attributes ``units``, ``long_name``, ``model``, ``parameters`` and,
         with a Display base, ``display_settings``. With ``lazy=True`` the same as a
         :class:`DesignGrid` (``grid.block(0, n)`` is that array).
@@ -150,13 +154,13 @@ def design_grid(kind: str = "laser", peaks_nm: Mapping[str, Sequence[float]] | N
     >>> from metasim.emitters import laser_line
     >>> base = laser_line([465, 532, 638], 1.0, name=["B", "G", "R"])
     >>> designs = metasim.design_grid("laser", {"R": [630, 640, 650]}, 1.0, base=base)
-    >>> dict(designs.sizes), designs["peak_nm_R"].values.tolist()
+    >>> dict(designs.sizes), designs["R_peak_nm"].values.tolist()
     ({'design': 3, 'primary': 3, 'wavelength': 441}, [630.0, 640.0, 650.0])
     >>> lazy = metasim.design_grid("laser", {"R": [630, 640, 650]}, 1.0, base=base, lazy=True)
-    >>> lazy.sizes["design"], lazy.block(1, 3)["peak_nm_R"].values.tolist()
+    >>> lazy.sizes["design"], lazy.block(1, 3)["R_peak_nm"].values.tolist()
     (3, [640.0, 650.0])
     """
-    grid = DesignGrid(kind, peaks_nm, width_nm, base=base, relative_power=relative_power, profile=profile,
+    grid = DesignGrid(kind, peaks_nm, fwhm_nm, base=base, relative_power=relative_power, profile=profile,
                       wavelengths=wavelengths, allow_outside_grid=allow_outside_grid)
     return grid if lazy else grid.block(0, grid.count)
 
@@ -170,29 +174,32 @@ class DesignGrid:
     the last axis fastest), with the same values and coordinates as the matching slice of the full
     array. ``sizes``, ``dims``, ``attrs`` (mutable: ``display_settings`` may be set),
     ``coordinate_names`` describe the grid without making it.
+
+    The spec hash (:meth:`hash_parts`) reads the coordinates under the names they had when stores
+    were first written (:func:`metasim.io.first_design_coordinate`), so older stores resume.
     """
 
     dims = ("design", "primary", "wavelength")
 
-    @renamed_keywords(radiance="relative_power")
-    def __init__(self, kind: str, peaks_nm, width_nm=1.0, *, base=None, relative_power: float = 1.0,
+    @renamed_keywords(radiance="relative_power", width_nm="fwhm_nm")
+    def __init__(self, kind: str, peaks_nm, fwhm_nm=1.0, *, base=None, relative_power: float = 1.0,
                  profile: str = "gaussian", wavelengths=None, allow_outside_grid: bool = False):
         if kind not in GRID_KINDS:
             raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
         if not isinstance(peaks_nm, Mapping) or not peaks_nm:
             raise SweepError("peaks_nm must map at least one primary label to peak wavelengths, e.g. {'R': [620, 640]}")
         labels = [str(k) for k in peaks_nm]
-        axes = [(f"peak_nm_{label}", _values(f"peaks_nm[{label!r}]", peaks_nm[label])) for label in labels]
-        if isinstance(width_nm, Mapping):
-            missing = [label for label in labels if label not in width_nm]
-            extra = [str(k) for k in width_nm if str(k) not in labels]
+        axes = [(f"{label}_peak_nm", _values(f"peaks_nm[{label!r}]", peaks_nm[label])) for label in labels]
+        if isinstance(fwhm_nm, Mapping):
+            missing = [label for label in labels if label not in fwhm_nm]
+            extra = [str(k) for k in fwhm_nm if str(k) not in labels]
             if missing or extra:
-                raise SweepError(f"width_nm has labels {list(map(str, width_nm))}; give exactly the varied primaries {labels}")
-            axes += [(f"width_nm_{label}", _values(f"width_nm[{label!r}]", width_nm[label])) for label in labels]
-            width_of = {label: f"width_nm_{label}" for label in labels}
+                raise SweepError(f"fwhm_nm has labels {list(map(str, fwhm_nm))}; give exactly the varied primaries {labels}")
+            axes += [(f"{label}_fwhm_nm", _values(f"fwhm_nm[{label!r}]", fwhm_nm[label])) for label in labels]
+            width_of = {label: f"{label}_fwhm_nm" for label in labels}
         else:
-            axes.append(("width_nm", _values("width_nm", width_nm)))
-            width_of = {label: "width_nm" for label in labels}
+            axes.append(("fwhm_nm", _values("fwhm_nm", fwhm_nm)))
+            width_of = {label: "fwhm_nm" for label in labels}
         count = math.prod(len(values) for _, values in axes)
         if count > MAX_DESIGNS:
             raise SweepError(f"the grid has {count} designs; allowed: at most {MAX_DESIGNS} per sweep")
@@ -212,7 +219,7 @@ class DesignGrid:
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}[kind]
         axis = dict(self.axes)
         for label in labels:
-            peaks, widths = np.unique(axis[f"peak_nm_{label}"]), np.unique(axis[width_of[label]])
+            peaks, widths = np.unique(axis[f"{label}_peak_nm"]), np.unique(axis[width_of[label]])
             unique = np.stack([np.repeat(peaks, widths.size), np.tile(widths, peaks.size)], axis=1)
             spectra = function(unique[:, 0], unique[:, 1], wl, name=[f"primary {label} #{i}" for i in range(len(unique))],
                                **arguments)
@@ -222,15 +229,16 @@ class DesignGrid:
         self.primaries = order
         self._fixed = {label: fixed.sel(primary=label).values for label in order if label not in labels}
         self._coord_attrs = {}
-        for name, _ in axes:
-            what = "peak wavelength of primary " + name.rsplit("_", 1)[1] if name.startswith("peak") else (
-                f"{width_key.replace('_nm', '').replace('fwhm', 'FWHM')} of "
-                + ("the varied primaries" if name == "width_nm" else "primary " + name.rsplit("_", 1)[1]))
-            self._coord_attrs[name] = {"units": "nm", "long_name": what}
+        width_word = width_key.replace("_nm", "").replace("fwhm", "FWHM")
+        for label in labels:
+            self._coord_attrs[f"{label}_peak_nm"] = {"units": "nm", "long_name": f"peak wavelength of primary {label}"}
+            self._coord_attrs[width_of[label]] = {"units": "nm", "long_name": f"{width_word} of " + (
+                "the varied primaries" if width_of[label] == "fwhm_nm" else f"primary {label}")}
+        # the keys of stores written before the renames ("width_nm", "radiance"): this attribute is hashed
         parameters = {"kind": kind, "peaks_nm": {k: _values(k, v) for k, v in peaks_nm.items()},
-                      "width_nm": ({str(k): _values(k, v) for k, v in width_nm.items()} if isinstance(width_nm, Mapping)
-                                   else _values("width_nm", width_nm)),
-                      "radiance": float(relative_power), "profile": profile,  # the key hashed by older stores
+                      "width_nm": ({str(k): _values(k, v) for k, v in fwhm_nm.items()} if isinstance(fwhm_nm, Mapping)
+                                   else _values("fwhm_nm", fwhm_nm)),
+                      "radiance": float(relative_power), "profile": profile,
                       "fixed_primaries": [p for p in order if p not in labels]}
         self.attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
                       "model": f"design grid: {kind} primaries {', '.join(labels)} varied (Cartesian product)",
@@ -268,7 +276,7 @@ class DesignGrid:
                 values[:, j] = self._fixed[label][None, :]
                 continue
             peaks, widths, table = self._tables[label]
-            row = np.searchsorted(peaks, columns[f"peak_nm_{label}"]) * widths.size + \
+            row = np.searchsorted(peaks, columns[f"{label}_peak_nm"]) * widths.size + \
                 np.searchsorted(widths, columns[self.width_of[label]])
             values[:, j] = table[row]
         return values
@@ -290,7 +298,9 @@ class DesignGrid:
     def hash_parts(self, block_size: int = 256):
         """What :func:`metasim.sweep.store.spec_hash` reads of the full array, without making it:
         (name, dims, shape, blocks of values, attributes) per variable, in name order, then the
-        Dataset attributes (none). The spectra come ``block_size`` designs at a time."""
+        Dataset attributes (none). The spectra come ``block_size`` designs at a time. Coordinates
+        go under their first names (:func:`metasim.io.first_design_coordinate`), as stores made
+        before the rename hashed them."""
         n, n_p, n_wavelengths = self.count, len(self.primaries), self.wavelengths.size
         full = self.block(0, min(1, n))  # the coordinates' attributes and dims as the array has them
         ranges = [(a, min(a + block_size, n)) for a in range(0, n, block_size)]
@@ -304,13 +314,44 @@ class DesignGrid:
             return (self.parameters(a, b)[name] for a, b in ranges)
 
         for name in self.coordinate_names:
-            parts[name] = (("design",), (n,), column(name), dict(self._coord_attrs[name]))
+            parts[first_design_coordinate(name)] = (("design",), (n,), column(name), dict(self._coord_attrs[name]))
         variables = [(name, *parts[name]) for name in sorted(parts)]
         return variables, {}
 
     def __repr__(self) -> str:
         return (f"DesignGrid({self.count} designs, primaries={self.primaries}, "
                 f"axes={[f'{name} ({values.size})' for name, values in self.axes]})")
+
+
+def hashed_designs(designs):
+    """The designs as the spec hash reads them: a design grid's or search's ``design`` coordinates
+    under the names stores were first written with (:func:`metasim.io.first_design_coordinate`), so
+    that a store begun before the rename resumes. A lazy grid does this itself
+    (:meth:`DesignGrid.hash_parts`); a design list and a Display keep their own names.
+
+    Parameters
+    ----------
+    designs : DataArray, DesignGrid or Display
+        A sweep's designs.
+
+    Returns
+    -------
+    DataArray, DesignGrid or Display
+        ``designs``, a grid's or search's coordinates renamed (``R_peak_nm`` → ``peak_nm_R``).
+
+    Examples
+    --------
+    >>> import metasim
+    >>> designs = metasim.design_grid("laser", {"R": [630, 640], "G": [532], "B": [465]}, 1.0)
+    >>> sorted(c for c in hashed_designs(designs).coords if c != "wavelength")
+    ['design', 'peak_nm_B', 'peak_nm_G', 'peak_nm_R', 'primary', 'width_nm']
+    """
+    if isinstance(designs, xr.DataArray) and str(designs.attrs.get("model", "")).startswith(("design grid",
+                                                                                              "design search")):
+        first = {name: first_design_coordinate(str(name)) for name, coordinate in designs.coords.items()
+                 if coordinate.dims == ("design",) and first_design_coordinate(str(name)) != name}
+        return designs.rename(first) if first else designs
+    return designs
 
 
 def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
@@ -323,7 +364,7 @@ def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
     spectra : sequence of xarray.DataArray (primary, wavelength)
         Each design's primary spectra at full drive (W sr⁻¹ m⁻² nm⁻¹), same primaries and grid.
     **parameters : sequence
-        Coordinates over ``design`` (one value per design), e.g. ``peak_nm_R=[638, 650]``.
+        Coordinates over ``design`` (one value per design), e.g. ``R_peak_nm=[638, 650]``.
 
     Returns
     -------
@@ -343,8 +384,8 @@ def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
     >>> from metasim.emitters import laser_line
     >>> from metasim.sweep import design_list
     >>> designs = design_list([laser_line([465, 532, 638], 1.0, name=["B", "G", "R"]),
-    ...                        laser_line([465, 532, 650], 1.0, name=["B", "G", "R"])], peak_nm_R=[638, 650])
-    >>> designs.dims, designs["peak_nm_R"].values.tolist()
+    ...                        laser_line([465, 532, 650], 1.0, name=["B", "G", "R"])], R_peak_nm=[638, 650])
+    >>> designs.dims, designs["R_peak_nm"].values.tolist()
     (('design', 'primary', 'wavelength'), [638, 650])
     """
     spectra = list(spectra)
@@ -366,4 +407,5 @@ def design_list(spectra: Sequence[xr.DataArray], **parameters) -> xr.DataArray:
     return out.rename("spectra")
 
 
-__all__ = ["GRID_KINDS", "MAX_DESIGNS", "DEFAULT_DISPLAY_SETTINGS", "DesignGrid", "design_grid", "design_list", "display_settings_of"]
+__all__ = ["GRID_KINDS", "MAX_DESIGNS", "DEFAULT_DISPLAY_SETTINGS", "DesignGrid", "design_grid", "design_list",
+           "display_settings_of", "hashed_designs"]

@@ -50,7 +50,7 @@ from metasim.metamerism.summary import THRESHOLDS, age_band_edges, check_thresho
 from metasim.statistics import DEFAULT_LEVEL, DEFAULT_RESAMPLES
 from metasim.statistics.resampling import check_interval_settings
 from metasim.sweep.evaluate import prepare
-from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS, DesignGrid
+from metasim.sweep.grid import DEFAULT_DISPLAY_SETTINGS, DesignGrid, hashed_designs
 from metasim.sweep.store import (
     STORE_FORMAT,
     STORE_FORMAT_VERSION,
@@ -415,7 +415,7 @@ def run_sweep(designs, reference, observers, stimuli: xr.Dataset, *, store, chun
     hashed_reference = {SURFACES: "objects"}.get(reference, reference) if isinstance(reference, str) else reference
     hashed_options = {k: ({"least_mismatch": "population"}.get(v, v) if k == "strategy" else v)
                       for k, v in mismatch_options.items() if k != "calibration_observer"}
-    digest = spec_hash(designs, hashed_reference, observers, stimuli, settings, bool(lab_volume), hashed_options,
+    digest = spec_hash(hashed_designs(designs), hashed_reference, observers, stimuli, settings, bool(lab_volume), hashed_options,
                        calibration_observer,
                        *(["per stimulus"] if per_stimulus else []),  # stores without it keep their hash
                        *([f"intervals {json.dumps(interval_options, sort_keys=True)}"] if interval_options else []))

@@ -54,6 +54,7 @@ import xarray as xr
 
 from metasim import emitters
 from metasim._version import __version__
+from metasim.checks import current_spelling
 from metasim.errors import StoreIntegrityError, SweepError
 from metasim.io import load_dataset, remove_stale_partials, save_dataset, write_text
 from metasim.metamerism.summary import THRESHOLDS
@@ -70,8 +71,12 @@ SEARCH_RESULT = "search.nc"
 #: value of a design that breaks a constraint (plus its summed relative violation)
 PENALTY = 1.0e6
 PRIMARY_COUNT = (3, 6)
-PARAMETERS = ("peak_nm", "width_nm", "power")
-_UNITS = {"peak_nm": "nm", "width_nm": "nm", "power": "1"}
+PARAMETERS = ("peak_nm", "fwhm_nm", "relative_power")
+#: a searched primary's parameters renamed: old name → new name (the old still taken for one release)
+RENAMED_PARAMETERS = {"width_nm": "fwhm_nm", "power": "relative_power"}
+#: the parameter names the spec hash reads (those of stores made before the renames, so they resume)
+_HASHED_PARAMETERS = {"peak_nm": "peak_nm", "fwhm_nm": "width_nm", "relative_power": "power"}
+_UNITS = {"peak_nm": "nm", "fwhm_nm": "nm", "relative_power": "1"}
 
 
 def generation_folder(store, generation: int) -> Path:
@@ -103,8 +108,9 @@ class SearchSpace:
 
     @property
     def parameters(self) -> list[tuple[str, float, float]]:
-        """The searched parameters: (coordinate name, lowest, highest), in a fixed order."""
-        return [(f"{p}_{label}", lo, hi) for label, ranges in self.primaries.items()
+        """The searched parameters: (coordinate name, lowest, highest), in a fixed order; a
+        coordinate is named by the primary's label and the parameter, e.g. ``R_peak_nm``."""
+        return [(f"{label}_{p}", lo, hi) for label, ranges in self.primaries.items()
                 for p, (lo, hi) in ranges.items() if hi > lo]
 
     @property
@@ -113,8 +119,11 @@ class SearchSpace:
         return fixed + [label for label in self.primaries if label not in fixed]
 
     def describe(self) -> dict:
+        """The space as the spec hash and the designs' ``parameters`` attribute record it (each
+        primary's parameters under the names of stores made before the renames, which still resume)."""
         return {"kind": self.kind, "profile": self.profile,
-                "primaries": {k: {p: list(v) for p, v in r.items()} for k, r in self.primaries.items()},
+                "primaries": {k: {_HASHED_PARAMETERS[p]: list(v) for p, v in r.items()}
+                              for k, r in self.primaries.items()},
                 "fixed_primaries": [p for p in self.labels if p not in self.primaries]}
 
     def designs(self, x) -> xr.DataArray:
@@ -127,7 +136,7 @@ class SearchSpace:
         column = {}
         for label, ranges in self.primaries.items():
             for p, (lo, hi) in ranges.items():
-                name = f"{p}_{label}"
+                name = f"{label}_{p}"
                 column[name] = x[:, names.index(name)] if name in names else np.full(count, lo)
         function = {"laser": emitters.laser_line, "gaussian": emitters.gaussian, "quantum_dot": emitters.quantum_dot}
         labels = self.labels
@@ -137,16 +146,18 @@ class SearchSpace:
                 values[:, j] = self.base.sel(primary=label).values[None, :]
                 continue
             options = {"profile": self.profile} if self.kind == "laser" else {}
-            spectra = function[self.kind](column[f"peak_nm_{label}"], column[f"width_nm_{label}"], wl,
+            spectra = function[self.kind](column[f"{label}_peak_nm"], column[f"{label}_fwhm_nm"], wl,
                                           name=[f"{label} {i}" for i in range(count)], **options)
-            values[:, j] = spectra.transpose("primary", "wavelength").values * column[f"power_{label}"][:, None]
+            values[:, j] = spectra.transpose("primary", "wavelength").values * column[f"{label}_relative_power"][:, None]
         coords = {"design": ("design", np.arange(count), {"units": "1", "long_name": "design index"}),
                   "primary": labels, "wavelength": ("wavelength", wl, dict(WAVELENGTH_ATTRS))}
         width_word = "line width (FWHM)" if self.kind == "laser" else "FWHM"
-        words = {"peak_nm": "peak wavelength", "width_nm": width_word, "power": "relative power before calibration"}
-        for name in names:
-            p, label = name.rsplit("_", 1)
-            coords[name] = ("design", column[name], {"units": _UNITS[p], "long_name": f"{words[p]} of primary {label}"})
+        words = {"peak_nm": "peak wavelength", "fwhm_nm": width_word, "relative_power": "relative power before calibration"}
+        for label, ranges in self.primaries.items():
+            for p in ranges:
+                if f"{label}_{p}" in names:
+                    coords[f"{label}_{p}"] = ("design", column[f"{label}_{p}"],
+                                              {"units": _UNITS[p], "long_name": f"{words[p]} of primary {label}"})
         attrs = {"units": RADIANCE_UNITS, "long_name": "spectral radiance of each primary at full drive, per design",
                  "model": f"design search: {self.kind} primaries {', '.join(self.primaries)} searched",
                  "parameters": json.dumps(self.describe())}
@@ -164,9 +175,11 @@ def search_space(kind: str = "laser", primaries: Mapping[str, Mapping] | None = 
     ----------
     kind : {"laser", "gaussian", "quantum_dot"}
         Emitter of the searched primaries.
-    primaries : mapping of label to {"peak_nm", "width_nm", "power"}
+    primaries : mapping of label to {"peak_nm", "fwhm_nm", "relative_power"}
         Each value a number (fixed) or ``[lowest, highest]``; ``peak_nm`` is required (the range
-        of available emitters), ``width_nm`` defaults to 1 nm, ``power`` to 1.
+        of available emitters), ``fwhm_nm`` (full width at half maximum, a laser's line width)
+        defaults to 1 nm, ``relative_power`` (before white calibration) to 1. The old names
+        ``width_nm`` and ``power`` still work for one release, with a warning.
     base : Display or DataArray, optional
         Fixed primaries (spectra before calibration) and, for a Display, the display settings; a
         searched label replaces the base primary of that label.
@@ -184,7 +197,7 @@ def search_space(kind: str = "laser", primaries: Mapping[str, Mapping] | None = 
     >>> space = search_space("laser", {"R": {"peak_nm": [610, 660]}, "G": {"peak_nm": [510, 550]},
     ...                                "B": {"peak_nm": 465}})
     >>> [name for name, _, _ in space.parameters], dict(space.designs([[630, 532]]).sizes)
-    (['peak_nm_R', 'peak_nm_G'], {'design': 1, 'primary': 3, 'wavelength': 441})
+    (['R_peak_nm', 'G_peak_nm'], {'design': 1, 'primary': 3, 'wavelength': 441})
     """
     if kind not in GRID_KINDS:
         raise SweepError(f"kind={kind!r} is not known; allowed: {', '.join(GRID_KINDS)}")
@@ -198,12 +211,20 @@ def search_space(kind: str = "laser", primaries: Mapping[str, Mapping] | None = 
         label = str(label)
         if not isinstance(ranges, Mapping) or "peak_nm" not in ranges:
             raise SweepError(f"primary {label!r}: give at least peak_nm (a number or [lowest, highest])")
+        given = dict(ranges)
+        ranges = {}
+        for key, value in given.items():
+            new = current_spelling(key, RENAMED_PARAMETERS, f"primary {label!r} parameter", stacklevel=3)
+            if new != key and new in given:
+                raise SweepError(f"primary {label!r}: both {key!r} and {new!r} given; give only {new!r}")
+            ranges[new] = value
         unknown = [k for k in ranges if k not in PARAMETERS]
         if unknown:
             raise SweepError(f"primary {label!r}: unknown parameter {unknown[0]!r}; allowed: {', '.join(PARAMETERS)}")
         out[label] = {"peak_nm": _range(f"primary {label!r} peak_nm", ranges["peak_nm"], wl[0], wl[-1]),
-                      "width_nm": _range(f"primary {label!r} width_nm", ranges.get("width_nm", 1.0), 1e-3, 200.0),
-                      "power": _range(f"primary {label!r} power", ranges.get("power", 1.0), 1e-6, 1e6)}
+                      "fwhm_nm": _range(f"primary {label!r} fwhm_nm", ranges.get("fwhm_nm", 1.0), 1e-3, 200.0),
+                      "relative_power": _range(f"primary {label!r} relative_power", ranges.get("relative_power", 1.0),
+                                               1e-6, 1e6)}
     space = SearchSpace(kind, out, wl, fixed, settings, profile)
     count = len(space.labels)
     if not PRIMARY_COUNT[0] <= count <= PRIMARY_COUNT[1]:
@@ -528,9 +549,9 @@ def best_design(result: xr.Dataset) -> dict:
     >>> from metasim.sweep import best_design
     >>> result = xr.Dataset({"search_objective": ("design", [2.5, 1.25, 1.75]),
     ...                      "constraint_violation": ("design", [0.0, 0.0, 0.3])},
-    ...                     coords={"peak_nm_R": ("design", [620.0, 640.0, 655.0])}, attrs={"best_design": 1})
+    ...                     coords={"R_peak_nm": ("design", [620.0, 640.0, 655.0])}, attrs={"best_design": 1})
     >>> best_design(result)
-    {'peak_nm_R': 640.0, 'design': 1, 'value': 1.25, 'feasible': True}
+    {'R_peak_nm': 640.0, 'design': 1, 'value': 1.25, 'feasible': True}
     """
     index = int(result.attrs.get("best_design", int(np.argmin(result["search_objective"].values))))
     spec = result.attrs.get("spec", {})
@@ -544,6 +565,7 @@ def best_design(result: xr.Dataset) -> dict:
     return out
 
 
-__all__ = ["SEARCH_FORMAT", "SEARCH_MANIFEST", "SEARCH_RESULT", "PENALTY", "PRIMARY_COUNT", "PARAMETERS", "SENSES",
+__all__ = ["SEARCH_FORMAT", "SEARCH_MANIFEST", "SEARCH_RESULT", "PENALTY", "PRIMARY_COUNT", "PARAMETERS",
+           "RENAMED_PARAMETERS", "SENSES",
            "SearchSpace", "search_space", "search_values", "run_search", "combine_search", "best_design",
            "generation_folder"]

@@ -65,6 +65,7 @@ from metasim.io import (
     process_alive,
     remove_stale_partials,
     save_dataset,
+    with_current_names,
     write_text,
 )
 from metasim.sweep.pareto import pareto_front
@@ -523,7 +524,8 @@ def _checked_chunk(folder: Path, manifest: dict, chunk: dict) -> xr.Dataset:
     if problem is not None:
         aside = _put_aside(folder, manifest, chunk, problem, warn=False).name
         raise StoreIntegrityError(f"{path}: {problem}; set aside as {aside}; run the sweep again to compute it")
-    return upgraded(part)
+    # a store begun before the design coordinates were renamed: its chunks under today's names
+    return upgraded(with_current_names(part, manifest.get("spec", {}).get("parameters", [])))
 
 
 def _equivalent(a, b) -> bool:
@@ -674,7 +676,7 @@ def open_sweep(path) -> xr.Dataset:
     ds.attrs = decode_attrs(ds.attrs, str(path))
     for name in ds.variables:
         ds[name].attrs = decode_attrs(ds[name].attrs, f"{path}:{name}")
-    return ds
+    return with_current_names(ds)
 
 
 def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
