@@ -164,3 +164,39 @@ def test_every_variable_has_a_long_name_of_its_own(study):
     assert not shared, shared
     assert study[0]["lab_volume"].attrs["units"] == study[0]["volume_gain"].attrs["units"] == "CIELAB units³"
     assert study[0]["delta_e_2000"].attrs["units"] == "ΔE00"
+
+
+@pytest.fixture(scope="module")
+def demo_sweep_and_search(tmp_path_factory):
+    """The demo sweep (the red laser line, 610-650 nm) and the demo search, run through the command
+    line with 20 observers; their reports read back."""
+    from test_cli import run
+
+    folder = tmp_path_factory.mktemp("sweep-reading")
+    run("sweep", DEMO / "sweep_red_laser.toml", "--out", folder / "sweep", "--size", 20, "--quiet")
+    run("search", DEMO / "search_red_green.toml", "--out", folder / "search", "--size", 20, "--quiet")
+    return folder
+
+
+def test_sweep_report_reads_without_the_manual(demo_sweep_and_search):
+    sweep = metasim.load_dataset(demo_sweep_and_search / "sweep" / "sweep.nc")
+    parsed = check_page((demo_sweep_and_search / "sweep" / "report.html").read_text(encoding="utf-8"))
+    settings = {row[0]: row[1] for table in parsed.tables for row in table["rows"] if len(row) == 2}
+    best = int(sweep.attrs["best_design"])  # the file's 0-based index; readers see numbers from 1
+    assert settings["best design"] == f"design {best + 1}"
+    assert settings["designs that cannot be told apart from the best"].startswith("design")
+    if sweep.attrs.get("edge_warnings"):
+        assert settings["edge warnings"].startswith("the best design has red laser peak = ")
+    assert settings["FWHM (nm)"] == "1" and settings["relative power"] == "1"
+    assert "R_peak_nm" in sweep.coords and "R_peak_nm" not in " ".join(parsed.text)
+
+
+def test_search_report_names_the_search_settings(demo_sweep_and_search):
+    search = metasim.load_dataset(demo_sweep_and_search / "search" / "search.nc")
+    parsed = check_page((demo_sweep_and_search / "search" / "report.html").read_text(encoding="utf-8"))
+    settings = {row[0]: row[1] for table in parsed.tables for row in table["rows"] if len(row) == 2}
+    assert settings["best design"] == f"design {int(search.attrs['best_design']) + 1}"
+    assert settings["best design meets every constraint"] in ("yes", "no")
+    # the search's "strategy" is that of differential evolution (Storn & Price 1997), not the drive strategy
+    assert settings["differential evolution strategy"].startswith("DE/best/1/bin")
+    assert settings["drive strategy (more than three primaries)"] == "minimum-norm drive"

@@ -51,6 +51,9 @@ NAMES = {
     "fixed": "fixed",
     "threads": "threads",
     "serial": "one at a time",
+    "best1bin": "DE/best/1/bin (Storn & Price 1997)",
+    "latinhypercube": "Latin hypercube",
+    "deferred": "once per generation",
 }
 #: readable names of attribute and parameter keys (others: underscores to spaces, unit suffixes)
 KEYS = {
@@ -84,7 +87,18 @@ KEYS = {
     "high": "to",
     "lab_volume": "CIELAB volume computed",
     "per_stimulus": "statistics per stimulus kept",
-    "stimulus_count": "stimuli",
+    "stimulus_count": "number of stimuli",
+    "peaks_nm": "peak wavelengths (nm)",
+    "width_nm": "FWHM (nm)",  # a design grid's or search's width, under the key its stores hash
+    "radiance": "relative power",  # likewise
+    "power": "relative power",
+    "fixed_primaries": "primaries kept fixed",
+    "best_design": "best design",
+    "best_set": "designs that cannot be told apart from the best",
+    "best_feasible": "best design meets every constraint",
+    "evolution_strategy": "differential evolution strategy",
+    "initial_population": "initial population",
+    "population_updating": "population updated",
     "design_count": "designs",
     "chunk_size": "designs per chunk",
     "spec_hash": "fingerprint of the sweep",

@@ -145,12 +145,63 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
                        "them all." if numbers["constrained"] else "") + "</p>" + _table(header, rows))
 
 
-def _sweep_models(ds: xr.Dataset) -> str:
+#: keys of a search's settings whose words elsewhere mean something else (``strategy``: the drive)
+SEARCH_KEYS = {"strategy": "evolution_strategy", "init": "initial_population", "updating": "population_updating"}
+
+
+def _design_numbers(ds: xr.Dataset, value) -> str:
+    """Design indexes stored in an attribute (``8``, ``"0, 7, 8"``) as the numbers readers see."""
+    try:
+        indexes = [int(v) for v in str(value).replace(",", " ").split()]
+    except ValueError:
+        return str(value)
+    position = {int(d): i for i, d in enumerate(ds["design"].values)} if "design" in ds.coords else {}
+    numbers = [plots.design_number(ds, position[i]) if i in position else i + 1 for i in indexes]
+    return ("design " if len(numbers) == 1 else "designs ") + ", ".join(map(str, numbers))
+
+
+def readable_sweep_attributes(ds: xr.Dataset) -> dict:
+    """A sweep's or search's attributes as a report shows them: design indexes as design numbers
+    (from 1, like ranks), edge warnings with the parameters in words, the spec left out.
+
+    Parameters
+    ----------
+    ds : xarray.Dataset
+        A sweep or search result.
+
+    Returns
+    -------
+    dict
+        Attribute name → value to show.
+
+    Examples
+    --------
+    >>> import xarray as xr
+    >>> sweep = xr.Dataset(coords={"design": [0, 1, 2], "R_peak_nm": ("design", [610.0, 630.0, 650.0], {"units": "nm"})},
+    ...                    attrs={"best_design": "2", "best_set": "1, 2",
+    ...                           "edge_warnings": "the best design has R_peak_nm = 650 nm, the upper end"})
+    >>> readable_sweep_attributes(sweep)
+    {'best_design': 'design 3', 'best_set': 'designs 2, 3', 'edge_warnings': 'the best design has red primary peak = 650 nm, the upper end'}
+    """
     attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
+    for key in ("best_design", "best_set"):
+        if key in attrs:
+            attrs[key] = _design_numbers(ds, attrs[key])
+    if attrs.get("edge_warnings"):
+        attrs["edge_warnings"] = "; ".join(plots.edge_messages(ds))
+    if "best_feasible" in attrs:
+        attrs["best_feasible"] = bool(int(attrs["best_feasible"]))
+    return attrs
+
+
+def _sweep_models(ds: xr.Dataset) -> str:
+    attrs = readable_sweep_attributes(ds)
     spec = dict(plots.sweep_spec(ds))
     text = spec.pop("sweep_spec_text", "")
     if isinstance(spec.get("parameters"), list):  # the design parameters by their names, not their keys
         spec["parameters"] = [plots.parameter_label(ds, c) if c in ds.coords else c for c in spec["parameters"]]
+    if isinstance(spec.get("search"), dict):  # the search's own settings, not those of the displays
+        spec["search"] = {SEARCH_KEYS.get(k, k): v for k, v in spec["search"].items()}
     if isinstance(spec.get("bounds"), dict):
         spec["bounds"] = {plots.parameter_label(ds, c) if c in ds.coords else c: f"{lo:g} to {hi:g}"
                           for c, (lo, hi) in spec["bounds"].items()}
