@@ -55,11 +55,11 @@ import warnings
 from pathlib import Path
 
 from metasim import emitters
-from metasim.checks import known_keys, number
+from metasim.checks import known_keys, number, warn_renamed
 from metasim.cli.paths import read_toml
 from metasim.display import WHITE_POINTS, Display, calibrate_white, make_display
 from metasim.display.transfer import DEFAULT_PEAK_LUMINANCE, TRANSFER_FUNCTIONS
-from metasim.errors import MetasimError, RenamedWarning, SpecError
+from metasim.errors import MetasimError, SpecError
 from metasim.observers import STANDARD_OBSERVERS
 from metasim.spectra import default_grid
 
@@ -98,8 +98,7 @@ def renamed_keys(table: dict, renames: dict, where: str) -> dict:
         if new in table:
             raise SpecError(f"{where}: both {old!r} and {new!r} given; {old!r} is the old name of {new!r}, keep one")
         table[new] = table.pop(old)
-        warnings.warn(f"{where}: key {old!r} is renamed {new!r}; the old name works until the next release",
-                      RenamedWarning, stacklevel=3)
+        warn_renamed(f"{where}: key {old!r}", repr(new), stacklevel=3)
     return table
 
 
