@@ -177,3 +177,31 @@ def test_search_command_writes_a_store_and_resumes(tmp_path):
     assert main(args) == 0  # again: read back from the store, same result
     np.testing.assert_array_equal(metasim.load_dataset(tmp_path / "store" / "search.nc")["search_objective"].values,
                                   first["search_objective"].values)
+
+
+def test_a_search_store_written_before_the_coordinate_rename_is_read_not_recomputed(found, tmp_path):
+    """Generations stored with the first coordinate names (``peak_nm_R``; the spec hashes are pinned
+    against 0.1.0 in test_renames.py) are read under today's names, not computed again."""
+    import shutil
+
+    from metasim.errors import RenamedWarning
+    from metasim.io import first_design_coordinate
+
+    store = shutil.copytree(found[0], tmp_path / "old")
+    (store / "search.nc").unlink()
+    for path in sorted(store.glob("generation-*/sweep.nc")):
+        generation = metasim.load_dataset(path)
+        first = {name: first_design_coordinate(name) for name in generation.coords
+                 if first_design_coordinate(name) != name}
+        assert first == {"R_peak_nm": "peak_nm_R", "G_peak_nm": "peak_nm_G"}
+        old = generation.rename(first)
+        old.attrs["spec"] = {**generation.attrs["spec"],
+                             "parameters": [first.get(n, n) for n in generation.attrs["spec"]["parameters"]]}
+        metasim.save_dataset(old, path, replace=True)
+    seen = []
+    with pytest.warns(RenamedWarning, match="'peak_nm_R' is read as 'R_peak_nm'"):
+        again = run_search(space(), *inputs(), store=store, generations=10, population=10, seed=3, tolerance=0.0,
+                           scheduler="serial", progress=seen.append)
+    assert all(event["stored"] for event in seen if event["kind"] == "generation")  # every generation read back
+    for name in ("R_peak_nm", "G_peak_nm", "search_objective"):
+        np.testing.assert_array_equal(again[name].values, found[1][name].values)
