@@ -88,20 +88,34 @@ def pareto_ranks(values, senses: Sequence[str] | None = None) -> np.ndarray:
     senses = ["min"] * points.shape[1] if senses is None else list(senses)
     if len(senses) != points.shape[1] or any(s not in SENSES for s in senses):
         raise SweepError(f"senses {senses!r}: need one of {', '.join(SENSES)} per objective ({points.shape[1]})")
-    points = points * np.array([1.0 if s == "min" else -1.0 for s in senses])
+    return minimised_ranks(points * np.array([1.0 if s == "min" else -1.0 for s in senses]))
+
+
+def minimised_ranks(points: np.ndarray) -> np.ndarray:
+    """:func:`pareto_ranks` of ``points`` (n × k float64, every objective minimised), whose rows
+    with a missing or infinite value are overwritten with NaN (so they sort last).
+
+    Working memory besides ``points`` and the ranks: the lexicographic order (one int64 per
+    point) and the fronts' copies of the points (:func:`metasim.sweep._kernels.pareto.sorted_ranks`).
+    """
     ranks = np.zeros(points.shape[0], dtype=np.int64)
-    valid = np.flatnonzero(np.isfinite(points).all(axis=1))
-    if valid.size == 0:
+    finite = np.isfinite(points).all(axis=1)
+    ranked = int(np.count_nonzero(finite))
+    if ranked == 0:
         return ranks
-    order = valid[np.lexsort(points[valid].T[::-1])]  # lexicographic: first objective, then the next ...
-    in_order = np.empty(order.size, dtype=np.int64)
-    sorted_ranks(np.ascontiguousarray(points[order]), in_order)  # compiled: metasim.sweep._kernels.pareto
-    ranks[order] = in_order
+    if ranked < points.shape[0]:
+        points[~finite] = np.nan  # after every finite row on every objective
+    del finite
+    # lexicographic (first objective, then the next ...); NaN rows last; ties in point order, as in a
+    # lexicographic sort of the finite rows alone
+    order = np.lexsort(points.T[::-1])[:ranked]
+    sorted_ranks(points, order, ranks)  # compiled: metasim.sweep._kernels.pareto
     return ranks
 
 
-def objective_values(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None):
-    """(values (design × objective), senses, names, words) of the named objectives of a result."""
+def objective_columns(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None):
+    """(columns, senses, names, words) of the named objectives of a result: each column a DataArray
+    over ``design`` only, not read (for a result opened from its file, values are read when used)."""
     if objectives is None:
         objectives = default_objectives(ds)
     elif not isinstance(objectives, Mapping):
@@ -125,10 +139,50 @@ def objective_values(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[st
         if column.dims != ("design",):
             raise SweepError(f"objective {name!r}: {variable!r} has dims {column.dims}; an objective needs one "
                              "number per design")
-        columns.append(np.asarray(column.values, dtype=float))
+        columns.append(column)
         senses.append(sense)
         words.append(text or str(ds[variable].attrs.get("long_name", name)))
-    return np.stack(columns, axis=1), senses, list(objectives), words
+    return columns, senses, list(objectives), words
+
+
+def objective_values(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None):
+    """(values (design × objective), senses, names, words) of the named objectives of a result."""
+    columns, senses, names, words = objective_columns(ds, objectives)
+    return np.stack([np.asarray(c.values, dtype=float) for c in columns], axis=1), senses, names, words
+
+
+#: designs whose objective values are read at once by :func:`pareto_rank_variable`
+READ_DESIGNS = 1 << 16
+
+
+def pareto_rank_variable(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None, *,
+                         read_designs: int = READ_DESIGNS) -> xr.DataArray:
+    """The ``pareto_rank`` variable of a result (:func:`pareto_front`), its objectives read in blocks.
+
+    Each objective is read ``read_designs`` designs at a time into one (design × objective) array
+    (for a result opened from its file, only those numbers are read), so besides that array and the
+    ranks the memory holds the lexicographic order and the fronts' copies of the points
+    (:func:`minimised_ranks`), whatever the size of the result's other variables.
+    """
+    if "design" not in ds.dims:
+        raise SweepError(f"a Pareto front needs a result with a 'design' dim, got dims {tuple(ds.dims)}")
+    columns, senses, names, words = objective_columns(ds, objectives)
+    count = ds.sizes["design"]
+    points = np.empty((count, len(columns)))
+    step = max(1, int(read_designs))
+    for j, (column, sense) in enumerate(zip(columns, senses)):
+        for a in range(0, count, step):
+            b = min(a + step, count)
+            points[a:b, j] = column.isel(design=slice(a, b)).values
+            if sense == "max":
+                points[a:b, j] *= -1.0
+    ranks = minimised_ranks(points)
+    del points
+    described = [{"name": n, "sense": s, "long_name": w} for n, s, w in zip(names, senses, words)]
+    return xr.DataArray(ranks, dims="design", attrs={
+        "units": "1", "long_name": "Pareto rank (1 = on the front; 0 = an objective missing)",
+        "objectives": json.dumps(described),
+        "method": "non-dominated sorting (Deb et al. 2002), efficient binary-search variant (Zhang et al. 2015)"})
 
 
 def pareto_front(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None) -> xr.Dataset:
@@ -156,16 +210,7 @@ def pareto_front(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] |
     >>> pareto_front(ds, {"cost": "min", "gain": "max"})["pareto_rank"].values.tolist()
     [1, 1, 2]
     """
-    if "design" not in ds.dims:
-        raise SweepError(f"a Pareto front needs a result with a 'design' dim, got dims {tuple(ds.dims)}")
-    values, senses, names, words = objective_values(ds, objectives)
-    ranks = pareto_ranks(values, senses)
-    described = [{"name": n, "sense": s, "long_name": w} for n, s, w in zip(names, senses, words)]
-    rank = xr.DataArray(ranks, dims="design", attrs={
-        "units": "1", "long_name": "Pareto rank (1 = on the front; 0 = an objective missing)",
-        "objectives": json.dumps(described),
-        "method": "non-dominated sorting (Deb et al. 2002), efficient binary-search variant (Zhang et al. 2015)"})
-    return ds.assign(pareto_rank=rank)
+    return ds.assign(pareto_rank=pareto_rank_variable(ds, objectives))
 
 
 def pareto_objectives(ds: xr.Dataset) -> list[dict]:
@@ -179,5 +224,5 @@ def pareto_objectives(ds: xr.Dataset) -> list[dict]:
     return out if isinstance(out, list) else []
 
 
-__all__ = ["OBJECTIVES", "SENSES", "default_objectives", "pareto_ranks", "objective_values", "pareto_front",
-           "pareto_objectives"]
+__all__ = ["OBJECTIVES", "SENSES", "READ_DESIGNS", "default_objectives", "pareto_ranks", "minimised_ranks",
+           "objective_columns", "objective_values", "pareto_rank_variable", "pareto_front", "pareto_objectives"]

@@ -68,7 +68,7 @@ from metasim.io import (
     with_current_names,
     write_text,
 )
-from metasim.sweep.pareto import pareto_front
+from metasim.sweep.pareto import pareto_rank_variable
 
 try:
     import fcntl
@@ -784,7 +784,8 @@ def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
         "metasim_version": __version__,
         "store_metasim_version": manifest.get("metasim_version", ""),
     })
-    with xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False, cache=False) as lazy:
+    with _small_chunk_cache(), xr.open_dataset(path, engine="netcdf4", mask_and_scale=False, decode_times=False,
+                                               cache=False) as lazy:
         lazy.attrs = attrs
         for name in lazy.variables:
             lazy[name].attrs = decode_attrs(lazy[name].attrs, f"{path}:{name}")
@@ -792,10 +793,29 @@ def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
         ranked, ranking_attrs = ranking_variables(lazy, scratch=path.parent)
         attrs.update(ranking_attrs)
         lazy.attrs = attrs
-        fronts = pareto_front(lazy)  # pareto_rank over the default objectives (metasim.sweep.pareto)
-        added = {name: fronts[name].load() for name in fronts.data_vars if name not in lazy.data_vars}
-        attrs = dict(fronts.attrs)
+        added = {}
+        if "pareto_rank" not in lazy.data_vars:  # over the default objectives, read in blocks (metasim.sweep.pareto)
+            added["pareto_rank"] = pareto_rank_variable(lazy)
     writer.finish({**ranked, **added}, attrs)
+
+
+#: bytes of HDF5 chunk cache per variable while a combined sweep is read back (its designs are read
+#: in order, block by block: a chunk is not read twice)
+_READ_CACHE_BYTES = 1 << 20
+
+
+@contextlib.contextmanager
+def _small_chunk_cache():
+    """netCDF files opened in the block get a small chunk cache per variable (the library's default,
+    64 MB per variable, would fill with the chunks of every design variable read)."""
+    import netCDF4
+
+    before = netCDF4.get_chunk_cache()
+    netCDF4.set_chunk_cache(_READ_CACHE_BYTES, 16, before[2])
+    try:
+        yield
+    finally:
+        netCDF4.set_chunk_cache(*before)
 
 
 __all__ = ["STORE_FORMAT", "STORE_FORMAT_VERSION", "MANIFEST", "COMBINED", "LOCK", "SET_ASIDE", "chunk_name",

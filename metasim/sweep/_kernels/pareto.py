@@ -37,20 +37,26 @@ def _dominated(values, counts, following, first, front, point, k):
 
 
 @numba.njit(cache=True, nogil=True)
-def sorted_ranks(points, ranks):
-    """ranks[i] = the front (1 = first) of points[i]; ``points`` (n, k), finite, in lexicographic
-    order (first objective, then the next ...), every objective minimised."""
-    n, k = points.shape
-    capacity = n // BLOCK + 16
+def sorted_ranks(points, order, ranks):
+    """ranks[order[i]] = the front (1 = first) of points[order[i]]; ``points`` (n, k), every
+    objective minimised; ``order`` (m,) indexes finite points in lexicographic order (first
+    objective, then the next ...). Entries of ``ranks`` not in ``order`` are left as they are.
+
+    Working memory: the fronts' copies of the m points (m × k values) and a few numbers per front
+    (the block pool and the front tables grow when needed)."""
+    m = order.shape[0]
+    k = points.shape[1]
+    capacity = m // BLOCK + 16
     values = np.empty((capacity, BLOCK, k))
     counts = np.zeros(capacity, dtype=np.int64)
     following = np.full(capacity, -1, dtype=np.int64)
-    first = np.full(n + 1, -1, dtype=np.int64)  # first and last block of each front
-    last = np.full(n + 1, -1, dtype=np.int64)
+    room = 64
+    first = np.full(room, -1, dtype=np.int64)  # first and last block of each front
+    last = np.full(room, -1, dtype=np.int64)
     blocks = 0
     fronts = 0
-    for i in range(n):
-        point = points[i]
+    for i in range(m):
+        point = points[order[i]]
         low, high = 0, fronts
         while low < high:
             mid = (low + high) // 2
@@ -60,10 +66,18 @@ def sorted_ranks(points, ranks):
                 high = mid
         if low == fronts:
             fronts += 1
+            if fronts > room:  # more fronts than the tables hold
+                room *= 2
+                wider = np.full(room, -1, dtype=np.int64)
+                wider[:fronts - 1] = first[:fronts - 1]
+                first = wider
+                wider = np.full(room, -1, dtype=np.int64)
+                wider[:fronts - 1] = last[:fronts - 1]
+                last = wider
         b = last[low]
         if b < 0 or counts[b] == BLOCK:
-            if blocks == capacity:  # grow the block pool
-                capacity *= 2
+            if blocks == capacity:  # grow the block pool (by a quarter: every front has one part-filled block)
+                capacity += capacity // 4 + 16
                 grown = np.empty((capacity, BLOCK, k))
                 grown[:blocks] = values[:blocks]
                 values = grown
@@ -83,4 +97,4 @@ def sorted_ranks(points, ranks):
         for c in range(k):
             values[b, counts[b], c] = point[c]
         counts[b] += 1
-        ranks[i] = low + 1
+        ranks[order[i]] = low + 1
