@@ -22,9 +22,10 @@ machine distorts least), peak resident memory (``ru_maxrss`` of the child) and i
 smallest size's, and the machine's load average. Target: peak resident memory at 10⁶ designs
 within +10 % of 10³ designs.
 
-``--phases`` also prints, per size, where the memory goes at the end of the combine: the peak of
-the Python allocations (``tracemalloc``; numpy reports its arrays to it) and of the resident memory
-(Linux ``/proc/self/clear_refs``, where allowed) during each phase: the chunks streamed into the
+``--phases`` also prints, per size, where the memory goes: the resident memory at the start and
+its peak (Linux ``/proc/self/clear_refs``, where allowed) during each phase, and with ``--trace``
+the peak of the Python allocations (``tracemalloc``; numpy reports its arrays to it, the compiled
+Pareto sort does not): the chunks streamed into the
 file (``CombinedWriter.add``), the ranking (``ranking_variables``), the Pareto ranks
 (``pareto_front`` or ``pareto_rank_variable``) and the added variables written (``CombinedWriter.finish``).
 Tracing slows the run; the figures of the table above come from runs without it.
@@ -172,8 +173,8 @@ def build_stores(folder: Path, args) -> dict:
 
 # -- one combine, in a fresh process ------------------------------------------------------------------
 
-def phase_watch(report: dict):
-    """Wrap the combine's phases; each records its tracemalloc peak and resident-memory peak."""
+def phase_watch(report: dict, trace: bool):
+    """Wrap the combine's phases; each records its resident-memory peak (and tracemalloc peak)."""
     import tracemalloc
 
     from metasim.sweep import store as store_module
@@ -184,7 +185,8 @@ def phase_watch(report: dict):
             return
 
         def watched(*args, **kwargs):
-            tracemalloc.reset_peak()
+            if trace:
+                tracemalloc.reset_peak()
             base = tracemalloc.get_traced_memory()[0]
             rss = _rss_now_mb()
             hwm = _reset_hwm()
@@ -203,7 +205,8 @@ def phase_watch(report: dict):
     wrap(store_module, "pareto_front", "Pareto ranks")
     wrap(store_module, "pareto_rank_variable", "Pareto ranks")
     wrap(store_module.CombinedWriter, "finish", "added variables written")
-    tracemalloc.start()
+    if trace:
+        tracemalloc.start()
 
 
 def one_size(args) -> dict:
@@ -217,7 +220,7 @@ def one_size(args) -> dict:
     store = Path(args.one)
     phases: dict = {}
     if args.phases:
-        phase_watch(phases)
+        phase_watch(phases, args.trace)
     rss_before = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     load = os.getloadavg()[0]
     start, cpu = time.perf_counter(), os.times()
@@ -234,8 +237,9 @@ def one_size(args) -> dict:
             "load_before": load, "load_after": os.getloadavg()[0], "phases": phases}
 
 
-def run_child(store: Path, phases: bool) -> dict:
-    command = [sys.executable, os.path.abspath(__file__), "--one", str(store)] + (["--phases"] if phases else [])
+def run_child(store: Path, phases: bool, trace: bool = False) -> dict:
+    command = [sys.executable, os.path.abspath(__file__), "--one", str(store)] + (["--phases"] if phases else []) \
+        + (["--trace"] if trace else [])
     done = subprocess.run(command, capture_output=True, text=True)
     if done.returncode != 0:
         raise SystemExit(f"benchmark child failed:\n{done.stderr[-3000:]}")
@@ -250,7 +254,9 @@ def main() -> None:
     parser.add_argument("--seed", type=int, default=11)
     parser.add_argument("--intervals", action="store_true", help="the template sweep is run with intervals")
     parser.add_argument("--keep", default=None, metavar="DIR", help="keep (and reuse) the synthetic stores here")
-    parser.add_argument("--phases", action="store_true", help="also the memory of each phase (tracemalloc)")
+    parser.add_argument("--phases", action="store_true", help="also the resident memory of each phase")
+    parser.add_argument("--trace", action="store_true", help="with --phases: also the Python allocations "
+                        "(tracemalloc; several times slower)")
     parser.add_argument("--one", default=None, help=argparse.SUPPRESS)
     args = parser.parse_args()
     if args.one is not None:
@@ -281,14 +287,15 @@ def main() -> None:
             print(f"target: peak RSS at {args.sizes[-1]:,} designs within +10 % of {args.sizes[0]:,}: "
                   f"{change:+.1%}, {met}")
         if args.phases:
-            print("\nwhere the memory goes (tracemalloc: Python allocations incl. numpy arrays; RSS: peak during "
-                  "the phase, where /proc/self/clear_refs allows)")
+            print("\nwhere the memory goes (RSS: at the start and peak during the phase, where /proc/self/clear_refs "
+                  "allows; with --trace the peak of the Python allocations too, numpy arrays included, compiled "
+                  "code's not)")
             for size in args.sizes:
-                row = run_child(stores[size], True)
+                row = run_child(stores[size], True, args.trace)
                 for label, entry in row["phases"].items():
-                    print(f"{row['designs']:>9,}  {label:<24} python peak {entry['python_peak_mb']:>7.1f} MB   "
-                          f"RSS {entry['rss_start_mb']:>5.0f} MB at start, peak {entry['rss_peak_mb']:>5.0f} MB",
-                          flush=True)
+                    traced = f"   python peak {entry['python_peak_mb']:>6.1f} MB" if args.trace else ""
+                    print(f"{row['designs']:>9,}  {label:<24} RSS {entry['rss_start_mb']:>5.0f} MB at start, peak "
+                          f"{entry['rss_peak_mb']:>5.0f} MB{traced}", flush=True)
     finally:
         if not args.keep:
             shutil.rmtree(folder, ignore_errors=True)

@@ -129,3 +129,101 @@ def test_ranks_in_blocks_equal_the_ranks_of_the_whole_array(block_bytes, tmp_pat
     expected = np.quantile(ranks, [0.05, 0.95], axis=0, method="inverted_cdf")  # numpy
     np.testing.assert_array_equal(ranking["rank_interval"].values, expected)
     assert not list(tmp_path.iterdir())  # scratch files removed
+
+
+def _grown_store(folder, template_store, template_manifest, count: int, chunk: int):
+    """A valid store of ``count`` designs whose chunk files take the template chunk's layout with seeded
+    values, written through the store's own functions (checksums and design ranges in the manifest)."""
+    from metasim.sweep.store import chunk_ranges, write_chunk, write_manifest
+
+    template = metasim.load_dataset(template_store / chunk_name(0))
+    manifest = {**template_manifest, "design_count": count, "chunk_size": chunk,
+                "chunks": [{"index": i, "start": a, "stop": b, "file": chunk_name(i), "sha256": None}
+                           for i, (a, b) in enumerate(chunk_ranges(count, chunk))]}
+    folder.mkdir()
+    write_manifest(folder, manifest)
+    for entry in manifest["chunks"]:
+        rng = np.random.default_rng(entry["index"])
+        part = template.isel(design=np.arange(entry["stop"] - entry["start"]) % template.sizes["design"])
+        part = part.assign_coords(design=np.arange(entry["start"], entry["stop"]))
+        for name, variable in template.data_vars.items():
+            if "design" in variable.dims and variable.dtype.kind == "f":
+                values = part[name].values * (1 + 0.05 * rng.standard_normal(part[name].shape))
+                part[name] = xr.DataArray(values, dims=variable.dims, attrs=variable.attrs)
+        write_chunk(folder, manifest, entry["index"], part)
+    return folder
+
+
+def test_the_end_of_a_combine_holds_a_few_numbers_per_design(tmp_path, monkeypatch):
+    """After the chunks are streamed into sweep.nc, the combine reads the file in blocks of designs
+    (only the objectives' columns) and its Python allocations (numpy arrays included) grow by a few
+    numbers per design: the peak of 20,000 designs over that of 5,000 stays within 7 eight-byte numbers
+    per added design (the objectives' array, the lexicographic order, the ranks and the file's design
+    index; a stack of the objective columns and sorted copies took about 20)."""
+    import tracemalloc
+
+    from xarray.backends.netCDF4_ import NetCDF4ArrayWrapper
+
+    from metasim.sweep import pareto as pareto_module
+    from metasim.sweep.store import read_manifest
+
+    monitor = metasim.calibrate_white(metasim.make_display(
+        emitters.gaussian([612, 548, 455], [38, 42, 28], name=["R", "G", "B"])), "cie1931_2", white="D65", luminance=100)
+    designs = design_grid("laser", peaks_nm={"R": [625, 640, 655], "G": [520, 540], "B": [465]}, fwhm_nm=[1.0])
+    template = tmp_path / "template"
+    run_sweep(designs, monitor, metasim.observer_population(3, seed=5), primaries_and_secondaries(), store=template,
+              chunk_size=6, scheduler="serial")
+    manifest = read_manifest(template)
+    block = 500
+    monkeypatch.setattr(pareto_module, "READ_DESIGNS", block)
+    reads, peaks, phase = [], {}, {"end": False}
+    read = NetCDF4ArrayWrapper._getitem
+
+    def watched_read(self, key):
+        values = read(self, key)
+        if phase["end"] and self.variable_name != "design" and "design" in self.get_array().dimensions:
+            reads.append((self.variable_name, np.size(values)))  # (the design index: xarray reads it on opening)
+        return values
+
+    add, finish = store_module.CombinedWriter.add, store_module.CombinedWriter.finish
+
+    opened = xr.open_dataset
+
+    def streamed(self, part, start):
+        add(self, part, start)
+        phase["streamed"] = self.count == self.expected  # the last chunk is in
+
+    def reopened(*args, **kwargs):
+        if phase.pop("streamed", False):  # the file opened again after the last chunk: the end phase begins
+            phase["end"] = True
+            tracemalloc.reset_peak()
+            phase["base"] = tracemalloc.get_traced_memory()[0]
+        return opened(*args, **kwargs)
+
+    def finished(self, variables, attrs):
+        finish(self, variables, attrs)
+        phase["end"] = False
+        phase["peak"] = tracemalloc.get_traced_memory()[1] - phase["base"]
+
+    monkeypatch.setattr(NetCDF4ArrayWrapper, "_getitem", watched_read)
+    monkeypatch.setattr(store_module.CombinedWriter, "add", streamed)
+    monkeypatch.setattr(store_module.CombinedWriter, "finish", finished)
+    monkeypatch.setattr(xr, "open_dataset", reopened)
+    for count in (20000, 5000, 20000):
+        store = tmp_path / f"store-{count}"
+        if not store.exists():
+            _grown_store(store, template, manifest, count, 2500)
+        monkeypatch.setattr(store_module.CombinedWriter, "expected", count, raising=False)
+        tracemalloc.start()
+        try:
+            combined = combine_sweep(store)
+        finally:
+            tracemalloc.stop()
+        peaks[count] = phase["peak"]
+        assert combined.sizes["design"] == count and (combined["pareto_rank"] >= 1).all()
+        combined.close()
+        assert reads and max(size for _, size in reads) <= block  # one objective column, one block at a time
+        assert {name for name, _ in reads} == {"delta_e_2000_overall", "gamut_coverage", "white_efficacy"}
+        reads.clear()
+    print(peaks, (peaks[20000] - peaks[5000]) / 15000, phase)
+    assert peaks[20000] - peaks[5000] <= 7 * 8 * 15000, peaks

@@ -88,27 +88,32 @@ def pareto_ranks(values, senses: Sequence[str] | None = None) -> np.ndarray:
     senses = ["min"] * points.shape[1] if senses is None else list(senses)
     if len(senses) != points.shape[1] or any(s not in SENSES for s in senses):
         raise SweepError(f"senses {senses!r}: need one of {', '.join(SENSES)} per objective ({points.shape[1]})")
-    return minimised_ranks(points * np.array([1.0 if s == "min" else -1.0 for s in senses]))
+    signs = np.array([1.0 if s == "min" else -1.0 for s in senses])
+    return minimised_ranks(np.ascontiguousarray(points.T) * signs[:, None])
 
 
 def minimised_ranks(points: np.ndarray) -> np.ndarray:
-    """:func:`pareto_ranks` of ``points`` (n × k float64, every objective minimised), whose rows
-    with a missing or infinite value are overwritten with NaN (so they sort last).
+    """:func:`pareto_ranks` of ``points`` (k objectives × n points, float64, C order: each
+    objective's values contiguous; every objective minimised), whose points with a missing or
+    infinite value are overwritten with NaN (so they sort last).
 
-    Working memory besides ``points`` and the ranks: the lexicographic order (one int64 per
-    point) and the fronts' copies of the points (:func:`metasim.sweep._kernels.pareto.sorted_ranks`).
+    Working memory besides ``points`` and the ranks: a mask and the lexicographic order of the
+    points, and the compiled sort's copies of the points in their fronts
+    (:func:`metasim.sweep._kernels.pareto.sorted_ranks`).
     """
-    ranks = np.zeros(points.shape[0], dtype=np.int64)
-    finite = np.isfinite(points).all(axis=1)
+    ranks = np.zeros(points.shape[1], dtype=np.int64)
+    finite = np.isfinite(points[0])
+    for row in points[1:]:
+        finite &= np.isfinite(row)
     ranked = int(np.count_nonzero(finite))
     if ranked == 0:
         return ranks
-    if ranked < points.shape[0]:
-        points[~finite] = np.nan  # after every finite row on every objective
+    if ranked < finite.size:
+        points[:, ~finite] = np.nan  # after every finite point on every objective
     del finite
-    # lexicographic (first objective, then the next ...); NaN rows last; ties in point order, as in a
-    # lexicographic sort of the finite rows alone
-    order = np.lexsort(points.T[::-1])[:ranked]
+    # lexicographic (first objective, then the next ...); NaN points last; ties in point order, as in a
+    # lexicographic sort of the finite points alone
+    order = np.lexsort(points[::-1])[:ranked]
     sorted_ranks(points, order, ranks)  # compiled: metasim.sweep._kernels.pareto
     return ranks
 
@@ -156,10 +161,10 @@ READ_DESIGNS = 1 << 16
 
 
 def pareto_rank_variable(ds: xr.Dataset, objectives: Mapping[str, str] | Sequence[str] | None = None, *,
-                         read_designs: int = READ_DESIGNS) -> xr.DataArray:
+                         read_designs: int | None = None) -> xr.DataArray:
     """The ``pareto_rank`` variable of a result (:func:`pareto_front`), its objectives read in blocks.
 
-    Each objective is read ``read_designs`` designs at a time into one (design × objective) array
+    Each objective is read ``read_designs`` (default :data:`READ_DESIGNS`) designs at a time into one (design × objective) array
     (for a result opened from its file, only those numbers are read), so besides that array and the
     ranks the memory holds the lexicographic order and the fronts' copies of the points
     (:func:`minimised_ranks`), whatever the size of the result's other variables.
@@ -168,14 +173,14 @@ def pareto_rank_variable(ds: xr.Dataset, objectives: Mapping[str, str] | Sequenc
         raise SweepError(f"a Pareto front needs a result with a 'design' dim, got dims {tuple(ds.dims)}")
     columns, senses, names, words = objective_columns(ds, objectives)
     count = ds.sizes["design"]
-    points = np.empty((count, len(columns)))
-    step = max(1, int(read_designs))
-    for j, (column, sense) in enumerate(zip(columns, senses)):
+    points = np.empty((len(columns), count))  # objective by objective
+    step = max(1, int(READ_DESIGNS if read_designs is None else read_designs))
+    for row, column, sense in zip(points, columns, senses):
         for a in range(0, count, step):
             b = min(a + step, count)
-            points[a:b, j] = column.isel(design=slice(a, b)).values
+            row[a:b] = column.isel(design=slice(a, b)).values
             if sense == "max":
-                points[a:b, j] *= -1.0
+                row[a:b] *= -1.0
     ranks = minimised_ranks(points)
     del points
     described = [{"name": n, "sense": s, "long_name": w} for n, s, w in zip(names, senses, words)]
