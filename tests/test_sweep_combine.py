@@ -223,6 +223,8 @@ def test_the_end_of_a_combine_holds_a_few_numbers_per_design(tmp_path, monkeypat
             tracemalloc.stop()
         peaks[count] = phase["peak"]
         assert combined.sizes["design"] == count and (combined["pareto_rank"] >= 1).all()
+        values, senses, _, _ = pareto_module.objective_values(combined)  # the whole columns at once, in memory
+        np.testing.assert_array_equal(combined["pareto_rank"].values, pareto_module.pareto_ranks(values, senses))
         combined.close()
         assert reads and max(size for _, size in reads) <= block  # one objective column, one block at a time
         assert {name for name, _ in reads} == {"delta_e_2000_overall", "gamut_coverage", "white_efficacy"}

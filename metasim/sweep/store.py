@@ -690,7 +690,8 @@ def combine_sweep(store, *, write: bool = True) -> xr.Dataset:
 
     A sweep run with intervals also gets its designs' ranks, probabilities of being the best, the
     best set and the edge warning (:func:`metasim.sweep.ranking.ranking_variables`, computed in
-    blocks of designs); every sweep gets its Pareto ranks (:func:`metasim.sweep.pareto.pareto_front`).
+    blocks of designs); every sweep gets its Pareto ranks (:func:`metasim.sweep.pareto.pareto_rank_variable`,
+    its objectives read in blocks of designs).
 
     Every chunk's checksum and design range are checked first; a chunk that fails is set aside and
     :class:`~metasim.errors.StoreIntegrityError` asks for the sweep to be run again.
