@@ -881,9 +881,9 @@ def renamed_design_coordinates(ds, parameters=None) -> dict:
         if not isinstance(spec, dict) or not str(spec.get("design_model", "")).startswith(_NAMED_DESIGNS):
             return {}
         parameters = [current_design_coordinate(str(name)) for name in spec.get("parameters", [])]
-    return {name: current_design_coordinate(name) for name in map(str, getattr(ds, "coords", ()))
-            if current_design_coordinate(name) != name and current_design_coordinate(name) in parameters
-            and current_design_coordinate(name) not in ds.coords}
+    current = {name: current_design_coordinate(name) for name in map(str, getattr(ds, "coords", ()))}
+    return {name: new for name, new in current.items()
+            if new != name and new in parameters and new not in ds.coords}
 
 
 def with_current_names(ds, parameters=None):
@@ -902,7 +902,8 @@ def with_current_names(ds, parameters=None):
     -------
     xarray.Dataset
         ``ds`` with old variable names replaced (a name whose new spelling is already present stays);
-        a sweep's or search's ``spec`` attribute lists its parameters under the new names.
+        a sweep's or search's ``spec`` attribute lists its parameters, and its ``edge_warnings``
+        name them, under the new names.
 
     Examples
     --------
@@ -944,6 +945,11 @@ def with_current_names(ds, parameters=None):
         if isinstance(spec.get("bounds"), dict):
             spec["bounds"] = {old.get(k, k): v for k, v in spec["bounds"].items()}
         ds.attrs = {**ds.attrs, "spec": spec}
+    warnings_text = ds.attrs.get("edge_warnings")
+    if isinstance(warnings_text, str) and warnings_text:  # sentences that name a renamed coordinate
+        for name, new in old.items():
+            warnings_text = warnings_text.replace(f" {name} = ", f" {new} = ")
+        ds.attrs = {**ds.attrs, "edge_warnings": warnings_text}
     return ds
 
 

@@ -10,7 +10,6 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
 from matplotlib.ticker import MaxNLocator
 
-from metasim.io import first_design_coordinate
 from metasim.plots.figures import DELTA_E_LABEL, DESIGN_COLOURS, REFERENCE_COLOUR, STYLE, _figure
 from metasim.units import DELTA_E00
 
@@ -180,9 +179,8 @@ def edge_messages(summary: xr.Dataset) -> list[str]:
     """
     messages = [m for m in str(summary.attrs.get("edge_warnings", "")).split(" | ") if m]
     names = sorted((str(c) for c in summary.coords if summary[c].dims == ("design",)), key=len, reverse=True)
-    for name in names:  # a sweep written before the coordinates were renamed names them the old way
-        for key in dict.fromkeys((name, first_design_coordinate(name))):
-            messages = [m.replace(f" {key} = ", f" {parameter_text(summary, name)[0]} = ") for m in messages]
+    for name in names:
+        messages = [m.replace(f" {name} = ", f" {parameter_text(summary, name)[0]} = ") for m in messages]
     return messages
 
 

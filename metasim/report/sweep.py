@@ -149,14 +149,13 @@ def _sweep_best(ds: xr.Dataset, shown: int = 10) -> str:
 SEARCH_KEYS = {"strategy": "evolution_strategy", "init": "initial_population", "updating": "population_updating"}
 
 
-def _design_numbers(ds: xr.Dataset, value) -> str:
+def _design_numbers(value) -> str:
     """Design indexes stored in an attribute (``8``, ``"0, 7, 8"``) as the numbers readers see."""
     try:
         indexes = [int(v) for v in str(value).replace(",", " ").split()]
     except ValueError:
         return str(value)
-    position = {int(d): i for i, d in enumerate(ds["design"].values)} if "design" in ds.coords else {}
-    numbers = [plots.design_number(ds, position[i]) if i in position else i + 1 for i in indexes]
+    numbers = [i + 1 for i in indexes]  # as plots.design_number: the file's design index + 1
     return ("design " if len(numbers) == 1 else "designs ") + ", ".join(map(str, numbers))
 
 
@@ -186,7 +185,7 @@ def readable_sweep_attributes(ds: xr.Dataset) -> dict:
     attrs = {k: v for k, v in ds.attrs.items() if k != "spec"}
     for key in ("best_design", "best_set"):
         if key in attrs:
-            attrs[key] = _design_numbers(ds, attrs[key])
+            attrs[key] = _design_numbers(attrs[key])
     if attrs.get("edge_warnings"):
         attrs["edge_warnings"] = "; ".join(plots.edge_messages(ds))
     if "best_feasible" in attrs:

@@ -75,7 +75,7 @@ PARAMETERS = ("peak_nm", "fwhm_nm", "relative_power")
 #: a searched primary's parameters renamed: old name → new name (the old still taken for one release)
 RENAMED_PARAMETERS = {"width_nm": "fwhm_nm", "power": "relative_power"}
 #: the parameter names the spec hash reads (those of stores made before the renames, so they resume)
-_HASHED_PARAMETERS = {"peak_nm": "peak_nm", "fwhm_nm": "width_nm", "relative_power": "power"}
+_HASHED_PARAMETERS = {new: old for old, new in RENAMED_PARAMETERS.items()}
 _UNITS = {"peak_nm": "nm", "fwhm_nm": "nm", "relative_power": "1"}
 
 
@@ -122,7 +122,7 @@ class SearchSpace:
         """The space as the spec hash and the designs' ``parameters`` attribute record it (each
         primary's parameters under the names of stores made before the renames, which still resume)."""
         return {"kind": self.kind, "profile": self.profile,
-                "primaries": {k: {_HASHED_PARAMETERS[p]: list(v) for p, v in r.items()}
+                "primaries": {k: {_HASHED_PARAMETERS.get(p, p): list(v) for p, v in r.items()}
                               for k, r in self.primaries.items()},
                 "fixed_primaries": [p for p in self.labels if p not in self.primaries]}
 

@@ -786,7 +786,7 @@ def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
         "metasim_version": __version__,
         "store_metasim_version": manifest.get("metasim_version", ""),
     })
-    with _small_chunk_cache(), _open_without_design_index(path) as (opened, lazy):
+    with _small_chunk_cache(), _open_without_design_index(path) as lazy:
         lazy.attrs = attrs
         for name in lazy.variables:
             lazy[name].attrs = decode_attrs(lazy[name].attrs, f"{path}:{name}")
@@ -803,19 +803,18 @@ def _write_combined(folder: Path, manifest: dict, path: Path) -> None:
 @contextlib.contextmanager
 def _open_without_design_index(path: Path):
     """The combined file opened (values read when used) without an index of ``design`` (xarray would
-    read every design's label into memory for it); the other dims keep theirs (for ``.sel``).
-    Yields the opened Dataset and the one to use."""
+    read every design's label into memory for it); the other dims keep theirs (for ``.sel``)."""
     options = {"engine": "netcdf4", "mask_and_scale": False, "decode_times": False, "cache": False}
     if "create_default_indexes" not in inspect.signature(xr.open_dataset).parameters:  # an older xarray
         with xr.open_dataset(path, **options) as opened:
-            yield opened, opened
+            yield opened
         return
     with xr.open_dataset(path, create_default_indexes=False, **options) as opened:
         indexed = opened
         for name in opened.dims:
             if name != "design" and name in opened.coords:
                 indexed = indexed.set_xindex(name)
-        yield opened, indexed
+        yield indexed
 
 
 #: bytes of HDF5 chunk cache per variable while a combined sweep is read back (its designs are read
